@@ -1,0 +1,45 @@
+"""optbench: is the volatility an option chain charges rich or cheap against a
+GARCH-family forecast of the underlying, and what does that gap cost on a hedge?
+
+The public names below are imported lazily, so that ``import optbench`` stays fast
+and a script that only loads a chain does not pay for the volatility models.
+
+>>> from optbench import bsm_price
+>>> round(float(bsm_price(42, 40, 0.5, 0.10, 0.0, 0.20, True)), 2)  # Hull, Example 15.6
+4.76
+"""
+from __future__ import annotations
+
+import importlib
+from typing import Any
+
+__version__ = "0.1.0"
+
+# public name -> module that defines it
+_EXPORTS: dict[str, str] = {
+    "InputError": "optbench.errors",
+    "bsm_price": "optbench.pricing.bsm",
+    "bsm_greeks": "optbench.pricing.bsm",
+    "implied_vol": "optbench.pricing.implied",
+    "load_chain": "optbench.data.chain",
+    "load_history": "optbench.data.history",
+    "load_scenario": "optbench.data.scenario",
+    "fit_garch": "optbench.volatility.garch",
+    "compare": "optbench.analysis.compare",
+    "hedge": "optbench.analysis.hedge",
+}
+
+__all__ = sorted(_EXPORTS) + ["__version__"]
+
+
+def __getattr__(name: str) -> Any:
+    module = _EXPORTS.get(name)
+    if module is None:
+        raise AttributeError(f"module 'optbench' has no attribute {name!r}")
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return __all__

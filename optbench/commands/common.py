@@ -1,0 +1,89 @@
+"""Options shared by several sub-commands, and writing their output.
+
+Every command takes ``--format`` and ``-o FILE``; commands that read a chain take
+the market overrides ``--spot``, ``--asof``, ``--rate``, ``--div-yield``; commands
+that fit a volatility model take ``--model``, ``--dist`` and ``--mean``.
+"""
+from __future__ import annotations
+
+import argparse
+import datetime as _dt
+import sys
+from pathlib import Path
+
+from optbench.errors import InputError
+
+TEXT_FORMATS = ("table", "json", "csv", "md", "html")
+FILE_ONLY_FORMATS = ("xlsx",)
+
+
+def add_output_options(parser: argparse.ArgumentParser,
+                       formats: tuple[str, ...] = ("table", "json", "csv")) -> None:
+    parser.add_argument("--format", "-f", choices=formats, default="table",
+                        help="output format (default: table)")
+    parser.add_argument("-o", "--output", metavar="FILE", default=None,
+                        help="write the output to FILE instead of the terminal")
+
+
+def parse_date(text: str) -> _dt.date:
+    """argparse type for ISO dates, with a one-line error."""
+    try:
+        return _dt.date.fromisoformat(text.strip())
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a date (YYYY-MM-DD): {text!r}") from None
+
+
+def parse_float(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
+    if value != value or value in (float("inf"), float("-inf")):
+        raise argparse.ArgumentTypeError(f"not a finite number: {text!r}")
+    return value
+
+
+def add_market_overrides(parser: argparse.ArgumentParser) -> None:
+    group = parser.add_argument_group("market overrides")
+    group.add_argument("--spot", type=parse_float, help="underlying price at quote time")
+    group.add_argument("--asof", type=parse_date, help="quote date, YYYY-MM-DD")
+    group.add_argument("--rate", type=parse_float,
+                       help="risk-free rate, continuously compounded decimal (0.04 = 4%%)")
+    group.add_argument("--div-yield", dest="div_yield", type=parse_float,
+                       help="dividend yield, continuously compounded decimal")
+
+
+def market_overrides(args: argparse.Namespace) -> dict:
+    """The overrides the user gave, as keyword arguments for the loaders."""
+    keys = ("spot", "asof", "rate", "div_yield")
+    return {k: getattr(args, k) for k in keys if getattr(args, k, None) is not None}
+
+
+def add_model_options(parser: argparse.ArgumentParser, default_model: str = "auto") -> None:
+    group = parser.add_argument_group("volatility model")
+    group.add_argument("--model", choices=("garch", "gjr", "egarch", "auto"),
+                       default=default_model,
+                       help=f"GARCH-family model (default: {default_model}; auto picks by BIC)")
+    group.add_argument("--dist", choices=("normal", "t"), default="t",
+                       help="innovation distribution (default: t)")
+    group.add_argument("--mean", choices=("constant", "zero"), default="constant",
+                       help="mean of the daily returns (default: constant)")
+
+
+def write_output(args: argparse.Namespace, payload: str | bytes) -> None:
+    """Write to ``-o FILE`` (reporting where it went on stderr) or to stdout."""
+    target = getattr(args, "output", None)
+    if target:
+        path = Path(target)
+        try:
+            if isinstance(payload, bytes):
+                path.write_bytes(payload)
+            else:
+                path.write_text(payload, encoding="utf-8")
+        except OSError as err:
+            raise InputError(path, f"cannot write: {err.strerror or err}") from None
+        print(f"optbench: wrote {path}", file=sys.stderr)
+        return
+    if isinstance(payload, bytes):
+        raise InputError("--format", "this format writes a file: give -o FILE")
+    sys.stdout.write(payload if payload.endswith("\n") else payload + "\n")
