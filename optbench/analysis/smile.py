@@ -1,0 +1,577 @@
+"""Smile per expiry: a raw SVI fit of total implied variance in log-moneyness, and
+the smile's standard points (fixed moneyness, fixed delta, risk reversal, butterfly).
+
+Notes
+-----
+Raw SVI (Gatheral 2004) writes the total implied variance :math:`w = \\sigma_{imp}^2 t`
+as a function of log-moneyness :math:`k = \\ln(K/F)`:
+
+.. math::
+
+    w(k) = a + b\\,\\bigl[\\rho\\,(k - m) + \\sqrt{(k - m)^2 + \\sigma^2}\\bigr],
+
+with :math:`b \\ge 0`, :math:`|\\rho| < 1`, :math:`\\sigma > 0` and
+:math:`a + b\\sigma\\sqrt{1-\\rho^2} \\ge 0` (the smallest total variance is not
+negative). The fit is the quasi-explicit method of De Marco & Martini (Zeliade
+Systems white paper, 2009): for fixed :math:`(m, \\sigma)`, put
+:math:`y = (k - m)/\\sigma`; then :math:`w = a + d\\,y + c\\sqrt{y^2 + 1}` with
+:math:`c = b\\sigma`, :math:`d = \\rho b \\sigma` is linear in :math:`(a, d, c)` and
+the constraints :math:`c \\ge 0`, :math:`|d| \\le c` become the box
+:math:`u = c + d \\ge 0`, :math:`v = c - d \\ge 0`. The inner weighted linear least
+squares is solved exactly (every active set of the box is tried, batched in numpy);
+the outer problem in :math:`(m, \\sigma)` is searched on a grid that is refined
+around the best point, a deterministic search with no starting guess.
+
+References: J. Gatheral, "A parsimonious arbitrage-free implied volatility
+parameterization with application to the valuation of volatility derivatives",
+Global Derivatives, Madrid, 2004; J. Gatheral, *The Volatility Surface*, Wiley 2006,
+ch. 3; S. De Marco and C. Martini, "Quasi-explicit calibration of Gatheral's SVI
+model", Zeliade white paper, 2009; J. Gatheral and A. Jacquier, "Arbitrage-free SVI
+volatility surfaces", Quantitative Finance 14 (2014).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.special import ndtr, ndtri
+
+from optbench.errors import InputError
+
+#: fixed moneyness points K/F of :func:`smile_points`
+MONEYNESS = (0.90, 0.95, 1.00, 1.05, 1.10)
+#: absolute delta of the wing points of :func:`smile_points`
+WING_DELTA = 0.25
+
+_GRID_M = 21          # points in m per grid round
+_GRID_S = 17          # points in sigma per grid round
+_ROUNDS = 2           # refinement rounds of the (m, sigma) grid
+_SIGMA_MIN = 1e-4     # smallest SVI sigma searched (log-moneyness units)
+
+
+@dataclass(frozen=True)
+class SviFit:
+    """A raw SVI smile for one expiry.
+
+    Attributes
+    ----------
+    a, b, rho, m, sigma : float
+        Raw SVI parameters; ``w(k) = a + b*(rho*(k - m) + sqrt((k - m)**2 + sigma**2))``
+        with ``w`` total implied variance (decimal vol squared times years) and
+        ``k = ln(K/F)``.
+    t : float
+        Time to expiry in years (calendar days / 365).
+    rmse_iv : float
+        Root mean square, weighted like the fit, of the fitted minus quoted implied
+        vol, in decimal vol (0.001 = 0.1 vol point).
+    n_points : int
+        Quotes used in the fit (finite inputs with positive weight).
+    converged : bool
+        True when the (m, sigma) search ended inside its bounds on a full SVI fit.
+    message : str
+        What was fitted, and any caveat.
+    method : str
+        ``"svi"`` (full fit), ``"svi-fixed-m-sigma"`` (3 or 4 points: m and sigma
+        fixed, the linear part fitted) or ``"flat"`` (1 or 2 points: flat total
+        variance, b = 0).
+    """
+
+    a: float
+    b: float
+    rho: float
+    m: float
+    sigma: float
+    t: float
+    rmse_iv: float
+    n_points: int
+    converged: bool
+    message: str
+    method: str = "svi"
+
+    def total_variance(self, k: np.ndarray | float) -> np.ndarray:
+        """Total implied variance ``w(k)`` (decimal vol squared times years) at
+        log-moneyness ``k = ln(K/F)``; broadcasts."""
+        k = np.asarray(k, dtype=float)
+        x = k - self.m
+        return self.a + self.b * (self.rho * x + np.sqrt(x * x + self.sigma ** 2))
+
+    def iv(self, k: np.ndarray | float) -> np.ndarray:
+        """Implied volatility ``sqrt(w(k) / t)`` (annualised decimal) at
+        log-moneyness ``k``; NaN where the fitted total variance is negative."""
+        w = self.total_variance(k)
+        with np.errstate(invalid="ignore"):
+            return np.sqrt(np.where(w >= 0, w, np.nan) / self.t)
+
+    @property
+    def min_total_variance(self) -> float:
+        """Smallest total variance of the smile, ``a + b*sigma*sqrt(1 - rho**2)``."""
+        return float(self.a + self.b * self.sigma * np.sqrt(max(1.0 - self.rho ** 2, 0.0)))
+
+    def to_dict(self) -> dict:
+        return {"a": self.a, "b": self.b, "rho": self.rho, "m": self.m,
+                "sigma": self.sigma, "t": self.t, "rmse_iv": self.rmse_iv,
+                "n_points": self.n_points, "converged": self.converged,
+                "message": self.message, "method": self.method}
+
+
+# ---------------------------------------------------------------------------
+# inner problem: exact box-constrained weighted least squares, batched
+# ---------------------------------------------------------------------------
+
+# active sets tried for the 3 unknowns (a, u, v): True = free, False = held at 0.
+# The first four leave ``a`` free (its solution is kept only where the minimum
+# variance a + sqrt(u*v) is not negative); the last three hold a = 0, a sufficient
+# condition for a non-negative smile.
+_ACTIVE = np.array([[True, True, True], [True, False, True], [True, True, False],
+                    [True, False, False], [False, True, True], [False, True, False],
+                    [False, False, True]])
+
+
+def _solve3(G: np.ndarray, h: np.ndarray) -> np.ndarray:
+    """Solve the batched symmetric 3x3 systems ``G x = h`` by Cramer's rule.
+
+    ``G`` has shape (p, 3, 3), ``h`` shape (p, 3); singular systems give NaN.
+    """
+    g00, g01, g02 = G[:, 0, 0], G[:, 0, 1], G[:, 0, 2]
+    g11, g12, g22 = G[:, 1, 1], G[:, 1, 2], G[:, 2, 2]
+    c00 = g11 * g22 - g12 * g12
+    c01 = g02 * g12 - g01 * g22
+    c02 = g01 * g12 - g02 * g11
+    c11 = g00 * g22 - g02 * g02
+    c12 = g01 * g02 - g00 * g12
+    c22 = g00 * g11 - g01 * g01
+    det = g00 * c00 + g01 * c01 + g02 * c02
+    with np.errstate(divide="ignore", invalid="ignore"):
+        inv = 1.0 / np.where(np.abs(det) > 0, det, np.nan)
+    h0, h1, h2 = h[:, 0], h[:, 1], h[:, 2]
+    return np.stack([(c00 * h0 + c01 * h1 + c02 * h2) * inv,
+                     (c01 * h0 + c11 * h1 + c12 * h2) * inv,
+                     (c02 * h0 + c12 * h1 + c22 * h2) * inv], axis=-1)
+
+
+def _inner(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m: np.ndarray,
+           s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Best (a, u, v) and weighted squared error for each candidate (m, s).
+
+    ``k, w, wt`` have shape (n,); ``m, s`` shape (p,). Returns coefficients of shape
+    (p, 3) and objective of shape (p,).
+    """
+    y = (k[None, :] - m[:, None]) / s[:, None]                      # (p, n)
+    r = np.sqrt(y * y + 1.0)
+    # basis: w = a*1 + u*P + v*Q with P = (r + y)/2, Q = (r - y)/2; u = c + d, v = c - d
+    P = 0.5 * (r + y)
+    Q = 0.5 * (r - y)
+    Pw, Qw = P * wt, Q * wt
+    G = np.empty(m.shape + (3, 3))
+    G[:, 0, 0] = wt.sum()
+    G[:, 0, 1] = G[:, 1, 0] = Pw.sum(axis=1)
+    G[:, 0, 2] = G[:, 2, 0] = Qw.sum(axis=1)
+    G[:, 1, 1] = (Pw * P).sum(axis=1)
+    G[:, 1, 2] = G[:, 2, 1] = (Pw * Q).sum(axis=1)
+    G[:, 2, 2] = (Qw * Q).sum(axis=1)
+    h = np.stack([np.full(m.shape, float(wt @ w)), Pw @ w, Qw @ w], axis=-1)
+    ww = float(np.sum(wt * w * w))
+    eye = np.eye(3)
+    ridge = eye * (1e-13 * np.trace(G, axis1=1, axis2=2))[:, None, None]
+    # every active set at once: shape (sets, p, 3, 3); fixed unknowns are held at 0
+    # by replacing their rows and columns with the identity
+    mask = _ACTIVE.astype(float)[:, None, :]                          # (sets, 1, 3)
+    Gm = (G[None] * mask[..., :, None] * mask[..., None, :]
+          + eye * (1.0 - mask)[..., None, :] + ridge[None])
+    nsets, p = _ACTIVE.shape[0], m.shape[0]
+    coef = _solve3(Gm.reshape(nsets * p, 3, 3),
+                   (h[None] * mask).reshape(nsets * p, 3)).reshape(nsets, p, 3) * mask
+    Gc = (G[None] * coef[..., None, :]).sum(axis=-1)
+    obj = ww - 2.0 * (coef * h[None]).sum(axis=-1) + (coef * Gc).sum(axis=-1)
+    a, u, v = coef[..., 0], coef[..., 1], coef[..., 2]
+    ok = (u >= 0) & (v >= 0) & (a + np.sqrt(np.maximum(u * v, 0.0)) >= 0)
+    obj = np.where(ok, obj, np.inf)
+    pick = np.argmin(obj, axis=0)                                      # (p,)
+    cols = np.arange(p)
+    best_obj = obj[pick, cols]
+    best = coef[pick, cols]
+    # a = u = v = 0 is always feasible; a flat smile at the weighted mean too
+    flat = ~np.isfinite(best_obj)
+    if np.any(flat):
+        a0 = float(np.sum(wt * w) / np.sum(wt))
+        best[flat] = [a0, 0.0, 0.0]
+        best_obj[flat] = float(np.sum(wt * (w - a0) ** 2))
+    return best, np.maximum(best_obj, 0.0)
+
+
+def _raw_params(coef: np.ndarray, m: float, s: float) -> tuple[float, float, float]:
+    a, u, v = (float(x) for x in coef)
+    c = 0.5 * (u + v)
+    d = 0.5 * (u - v)
+    b = c / s
+    rho = d / c if c > 0 else 0.0
+    return a, b, float(np.clip(rho, -1.0, 1.0))
+
+
+def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray,
+            x0: tuple[float, float, float, float, float],
+            max_iter: int = 40) -> tuple[tuple[float, ...], float, bool]:
+    """Levenberg-Marquardt steps on all five raw SVI parameters from ``x0``.
+
+    A step is kept only if it lowers the weighted squared error and stays inside
+    the constraints (b >= 0, |rho| < 1, sigma > 0, non-negative minimum variance).
+    Returns the parameters, their objective and whether the steps settled.
+    """
+    sw = np.sqrt(wt)
+
+    def resid(p):
+        a, b, rho, m, s = p
+        x = k - m
+        R = np.sqrt(x * x + s * s)
+        return sw * (a + b * (rho * x + R) - w), x, R
+
+    def feasible(p):
+        a, b, rho, m, s = p
+        return b >= 0 and abs(rho) < 1 and s > 0 and a + b * s * np.sqrt(1 - rho * rho) >= 0
+
+    p = np.array(x0, dtype=float)
+    e, x, R = resid(p)
+    obj = float(e @ e)
+    lam = 1e-3
+    settled = False
+    for _ in range(max_iter):
+        a, b, rho, m, s = p
+        J = np.stack([np.ones_like(x), rho * x + R, b * x, -b * (rho + x / R), b * s / R],
+                     axis=1) * sw[:, None]
+        A = J.T @ J
+        g = J.T @ e
+        diag = np.diag(np.diag(A)) + 1e-300
+        improved = False
+        for _ in range(8):
+            try:
+                step = np.linalg.solve(A + lam * diag, -g)
+            except np.linalg.LinAlgError:
+                lam *= 10.0
+                continue
+            q = p + step
+            if feasible(q):
+                e_q, x_q, R_q = resid(q)
+                obj_q = float(e_q @ e_q)
+                if obj_q < obj:
+                    improved = True
+                    done = obj - obj_q <= 1e-14 * max(obj, 1e-300) or np.all(
+                        np.abs(step) <= 1e-13 * (1.0 + np.abs(p)))
+                    p, e, x, R, obj = q, e_q, x_q, R_q, obj_q
+                    lam = max(lam / 3.0, 1e-12)
+                    break
+            lam *= 4.0
+        if not improved or done or obj <= 1e-30:
+            settled = True
+            break
+    return tuple(float(v) for v in p), obj, settled
+
+
+def _check_inputs(k, w, weights, t) -> tuple[np.ndarray, np.ndarray, np.ndarray, float]:
+    try:
+        k = np.asarray(k, dtype=float)
+        w = np.asarray(w, dtype=float)
+    except (TypeError, ValueError):
+        raise InputError("fit_svi", "log-moneyness and total variance must be numbers")
+    if k.shape != w.shape:
+        raise InputError("fit_svi", f"log-moneyness has shape {k.shape} but total "
+                                    f"variance has shape {w.shape}")
+    if k.ndim != 1:
+        k, w = k.ravel(), w.ravel()
+    if weights is None:
+        wt = np.ones_like(k)
+    else:
+        try:
+            wt = np.broadcast_to(np.asarray(weights, dtype=float), k.shape).copy()
+        except (TypeError, ValueError):
+            raise InputError("fit_svi", "weights must be numbers of the same shape as k")
+        if np.any(wt < 0):
+            raise InputError("fit_svi", "weights must not be negative")
+    try:
+        t = float(t)
+    except (TypeError, ValueError):
+        raise InputError("fit_svi", f"time to expiry must be a number, not {t!r}")
+    if not np.isfinite(t) or t <= 0:
+        raise InputError("fit_svi", f"time to expiry must be positive, not {t}")
+    keep = np.isfinite(k) & np.isfinite(w) & np.isfinite(wt) & (wt > 0) & (w >= 0)
+    if not np.any(keep):
+        raise InputError("fit_svi", "no finite quote with positive weight to fit")
+    return k[keep], w[keep], wt[keep], t
+
+
+def fit_svi(k: np.ndarray, w: np.ndarray, weights: np.ndarray | None = None, *,
+            t: float) -> SviFit:
+    """Fit a raw SVI smile to total implied variance of one expiry.
+
+    Parameters
+    ----------
+    k : array
+        Log-moneyness ``ln(K/F)`` of each quote, with ``F`` the expiry's forward.
+    w : array, same shape
+        Total implied variance ``iv**2 * t`` of each quote (iv a decimal).
+    weights : array or None
+        Non-negative weights on the squared total-variance residuals (for a
+        vega-weighted fit pass the BSM vega of each quote, e.g. normalised to a
+        mean of 1). Points with zero weight or non-finite input are left out.
+    t : float
+        Time to expiry in years (calendar days / 365).
+
+    Returns
+    -------
+    SviFit
+
+    Notes
+    -----
+    Minimises :math:`\\sum_i \\omega_i\\,(w_{SVI}(k_i) - w_i)^2` over raw SVI
+    parameters subject to :math:`b \\ge 0`, :math:`|\\rho| \\le 1`,
+    :math:`\\sigma > 0`, :math:`a + b\\sigma\\sqrt{1-\\rho^2} \\ge 0` (Gatheral 2004),
+    by the quasi-explicit reduction of De Marco & Martini (2009): the inner problem in
+    :math:`(a, \\rho b\\sigma, b\\sigma)` is an exact box-constrained linear least
+    squares; the outer search in :math:`m \\in [k_{min} - \\Delta, k_{max} + \\Delta]`
+    and :math:`\\sigma \\in [10^{-4}, 2\\Delta]` (:math:`\\Delta` the strike range in
+    log-moneyness) is a grid refined around its best point.
+
+    With 3 or 4 points SVI's five parameters are not identified: ``m`` is held at the
+    point of lowest total variance and ``sigma`` at half the log-moneyness range,
+    and the linear part is fitted (``method="svi-fixed-m-sigma"``). With 1 or 2
+    points the smile is flat in total variance (``method="flat"``).
+    """
+    k, w, wt, t = _check_inputs(k, w, weights, t)
+    n = k.size
+    wt = wt / wt.mean()
+    iv_q = np.sqrt(w / t)
+
+    def finish(a, b, rho, m, s, converged, message, method):
+        x = k - m
+        wf = a + b * (rho * x + np.sqrt(x * x + s * s))
+        iv_f = np.sqrt(np.maximum(wf, 0.0) / t)
+        rmse = float(np.sqrt(np.sum(wt * (iv_f - iv_q) ** 2) / np.sum(wt)))
+        return SviFit(float(a), float(b), float(rho), float(m), float(s), t, rmse, n,
+                      bool(converged), message, method)
+
+    if n < 3 or np.ptp(k) <= 0:
+        a0 = float(np.sum(wt * w) / np.sum(wt))
+        return finish(a0, 0.0, 0.0, float(np.mean(k)), 0.1, False,
+                      f"flat total variance: {n} distinct point(s) cannot identify a smile",
+                      "flat")
+    span = float(np.ptp(k))
+    if n < 5:
+        m0 = float(k[np.argmin(w)])
+        s0 = max(0.5 * span, _SIGMA_MIN)
+        coef, _ = _inner(k, w, wt, np.array([m0]), np.array([s0]))
+        a, b, rho = _raw_params(coef[0], m0, s0)
+        return finish(a, b, rho, m0, s0, False,
+                      f"{n} points: m and sigma held fixed, level/slope/curvature fitted",
+                      "svi-fixed-m-sigma")
+
+    m_lo, m_hi = float(k.min()) - span, float(k.max()) + span
+    ls_lo, ls_hi = np.log(_SIGMA_MIN), np.log(2.0 * span)
+    mg = np.linspace(m_lo, m_hi, _GRID_M)
+    lsg = np.linspace(ls_lo, ls_hi, _GRID_S)
+    dm, dls = mg[1] - mg[0], lsg[1] - lsg[0]
+    best = (np.inf, 0.0, 0.0, None)
+    for _ in range(_ROUNDS):
+        M, LS = np.meshgrid(mg, lsg, indexing="ij")
+        coef, obj = _inner(k, w, wt, M.ravel(), np.exp(LS.ravel()))
+        i = int(np.argmin(obj))
+        if obj[i] <= best[0]:
+            best = (float(obj[i]), float(M.ravel()[i]), float(LS.ravel()[i]), coef[i])
+        # zoom: the next grid spans two cells either side of the best point
+        mc, lc = best[1], best[2]
+        mg = np.linspace(max(mc - 2 * dm, m_lo), min(mc + 2 * dm, m_hi), _GRID_M)
+        lsg = np.linspace(max(lc - 2 * dls, ls_lo), min(lc + 2 * dls, ls_hi), _GRID_S)
+        dm, dls = mg[1] - mg[0], lsg[1] - lsg[0]
+    obj, m_best, ls_best, coef = best
+    s_best = float(np.exp(ls_best))
+    a, b, rho = _raw_params(coef, m_best, s_best)
+    on_edge = (ls_best <= ls_lo + 1e-9 or ls_best >= ls_hi - 1e-9
+               or m_best <= m_lo + 1e-9 or m_best >= m_hi - 1e-9)
+    if b > 0 and abs(rho) < 1:
+        (a, b, rho, m_best, s_best), _, _ = _polish(k, w, wt, (a, b, rho, m_best, s_best))
+    message = "raw SVI fit" if not on_edge else (
+        "raw SVI fit; m or sigma ended at its search bound (smile nearly linear or "
+        "nearly a corner)")
+    return finish(a, b, rho, m_best, s_best, not on_edge, message, "svi")
+
+
+# ---------------------------------------------------------------------------
+# smile points
+# ---------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class SmilePoints:
+    """Standard points of one expiry's fitted smile.
+
+    Attributes
+    ----------
+    moneyness : tuple of float
+        Strikes as fractions of the forward, K/F (0.90 ... 1.10).
+    iv_moneyness : ndarray
+        Fitted implied vol (decimal) at each ``moneyness``.
+    iv_atm : float
+        Fitted implied vol at the forward (ATM means K = F in optbench).
+    iv_25d_put, iv_25d_call : float
+        Fitted implied vol at the strikes whose delta is -0.25 (put) and +0.25 (call).
+    strike_25d_put, strike_25d_call : float
+        Those strikes.
+    rr_25d : float
+        Risk reversal ``iv_25d_call - iv_25d_put`` (decimal vol; negative = puts dearer).
+    bf_25d : float
+        Smile butterfly ``(iv_25d_call + iv_25d_put)/2 - iv_atm`` (decimal vol).
+    delta_convention : str
+        ``"spot"`` (delta = e^{-qt} N(d1) for calls, -e^{-qt} N(-d1) for puts) or
+        ``"forward"`` (N(d1), -N(-d1)).
+    atm_convention : str
+        Always ``"forward"``: ATM is the strike equal to the forward.
+    """
+
+    moneyness: tuple
+    iv_moneyness: np.ndarray
+    iv_atm: float
+    iv_25d_put: float
+    iv_25d_call: float
+    strike_25d_put: float
+    strike_25d_call: float
+    rr_25d: float
+    bf_25d: float
+    delta_convention: str
+    atm_convention: str = "forward"
+
+    def to_dict(self) -> dict:
+        return {"moneyness": list(self.moneyness),
+                "iv_moneyness": [float(x) for x in self.iv_moneyness],
+                "iv_atm": self.iv_atm, "iv_25d_put": self.iv_25d_put,
+                "iv_25d_call": self.iv_25d_call, "strike_25d_put": self.strike_25d_put,
+                "strike_25d_call": self.strike_25d_call, "rr_25d": self.rr_25d,
+                "bf_25d": self.bf_25d, "delta_convention": self.delta_convention,
+                "atm_convention": self.atm_convention}
+
+
+def _strike_for_d1(fit: SviFit, d1_target: np.ndarray) -> np.ndarray:
+    """Log-moneyness k with d1(k) = (-k + w(k)/2)/sqrt(w(k)) equal to each target.
+
+    A fixed point k = w(k)/2 - d1*sqrt(w(k)) first (it converges when the smile's
+    slope is moderate), then a vectorised bisection on a bracket wherever the fixed
+    point did not settle.
+    """
+    d1_target = np.asarray(d1_target, dtype=float)
+    w0 = max(float(fit.total_variance(0.0)), 1e-12)
+    k = w0 / 2 - d1_target * np.sqrt(w0)
+    for _ in range(60):
+        wk = np.maximum(fit.total_variance(k), 1e-300)
+        k_new = wk / 2 - d1_target * np.sqrt(wk)
+        if np.all(np.abs(k_new - k) < 1e-13):
+            k = k_new
+            break
+        k = k_new
+
+    def d1_of(kk):
+        wk = fit.total_variance(kk)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return (-kk + wk / 2) / np.sqrt(wk)
+
+    bad = ~(np.abs(d1_of(k) - d1_target) < 1e-9)
+    if np.any(bad):
+        # bracket: d1 is large and positive far left, large negative far right
+        width = 10.0 * np.sqrt(w0) + 1.0
+        lo = np.full(d1_target.shape, -width)
+        hi = np.full(d1_target.shape, width)
+        for _ in range(200):
+            mid = 0.5 * (lo + hi)
+            above = d1_of(mid) > d1_target
+            lo = np.where(above, mid, lo)
+            hi = np.where(above, hi, mid)
+        kb = 0.5 * (lo + hi)
+        ok = np.abs(d1_of(kb) - d1_target) < 1e-7
+        k = np.where(bad, np.where(ok, kb, np.nan), k)
+    return k
+
+
+def smile_points(fit: SviFit, F: float, t: float | None = None, r: float = 0.0,
+                 q: float | None = None, S: float | None = None, *,
+                 delta: str = "spot") -> SmilePoints:
+    """Implied vols at fixed moneyness and fixed delta from a fitted smile.
+
+    Parameters
+    ----------
+    fit : SviFit
+        The expiry's smile.
+    F : float
+        The expiry's forward.
+    t : float, optional
+        Time to expiry in years; defaults to ``fit.t``.
+    r : float
+        Continuously compounded rate (decimal); only used with ``S`` to imply the
+        carry.
+    q : float, optional
+        Continuously compounded dividend yield / carry (decimal) for spot deltas.
+        If omitted it is implied from the forward: ``q = r - ln(F/S)/t``.
+    S : float, optional
+        Spot; needed for spot deltas when ``q`` is not given.
+    delta : {"spot", "forward"}
+        Spot delta ``e^{-qt} N(d1)`` (the hedge ratio in the underlying, matching
+        :func:`optbench.pricing.bsm_greeks`) or forward delta ``N(d1)``.
+
+    Returns
+    -------
+    SmilePoints
+
+    Notes
+    -----
+    With :math:`w(k)` the fitted total variance,
+    :math:`d_1(k) = (-k + w(k)/2)/\\sqrt{w(k)}`. A call of spot delta
+    :math:`\\Delta` has :math:`d_1 = N^{-1}(\\Delta e^{qt})`; a put of spot delta
+    :math:`-\\Delta` has :math:`d_1 = -N^{-1}(\\Delta e^{qt})` (Hull, *Options,
+    Futures, and Other Derivatives*, ch. 19; Clark, *Foreign Exchange Option Pricing*,
+    2011, ch. 3 for delta conventions). The strike is solved on the fitted smile.
+    Risk reversal :math:`RR = \\sigma_{25C} - \\sigma_{25P}`, butterfly
+    :math:`BF = (\\sigma_{25C} + \\sigma_{25P})/2 - \\sigma_{ATM}`.
+    """
+    t = fit.t if t is None else float(t)
+    F = float(F)
+    if not np.isfinite(F) or F <= 0:
+        raise InputError("smile_points", f"forward must be positive, not {F}")
+    if not np.isfinite(t) or t <= 0:
+        raise InputError("smile_points", f"time to expiry must be positive, not {t}")
+    if delta not in ("spot", "forward"):
+        raise InputError("smile_points", f"delta must be 'spot' or 'forward', not {delta!r}")
+    if t != fit.t:
+        fit = SviFit(fit.a, fit.b, fit.rho, fit.m, fit.sigma, t, fit.rmse_iv,
+                     fit.n_points, fit.converged, fit.message, fit.method)
+    if delta == "spot":
+        if q is None:
+            if S is None or not float(S) > 0:
+                raise InputError("smile_points",
+                                 "spot deltas need the dividend yield q or the spot S")
+            q = float(r) - np.log(F / float(S)) / t
+        scale = np.exp(float(q) * t)
+    else:
+        scale = 1.0
+    money = np.asarray(MONEYNESS)
+    iv_m = fit.iv(np.log(money))
+    target = WING_DELTA * scale
+    if target >= 1.0:
+        d1 = np.array([np.nan, np.nan])
+    else:
+        z = float(ndtri(target))
+        d1 = np.array([-z, z])      # [put, call]
+    kk = _strike_for_d1(fit, d1)
+    iv_w = fit.iv(kk)
+    iv_atm = float(fit.iv(0.0))
+    iv_p, iv_c = float(iv_w[0]), float(iv_w[1])
+    return SmilePoints(MONEYNESS, iv_m, iv_atm, iv_p, iv_c, float(F * np.exp(kk[0])),
+                       float(F * np.exp(kk[1])), iv_c - iv_p,
+                       0.5 * (iv_c + iv_p) - iv_atm, delta)
+
+
+def spot_delta(fit: SviFit, F: float, K: np.ndarray, q: float, is_call: np.ndarray,
+               ) -> np.ndarray:
+    """BSM spot delta ``±e^{-qt} N(±d1)`` at strikes ``K`` with the fitted smile's vol.
+
+    Used to check :func:`smile_points`; broadcasts over ``K`` and ``is_call``.
+    """
+    k = np.log(np.asarray(K, dtype=float) / float(F))
+    wk = fit.total_variance(k)
+    d1 = (-k + wk / 2) / np.sqrt(wk)
+    disc_q = np.exp(-float(q) * fit.t)
+    return np.where(np.asarray(is_call, dtype=bool), disc_q * ndtr(d1),
+                    -disc_q * ndtr(-d1))
