@@ -1,0 +1,172 @@
+"""Smile fits per expiry: raw SVI (Gatheral 2004) and the smile's standard points.
+
+Outside references are named beside each check: vollib (Black-Scholes-Merton prices,
+implied vols and analytical deltas), scipy.optimize.least_squares (an independent
+general-purpose fit of the same objective), and published SVI parameter sets.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from hypothesis import given, settings, strategies as st
+from scipy.optimize import least_squares
+
+from vollib.black_scholes_merton import black_scholes_merton as vl_price
+from vollib.black_scholes_merton.greeks.analytical import delta as vl_delta
+from vollib.black_scholes_merton.implied_volatility import implied_volatility as vl_iv
+
+from optbench.analysis.smile import MONEYNESS, SviFit, fit_svi, smile_points
+from optbench.errors import InputError
+
+
+def svi_w(k, a, b, rho, m, sigma):
+    """Raw SVI total variance, written out from Gatheral (2004), eq. for w(k)."""
+    return a + b * (rho * (k - m) + np.sqrt((k - m) ** 2 + sigma ** 2))
+
+
+# Gatheral & Jacquier, "Arbitrage-free SVI volatility surfaces" (2014), §5: the
+# parameter set (a, b, rho, m, sigma) = (-0.0410, 0.1331, 0.3060, 0.3586, 0.4153),
+# t = 1 (quoted from memory); a negative a with a positive minimum variance.
+GJ_2014 = (-0.0410, 0.1331, 0.3060, 0.3586, 0.4153)
+# an equity-index-like downward skew (invented for the test)
+SKEW = (0.01, 0.08, -0.6, 0.02, 0.15)
+
+
+@pytest.mark.parametrize("params", [GJ_2014, SKEW, (0.002, 0.05, -0.9, 0.05, 0.05)])
+def test_svi_recovers_the_parameters_that_generated_the_smile(params):
+    # Gatheral (2004): raw SVI is identified from a smile it generated.
+    k = np.linspace(-0.8, 0.5, 40)
+    fit = fit_svi(k, svi_w(k, *params), t=1.0)
+    got = (fit.a, fit.b, fit.rho, fit.m, fit.sigma)
+    np.testing.assert_allclose(got, params, rtol=1e-7, atol=1e-9)
+    assert fit.converged and fit.method == "svi" and fit.n_points == 40
+    assert fit.rmse_iv < 1e-8
+
+
+def test_noisy_fit_is_at_least_as_good_as_a_general_least_squares_fit():
+    # Reference: scipy.optimize.least_squares on the same five raw SVI parameters,
+    # started at the true values, with SVI's box constraints.
+    rng = np.random.default_rng(7)
+    k = np.linspace(-0.6, 0.4, 30)
+    w = svi_w(k, *SKEW) * (1 + 0.02 * rng.standard_normal(k.size))
+    fit = fit_svi(k, w, t=0.5)
+    ref = least_squares(lambda p: svi_w(k, *p) - w, x0=SKEW,
+                        bounds=([-1, 0, -0.999, -2, 1e-4], [1, 5, 0.999, 2, 5]),
+                        xtol=1e-15, ftol=1e-15, gtol=1e-15)
+    ours = np.sum((fit.total_variance(k) - w) ** 2)
+    theirs = np.sum((svi_w(k, *ref.x) - w) ** 2)
+    assert ours <= theirs * (1 + 1e-6)
+    assert fit.min_total_variance >= 0
+    # rmse_iv is in decimal vol: recompute it from the fitted and quoted vols
+    iv_q = np.sqrt(w / 0.5)
+    assert fit.rmse_iv == pytest.approx(np.sqrt(np.mean((fit.iv(k) - iv_q) ** 2)), rel=1e-12)
+
+
+def test_weights_leave_a_zero_weight_outlier_out():
+    k = np.linspace(-0.5, 0.5, 21)
+    w = svi_w(k, *SKEW)
+    w_bad = w.copy()
+    w_bad[3] *= 3.0
+    weights = np.ones_like(k)
+    weights[3] = 0.0
+    fit = fit_svi(k, w_bad, weights, t=1.0)
+    np.testing.assert_allclose([fit.a, fit.b, fit.rho, fit.m, fit.sigma], SKEW,
+                               rtol=1e-6, atol=1e-8)
+    assert fit.n_points == 20
+    # with the outlier weighted in, the fit moves
+    fit_all = fit_svi(k, w_bad, t=1.0)
+    assert abs(fit_all.a - SKEW[0]) > 1e-4
+
+
+def test_flat_vol_chain_priced_by_vollib_gives_flat_smile_points():
+    # Reference: vollib prices a flat 23% vol chain and backs out its implied vols;
+    # the fitted smile must then be flat at 23% at every point.
+    S, r, q, t, vol = 100.0, 0.04, 0.015, 0.35, 0.23
+    F = S * np.exp((r - q) * t)
+    K = np.linspace(70, 135, 27)
+    iv = np.array([vl_iv(vl_price("p" if x < F else "c", S, x, t, r, vol, q), S, x, t, r,
+                         q, "p" if x < F else "c") for x in K])
+    vega_w = np.exp(-0.5 * (np.log(K / F) / (vol * np.sqrt(t))) ** 2)
+    fit = fit_svi(np.log(K / F), iv ** 2 * t, vega_w, t=t)
+    pts = smile_points(fit, F, t, r, q, S)
+    np.testing.assert_allclose(pts.iv_moneyness, vol, atol=1e-9)
+    assert pts.iv_atm == pytest.approx(vol, abs=1e-9)
+    assert pts.iv_25d_put == pytest.approx(vol, abs=1e-9)
+    assert pts.iv_25d_call == pytest.approx(vol, abs=1e-9)
+    assert abs(pts.rr_25d) < 1e-9 and abs(pts.bf_25d) < 1e-9
+    # vollib's analytical spot delta at the solved strikes is -0.25 and +0.25
+    assert vl_delta("p", S, pts.strike_25d_put, t, r, vol, q) == pytest.approx(-0.25, abs=1e-9)
+    assert vl_delta("c", S, pts.strike_25d_call, t, r, vol, q) == pytest.approx(0.25, abs=1e-9)
+
+
+@pytest.mark.parametrize("delta", ["spot", "forward"])
+def test_25_delta_strikes_on_a_skew_match_vollib_deltas(delta):
+    # Reference: vollib's analytical BSM delta e^{-qt} N(d1) (spot) evaluated at the
+    # solved strike with the smile's own vol there; forward delta is that times e^{qt}.
+    S, r, q, t = 100.0, 0.03, 0.02, 0.75
+    F = S * np.exp((r - q) * t)
+    k = np.linspace(-0.9, 0.5, 30)
+    fit = fit_svi(k, svi_w(k, 0.02, 0.1, -0.7, 0.05, 0.2), t=t)
+    pts = smile_points(fit, F, t, r, q, S, delta=delta)
+    scale = 1.0 if delta == "spot" else np.exp(q * t)
+    d_put = vl_delta("p", S, pts.strike_25d_put, t, r, pts.iv_25d_put, q) * scale
+    d_call = vl_delta("c", S, pts.strike_25d_call, t, r, pts.iv_25d_call, q) * scale
+    assert d_put == pytest.approx(-0.25, abs=1e-9)
+    assert d_call == pytest.approx(0.25, abs=1e-9)
+    # a downward skew (rho < 0) makes the 25-delta put dearer than the call
+    assert pts.rr_25d < 0 and pts.iv_25d_put > pts.iv_atm > pts.iv_25d_call
+    assert pts.delta_convention == delta and pts.atm_convention == "forward"
+    np.testing.assert_allclose(pts.iv_moneyness, fit.iv(np.log(np.array(MONEYNESS))))
+
+
+def test_carry_implied_from_spot_and_forward_gives_the_same_points():
+    # Spot delta needs e^{-qt}; q implied from F = S e^{(r-q)t} must agree with q given.
+    S, r, q, t = 100.0, 0.05, 0.03, 0.5
+    F = S * np.exp((r - q) * t)
+    k = np.linspace(-0.5, 0.4, 25)
+    fit = fit_svi(k, svi_w(k, *SKEW) * t, t=t)
+    a = smile_points(fit, F, t, r, q, S)
+    b = smile_points(fit, F, t, r, None, S)
+    assert a.strike_25d_put == pytest.approx(b.strike_25d_put, rel=1e-12)
+    with pytest.raises(InputError):
+        smile_points(fit, F, t, r)          # spot delta without q or S
+
+
+def test_few_points_are_fitted_simply_and_flagged():
+    fit1 = fit_svi([0.0], [0.04], t=1.0)
+    assert fit1.method == "flat" and not fit1.converged and fit1.iv(0.3) == pytest.approx(0.2)
+    k = np.array([-0.2, -0.05, 0.0, 0.15])
+    w = svi_w(k, *SKEW)
+    fit4 = fit_svi(k, w, t=1.0)
+    assert fit4.method == "svi-fixed-m-sigma" and not fit4.converged
+    assert fit4.min_total_variance >= 0 and np.isfinite(fit4.rmse_iv)
+    # three free linear unknowns through three points: an exact fit
+    fit3 = fit_svi(k[:3], w[:3], t=1.0)
+    assert fit3.rmse_iv < 1e-6
+
+
+@pytest.mark.parametrize("args, kwargs", [
+    (([0.1, 0.2], [0.04]), {"t": 1.0}),                 # mismatched shapes
+    (([], []), {"t": 1.0}),                             # empty
+    (([0.1, 0.2], [0.04, 0.05]), {"t": -0.5}),          # negative time
+    ((["a", "b"], [0.04, 0.05]), {"t": 1.0}),           # strings
+    (([0.1, 0.2], [np.nan, np.nan]), {"t": 1.0}),       # nothing finite
+])
+def test_bad_input_is_a_clear_error(args, kwargs):
+    with pytest.raises(InputError, match="fit_svi"):
+        fit_svi(*args, **kwargs)
+
+
+@settings(max_examples=25, deadline=None)
+@given(a=st.floats(0.0, 0.05), b=st.floats(0.02, 0.4), rho=st.floats(-0.9, 0.9),
+       m=st.floats(-0.2, 0.2), sigma=st.floats(0.03, 0.5))
+def test_property_fit_reproduces_any_svi_smile(a, b, rho, m, sigma):
+    # Gatheral (2004): every raw SVI smile satisfying the constraints is reachable,
+    # so the fit must reproduce its total variance on the strikes it saw.
+    k = np.linspace(-0.7, 0.5, 30)
+    w = svi_w(k, a, b, rho, m, sigma)
+    fit = fit_svi(k, w, t=1.0)
+    assert isinstance(fit, SviFit)
+    np.testing.assert_allclose(fit.total_variance(k), w, atol=1e-7)
+    assert fit.b >= 0 and abs(fit.rho) <= 1 and fit.sigma > 0
+    assert fit.min_total_variance >= -1e-15
