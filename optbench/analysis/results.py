@@ -269,6 +269,8 @@ class Comparison:
     rejected : rejected input rows (``line``, ``reason``, ``detail``), or None.
     warnings : notes the user should see (fallbacks, missing parts, stale data).
     caution : :data:`CAUTION`.
+    fit : the fitted model object (``GarchFit``) for further simulation (hedge);
+        not part of ``to_dict()``.
     """
 
     asof: _dt.date
@@ -295,6 +297,7 @@ class Comparison:
     rejected: pd.DataFrame | None = None
     warnings: tuple[str, ...] = ()
     caution: str = CAUTION
+    fit: Any = field(default=None, repr=False)
 
     # -- access
     def expiry_frame(self) -> pd.DataFrame:

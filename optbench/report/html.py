@@ -1,0 +1,228 @@
+"""A self-contained HTML report with figures (matplotlib, Agg backend).
+
+Figures are embedded as PNG data URIs, so the report is one file. matplotlib is
+imported only inside the figure functions (it costs start-up time).
+
+Figures of a comparison:
+
+1. the ATM implied vol term structure against the forecast and its band, with the
+   trailing realized vol and the model-free implied vol;
+2. each expiry's smile (mid implied vol with bid-ask range, by strike / forward)
+   against the forecast level and band;
+3. the price history with the model's ±3-sigma one-day bands
+   (``close[t-1] * exp(mu ± 3 sigma[t])``), and the daily returns against ±3 sigma
+   with the out-of-sample surprises marked.
+"""
+from __future__ import annotations
+
+import base64
+import html as _html
+import io
+import math
+
+import numpy as np
+
+from optbench.report.fields import (EXPIRY_BRIEF, HEDGE_FIELDS, KINDS, LABELS, LEG_FIELDS,
+                                    SCENARIO_FIELDS, fmt)
+
+_CSS = """
+body{font-family:system-ui,sans-serif;margin:2em;max-width:1200px;color:#1d2330}
+table{border-collapse:collapse;margin:1em 0;font-size:0.9em}
+th,td{padding:3px 8px;border-bottom:1px solid #d8dce4;text-align:right}
+th{background:#eef1f6}td.t,th.t{text-align:left}
+.rich{color:#a02c2c;font-weight:bold}.cheap{color:#22763a;font-weight:bold}
+.caution{border-left:4px solid #c69214;padding:0.5em 1em;background:#fbf6e8}
+img{max-width:100%}
+"""
+
+
+def _plt():
+    import matplotlib
+    matplotlib.use("Agg", force=True)
+    import matplotlib.pyplot as plt
+    return plt
+
+
+def _png(fig) -> str:
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=96, bbox_inches="tight")
+    _plt().close(fig)
+    return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
+
+
+def figure_term_structure(comparison) -> str:
+    """ATM IV by calendar days against the forecast band and realized vol (PNG data URI)."""
+    plt = _plt()
+    rows = comparison.expiries
+    d = np.array([r.calendar_days for r in rows], float)
+    fig, ax = plt.subplots(figsize=(8, 4))
+    lo = np.array([r.forecast_low for r in rows]) * 100
+    hi = np.array([r.forecast_high for r in rows]) * 100
+    ax.fill_between(d, lo, hi, alpha=0.25, label=f"forecast band {comparison.band[0]:.0%}–"
+                                                  f"{comparison.band[1]:.0%}")
+    ax.plot(d, np.array([r.forecast_vol for r in rows]) * 100, "-", label="forecast")
+    ax.plot(d, np.array([r.atm_iv for r in rows]) * 100, "o-", label="ATM implied")
+    ax.plot(d, np.array([r.model_free_iv for r in rows]) * 100, "s--", ms=4,
+            label="model-free implied")
+    ax.plot(d, np.array([r.realized_vol for r in rows]) * 100, "^:", label="trailing realized")
+    ax.set_xscale("log")
+    ax.set_xlabel("calendar days to expiry")
+    ax.set_ylabel("vol, % a year")
+    ax.set_title(f"{comparison.underlying} term structure, {comparison.asof.isoformat()}")
+    ax.legend(fontsize=8)
+    ax.grid(alpha=0.3)
+    return _png(fig)
+
+
+def figure_smiles(comparison) -> str:
+    """Each expiry's smile against its forecast level and band (PNG data URI)."""
+    plt = _plt()
+    rows = comparison.expiries
+    n = max(len(rows), 1)
+    ncol = min(3, n)
+    nrow = math.ceil(n / ncol)
+    fig, axes = plt.subplots(nrow, ncol, figsize=(4 * ncol, 2.8 * nrow), squeeze=False)
+    for ax, row in zip(axes.flat, rows):
+        f = comparison.strikes.get(row.expiry)
+        if f is not None and len(f):
+            m = f["moneyness"].to_numpy(float)
+            mid = f["iv_mid"].to_numpy(float) * 100
+            lo = f["iv_bid"].to_numpy(float) * 100
+            hi = f["iv_ask"].to_numpy(float) * 100
+            calls = f["is_call"].to_numpy(bool)
+            for sel, mk, lab in ((~calls, "v", "puts"), (calls, "^", "calls")):
+                err = np.vstack([np.nan_to_num(mid[sel] - lo[sel]),
+                                 np.nan_to_num(hi[sel] - mid[sel])])
+                ax.errorbar(m[sel], mid[sel], yerr=np.clip(err, 0, None), fmt=mk, ms=3,
+                            lw=0.6, label=lab)
+        ax.axhspan(row.forecast_low * 100, row.forecast_high * 100, alpha=0.2)
+        ax.axhline(row.forecast_vol * 100, lw=1)
+        ax.set_title(f"{row.expiry.isoformat()} ({row.calendar_days} d) · {row.verdict}",
+                     fontsize=9)
+        ax.set_xlabel("strike / forward", fontsize=8)
+        ax.tick_params(labelsize=7)
+        ax.grid(alpha=0.3)
+    for ax in list(axes.flat)[len(rows):]:
+        ax.set_visible(False)
+    axes.flat[0].set_ylabel("implied vol, %")
+    fig.tight_layout()
+    return _png(fig)
+
+
+def figure_history(comparison) -> str | None:
+    """Closes with ±3-sigma one-day bands, and returns with surprises (PNG data URI)."""
+    h = comparison.history
+    if h is None or not len(h):
+        return None
+    plt = _plt()
+    dates = np.asarray(h["date"].to_numpy(), dtype="datetime64[D]")
+    close = h["close"].to_numpy(float)
+    ret = h["ret"].to_numpy(float)
+    sigma = h["sigma"].to_numpy(float)
+    mu = float(comparison.model.params.get("mu", 0.0) or 0.0)
+    prev = np.concatenate([[np.nan], close[:-1]])
+    fig, (a1, a2) = plt.subplots(2, 1, figsize=(9, 6), sharex=True,
+                                 gridspec_kw={"height_ratios": [3, 2]})
+    a1.plot(dates, close, lw=0.8, label="close")
+    a1.fill_between(dates, prev * np.exp(mu - 3 * sigma), prev * np.exp(mu + 3 * sigma),
+                    alpha=0.3, label="±3σ one-day band")
+    a1.set_yscale("log")
+    a1.legend(fontsize=8)
+    a1.set_title(f"{comparison.underlying} closes and the {comparison.model.name} bands")
+    a2.plot(dates, ret * 100, lw=0.5, label="daily log return")
+    a2.plot(dates, (mu + 3 * sigma) * 100, lw=0.6, color="0.4")
+    a2.plot(dates, (mu - 3 * sigma) * 100, lw=0.6, color="0.4", label="±3σ")
+    outside = np.abs(ret - mu) > 3 * sigma
+    a2.plot(dates[outside], ret[outside] * 100, "o", ms=3, label="outside ±3σ")
+    bt = comparison.backtest or {}
+    surprises = bt.get("surprises") or []
+    if surprises:
+        sd = np.array([np.datetime64(s["date"], "D") for s in surprises])
+        idx = np.searchsorted(dates, sd)
+        idx = idx[(idx < len(dates))]
+        a2.plot(dates[idx], ret[idx] * 100, "x", ms=6, label="largest out-of-sample surprises")
+    if bt.get("split"):
+        for ax in (a1, a2):
+            ax.axvline(np.datetime64(bt["split"], "D"), ls="--", lw=0.8, color="0.3")
+    a2.set_ylabel("% a day")
+    a2.legend(fontsize=7, ncol=4)
+    for ax in (a1, a2):
+        ax.grid(alpha=0.3)
+    fig.tight_layout()
+    return _png(fig)
+
+
+def _table(records, columns) -> str:
+    head = "".join(f'<th class="{"t" if KINDS.get(c) in ("text", "date") else ""}">'
+                   f"{_html.escape(LABELS.get(c, c))}</th>" for c in columns)
+    body = []
+    for r in records:
+        cells = []
+        for c in columns:
+            text = fmt(r.get(c), KINDS.get(c, "text"))
+            cls = []
+            if KINDS.get(c) in ("text", "date"):
+                cls.append("t")
+            if c == "verdict" and text in ("rich", "cheap"):
+                cls.append(text)
+            cells.append(f'<td class="{" ".join(cls)}">{_html.escape(text)}</td>')
+        body.append("<tr>" + "".join(cells) + "</tr>")
+    return f"<table><tr>{head}</tr>{''.join(body)}</table>"
+
+
+def _page(title: str, body: str) -> str:
+    return (f"<!doctype html><html lang=\"en\"><head><meta charset=\"utf-8\">"
+            f"<title>{_html.escape(title)}</title><style>{_CSS}</style></head>"
+            f"<body>{body}</body></html>\n")
+
+
+def comparison_html(comparison, *, figures: bool = True) -> str:
+    c = comparison
+    m = c.model
+    e = _html.escape
+    parts = [f"<h1>{e(c.underlying)}: implied against forecast volatility</h1>",
+             f"<p>As of <b>{c.asof.isoformat()}</b> · spot {c.spot:,.2f} · rate "
+             f"{100 * c.rate:.2f}% · dividend yield {100 * c.div_yield:.2f}% · {e(c.style)}"
+             f" · model {e(m.name)} ({e(m.dist)} innovations, {e(m.mean)} mean), "
+             f"{c.n_paths:,} simulated paths</p>",
+             f'<p class="caution">{e(c.caution)}</p>',
+             "<h2>Per expiry</h2>", _table([r.to_dict() for r in c.expiries], EXPIRY_BRIEF),
+             f"<p>Verdict rule: {e(c.verdict_rule)}.</p>"]
+    if figures:
+        parts += ["<h2>Term structure</h2>", f'<img alt="term structure" src="{figure_term_structure(c)}">',
+                  "<h2>Smiles</h2>", f'<img alt="smiles" src="{figure_smiles(c)}">']
+        hist = figure_history(c)
+        if hist:
+            parts += ["<h2>Price history and model bands</h2>",
+                      f'<img alt="price history" src="{hist}">']
+    q = c.quality
+    rej = ", ".join(f"{e(str(k))}: {v}" for k, v in q.get("rejected", {}).items()) or "none"
+    parts.append(f"<h2>Data quality</h2><p>{q.get('rows_in', 0)} rows read, "
+                 f"{q.get('rows_used', 0)} used; rejected: {rej}.</p>")
+    if c.warnings:
+        parts.append("<ul>" + "".join(f"<li>{e(w)}</li>" for w in c.warnings) + "</ul>")
+    return _page(f"optbench compare {c.underlying} {c.asof.isoformat()}", "".join(parts))
+
+
+def hedge_html(estimate) -> str:
+    h = estimate
+    e = _html.escape
+    s = h.summary()
+    rows = "".join(f'<tr><td class="t">{e(label)}</td><td>{e(fmt(s[k], kind))}</td></tr>'
+                   for k, label, kind in HEDGE_FIELDS)
+    parts = [f"<h1>{e(h.underlying)}: {e(h.structure.replace('_', ' '))} hedge</h1>",
+             f"<p>As of <b>{h.asof.isoformat()}</b> · spot {h.spot:,.2f} · portfolio "
+             f"{h.request.portfolio_value:,.0f} · ratio {h.request.exposure_ratio:g} · floor "
+             f"{100 * h.request.floor:.0f}%</p>",
+             f'<p class="caution">{e(h.caution)}</p>',
+             f"<table>{rows}</table>",
+             "<h2>Legs</h2>", _table([leg.to_dict() for leg in h.legs],
+                                     [f for f, _, _ in LEG_FIELDS]),
+             "<h2>Portfolio P&amp;L at expiry</h2>",
+             _table(list(h.scenarios), [f for f, _, _ in SCENARIO_FIELDS]),
+             f"<p>Roll cost: {e(h.roll_method)}.</p>"]
+    if h.collar_note:
+        parts.append(f"<p>Collar: {e(h.collar_note)}.</p>")
+    parts.append(f"<p>Expected payoff and probability from {h.n_paths:,} paths of the fitted "
+                 f"{e(str(h.model.get('name')))} model ({e(str(h.model.get('measure')))}).</p>")
+    return _page(f"optbench hedge {h.underlying} {h.asof.isoformat()}", "".join(parts))

@@ -1,0 +1,65 @@
+"""JSON output: decimals, ISO dates, ``null`` for missing numbers.
+
+The schema of the ``compare`` and ``hedge`` documents is in ``docs/schema.md``.
+``NaN`` and infinities are written as ``null`` (JSON has no NaN; RFC 8259 §6);
+dates as ``YYYY-MM-DD`` (ISO 8601); numpy scalars and arrays as plain numbers and lists.
+"""
+from __future__ import annotations
+
+import datetime as _dt
+import json
+import math
+from typing import Any
+
+import numpy as np
+
+SCHEMA_VERSION = 1
+
+
+def clean(value: Any) -> Any:
+    """Recursively make ``value`` JSON-safe: NaN/inf -> None, dates -> ISO strings."""
+    if value is None or isinstance(value, (bool, str)):
+        return value
+    if isinstance(value, np.bool_):
+        return bool(value)
+    if isinstance(value, (int, np.integer)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        x = float(value)
+        return x if math.isfinite(x) else None
+    if isinstance(value, (_dt.datetime,)):
+        return value.date().isoformat() if not value.time() else value.isoformat()
+    if isinstance(value, _dt.date):
+        return value.isoformat()
+    if isinstance(value, np.datetime64):
+        return None if np.isnat(value) else str(value.astype("datetime64[D]"))
+    if isinstance(value, dict):
+        return {str(k): clean(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [clean(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return [clean(v) for v in value.tolist()]
+    if hasattr(value, "to_dict"):
+        from optbench.analysis.results import plain
+        return clean(plain(value))
+    try:
+        import pandas as pd
+        if value is pd.NaT or (not isinstance(value, (list, tuple, dict)) and pd.isna(value)):
+            return None
+        if isinstance(value, pd.Timestamp):
+            return value.date().isoformat()
+    except (TypeError, ValueError):
+        pass
+    return str(value)
+
+
+def dumps(obj: Any, *, kind: str | None = None, indent: int | None = 2) -> str:
+    """JSON text of a result object (anything with ``to_dict()``) or plain data.
+
+    ``kind`` (``"compare"``/``"hedge"``) adds ``"schema": "optbench.<kind>/1"``.
+    """
+    data = obj.to_dict() if hasattr(obj, "to_dict") else obj
+    data = clean(data)
+    if kind and isinstance(data, dict):
+        data = {"schema": f"optbench.{kind}/{SCHEMA_VERSION}", **data}
+    return json.dumps(data, indent=indent, allow_nan=False, ensure_ascii=False) + "\n"

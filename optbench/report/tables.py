@@ -1,0 +1,90 @@
+"""Terminal tables (rich) for the command line.
+
+The only module of the report package that imports rich; the core never does.
+"""
+from __future__ import annotations
+
+import io
+
+from optbench.report.fields import (EXPIRY_BRIEF, HEDGE_FIELDS, KINDS, LABELS, LEG_FIELDS,
+                                    SCENARIO_FIELDS, STRIKE_BRIEF, fmt)
+
+_VERDICT_STYLE = {"rich": "bold red", "cheap": "bold green", "fair": "", "n/a": "dim"}
+
+
+def _render(renderables, width: int | None, color: bool = False) -> str:
+    from rich.console import Console
+    buf = io.StringIO()
+    console = Console(file=buf, width=width or 140, force_terminal=color,
+                      color_system="standard" if color else None, highlight=False)
+    for r in renderables:
+        console.print(r)
+    return buf.getvalue()
+
+
+def _table(title: str, records, columns):
+    from rich.table import Table
+    from rich.text import Text
+    t = Table(title=title, title_justify="left", show_lines=False, pad_edge=False)
+    for c in columns:
+        t.add_column(LABELS.get(c, c), justify="left" if KINDS.get(c) in ("text", "date")
+                     else "right", no_wrap=True)
+    for r in records:
+        cells = []
+        for c in columns:
+            text = fmt(r.get(c), KINDS.get(c, "text"))
+            cells.append(Text(text, style=_VERDICT_STYLE.get(text, "")) if c == "verdict"
+                         else text)
+        t.add_row(*cells)
+    return t
+
+
+def comparison_table(comparison, *, strikes_for=None, width: int | None = None,
+                     color: bool = False) -> str:
+    """The comparison as terminal text: header, per-expiry table, rule, quality, caution."""
+    c = comparison
+    m = c.model
+    parts = [f"{c.underlying}  as of {c.asof.isoformat()}  spot {c.spot:,.2f}  "
+             f"rate {100 * c.rate:.2f}%  div {100 * c.div_yield:.2f}%  {c.style}",
+             f"model {m.name}/{m.dist} (mean {m.mean}), persistence {m.persistence:.4f}, "
+             f"long-run vol {100 * m.long_run_vol:.2f}%, {c.n_paths:,} simulated paths",
+             _table("Implied against forecast (vols in %, differences in vol points)",
+                    [r.to_dict() for r in c.expiries], EXPIRY_BRIEF),
+             f"Verdict rule: {c.verdict_rule}."]
+    for exp in ([] if strikes_for is None else list(strikes_for)):
+        frame = c.strike_frame(exp)
+        parts.append(_table(f"Strikes, {exp}", frame.to_dict(orient="records"), STRIKE_BRIEF))
+    q = c.quality
+    rej = ", ".join(f"{k} {v}" for k, v in q.get("rejected", {}).items()) or "none"
+    parts.append(f"Quotes: {q.get('rows_in', 0)} rows, {q.get('rows_used', 0)} used; "
+                 f"rejected: {rej}")
+    parts += [f"note: {w}" for w in c.warnings]
+    parts.append(c.caution)
+    return _render(parts, width, color)
+
+
+def hedge_table(estimate, *, width: int | None = None, color: bool = False) -> str:
+    e = estimate
+    s = e.summary()
+    from rich.table import Table
+    summary = Table(title=f"{e.structure.replace('_', ' ')} on {e.underlying}, "
+                          f"portfolio {e.request.portfolio_value:,.0f}",
+                    title_justify="left", show_header=False)
+    summary.add_column("item")
+    summary.add_column("value", justify="right")
+    for k, label, kind in HEDGE_FIELDS:
+        summary.add_row(label, fmt(s[k], kind))
+    parts = [f"{e.underlying}  as of {e.asof.isoformat()}  spot {e.spot:,.2f}  "
+             f"ratio {e.request.exposure_ratio:g}  floor {100 * e.request.floor:.0f}%",
+             summary,
+             _table("Legs", [leg.to_dict() for leg in e.legs], [f for f, _, _ in LEG_FIELDS]),
+             _table("Portfolio P&L at expiry", list(e.scenarios),
+                    [f for f, _, _ in SCENARIO_FIELDS]),
+             f"Roll cost: {e.roll_method}."]
+    if e.collar_note:
+        parts.append(f"Collar: {e.collar_note}.")
+    parts.append(f"Expected payoff and probability: {e.n_paths:,} paths of the fitted "
+                 f"{e.model.get('name')} model ({e.model.get('measure')}).")
+    parts += [f"note: {w}" for w in e.warnings]
+    parts.append(e.caution)
+    return _render(parts, width, color)
