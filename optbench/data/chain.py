@@ -1,0 +1,564 @@
+"""Loading an option chain: any supported layout in, one canonical quotes table out.
+
+``load_chain`` reads a CSV or Parquet chain in the long layout (one quote a row,
+column names in any of their usual spellings), the wide layout (calls | strike |
+puts on one row) or with OCC option symbols standing in for expiry, strike and
+type; it validates every quote (:mod:`optbench.data.validate`) and returns an
+:class:`OptionChain` whose ``quotes`` hold the usable quotes in canonical columns
+and whose ``rejected`` frame keeps every other input row with its line number and
+reason.
+"""
+from __future__ import annotations
+
+import datetime as _dt
+from collections.abc import Iterable, Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from optbench.data.columns import SIDE_FIELDS, map_chain_columns, side_of
+from optbench.data.files import RawTable, drop_blank_rows, read_table
+from optbench.data.occ import parse_occ
+from optbench.data.parse import (percent_or_decimal, present, style_word, to_date,
+                                 to_is_call, to_number, to_style)
+from optbench.data.validate import REASONS, WARNINGS, assign_reasons, quote_warnings
+from optbench.errors import InputError
+
+DEFAULT_MAX_SPREAD = 1.0
+"""Largest accepted relative spread (ask − bid) / mid: 1.0 = the spread may be as
+wide as the mid itself (ask up to three times the bid)."""
+
+DEFAULT_TINY_PRICE = 0.05
+"""Mids below this (price units) are flagged ``tiny_price`` (common practice: a
+nickel is the usual minimum tick on listed options, so such a price is mostly tick)."""
+
+DEFAULT_MULTIPLIER = 100.0
+
+QUOTE_COLUMNS = ("expiry", "strike", "is_call", "bid", "ask", "mid", "last", "volume",
+                 "open_interest", "style", "multiplier", "t", "calendar_days", "line",
+                 "warnings")
+
+
+@dataclass(frozen=True)
+class Quality:
+    """What happened to the input rows.
+
+    ``rows_in`` counts option quotes read (a wide-layout line carries two: its call
+    and its put); ``rows_in == rows_used + sum(rejected.values())`` always.
+    ``rejected`` maps reason code -> count, ``warnings`` flag -> count of kept quotes.
+    """
+
+    rows_in: int
+    rows_used: int
+    rejected: dict[str, int]
+    warnings: dict[str, int]
+
+    def as_dict(self) -> dict:
+        return {"rows_in": self.rows_in, "rows_used": self.rows_used,
+                "rejected": dict(self.rejected), "warnings": dict(self.warnings)}
+
+
+@dataclass(frozen=True, eq=False)
+class OptionChain:
+    """A validated option chain.
+
+    Attributes
+    ----------
+    source : str
+        The file read.
+    underlying : str
+        The underlying's code or name ('' when neither file nor meta gives it).
+    asof : datetime.date
+        Quote date; option times run from its end of day.
+    spot : float
+        Underlying price at quote time (price units).
+    rate, div_yield : float
+        Continuously compounded risk-free rate and dividend yield (decimals).
+    quotes : DataFrame
+        Usable quotes, columns :data:`QUOTE_COLUMNS` (plus ``iv_file`` in decimals
+        when the file has an IV column, and ``symbol`` when it has symbols), sorted
+        by expiry, type (puts first) and strike.
+    rejected : DataFrame
+        ``line`` (1-based file line, header = 1), ``reason``, ``detail``, then the
+        raw input fields as read.
+    quality : Quality
+    holidays : tuple of datetime.date
+    spot_source, asof_source, rate_source, div_yield_source : str
+        Where each market input came from: ``caller``, ``file``, ``meta`` or
+        ``default``.
+    layout : str
+        ``long`` or ``wide``.
+    notes : tuple of str
+        Decisions the loader took that the user should know about.
+    """
+
+    source: str
+    underlying: str
+    asof: _dt.date
+    spot: float
+    rate: float
+    div_yield: float
+    quotes: pd.DataFrame
+    rejected: pd.DataFrame
+    quality: Quality
+    holidays: tuple = ()
+    spot_source: str = "file"
+    asof_source: str = "file"
+    rate_source: str = "default"
+    div_yield_source: str = "default"
+    layout: str = "long"
+    notes: tuple = field(default_factory=tuple)
+
+    @property
+    def expiries(self) -> list[_dt.date]:
+        """The distinct expiries of the usable quotes, in order."""
+        return [d.date() for d in pd.DatetimeIndex(self.quotes["expiry"].unique()).sort_values()]
+
+
+def _is_header(cells: list[str]) -> bool:
+    found = map_chain_columns(cells)
+    sides = sum(side_of(c) is not None for c in cells)
+    return len(found) >= 2 or (sides >= 2 and "strike" in found)
+
+
+def chain_file_in(folder: Path) -> Path:
+    """The chain file of a scenario folder (``chain.csv`` or ``chain.parquet``)."""
+    for name in ("chain.csv", "chain.parquet", "chain.pq"):
+        if (folder / name).is_file():
+            return folder / name
+    raise InputError(folder, "folder holds no chain.csv or chain.parquet")
+
+
+# --------------------------------------------------------------------------- layout
+
+def _long_fields(frame: pd.DataFrame, colmap: dict[str, str]):
+    """Field -> raw column for the long layout, and the row positions."""
+    fields = {f: frame[c] for f, c in colmap.items()}
+    return fields, np.arange(len(frame)), None
+
+
+def _wide_fields(frame: pd.DataFrame, colmap: dict[str, str], sides: dict[str, tuple]):
+    """Melt calls | strike | puts rows into two quotes per row (call first)."""
+    n = len(frame)
+    pos = np.concatenate([np.arange(n), np.arange(n)])
+    fields: dict[str, pd.Series] = {}
+    shared = {f: c for f, c in colmap.items() if f not in SIDE_FIELDS and f != "type"}
+    for f, c in shared.items():
+        fields[f] = pd.Series(np.concatenate([frame[c].to_numpy(dtype=object)] * 2),
+                              dtype=object)
+    by_side = {"call": {}, "put": {}}
+    for col, (side, f) in sides.items():
+        by_side[side].setdefault(f, col)
+    for f in SIDE_FIELDS:
+        cc, pc = by_side["call"].get(f), by_side["put"].get(f)
+        if cc is None and pc is None:
+            continue
+        parts = [frame[c].to_numpy(dtype=object) if c is not None
+                 else np.full(n, None, dtype=object) for c in (cc, pc)]
+        fields[f] = pd.Series(np.concatenate(parts), dtype=object)
+    fields["type"] = pd.Series(np.repeat(np.array(["C", "P"], dtype=object), n))
+    side = np.repeat(np.array(["call", "put"], dtype=object), n)
+    return fields, pos, side
+
+
+def _require_columns(path: Path, frame: pd.DataFrame, fields: dict) -> None:
+    if frame.shape[1] <= 1:
+        raise InputError(path, "only one column found: the delimiter is not one of "
+                         ", ; tab | or the file is not a chain")
+    for f in ("bid", "ask"):
+        if f not in fields:
+            raise InputError(path, f"missing column '{f}' (no column named like it)")
+    if "symbol" not in fields:
+        for f in ("expiry", "strike", "type"):
+            if f not in fields:
+                raise InputError(path, f"missing column '{f}' (and no option-symbol column "
+                                 "to take it from)")
+
+
+# --------------------------------------------------------------------- market inputs
+
+def _single_value(values: np.ndarray) -> tuple[float | None, int, float, float]:
+    ok = values[np.isfinite(values)]
+    if ok.size == 0:
+        return None, 0, np.nan, np.nan
+    uniq = np.unique(ok)
+    return float(np.median(ok)), uniq.size, float(uniq.min()), float(uniq.max())
+
+
+def _resolve_number(name, caller, file_values, meta, default, notes, path):
+    if caller is not None:
+        return float(caller), "caller"
+    if file_values is not None:
+        value, count, lo, hi = _single_value(file_values)
+        if value is not None:
+            if count > 1:
+                notes.append(f"{name}: the file gives {count} different values "
+                             f"({lo:g} to {hi:g}); the median {value:g} is used")
+            return value, "file"
+    if meta is not None and name in meta:
+        try:
+            return float(meta[name]), "meta"
+        except (TypeError, ValueError):
+            raise InputError(path, f"meta value {name!r} is not a number") from None
+    return default, "default"
+
+
+def _as_date(value, source: str) -> _dt.date:
+    if isinstance(value, _dt.datetime):
+        return value.date()
+    if isinstance(value, _dt.date):
+        return value
+    parsed = to_date(pd.Series([str(value)])).iloc[0]
+    if pd.isna(parsed):
+        raise InputError(source, f"not a date: {value!r}")
+    return parsed.date()
+
+
+# ------------------------------------------------------------------------ load_chain
+
+def load_chain(path: str | Path, *, spot: float | None = None,
+               asof: _dt.date | str | None = None, rate: float | None = None,
+               div_yield: float | None = None, style: str | None = None,
+               multiplier: float | None = None,
+               max_spread: float | None = DEFAULT_MAX_SPREAD,
+               holidays: Iterable = (), tiny_price: float = DEFAULT_TINY_PRICE,
+               meta: Mapping | None = None) -> OptionChain:
+    """Load and validate an option chain.
+
+    Parameters
+    ----------
+    path : str or Path
+        CSV or Parquet chain file, or a scenario folder holding ``chain.csv`` /
+        ``chain.parquet``.
+    spot : float, optional
+        Underlying price; else the file's ``underlying_price`` column (its median
+        when the rows disagree, with a note), else ``meta['spot']``.
+    asof : date or ISO str, optional
+        Quote date; else the file's ``quote_date`` (the latest one when several:
+        rows of other dates are rejected as ``other_quote_date``), else
+        ``meta['asof']``.
+    rate, div_yield : float, optional
+        Continuously compounded decimals; else a ``rate`` / ``div_yield`` column,
+        else meta, else 0.0. The source used is recorded (``rate_source``, ...).
+    style : {"european", "american"}, optional
+        Exercise style for every row; else the file's ``style`` column, else
+        ``meta['style']``, else european.
+    multiplier : float, optional
+        Contract multiplier for every row; else the file's column, else meta, else 100.
+    max_spread : float or None
+        Largest accepted relative spread (ask − bid) / mid (1.0 = spread up to 100 %
+        of mid); ``None`` accepts any spread.
+    holidays : iterable of dates
+        Exchange holidays, carried for the trading-day calendar.
+    tiny_price : float
+        Mids below this many price units are flagged ``tiny_price``.
+    meta : mapping, optional
+        A scenario's ``meta.toml`` values, used where neither caller nor file gives one.
+
+    Returns
+    -------
+    OptionChain
+
+    Raises
+    ------
+    InputError
+        The file is missing, empty, binary, not a table, lacks a required column,
+        or gives no spot / quote date; or an override is invalid.
+    """
+    path = Path(path)
+    if path.is_dir():
+        path = chain_file_in(path)
+    meta = dict(meta or {})
+    notes: list[str] = []
+    raw: RawTable = read_table(path, header_test=_is_header)
+    frame = drop_blank_rows(raw.frame)
+    file_lines = raw.line0 + frame.index.to_numpy()
+    frame = frame.reset_index(drop=True)
+    if frame.shape[1] <= 1:
+        _require_columns(path, frame, {})
+    colmap = map_chain_columns(frame.columns)
+    sides = {c: s for c in frame.columns if c not in colmap.values()
+             and (s := side_of(c)) is not None}
+    side_set = {(s, f) for s, f in sides.values()}
+    wide = "type" not in colmap and "symbol" not in colmap and \
+        {("call", "bid"), ("put", "bid")} <= side_set
+    if wide:
+        fields, pos, side = _wide_fields(frame, colmap, sides)
+    else:
+        fields, pos, side = _long_fields(frame, colmap)
+    _require_columns(path, frame, fields)
+    if len(frame) == 0:
+        raise InputError(path, "the file has a header but no quotes")
+
+    n = len(pos)
+    line = file_lines[pos]
+    p = pd.DataFrame({"line": line})
+    dc = raw.decimal_comma
+
+    def col(name):
+        return fields.get(name)
+
+    def missing(name):
+        c = col(name)
+        return np.ones(n, bool) if c is None else ~present(c)
+
+    # ---- option symbols: fill or cross-check expiry / strike / type
+    occ = None
+    sym = col("symbol")
+    bad_symbol = np.zeros(n, bool)
+    mismatch = np.zeros(n, bool)
+    mismatch_detail = np.full(n, "", dtype=object)
+    if sym is not None:
+        has_sym = present(sym)
+        parsed = parse_occ(pd.Series(sym.to_numpy(dtype=object)))
+        ok = parsed["ok"].to_numpy()
+        if has_sym.any() and ok[has_sym].mean() >= 0.5:
+            occ = parsed
+            bad_symbol = has_sym & ~ok
+        else:
+            notes.append("the symbol column is not in OCC form; it is kept but not read")
+
+    expiry_col = to_date(col("expiry")) if col("expiry") is not None else \
+        pd.Series(pd.NaT, index=range(n), dtype="datetime64[ns]")
+    expiry = expiry_col.to_numpy(dtype="datetime64[ns]")
+    strike = to_number(col("strike"), decimal_comma=dc) if col("strike") is not None \
+        else np.full(n, np.nan)
+    is_call = to_is_call(col("type")).to_numpy(dtype=object) if col("type") is not None \
+        else np.full(n, None, dtype=object)
+    miss = {f: missing(f) for f in ("expiry", "strike", "type", "bid", "ask")}
+    bad_date = ~miss["expiry"] & np.isnat(expiry)
+    bad_strike = ~miss["strike"] & np.isnan(strike)
+    known_type = np.array([v is True or v is False for v in is_call], dtype=bool) \
+        if n < 64 else pd.Series(is_call).isin([True, False]).to_numpy(dtype=bool)
+    bad_type = ~miss["type"] & ~known_type
+    if occ is not None:
+        ok = occ["ok"].to_numpy()
+        o_exp = occ["expiry"].to_numpy(dtype="datetime64[ns]")
+        o_k = occ["strike"].to_numpy(dtype=float)
+        o_c = occ["is_call"].to_numpy(dtype=bool)
+        both = ok & ~miss["expiry"] & ~bad_date
+        m_exp = both & (o_exp != expiry)
+        both = ok & ~miss["strike"] & ~bad_strike
+        m_k = both & (np.abs(o_k - strike) > 1e-6 * np.maximum(1.0, np.abs(o_k)))
+        both = ok & ~miss["type"] & known_type
+        m_c = both & (o_c != (is_call == True))  # noqa: E712
+        mismatch = m_exp | m_k | m_c
+        mismatch_detail = np.where(m_exp, "expiry ", "") + np.where(m_k, "strike ", "") \
+            + np.where(m_c, "type ", "")
+        mismatch_detail = ("symbol disagrees on " +
+                           pd.Series(mismatch_detail).str.strip().str.replace(" ", ", ")
+                           ).to_numpy(dtype=object)
+        fill = ok & miss["expiry"]
+        expiry = np.where(fill, o_exp, expiry)
+        miss["expiry"] = miss["expiry"] & ~ok
+        fill = ok & miss["strike"]
+        strike = np.where(fill, o_k, strike)
+        miss["strike"] = miss["strike"] & ~ok
+        fill = ok & miss["type"]
+        is_call = np.where(fill, o_c, is_call).astype(object)
+        miss["type"] = miss["type"] & ~ok
+    bad_symbol_needed = bad_symbol  # an unreadable OCC symbol is always reported
+    for f in ("expiry", "strike", "type"):
+        miss[f] = miss[f] & ~bad_symbol_needed
+
+    bid = to_number(col("bid"), decimal_comma=dc)
+    ask = to_number(col("ask"), decimal_comma=dc)
+    bad_bid = ~miss["bid"] & np.isnan(bid)
+    bad_ask = ~miss["ask"] & np.isnan(ask)
+
+    # ---- style and multiplier per row
+    if style is not None:
+        row_style = np.full(n, style_word(style, "--style"), dtype=object)
+        bad_style = np.zeros(n, bool)
+    else:
+        default_style = style_word(meta.get("style"), "meta style") or "european"
+        if col("style") is not None:
+            st = to_style(col("style")).to_numpy(dtype=object)
+            has = present(col("style"))
+            bad_style = has & pd.isna(pd.Series(st)).to_numpy()
+            row_style = np.where(has & ~bad_style, st, default_style).astype(object)
+        else:
+            row_style = np.full(n, default_style, dtype=object)
+            bad_style = np.zeros(n, bool)
+    if multiplier is not None:
+        if not np.isfinite(multiplier) or multiplier <= 0:
+            raise InputError("--multiplier", f"must be a positive number, not {multiplier}")
+        mult = np.full(n, float(multiplier))
+        bad_mult = np.zeros(n, bool)
+    else:
+        default_mult = float(meta.get("multiplier", DEFAULT_MULTIPLIER))
+        if col("multiplier") is not None:
+            mult = to_number(col("multiplier"), decimal_comma=dc)
+            has = present(col("multiplier"))
+            bad_mult = has & np.isnan(mult)
+            mult = np.where(has, mult, default_mult)
+        else:
+            mult = np.full(n, default_mult)
+            bad_mult = np.zeros(n, bool)
+    bad_number = bad_strike | bad_bid | bad_ask | bad_mult
+    bad_number_detail = np.where(bad_strike, "strike ", "") + np.where(bad_bid, "bid ", "") \
+        + np.where(bad_ask, "ask ", "") + np.where(bad_mult, "multiplier ", "")
+    bad_number_detail = (pd.Series(bad_number_detail, dtype=object).str.strip()
+                         .str.replace(" ", ", ") + " not a number").to_numpy(dtype=object)
+
+    # ---- underlying, quote date, spot, rate, yield
+    other_underlying = np.zeros(n, bool)
+    underlying = ""
+    if col("underlying") is not None:
+        und = col("underlying").astype("string").str.strip().str.upper()
+        counts = und[und.notna() & (und != "")].value_counts()
+        if len(counts):
+            underlying = str(counts.index[0])
+            if len(counts) > 1:
+                other_underlying = (und.notna() & (und != "") & (und != underlying)
+                                    ).to_numpy(dtype=bool)
+                notes.append(f"the file holds {len(counts)} underlyings; {underlying} "
+                             "(the most quoted) is used, the others are rejected")
+    if not underlying:
+        if meta.get("code"):
+            underlying = str(meta["code"])
+        elif occ is not None and occ["root"].notna().any():
+            underlying = str(occ["root"].dropna().mode().iloc[0])
+
+    other_quote_date = np.zeros(n, bool)
+    qd = to_date(col("quote_date")).to_numpy(dtype="datetime64[ns]") \
+        if col("quote_date") is not None else None
+    if asof is not None:
+        asof_d, asof_source = _as_date(asof, "--asof"), "caller"
+    elif qd is not None and (~np.isnat(qd)).any():
+        days = np.unique(qd[~np.isnat(qd)])
+        asof_d, asof_source = pd.Timestamp(days[-1]).date(), "file"
+        if days.size > 1:
+            notes.append(f"the file holds {days.size} quote dates; the latest, {asof_d}, "
+                         "is used and rows of other dates are rejected")
+    elif meta.get("asof") is not None:
+        asof_d, asof_source = _as_date(meta["asof"], "meta asof"), "meta"
+    else:
+        raise InputError(path, "no quote date: the file has no quote_date column; "
+                         "give --asof YYYY-MM-DD")
+    if qd is not None:
+        other_quote_date = ~np.isnat(qd) & (qd != np.datetime64(asof_d, "ns"))
+
+    spot_v, spot_source = _resolve_number(
+        "spot", spot, to_number(col("underlying_price"), decimal_comma=dc)
+        if col("underlying_price") is not None else None, meta, None, notes, path)
+    if spot_v is None:
+        raise InputError(path, "no spot price: the file has no underlying_price column; "
+                         "give --spot")
+    if not np.isfinite(spot_v) or spot_v <= 0:
+        raise InputError("--spot" if spot_source == "caller" else path,
+                         f"spot must be a positive price, not {spot_v:g}")
+    rate_v, rate_source = _resolve_number(
+        "rate", rate, to_number(col("rate")) if col("rate") is not None else None,
+        meta, 0.0, notes, path)
+    q_v, q_source = _resolve_number(
+        "div_yield", div_yield, to_number(col("div_yield"))
+        if col("div_yield") is not None else None, meta, 0.0, notes, path)
+    for name, v in (("rate", rate_v), ("div_yield", q_v)):
+        if not np.isfinite(v) or abs(v) > 1.0:
+            raise InputError("--" + name.replace("_", "-"),
+                             f"{v:g} is not a continuously compounded decimal (0.04 = 4%)")
+
+    asof64 = np.datetime64(asof_d, "D")
+    calendar_days = ((expiry.astype("datetime64[D]") - asof64)
+                     .astype("timedelta64[D]").astype(float))
+    calendar_days[np.isnat(expiry)] = np.nan
+
+    p["expiry"] = expiry
+    p["strike"] = strike
+    p["is_call"] = is_call
+    p["bid"] = bid
+    p["ask"] = ask
+    p["multiplier"] = mult
+    p["american"] = row_style == "american"
+    p["calendar_days"] = calendar_days
+    for f, m in miss.items():
+        p[f"missing_{f}"] = m
+    p["bad_symbol"] = bad_symbol
+    p["bad_date"] = bad_date
+    p["bad_number"] = bad_number
+    p["bad_number_detail"] = bad_number_detail
+    p["bad_type"] = bad_type
+    p["bad_style"] = bad_style
+    p["symbol_mismatch"] = mismatch
+    p["symbol_mismatch_detail"] = mismatch_detail
+    p["other_underlying"] = other_underlying
+    p["other_quote_date"] = other_quote_date
+    if max_spread is not None and (not np.isfinite(max_spread) or max_spread <= 0):
+        raise InputError("--max-spread", f"must be a positive number, not {max_spread}")
+
+    reason, detail = assign_reasons(p, spot=spot_v, rate=rate_v, div_yield=q_v,
+                                    max_spread=max_spread)
+    kept = reason == ""
+
+    # ---- optional fields
+    opt = {}
+    bad_optional = np.zeros(n, bool)
+    for f in ("last", "volume", "open_interest", "iv"):
+        c = col(f)
+        if c is None:
+            opt[f] = np.full(n, np.nan)
+            continue
+        v = to_number(c, decimal_comma=dc)
+        bad_optional |= present(c) & np.isnan(v)
+        opt[f] = v
+    mid = 0.5 * (bid + ask)
+    warn = quote_warnings(opt["volume"][kept], opt["open_interest"][kept], mid[kept],
+                          bad_optional[kept], tiny_price=tiny_price)
+
+    quotes = pd.DataFrame({
+        "expiry": expiry[kept].astype("datetime64[ns]"),
+        "strike": strike[kept].astype(float),
+        "is_call": is_call[kept].astype(bool),
+        "bid": bid[kept], "ask": ask[kept], "mid": mid[kept],
+        "last": opt["last"][kept], "volume": opt["volume"][kept],
+        "open_interest": opt["open_interest"][kept],
+        "style": row_style[kept].astype(object),
+        "multiplier": mult[kept].astype(float),
+        "t": calendar_days[kept] / 365.0,
+        "calendar_days": calendar_days[kept].astype(np.int64),
+        "line": line[kept].astype(np.int64),
+        "warnings": warn,
+    })
+    if col("iv") is not None:
+        had_pct = bool(col("iv").astype("string").str.contains("%", regex=False)
+                       .fillna(False).any()) if col("iv").dtype.kind not in "biuf" else False
+        iv_dec, was_pct = percent_or_decimal(opt["iv"], had_pct)
+        quotes["iv_file"] = iv_dec[kept]
+        if was_pct:
+            notes.append("the file's IV column is in percent; converted to decimals")
+    if sym is not None:
+        quotes["symbol"] = sym.to_numpy(dtype=object)[kept]
+    quotes = quotes.sort_values(["expiry", "is_call", "strike", "line"], kind="stable") \
+        .reset_index(drop=True)
+
+    rej = ~kept
+    rejected = pd.DataFrame({"line": line[rej].astype(np.int64),
+                             "reason": reason[rej].astype(object),
+                             "detail": detail[rej].astype(object)})
+    if side is not None:
+        rejected["side"] = side[rej]
+    raw_rows = frame.iloc[pos[rej]].reset_index(drop=True)
+    raw_rows.columns = [c if c not in rejected.columns else f"{c} (file)"
+                        for c in raw_rows.columns]
+    rejected = pd.concat([rejected, raw_rows], axis=1).sort_values(
+        ["line"], kind="stable").reset_index(drop=True)
+
+    counts = pd.Series(reason[rej]).value_counts()
+    rejected_counts = {code: int(counts[code]) for code in REASONS if code in counts}
+    flags = pd.Series(warn[warn != ""]).str.split(",").explode().value_counts() \
+        if (warn != "").any() else pd.Series(dtype=int)
+    warning_counts = {f: int(flags[f]) for f in WARNINGS if f in flags}
+    quality = Quality(rows_in=n, rows_used=int(kept.sum()), rejected=rejected_counts,
+                      warnings=warning_counts)
+    assert quality.rows_in == quality.rows_used + sum(rejected_counts.values())
+
+    hol = tuple(sorted({_as_date(h, "holidays") for h in (holidays or ())}))
+    return OptionChain(source=str(path), underlying=underlying, asof=asof_d,
+                       spot=float(spot_v), rate=float(rate_v), div_yield=float(q_v),
+                       quotes=quotes, rejected=rejected, quality=quality, holidays=hol,
+                       spot_source=spot_source, asof_source=asof_source,
+                       rate_source=rate_source, div_yield_source=q_source,
+                       layout="wide" if wide else "long", notes=tuple(notes))

@@ -1,0 +1,156 @@
+"""Reading a table from a CSV or Parquet file, with one-line user errors.
+
+Handles what a broker's export throws at a loader: a byte-order mark, Windows
+code pages, a semicolon/tab/pipe delimiter (with decimal commas after a
+semicolon), a title line or two above the header, blank lines. Line numbers are
+kept: ``frame.attrs["first_line"]`` is the file line of the frame's first row, so
+row ``i`` came from line ``first_line + i`` (header = line 1 when it is the first).
+"""
+from __future__ import annotations
+
+import csv
+from dataclasses import dataclass
+from pathlib import Path
+
+import pandas as pd
+
+from optbench.errors import InputError
+
+DELIMITERS = (",", ";", "\t", "|")
+_SNIFF_BYTES = 65536
+_MAX_PREAMBLE = 20
+
+
+@dataclass(frozen=True)
+class RawTable:
+    """A table as read from a file, before any field is interpreted.
+
+    ``frame`` row ``i`` came from file line ``line0 + i`` (1-based; Parquet rows
+    are numbered as if a header were line 1). ``decimal_comma`` says numbers in
+    text cells use a comma as the decimal mark.
+    """
+
+    path: Path
+    frame: pd.DataFrame
+    line0: int
+    delimiter: str | None
+    decimal_comma: bool
+    kind: str  # "csv" or "parquet"
+
+
+def _check_file(path: Path) -> bytes:
+    if not path.exists():
+        raise InputError(path, "no such file")
+    if path.is_dir():
+        raise InputError(path, "is a folder, not a file")
+    try:
+        with path.open("rb") as fh:
+            head = fh.read(_SNIFF_BYTES)
+    except OSError as err:
+        raise InputError(path, f"cannot read: {err.strerror or err}") from None
+    if not head.strip():
+        raise InputError(path, "file is empty")
+    return head
+
+
+def _decode(head: bytes, path: Path) -> tuple[str, str]:
+    if head.startswith((b"\xff\xfe", b"\xfe\xff")):
+        return head.decode("utf-16", errors="replace"), "utf-16"
+    if b"\x00" in head:
+        raise InputError(path, "not a text table (binary content); expected CSV or Parquet")
+    for enc in ("utf-8-sig", "cp1252"):
+        try:
+            return head.decode(enc), enc
+        except UnicodeDecodeError:
+            continue
+    return head.decode("latin-1"), "latin-1"
+
+
+def _pick_delimiter(lines: list[str]) -> str:
+    """The delimiter that splits the header-ish lines into the most columns."""
+    best, best_count = ",", 0
+    for delim in DELIMITERS:
+        counts = [len(next(csv.reader([ln], delimiter=delim))) for ln in lines[:5] if ln]
+        count = min(counts) if counts else 0
+        if count > best_count:
+            best, best_count = delim, count
+    return best
+
+
+def read_table(path: str | Path, *, header_test=None) -> RawTable:
+    """Read a CSV or Parquet file into a raw frame.
+
+    Parameters
+    ----------
+    path : str or Path
+    header_test : callable, optional
+        ``header_test(list_of_cells) -> bool`` says whether a line is the header;
+        lines before the first line that passes are a preamble and are skipped
+        (at most 20). Without it the first line is the header.
+
+    Raises
+    ------
+    InputError
+        Missing, empty, binary or unreadable file; Parquet without pyarrow.
+    """
+    path = Path(path)
+    head = _check_file(path)
+    if head[:4] == b"PAR1" or path.suffix.lower() in (".parquet", ".pq"):
+        return _read_parquet(path)
+    text, encoding = _decode(head, path)
+    lines = text.splitlines()
+    if len(head) == _SNIFF_BYTES and lines:
+        lines = lines[:-1]  # the last line may be cut short
+    skip = 0
+    if header_test is not None:
+        for i, line in enumerate(lines[:_MAX_PREAMBLE]):
+            if not line.strip():
+                continue
+            delim = _pick_delimiter([line])
+            if header_test(next(csv.reader([line], delimiter=delim))):
+                skip = i
+                break
+    body = [ln for ln in lines[skip:skip + 6] if ln.strip()]
+    delim = _pick_delimiter(body)
+    decimal_comma = delim == ";"
+    try:
+        frame = pd.read_csv(path, sep=delim, skiprows=skip, skip_blank_lines=False,
+                            encoding=encoding, encoding_errors="replace",
+                            skipinitialspace=True, on_bad_lines="error",
+                            low_memory=False)
+    except pd.errors.EmptyDataError:
+        raise InputError(path, "file is empty") from None
+    except pd.errors.ParserError as err:
+        msg = str(err).strip().splitlines()[-1] if str(err).strip() else "cannot parse"
+        raise InputError(path, f"not a consistent table ({msg})") from None
+    except (UnicodeError, ValueError, OSError) as err:
+        raise InputError(path, f"cannot read as CSV ({err})") from None
+    frame.columns = [str(c).strip() for c in frame.columns]
+    return RawTable(path=path, frame=frame, line0=skip + 2, delimiter=delim,
+                    decimal_comma=decimal_comma, kind="csv")
+
+
+def _read_parquet(path: Path) -> RawTable:
+    try:
+        import pyarrow  # noqa: F401
+    except ImportError:
+        raise InputError(path, "reading Parquet needs pyarrow (pip install pyarrow)") from None
+    try:
+        frame = pd.read_parquet(path)
+    except Exception as err:  # pyarrow raises many types for a corrupt file
+        raise InputError(path, f"cannot read as Parquet ({type(err).__name__})") from None
+    frame = frame.reset_index(drop=frame.index.name is None)
+    frame.columns = [str(c).strip() for c in frame.columns]
+    return RawTable(path=path, frame=frame, line0=2, delimiter=None, decimal_comma=False,
+                    kind="parquet")
+
+
+def drop_blank_rows(frame: pd.DataFrame) -> pd.DataFrame:
+    """Drop rows with no cell at all (blank lines); the index keeps file positions."""
+    if frame.empty:
+        return frame
+    blank = frame.isna().all(axis=1)
+    return frame[~blank] if blank.any() else frame
+
+
+__all__ = ["RawTable", "read_table", "drop_blank_rows"]

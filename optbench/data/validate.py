@@ -1,0 +1,203 @@
+"""Validation rules for option quotes: one named reason per rejected row.
+
+Every quote a file holds ends up either used or rejected with exactly one reason,
+the first rule in :data:`REASONS` that it breaks. Quotes that are usable but
+deserve a second look are kept and flagged (:data:`WARNINGS`). All rules are
+evaluated as whole-column array operations.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+# reason code -> what it means; the order is the order rules are applied in
+REASONS: dict[str, str] = {
+    "bad_symbol": "option symbol is not an OCC symbol (root, YYMMDD, C/P, strike x 1000)",
+    "missing_field": "a required field (expiry, strike, type, bid, ask) is empty",
+    "bad_date": "expiry is not a readable date",
+    "bad_number": "strike, bid, ask or multiplier is not a number",
+    "bad_type": "option type is not call/put (C/P)",
+    "bad_style": "exercise style is not european/american",
+    "symbol_mismatch": "option symbol disagrees with the expiry, strike or type columns",
+    "other_underlying": "row is for another underlying than the chain's",
+    "other_quote_date": "row is quoted on another date than the chain's as-of date",
+    "nonpositive_strike": "strike is zero or negative",
+    "expired": "expiry is on or before the quote date",
+    "negative_quote": "bid or ask is negative",
+    "crossed": "crossed market: ask below bid",
+    "no_bid": "no bid (bid is zero)",
+    "duplicate": "same contract (expiry, strike, type, multiplier) as an earlier row",
+    "below_intrinsic": "mid below the no-arbitrage lower bound (discounted intrinsic value)",
+    "above_upper_bound": "mid above the no-arbitrage upper bound (call > spot, put > discounted strike)",
+    "wide_spread": "bid-ask spread wider than the limit (relative to mid)",
+}
+
+WARNINGS: dict[str, str] = {
+    "stale": "no volume and no open interest: the quote may be stale",
+    "tiny_price": "mid below the tiny-price threshold: dominated by the tick size",
+    "bad_optional_field": "last, volume, open interest or IV unreadable; left empty",
+}
+
+# absolute and relative tolerance of the no-arbitrage bounds (rounding of quotes,
+# spot and rate): a mid must miss a bound by more than 0.01 + 0.05% of the bound
+BOUND_TOL_ABS = 0.01
+BOUND_TOL_REL = 5e-4
+
+
+def _g(values) -> np.ndarray:
+    return np.char.mod("%g", np.asarray(values, dtype=float))
+
+
+class _Assigner:
+    """Keeps the first reason (and its detail) given to each row."""
+
+    def __init__(self, n: int) -> None:
+        self.reason = np.full(n, "", dtype=object)
+        self.detail = np.full(n, "", dtype=object)
+
+    @property
+    def open(self) -> np.ndarray:
+        return self.reason == ""
+
+    def apply(self, code: str, mask: np.ndarray, detail) -> None:
+        assert code in REASONS, code
+        sel = np.asarray(mask, dtype=bool) & self.open
+        if not sel.any():
+            return
+        self.reason[sel] = code
+        if callable(detail):
+            self.detail[sel] = detail(sel)
+        elif isinstance(detail, np.ndarray):
+            self.detail[sel] = detail[sel]
+        else:
+            self.detail[sel] = detail
+
+
+def no_arbitrage_bounds(spot: float, strike: np.ndarray, t: np.ndarray, rate: float,
+                        div_yield: float, is_call: np.ndarray,
+                        american: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Static lower and upper bounds of an option's price.
+
+    Notes
+    -----
+    With discount D = e^{-rt} and dividend factor Q = e^{-qt}:
+    European call  max(0, S·Q − K·D) ≤ C ≤ S;
+    European put   max(0, K·D − S·Q) ≤ P ≤ K·D;
+    American options are worth at least their undiscounted intrinsic value
+    (max(0, S − K) for calls, max(0, K − S) for puts) and an American put at most K.
+    Hull, *Options, Futures, and Other Derivatives*, ch. 11 (properties of stock
+    options); Merton (1973), "Theory of rational option pricing".
+    """
+    disc = np.exp(-rate * t)
+    qf = np.exp(-div_yield * t)
+    eu_call = np.maximum(0.0, spot * qf - strike * disc)
+    eu_put = np.maximum(0.0, strike * disc - spot * qf)
+    lower = np.where(is_call, eu_call, eu_put)
+    intrinsic = np.where(is_call, np.maximum(0.0, spot - strike),
+                         np.maximum(0.0, strike - spot))
+    lower = np.where(american, np.maximum(lower, intrinsic), lower)
+    upper = np.where(is_call, spot, np.where(american, strike, strike * disc))
+    return lower, upper
+
+
+def assign_reasons(p: pd.DataFrame, *, spot: float, rate: float, div_yield: float,
+                   max_spread: float | None) -> tuple[np.ndarray, np.ndarray]:
+    """The rejection reason ('' for a kept row) and its detail for every row.
+
+    Parameters
+    ----------
+    p : DataFrame
+        Parsed rows with columns ``expiry`` (datetime64), ``strike``, ``bid``,
+        ``ask``, ``multiplier`` (float, NaN where unreadable), ``is_call`` (object:
+        True/False/None), ``american`` (bool), ``calendar_days`` (float), the
+        boolean masks ``missing_<field>``, ``bad_symbol``, ``bad_date``,
+        ``bad_number``, ``bad_type``, ``bad_style``, ``symbol_mismatch``,
+        ``other_underlying``, ``other_quote_date``, and ``key`` columns for
+        duplicate detection.
+    spot, rate, div_yield : float
+        Spot (price units), continuously compounded rate and yield (decimals).
+    max_spread : float or None
+        Largest accepted (ask − bid) / mid; None switches the rule off.
+    """
+    n = len(p)
+    a = _Assigner(n)
+    a.apply("bad_symbol", p["bad_symbol"].to_numpy(), "symbol not readable")
+    for field in ("expiry", "strike", "type", "bid", "ask"):
+        a.apply("missing_field", p[f"missing_{field}"].to_numpy(), f"no {field}")
+    a.apply("bad_date", p["bad_date"].to_numpy(), "expiry not a date")
+    a.apply("bad_number", p["bad_number"].to_numpy(), p["bad_number_detail"].to_numpy())
+    a.apply("bad_type", p["bad_type"].to_numpy(), "type not call/put")
+    a.apply("bad_style", p["bad_style"].to_numpy(), "style not european/american")
+    a.apply("symbol_mismatch", p["symbol_mismatch"].to_numpy(),
+            p["symbol_mismatch_detail"].to_numpy())
+    a.apply("other_underlying", p["other_underlying"].to_numpy(), "another underlying")
+    a.apply("other_quote_date", p["other_quote_date"].to_numpy(), "another quote date")
+
+    strike = p["strike"].to_numpy(dtype=float)
+    bid = p["bid"].to_numpy(dtype=float)
+    ask = p["ask"].to_numpy(dtype=float)
+    days = p["calendar_days"].to_numpy(dtype=float)
+    mult = p["multiplier"].to_numpy(dtype=float)
+    a.apply("nonpositive_strike", strike <= 0, lambda s: "strike " + _g(strike[s]))
+    a.apply("bad_number", mult <= 0, lambda s: "multiplier " + _g(mult[s]))
+    a.apply("expired", days <= 0,
+            lambda s: "expiry " + np.datetime_as_string(
+                p["expiry"].to_numpy()[s], unit="D").astype(object))
+    a.apply("negative_quote", (bid < 0) | (ask < 0),
+            lambda s: "bid " + _g(bid[s]) + ", ask " + _g(ask[s]))
+    a.apply("crossed", ask < bid, lambda s: "ask " + _g(ask[s]) + " < bid " + _g(bid[s]))
+    a.apply("no_bid", bid == 0, lambda s: "bid 0, ask " + _g(ask[s]))
+
+    live = a.open
+    if live.any():
+        keys = p.loc[live, ["expiry", "strike", "is_call", "multiplier"]]
+        dup = keys.duplicated(keep="first").to_numpy()
+        if dup.any():
+            first_line = p.loc[live].groupby(
+                ["expiry", "strike", "is_call", "multiplier"], sort=False,
+                dropna=False)["line"].transform("first").to_numpy()
+            mask = np.zeros(n, dtype=bool)
+            mask[np.flatnonzero(live)[dup]] = True
+            lines = np.zeros(n, dtype=np.int64)
+            lines[live] = first_line
+            a.apply("duplicate", mask, lambda s: "same contract as line "
+                    + lines[s].astype(str).astype(object))
+
+    live = a.open
+    mid = 0.5 * (bid + ask)
+    is_call = np.asarray(p["is_call"].to_numpy() == True, dtype=bool)  # noqa: E712
+    t = np.where(live, days, 0.0) / 365.0
+    lower, upper = no_arbitrage_bounds(spot, np.where(live, strike, 0.0), t, rate,
+                                       div_yield, is_call, p["american"].to_numpy(bool))
+    tol_lo = BOUND_TOL_ABS + BOUND_TOL_REL * lower
+    tol_hi = BOUND_TOL_ABS + BOUND_TOL_REL * upper
+    a.apply("below_intrinsic", live & (mid < lower - tol_lo),
+            lambda s: "mid " + _g(mid[s]) + " < lower bound " + _g(np.round(lower[s], 4)))
+    a.apply("above_upper_bound", live & (mid > upper + tol_hi),
+            lambda s: "mid " + _g(mid[s]) + " > upper bound " + _g(np.round(upper[s], 4)))
+    if max_spread is not None:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rel = (ask - bid) / mid
+        a.apply("wide_spread", live & (rel > max_spread),
+                lambda s: "spread " + _g(np.round(100 * rel[s], 1)) + "% of mid > "
+                + f"{100 * max_spread:g}%")
+    return a.reason, a.detail
+
+
+def quote_warnings(volume: np.ndarray, open_interest: np.ndarray, mid: np.ndarray,
+                   bad_optional: np.ndarray, *, tiny_price: float) -> np.ndarray:
+    """Comma-separated warning flags per kept quote ('' when none).
+
+    ``stale``: the row reports volume and/or open interest and every reported one
+    is zero. ``tiny_price``: mid below ``tiny_price`` (price units). ``bad_optional_field``:
+    an optional cell was unreadable and left empty.
+    """
+    known = np.isfinite(volume) | np.isfinite(open_interest)
+    zero_or_none = ((~np.isfinite(volume)) | (volume == 0)) & \
+                   ((~np.isfinite(open_interest)) | (open_interest == 0))
+    flags = [("stale", known & zero_or_none), ("tiny_price", mid < tiny_price),
+             ("bad_optional_field", bad_optional)]
+    out = np.full(len(mid), "", dtype=object)
+    for name, mask in flags:
+        out = np.where(mask, np.where(out == "", name, out + "," + name), out)
+    return out.astype(object)
