@@ -19,7 +19,7 @@ __version__ = "0.1.0"
 _EXPORTS: dict[str, str] = {
     "InputError": "optbench.errors",
     "bsm_price": "optbench.pricing.bsm",
-    "bsm_greeks": "optbench.pricing.bsm",
+    "bsm_greeks": "optbench.pricing.greeks",
     "implied_vol": "optbench.pricing.implied",
     "load_chain": "optbench.data.chain",
     "load_history": "optbench.data.history",
