@@ -25,6 +25,9 @@ _EXPORTS: dict[str, str] = {
     "load_history": "optbench.data.history",
     "load_scenario": "optbench.data.scenario",
     "fit_garch": "optbench.volatility.garch",
+    "fix_garch": "optbench.volatility.garch",
+    "GarchFit": "optbench.volatility.garch",
+    "trading_days": "optbench.volatility.calendar",
     "compare": "optbench.analysis.compare",
     "hedge": "optbench.analysis.hedge",
 }

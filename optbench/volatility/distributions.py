@@ -1,0 +1,96 @@
+"""Innovation distributions: log-densities of residuals and their derivatives.
+
+Each function takes residuals ``e`` and conditional variances ``s2`` and returns the
+per-observation log-likelihood ``l_t`` and, on request, ``dl/ds2``, ``dl/de`` and (for
+the Student-t) ``dl/dnu``, which the estimator chains with the variance derivatives
+into an analytic score. Only :mod:`scipy.special` is used (cheap to import).
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.special import digamma, gammaln
+
+LOG_2PI = math.log(2.0 * math.pi)
+NU_MIN = 2.05   # smallest degrees of freedom allowed (variance must exist)
+NU_MAX = 500.0
+
+
+def normal_loglik(e: np.ndarray, s2: np.ndarray, *, grad: bool = False):
+    """Gaussian log-density of residuals with conditional variance ``s2``.
+
+    Notes
+    -----
+    ``l_t = -(ln 2 pi + ln s2_t + e_t^2 / s2_t) / 2``;
+    ``dl/ds2 = (e^2/s2 - 1) / (2 s2)``, ``dl/de = -e / s2`` (Bollerslev 1986).
+    """
+    r = e * e / s2
+    ll = -0.5 * (LOG_2PI + np.log(s2) + r)
+    if not grad:
+        return ll
+    return ll, 0.5 * (r - 1.0) / s2, -e / s2
+
+
+def std_t_loglik(e: np.ndarray, s2: np.ndarray, nu: float, *, grad: bool = False):
+    """Standardised Student-t log-density (unit variance, ``nu > 2``).
+
+    Notes
+    -----
+    With ``q = e^2 / (s2 (nu - 2))`` (Bollerslev 1987):
+    ``l_t = lnG((nu+1)/2) - lnG(nu/2) - ln(pi (nu-2))/2 - ln(s2)/2
+    - (nu+1)/2 ln(1 + q)``;
+    ``dl/ds2 = (-1 + (nu+1) q/(1+q)) / (2 s2)``,
+    ``dl/de = -(nu+1) e / (s2 (nu-2) (1+q))``,
+    ``dl/dnu = [psi((nu+1)/2) - psi(nu/2) - 1/(nu-2) - ln(1+q)
+    + (nu+1) q / ((nu-2)(1+q))] / 2``.
+    """
+    nm2 = nu - 2.0
+    q = e * e / (s2 * nm2)
+    lq = np.log1p(q)
+    const = gammaln(0.5 * (nu + 1.0)) - gammaln(0.5 * nu) - 0.5 * math.log(math.pi * nm2)
+    ll = const - 0.5 * np.log(s2) - 0.5 * (nu + 1.0) * lq
+    if not grad:
+        return ll
+    w = q / (1.0 + q)
+    d_s2 = 0.5 * (-1.0 + (nu + 1.0) * w) / s2
+    d_e = -(nu + 1.0) * e / (s2 * nm2 * (1.0 + q))
+    d_nu = 0.5 * (digamma(0.5 * (nu + 1.0)) - digamma(0.5 * nu) - 1.0 / nm2 - lq
+                  + (nu + 1.0) * w / nm2)
+    return ll, d_s2, d_e, d_nu
+
+
+def std_t_draws(rng: np.random.Generator, nu: float, size, dtype=np.float64) -> np.ndarray:
+    """Draws of a unit-variance Student-t: ``z = N * sqrt((nu - 2) / (2 G))``,
+    ``G ~ Gamma(nu/2, 1)`` (the normal / chi-square mixture, ``chi2_nu = 2 G``)."""
+    z = rng.standard_normal(size, dtype=dtype)
+    g = rng.standard_gamma(0.5 * nu, size, dtype=dtype)
+    z *= np.sqrt(np.asarray((nu - 2.0) / 2.0, dtype=dtype) / g)
+    return z
+
+
+@dataclass(frozen=True)
+class Distribution:
+    """Name and extra parameters of an innovation distribution."""
+
+    name: str                    # "normal" or "t"
+    param_names: tuple[str, ...]
+
+    def starting_values(self) -> list[float]:
+        return [8.0] if self.name == "t" else []
+
+    def bounds(self) -> list[tuple[float, float]]:
+        return [(NU_MIN, NU_MAX)] if self.name == "t" else []
+
+
+NORMAL = Distribution("normal", ())
+STUDENT_T = Distribution("t", ("nu",))
+
+
+def get_distribution(name: str) -> Distribution:
+    if name == "normal":
+        return NORMAL
+    if name == "t":
+        return STUDENT_T
+    raise ValueError(f"unknown distribution {name!r} (normal or t)")

@@ -1,0 +1,783 @@
+"""Maximum-likelihood fits of GARCH(1,1), GJR-GARCH(1,1) and EGARCH(1,1).
+
+``fit_garch`` estimates a model on daily decimal log returns; ``fix_garch`` evaluates
+given parameters without estimating. Both return a :class:`GarchFit`, which
+forecasts (term structure and parameter-uncertainty band), filters new returns with
+the parameters held, and simulates.
+
+Estimation runs on returns divided by their sample standard deviation (so the
+variance is of order one for the optimiser); every reported number is converted
+back to decimal-return units.
+"""
+from __future__ import annotations
+
+import functools
+import math
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy.optimize import minimize
+
+from optbench.errors import InputError
+from optbench.volatility import forecast as fc
+from optbench.volatility.distributions import (NU_MIN, get_distribution, normal_loglik,
+                                               std_t_draws, std_t_loglik)
+from optbench.volatility.recursions import (backcast_value, egarch_log_variance,
+                                            garch_variance, linear_filter)
+from optbench.volatility.specs import EWMA_LAMBDA, get_spec
+
+MIN_RETURNS = 250
+MODELS = ("garch", "gjr", "egarch")
+FALLBACK = {"egarch": "gjr", "gjr": "garch", "garch": "ewma"}
+STATIONARITY_MARGIN = 1e-6
+
+
+# ---------------------------------------------------------------------------------
+# input checks
+# ---------------------------------------------------------------------------------
+def _check_returns(returns) -> np.ndarray:
+    try:
+        y = np.asarray(returns, dtype=float)
+    except (TypeError, ValueError):
+        raise InputError("returns", "not numeric") from None
+    if y.ndim != 1:
+        y = y.squeeze()
+        if y.ndim != 1:
+            raise InputError("returns", f"expected a 1-D series, got shape {y.shape}")
+    bad = ~np.isfinite(y)
+    if bad.any():
+        first = int(np.flatnonzero(bad)[0])
+        raise InputError("returns", f"{int(bad.sum())} missing or non-finite value(s) "
+                                    f"(first at position {first}); clean the history "
+                                    "first, optbench does not fill gaps")
+    if y.shape[0] < MIN_RETURNS:
+        raise InputError("returns", f"only {y.shape[0]} returns; a volatility model needs "
+                                    f"at least {MIN_RETURNS} (about a year of trading days)")
+    if float(np.std(y)) <= 1e-12 * max(1.0, float(np.max(np.abs(y)))) or np.ptp(y) == 0:
+        raise InputError("returns", "returns are constant (prices do not move); "
+                                    "no volatility can be estimated")
+    return y
+
+
+def _check_choice(name: str, value: str, allowed) -> None:
+    if value not in allowed:
+        raise InputError(name, f"{value!r} is not one of {', '.join(allowed)}")
+
+
+# ---------------------------------------------------------------------------------
+# the likelihood problem (scaled units)
+# ---------------------------------------------------------------------------------
+class _Problem:
+    """Log-likelihood of scaled returns ``y`` under (mean, variance spec, distribution)."""
+
+    def __init__(self, y: np.ndarray, model: str, dist: str, has_mu: bool,
+                 backcast: float):
+        self.y = y
+        self.n = y.shape[0]
+        self.spec = get_spec(model)
+        self.dist = get_distribution(dist)
+        self.has_mu = has_mu
+        self.backcast = backcast
+        self.names = ((["mu"] if has_mu else []) + list(self.spec.param_names)
+                      + list(self.dist.param_names))
+        self.k = len(self.names)
+        self.i_vol = 1 if has_mu else 0
+        self.n_vol = len(self.spec.param_names)
+
+    def unpack(self, theta):
+        mu = theta[0] if self.has_mu else 0.0
+        vol = dict(zip(self.spec.param_names, theta[self.i_vol:self.i_vol + self.n_vol]))
+        nu = theta[-1] if self.dist.name == "t" else None
+        return mu, vol, nu
+
+    def variance(self, theta, grad=False):
+        mu, p, _ = self.unpack(theta)
+        eps = self.y - mu
+        name = self.spec.name
+        if name in ("garch", "gjr"):
+            out = garch_variance(eps, p["omega"], p["alpha"], p.get("gamma", 0.0),
+                                 p["beta"], self.backcast, grad=grad, with_mean=self.has_mu)
+            if grad and name == "garch":
+                s2, d = out
+                drop = (1 if self.has_mu else 0) + 2  # the gamma row
+                out = (s2, np.delete(d, drop, axis=0))
+            return eps, out
+        if name == "egarch":
+            lnv = egarch_log_variance(eps, p["omega"], p["alpha"], p["gamma"], p["beta"],
+                                      math.log(self.backcast))
+            return eps, np.exp(lnv)
+        lam = EWMA_LAMBDA
+        a = np.empty(self.n)
+        a[0] = self.backcast
+        a[1:] = eps[:-1] ** 2
+        return eps, linear_filter((1 - lam) * a, lam, self.backcast)
+
+    def loglik_obs(self, theta):
+        eps, s2 = self.variance(theta)
+        _, _, nu = self.unpack(theta)
+        if not np.all(s2 > 0) or not np.all(np.isfinite(s2)):
+            return None
+        if nu is None:
+            return normal_loglik(eps, s2)
+        return std_t_loglik(eps, s2, nu)
+
+    def score_obs(self, theta):
+        """Per-observation log-likelihood and analytic scores (linear specs only)."""
+        eps, (s2, d) = self.variance(theta, grad=True)
+        _, _, nu = self.unpack(theta)
+        if not np.all(s2 > 0) or not np.all(np.isfinite(s2)):
+            return None, None
+        if nu is None:
+            ll, d_s2, d_e = normal_loglik(eps, s2, grad=True)
+            d_nu = None
+        else:
+            ll, d_s2, d_e, d_nu = std_t_loglik(eps, s2, nu, grad=True)
+        sc = (d * d_s2).T                          # (n, k_mean + k_vol)
+        if self.has_mu:
+            sc[:, 0] -= d_e
+        if d_nu is not None:
+            sc = np.column_stack([sc, d_nu])
+        return ll, sc
+
+    # objective for the optimiser: minus the mean log-likelihood
+    def objective(self, theta):
+        ll = self.loglik_obs(theta)
+        if ll is None or not np.all(np.isfinite(ll)):
+            return 1e6
+        return -float(np.mean(ll))
+
+    def objective_grad(self, theta):
+        ll, sc = self.score_obs(theta)
+        if ll is None or not np.all(np.isfinite(ll)):
+            return 1e6, np.zeros(self.k)
+        return -float(np.mean(ll)), -sc.mean(axis=0)
+
+    def bounds(self, var):
+        sd = math.sqrt(var)
+        b = []
+        if self.has_mu:
+            m = float(np.mean(self.y))
+            b.append((m - 10 * sd, m + 10 * sd))
+        return b + self.spec.bounds(var) + self.dist.bounds()
+
+    def constraint(self):
+        spec, i, nv = self.spec, self.i_vol, self.n_vol
+        jac_vol = spec.constraint_jacobian()
+        if jac_vol.size == 0:
+            return []
+        jac = np.zeros((jac_vol.shape[0], self.k))
+        jac[:, i:i + nv] = jac_vol
+        return [{"type": "ineq", "fun": lambda th: spec.constraints(th[i:i + nv]),
+                 "jac": lambda th: jac}]
+
+    def starting_points(self, var):
+        mu0 = [float(np.mean(self.y))] if self.has_mu else []
+        nu0 = self.dist.starting_values()
+        return [np.array(mu0 + v + nu0) for v in self.spec.starting_values(var)]
+
+    # robust covariance --------------------------------------------------------------
+    def scores_and_hessian(self, theta):
+        """Per-observation scores (n, k) and the Hessian of the total log-likelihood."""
+        k = self.k
+        h = 1e-5 * np.maximum(np.abs(theta), 1e-2)
+        if self.spec.linear:
+            _, sc = self.score_obs(theta)
+            H = np.empty((k, k))
+            for i in range(k):
+                tp, tm = theta.copy(), theta.copy()
+                tp[i] += h[i]
+                tm[i] -= h[i]
+                gp = self.score_obs(tp)[1].sum(axis=0)
+                gm = self.score_obs(tm)[1].sum(axis=0)
+                H[:, i] = (gp - gm) / (2 * h[i])
+            return sc, 0.5 * (H + H.T)
+        # non-linear recursion: central differences of the per-observation likelihood
+        sc = np.empty((self.n, k))
+        f0 = float(np.sum(self.loglik_obs(theta)))
+        fp = np.empty(k)
+        fm = np.empty(k)
+        for i in range(k):
+            tp, tm = theta.copy(), theta.copy()
+            tp[i] += h[i]
+            tm[i] -= h[i]
+            lp, lm = self.loglik_obs(tp), self.loglik_obs(tm)
+            sc[:, i] = (lp - lm) / (2 * h[i])
+            fp[i], fm[i] = lp.sum(), lm.sum()
+        H = np.empty((k, k))
+        for i in range(k):
+            H[i, i] = (fp[i] - 2 * f0 + fm[i]) / h[i] ** 2
+            for j in range(i):
+                tpp, tmm, tpm, tmp = (theta.copy() for _ in range(4))
+                tpp[i] += h[i]; tpp[j] += h[j]
+                tmm[i] -= h[i]; tmm[j] -= h[j]
+                tpm[i] += h[i]; tpm[j] -= h[j]
+                tmp[i] -= h[i]; tmp[j] += h[j]
+                val = (np.sum(self.loglik_obs(tpp)) - np.sum(self.loglik_obs(tpm))
+                       - np.sum(self.loglik_obs(tmp)) + np.sum(self.loglik_obs(tmm)))
+                H[i, j] = H[j, i] = val / (4 * h[i] * h[j])
+        return sc, H
+
+    def robust_cov(self, theta):
+        """Bollerslev-Wooldridge (1992) sandwich ``H^{-1} (S'S) H^{-1}``."""
+        try:
+            sc, H = self.scores_and_hessian(theta)
+            Hinv = np.linalg.inv(H)
+            cov = Hinv @ (sc.T @ sc) @ Hinv
+        except (np.linalg.LinAlgError, TypeError, ValueError):
+            return np.full((self.k, self.k), np.nan)
+        if not np.all(np.isfinite(cov)):
+            return np.full((self.k, self.k), np.nan)
+        return 0.5 * (cov + cov.T)
+
+
+def _to_decimal(model: str, names, theta_s: np.ndarray, scale: float):
+    """Scaled-unit parameters (last axis) -> decimal-unit parameter dict (vectorised)
+    and the Jacobian of the map (for the covariance)."""
+    theta_s = np.asarray(theta_s, dtype=float)
+    out = {}
+    k = len(names)
+    J = np.eye(k)
+    ix = {n: i for i, n in enumerate(names)}
+    ln_s = math.log(scale)
+    for n, i in ix.items():
+        v = theta_s[..., i]
+        if n == "mu":
+            out[n] = v / scale
+            J[i, i] = 1.0 / scale
+        elif n == "omega" and model == "egarch":
+            b = theta_s[..., ix["beta"]]
+            out[n] = v - 2.0 * ln_s * (1.0 - b)
+            J[i, ix["beta"]] = 2.0 * ln_s
+        elif n == "omega":
+            out[n] = v / scale ** 2
+            J[i, i] = 1.0 / scale ** 2
+        else:
+            out[n] = v
+    return out, J
+
+
+def _to_scaled(model: str, names, params: dict, scale: float) -> np.ndarray:
+    ln_s = math.log(scale)
+    theta = []
+    for n in names:
+        v = float(params[n])
+        if n == "mu":
+            v *= scale
+        elif n == "omega" and model == "egarch":
+            v += 2.0 * ln_s * (1.0 - float(params["beta"]))
+        elif n == "omega":
+            v *= scale ** 2
+        theta.append(v)
+    return np.array(theta)
+
+
+# ---------------------------------------------------------------------------------
+# the result object
+# ---------------------------------------------------------------------------------
+@dataclass(frozen=True, eq=False)
+class GarchFit:
+    """A fitted (or fixed-parameter) GARCH-family model on daily decimal log returns.
+
+    Attributes
+    ----------
+    model : str
+        ``garch``, ``gjr``, ``egarch`` or ``ewma`` (the fallback).
+    dist : str
+        ``normal`` or ``t`` (unit-variance Student-t).
+    mean : str
+        ``constant`` or ``zero``.
+    params : dict
+        Decimal units: ``mu`` (daily mean return), ``omega`` (daily variance units;
+        for EGARCH in log-variance), ``alpha``, ``gamma``, ``beta``, ``nu`` as present;
+        ``lambda`` for EWMA.
+    std_errors : dict
+        Robust (Bollerslev-Wooldridge 1992) standard errors, same keys (NaN where
+        not available).
+    loglik : float
+        Log-likelihood of the decimal returns.
+    aic, bic : float
+        ``-2 LL + 2k`` and ``-2 LL + k ln n``.
+    n_obs : int
+    converged : bool
+        The optimiser reported success and the estimate is stationary.
+    message : str
+        The optimiser's message (or why no optimiser ran).
+    fallback_reason : str or None
+        Why this is not the model that was asked for (None when it is).
+    last_variance : float
+        sigma^2_{T+1}: daily variance for the day after the last return.
+    conditional_vol : ndarray
+        In-sample daily sigma_t, t = 1..n.
+    std_resid : ndarray
+        ``(r_t - mu) / sigma_t``.
+    candidates : dict
+        For ``model="auto"``: BIC of each candidate (None if it failed).
+    cov : ndarray
+        Robust covariance of the parameters in ``param_names`` order (decimal units).
+    """
+
+    model: str
+    dist: str
+    mean: str
+    params: dict
+    std_errors: dict
+    loglik: float
+    aic: float
+    bic: float
+    n_obs: int
+    converged: bool
+    message: str
+    fallback_reason: str | None
+    last_variance: float
+    conditional_vol: np.ndarray = field(repr=False)
+    std_resid: np.ndarray = field(repr=False)
+    candidates: dict = field(default_factory=dict)
+    cov: np.ndarray = field(default=None, repr=False)
+    param_names: tuple = ()
+    backcast: float = float("nan")
+    returns: np.ndarray = field(default=None, repr=False)
+
+    # -- derived values --------------------------------------------------------------
+    @property
+    def persistence(self) -> float:
+        """alpha + beta (GARCH), alpha + gamma/2 + beta (GJR), beta (EGARCH), 1 (EWMA)."""
+        return float(get_spec(self.model).persistence(self.params))
+
+    @property
+    def half_life_days(self) -> float | None:
+        """Trading days for a variance shock to halve: ``ln 0.5 / ln(persistence)``;
+        None when the persistence is 1 (EWMA) or outside (0, 1)."""
+        p = self.persistence
+        if not 0.0 < p < 1.0:
+            return None
+        return math.log(0.5) / math.log(p)
+
+    @property
+    def long_run_variance(self) -> float | None:
+        """Daily unconditional variance: ``omega / (1 - p)`` (GARCH, GJR); the limit of
+        the EGARCH forecast; None for EWMA (no mean reversion)."""
+        p = self.persistence
+        if self.model in ("garch", "gjr"):
+            return self.params["omega"] / (1.0 - p) if p < 1 else None
+        if self.model == "egarch":
+            if p >= 1:
+                return None
+            v = self.forecast_variance(5000)
+            return float(v[-1])
+        return None
+
+    @property
+    def long_run_vol(self) -> float | None:
+        """Annualised long-run volatility ``sqrt(252 V_L)`` (decimal); None for EWMA."""
+        v = self.long_run_variance
+        return None if v is None else math.sqrt(fc.TRADING_DAYS_PER_YEAR * v)
+
+    @functools.cached_property
+    def _z_sample(self) -> np.ndarray | None:
+        if self.dist != "t":
+            return None
+        rng = np.random.default_rng(20251201)
+        z = std_t_draws(rng, float(self.params["nu"]), 10_000)
+        return np.concatenate([z, -z])
+
+    # -- forecasts ---------------------------------------------------------------------
+    def forecast_variance(self, horizon: int) -> np.ndarray:
+        """Expected daily variances for steps 1..horizon after the last return.
+
+        GARCH/GJR: ``V_L + p^{k-1} (sigma^2_{T+1} - V_L)``; EGARCH: exact log-normal
+        recursion (see :func:`optbench.volatility.forecast.egarch_forecast_variance`);
+        EWMA: flat at sigma^2_{T+1}.
+        """
+        horizon = int(horizon)
+        if horizon < 1:
+            raise InputError("horizon", "must be at least one trading day")
+        p = self.params
+        if self.model in ("garch", "gjr"):
+            pers = self.persistence
+            vl = p["omega"] / (1.0 - pers) if pers < 1 else self.last_variance
+            if pers >= 1:
+                pers = 1.0
+            return fc.linear_forecast_variance(self.last_variance, vl, pers, horizon)
+        if self.model == "egarch":
+            return fc.egarch_forecast_variance(self.last_variance, p["omega"], p["alpha"],
+                                               p["gamma"], p["beta"], horizon, self.dist,
+                                               self._z_sample)
+        return np.full(horizon, self.last_variance)
+
+    def forecast_vol(self, trading_days):
+        """Annualised forecast vol over each horizon: ``sqrt(252 * mean_{k<=T}
+        E[sigma^2_{T+k}])`` (decimal). Horizons below one day use one day.
+        Array in -> array out; scalar -> float."""
+        T = np.asarray(trading_days)
+        scalar = T.ndim == 0
+        T = np.maximum(np.atleast_1d(T).astype(int), 1)
+        if self.model in ("garch", "gjr") and self.persistence < 1:
+            pers = self.persistence
+            avg = fc.linear_average_variance(self.last_variance,
+                                             self.params["omega"] / (1 - pers), pers, T)
+        else:
+            v = self.forecast_variance(int(T.max()))
+            avg = np.cumsum(v)[T - 1] / T
+        out = fc.annualise(avg)
+        return float(out[0]) if scalar else out
+
+    def forecast_band(self, trading_days, level=(0.05, 0.95), n_draws: int = 1000,
+                      seed=0, window: int = 500):
+        """(low, high) forecast vols from parameter uncertainty.
+
+        Parameter vectors are drawn from N(theta_hat, robust covariance) in the
+        estimator's units, draws that break a constraint (positivity, stationarity,
+        nu > 2.05) are dropped, each draw re-filters the last ``window`` returns
+        from the fitted state to get its own sigma^2_{T+1}, and its term structure
+        is computed in closed form (GARCH, GJR) or by the exact recursion (EGARCH).
+        The band is the ``level`` quantiles across draws. EWMA has no estimated
+        parameters: low = high = the forecast.
+        """
+        T = np.asarray(trading_days)
+        scalar = T.ndim == 0
+        T = np.maximum(np.atleast_1d(T).astype(int), 1)
+        point = np.atleast_1d(self.forecast_vol(T))
+        cov = self.cov
+        if (self.model == "ewma" or cov is None or not np.all(np.isfinite(cov))
+                or self.returns is None):
+            lo = hi = point
+            return (float(lo[0]), float(hi[0])) if scalar else (lo.copy(), hi.copy())
+        names = list(self.param_names)
+        theta = np.array([self.params[n] for n in names])
+        # draw in units where parameters are of order one (variance scaled by V_T)
+        sc = np.ones(len(names))
+        if "mu" in names:
+            sc[names.index("mu")] = math.sqrt(self.last_variance)
+        if "omega" in names and self.model != "egarch":
+            sc[names.index("omega")] = self.last_variance
+        rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
+        cov_u = cov / np.outer(sc, sc)
+        try:
+            chol = np.linalg.cholesky(cov_u + 1e-14 * np.eye(len(names)))
+        except np.linalg.LinAlgError:
+            w, V = np.linalg.eigh(cov_u)
+            chol = V * np.sqrt(np.clip(w, 0, None))
+        m = 2 * n_draws + 50
+        draws = theta / sc + rng.standard_normal((m, len(names))) @ chol.T
+        draws *= sc
+        P = {n: draws[:, i] for i, n in enumerate(names)}
+        ok = np.ones(m, dtype=bool)
+        if self.model in ("garch", "gjr"):
+            g = P.get("gamma", np.zeros(m))
+            pers = P["alpha"] + 0.5 * g + P["beta"]
+            ok &= (P["omega"] > 0) & (P["alpha"] >= 0) & (P["beta"] >= 0) & (pers < 1)
+            ok &= (P["alpha"] + g >= 0)
+        else:
+            ok &= (np.abs(P["beta"]) < 1)
+        if "nu" in P:
+            ok &= P["nu"] > NU_MIN
+        idx = np.flatnonzero(ok)[:n_draws]
+        if idx.size < 20:
+            lo = hi = point
+            return (float(lo[0]), float(hi[0])) if scalar else (lo.copy(), hi.copy())
+        P = {n: v[idx] for n, v in P.items()}
+        spec = get_spec(self.model)
+        y = self.returns
+        n = y.shape[0]
+        K = min(window, n)
+        s2 = np.full(idx.size, self.conditional_vol[n - K] ** 2)
+        mu = P.get("mu", 0.0)
+        for t in range(n - K, n):
+            s2 = spec.next_variance(y[t] - mu, s2, P)
+        if self.model in ("garch", "gjr"):
+            g = P.get("gamma", 0.0)
+            pers = P["alpha"] + 0.5 * g + P["beta"]
+            vl = P["omega"] / (1 - pers)
+            avg = fc.linear_average_variance(s2[:, None], vl[:, None], pers[:, None], T)
+        else:
+            z = None if self._z_sample is None else self._z_sample[::10]
+            hmax = int(T.max())
+            avg = np.empty((idx.size, T.size))
+            for d in range(idx.size):
+                zd = z
+                if z is not None and "nu" in P:
+                    zd = std_t_draws(np.random.default_rng(d), float(P["nu"][d]), 1000)
+                    zd = np.concatenate([zd, -zd])
+                v = fc.egarch_forecast_variance(s2[d], P["omega"][d], P["alpha"][d],
+                                                P["gamma"][d], P["beta"][d], hmax,
+                                                self.dist, zd)
+                avg[d] = np.cumsum(v)[T - 1] / T
+        vols = fc.annualise(avg)
+        lo, hi = np.quantile(vols, level, axis=0)
+        return (float(lo[0]), float(hi[0])) if scalar else (lo, hi)
+
+    # -- held-parameter filtering and simulation ---------------------------------------
+    def filter(self, returns, initial_variance: float | None = None) -> np.ndarray:
+        """Conditional variances of new returns with this fit's parameters held.
+
+        Returns sigma^2_t for t = 1..n+1: the first is ``initial_variance`` (default:
+        this fit's ``last_variance``, i.e. the new returns continue the fitted
+        sample), the last is the forecast for the day after the last new return.
+        """
+        r = np.asarray(returns, dtype=float)
+        if r.ndim != 1 or not np.all(np.isfinite(r)):
+            raise InputError("returns", "expected a 1-D series of finite returns")
+        s0 = self.last_variance if initial_variance is None else float(initial_variance)
+        e = r - self.params.get("mu", 0.0)
+        p = self.params
+        if self.model in ("garch", "gjr", "ewma"):
+            e2 = e * e
+            if self.model == "ewma":
+                lam = p.get("lambda", EWMA_LAMBDA)
+                u, b = (1 - lam) * e2, lam
+            else:
+                u = p["omega"] + p["alpha"] * e2
+                if self.model == "gjr":
+                    u = u + p["gamma"] * np.where(e < 0, e2, 0.0)
+                b = p["beta"]
+            return np.concatenate([[s0], linear_filter(u, b, s0)])
+        out = np.empty(r.shape[0] + 1)
+        out[0] = s0
+        spec = get_spec(self.model)
+        s2 = np.array([s0])
+        for t in range(r.shape[0]):
+            s2 = spec.next_variance(e[t:t + 1], s2, p)
+            out[t + 1] = s2[0]
+        return out
+
+    def simulate(self, horizon: int, n_paths: int = 10_000, seed=None):
+        """Simulate daily returns from the day after the last return
+        (:class:`optbench.volatility.simulate.SimulatedPaths`)."""
+        from optbench.volatility.simulate import simulate_paths
+
+        return simulate_paths(self.model, self.params, self.dist, self.last_variance,
+                              int(horizon), int(n_paths), seed)
+
+    # -- output -------------------------------------------------------------------------
+    def to_dict(self) -> dict:
+        """JSON-ready summary (DESIGN.md ``model`` object of ``optbench fit``)."""
+        def num(x):
+            if x is None:
+                return None
+            x = float(x)
+            return x if math.isfinite(x) else None
+
+        return {
+            "name": self.model, "dist": self.dist, "mean": self.mean,
+            "params": {k: num(v) for k, v in self.params.items()},
+            "std_errors": {k: num(v) for k, v in self.std_errors.items()},
+            "loglik": num(self.loglik), "aic": num(self.aic), "bic": num(self.bic),
+            "n_obs": self.n_obs, "converged": bool(self.converged),
+            "message": self.message, "fallback_reason": self.fallback_reason,
+            "persistence": num(self.persistence),
+            "half_life_days": num(self.half_life_days),
+            "long_run_vol": num(self.long_run_vol),
+            "candidates": {k: num(v) for k, v in self.candidates.items()},
+        }
+
+
+# ---------------------------------------------------------------------------------
+# building a result
+# ---------------------------------------------------------------------------------
+def _scale_of(y: np.ndarray) -> float:
+    return 1.0 / float(np.std(y))
+
+
+def _backcast_scaled(y_s, has_mu, backcast, scale):
+    if backcast is not None:
+        b = float(backcast)
+        if not b > 0:
+            raise InputError("backcast", "must be a positive daily variance")
+        return b * scale ** 2
+    resid = y_s - np.mean(y_s) if has_mu else y_s
+    return backcast_value(resid)
+
+
+def _result(prob: _Problem, theta_s: np.ndarray, y: np.ndarray, scale: float, mean: str,
+            converged: bool, message: str, fallback_reason, candidates, cov_s=None,
+            n_free: int | None = None) -> GarchFit:
+    model = prob.spec.name
+    names = tuple(prob.names)
+    ll_obs = prob.loglik_obs(theta_s)
+    ll = float(np.sum(ll_obs)) + prob.n * math.log(scale)
+    eps_s, s2_s = prob.variance(theta_s)
+    params_arr, J = _to_decimal(model, names, theta_s, scale)
+    params = {k: float(v) for k, v in params_arr.items()}
+    if model == "ewma":
+        params["lambda"] = EWMA_LAMBDA
+        if mean == "constant":
+            params = {"mu": float(np.mean(y)), **params}
+    if cov_s is None:
+        cov = np.zeros((0, 0)) if not names else None
+    else:
+        cov = J @ cov_s @ J.T
+    se = {}
+    for i, n in enumerate(names):
+        se[n] = float(math.sqrt(cov[i, i])) if (cov is not None and cov[i, i] >= 0) else float("nan")
+    k = len(names) if n_free is None else n_free
+    s2 = s2_s / scale ** 2
+    mu = params.get("mu", 0.0)
+    spec = prob.spec
+    e_last = np.array([y[-1] - mu])
+    last = float(spec.next_variance(e_last, np.array([s2[-1]]), params)[0])
+    return GarchFit(
+        model=model, dist=prob.dist.name, mean=mean, params=params, std_errors=se,
+        loglik=ll, aic=-2 * ll + 2 * k, bic=-2 * ll + k * math.log(prob.n),
+        n_obs=prob.n, converged=bool(converged), message=message,
+        fallback_reason=fallback_reason, last_variance=last,
+        conditional_vol=np.sqrt(s2), std_resid=(y - mu) / np.sqrt(s2),
+        candidates=dict(candidates or {}), cov=cov, param_names=names,
+        backcast=prob.backcast / scale ** 2, returns=y)
+
+
+def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast):
+    """One maximum-likelihood fit. Returns (fit, problem text or None)."""
+    scale = _scale_of(y)
+    y_s = y * scale
+    has_mu = mean == "constant"
+    bc = _backcast_scaled(y_s, has_mu, backcast, scale)
+    prob = _Problem(y_s, model, dist, has_mu, bc)
+    var = float(np.var(y_s))
+    starts = prob.starting_points(var)
+    vals = [prob.objective(s) for s in starts]
+    x0 = starts[int(np.argmin(vals))]
+    bounds = prob.bounds(var)
+    x0 = np.clip(x0, [b[0] for b in bounds], [b[1] for b in bounds])
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        if prob.spec.linear:
+            res = minimize(prob.objective_grad, x0, jac=True, method="SLSQP",
+                           bounds=bounds, constraints=prob.constraint(),
+                           options={"ftol": 1e-12, "maxiter": 300})
+        else:
+            res = minimize(prob.objective, x0, method="SLSQP", bounds=bounds,
+                           constraints=prob.constraint(),
+                           options={"ftol": 1e-11, "maxiter": 300})
+    theta = np.asarray(res.x, dtype=float)
+    problem = None
+    if not res.success:
+        problem = f"{model} did not converge ({res.message})"
+    else:
+        _, vol, _ = prob.unpack(theta)
+        pers = prob.spec.persistence(vol)
+        if not pers < 1.0 - STATIONARITY_MARGIN:
+            problem = f"{model} estimate is not stationary (persistence {pers:.6f})"
+    cov_s = prob.robust_cov(theta) if problem is None else None
+    fit = _result(prob, theta, y, scale, mean, problem is None, str(res.message),
+                  None, None, cov_s=cov_s)
+    return fit, problem
+
+
+def _ewma(y: np.ndarray, mean: str, backcast, reason: str) -> GarchFit:
+    scale = _scale_of(y)
+    y_s = y * scale
+    has_mu = mean == "constant"
+    y_c = y_s - np.mean(y_s) if has_mu else y_s
+    bc = _backcast_scaled(y_s, has_mu, backcast, scale)
+    prob = _Problem(y_c, "ewma", "normal", False, bc)
+    fit = _result(prob, np.zeros(0), y, scale, mean, True,
+                  "EWMA has no estimated parameters", reason, None,
+                  n_free=1 if has_mu else 0)
+    if has_mu:  # the log-likelihood was computed on demeaned returns: same as with mu
+        pass
+    return fit
+
+
+def fit_garch(returns, model: str = "gjr", dist: str = "t", mean: str = "constant", *,
+              backcast: float | None = None) -> GarchFit:
+    """Fit a GARCH-family model to daily decimal log returns by maximum likelihood.
+
+    Parameters
+    ----------
+    returns : array-like, shape (n,)
+        Daily log returns in decimals (0.01 = 1%), oldest first, n >= 250.
+    model : {"garch", "gjr", "egarch", "auto"}
+        GARCH(1,1) (Bollerslev 1986), GJR-GARCH(1,1) (Glosten, Jagannathan & Runkle
+        1993), EGARCH(1,1) (Nelson 1991); ``auto`` fits all three with ``dist`` and
+        keeps the lowest BIC (the candidates' BICs are in ``fit.candidates``).
+    dist : {"normal", "t"}
+        Innovation distribution; ``t`` is the unit-variance Student-t (Bollerslev 1987).
+    mean : {"constant", "zero"}
+    backcast : float, optional
+        Start-up daily variance (decimal units). Default: the exponentially weighted
+        average (decay 0.94) of the first 75 squared demeaned returns (the arch
+        library's convention).
+
+    Returns
+    -------
+    GarchFit
+
+    Notes
+    -----
+    Maximises ``sum_t l(e_t; sigma^2_t, nu)`` with SLSQP under the stationarity
+    constraint (persistence <= 1) and positivity bounds. For GARCH and GJR the
+    variance and its derivatives come from one blocked linear filter, giving an
+    analytic gradient; EGARCH uses a loop and finite-difference gradients. If the
+    fit fails or is not stationary, a simpler model is tried (EGARCH -> GJR ->
+    GARCH -> EWMA with lambda = 0.94, RiskMetrics 1996) and ``fallback_reason``
+    says why. Standard errors are the robust sandwich of Bollerslev & Wooldridge
+    (1992).
+    """
+    y = _check_returns(returns)
+    _check_choice("model", model, MODELS + ("auto",))
+    _check_choice("dist", dist, ("normal", "t"))
+    _check_choice("mean", mean, ("constant", "zero"))
+    if model == "auto":
+        fits, bics, problems = {}, {}, []
+        for m in MODELS:
+            f, prob = _estimate(y, m, dist, mean, backcast)
+            if prob is None:
+                fits[m], bics[m] = f, f.bic
+            else:
+                bics[m] = None
+                problems.append(prob)
+        if not fits:
+            return _ewma(y, mean, backcast, "EWMA lambda=0.94 used: " + "; ".join(problems))
+        best = min(fits, key=lambda m: fits[m].bic)
+        reason = None
+        return _replace(fits[best], candidates=bics, fallback_reason=reason)
+    reasons = []
+    m = model
+    while m != "ewma":
+        f, prob = _estimate(y, m, dist, mean, backcast)
+        if prob is None:
+            if reasons:
+                return _replace(f, fallback_reason="; ".join(reasons)
+                                + f"; fell back to {m}")
+            return f
+        reasons.append(prob)
+        m = FALLBACK[m]
+    return _ewma(y, mean, backcast, "EWMA lambda=0.94 used: " + "; ".join(reasons))
+
+
+def _replace(fit: GarchFit, **changes) -> GarchFit:
+    import dataclasses
+
+    return dataclasses.replace(fit, **changes)
+
+
+def fix_garch(returns, params: dict, model: str = "gjr", dist: str = "t",
+              mean: str = "constant", *, backcast: float | None = None) -> GarchFit:
+    """Evaluate given decimal-unit parameters on ``returns`` without estimating.
+
+    The result has the same interface as a fitted one (likelihood, conditional
+    vols, forecasts, filtering, simulation); its standard errors are the robust
+    sandwich evaluated at the given parameters. ``converged`` is True and
+    ``message`` says the parameters were held.
+    """
+    y = _check_returns(returns)
+    _check_choice("model", model, MODELS + ("ewma",))
+    _check_choice("dist", dist, ("normal", "t"))
+    _check_choice("mean", mean, ("constant", "zero"))
+    if model == "ewma":
+        return _ewma(y, mean, backcast, None)
+    scale = _scale_of(y)
+    y_s = y * scale
+    has_mu = mean == "constant"
+    bc = _backcast_scaled(y_s, has_mu, backcast, scale)
+    prob = _Problem(y_s, model, dist, has_mu, bc)
+    missing = [n for n in prob.names if n not in params]
+    if missing:
+        raise InputError("params", f"missing {', '.join(missing)} for {model}-{dist}")
+    theta = _to_scaled(model, prob.names, params, scale)
+    if prob.loglik_obs(theta) is None:
+        raise InputError("params", "give a non-positive variance on these returns")
+    cov_s = prob.robust_cov(theta)
+    return _result(prob, theta, y, scale, mean, True, "parameters held fixed", None,
+                   None, cov_s=cov_s)

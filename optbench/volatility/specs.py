@@ -1,0 +1,146 @@
+"""Variance-process specifications: parameter names, starting values, bounds,
+constraints and persistence for GARCH(1,1), GJR-GARCH(1,1), EGARCH(1,1) and EWMA.
+
+A spec owns its slice of the parameter vector; the estimator in
+:mod:`optbench.volatility.garch` joins it with the mean (``mu``) and the
+distribution (``nu``) slices without knowing which model it fits. All values here
+are in the estimator's *scaled* units (returns divided by their sample standard
+deviation), where the variance is of order one.
+"""
+from __future__ import annotations
+
+import itertools
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from optbench.volatility.recursions import (SQRT_2_OVER_PI, egarch_log_variance,
+                                            ewma_variance, garch_variance)
+
+EWMA_LAMBDA = 0.94  # RiskMetrics (1996) daily decay, common practice
+
+
+@dataclass(frozen=True)
+class VolSpec:
+    """One variance process.
+
+    Attributes
+    ----------
+    name : str
+        ``garch``, ``gjr``, ``egarch`` or ``ewma``.
+    param_names : tuple of str
+        Names of the variance parameters, in order.
+    linear : bool
+        True when the recursion is a linear filter of squared residuals (GARCH,
+        GJR, EWMA): analytic derivatives and closed-form forecasts are available.
+    """
+
+    name: str
+    param_names: tuple[str, ...]
+    linear: bool
+
+    # -- estimation ---------------------------------------------------------------
+    def starting_values(self, var: float) -> list[list[float]]:
+        """Candidate starting points (a small grid; the estimator keeps the best)."""
+        if self.name == "garch":
+            grid = itertools.product((0.03, 0.07, 0.12), (0.85, 0.95, 0.99))
+            return [[var * (1 - p), a, p - a] for a, p in grid]
+        if self.name == "gjr":
+            grid = itertools.product((0.01, 0.05), (0.05, 0.15), (0.90, 0.97, 0.99))
+            return [[var * (1 - p), a, g, p - a - g / 2] for a, g, p in grid]
+        if self.name == "egarch":
+            grid = itertools.product((0.05, 0.15), (-0.1, 0.0), (0.95, 0.98))
+            return [[math.log(var) * (1 - b), a, g, b] for a, g, b in grid]
+        return [[]]
+
+    def bounds(self, var: float) -> list[tuple[float, float]]:
+        if self.name == "garch":
+            return [(1e-8 * var, 10.0 * var), (0.0, 1.0), (0.0, 1.0)]
+        if self.name == "gjr":
+            return [(1e-8 * var, 10.0 * var), (0.0, 1.0), (-1.0, 2.0), (0.0, 1.0)]
+        if self.name == "egarch":
+            lv = math.log(var)
+            return [(lv - math.log(1e4), lv + math.log(1e4)), (-2.0, 2.0), (-2.0, 2.0),
+                    (0.0, 1.0)]
+        return []
+
+    def constraints(self, theta: np.ndarray) -> np.ndarray:
+        """Inequalities ``>= 0`` on the variance parameters (stationarity, positivity).
+
+        GARCH: ``1 - alpha - beta``; GJR: ``1 - alpha - gamma/2 - beta`` and
+        ``alpha + gamma``; EGARCH: ``1 - beta``.
+        """
+        if self.name == "garch":
+            return np.array([1.0 - theta[1] - theta[2]])
+        if self.name == "gjr":
+            return np.array([1.0 - theta[1] - 0.5 * theta[2] - theta[3],
+                             theta[1] + theta[2]])
+        if self.name == "egarch":
+            return np.array([1.0 - theta[3]])
+        return np.zeros(0)
+
+    def constraint_jacobian(self) -> np.ndarray:
+        if self.name == "garch":
+            return np.array([[0.0, -1.0, -1.0]])
+        if self.name == "gjr":
+            return np.array([[0.0, -1.0, -0.5, -1.0], [0.0, 1.0, 1.0, 0.0]])
+        if self.name == "egarch":
+            return np.array([[0.0, 0.0, 0.0, -1.0]])
+        return np.zeros((0, 0))
+
+    # -- properties of a parameter set ---------------------------------------------
+    def persistence(self, p: dict) -> float:
+        """GARCH ``alpha + beta``; GJR ``alpha + gamma/2 + beta`` (symmetric
+        innovations: E[I(z<0) z^2] = 1/2); EGARCH ``beta``; EWMA 1."""
+        if self.name == "garch":
+            return p["alpha"] + p["beta"]
+        if self.name == "gjr":
+            return p["alpha"] + 0.5 * p["gamma"] + p["beta"]
+        if self.name == "egarch":
+            return p["beta"]
+        return 1.0
+
+    def variance(self, eps: np.ndarray, p: dict, backcast: float) -> np.ndarray:
+        """Conditional variances sigma^2_t (t = 0..n-1) for residuals ``eps``.
+
+        ``backcast`` is the start-up variance (for EGARCH its logarithm is used).
+        """
+        if self.name in ("garch", "gjr"):
+            return garch_variance(eps, p["omega"], p["alpha"], p.get("gamma", 0.0),
+                                  p["beta"], backcast)
+        if self.name == "egarch":
+            return np.exp(egarch_log_variance(eps, p["omega"], p["alpha"], p["gamma"],
+                                              p["beta"], math.log(backcast)))
+        return ewma_variance(eps, p.get("lambda", EWMA_LAMBDA), backcast)
+
+    def next_variance(self, e_last: np.ndarray, s2_last: np.ndarray, p: dict) -> np.ndarray:
+        """One step of the recursion, vectorised: sigma^2_{t+1} from e_t, sigma^2_t."""
+        if self.name in ("garch", "gjr"):
+            e2 = e_last * e_last
+            out = p["omega"] + p["alpha"] * e2 + p["beta"] * s2_last
+            if self.name == "gjr":
+                out = out + p["gamma"] * np.where(e_last < 0, e2, 0.0)
+            return out
+        if self.name == "egarch":
+            z = e_last / np.sqrt(s2_last)
+            lnv = (p["omega"] + p["alpha"] * (np.abs(z) - SQRT_2_OVER_PI)
+                   + p["gamma"] * z + p["beta"] * np.log(s2_last))
+            return np.exp(np.minimum(lnv, 30.0))
+        lam = p.get("lambda", EWMA_LAMBDA)
+        return lam * s2_last + (1.0 - lam) * e_last * e_last
+
+
+GARCH = VolSpec("garch", ("omega", "alpha", "beta"), True)
+GJR = VolSpec("gjr", ("omega", "alpha", "gamma", "beta"), True)
+EGARCH = VolSpec("egarch", ("omega", "alpha", "gamma", "beta"), False)
+EWMA = VolSpec("ewma", (), True)
+
+SPECS = {s.name: s for s in (GARCH, GJR, EGARCH, EWMA)}
+
+
+def get_spec(name: str) -> VolSpec:
+    try:
+        return SPECS[name]
+    except KeyError:
+        raise ValueError(f"unknown model {name!r} (garch, gjr, egarch or ewma)") from None
