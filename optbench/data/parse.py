@@ -61,15 +61,26 @@ def _parse_unique(values: pd.Series) -> pd.Series:
                             "", regex=True)
     out = pd.Series(pd.NaT, index=values.index, dtype="datetime64[ns]")
     remaining = text.notna().to_numpy(dtype=bool).copy()
-    tried = [(fmt, pd.to_datetime(text, format=fmt, errors="coerce")) for fmt in DATE_FORMATS]
+    # fast path: ISO dates, by far the most common
+    iso = pd.to_datetime(text, format=DATE_FORMATS[0], errors="coerce")
+    take = remaining & iso.notna().to_numpy()
+    out[take] = iso[take]
+    remaining = remaining & ~take
+    if not remaining.any():
+        return out
+    rest = text[remaining]
+    tried = [(fmt, pd.to_datetime(rest, format=fmt, errors="coerce"))
+             for fmt in DATE_FORMATS[1:]]
     # best format first: most values read; ties keep the order of DATE_FORMATS
     tried.sort(key=lambda item: -int(item[1].notna().sum()))
+    left = np.ones(len(rest), dtype=bool)
+    idx = rest.index
     for _fmt, parsed in tried:
-        take = remaining & parsed.notna().to_numpy()
-        if take.any():
-            out[take] = parsed[take]
-            remaining = remaining & ~take
-        if not remaining.any():
+        got = left & parsed.notna().to_numpy()
+        if got.any():
+            out.loc[idx[got]] = parsed[got].to_numpy()
+            left = left & ~got
+        if not left.any():
             break
     return out
 

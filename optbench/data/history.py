@@ -1,0 +1,199 @@
+"""Loading the underlying's daily price history.
+
+A history file is a CSV (or Parquet) with a date and a close; the adjusted close
+is used when the file has one (``Adj Close``, ``adjusted_close``, ...), and
+``open``/``high``/``low`` are read when present (range-based realized-vol
+estimators need them). Problems are reported in ``PriceHistory.issues`` and never
+filled in silently: rows with an unreadable date or a missing or non-positive
+close are dropped (and listed), unsorted dates are sorted, a date given twice
+keeps its last row, and gaps longer than a week are listed.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from optbench.data.columns import map_history_columns
+from optbench.data.files import drop_blank_rows, read_table
+from optbench.data.parse import present, to_date, to_number
+from optbench.errors import InputError
+
+GAP_DAYS = 7
+"""Consecutive dates more than this many calendar days apart are reported as a gap."""
+
+_SHOW = 5
+
+
+@dataclass(frozen=True, eq=False)
+class PriceHistory:
+    """Daily prices of the underlying and their log returns.
+
+    Attributes
+    ----------
+    source : str
+    dates : ndarray of datetime64[D]
+        Sorted, distinct trading dates.
+    close : ndarray of float
+        (Adjusted) close in price units, all positive.
+    open, high, low : ndarray of float or None
+        None when the file has no such column; NaN on rows where they were
+        missing or inconsistent with the close (reported in ``issues``).
+    returns : ndarray of float
+        Daily log returns r_t = ln(C_t / C_{t-1}), decimals, aligned with ``dates[1:]``.
+    issues : list of str
+        What was found and done, one sentence each.
+    close_column : str
+        The file's column the closes came from.
+    """
+
+    source: str
+    dates: np.ndarray
+    close: np.ndarray
+    open: np.ndarray | None
+    high: np.ndarray | None
+    low: np.ndarray | None
+    returns: np.ndarray
+    issues: list
+    close_column: str = "close"
+
+    def __len__(self) -> int:
+        return len(self.dates)
+
+
+def _lines(lines: np.ndarray) -> str:
+    shown = ", ".join(str(int(x)) for x in lines[:_SHOW])
+    return shown + (f" and {len(lines) - _SHOW} more" if len(lines) > _SHOW else "")
+
+
+def _is_header(cells: list[str]) -> bool:
+    found = map_history_columns(cells)
+    return "date" in found and ("close" in found or "adj_close" in found)
+
+
+def load_history(path: str | Path) -> PriceHistory:
+    """Load a daily price history and compute its log returns.
+
+    Parameters
+    ----------
+    path : str or Path
+        CSV/Parquet file with ``date`` and ``close`` (or an adjusted close), or a
+        scenario folder holding ``history.csv``.
+
+    Returns
+    -------
+    PriceHistory
+
+    Raises
+    ------
+    InputError
+        Missing/empty/unreadable file, no date or close column, no readable date,
+        or fewer than two usable prices.
+
+    Notes
+    -----
+    Daily log return r_t = ln(C_t) − ln(C_{t−1}) on consecutive rows of the sorted,
+    de-duplicated history (Tsay, *Analysis of Financial Time Series*, 3rd ed., §1.1).
+    """
+    path = Path(path)
+    if path.is_dir():
+        for name in ("history.csv", "history.parquet"):
+            if (path / name).is_file():
+                path = path / name
+                break
+        else:
+            raise InputError(path, "folder holds no history.csv")
+    raw = read_table(path, header_test=_is_header)
+    frame = drop_blank_rows(raw.frame)
+    lines = raw.line0 + frame.index.to_numpy()
+    frame = frame.reset_index(drop=True)
+    if frame.shape[1] <= 1:
+        raise InputError(path, "only one column found: the delimiter is not one of "
+                         ", ; tab | or the file is not a price history")
+    cols = map_history_columns(frame.columns)
+    if "date" not in cols:
+        raise InputError(path, "missing column 'date'")
+    close_field = "adj_close" if "adj_close" in cols else "close"
+    if close_field not in cols:
+        raise InputError(path, "missing column 'close' (or an adjusted close)")
+    issues: list[str] = []
+    dc = raw.decimal_comma
+    dates = to_date(frame[cols["date"]]).to_numpy(dtype="datetime64[ns]")
+    close = to_number(frame[cols[close_field]], decimal_comma=dc)
+
+    bad_date = np.isnat(dates)
+    if bad_date.all():
+        raise InputError(path, f"no readable date in column '{cols['date']}'")
+    if bad_date.any():
+        issues.append(f"{int(bad_date.sum())} rows with a missing or unreadable date "
+                      f"dropped (lines {_lines(lines[bad_date])})")
+    bad_price = ~bad_date & ~(close > 0)
+    if bad_price.any():
+        issues.append(f"{int(bad_price.sum())} rows with a missing or non-positive close "
+                      f"dropped (lines {_lines(lines[bad_price])})")
+    keep = ~bad_date & ~bad_price
+
+    ohlc = {}
+    for f in ("open", "high", "low"):
+        ohlc[f] = to_number(frame[cols[f]], decimal_comma=dc) if f in cols else None
+
+    if close_field == "adj_close" and "close" in cols and any(
+            v is not None for v in ohlc.values()):
+        # open/high/low are quoted unadjusted: scale them by adjusted / raw close
+        # (common practice for split- and dividend-adjusted bars)
+        raw_close = to_number(frame[cols["close"]], decimal_comma=dc)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            factor = np.where(raw_close > 0, close / raw_close, np.nan)
+        ohlc = {f: (v * factor if v is not None else None) for f, v in ohlc.items()}
+        issues.append(f"open/high/low scaled by '{cols[close_field]}' / '{cols['close']}'")
+    df = pd.DataFrame({"date": dates, "close": close, "line": lines})
+    for f, v in ohlc.items():
+        if v is not None:
+            df[f] = v
+    df = df[keep]
+    if not df["date"].is_monotonic_increasing:
+        issues.append("dates were not in order; sorted")
+        df = df.sort_values("date", kind="stable")
+    dup = df["date"].duplicated(keep="last").to_numpy()
+    if dup.any():
+        issues.append(f"{int(dup.sum())} dates given more than once; the last row of each "
+                      f"is kept (dropped lines {_lines(df['line'].to_numpy()[dup])})")
+        df = df[~dup]
+    if len(df) < 2:
+        raise InputError(path, f"only {len(df)} usable price(s); at least 2 are needed")
+
+    d = df["date"].to_numpy().astype("datetime64[D]")
+    gaps = np.diff(d).astype(np.int64)
+    long_gap = np.flatnonzero(gaps > GAP_DAYS)
+    if long_gap.size:
+        shown = "; ".join(f"{d[i]} to {d[i + 1]} ({gaps[i]} days)" for i in long_gap[:_SHOW])
+        more = f" and {long_gap.size - _SHOW} more" if long_gap.size > _SHOW else ""
+        issues.append(f"{long_gap.size} gaps longer than {GAP_DAYS} calendar days: "
+                      f"{shown}{more}")
+    c = df["close"].to_numpy(dtype=float)
+    out = {f: (df[f].to_numpy(dtype=float).copy() if v is not None else None)
+           for f, v in ohlc.items()}
+    if any(v is not None for v in out.values()):
+        hi = out["high"] if out["high"] is not None else np.full(len(c), np.inf)
+        lo = out["low"] if out["low"] is not None else np.full(len(c), -np.inf)
+        op = out["open"] if out["open"] is not None else c
+        with np.errstate(invalid="ignore"):
+            bad = (hi < lo) | (c > hi * (1 + 1e-9)) | (c < lo * (1 - 1e-9)) \
+                | (op > hi * (1 + 1e-9)) | (op < lo * (1 - 1e-9))
+            for v in out.values():
+                if v is not None:
+                    bad |= ~(v > 0)
+        bad &= np.ones(len(c), bool)
+        if bad.any():
+            issues.append(f"{int(bad.sum())} rows with open/high/low missing, non-positive "
+                          "or inconsistent with the close: those values left empty (lines "
+                          f"{_lines(df['line'].to_numpy()[bad])})")
+            for v in out.values():
+                if v is not None:
+                    v[bad] = np.nan
+    returns = np.diff(np.log(c))
+    return PriceHistory(source=str(path), dates=d, close=c, open=out["open"],
+                        high=out["high"], low=out["low"], returns=returns, issues=issues,
+                        close_column=str(cols[close_field]))
