@@ -1,0 +1,49 @@
+"""``optbench open``: the terminal workbench on a chain file or a scenario folder.
+
+``optbench`` with no arguments runs ``open`` with no CHAIN, which opens the
+bundled demo scenario ``chains/ZPHX``.
+"""
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+
+from optbench.commands.common import (add_market_overrides, add_model_options,
+                                      parse_float)
+from optbench.errors import InputError
+
+
+def add_parser(subparsers) -> argparse.ArgumentParser:
+    parser = subparsers.add_parser(
+        "open", help="open the terminal workbench (default: the bundled demo)",
+        description=("Open the terminal workbench on an option chain (a file, or a "
+                     "scenario folder with chain.csv and history.csv). Without CHAIN it "
+                     "opens the bundled demo scenario. Keys are listed on the help "
+                     "screen (?)."))
+    parser.add_argument("chain", nargs="?", metavar="CHAIN", default=None,
+                        help="chain file or scenario folder (default: the bundled demo)")
+    parser.add_argument("--history", metavar="H", default=None,
+                        help="price history CSV (default: history.csv beside the chain)")
+    add_market_overrides(parser)
+    parser.add_argument("--max-spread", dest="max_spread", type=parse_float, default=None,
+                        help="widest bid/ask spread kept, as a fraction of mid (0.5 = 50%%)")
+    add_model_options(parser)
+    parser.set_defaults(run=run)
+    return parser
+
+
+def run(args: argparse.Namespace) -> int:
+    from optbench.tui import session
+    chain = Path(args.chain) if args.chain else session.demo_scenario()
+    if not chain.exists():
+        raise InputError(chain, "no such file or folder" if args.chain else
+                         "the bundled demo scenario is missing; run `optbench demo`")
+    history = Path(args.history) if args.history else None
+    if history is not None and not history.is_file():
+        raise InputError(history, "no such file")
+    from optbench.tui.app import make_app
+    app = make_app(chain, history, model=args.model, dist=args.dist, mean=args.mean,
+                   spot=args.spot, asof=args.asof, rate=args.rate, div_yield=args.div_yield,
+                   max_spread=args.max_spread)
+    app.run()
+    return 0

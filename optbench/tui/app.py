@@ -1,0 +1,289 @@
+"""The optbench workbench application and its factory, :func:`make_app`.
+
+The app owns the inputs (files, model, market overrides) and runs the core in
+textual thread workers: loading the chain, then the comparison (fit, forecast,
+simulated bands, out-of-sample check), then the headline hedge. A change of inputs
+starts a new run; the previous one is cancelled (exclusive workers) and its late
+results are dropped. Views only format the result objects they are given.
+"""
+from __future__ import annotations
+
+import time
+from pathlib import Path
+
+from textual import on, work
+from textual.app import App
+from textual.binding import Binding
+from textual.message import Message
+from textual.widgets import ProgressBar, Static, TabbedContent
+from textual.worker import get_current_worker
+
+from optbench.errors import InputError
+from optbench.tui import session
+from optbench.tui.dialogs.requests import ExportRequest, OpenRequest, Settings
+from optbench.tui.screens.workbench import VIEWS, WorkbenchScreen
+
+#: which table the export dialog proposes on each view
+_VIEW_TABLE = {"overview": "report", "term": "expiries", "smile": "strikes",
+               "richcheap": "expiries", "hedge": "hedge", "model": "report",
+               "quality": "rejected"}
+
+STEPS = 3
+
+
+class Progress(Message):
+    def __init__(self, token: int, step: int, text: str) -> None:
+        super().__init__()
+        self.token, self.step, self.text = token, step, text
+
+
+class Loaded(Message):
+    """The chain is loaded and validated (the data-quality view can show it)."""
+
+    def __init__(self, token: int, chain) -> None:
+        super().__init__()
+        self.token, self.chain = token, chain
+
+
+class Computed(Message):
+    def __init__(self, token: int, comparison, headline, seconds: float) -> None:
+        super().__init__()
+        self.token, self.comparison, self.headline = token, comparison, headline
+        self.seconds = seconds
+
+
+class Failed(Message):
+    def __init__(self, token: int, error: str) -> None:
+        super().__init__()
+        self.token, self.error = token, error
+
+
+def _describe(err: BaseException) -> str:
+    if isinstance(err, InputError):
+        return str(err)
+    return f"{type(err).__name__}: {err}"
+
+
+class Workbench(App):
+    """optbench: implied against forecast volatility, and what protection costs."""
+
+    CSS_PATH = "app.tcss"
+    TITLE = "optbench"
+    BINDINGS = [
+        *[Binding(key, f"view('{vid}')", title, id=f"view.{vid}") for vid, key, title in VIEWS],
+        Binding("o", "open", "Open", id="app.open"),
+        Binding("m", "settings", "Model & market", id="app.settings"),
+        Binding("r", "recompute", "Recompute", id="app.recompute"),
+        Binding("e", "export", "Export", id="app.export"),
+        Binding("question_mark,f1", "help", "Help", key_display="?", id="app.help"),
+        Binding("escape", "leave_field", "Leave field", show=False, id="app.leave"),
+        Binding("q", "quit", "Quit", id="app.quit"),
+    ]
+
+    def __init__(self, inputs: session.Inputs) -> None:
+        super().__init__()
+        self.inputs = inputs
+        self.comparison = None
+        self.headline = None
+        self.chain = None
+        self.error: str | None = None
+        self._token = 0
+        self.last_export: Path | None = None
+
+    # ----------------------------------------------------------------- set-up
+    def get_default_screen(self) -> WorkbenchScreen:
+        return WorkbenchScreen()
+
+    def on_mount(self) -> None:
+        self.sub_title = self.inputs.label
+        # the first run starts when the workbench screen has mounted its widgets
+
+    def view(self, view_id: str):
+        return self.screen_stack[0].query_one(f"#view-{view_id}")
+
+    # ------------------------------------------------------------------ work
+    def start_compute(self) -> None:
+        self._token += 1
+        self.error = None
+        bar = self.screen_stack[0].query_one("#progress", ProgressBar)
+        bar.update(total=STEPS, progress=0)
+        self._status(f"opening {self.inputs.label} …")
+        self.compute(self.inputs, self._token)
+
+    @work(thread=True, exclusive=True, group="compute", exit_on_error=False)
+    def compute(self, inputs: session.Inputs, token: int) -> None:
+        worker = get_current_worker()
+        started = time.perf_counter()
+        try:
+            self.post_message(Progress(token, 0, "loading and validating the chain"))
+            scenario = session.load(inputs)
+            if worker.is_cancelled:
+                return
+            self.post_message(Loaded(token, scenario.chain))
+            self.post_message(Progress(token, 1, f"fitting {inputs.settings.model} / "
+                                                 f"{inputs.settings.dist}, forecasting, "
+                                                 f"simulating {session.N_PATHS:,} paths"))
+            comparison = session.run_compare(inputs, scenario)
+            if worker.is_cancelled:
+                return
+            self.post_message(Progress(token, 2, "pricing the headline protection"))
+            headline = session.headline_hedge(comparison)
+            if worker.is_cancelled:
+                return
+            self.post_message(Computed(token, comparison, headline,
+                                       time.perf_counter() - started))
+        except Exception as err:  # shown to the user; the app keeps running
+            if not worker.is_cancelled:
+                self.post_message(Failed(token, _describe(err)))
+
+    def _status(self, text: str) -> None:
+        self.screen_stack[0].query_one("#status-text", Static).update(text)
+
+    @on(Progress)
+    def _progress(self, msg: Progress) -> None:
+        if msg.token != self._token:
+            return
+        self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=msg.step)
+        self._status(f"{msg.text} …")
+        if self.comparison is None:
+            self.view("overview").show_loading(f"{msg.text} …")
+
+    @on(Loaded)
+    def _loaded(self, msg: Loaded) -> None:
+        if msg.token != self._token:
+            return
+        self.chain = msg.chain
+        self.view("quality").show(session.quality_dict(msg.chain.quality), msg.chain.rejected,
+                                  str(msg.chain.source))
+
+    @on(Computed)
+    def _computed(self, msg: Computed) -> None:
+        if msg.token != self._token:
+            return
+        self.comparison, self.headline = msg.comparison, msg.headline
+        c = msg.comparison
+        self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=STEPS)
+        self.sub_title = f"{c.underlying} · {c.asof.isoformat()} · spot {c.spot:,.2f}"
+        self._status(f"{c.underlying}: {len(c.expiries)} expiries, model {c.model.name}/"
+                     f"{c.model.dist}; ready in {msg.seconds:.1f} s")
+        self.view("overview").show(c, msg.headline)
+        for vid in ("term", "smile", "richcheap", "model", "hedge"):
+            self.view(vid).show(c)
+        self.view("quality").show(c.quality, c.rejected, c.source)
+
+    @on(Failed)
+    def _failed(self, msg: Failed) -> None:
+        if msg.token != self._token:
+            return
+        self.error = msg.error
+        self._status(f"✗ {msg.error}")
+        self.notify(msg.error, title="Could not open", severity="error", timeout=10)
+        if self.comparison is None:
+            self.view("overview").show_loading(
+                f"✗ {msg.error}\n\nPress o to open another file, m to change the settings.")
+
+    # --------------------------------------------------------------- actions
+    def action_view(self, view_id: str) -> None:
+        tabs = self.screen_stack[0].query_one("#views", TabbedContent)
+        tabs.active = view_id
+
+    @property
+    def active_view(self) -> str:
+        return self.screen_stack[0].query_one("#views", TabbedContent).active
+
+    def action_leave_field(self) -> None:
+        """Escape: leave a text field so the view keys work again."""
+        self.screen.set_focus(None)
+
+    def action_recompute(self) -> None:
+        self.start_compute()
+
+    def action_open(self) -> None:
+        from optbench.tui.dialogs.open_file import OpenDialog
+        start = self.inputs.source.chain
+        start = start.parent if start.is_file() else start.parent if start.exists() else Path.cwd()
+        self.push_screen(OpenDialog(start), self._opened)
+
+    def _opened(self, request: OpenRequest | None) -> None:
+        if request is None:
+            return
+        self.inputs = session.Inputs(source=request, settings=self.inputs.settings)
+        self.sub_title = self.inputs.label
+        self.start_compute()
+
+    def action_settings(self) -> None:
+        from optbench.tui.dialogs.settings import SettingsDialog
+        self.push_screen(SettingsDialog(self.inputs.settings), self._settled)
+
+    def _settled(self, settings: Settings | None) -> None:
+        if settings is None or settings == self.inputs.settings:
+            return
+        self.inputs = self.inputs.with_settings(settings)
+        self.start_compute()
+
+    def action_export(self) -> None:
+        from optbench.tui.dialogs.export import ExportDialog
+        from optbench.tui.export import TABLES
+        if self.comparison is None:
+            self.notify("Nothing to export yet: the comparison has not finished.",
+                        severity="warning")
+            return
+        self.push_screen(ExportDialog(TABLES, _VIEW_TABLE.get(self.active_view, "report"),
+                                      session.export_stem(self.comparison)), self._export)
+
+    def _export(self, request: ExportRequest | None) -> None:
+        if request is not None:
+            self.write_export(request)
+
+    @work(thread=True, exclusive=True, group="export", exit_on_error=False)
+    def write_export(self, request: ExportRequest) -> None:
+        from optbench.tui.export import export
+        try:
+            path = export(self.comparison, self.view("hedge").estimate, request,
+                          expiry=self._expiry_on_screen())
+        except Exception as err:
+            self.call_from_thread(self.notify, _describe(err), title="Export failed",
+                                  severity="error", timeout=10)
+            return
+        self.last_export = path
+        self.call_from_thread(self.notify, f"wrote {path.resolve()}", title="Exported",
+                              timeout=8)
+
+    def _expiry_on_screen(self) -> str | None:
+        if self.active_view == "smile":
+            value = self.view("smile").query_one("#smile-expiry").value
+            return value if isinstance(value, str) else None
+        return self.view("richcheap").expiry
+
+    def action_help(self) -> None:
+        from optbench.tui.screens.help import HelpScreen
+        from optbench.tui.views.smile import SmileView
+        from optbench.tui.widgets.table import SortableTable
+        groups = [("everywhere", list(self.BINDINGS)),
+                  ("tables", list(SortableTable.BINDINGS)),
+                  ("smile", list(SmileView.BINDINGS)),
+                  ("dialogs", [Binding("escape", "", "Cancel the dialog"),
+                               Binding("ctrl+s", "", "Apply / export"),
+                               Binding("tab", "", "Next field")])]
+        self.push_screen(HelpScreen(groups))
+
+
+def make_app(scenario_path: str | Path | None = None, history: str | Path | None = None, *,
+             model: str = "auto", dist: str = "t", mean: str = "constant",
+             spot: float | None = None, asof=None, rate: float | None = None,
+             div_yield: float | None = None, max_spread: float | None = None) -> Workbench:
+    """The workbench on a chain file or scenario folder (default: the bundled demo).
+
+    Parameters
+    ----------
+    scenario_path : chain file or scenario folder; None opens ``chains/ZPHX``.
+    history : price history file, when the chain's folder has no ``history.csv``.
+    model, dist, mean : the volatility model (as ``optbench compare``).
+    spot, asof, rate, div_yield : market overrides (decimals for rate and yield).
+    max_spread : widest bid/ask spread kept, as a fraction of mid (loader filter).
+    """
+    chain = Path(scenario_path) if scenario_path is not None else session.demo_scenario()
+    source = OpenRequest(chain=chain, history=Path(history) if history is not None else None)
+    settings = Settings(model=model, dist=dist, mean=mean, spot=spot, asof=asof, rate=rate,
+                        div_yield=div_yield, max_spread=max_spread)
+    return Workbench(session.Inputs(source=source, settings=settings))

@@ -1,0 +1,47 @@
+"""What the dialogs hand back: small frozen requests, no textual imports."""
+from __future__ import annotations
+
+import datetime as _dt
+from dataclasses import dataclass, field
+from pathlib import Path
+
+
+@dataclass(frozen=True)
+class OpenRequest:
+    """A chain file or scenario folder to open, and optionally its history file."""
+
+    chain: Path
+    history: Path | None = None
+
+
+@dataclass(frozen=True)
+class ExportRequest:
+    """Which table (or the full report) to write, in which format, where."""
+
+    what: str          # "report" or a table id ("expiries", "strikes", "hedge", "rejected", ...)
+    fmt: str           # csv, json, xlsx, md, html
+    path: Path
+
+
+@dataclass(frozen=True)
+class Settings:
+    """Model, market overrides and filters the comparison runs with.
+
+    Rates and yields are continuously compounded decimals; ``None`` means "from the
+    chain / scenario".
+    """
+
+    model: str = "auto"
+    dist: str = "t"
+    mean: str = "constant"
+    spot: float | None = None
+    asof: _dt.date | None = None
+    rate: float | None = None
+    div_yield: float | None = None
+    max_spread: float | None = None
+    extra: dict = field(default_factory=dict)
+
+    def overrides(self) -> dict:
+        """Market overrides for the loaders (only those the user set)."""
+        keys = ("spot", "asof", "rate", "div_yield", "max_spread")
+        return {k: getattr(self, k) for k in keys if getattr(self, k) is not None}

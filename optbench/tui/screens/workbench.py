@@ -1,0 +1,50 @@
+"""The workbench screen: a status line with progress, one tab per view, the footer."""
+from __future__ import annotations
+
+from textual.app import ComposeResult
+from textual.containers import Horizontal
+from textual.screen import Screen
+from textual.widgets import Footer, Header, ProgressBar, Static, TabbedContent, TabPane
+
+from optbench.tui.views.hedge import HedgeView
+from optbench.tui.views.model import ModelView
+from optbench.tui.views.overview import OverviewView
+from optbench.tui.views.quality import QualityView
+from optbench.tui.views.richcheap import RichCheapView
+from optbench.tui.views.smile import SmileView
+from optbench.tui.views.term import TermView
+
+#: (tab id, key, title) in the order of the tabs
+VIEWS: tuple[tuple[str, str, str], ...] = (
+    ("overview", "1", "Overview"),
+    ("term", "2", "Term structure"),
+    ("smile", "3", "Smile"),
+    ("richcheap", "4", "Rich / cheap"),
+    ("hedge", "5", "Hedge planner"),
+    ("model", "6", "Model check"),
+    ("quality", "7", "Data quality"),
+)
+
+_VIEW_CLASSES = {"overview": OverviewView, "term": TermView, "smile": SmileView,
+                 "richcheap": RichCheapView, "hedge": HedgeView, "model": ModelView,
+                 "quality": QualityView}
+
+
+class WorkbenchScreen(Screen):
+    """Holds the views; the app feeds them results."""
+
+    def compose(self) -> ComposeResult:
+        yield Header(show_clock=False)
+        with Horizontal(id="status"):
+            yield ProgressBar(total=3, show_eta=False, id="progress")
+            yield Static("", id="status-text")
+        with TabbedContent(id="views", initial="overview"):
+            for view_id, key, title in VIEWS:
+                with TabPane(f"{key} {title}", id=view_id):
+                    yield _VIEW_CLASSES[view_id](id=f"view-{view_id}")
+        yield Footer()
+
+    def on_mount(self) -> None:
+        start = getattr(self.app, "start_compute", None)
+        if start is not None:
+            start()

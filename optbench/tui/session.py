@@ -1,0 +1,101 @@
+"""The workbench's link to the core: open a scenario, run the comparison, price a
+hedge, write an export. No textual here; each function is one step a worker runs.
+
+Nothing is computed in this module: it calls :func:`optbench.compare`,
+:func:`optbench.hedge` and the report writers with the user's inputs.
+"""
+from __future__ import annotations
+
+import datetime as _dt
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from typing import Any
+
+from optbench.errors import InputError
+from optbench.tui.dialogs.requests import OpenRequest, Settings
+
+#: the simulation behind bands, probabilities and expected payoffs; the same as
+#: ``optbench hedge`` uses, so the planner shows the command's numbers.
+N_PATHS = 20000
+SEED = 7
+
+#: the headline protection on the overview: a 3-month put struck at 90 % of spot
+HEADLINE = {"days": 91, "floor": 0.90, "structure": "put", "portfolio_value": 10_000_000.0,
+            "beta": 1.0}
+
+
+def demo_scenario() -> Path:
+    """The bundled demo scenario folder, ``chains/ZPHX`` beside the package."""
+    return Path(__file__).resolve().parents[2] / "chains" / "ZPHX"
+
+
+@dataclass(frozen=True)
+class Inputs:
+    """Everything a comparison depends on; a change of any field means recompute."""
+
+    source: OpenRequest
+    settings: Settings = field(default_factory=Settings)
+
+    def with_settings(self, settings: Settings) -> "Inputs":
+        return replace(self, settings=settings)
+
+    @property
+    def label(self) -> str:
+        return str(self.source.chain)
+
+
+def check_source(source: OpenRequest) -> None:
+    """Fail early, in one line, on paths that do not exist."""
+    if not source.chain.exists():
+        raise InputError(source.chain, "no such file or folder")
+    if source.history is not None and not source.history.exists():
+        raise InputError(source.history, "no such file")
+
+
+def load(inputs: Inputs):
+    """Load and validate the scenario (step 1): a :class:`~optbench.data.Scenario`
+    with the chain (quality, rejected rows) and the price history."""
+    from optbench.data import load_scenario
+    check_source(inputs.source)
+    overrides = dict(inputs.settings.overrides())
+    if inputs.source.history is not None:
+        overrides["history"] = inputs.source.history
+    return load_scenario(inputs.source.chain, **overrides)
+
+
+def run_compare(inputs: Inputs, scenario):
+    """The full comparison (step 2) on the loaded scenario: a
+    :class:`~optbench.analysis.results.Comparison`."""
+    from optbench import compare
+    s = inputs.settings
+    return compare(scenario, None, model=s.model, dist=s.dist, mean=s.mean,
+                   n_paths=N_PATHS, seed=SEED, **s.extra)
+
+
+def run_hedge(comparison, **request):
+    """A hedge estimate on a finished comparison (the planner and the headline)."""
+    from optbench import hedge
+    return hedge(None, comparison=comparison, n_paths=N_PATHS, seed=SEED, **request)
+
+
+def headline_hedge(comparison):
+    """The overview's headline protection, or None when the chain cannot give it."""
+    try:
+        return run_hedge(comparison, **HEADLINE)
+    except InputError:
+        return None
+
+
+def quality_dict(quality) -> dict:
+    """The loader's Quality (a frozen dataclass) as the comparison's quality dict."""
+    if isinstance(quality, dict):
+        return quality
+    from dataclasses import asdict, is_dataclass
+    if is_dataclass(quality):
+        return asdict(quality)
+    return dict(quality)
+
+
+def export_stem(comparison) -> str:
+    asof = comparison.asof.isoformat() if isinstance(comparison.asof, _dt.date) else "asof"
+    return f"optbench-{comparison.underlying}-{asof}"

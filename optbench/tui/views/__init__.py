@@ -1,0 +1,1 @@
+"""The workbench's views, one per tab; each shows part of a Comparison."""

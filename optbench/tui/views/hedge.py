@@ -1,0 +1,256 @@
+"""The hedge planner: edit the portfolio, beta, floor, expiry and structure and see
+the estimate, the legs, the scenario table and the caution update at once.
+
+The numbers are :func:`optbench.hedge` on the comparison on screen, with the same
+simulation settings as ``optbench hedge`` (so the two agree for the same inputs).
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+from rich.table import Table
+from rich.text import Text
+from textual import on, work
+from textual.app import ComposeResult
+from textual.containers import Grid, Horizontal, Vertical, VerticalScroll
+from textual.message import Message
+from textual.widgets import Input, Label, Select, Static
+from textual.worker import get_current_worker
+
+from optbench.errors import InputError
+from optbench.tui import fmt, session
+
+STRUCTURES = (("protective put", "put"), ("put spread", "put_spread"),
+              ("collar (sell a call)", "collar"))
+
+
+def parse_number(name: str, text: str) -> float:
+    """'10,000,000', '10m', '2.5k', '1.2' -> float; otherwise a one-line InputError."""
+    t = text.strip().replace(",", "").replace("_", "").replace(" ", "").lower()
+    if not t:
+        raise InputError(name, "empty: give a number")
+    scale = 1.0
+    for suffix, factor in (("bn", 1e9), ("b", 1e9), ("m", 1e6), ("k", 1e3)):
+        if t.endswith(suffix):
+            t, scale = t[: -len(suffix)], factor
+            break
+    try:
+        value = float(t) * scale
+    except ValueError:
+        raise InputError(name, f"not a number: {text.strip()!r}") from None
+    if not math.isfinite(value):
+        raise InputError(name, f"not a finite number: {text.strip()!r}")
+    return value
+
+
+def parse_fraction(name: str, text: str) -> float:
+    """A fraction of spot given as '90', '90%' or '0.90' -> 0.90."""
+    t = text.strip()
+    percent = t.endswith("%")
+    value = parse_number(name, t.rstrip("%"))
+    return value / 100.0 if (percent or value > 1.5) else value
+
+
+@dataclass(frozen=True)
+class PlannerInputs:
+    """The planner's form, read into the keyword arguments of :func:`optbench.hedge`."""
+
+    portfolio_value: float
+    beta: float
+    floor: float
+    expiry: str | None
+    structure: str
+    lower_floor: float | None
+    call_strike: float | None
+
+    def kwargs(self) -> dict:
+        out = {"portfolio_value": self.portfolio_value, "beta": self.beta,
+               "floor": self.floor, "structure": self.structure}
+        if self.expiry:
+            out["expiry"] = self.expiry
+        if self.lower_floor is not None:
+            out["lower_floor"] = self.lower_floor
+        if self.call_strike is not None:
+            out["call_strike"] = self.call_strike
+        return out
+
+
+def summary_table(est) -> Table:
+    t = Table(show_header=False, box=None, expand=True, pad_edge=False)
+    t.add_column("what", style="bold", no_wrap=True)
+    t.add_column("value", justify="right", no_wrap=True)
+    t.add_column("note", style="dim")
+    strikes = " / ".join(f"{k:g}" for k in est.strikes)
+    t.add_row("Structure", est.structure.replace("_", " "), f"strikes {strikes}, {fmt.date(est.expiry)} "
+              f"({est.calendar_days} days)")
+    t.add_row("Contracts", f"{est.contracts:,}", f"× {est.multiplier:g} on spot {fmt.num(est.spot)}")
+    t.add_row("Premium paid", fmt.money(est.premium_paid), "ask for bought, bid for sold legs")
+    t.add_row("Premium at mid", fmt.money(est.premium_mid), "")
+    t.add_row("Cost of portfolio", fmt.pct_sign(est.cost_pct, 2),
+              f"{fmt.pct_sign(est.cost_pct_annual, 2)} a year")
+    t.add_row("Value at forecast vol", fmt.money(est.premium_at_forecast), "the legs priced at the model's vol")
+    t.add_row("Model expected payoff", fmt.money(est.expected_payoff),
+              f"{est.n_paths:,} simulated paths of the fitted model")
+    t.add_row("Paid over expected", fmt.money(est.overpay, signed=True), "premium paid − expected payoff")
+    t.add_row("Chance it pays", fmt.pct_sign(est.prob_payoff, 0), "share of paths with a payoff")
+    t.add_row("Breakeven", fmt.num(est.breakeven), f"{fmt.pct_sign(est.breakeven_move, 1)} from spot")
+    t.add_row("Rolling for a year", fmt.money(est.annual_roll_cost),
+              f"{fmt.pct_sign(est.annual_roll_cost_pct, 2)} of the portfolio")
+    return t
+
+
+def legs_table(est) -> Table:
+    t = Table(expand=True, header_style="bold", title="Legs", title_justify="left")
+    for c in ("Side", "Type", "Strike", "Qty", "Bid", "Ask", "Mid IV %", "Fc %", "Paid"):
+        t.add_column(c, justify="left" if c in ("Side", "Type") else "right", no_wrap=True)
+    for leg in est.legs:
+        t.add_row(leg.side, leg.type, f"{leg.strike:g}", f"{leg.quantity:,}", fmt.num(leg.bid),
+                  fmt.num(leg.ask), fmt.pct(leg.iv_mid), fmt.pct(leg.forecast_vol),
+                  fmt.money(leg.premium_paid, signed=True))
+    return t
+
+
+def scenario_table(est) -> Table:
+    t = Table(expand=True, header_style="bold", title="Portfolio P&L at expiry",
+              title_justify="left")
+    for c in ("Move", "Level", "Unhedged", "Hedged"):
+        t.add_column(c, justify="right", no_wrap=True)
+    for s in est.scenarios:
+        better = s["hedged"] > s["unhedged"]
+        t.add_row(f"{s['move']:+.0%}", fmt.num(s.get("level")), fmt.money(s["unhedged"], True),
+                  Text(fmt.money(s["hedged"], True), style="green" if better else ""))
+    return t
+
+
+class HedgeView(Horizontal):
+    """Form on the left, estimate on the right."""
+
+    class Ready(Message):
+        def __init__(self, estimate, inputs: PlannerInputs) -> None:
+            super().__init__()
+            self.estimate = estimate
+            self.inputs = inputs
+
+    class Failed(Message):
+        def __init__(self, error: str) -> None:
+            super().__init__()
+            self.error = error
+
+    def __init__(self, **kwargs) -> None:
+        super().__init__(**kwargs)
+        self._comparison = None
+        self.estimate = None
+        self._timer = None
+
+    def compose(self) -> ComposeResult:
+        with VerticalScroll(id="hedge-form"):
+            yield Label("Portfolio value")
+            yield Input("10,000,000", id="hedge-portfolio")
+            yield Label("Beta to the underlying")
+            yield Input("1.0", id="hedge-beta")
+            yield Label("Floor, % of spot (put strike)")
+            yield Input("90", id="hedge-floor")
+            yield Label("Expiry")
+            yield Select([], id="hedge-expiry", allow_blank=True, prompt="nearest 3 months")
+            yield Label("Structure")
+            yield Select(STRUCTURES, value="put", allow_blank=False, id="hedge-structure")
+            yield Label("Put spread: sold put, % of spot")
+            yield Input("", placeholder="floor − 10", id="hedge-lower")
+            yield Label("Collar: sold call strike")
+            yield Input("", placeholder="zero-cost call", id="hedge-call")
+            yield Static("", id="hedge-error", classes="form-error")
+        with VerticalScroll(id="hedge-result"):
+            yield Static("Waiting for the comparison…", id="hedge-summary")
+            yield Static("", id="hedge-legs")
+            yield Static("", id="hedge-scenarios")
+            yield Static("", id="hedge-notes", classes="note")
+            yield Static("", id="hedge-caution", classes="caution")
+
+    def show(self, comparison) -> None:
+        self._comparison = comparison
+        select = self.query_one("#hedge-expiry", Select)
+        keep = select.value if isinstance(select.value, str) else None
+        options = [(f"{fmt.date(r.expiry)} ({fmt.tenor(r.calendar_days)})", r.expiry.isoformat())
+                   for r in comparison.expiries]
+        with self.prevent(Select.Changed):
+            select.set_options(options)
+            if keep in [v for _, v in options]:
+                select.value = keep
+        self.recalculate(now=True)
+
+    def read_form(self) -> PlannerInputs:
+        def text(wid: str) -> str:
+            return self.query_one(wid, Input).value
+
+        expiry = self.query_one("#hedge-expiry", Select).value
+        lower = text("#hedge-lower").strip()
+        call = text("#hedge-call").strip()
+        return PlannerInputs(
+            portfolio_value=parse_number("portfolio value", text("#hedge-portfolio")),
+            beta=parse_number("beta", text("#hedge-beta")),
+            floor=parse_fraction("floor", text("#hedge-floor")),
+            expiry=expiry if isinstance(expiry, str) else None,
+            structure=str(self.query_one("#hedge-structure", Select).value),
+            lower_floor=parse_fraction("sold put", lower) if lower else None,
+            call_strike=parse_number("call strike", call) if call else None)
+
+    @on(Input.Changed)
+    @on(Select.Changed)
+    def _edited(self, event) -> None:
+        event.stop()
+        self.recalculate()
+
+    def recalculate(self, now: bool = False) -> None:
+        """Re-read the form and price again (after a short pause while typing)."""
+        if self._timer is not None:
+            self._timer.stop()
+            self._timer = None
+        if now:
+            self._start()
+        else:
+            self._timer = self.set_timer(0.15, self._start)
+
+    def _start(self) -> None:
+        self._timer = None
+        if self._comparison is None:
+            return
+        error = self.query_one("#hedge-error", Static)
+        try:
+            inputs = self.read_form()
+        except InputError as err:
+            error.update(f"✗ {err}")
+            self.add_class("stale")
+            return
+        error.update("")
+        self.price(self._comparison, inputs)
+
+    @work(thread=True, exclusive=True, group="hedge")
+    def price(self, comparison, inputs: PlannerInputs) -> None:
+        worker = get_current_worker()
+        try:
+            estimate = session.run_hedge(comparison, **inputs.kwargs())
+        except InputError as err:
+            if not worker.is_cancelled:
+                self.post_message(self.Failed(str(err)))
+            return
+        if not worker.is_cancelled:
+            self.post_message(self.Ready(estimate, inputs))
+
+    @on(Ready)
+    def _ready(self, message: Ready) -> None:
+        self.estimate = message.estimate
+        est = message.estimate
+        self.remove_class("stale")
+        self.query_one("#hedge-error", Static).update("")
+        self.query_one("#hedge-summary", Static).update(summary_table(est))
+        self.query_one("#hedge-legs", Static).update(legs_table(est))
+        self.query_one("#hedge-scenarios", Static).update(scenario_table(est))
+        notes = [n for n in (est.collar_note, *est.warnings) if n]
+        self.query_one("#hedge-notes", Static).update("\n".join(notes))
+        self.query_one("#hedge-caution", Static).update(f"⚠ {est.caution}")
+
+    @on(Failed)
+    def _failed(self, message: Failed) -> None:
+        self.add_class("stale")
+        self.query_one("#hedge-error", Static).update(f"✗ {message.error}")

@@ -1,0 +1,114 @@
+"""The model check: parameters with standard errors, daily returns with ±k sigma
+bands and the out-of-sample surprises, band counts against expected, the residuals."""
+from __future__ import annotations
+
+import numpy as np
+from rich.table import Table
+from textual.app import ComposeResult
+from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.widgets import Static
+
+from optbench.tui import fmt
+from optbench.tui.widgets.plot import BarChart, CellPlot, PlotSpec, Series, to_day_number
+
+
+def params_table(model) -> Table:
+    t = Table(title=f"{model.name}, {model.dist} innovations", title_justify="left",
+              header_style="bold", expand=True)
+    t.add_column("Parameter")
+    t.add_column("Estimate", justify="right")
+    t.add_column("Std error", justify="right")
+    for name, value in model.params.items():
+        se = (model.std_errors or {}).get(name)
+        t.add_row(name, f"{value:.4g}", "–" if se is None else f"{se:.2g}")
+    t.add_row("log-likelihood", fmt.num(model.loglik, 1), "")
+    t.add_row("AIC / BIC", f"{fmt.num(model.aic, 1)} / {fmt.num(model.bic, 1)}", "")
+    t.add_row("persistence", fmt.num(model.persistence, 4), "")
+    t.add_row("half-life, trading days", fmt.num(model.half_life_days, 1), "")
+    t.add_row("long-run vol %", fmt.pct(model.long_run_vol), "")
+    t.add_row("daily returns used", f"{model.n_obs:,}", "")
+    return t
+
+
+def counts_table(bt: dict | None) -> Table:
+    t = Table(title="Out of sample", title_justify="left", header_style="bold", expand=True)
+    t.add_column("Check")
+    t.add_column("Seen", justify="right")
+    t.add_column("Expected", justify="right")
+    t.add_column("Zone / p", justify="right")
+    if not bt:
+        t.add_row("no out-of-sample check in this comparison", "", "", "")
+        return t
+    k = bt.get("band_k", 3)
+    t.add_row(f"days outside ±{k:g}σ (of {bt.get('n_out', '?')})", str(bt.get("outside_band", "–")),
+              f"{fmt.num(bt.get('expected_model'), 1)} model / {fmt.num(bt.get('expected_normal'), 1)} normal",
+              "")
+    for v in bt.get("var", []) or []:
+        zone = v.get("zone", "")
+        mark = {"green": "● green", "yellow": "◐ yellow", "red": "○ red"}.get(zone, zone)
+        t.add_row(f"VaR {v.get('level', 0):.0%} exceedances", str(v.get("exceedances", "–")),
+                  fmt.num(v.get("expected"), 1) if "expected" in v else "",
+                  f"{mark} p={fmt.num(v.get('kupiec_p'), 3)}")
+    res = bt.get("residuals") or {}
+    if res:
+        t.add_row("residual skew / excess kurtosis",
+                  f"{fmt.num(res.get('skew'), 2)} / {fmt.num(res.get('excess_kurtosis'), 2)}", "", "")
+    return t
+
+
+def returns_plot(comparison) -> PlotSpec:
+    h = comparison.history
+    bt = comparison.backtest or {}
+    if h is None or len(h) == 0:
+        return PlotSpec(title="no price history in this comparison")
+    k = float(bt.get("band_k", 3))
+    x = to_day_number(h["date"].to_numpy())
+    ret = h["ret"].to_numpy(float) * 100
+    band = h["sigma"].to_numpy(float) * 100 * k
+    series = [Series(f"±{k:g}σ (model)", x, -band, kind="band", y2=band, color="grey23"),
+              Series("daily log return %", x, ret, color="bright_white")]
+    surprises = bt.get("surprises") or []
+    if surprises:
+        dates = to_day_number([s["date"] for s in surprises])
+        where = np.searchsorted(x, dates).clip(0, len(x) - 1)
+        series.append(Series("out-of-sample surprises", dates, ret[where], kind="points",
+                             color="bright_red", marker="✖"))
+    split = bt.get("split")
+    extra = ((("┆", f"out of sample from {split}"),) if split else ())
+    return PlotSpec(title=f"{comparison.underlying} daily log returns, % (±{k:g}σ band "
+                          "from the model's conditional vol)",
+                    series=tuple(series), x_is_date=True, y_format="{:.1f}",
+                    extra_legend=extra)
+
+
+class ModelView(Horizontal):
+    def compose(self) -> ComposeResult:
+        with VerticalScroll(id="model-left"):
+            yield Static("", id="model-params")
+            yield Static("", id="model-counts")
+            yield Static("", id="model-surprises")
+        with Vertical(id="model-right"):
+            yield CellPlot(id="model-returns")
+            yield BarChart(id="model-hist")
+
+    def show(self, comparison) -> None:
+        self.query_one("#model-params", Static).update(params_table(comparison.model))
+        bt = comparison.backtest
+        self.query_one("#model-counts", Static).update(counts_table(bt))
+        surprises = (bt or {}).get("surprises") or []
+        st = Table(title="Largest out-of-sample surprises", title_justify="left",
+                   header_style="bold", expand=True)
+        st.add_column("Date")
+        st.add_column("z", justify="right")
+        for s in surprises[:8]:
+            st.add_row(str(s["date"]), f"{s['z']:+.2f}")
+        self.query_one("#model-surprises", Static).update(st)
+        self.query_one("#model-returns", CellPlot).show(returns_plot(comparison))
+        h = comparison.history
+        if h is not None and "z" in h:
+            z = h["z"].to_numpy(float)
+            z = z[np.isfinite(z)]
+            counts, edges = np.histogram(z, bins=np.linspace(-6, 6, 25))
+            self.query_one("#model-hist", BarChart).show(
+                edges, counts, title="Standardised residuals (ret − μ)/σ, whole history",
+                x_format="{:+.0f}")

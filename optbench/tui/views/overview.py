@@ -1,0 +1,111 @@
+"""Overview: the headline answer, the verdict per expiry, the state of data and model."""
+from __future__ import annotations
+
+from rich.table import Table
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.widgets import Static
+
+from optbench.tui import fmt
+
+
+def headline_text(comparison, estimate) -> Text:
+    """'3-month 90 % protection costs 2.1 % of the portfolio ...' from the results."""
+    text = Text()
+    if estimate is None:
+        text.append("No headline protection: the chain has no put near 90 % of spot "
+                    "around three months.", style="bold")
+        return text
+    tenor = fmt.tenor(estimate.calendar_days)
+    floor = estimate.request.floor
+    text.append(f"{tenor} {floor:.0%} protection ", style="bold")
+    text.append(f"(put {estimate.strike:g}, {fmt.date(estimate.expiry)}) costs ")
+    text.append(f"{fmt.pct_sign(estimate.cost_pct, 2)}", style="bold")
+    text.append(" of the portfolio at the ask ")
+    text.append(f"({fmt.money(estimate.premium_paid)} on {fmt.money(estimate.request.portfolio_value)}); ")
+    text.append("the forecast vol values it at ")
+    text.append(fmt.money(estimate.premium_at_forecast), style="bold")
+    text.append(" and the model expects it to pay back ")
+    text.append(fmt.money(estimate.expected_payoff), style="bold")
+    text.append(f" — paying {fmt.money(estimate.overpay, signed=True)} over the model's "
+                "expected payoff.\n")
+    row = None
+    for r in comparison.expiries:
+        if r.expiry == estimate.expiry:
+            row = r
+    if row is not None:
+        text.append(f"At {fmt.date(row.expiry)} the market charges ")
+        text.append(f"{fmt.pct(row.atm_iv)}%", style="bold")
+        text.append(" ATM implied vol against a forecast of ")
+        text.append(f"{fmt.pct(row.forecast_vol)}%", style="bold")
+        text.append(f" (band {fmt.pct(row.forecast_low)}–{fmt.pct(row.forecast_high)}): ")
+        text.append_text(fmt.verdict(row.verdict))
+        text.append(f", {fmt.pct(row.iv_minus_forecast, signed=True)} vol points.")
+    return text
+
+
+def verdict_table(comparison) -> Table:
+    table = Table(title="Implied against forecast, per expiry", title_justify="left",
+                  expand=True, header_style="bold")
+    for col, just in (("Expiry", "left"), ("Tenor", "right"), ("ATM IV %", "right"),
+                      ("Forecast %", "right"), ("Band %", "right"), ("IV − fc, pts", "right"),
+                      ("Verdict", "left")):
+        table.add_column(col, justify=just, no_wrap=True)
+    for r in comparison.expiries:
+        table.add_row(fmt.date(r.expiry), fmt.tenor(r.calendar_days), fmt.pct(r.atm_iv),
+                      fmt.pct(r.forecast_vol),
+                      f"{fmt.pct(r.forecast_low)}–{fmt.pct(r.forecast_high)}",
+                      fmt.pct(r.iv_minus_forecast, signed=True), fmt.verdict(r.verdict))
+    return table
+
+
+def state_text(comparison) -> Text:
+    q = comparison.quality
+    m = comparison.model
+    text = Text()
+    text.append("Data  ", style="bold")
+    rejected = sum((q.get("rejected") or {}).values())
+    text.append(f"{comparison.underlying} on {fmt.date(comparison.asof)}, spot "
+                f"{fmt.num(comparison.spot)}; {q.get('rows_used', 0)} of {q.get('rows_in', 0)} "
+                f"quote rows used, {rejected} rejected (see Data quality). "
+                f"Rate {fmt.pct(comparison.rate, 2)}%, dividend yield "
+                f"{fmt.pct(comparison.div_yield, 2)}%, {comparison.style} exercise.\n")
+    text.append("Model ", style="bold")
+    text.append(f"{m.name} with {m.dist} innovations on {m.n_obs} daily returns; "
+                f"persistence {fmt.num(m.persistence, 3)}, half-life "
+                f"{fmt.num(m.half_life_days, 0)} trading days, long-run vol "
+                f"{fmt.pct(m.long_run_vol)}%. ")
+    text.append("converged" if m.converged else "NOT converged",
+                style="green" if m.converged else "bold red")
+    if m.fallback_reason:
+        text.append(f" (fallback: {m.fallback_reason})", style="yellow")
+    bt = comparison.backtest
+    if bt:
+        text.append(f"\nCheck ", style="bold")
+        text.append(f"out of sample from {bt.get('split', '?')}: {bt.get('outside_band', '?')} "
+                    f"of {bt.get('n_out', '?')} days outside ±{bt.get('band_k', 3)}σ, "
+                    f"{fmt.num(bt.get('expected_model'), 1)} expected by the model "
+                    f"({fmt.num(bt.get('expected_normal'), 1)} if normal). See Model check.")
+    for w in comparison.warnings:
+        text.append(f"\n! {w}", style="yellow")
+    return text
+
+
+class OverviewView(VerticalScroll):
+    """The first screen: the answer in one paragraph, then what it rests on."""
+
+    def compose(self) -> ComposeResult:
+        yield Static("Loading the scenario…", id="ov-headline", classes="headline")
+        yield Static("", id="ov-verdicts")
+        yield Static("", id="ov-state")
+        yield Static("", id="ov-caution", classes="caution")
+
+    def show(self, comparison, estimate) -> None:
+        self.query_one("#ov-headline", Static).update(headline_text(comparison, estimate))
+        self.query_one("#ov-verdicts", Static).update(verdict_table(comparison))
+        self.query_one("#ov-state", Static).update(state_text(comparison))
+        self.query_one("#ov-caution", Static).update(f"⚠ {comparison.caution}")
+
+    def show_loading(self, message: str) -> None:
+        self.query_one("#ov-headline", Static).update(message)

@@ -1,0 +1,44 @@
+"""Data quality: what the loader did with every input row."""
+from __future__ import annotations
+
+from rich.table import Table
+from textual.app import ComposeResult
+from textual.containers import Vertical
+from textual.widgets import Static
+
+from optbench.tui.widgets.table import SortableTable
+
+
+def quality_summary(quality: dict, source: str) -> Table:
+    t = Table(title=f"Ingestion report — {source}", title_justify="left", header_style="bold",
+              expand=True)
+    t.add_column("Rows")
+    t.add_column("Count", justify="right")
+    t.add_row("read from the file", str(quality.get("rows_in", 0)))
+    t.add_row("used", str(quality.get("rows_used", 0)))
+    for reason, n in sorted((quality.get("rejected") or {}).items(), key=lambda kv: -kv[1]):
+        t.add_row(f"  rejected: {reason}", str(n))
+    for flag, n in sorted((quality.get("warnings") or {}).items(), key=lambda kv: -kv[1]):
+        t.add_row(f"  kept, flagged {flag}", str(n))
+    return t
+
+
+class QualityView(Vertical):
+    def compose(self) -> ComposeResult:
+        yield Static("Loading…", id="dq-summary")
+        yield Static("Rejected rows (line numbers are the input file's):", classes="section-title")
+        yield SortableTable(id="dq-rejected")
+
+    def show(self, quality: dict, rejected, source: str) -> None:
+        self.query_one("#dq-summary", Static).update(quality_summary(quality, source))
+        table = self.query_one("#dq-rejected", SortableTable)
+        if rejected is None or len(rejected) == 0:
+            table.set_rows((("none", "Rejected rows"),), [("none",)], [("no rows were rejected",)])
+            return
+        first = [c for c in ("line", "reason", "detail") if c in rejected.columns]
+        rest = [c for c in rejected.columns if c not in first]
+        cols = first + rest
+        values = rejected[cols].astype(object).where(rejected[cols].notna(), None)
+        raw = [tuple(r) for r in values.itertuples(index=False, name=None)]
+        shown = [tuple("" if v is None else str(v) for v in r) for r in raw]
+        table.set_rows([(c, c) for c in cols], raw, shown)

@@ -1,0 +1,124 @@
+"""The smile per expiry: bid / mid / ask implied vols by strike, the fitted smile and
+the forecast level."""
+from __future__ import annotations
+
+import numpy as np
+from textual import on
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical
+from textual.widgets import Label, Select, Static
+
+from optbench.tui import fmt
+from optbench.tui.widgets.plot import CellPlot, PlotSpec, Series
+
+_SVI_KEYS = ("a", "b", "rho", "m", "sigma", "t")
+
+
+def fitted_curve(row, strikes: np.ndarray) -> np.ndarray | None:
+    """The expiry's fitted smile at ``strikes``, evaluated by the core's SviFit."""
+    smile = row.smile or {}
+    params = smile.get("params", smile)
+    if not all(k in params for k in _SVI_KEYS):
+        return None
+    from optbench.analysis.smile import SviFit
+    fit = SviFit(**{k: float(params[k]) for k in _SVI_KEYS}, rmse_iv=float("nan"),
+                 n_points=0, converged=True, message="", method=str(smile.get("method", "svi")))
+    return fit.iv(np.log(strikes / row.forward))
+
+
+def smile_plot(comparison, row) -> PlotSpec:
+    table = comparison.strikes.get(row.expiry)
+    if table is None or len(table) == 0:
+        return PlotSpec(title=f"{fmt.date(row.expiry)}: no quotes used")
+    # out-of-the-money side of each strike: puts below the forward, calls above
+    otm = np.where(table["strike"].to_numpy() < row.forward, ~table["is_call"].to_numpy(),
+                   table["is_call"].to_numpy())
+    t = table[otm]
+    k = t["strike"].to_numpy(float)
+    series = [
+        Series("bid IV", k, t["iv_bid"].to_numpy(float) * 100, kind="points", color="cyan",
+               marker="˅"),
+        Series("ask IV", k, t["iv_ask"].to_numpy(float) * 100, kind="points", color="red",
+               marker="˄"),
+        Series("mid IV", k, t["iv_mid"].to_numpy(float) * 100, kind="points", color="white",
+               marker="•"),
+    ]
+    grid = np.linspace(k.min(), k.max(), 200)
+    curve = fitted_curve(row, grid)
+    if curve is not None:
+        series.insert(0, Series(f"fitted smile ({row.smile.get('method', 'svi')})", grid,
+                                curve * 100, color="yellow"))
+    series.append(Series(f"forecast {fmt.pct(row.forecast_vol)}%", [k.min(), k.max()],
+                         [row.forecast_vol * 100] * 2, color="bright_blue"))
+    series.append(Series("forecast band", [k.min(), k.max()], [row.forecast_low * 100] * 2,
+                         kind="band", y2=[row.forecast_high * 100] * 2, color="grey23"))
+    # draw the band first so everything sits on top of it
+    series = [series[-1]] + series[:-1]
+    return PlotSpec(
+        title=(f"Smile {fmt.date(row.expiry)} ({fmt.tenor(row.calendar_days)}), implied vol % "
+               f"by strike, out-of-the-money quotes; forward {fmt.num(row.forward)}"),
+        series=tuple(series), x_format="{:.0f}",
+        extra_legend=(("|", f"ATM {fmt.pct(row.atm_iv)}%"),))
+
+
+class SmileView(Vertical):
+    BINDINGS = [
+        Binding("left_square_bracket", "step(-1)", "Prev expiry", id="smile.prev"),
+        Binding("right_square_bracket", "step(1)", "Next expiry", id="smile.next"),
+    ]
+
+    def __init__(self, **kwargs) -> None:
+        super().__init__(**kwargs)
+        self._comparison = None
+
+    def compose(self) -> ComposeResult:
+        with Horizontal(classes="toolbar"):
+            yield Label("Expiry ", classes="toolbar-label")
+            yield Select([], id="smile-expiry", allow_blank=True, prompt="expiry")
+            yield Static("", id="smile-facts", classes="toolbar-facts")
+        yield CellPlot(id="smile-plot")
+
+    def show(self, comparison) -> None:
+        self._comparison = comparison
+        select = self.query_one("#smile-expiry", Select)
+        options = [(f"{fmt.date(r.expiry)}  {fmt.tenor(r.calendar_days)}", r.expiry.isoformat())
+                   for r in comparison.expiries]
+        keep = select.value if isinstance(select.value, str) else None
+        select.set_options(options)
+        values = [v for _, v in options]
+        if values:
+            default = keep if keep in values else values[min(len(values) - 1,
+                                                             _nearest(comparison, 91))]
+            select.value = default
+            self._draw(default)
+
+    def _draw(self, iso: str) -> None:
+        if self._comparison is None:
+            return
+        row = self._comparison.expiry_row(iso)
+        self.query_one("#smile-plot", CellPlot).show(smile_plot(self._comparison, row))
+        smile = row.smile or {}
+        self.query_one("#smile-facts", Static).update(
+            f"  ATM {fmt.pct(row.atm_iv)}%  25Δ put {fmt.pct(row.iv_25d_put)}%  25Δ call "
+            f"{fmt.pct(row.iv_25d_call)}%  RR {fmt.pct(row.rr_25d, signed=True)}  fit rmse "
+            f"{fmt.pct(smile.get('rmse', smile.get('rmse_iv')), 2)} pts  "
+            f"{row.arbitrage_flags} arbitrage flags")
+
+    @on(Select.Changed, "#smile-expiry")
+    def _changed(self, event: Select.Changed) -> None:
+        if isinstance(event.value, str):
+            self._draw(event.value)
+
+    def action_step(self, step: int) -> None:
+        select = self.query_one("#smile-expiry", Select)
+        if self._comparison is None or not isinstance(select.value, str):
+            return
+        values = [r.expiry.isoformat() for r in self._comparison.expiries]
+        i = values.index(select.value) + step
+        select.value = values[max(0, min(len(values) - 1, i))]
+
+
+def _nearest(comparison, days: int) -> int:
+    gaps = [abs(r.calendar_days - days) for r in comparison.expiries]
+    return int(np.argmin(gaps)) if gaps else 0
