@@ -275,8 +275,8 @@ def reference_forecast_vol(history: DemoHistory, trading_days: np.ndarray) -> np
     :math:`\\sqrt{252\\,\\tfrac1h\\sum_{j=1}^h E_T[\\sigma^2_{T+j}]}`
     (Glosten, Jagannathan and Runkle 1993; Hull, *Options, Futures, and Other
     Derivatives*, ch. 23, for the GARCH(1,1) term structure). The long-run level is
-    the stationary variance of the regime mix, :math:`(1-\pi)\sigma_c^2 +
-    \pi\sigma_u^2` with :math:`\pi = p_{cu}/(p_{cu}+p_{uc})` (Hamilton 1989);
+    the stationary variance of the regime mix, :math:`(1-\\pi)\\sigma_c^2 +
+    \\pi\\sigma_u^2` with :math:`\\pi = p_{cu}/(p_{cu}+p_{uc})` (Hamilton 1989);
     :math:`P` is :data:`REFERENCE_PERSISTENCE`, the persistence a single-regime fit
     reads into level shifts (Lamoureux and Lastrapes 1990); the next-day variance is
     re-filtered over the whole history with these values.
