@@ -1,2 +1,44 @@
 """Black-Scholes-Merton prices and greeks, implied volatilities, implied forwards and
-American exercise. Pure numpy: arrays in, arrays out; no printing, no UI."""
+American exercise. Pure numpy: arrays in, arrays out; no printing, no UI.
+
+Names are imported on first use so that ``import optbench.pricing`` stays cheap.
+"""
+from __future__ import annotations
+
+import importlib
+from typing import Any
+
+_NAMES: dict[str, str] = {
+    "bsm_price": "optbench.pricing.bsm",
+    "black_price": "optbench.pricing.bsm",
+    "bsm_greeks": "optbench.pricing.greeks",
+    "black_greeks": "optbench.pricing.greeks",
+    "Greeks": "optbench.pricing.greeks",
+    "implied_vol": "optbench.pricing.implied",
+    "implied_vol_with_status": "optbench.pricing.implied",
+    "black_implied_vol_with_status": "optbench.pricing.implied",
+    "STATUS_NAMES": "optbench.pricing.implied",
+    "status_name": "optbench.pricing.implied",
+    "american_price": "optbench.pricing.american",
+    "american_implied_vol": "optbench.pricing.american",
+    "american_implied_vol_with_status": "optbench.pricing.american",
+    "implied_forwards": "optbench.pricing.forwards",
+    "parity_pairs": "optbench.pricing.forwards",
+    "quote_implied_vols": "optbench.pricing.quotes",
+    "otm_quotes": "optbench.pricing.quotes",
+}
+
+__all__ = sorted(_NAMES)
+
+
+def __getattr__(name: str) -> Any:
+    module = _NAMES.get(name)
+    if module is None:
+        raise AttributeError(f"module 'optbench.pricing' has no attribute {name!r}")
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return __all__

@@ -1,0 +1,187 @@
+r"""Implied forward and discount factor per expiry from put-call parity.
+
+Notes
+-----
+For European options on one expiry, put-call parity (Hull, *Options, Futures, and
+Other Derivatives*, ch. 11; Stoll 1969) gives for every strike
+
+.. math::  C(K) - P(K) = D\,(F - K),
+
+a straight line in :math:`K` with slope :math:`-D` and intercept :math:`D F`.
+optbench takes, per expiry, the strikes where both the call and the put are quoted
+on both sides (bid > 0, ask >= bid), keeps the ``n_near`` of them nearest the money
+(smallest :math:`|C - P|`, where parity quotes are tightest), and fits the line by
+weighted least squares with weights :math:`1/(\text{spread}_C^2 + \text{spread}_P^2)`,
+dropping pairs whose residual is more than three robust standard deviations
+(1.4826 x the median absolute residual) from the line and refitting (a common-practice
+trimming rule). The fitted discount is kept when it is well determined (its rate
+:math:`-\ln D / t` has a standard error under 50 basis points and lies in a sensible
+range); otherwise the given rate sets :math:`D = e^{-rt}` and the forward is the
+weighted median of :math:`K + (C-P)/D`. The implied carry (dividend yield plus borrow)
+is :math:`q = r - \ln(F/S)/t`. With fewer than ``min_pairs`` usable pairs, or a
+forward outside half to twice spot, the expiry falls back to the given rate and
+yield, :math:`F = S e^{(r-q)t}`, and says so in ``source``.
+
+Parity is exact for European exercise only; for American chains the fitted forward
+is an approximation (the early-exercise premia of the call and the put differ), so
+``implied_forwards`` uses the given rate and yield for expiries whose quotes are
+all American unless ``american="parity"`` is passed.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+FORWARD_COLUMNS = ["expiry", "t", "forward", "discount", "rate", "carry", "source",
+                   "discount_source", "n_pairs"]
+
+
+def _weighted_median(values: np.ndarray, weights: np.ndarray) -> float:
+    order = np.argsort(values)
+    v, w = values[order], weights[order]
+    c = np.cumsum(w)
+    return float(v[np.searchsorted(c, 0.5 * c[-1])])
+
+
+def _wls_line(k, y, w):
+    """Weighted least squares y = a + b k; returns a, b, se_b, residuals."""
+    sw = w.sum()
+    km = (w * k).sum() / sw
+    ym = (w * y).sum() / sw
+    sxx = (w * (k - km) ** 2).sum()
+    if sxx <= 0:
+        return np.nan, np.nan, np.inf, np.full_like(y, np.nan)
+    b = (w * (k - km) * (y - ym)).sum() / sxx
+    a = ym - b * km
+    res = y - a - b * k
+    n = k.size
+    if n > 2:
+        s2 = (w * res ** 2).sum() / (n - 2)
+        se_b = np.sqrt(s2 / sxx)
+    else:
+        se_b = np.inf
+    return a, b, se_b, res
+
+
+def parity_pairs(quotes: pd.DataFrame) -> pd.DataFrame:
+    """Strikes of each expiry where the call and the put are both quoted two-sided.
+
+    Returns a frame with ``expiry, t, strike, c_mid, p_mid, c_spread, p_spread``.
+    """
+    q = quotes
+    good = (q["bid"] > 0) & (q["ask"] >= q["bid"]) & np.isfinite(q["bid"]) & np.isfinite(q["ask"])
+    q = q.loc[good, ["expiry", "t", "strike", "is_call", "bid", "ask"]].copy()
+    q["mid_"] = 0.5 * (q["bid"] + q["ask"])
+    q["spread_"] = q["ask"] - q["bid"]
+    # one quote per (expiry, strike, side): the tightest, if duplicates slipped through
+    q = q.sort_values("spread_").drop_duplicates(["expiry", "strike", "is_call"])
+    calls = q[q["is_call"]].set_index(["expiry", "strike"])
+    puts = q[~q["is_call"]].set_index(["expiry", "strike"])
+    both = calls[["t", "mid_", "spread_"]].join(
+        puts[["mid_", "spread_"]], how="inner", lsuffix="_c", rsuffix="_p")
+    both = both.reset_index().rename(columns={"mid__c": "c_mid", "mid__p": "p_mid",
+                                              "spread__c": "c_spread",
+                                              "spread__p": "p_spread"})
+    return both[["expiry", "t", "strike", "c_mid", "p_mid", "c_spread", "p_spread"]]
+
+
+def implied_forwards(quotes: pd.DataFrame, spot: float, rate: float, div_yield: float,
+                     *, n_near: int = 10, min_pairs: int = 3,
+                     american: str = "given") -> pd.DataFrame:
+    """Implied forward, discount, rate and carry for every expiry of a chain.
+
+    Parameters
+    ----------
+    quotes : canonical quotes frame (columns ``expiry, strike, is_call, bid, ask, t``;
+        ``style`` optional).
+    spot : underlying price; rate, div_yield : the given continuously compounded rate
+        and yield (decimals), used where parity cannot be trusted.
+    n_near : pairs nearest the money used in the fit.
+    min_pairs : fewer usable pairs than this -> the given rate and yield.
+    american : ``"given"`` (default: all-American expiries use the given rate and
+        yield) or ``"parity"`` (fit them anyway, as an approximation).
+
+    Returns
+    -------
+    DataFrame, one row per expiry sorted by ``t``: ``expiry, t, forward, discount,
+    rate`` (decimal, -ln(D)/t), ``carry`` (implied yield + borrow, decimal),
+    ``source`` (``"parity"`` or ``"given"``), ``discount_source`` (``"parity"`` or
+    ``"given"``), ``n_pairs`` (pairs kept in the fit).
+    """
+    for col in ("expiry", "strike", "is_call", "bid", "ask", "t"):
+        if col not in quotes.columns:
+            raise ValueError(f"quotes frame lacks column {col!r}")
+    spot = float(spot)
+    rate = float(rate)
+    div_yield = float(div_yield)
+    if not (np.isfinite(spot) and spot > 0):
+        raise ValueError(f"spot must be a positive number, got {spot}")
+    expiries = quotes.groupby("expiry", sort=True)["t"].first()
+    if "style" in quotes.columns:
+        all_american = quotes.groupby("expiry")["style"].agg(
+            lambda s: bool((s.astype(str).str.lower() == "american").all()))
+    else:
+        all_american = pd.Series(False, index=expiries.index)
+    pairs = parity_pairs(quotes)
+    grouped = dict(tuple(pairs.groupby("expiry"))) if len(pairs) else {}
+    rows = []
+    for expiry, t in expiries.items():  # one fit per expiry (a handful), not per quote
+        t = float(t)
+        row = _given(expiry, t, spot, rate, div_yield)
+        g = grouped.get(expiry)
+        use_parity = t > 0 and not (all_american.get(expiry, False) and american != "parity")
+        if use_parity and g is not None and len(g) >= min_pairs:
+            fit = _fit_expiry(g, t, spot, rate, n_near, min_pairs)
+            if fit is not None:
+                row = {"expiry": expiry, "t": t, **fit}
+        rows.append(row)
+    out = pd.DataFrame(rows, columns=FORWARD_COLUMNS)
+    return out.sort_values("t", kind="stable").reset_index(drop=True)
+
+
+def _given(expiry, t, spot, rate, div_yield):
+    return {"expiry": expiry, "t": t, "forward": spot * np.exp((rate - div_yield) * t),
+            "discount": np.exp(-rate * t), "rate": rate, "carry": div_yield,
+            "source": "given", "discount_source": "given", "n_pairs": 0}
+
+
+def _fit_expiry(g: pd.DataFrame, t: float, spot: float, rate: float, n_near: int,
+                min_pairs: int):
+    k = g["strike"].to_numpy(float)
+    y = (g["c_mid"] - g["p_mid"]).to_numpy(float)
+    spread2 = (g["c_spread"] ** 2 + g["p_spread"] ** 2).to_numpy(float)
+    near = np.argsort(np.abs(y))[:n_near]
+    k, y, spread2 = k[near], y[near], spread2[near]
+    w = 1.0 / np.maximum(spread2, 1e-12 * max(spot, 1.0) ** 2)
+    keep = np.ones(k.size, dtype=bool)
+    a, b, se_b, res = _wls_line(k, y, w)
+    for _ in range(2):  # trim outliers, refit
+        if not np.all(np.isfinite(res)):
+            break
+        mad = np.median(np.abs(res[keep]))
+        scale = 1.4826 * mad
+        if scale <= 0:
+            break
+        new_keep = np.abs(res) <= 3 * scale
+        if new_keep.sum() < min_pairs or np.array_equal(new_keep, keep):
+            break
+        keep = new_keep
+        a, b, se_b, _ = _wls_line(k[keep], y[keep], w[keep])
+        res = y - a - b * k
+    n_pairs = int(keep.sum())
+    D = -b
+    discount_source = "parity"
+    r_fit = -np.log(D) / t if np.isfinite(D) and D > 0 else np.nan
+    se_r = se_b / (D * t) if np.isfinite(r_fit) else np.inf
+    if not (np.isfinite(r_fit) and -0.05 <= r_fit <= 0.25 and se_r < 0.005):
+        D = np.exp(-rate * t)
+        discount_source = "given"
+        F = _weighted_median(k[keep] + y[keep] / D, w[keep])
+    else:
+        F = a / D
+    if not (np.isfinite(F) and 0.5 * spot <= F <= 2.0 * spot):
+        return None
+    r_used = -np.log(D) / t
+    return {"forward": float(F), "discount": float(D), "rate": float(r_used),
+            "carry": float(r_used - np.log(F / spot) / t), "source": "parity",
+            "discount_source": discount_source, "n_pairs": n_pairs}
