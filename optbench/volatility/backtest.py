@@ -126,6 +126,7 @@ class BacktestResult:
     chart_band_low: np.ndarray = field(repr=False)  # prev close * exp(mu - k sigma)
     chart_band_high: np.ndarray = field(repr=False)  # prev close * exp(mu + k sigma)
     source: str = "history"
+    issues: tuple = ()                # what the history loader reported (gaps, fixes)
 
     @property
     def outside_band_dates(self) -> np.ndarray:
@@ -152,6 +153,7 @@ class BacktestResult:
             "refit_dates": list(self.refit_dates),
             "model": self.model,
             "fallback_reason": self.fallback_reason,
+            "history_issues": list(self.issues),
         }
 
 
@@ -472,4 +474,5 @@ def backtest(history, split, model: str = "auto", dist: str = "t",
         refit_dates=tuple(_iso(rdates[s - 1]) for s in starts[1:]),
         fallback_reason="; ".join(dict.fromkeys(reasons)) or None,
         chart_dates=rdates, chart_close=chart_close, chart_sigma=sigma,
-        chart_band_low=band_low, chart_band_high=band_high, source=source)
+        chart_band_low=band_low, chart_band_high=band_high, source=source,
+        issues=tuple(str(x) for x in (getattr(history, "issues", None) or ())))
