@@ -4,6 +4,7 @@ scipy.stats, and exceedance counts on a simulated GJR-t series with known
 parameters."""
 from __future__ import annotations
 
+import json
 import math
 
 import numpy as np
@@ -181,3 +182,46 @@ def test_bad_input_is_one_line_input_error(series):
         backtest(bad, dates[1 + SPLIT_AT], model="garch", dist="normal", dates=dates)
     with pytest.raises(InputError, match="not a date"):
         backtest(r, "last year", dates=dates)
+
+
+# ------------------------------------------------------------- command line
+def _write_history(path, r, dates):
+    close = 1000 * np.exp(np.concatenate([[0.0], np.cumsum(r)]))
+    lines = ["date,close"] + [f"{d},{c:.6f}" for d, c in zip(dates, close)]
+    path.write_text("\n".join(lines) + "\n")
+
+
+def test_cli_json_and_errors(series, tmp_path, capsys):
+    from optbench.cli import main
+    r, dates = series
+    hist = tmp_path / "history.csv"
+    _write_history(hist, r[:1200], dates[:1201])
+    split = str(dates[900])
+    assert main(["backtest", str(hist), "--split", split, "--model", "garch",
+                 "--dist", "normal", "--format", "json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["split"] == split and doc["n_in"] == 900 and doc["n_out"] == 300
+    assert doc["model"]["name"] == "garch" and "caution" in doc
+    assert [v["level"] for v in doc["var"]] == [0.99, 0.975]
+    # default split: hold out min(504, n - 250) returns
+    assert main(["backtest", str(hist), "--model", "garch", "--dist", "normal",
+                 "-f", "csv"]) == 0
+    rows = capsys.readouterr().out.strip().splitlines()
+    assert rows[0].startswith("date,return,sigma_daily,z") and len(rows) == 1 + 504
+    # table renders every section
+    assert main(["backtest", str(hist), "--split", split, "--model", "garch",
+                 "--dist", "normal"]) == 0
+    text = capsys.readouterr().out
+    for heading in ("Days outside +-3 sigma", "VaR exceedances", "Largest surprises",
+                    "Variance-forecast accuracy", "not advice"):
+        assert heading in text
+    # bad split: one line on stderr, exit 2, no traceback
+    for bad in ("1999-01-01", str(dates[100])):
+        assert main(["backtest", str(hist), "--split", bad]) == 2
+        err = capsys.readouterr().err.strip().splitlines()
+        assert len(err) == 1 and err[0].startswith("optbench: error: --split")
+    # a bad option value is an argparse error: exit 2, one line
+    with pytest.raises(SystemExit) as stop:
+        main(["backtest", str(hist), "--k", "-1"])
+    assert stop.value.code == 2
+    assert len(capsys.readouterr().err.strip().splitlines()) == 1
