@@ -28,6 +28,12 @@ _EXPORTS: dict[str, str] = {
     "fix_garch": "optbench.volatility.garch",
     "GarchFit": "optbench.volatility.garch",
     "trading_days": "optbench.volatility.calendar",
+    "backtest": "optbench.volatility.backtest",
+    "BacktestResult": "optbench.volatility.backtest",
+    "realized_vol": "optbench.volatility.realized",
+    "trailing_realized_vol": "optbench.volatility.realized",
+    "vol_cone": "optbench.volatility.cone",
+    "VolCone": "optbench.volatility.cone",
     "compare": "optbench.analysis.compare",
     "hedge": "optbench.analysis.hedge",
 }
