@@ -371,9 +371,7 @@ def _build_chain(rng: np.random.Generator, history: DemoHistory,
         k = np.log(strikes / fwd)
         vol = np.sqrt(_ssvi_total_variance(k, theta[i]) / t)
         for cp in ("C", "P"):
-            is_call = cp == "C"
-            rows.append(dict(expiry=expiry, i=i, cp=cp, strike=strikes, k=k, vol=vol,
-                             t=t, is_call=is_call))
+            rows.append(dict(expiry=expiry, i=i, cp=cp, strike=strikes, k=k, vol=vol))
 
     # everything below is vectorised over all contracts at once
     expiry = np.concatenate([[r["expiry"]] * r["strike"].size for r in rows])

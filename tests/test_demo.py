@@ -55,7 +55,7 @@ def history():
 def arch_fit(history):
     """GJR-GARCH(1,1) with Student-t errors fitted by the reference library arch
     (Sheppard) on the committed history, in percent returns."""
-    arch = pytest.importorskip("arch")
+    import arch
     return arch.arch_model(history.returns * 100, mean="Constant", vol="GARCH", p=1,
                            o=1, q=1, dist="t").fit(disp="off")
 
@@ -298,9 +298,9 @@ def test_chain_atm_matches_the_generator(chain, scenario):
 
 def test_atm_sits_above_the_fitted_forecast_on_most_expiries_below_on_one(chain, history,
                                                                           meta):
-    garch = pytest.importorskip("optbench.volatility.garch")
+    from optbench import fit_garch
     from optbench.volatility.calendar import trading_days
-    fit = garch.fit_garch(history.returns, model="gjr", dist="t", mean="constant")
+    fit = fit_garch(history.returns, model="gjr", dist="t", mean="constant")
     assert fit.converged
     atm = _chain_atm_iv(chain)
     exp = sorted(atm)
