@@ -41,16 +41,17 @@ Per-expiry fields (:class:`ExpiryRow`)
     implied vol at the 25-delta put and call, and the risk reversal
     ``iv_25d_call - iv_25d_put`` (decimal vol; negative = puts dearer).
 ``iv_90``, ``iv_95``
-    implied vol at strikes of 90 % and 95 % of spot.
+    implied vol on the fitted smile at strikes of 90 % and 95 % of the forward.
 ``model_free_iv``
     square root of the model-free implied variance (decimal vol).
 ``forecast_vol``, ``forecast_low``, ``forecast_high``
     the fitted model's forecast of the annualised average vol from the day after
-    the quote date to expiry, and its band (quantiles of the simulated realized vol
-    over the same horizon; the band's levels are ``Comparison.band``).
+    the last return to expiry, and its band: quantiles of that forecast over the
+    sampling distribution of the model's estimated parameters (the band's levels
+    are ``Comparison.band``, by default 5 % and 95 %).
 ``realized_vol``
     trailing realized vol over a window as long as the option's life (in trading
-    days, at least 10), close-to-close, annualised with 252.
+    days, at least 5), close-to-close, annualised with 252.
 ``cone_percentile``
     where ``atm_iv`` sits in the historical distribution of realized vol over
     windows of that length (0 = below every window, 1 = above every window).
@@ -72,6 +73,10 @@ Per-expiry fields (:class:`ExpiryRow`)
     a small summary of the smile fit (``{"method": ..., "rmse": ..., ...}``).
 ``arbitrage_flags``
     count of quotes flagged by the static-arbitrage checks on that expiry.
+``rate``, ``carry``
+    the rate and the carry (dividend yield plus borrow) used for that expiry,
+    continuously compounded decimals: implied by put-call parity where
+    ``forward_source`` says so, else the given rate and dividend yield.
 
 Per-strike table (``Comparison.strikes[expiry]``, a DataFrame)
 --------------------------------------------------------------
@@ -82,8 +87,11 @@ underlying), ``iv_bid``, ``iv_mid``, ``iv_ask`` (decimal vol, NaN where no vol f
 for +0.01 vol), ``forecast_vol`` (the expiry's forecast), ``price_at_forecast`` (the
 option's value per unit at the forecast vol), ``edge_per_contract`` (market mid minus
 ``price_at_forecast``, times the multiplier — positive = the market charges more
-than the forecast says it is worth), ``edge_vol_points`` (the same edge divided by
-vega, in vol points: 2.0 = 2 vol points rich), ``multiplier``, ``line`` (input line).
+than the forecast says it is worth), ``edge_vol_points`` (the edge in vol points,
+exactly: ``100 * (iv_mid - forecast_vol)``, 2.0 = 2 vol points rich),
+``edge_per_vega`` (the edge per unit divided by ``vega_per_vol_point`` at the mid
+implied vol: the first-order vega view of the same edge, in vol points),
+``multiplier``, ``line`` (input line).
 """
 from __future__ import annotations
 
@@ -98,10 +106,10 @@ import pandas as pd
 CAUTION = ("Model estimates from the data given, not advice. Decisions belong with "
            "your licensed advisers and the rules of your exchange and broker.")
 
-VERDICT_RULE = ("rich if the ATM implied vol is above the forecast band's upper edge "
-                "(the {high:.0%} quantile of the model's simulated realized vol over the "
-                "option's life), cheap if below its lower edge (the {low:.0%} quantile), "
-                "fair inside the band")
+VERDICT_RULE = ("rich if the ATM implied vol is above the upper edge of the forecast band "
+                "(the {high:.0%} quantile of the model's forecast vol to that expiry over the "
+                "uncertainty of its estimated parameters), cheap if below its lower edge "
+                "(the {low:.0%} quantile), fair inside the band")
 
 VERDICTS = ("rich", "fair", "cheap", "n/a")
 
@@ -111,7 +119,7 @@ STRUCTURES = ("put", "put_spread", "collar")
 STRIKE_COLUMNS = ("expiry", "strike", "is_call", "type", "moneyness", "bid", "ask", "mid",
                   "iv_bid", "iv_mid", "iv_ask", "delta", "vega_per_vol_point",
                   "forecast_vol", "price_at_forecast", "edge_per_contract",
-                  "edge_vol_points", "multiplier", "line")
+                  "edge_vol_points", "edge_per_vega", "multiplier", "line")
 
 
 # --------------------------------------------------------------------------- helpers
@@ -232,6 +240,8 @@ class ExpiryRow:
     verdict: str
     smile: dict = field(default_factory=dict)
     arbitrage_flags: int = 0
+    rate: float = math.nan
+    carry: float = math.nan
 
     def to_dict(self) -> dict:
         return {f.name: plain(getattr(self, f.name)) for f in fields(self)}
@@ -271,6 +281,8 @@ class Comparison:
     caution : :data:`CAUTION`.
     fit : the fitted model object (``GarchFit``) for further simulation (hedge);
         not part of ``to_dict()``.
+    sources : where each market input came from (``{"spot": "file", "rate": "meta",
+        ...}``: ``caller``, ``file``, ``meta`` or ``default``).
     """
 
     asof: _dt.date
@@ -298,6 +310,7 @@ class Comparison:
     warnings: tuple[str, ...] = ()
     caution: str = CAUTION
     fit: Any = field(default=None, repr=False)
+    sources: dict = field(default_factory=dict)
 
     # -- access
     def expiry_frame(self) -> pd.DataFrame:
@@ -347,6 +360,7 @@ class Comparison:
             "div_yield": plain(self.div_yield),
             "style": self.style,
             "multiplier": plain(self.multiplier),
+            "sources": plain(self.sources),
             "conventions": plain(self.conventions),
             "model": self.model.to_dict(),
             "band": list(self.band),

@@ -71,12 +71,14 @@ STRIKE_FIELDS: tuple[tuple[str, str, str], ...] = (
     ("price_at_forecast", "Price at forecast", "price"),
     ("edge_per_contract", "Edge / contract", "money"),
     ("edge_vol_points", "Edge (vol pts)", "num"),
+    ("edge_per_vega", "Edge / vega (vol pts)", "num"),
     ("multiplier", "Multiplier", "num"),
     ("line", "Line", "int"),
 )
 
 STRIKE_BRIEF = ("strike", "type", "moneyness", "bid", "ask", "iv_bid", "iv_mid", "iv_ask",
-                "forecast_vol", "price_at_forecast", "edge_per_contract", "edge_vol_points")
+                "forecast_vol", "price_at_forecast", "edge_per_contract", "edge_vol_points",
+                "edge_per_vega")
 
 HEDGE_FIELDS: tuple[tuple[str, str, str], ...] = (
     ("structure", "Structure", "text"),
@@ -137,12 +139,20 @@ EXCEL_FORMATS = {"vol": "0.00%", "pct": "0.00%", "prob": "0.0%", "volpt": "0.00%
                  "num": "0.0000", "int": "0", "date": "yyyy-mm-dd"}
 
 
-def fmt(value: Any, kind: str) -> str:
-    """A value as text for reading (terminal, Markdown, HTML tables)."""
+def fmt(value: Any, kind: str, percent_sign: bool = True) -> str:
+    """A value as text for reading (terminal, Markdown, HTML tables).
+
+    ``percent_sign=False`` drops the ``%`` of vols and percentages (narrow tables whose
+    title says the unit)."""
+    if not percent_sign and kind in ("vol", "pct", "prob"):
+        text = fmt(value, kind)
+        return text[:-1] if text.endswith("%") else text
     if value is None:
         return "–"
-    if isinstance(value, float) and math.isnan(value):
-        return "–"
+    if isinstance(value, float):
+        if math.isnan(value):
+            return "–"
+        value = value + 0.0 if value != 0 else 0.0      # no "-0" on screen
     if kind in ("vol", "pct", "prob"):
         return f"{100 * float(value):.1f}%" if kind == "prob" else f"{100 * float(value):.2f}%"
     if kind == "volpt":
@@ -154,7 +164,7 @@ def fmt(value: Any, kind: str) -> str:
     if kind == "price":
         return f"{float(value):,.2f}"
     if kind == "num":
-        return f"{float(value):.3f}"
+        return f"{float(value):.2f}" if abs(float(value)) >= 1 else f"{float(value):.3f}"
     if kind == "int":
         return f"{int(value):d}"
     if kind == "bool":

@@ -11,6 +11,22 @@ from optbench.report.fields import (EXPIRY_BRIEF, HEDGE_FIELDS, KINDS, LABELS, L
 
 _VERDICT_STYLE = {"rich": "bold red", "cheap": "bold green", "fair": "", "n/a": "dim"}
 
+#: short column headings for the terminal (two lines where needed)
+SHORT = {"expiry": "Expiry", "calendar_days": "Days", "atm_iv": "ATM\nIV",
+         "iv_25d_put": "25d\nput", "iv_25d_call": "25d\ncall", "rr_25d": "RR\n25d",
+         "model_free_iv": "Model\nfree", "forecast_low": "Fcst\nlow",
+         "forecast_vol": "Fcst", "forecast_high": "Fcst\nhigh", "realized_vol": "Real-\nized",
+         "cone_percentile": "Cone\npct", "iv_minus_forecast": "IV-\nFcst",
+         "variance_premium": "Var\nprem", "prob_realized_above_iv": "P(RV\n>IV)",
+         "verdict": "Verdict", "strike": "Strike", "type": "C/P", "moneyness": "K/F",
+         "bid": "Bid", "ask": "Ask", "iv_bid": "IV\nbid", "iv_mid": "IV\nmid",
+         "iv_ask": "IV\nask", "price_at_forecast": "Value at\nfcst",
+         "edge_per_contract": "Edge /\ncontract", "edge_vol_points": "Edge\nvol pts", "edge_per_vega": "Edge /\nvega",
+         "side": "Side", "quantity": "Contracts", "mid": "Mid", "premium_mid": "Premium\nmid",
+         "premium_paid": "Premium\npaid", "premium_at_forecast": "Value at\nfcst",
+         "move": "Move", "level": "Level", "unhedged": "P&L\nunhedged",
+         "hedged": "P&L\nhedged"}
+
 
 def _render(renderables, width: int | None, color: bool = False) -> str:
     from rich.console import Console
@@ -25,14 +41,17 @@ def _render(renderables, width: int | None, color: bool = False) -> str:
 def _table(title: str, records, columns):
     from rich.table import Table
     from rich.text import Text
-    t = Table(title=title, title_justify="left", show_lines=False, pad_edge=False)
+    from rich import box
+    t = Table(title=title, title_justify="left", show_lines=False, pad_edge=False,
+              box=box.SIMPLE_HEAD)
     for c in columns:
-        t.add_column(LABELS.get(c, c), justify="left" if KINDS.get(c) in ("text", "date")
-                     else "right", no_wrap=True)
+        t.add_column(SHORT.get(c, LABELS.get(c, c)),
+                     justify="left" if KINDS.get(c) in ("text", "date") else "right",
+                     no_wrap=True)
     for r in records:
         cells = []
         for c in columns:
-            text = fmt(r.get(c), KINDS.get(c, "text"))
+            text = fmt(r.get(c), KINDS.get(c, "text"), percent_sign=False)
             cells.append(Text(text, style=_VERDICT_STYLE.get(text, "")) if c == "verdict"
                          else text)
         t.add_row(*cells)
@@ -48,12 +67,13 @@ def comparison_table(comparison, *, strikes_for=None, width: int | None = None,
              f"rate {100 * c.rate:.2f}%  div {100 * c.div_yield:.2f}%  {c.style}",
              f"model {m.name}/{m.dist} (mean {m.mean}), persistence {m.persistence:.4f}, "
              f"long-run vol {100 * m.long_run_vol:.2f}%, {c.n_paths:,} simulated paths",
-             _table("Implied against forecast (vols in %, differences in vol points)",
+             _table("Implied against forecast (vols and probabilities in %, differences in vol points)",
                     [r.to_dict() for r in c.expiries], EXPIRY_BRIEF),
              f"Verdict rule: {c.verdict_rule}."]
     for exp in ([] if strikes_for is None else list(strikes_for)):
         frame = c.strike_frame(exp)
-        parts.append(_table(f"Strikes, {exp}", frame.to_dict(orient="records"), STRIKE_BRIEF))
+        parts.append(_table(f"Strikes, {exp} (vols in %, edges in money per contract and "
+                            "in vol points)", frame.to_dict(orient="records"), STRIKE_BRIEF))
     q = c.quality
     rej = ", ".join(f"{k} {v}" for k, v in q.get("rejected", {}).items()) or "none"
     parts.append(f"Quotes: {q.get('rows_in', 0)} rows, {q.get('rows_used', 0)} used; "
@@ -77,8 +97,9 @@ def hedge_table(estimate, *, width: int | None = None, color: bool = False) -> s
     parts = [f"{e.underlying}  as of {e.asof.isoformat()}  spot {e.spot:,.2f}  "
              f"ratio {e.request.exposure_ratio:g}  floor {100 * e.request.floor:.0f}%",
              summary,
-             _table("Legs", [leg.to_dict() for leg in e.legs], [f for f, _, _ in LEG_FIELDS]),
-             _table("Portfolio P&L at expiry", list(e.scenarios),
+             _table("Legs", [leg.to_dict() for leg in e.legs],
+                    [f for f, _, _ in LEG_FIELDS if f not in ("expiry", "bid", "ask")]),
+             _table("Portfolio P&L at expiry (moves in %)", list(e.scenarios),
                     [f for f, _, _ in SCENARIO_FIELDS]),
              f"Roll cost: {e.roll_method}."]
     if e.collar_note:

@@ -1,0 +1,447 @@
+"""The comparison: is the volatility an option chain charges rich or cheap against the
+fitted model's forecast, per expiry and per strike?
+
+:func:`compare` orchestrates the other parts of optbench (loading, implied forwards,
+implied vols, smile fits, model-free variance, static-arbitrage checks, the GARCH-family
+fit, its forecast band and simulation, realized vol and the cone) and returns one
+frozen :class:`~optbench.analysis.results.Comparison`. It computes nothing those parts
+already compute; what is its own is listed below.
+
+Notes
+-----
+**ATM implied vol.** ATM means strike = forward. The mid ATM vol is the expiry's
+fitted smile at log-moneyness 0 (:func:`optbench.analysis.smile.smile_points`); the bid
+and ask ATM vols are the bid and ask implied vols of the out-of-the-money quotes
+(puts below the forward, calls above) interpolated linearly in log-moneyness
+:math:`k = \\ln(K/F)` at :math:`k = 0`.
+
+**Forecast and band.** ``forecast_vol`` is the model's annualised average vol over the
+trading days to expiry, :math:`\\sqrt{252\\,\\tfrac1h\\sum_{k\\le h} E[\\sigma^2_{T+k}]}`;
+``forecast_low``/``forecast_high`` are the ``band`` quantiles of that forecast over the
+estimated parameters' sampling distribution
+(:meth:`optbench.volatility.garch.GarchFit.forecast_band`).
+
+**Verdict.** rich if ATM IV > ``forecast_high``, cheap if ATM IV < ``forecast_low``,
+else fair — the implied vol is called rich or cheap only when it lies outside what the
+model, allowing for the uncertainty of its own parameters, expects.
+
+**Variance risk premium.** :math:`VRP = \\sigma_{ATM}^2 - \\hat\\sigma_{fc}^2`, annualised
+variance, with the model forecast in place of the expected realized variance
+(Bollerslev, Tauchen & Zhou, "Expected stock returns and variance risk premia",
+*Review of Financial Studies* 22, 2009, who use implied minus expected realized
+variance). The ratio is :math:`\\sigma_{ATM}/\\hat\\sigma_{fc}`.
+
+**Probability that realized ends above implied.** The fitted model is simulated from
+the day after the last return (``n_paths`` paths, ``seed``) to the longest expiry; on
+each path the realized vol to each expiry is
+:math:`\\sqrt{252/h\\,\\sum_{k\\le h} r_k^2}` and the probability is the share of paths
+where it exceeds the ATM implied vol. This is the model's *physical* distribution.
+
+**Trailing realized vol and the cone.** Close-to-close realized vol over the last
+:math:`\\max(h, 5)` trading days (:func:`optbench.volatility.realized.trailing_realized_vol`);
+``cone_percentile`` is the percentile rank of the ATM IV among the rolling realized
+vols of the cone window nearest :math:`h` (Burghardt & Lane 1990).
+
+**Per strike.** ``price_at_forecast`` is the Black-Scholes-Merton value at the expiry's
+forward and discount with the forecast vol (American exercise for American chains);
+``edge_per_contract = (mid - price_at_forecast) * multiplier``;
+``edge_vol_points = 100 (iv_mid - forecast_vol)`` (the exact vol-point gap that
+prices the edge) and ``edge_per_vega = (mid - price_at_forecast) / vega_per_vol_point``
+with vega at the quote's mid implied vol (at the forecast vol where no mid vol fits),
+its first-order approximation — far from the money the two differ because vega
+changes with the vol.
+"""
+from __future__ import annotations
+
+import dataclasses
+import datetime as _dt
+import math
+from collections.abc import Callable
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from optbench.analysis.results import (CAUTION, STRIKE_COLUMNS, VERDICT_RULE, Comparison,
+                                       ExpiryRow, ModelSummary, verdict_for)
+from optbench.errors import InputError
+
+DEFAULT_N_PATHS = 2000
+DEFAULT_SEED = 7
+DEFAULT_BAND = (0.05, 0.95)
+MIN_REALIZED_WINDOW = 5
+
+CONVENTIONS = {
+    "vol": "annualised decimal (0.215 = 21.5%); a vol point is 0.01",
+    "option_time": "calendar days / 365 from the quote date's end of day",
+    "model_horizon": "trading days after the quote date up to expiry, annualised with 252",
+    "rates": "continuously compounded decimals",
+    "atm": "strike equal to the expiry's forward",
+    "moneyness": "strike / forward",
+    "delta": "Black-Scholes-Merton spot delta at the mid implied vol",
+    "forecast_band": "quantiles of the forecast over the model's parameter uncertainty",
+    "probabilities": "the fitted model's simulated (physical) distribution",
+    "money": "per contract (edge) or whole position, in the underlying's currency",
+}
+
+
+# ------------------------------------------------------------------------ inputs
+def _load(source, history, overrides: dict):
+    """(chain, history, holidays, source text) from paths, a Scenario or objects."""
+    from optbench.data.chain import OptionChain
+    from optbench.data.scenario import Scenario
+
+    if isinstance(source, Scenario):
+        if overrides:
+            raise InputError("compare", "market overrides apply when loading; pass the "
+                                        "folder path with the overrides instead")
+        hist = source.history if history is None else _history(history)
+        return source.chain, hist, tuple(source.holidays), str(source.path)
+    if isinstance(source, OptionChain):
+        if overrides:
+            raise InputError("compare", "market overrides apply when loading; pass the "
+                                        "chain file path with the overrides instead")
+        if history is None:
+            raise InputError("--history", "give the price history of the underlying")
+        return source, _history(history), tuple(source.holidays), source.source
+    path = Path(source)
+    if not path.exists():
+        raise InputError(path, "no such file or folder")
+    from optbench.data.scenario import load_scenario
+    folder = path if path.is_dir() else path.parent
+    if history is not None and not isinstance(history, (str, Path)):
+        from optbench.data.chain import load_chain
+        chain = load_chain(path, **overrides)
+        return chain, history, tuple(chain.holidays), str(path)
+    if history is None and not (folder / "history.csv").is_file():
+        raise InputError("--history", f"{folder} has no history.csv: give the price "
+                                      "history with --history FILE")
+    kw = dict(overrides)
+    if history is not None:
+        kw["history"] = history
+    sc = load_scenario(path, **kw)
+    return sc.chain, sc.history, tuple(sc.holidays or sc.chain.holidays), str(path)
+
+
+def _history(history):
+    if isinstance(history, (str, Path)):
+        from optbench.data.history import load_history
+        return load_history(history)
+    return history
+
+
+# ------------------------------------------------------------------- per-quote vols
+def _quote_vols(q: pd.DataFrame, fwd: pd.DataFrame, spot: float):
+    """Per-quote forward, discount, rate, carry and bid/mid/ask implied vols."""
+    from optbench.pricing.implied import black_implied_vol_with_status, implied_vol_with_status
+
+    idx = pd.Index(fwd["expiry"]).get_indexer(q["expiry"])
+    F = fwd["forward"].to_numpy(float)[idx]
+    D = fwd["discount"].to_numpy(float)[idx]
+    r = fwd["rate"].to_numpy(float)[idx]
+    carry = fwd["carry"].to_numpy(float)[idx]
+    K = q["strike"].to_numpy(float)
+    t = q["t"].to_numpy(float)
+    is_call = q["is_call"].to_numpy(bool)
+    american = (q["style"].astype(str).str.lower() == "american").to_numpy() \
+        if "style" in q.columns else np.zeros(len(q), bool)
+    prices = np.vstack([q["bid"].to_numpy(float), q["mid"].to_numpy(float),
+                        q["ask"].to_numpy(float)])            # (3, n)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        vols, _ = black_implied_vol_with_status(
+            prices, F[None, :], K[None, :], t[None, :], D[None, :], is_call[None, :])
+    vols = np.where(prices > 0, vols, np.nan)
+    if american.any():
+        sel = np.flatnonzero(american)
+        av, _ = implied_vol_with_status(prices[:, sel], spot, K[sel], t[sel], r[sel],
+                                        carry[sel], is_call[sel], style="american")
+        vols[:, sel] = np.where(prices[:, sel] > 0, av, np.nan)
+    return F, D, r, carry, vols, american
+
+
+def _interp_at_forward(k: np.ndarray, v: np.ndarray) -> float:
+    """Linear interpolation of ``v`` at k = 0 (flat beyond the ends); NaN if empty."""
+    ok = np.isfinite(k) & np.isfinite(v)
+    if not ok.any():
+        return math.nan
+    k, v = k[ok], v[ok]
+    o = np.argsort(k)
+    return float(np.interp(0.0, k[o], v[o]))
+
+
+# ------------------------------------------------------------------------ compare
+def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
+            mean: str = "constant", spot: float | None = None,
+            asof: _dt.date | str | None = None, rate: float | None = None,
+            div_yield: float | None = None, band: tuple[float, float] = DEFAULT_BAND,
+            n_paths: int = DEFAULT_N_PATHS, seed: int | None = DEFAULT_SEED,
+            backtest: bool | _dt.date | str = False,
+            progress: Callable[[str], None] | None = None) -> Comparison:
+    """Compare the chain's implied vols with the fitted model's forecast.
+
+    Parameters
+    ----------
+    chain : path to a chain file or scenario folder, a Scenario or an OptionChain.
+    history : path or PriceHistory; optional when ``chain`` is a scenario folder (or a
+        chain file whose folder holds ``history.csv``).
+    model, dist, mean : the volatility model (as ``optbench fit``): ``garch``, ``gjr``,
+        ``egarch`` or ``auto`` (lowest BIC); ``normal`` or ``t``; ``constant`` or ``zero``.
+    spot, asof, rate, div_yield : market overrides (decimals for rate and yield).
+    band : quantile levels of the forecast band (default 5 % and 95 %).
+    n_paths, seed : simulation behind ``prob_realized_above_iv`` and the hedge.
+    backtest : False (default), True (out-of-sample check over the last 252 returns)
+        or a split date; adds the backtest summary (and its surprises) to the result.
+    progress : called with a short text before each long step (for views).
+
+    Returns
+    -------
+    Comparison
+        See :mod:`optbench.analysis.results` for every field and unit, and this
+        module's Notes for the formulas.
+    """
+    from optbench.analysis.arbitrage import strike_arbitrage
+    from optbench.analysis.smile import fit_svi, smile_points
+    from optbench.pricing.bsm import black_price, bsm_price
+    from optbench.pricing.forwards import implied_forwards
+    from optbench.pricing.greeks import bsm_greeks
+    from optbench.volatility.calendar import trading_days as count_trading_days
+    from optbench.volatility.cone import vol_cone
+    from optbench.volatility.garch import fit_garch
+    from optbench.volatility.realized import trailing_realized_vol
+
+    say = progress or (lambda text: None)
+    lo_level, hi_level = (float(band[0]), float(band[1]))
+    if not 0 < lo_level < hi_level < 1:
+        raise InputError("--band", f"band levels must satisfy 0 < low < high < 1, not {band}")
+    if int(n_paths) < 100:
+        raise InputError("--paths", f"need at least 100 simulated paths, not {n_paths}")
+    overrides = {k: v for k, v in (("spot", spot), ("asof", asof), ("rate", rate),
+                                   ("div_yield", div_yield)) if v is not None}
+    say("loading the chain and the history")
+    ch, hist, holidays, source = _load(chain, history, overrides)
+    warnings: list[str] = list(getattr(ch, "notes", ()))
+    q = ch.quotes
+    if not len(q):
+        raise InputError(ch.source, "no usable quotes in the chain")
+    q = q[q["t"] > 0].reset_index(drop=True)
+    S, r0, q0 = float(ch.spot), float(ch.rate), float(ch.div_yield)
+
+    # --- forwards and implied vols (vectorised over every quote)
+    say("implied forwards and vols")
+    fwd = implied_forwards(q, S, r0, q0)
+    F, D, r_q, carry_q, vols, american = _quote_vols(q, fwd, S)
+    iv_bid, iv_mid, iv_ask = vols
+    K = q["strike"].to_numpy(float)
+    t_q = q["t"].to_numpy(float)
+    is_call = q["is_call"].to_numpy(bool)
+    k_q = np.log(K / F)
+    otm = np.where(is_call, K >= F, K <= F)
+    style = "american" if american.all() else ("mixed" if american.any() else "european")
+    mult = q["multiplier"].to_numpy(float) if "multiplier" in q.columns else np.full(len(q), 100.0)
+
+    # --- static arbitrage flags per quote
+    arb = strike_arbitrage(q["expiry"].to_numpy(), K, q["mid"].to_numpy(float), is_call,
+                           forward=F, discount=D, bid=q["bid"].to_numpy(float),
+                           ask=q["ask"].to_numpy(float))
+
+    # --- model fit and forecasts on the trading-day calendar
+    say(f"fitting the {model} volatility model")
+    fit = fit_garch(hist.returns, model=model, dist=dist, mean=mean)
+    if fit.fallback_reason:
+        warnings.append(f"volatility model: {fit.fallback_reason}")
+    exp_dates = [pd.Timestamp(e).date() for e in fwd["expiry"]]
+    last_day = pd.Timestamp(hist.dates[-1]).date()
+    if last_day != ch.asof:
+        warnings.append(f"the history ends on {last_day.isoformat()}, the quotes are of "
+                        f"{ch.asof.isoformat()}: forecasts run from the day after the "
+                        "last close")
+    td = np.asarray(count_trading_days(ch.asof, np.array(exp_dates, dtype="datetime64[D]"),
+                                       holidays), dtype=int)
+    td_model = np.maximum(td, 1)
+    fc = np.atleast_1d(fit.forecast_vol(td_model))
+    band_lo, band_hi = fit.forecast_band(td_model, level=(lo_level, hi_level))
+    band_lo, band_hi = np.atleast_1d(band_lo), np.atleast_1d(band_hi)
+
+    say(f"simulating {int(n_paths):,} paths of the model")
+    sim = fit.simulate(int(td_model.max()), n_paths=int(n_paths), seed=seed)
+    cum_sq = np.cumsum(np.square(sim.returns), axis=1)        # (paths, horizon)
+    rv_paths = np.sqrt(252.0 / td_model * cum_sq[:, td_model - 1])   # (paths, expiries)
+
+    # --- realized vol and the cone
+    windows = np.maximum(td_model, MIN_REALIZED_WINDOW)
+    realized = trailing_realized_vol(hist, windows)
+    cone = vol_cone(hist)
+
+    # --- per expiry: smiles, ATM, points
+    say("smile fits")
+    expiry_codes = pd.Index(fwd["expiry"]).get_indexer(q["expiry"])
+    rows: list[ExpiryRow] = []
+    strikes: dict[_dt.date, pd.DataFrame] = {}
+    fc_q = fc[expiry_codes]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        if american.any():
+            price_fc = bsm_price(S, K, t_q, r_q, carry_q, fc_q, is_call,
+                                 style="american") if american.all() else np.where(
+                american, bsm_price(S, K, t_q, r_q, carry_q, fc_q, is_call, style="american"),
+                black_price(F, K, t_q, D, fc_q, is_call))
+        else:
+            price_fc = black_price(F, K, t_q, D, fc_q, is_call)
+        vega_vol = np.where(np.isfinite(iv_mid), iv_mid, fc_q)
+        g = bsm_greeks(S, K, t_q, r_q, carry_q, vega_vol, is_call)
+    mid = q["mid"].to_numpy(float)
+    edge_unit = mid - price_fc
+    vega_pt = np.asarray(g.vega_per_vol_point, float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        edge_vega = np.where(vega_pt > 1e-12, edge_unit / vega_pt, np.nan)
+    edge_pts = 100.0 * (iv_mid - fc_q)
+    table = pd.DataFrame({
+        "expiry": q["expiry"].to_numpy(), "strike": K, "is_call": is_call,
+        "type": np.where(is_call, "C", "P"), "moneyness": K / F,
+        "bid": q["bid"].to_numpy(float), "ask": q["ask"].to_numpy(float), "mid": mid,
+        "iv_bid": iv_bid, "iv_mid": iv_mid, "iv_ask": iv_ask,
+        "delta": np.asarray(g.delta, float), "vega_per_vol_point": vega_pt,
+        "forecast_vol": fc_q, "price_at_forecast": price_fc,
+        "edge_per_contract": edge_unit * mult, "edge_vol_points": edge_pts,
+        "edge_per_vega": edge_vega,
+        "multiplier": mult, "line": q["line"].to_numpy() if "line" in q.columns else 0,
+    }, columns=list(STRIKE_COLUMNS))
+
+    model_free = _model_free_vols(q, fwd, warnings)
+    for j, e_date in enumerate(exp_dates):
+        sel = expiry_codes == j
+        t_e = float(fwd["t"].iloc[j])
+        F_e = float(fwd["forward"].iloc[j])
+        use = sel & otm & np.isfinite(iv_mid)
+        smile_info: dict = {"method": "none"}
+        atm = iv25p = iv25c = rr = iv90 = iv95 = math.nan
+        if use.sum() >= 1:
+            vw = np.where(np.isfinite(vega_pt[use]), np.maximum(vega_pt[use], 1e-8), 1e-8)
+            try:
+                sfit = fit_svi(k_q[use], iv_mid[use] ** 2 * t_e, vw, t=t_e)
+                pts = smile_points(sfit, F_e, t_e, r=float(fwd["rate"].iloc[j]),
+                                   q=float(fwd["carry"].iloc[j]))
+                atm, iv25p, iv25c, rr = pts.iv_atm, pts.iv_25d_put, pts.iv_25d_call, pts.rr_25d
+                money = list(pts.moneyness)
+                iv90 = float(pts.iv_moneyness[money.index(0.90)])
+                iv95 = float(pts.iv_moneyness[money.index(0.95)])
+                smile_info = {"method": sfit.method, "rmse": float(sfit.rmse_iv),
+                              "n_points": int(sfit.n_points), "converged": bool(sfit.converged),
+                              "bf_25d": float(pts.bf_25d)}
+            except InputError as err:
+                smile_info = {"method": "failed", "reason": err.problem}
+        atm_bid = _interp_at_forward(k_q[sel & otm], iv_bid[sel & otm])
+        atm_ask = _interp_at_forward(k_q[sel & otm], iv_ask[sel & otm])
+        if not math.isfinite(atm):
+            atm = _interp_at_forward(k_q[sel & otm], iv_mid[sel & otm])
+        f_e, lo_e, hi_e = float(fc[j]), float(band_lo[j]), float(band_hi[j])
+        prob = float(np.mean(rv_paths[:, j] > atm)) if math.isfinite(atm) else math.nan
+        rows.append(ExpiryRow(
+            expiry=e_date, calendar_days=int(round(t_e * 365)), trading_days=int(td[j]),
+            t=t_e, forward=F_e, discount=float(fwd["discount"].iloc[j]),
+            forward_source="put-call parity" if fwd["source"].iloc[j] == "parity" else "carry",
+            style="american" if american[sel].all() else "european",
+            n_quotes=int(sel.sum()), atm_iv=float(atm), atm_iv_bid=atm_bid, atm_iv_ask=atm_ask,
+            iv_25d_put=float(iv25p), iv_25d_call=float(iv25c), iv_90=iv90, iv_95=iv95,
+            rr_25d=float(rr), model_free_iv=float(model_free[j]), forecast_vol=f_e,
+            forecast_low=lo_e, forecast_high=hi_e, realized_vol=float(realized[j]),
+            cone_percentile=float(cone.percentile_rank(atm, td_model[j])),
+            iv_minus_forecast=float(atm - f_e), variance_premium=float(atm ** 2 - f_e ** 2),
+            iv_forecast_ratio=float(atm / f_e) if f_e > 0 else math.nan,
+            prob_realized_above_iv=prob, verdict=verdict_for(atm, lo_e, hi_e),
+            smile=smile_info, arbitrage_flags=int(arb.quote_flag[sel].sum()),
+            rate=float(fwd["rate"].iloc[j]), carry=float(fwd["carry"].iloc[j])))
+        part = table.loc[sel].sort_values(["is_call", "strike"]).reset_index(drop=True)
+        strikes[e_date] = part
+
+    bt = None
+    if backtest is not False and backtest is not None:
+        say("out-of-sample check")
+        bt = _backtest(hist, backtest, model, dist, mean)
+
+    mdict = fit.to_dict()
+    summary = ModelSummary(
+        name=fit.model, dist=fit.dist, mean=fit.mean, params=dict(fit.params),
+        std_errors=dict(fit.std_errors), loglik=float(fit.loglik), aic=float(fit.aic),
+        bic=float(fit.bic), converged=bool(fit.converged),
+        persistence=float(fit.persistence),
+        half_life_days=_num(fit.half_life_days), long_run_vol=_num(fit.long_run_vol),
+        n_obs=int(fit.n_obs), fallback_reason=fit.fallback_reason)
+    del mdict
+    history_frame = pd.DataFrame({
+        "date": pd.to_datetime(np.asarray(hist.dates[1:], dtype="datetime64[D]")),
+        "close": np.asarray(hist.close[1:], float), "ret": np.asarray(hist.returns, float),
+        "sigma": np.asarray(fit.conditional_vol, float),
+        "z": np.asarray(fit.std_resid, float)})
+    return Comparison(
+        asof=ch.asof, underlying=ch.underlying or Path(source).stem, source=source,
+        spot=S, rate=r0, div_yield=q0, style=style,
+        multiplier=float(np.median(mult)) if len(mult) else 100.0,
+        conventions=dict(CONVENTIONS), model=summary, band=(lo_level, hi_level),
+        verdict_rule=VERDICT_RULE.format(low=lo_level, high=hi_level),
+        quality=ch.quality.as_dict(), expiries=tuple(rows), strikes=strikes,
+        realized={"estimator": "close-to-close", "window_days": windows.tolist(),
+                  "vol": [float(x) for x in realized]},
+        cone=_cone_frame(cone), history=history_frame, backtest=bt,
+        n_paths=int(n_paths), seed=seed, rejected=ch.rejected,
+        warnings=tuple(warnings), caution=CAUTION, fit=fit,
+        sources={name: getattr(ch, f"{name}_source", "file")
+                 for name in ("spot", "asof", "rate", "div_yield")})
+
+
+def _num(x) -> float:
+    return math.nan if x is None else float(x)
+
+
+def _cone_frame(cone) -> pd.DataFrame:
+    names = []
+    for qv in cone.quantiles:
+        names.append("min" if qv == 0 else "max" if qv == 1 else "median" if qv == 0.5
+                     else f"p{round(100 * qv):d}")
+    frame = pd.DataFrame(np.asarray(cone.values, float).reshape(len(cone.windows), -1),
+                         columns=names)
+    frame.insert(0, "window_days", np.asarray(cone.windows, int))
+    frame["latest"] = np.asarray(cone.latest, float)
+    frame["n_obs"] = np.asarray(cone.n_obs, int)
+    return frame
+
+
+def _model_free_vols(q: pd.DataFrame, fwd: pd.DataFrame, warnings: list) -> np.ndarray:
+    """sqrt of the model-free implied variance per expiry (NaN where unavailable).
+
+    One call of :func:`optbench.analysis.model_free.model_free_variance` per expiry on
+    its strikes' call and put mids and bids (a loop over expiries, not quotes).
+    """
+    from optbench.analysis.model_free import model_free_variance
+
+    wide = q.pivot_table(index=["expiry", "strike"], columns="is_call",
+                         values=["mid", "bid"], aggfunc="first")
+    out = np.full(len(fwd), np.nan)
+    for j, e in enumerate(fwd["expiry"]):
+        try:
+            g = wide.loc[e]
+        except KeyError:
+            continue
+
+        def col(name, side):
+            key = (name, side)
+            return g[key].to_numpy(float) if key in g.columns else np.full(len(g), np.nan)
+
+        try:
+            mf = model_free_variance(g.index.to_numpy(float), float(fwd["t"].iloc[j]),
+                                     float(fwd["forward"].iloc[j]),
+                                     float(fwd["discount"].iloc[j]),
+                                     call_mid=col("mid", True), put_mid=col("mid", False),
+                                     call_bid=col("bid", True), put_bid=col("bid", False))
+        except InputError as err:
+            warnings.append(f"model-free variance, {pd.Timestamp(e).date()}: {err.problem}")
+            continue
+        out[j] = mf.vol
+    return out
+
+
+def _backtest(hist, split, model, dist, mean):
+    from optbench.volatility.backtest import backtest as run_backtest
+    if split is True:
+        n = len(hist.dates)
+        split = pd.Timestamp(hist.dates[max(n - 253, 1)]).date()
+    return run_backtest(hist, split, model=model, dist=dist, mean=mean).to_dict()

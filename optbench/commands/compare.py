@@ -1,0 +1,152 @@
+"""``optbench compare``: implied against forecast volatility, per expiry and per strike.
+
+Reads a chain (or a scenario folder, which brings its history), fits the volatility
+model, and shows the rich / fair / cheap table, or writes it as JSON, CSV, XLSX,
+Markdown or an HTML report with figures. Heavy modules are imported inside ``run`` so
+that ``optbench --help`` stays fast.
+"""
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+from optbench.commands.common import (add_market_overrides, add_model_options,
+                                      add_output_options, market_overrides, parse_date,
+                                      parse_float, write_output)
+from optbench.errors import InputError
+
+FORMATS = ("table", "json", "csv", "xlsx", "md", "html")
+
+
+def positive_int(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a whole number: {text!r}") from None
+    if value <= 0:
+        raise argparse.ArgumentTypeError(f"must be positive: {text!r}")
+    return value
+
+
+def parse_band(text: str) -> tuple[float, float]:
+    parts = [p for p in text.replace(" ", "").split(",") if p]
+    try:
+        lo, hi = (float(p) for p in parts)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"give two levels like 0.05,0.95, not {text!r}") from None
+    if not 0 < lo < hi < 1:
+        raise argparse.ArgumentTypeError(f"levels must satisfy 0 < low < high < 1: {text!r}")
+    return lo, hi
+
+
+def add_chain_arguments(parser: argparse.ArgumentParser) -> None:
+    """CHAIN (file or scenario folder; default the bundled demo) and --history."""
+    parser.add_argument("chain", metavar="CHAIN", nargs="?", default=None,
+                        help="option chain file (CSV/Parquet) or scenario folder "
+                             "(default: the bundled demo scenario chains/ZPHX)")
+    parser.add_argument("--history", metavar="FILE", default=None,
+                        help="price history CSV (date, close); optional when CHAIN's "
+                             "folder holds history.csv")
+    add_market_overrides(parser)
+    add_model_options(parser)
+    sim = parser.add_argument_group("simulation")
+    sim.add_argument("--paths", type=positive_int, default=None,
+                     help="simulated paths of the fitted model (default: 2000 for compare, "
+                          "20000 for hedge)")
+    sim.add_argument("--seed", type=int, default=7, help="random seed (default: 7)")
+
+
+def chain_source(args: argparse.Namespace) -> str | Path:
+    if args.chain is not None:
+        return args.chain
+    from optbench.commands.demo import checkout_folder
+    folder = checkout_folder()
+    if folder is None or not folder.is_dir():
+        raise InputError("CHAIN", "give an option chain file or scenario folder")
+    return folder
+
+
+def progress_printer():
+    """Progress lines on stderr when it is a terminal; nothing otherwise."""
+    if not sys.stderr.isatty():
+        return None
+    import time
+    start = time.perf_counter()
+
+    def say(text: str) -> None:
+        print(f"optbench: {time.perf_counter() - start:5.1f}s {text}…", file=sys.stderr)
+    return say
+
+
+def check_file_formats(args: argparse.Namespace) -> None:
+    if args.format in ("xlsx", "html") and not args.output:
+        raise InputError("--format", f"{args.format} writes a file: give -o FILE")
+
+
+def add_parser(subparsers) -> argparse.ArgumentParser:
+    parser = subparsers.add_parser(
+        "compare", help="implied against forecast vol: rich / fair / cheap per expiry",
+        description=("Is the volatility the chain charges rich or cheap against the "
+                     "fitted GARCH-family forecast? Per expiry: ATM, 25-delta and "
+                     "model-free implied vols, the forecast and its band, realized vol, "
+                     "the cone, the variance premium and a verdict; per strike: the edge "
+                     "of each quote against its value at the forecast vol."))
+    add_chain_arguments(parser)
+    parser.add_argument("--band", type=parse_band, default=(0.05, 0.95), metavar="LOW,HIGH",
+                        help="quantile levels of the forecast band (default: 0.05,0.95)")
+    parser.add_argument("--expiry", type=parse_date, action="append", default=None,
+                        metavar="DATE", help="also show the per-strike table of this "
+                                             "expiry (repeatable; CSV: only these rows)")
+    parser.add_argument("--table", choices=("expiries", "strikes"), default="expiries",
+                        help="which table CSV writes (default: expiries)")
+    parser.add_argument("--backtest", action="store_true",
+                        help="add the out-of-sample check over the last year (HTML "
+                             "reports always include it)")
+    add_output_options(parser, formats=FORMATS)
+    parser.set_defaults(run=run)
+    return parser
+
+
+def run(args: argparse.Namespace) -> int:
+    check_file_formats(args)
+    from optbench.analysis.compare import compare
+
+    comparison = compare(chain_source(args), args.history, model=args.model, dist=args.dist,
+                         mean=args.mean, band=args.band, n_paths=args.paths or 2000,
+                         seed=args.seed, backtest=bool(args.backtest or args.format == "html"),
+                         progress=progress_printer(), **market_overrides(args))
+    for e in args.expiry or ():
+        comparison.expiry_row(e)        # an expiry not in the chain -> one-line error
+    write_output(args, render(comparison, args))
+    return 0
+
+
+def render(comparison, args: argparse.Namespace) -> str | bytes:
+    fmt = args.format
+    expiries = [e.isoformat() for e in (args.expiry or ())]
+    if fmt == "json":
+        from optbench.report.jsonout import dumps
+        return dumps(comparison, kind="compare")
+    if fmt == "csv":
+        from optbench.report.csv import comparison_csv, frame_csv, _comment
+        if args.table == "strikes" and expiries:
+            import pandas as pd
+            frame = pd.concat([comparison.strike_frame(e) for e in expiries], ignore_index=True)
+            return frame_csv(frame, _comment("compare strikes", comparison))
+        return comparison_csv(comparison, args.table)
+    if fmt == "xlsx":
+        from optbench.report.xlsx import comparison_xlsx
+        return comparison_xlsx(comparison)
+    if fmt == "md":
+        from optbench.report.markdown import comparison_markdown
+        return comparison_markdown(comparison, strikes_for=expiries)
+    if fmt == "html":
+        from optbench.report.html import comparison_html
+        return comparison_html(comparison)
+    from optbench.report.tables import comparison_table
+    import shutil
+    color = sys.stdout.isatty() and not args.output
+    return comparison_table(comparison, strikes_for=expiries, color=color,
+                            width=shutil.get_terminal_size((140, 40)).columns
+                            if sys.stdout.isatty() else 140)
