@@ -436,7 +436,9 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     elif meta.get("asof") is not None:
         asof_d, asof_source = _as_date(meta["asof"], "meta asof"), "meta"
     else:
-        raise InputError(path, "no quote date: the file has no quote_date column; "
+        what = "no readable date in its quote_date column" if qd is not None \
+            else "no quote_date column"
+        raise InputError(path, f"no quote date: the file has {what}; "
                          "give --asof YYYY-MM-DD")
     if qd is not None:
         other_quote_date = ~np.isnat(qd) & (qd != np.datetime64(asof_d, "ns"))
@@ -445,8 +447,9 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         "spot", spot, to_number(col("underlying_price"), decimal_comma=dc)
         if col("underlying_price") is not None else None, meta, None, notes, path)
     if spot_v is None:
-        raise InputError(path, "no spot price: the file has no underlying_price column; "
-                         "give --spot")
+        what = "no readable underlying_price" if col("underlying_price") is not None \
+            else "no underlying_price column"
+        raise InputError(path, f"no spot price: the file has {what}; give --spot")
     if not np.isfinite(spot_v) or spot_v <= 0:
         raise InputError("--spot" if spot_source == "caller" else path,
                          f"spot must be a positive price, not {spot_v:g}")

@@ -97,6 +97,17 @@ def read_table(path: str | Path, *, header_test=None) -> RawTable:
     head = _check_file(path)
     if head[:4] == b"PAR1" or path.suffix.lower() in (".parquet", ".pq"):
         return _read_parquet(path)
+    compression = None
+    if head[:2] == b"\x1f\x8b":  # a gzip-compressed CSV (.csv.gz)
+        import gzip
+        compression = "gzip"
+        try:
+            with gzip.open(path, "rb") as fh:
+                head = fh.read(_SNIFF_BYTES)
+        except (OSError, EOFError) as err:
+            raise InputError(path, f"cannot decompress gzip file ({err})") from None
+        if not head.strip():
+            raise InputError(path, "file is empty")
     text, encoding = _decode(head, path)
     lines = text.splitlines()
     if len(head) == _SNIFF_BYTES and lines:
@@ -116,6 +127,7 @@ def read_table(path: str | Path, *, header_test=None) -> RawTable:
     try:
         frame = pd.read_csv(path, sep=delim, skiprows=skip, skip_blank_lines=False,
                             encoding=encoding, encoding_errors="replace",
+                            compression=compression,
                             skipinitialspace=True, on_bad_lines="error",
                             low_memory=False)
     except pd.errors.EmptyDataError:

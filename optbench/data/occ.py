@@ -40,7 +40,8 @@ def parse_occ(symbols: pd.Series | np.ndarray | list) -> pd.DataFrame:
     s = pd.Series(symbols) if not isinstance(symbols, pd.Series) else symbols
     text = s.astype("string").str.strip().str.upper()
     parts = text.str.extract(OCC_PATTERN)
-    expiry = pd.to_datetime(parts["ymd"], format="%y%m%d", errors="coerce")
+    # OSI years are 20YY: strptime's %y would put 69-99 in the 1900s
+    expiry = pd.to_datetime("20" + parts["ymd"], format="%Y%m%d", errors="coerce")
     strike = pd.to_numeric(parts["strike"], errors="coerce") / 1000.0
     ok = expiry.notna() & strike.notna()
     return pd.DataFrame({

@@ -46,7 +46,7 @@ def to_number(col: pd.Series, *, decimal_comma: bool = False) -> np.ndarray:
             text = text.str.replace(".", "", regex=False).str.replace(",", ".", regex=False)
         else:
             text = text.str.replace(",", "", regex=False)
-        text = text.str.replace(r"^[$€£¥]|\s", "", regex=True)
+        text = text.str.replace(r"^[$€£¥]|[\s%]", "", regex=True)
         out[bad] = pd.to_numeric(text, errors="coerce").to_numpy(dtype=float,
                                                                na_value=np.nan)
     out[~np.isfinite(out)] = np.nan
