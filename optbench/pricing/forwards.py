@@ -15,7 +15,7 @@ weighted least squares with weights :math:`1/(\text{spread}_C^2 + \text{spread}_
 dropping pairs whose residual is more than three robust standard deviations
 (1.4826 x the median absolute residual) from the line and refitting (a common-practice
 trimming rule). The fitted discount is kept when it is well determined (its rate
-:math:`-\ln D / t` has a standard error under 50 basis points and lies in a sensible
+:math:`-\ln D / t` has a standard error under 25 basis points and lies in a sensible
 range); otherwise the given rate sets :math:`D = e^{-rt}` and the forward is the
 weighted median of :math:`K + (C-P)/D`. The implied carry (dividend yield plus borrow)
 is :math:`q = r - \ln(F/S)/t`. With fewer than ``min_pairs`` usable pairs, or a
@@ -173,7 +173,7 @@ def _fit_expiry(g: pd.DataFrame, t: float, spot: float, rate: float, n_near: int
     discount_source = "parity"
     r_fit = -np.log(D) / t if np.isfinite(D) and D > 0 else np.nan
     se_r = se_b / (D * t) if np.isfinite(r_fit) else np.inf
-    if not (np.isfinite(r_fit) and -0.05 <= r_fit <= 0.25 and se_r < 0.005):
+    if not (np.isfinite(r_fit) and -0.05 <= r_fit <= 0.25 and se_r < 0.0025):
         D = np.exp(-rate * t)
         discount_source = "given"
         F = _weighted_median(k[keep] + y[keep] / D, w[keep])
