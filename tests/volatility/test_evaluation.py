@@ -223,3 +223,18 @@ def test_bad_distribution_arguments():
         ev.innovation_cdf(0.0, "t", 2.0)
     with pytest.raises(ValueError):
         ev.innovation_cdf(0.0, "skewt", 5.0)
+
+
+def test_out_of_sample_modules_stay_off_slow_imports():
+    # start-up budget (DEVELOPERS.md): scipy.stats and scipy.signal are slow to import
+    import subprocess
+    import sys
+    code = ("import sys\n"
+            "import optbench.volatility.evaluation, optbench.volatility.realized\n"
+            "import optbench.volatility.cone, optbench.volatility.backtest\n"
+            "bad = [m for m in sys.modules if m.startswith(('scipy.stats', 'scipy.signal',"
+            " 'rich', 'textual'))]\n"
+            "print(','.join(bad))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True)
+    assert out.stdout.strip() == ""
