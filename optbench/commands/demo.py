@@ -64,13 +64,20 @@ def run(args: argparse.Namespace) -> int:
     except OSError as err:
         raise InputError(folder, f"cannot write: {err.strerror or err}") from None
 
+    rows = {name: (folder / name).read_bytes().count(b"\n") - 1
+            for name in written if name.endswith(".csv")}
     if args.format == "json":
         import json
-        payload = json.dumps({"folder": str(folder), "seed": args.seed,
-                              "files": written, "invented": True}, indent=2)
+        files = [{"name": name, "bytes": size, **({"rows": rows[name]} if name in rows else {})}
+                 for name, size in written.items()]
+        payload = json.dumps({"folder": str(folder), "seed": args.seed, "code": demo.CODE,
+                              "files": files, "invented": True}, indent=2)
     else:
         lines = [f"wrote the invented {demo.NAME} ({demo.CODE}) scenario, seed {args.seed}:"]
-        lines += [f"  {folder / name}  ({size:,} bytes)" for name, size in written.items()]
+        for name, size in written.items():
+            what = f"{rows[name]:,} rows, " if name in rows else ""
+            lines.append(f"  {folder / name}  ({what}{size:,} bytes)")
+        lines.append("the data are invented: no real index, company or market event")
         payload = "\n".join(lines)
     write_output(args, payload)
     return 0
