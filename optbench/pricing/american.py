@@ -10,6 +10,9 @@ refinements of Broadie & Detemple (1996), "BBSR":
   price over one step (a smoother start than the payoff), and
 * Richardson extrapolation over two tree sizes, :math:`P = 2P_N - P_{N/2}`.
 
+The result is floored at the immediate-exercise value and at the European
+(Black-Scholes-Merton) value, both no-arbitrage lower bounds (Hull ch. 11).
+
 The tree has :math:`u = e^{\sigma\sqrt{\Delta t}}, d = 1/u`,
 :math:`p = (e^{(r-q)\Delta t} - d)/(u - d)`; at each node the value is
 :math:`\max(\text{exercise}, e^{-r\Delta t}[p V_u + (1-p) V_d])`. Every option of a
@@ -137,7 +140,10 @@ def american_price(S, K, t, r, q, sigma, is_call, steps: int = DEFAULT_STEPS) ->
             fine = _tree(*args, steps)
             coarse = _tree(*args, steps // 2)
             val = 2.0 * fine - coarse
-            out[i] = np.maximum(val, immediate[i])
+            # no-arbitrage floors: immediate exercise, and the European value (which
+            # also repairs the tree's relative error on far out-of-the-money options)
+            euro_i = black_price(F[i], K[i], t[i], D[i], sigma[i], is_call[i])
+            out[i] = np.maximum(np.maximum(val, immediate[i]), euro_i)
     return out.reshape(shape)
 
 

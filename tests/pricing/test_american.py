@@ -1,0 +1,132 @@
+"""American exercise: Hull's binomial-tree example, QuantLib's finite-difference
+engine over a table of cases, no-arbitrage properties, implied vols."""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from optbench.pricing.american import (american_implied_vol, american_implied_vol_with_status,
+                                       american_price)
+from optbench.pricing.bsm import bsm_price
+from optbench.pricing.implied import ABOVE_MAX, BAD_INPUT, BELOW_INTRINSIC, EXPIRED, OK
+
+
+def test_hull_american_put_converges_to_4_28():
+    # Hull, Options, Futures, and Other Derivatives, binomial-tree chapter: American put
+    # S = K = 50, r = 10%, sigma = 40%, T = 5 months; about 4.28 as the tree is refined
+    # (Hull shows 4.49 for 5 steps and 4.29 for 30 steps; from memory)
+    assert float(american_price(50, 50, 5 / 12, 0.10, 0.0, 0.40, False)) == \
+        pytest.approx(4.28, abs=0.006)
+    assert float(american_price(50, 50, 5 / 12, 0.10, 0.0, 0.40, False, steps=400)) == \
+        pytest.approx(4.28, abs=0.006)
+
+
+def _quantlib_american(S, K, t_days, r, q, v, call):
+    import QuantLib as ql
+
+    today = ql.Date(15, 3, 2027)
+    ql.Settings.instance().evaluationDate = today
+    dc = ql.Actual365Fixed()
+    expiry = today + int(t_days)
+    process = ql.BlackScholesMertonProcess(
+        ql.QuoteHandle(ql.SimpleQuote(S)),
+        ql.YieldTermStructureHandle(ql.FlatForward(today, q, dc)),
+        ql.YieldTermStructureHandle(ql.FlatForward(today, r, dc)),
+        ql.BlackVolTermStructureHandle(ql.BlackConstantVol(today, ql.NullCalendar(), v, dc)))
+    option = ql.VanillaOption(ql.PlainVanillaPayoff(ql.Option.Call if call else ql.Option.Put, K),
+                              ql.AmericanExercise(today, expiry))
+    option.setPricingEngine(ql.FdBlackScholesVanillaEngine(process, 600, 600))
+    return option.NPV()
+
+
+CASES = [  # S, K, calendar days, r, q, sigma, call
+    (100, 90, 30, 0.05, 0.00, 0.20, False), (100, 100, 30, 0.05, 0.00, 0.20, False),
+    (100, 110, 30, 0.05, 0.00, 0.20, False), (100, 100, 365, 0.05, 0.00, 0.30, False),
+    (100, 120, 365, 0.08, 0.00, 0.25, False), (100, 80, 365, 0.08, 0.00, 0.25, False),
+    (100, 100, 730, 0.04, 0.02, 0.40, False), (100, 130, 182, 0.06, 0.01, 0.60, False),
+    (100, 100, 182, 0.03, 0.06, 0.25, True), (100, 90, 365, 0.03, 0.08, 0.30, True),
+    (100, 110, 365, 0.02, 0.05, 0.20, True), (100, 80, 730, 0.05, 0.07, 0.35, True),
+    (100, 100, 91, 0.05, 0.00, 0.30, True), (100, 100, 1095, 0.05, 0.03, 0.15, False),
+]
+
+
+@pytest.mark.parametrize("case", CASES)
+def test_within_half_a_percent_of_quantlib(case):
+    # QuantLib FdBlackScholesVanillaEngine (600 x 600 grid) as the accurate reference
+    S, K, days, r, q, v, call = case
+    ref = _quantlib_american(S, K, days, r, q, v, call)
+    mine = float(american_price(S, K, days / 365.0, r, q, v, call))
+    assert mine == pytest.approx(ref, rel=5e-3)
+
+
+def test_call_without_yield_is_european():
+    # Merton (1973): an American call on an asset paying no yield is never exercised early
+    K = np.array([80.0, 100.0, 120.0])
+    np.testing.assert_allclose(american_price(100, K, 1.0, 0.05, 0.0, 0.3, True),
+                               bsm_price(100, K, 1.0, 0.05, 0.0, 0.3, True), rtol=1e-13)
+
+
+def test_at_least_european_and_intrinsic():
+    # no-arbitrage: American >= European and >= immediate exercise (Hull ch. 11)
+    rng = np.random.default_rng(2)
+    n = 400
+    K = rng.uniform(50, 160, n)
+    t = rng.uniform(0.01, 2.5, n)
+    r = rng.uniform(0.0, 0.1, n)
+    q = rng.uniform(0.0, 0.08, n)
+    v = rng.uniform(0.05, 0.9, n)
+    c = rng.random(n) < 0.5
+    a = american_price(100.0, K, t, r, q, v, c)
+    e = bsm_price(100.0, K, t, r, q, v, c)
+    intrinsic = np.maximum(np.where(c, 100.0 - K, K - 100.0), 0.0)
+    assert np.all(a >= e - 1e-12)
+    assert np.all(a >= intrinsic - 1e-12)
+
+
+def test_style_dispatch_from_bsm_price():
+    assert float(bsm_price(50, 50, 5 / 12, 0.10, 0.0, 0.40, False, style="american")) == \
+        pytest.approx(float(american_price(50, 50, 5 / 12, 0.10, 0.0, 0.40, False)))
+
+
+def test_implied_vol_round_trip():
+    rng = np.random.default_rng(4)
+    n = 200
+    K = rng.uniform(70, 140, n)
+    t = rng.uniform(0.05, 2.0, n)
+    v = rng.uniform(0.1, 0.7, n)
+    c = rng.random(n) < 0.5
+    p = american_price(100.0, K, t, 0.05, 0.02, v, c)
+    vol, status = american_implied_vol_with_status(p, 100.0, K, t, 0.05, 0.02, c)
+    intrinsic = np.maximum(np.where(c, 100.0 - K, K - 100.0), 0.0)
+    identifiable = (p - intrinsic) > 1e-3  # a price at the exercise value names no vol
+    assert np.all(status[identifiable] == OK)
+    assert np.nanmax(np.abs(vol[identifiable] - v[identifiable])) < 1e-6
+
+
+def test_implied_vol_against_quantlib_price():
+    # vol backed out of QuantLib's American price (FD engine) is the vol QuantLib used,
+    # to the accuracy of the two numerical methods
+    ref = _quantlib_american(100, 105, 273, 0.06, 0.01, 0.32, False)
+    assert american_implied_vol(ref, 100, 105, 273 / 365, 0.06, 0.01, False) == \
+        pytest.approx(0.32, abs=2e-3)
+
+
+def test_american_reason_codes():
+    vol, status = american_implied_vol_with_status(
+        np.array([5.0, 40.0, 120.0, 5.0, np.nan]), 100.0,
+        np.array([100.0, 140.0, 100.0, 100.0, 100.0]),
+        np.array([1.0, 1.0, 1.0, 0.0, 1.0]), 0.05, 0.0, np.array([False, False, True, True, True]))
+    # 40 < 140 - 100 (immediate exercise); a call above spot; expired; non-finite
+    assert list(status[1:]) == [BELOW_INTRINSIC, ABOVE_MAX, EXPIRED, BAD_INPUT]
+    assert status[0] == OK and np.all(np.isnan(vol[1:]))
+    v, code = american_implied_vol_with_status(4.28, 50, 50, 5 / 12, 0.10, 0.0, False)
+    assert isinstance(v, float) and code == OK and v == pytest.approx(0.40, abs=1e-3)
+
+
+def test_implied_vol_dispatch_and_bad_types():
+    from optbench.pricing.implied import implied_vol
+    p = float(american_price(100, 110, 0.5, 0.05, 0.0, 0.25, False))
+    assert implied_vol(p, 100, 110, 0.5, 0.05, 0.0, False, style="american") == \
+        pytest.approx(0.25, abs=1e-6)
+    with pytest.raises(TypeError):
+        american_price("100", 100, 1.0, 0.05, 0.0, 0.2, True)
