@@ -24,7 +24,8 @@ from optbench.volatility import forecast as fc
 from optbench.volatility.distributions import (NU_MIN, get_distribution, normal_loglik,
                                                std_t_draws, std_t_loglik)
 from optbench.volatility.recursions import (backcast_value, egarch_log_variance,
-                                            garch_variance, linear_filter)
+                                            garch_variance, linear_filter,
+                                            reverse_filter)
 from optbench.volatility.specs import EWMA_LAMBDA, get_spec
 
 MIN_RETURNS = 250
@@ -148,10 +149,58 @@ class _Problem:
         return -float(np.mean(ll))
 
     def objective_grad(self, theta):
-        ll, sc = self.score_obs(theta)
-        if ll is None or not np.all(np.isfinite(ll)):
+        """Minus the mean log-likelihood and its analytic gradient (GARCH, GJR).
+
+        Reverse mode: with ``w_t = dl_t/dsigma^2_t`` and the adjoint filter
+        ``lam_t = w_t + beta lam_{t+1}``, ``dL/dtheta = sum_t lam_t du_t/dtheta``
+        (``u_t`` the filter input; ``sigma^2_{t-1}`` for beta), so one backward
+        filter replaces one forward filter per parameter.
+        """
+        mu, p, nu = self.unpack(theta)
+        y = self.y
+        eps = y - mu
+        alpha, gamma, beta = p["alpha"], p.get("gamma", 0.0), p["beta"]
+        bc = self.backcast
+        e2 = eps * eps
+        neg = eps < 0
+        a = np.empty(self.n)
+        a[0] = bc
+        a[1:] = e2[:-1]
+        g = None
+        if self.spec.name == "gjr":
+            g = np.empty(self.n)
+            g[0] = 0.5 * bc
+            g[1:] = np.where(neg[:-1], e2[:-1], 0.0)
+            u = p["omega"] + alpha * a + gamma * g
+        else:
+            u = p["omega"] + alpha * a
+        s2 = linear_filter(u, beta, bc)
+        if not (s2.min() > 0) or not np.isfinite(s2[-1]):
             return 1e6, np.zeros(self.k)
-        return -float(np.mean(ll)), -sc.mean(axis=0)
+        if nu is None:
+            ll, d_s2, d_e = normal_loglik(eps, s2, grad=True)
+            d_nu = None
+        else:
+            ll, d_s2, d_e, d_nu = std_t_loglik(eps, s2, nu, grad=True)
+        lam = reverse_filter(d_s2, beta)
+        s2_lag = np.empty(self.n)
+        s2_lag[0] = bc
+        s2_lag[1:] = s2[:-1]
+        grad = []
+        if self.has_mu:
+            coef = alpha + gamma * neg[:-1] if g is not None else alpha
+            grad.append(-2.0 * np.dot(lam[1:], eps[:-1] * coef) - d_e.sum())
+        grad.append(lam.sum())
+        grad.append(np.dot(lam, a))
+        if g is not None:
+            grad.append(np.dot(lam, g))
+        grad.append(np.dot(lam, s2_lag))
+        if d_nu is not None:
+            grad.append(d_nu.sum())
+        total = float(ll.sum())
+        if not math.isfinite(total):
+            return 1e6, np.zeros(self.k)
+        return -total / self.n, -np.array(grad) / self.n
 
     def bounds(self, var):
         sd = math.sqrt(var)
@@ -184,13 +233,11 @@ class _Problem:
         if self.spec.linear:
             _, sc = self.score_obs(theta)
             H = np.empty((k, k))
-            for i in range(k):
-                tp, tm = theta.copy(), theta.copy()
+            g0 = self.objective_grad(theta)[1]
+            for i in range(k):   # forward differences of the analytic gradient
+                tp = theta.copy()
                 tp[i] += h[i]
-                tm[i] -= h[i]
-                gp = self.score_obs(tp)[1].sum(axis=0)
-                gm = self.score_obs(tm)[1].sum(axis=0)
-                H[:, i] = (gp - gm) / (2 * h[i])
+                H[:, i] = -self.n * (self.objective_grad(tp)[1] - g0) / h[i]
             return sc, 0.5 * (H + H.T)
         # non-linear recursion: central differences of the per-observation likelihood
         sc = np.empty((self.n, k))

@@ -14,6 +14,7 @@ are kept only so that tests can check the fast versions against them.
 """
 from __future__ import annotations
 
+import functools
 import math
 
 import numpy as np
@@ -23,7 +24,17 @@ LN_VARIANCE_CAP = 30.0  # cap on the log-variance in the EGARCH loop (overflow g
 
 
 def _block_length(n: int) -> int:
-    return max(8, min(256, int(math.ceil(math.sqrt(max(n, 1))))))
+    return max(8, min(128, int(math.sqrt(max(n, 1) / 2.0))))
+
+
+@functools.lru_cache(maxsize=64)
+def _block_indices(L: int, nb: int):
+    """Lag indices and masks of the two lower-triangular Toeplitz matrices."""
+    k = np.arange(L)
+    lag = k[:, None] - k[None, :]
+    m = np.arange(nb)
+    mlag = m[:, None] - m[None, :]
+    return np.maximum(lag, 0), lag >= 0, np.maximum(mlag - 1, 0), mlag >= 1
 
 
 def linear_filter(u: np.ndarray, b: float, x0: np.ndarray | float = 0.0) -> np.ndarray:
@@ -34,8 +45,7 @@ def linear_filter(u: np.ndarray, b: float, x0: np.ndarray | float = 0.0) -> np.n
     u : ndarray, shape (..., n)
         Inputs; leading axes are independent channels filtered with the same ``b``.
     b : float
-        Filter coefficient, ``0 <= b < 1`` in the uses here (any finite value works,
-        but ``|b| > 1`` loses accuracy for long series).
+        Filter coefficient, ``0 <= b < 1`` in the uses here.
     x0 : float or ndarray broadcastable to ``u.shape[:-1]``
         Value before the first input.
 
@@ -55,7 +65,6 @@ def linear_filter(u: np.ndarray, b: float, x0: np.ndarray | float = 0.0) -> np.n
     u = np.asarray(u, dtype=float)
     n = u.shape[-1]
     lead = u.shape[:-1]
-    x0 = np.broadcast_to(np.asarray(x0, dtype=float), lead)
     if n == 0:
         return u.copy()
     L = _block_length(n)
@@ -63,21 +72,29 @@ def linear_filter(u: np.ndarray, b: float, x0: np.ndarray | float = 0.0) -> np.n
     pad = nb * L - n
     if pad:
         u = np.concatenate([u, np.zeros(lead + (pad,))], axis=-1)
-    U = u.reshape(lead + (nb, L))
-    k = np.arange(L)
-    lag = k[:, None] - k[None, :]
+    lagc, mask, mlagc, mmask = _block_indices(L, nb)
+    b = float(b)
     with np.errstate(under="ignore", over="ignore", invalid="ignore"):
-        T = np.where(lag >= 0, float(b) ** np.maximum(lag, 0), 0.0)  # T[k, j] = b^(k-j)
-        Y = U @ T.T                                      # within-block responses
-        bL = float(b) ** L
-        m = np.arange(nb)
-        mlag = m[:, None] - m[None, :]
-        # carry into block m: c_m = sum_{i<m} bL^(m-1-i) * Y[i, L-1] + bL^m * x0
-        C = np.where(mlag >= 1, bL ** np.maximum(mlag - 1, 0), 0.0)
-        carry = Y[..., :, L - 1] @ C.T + x0[..., None] * bL ** m
-        powers = float(b) ** (k + 1)
-        X = Y + carry[..., :, None] * powers
+        pw = b ** np.arange(L + 1)
+        T = np.where(mask, pw[lagc], 0.0)                  # T[k, j] = b^(k-j)
+        Y = (u.reshape(-1, L) @ T.T).reshape(lead + (nb, L))  # within-block responses
+        pwb = pw[L] ** np.arange(nb)
+        C = np.where(mmask, pwb[mlagc], 0.0)
+        x0 = np.broadcast_to(np.asarray(x0, dtype=float), lead)
+        # carry into block m: c_m = sum_{i<m} (b^L)^(m-1-i) Y[i, L-1] + (b^L)^m x0
+        carry = Y[..., :, L - 1] @ C.T + x0[..., None] * pwb
+        X = Y + carry[..., :, None] * pw[1:]
     return X.reshape(lead + (nb * L,))[..., :n]
+
+
+def reverse_filter(w: np.ndarray, b: float) -> np.ndarray:
+    """Solve ``l_t = w_t + b * l_{t+1}`` backwards in time with ``l_n = 0``.
+
+    This is the adjoint of :func:`linear_filter`: for any inputs ``v``,
+    ``sum_t w_t [F v]_t = sum_t v_t l_t``, which turns the gradient of a sum over
+    filtered variances into one backward filter plus dot products.
+    """
+    return linear_filter(np.asarray(w)[..., ::-1], b)[..., ::-1]
 
 
 def linear_filter_loop(u: np.ndarray, b: float, x0: float = 0.0) -> np.ndarray:

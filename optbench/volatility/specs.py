@@ -44,10 +44,10 @@ class VolSpec:
     def starting_values(self, var: float) -> list[list[float]]:
         """Candidate starting points (a small grid; the estimator keeps the best)."""
         if self.name == "garch":
-            grid = itertools.product((0.03, 0.07, 0.12), (0.85, 0.95, 0.99))
+            grid = ((0.05, 0.90), (0.08, 0.97), (0.12, 0.99))
             return [[var * (1 - p), a, p - a] for a, p in grid]
         if self.name == "gjr":
-            grid = itertools.product((0.01, 0.05), (0.05, 0.15), (0.90, 0.97, 0.99))
+            grid = ((0.03, 0.10, 0.95), (0.01, 0.15, 0.98), (0.06, 0.06, 0.90))
             return [[var * (1 - p), a, g, p - a - g / 2] for a, g, p in grid]
         if self.name == "egarch":
             grid = itertools.product((0.05, 0.15), (-0.1, 0.0), (0.95, 0.98))
