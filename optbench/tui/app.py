@@ -28,7 +28,10 @@ _VIEW_TABLE = {"overview": "report", "term": "expiries", "smile": "strikes",
                "richcheap": "expiries", "hedge": "hedge", "model": "report",
                "quality": "rejected"}
 
-STEPS = 3
+#: progress steps: loading, the comparison's own steps (forwards and vols, fit,
+#: simulation, smiles, out-of-sample check, ...), the headline hedge
+STEPS = 8
+VIEW_KEYS = Binding.Group(description="views", compact=True)
 
 
 class Progress(Message):
@@ -52,10 +55,22 @@ class Computed(Message):
         self.seconds = seconds
 
 
-class Failed(Message):
-    def __init__(self, token: int, error: str) -> None:
+class Checked(Message):
+    """The out-of-sample check has finished: the comparison with its backtest."""
+
+    def __init__(self, token: int, comparison) -> None:
         super().__init__()
-        self.token, self.error = token, error
+        self.token, self.comparison = token, comparison
+
+
+class Failed(Message):
+    def __init__(self, token: int, error: str, stage: str = "open") -> None:
+        super().__init__()
+        self.token, self.error, self.stage = token, error, stage
+
+
+class _Cancelled(Exception):
+    """Raised inside the core's progress callback to stop a stale run early."""
 
 
 def _describe(err: BaseException) -> str:
@@ -70,7 +85,7 @@ class Workbench(App):
     CSS_PATH = "app.tcss"
     TITLE = "optbench"
     BINDINGS = [
-        *[Binding(key, f"view('{vid}')", title, id=f"view.{vid}") for vid, key, title in VIEWS],
+        *[Binding(key, f"view('{vid}')", title, id=f"view.{vid}", group=VIEW_KEYS) for vid, key, title in VIEWS],
         Binding("o", "open", "Open", id="app.open"),
         Binding("m", "settings", "Model & market", id="app.settings"),
         Binding("r", "recompute", "Recompute", id="app.recompute"),
@@ -89,6 +104,8 @@ class Workbench(App):
         self.error: str | None = None
         self._token = 0
         self.last_export: Path | None = None
+        self.last_compute_seconds: float | None = None
+        self.checked = False
 
     # ----------------------------------------------------------------- set-up
     def get_default_screen(self) -> WorkbenchScreen:
@@ -114,27 +131,39 @@ class Workbench(App):
     def compute(self, inputs: session.Inputs, token: int) -> None:
         worker = get_current_worker()
         started = time.perf_counter()
+        stage = "open"
         try:
             self.post_message(Progress(token, 0, "loading and validating the chain"))
             scenario = session.load(inputs)
             if worker.is_cancelled:
                 return
             self.post_message(Loaded(token, scenario.chain))
-            self.post_message(Progress(token, 1, f"fitting {inputs.settings.model} / "
-                                                 f"{inputs.settings.dist}, forecasting, "
-                                                 f"simulating {session.N_PATHS:,} paths"))
-            comparison = session.run_compare(inputs, scenario)
+            step = [1]
+
+            def progress(text: str) -> None:
+                if worker.is_cancelled:
+                    raise _Cancelled()
+                step[0] += 1
+                self.post_message(Progress(token, min(step[0], STEPS - 3), text))
+
+            comparison = session.run_compare(inputs, scenario, progress)
             if worker.is_cancelled:
                 return
-            self.post_message(Progress(token, 2, "pricing the headline protection"))
+            self.post_message(Progress(token, STEPS - 2, "pricing the headline protection"))
             headline = session.headline_hedge(comparison)
             if worker.is_cancelled:
                 return
             self.post_message(Computed(token, comparison, headline,
                                        time.perf_counter() - started))
+            stage = "check"
+            checked = session.run_backtest(scenario, comparison)
+            if not worker.is_cancelled:
+                self.post_message(Checked(token, checked))
+        except _Cancelled:
+            return
         except Exception as err:  # shown to the user; the app keeps running
             if not worker.is_cancelled:
-                self.post_message(Failed(token, _describe(err)))
+                self.post_message(Failed(token, _describe(err), stage))
 
     def _status(self, text: str) -> None:
         self.screen_stack[0].query_one("#status-text", Static).update(text)
@@ -162,18 +191,36 @@ class Workbench(App):
             return
         self.comparison, self.headline = msg.comparison, msg.headline
         c = msg.comparison
-        self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=STEPS)
+        self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=STEPS - 1)
         self.sub_title = f"{c.underlying} · {c.asof.isoformat()} · spot {c.spot:,.2f}"
+        self.last_compute_seconds = msg.seconds
+        self.checked = False
         self._status(f"{c.underlying}: {len(c.expiries)} expiries, model {c.model.name}/"
-                     f"{c.model.dist}; ready in {msg.seconds:.1f} s")
+                     f"{c.model.dist} — checking the model out of sample …")
         self.view("overview").show(c, msg.headline)
         for vid in ("term", "smile", "richcheap", "model", "hedge"):
             self.view(vid).show(c)
         self.view("quality").show(c.quality, c.rejected, c.source)
 
+    @on(Checked)
+    def _checked(self, msg: Checked) -> None:
+        if msg.token != self._token:
+            return
+        self.comparison = c = msg.comparison
+        self.checked = True
+        self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=STEPS)
+        self._status(f"{c.underlying}: {len(c.expiries)} expiries, model {c.model.name}/"
+                     f"{c.model.dist}, checked out of sample — ready")
+        self.view("overview").show(c, self.headline)
+        self.view("model").show(c)
+
     @on(Failed)
     def _failed(self, msg: Failed) -> None:
         if msg.token != self._token:
+            return
+        if self.comparison is not None and msg.stage == "check":
+            self.notify(msg.error, title="Out-of-sample check failed", severity="warning")
+            self._status(f"out-of-sample check failed: {msg.error}")
             return
         self.error = msg.error
         self._status(f"✗ {msg.error}")

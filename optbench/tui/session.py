@@ -14,7 +14,7 @@ from typing import Any
 from optbench.errors import InputError
 from optbench.tui.dialogs.requests import OpenRequest, Settings
 
-#: the simulation behind bands, probabilities and expected payoffs; the same as
+#: the simulation behind the hedge's expected payoff and probability; the same as
 #: ``optbench hedge`` uses, so the planner shows the command's numbers.
 N_PATHS = 20000
 SEED = 7
@@ -63,13 +63,36 @@ def load(inputs: Inputs):
     return load_scenario(inputs.source.chain, **overrides)
 
 
-def run_compare(inputs: Inputs, scenario):
-    """The full comparison (step 2) on the loaded scenario: a
-    :class:`~optbench.analysis.results.Comparison`."""
+def run_compare(inputs: Inputs, scenario, progress=None):
+    """The comparison (step 2) on the loaded scenario: a
+    :class:`~optbench.analysis.results.Comparison` (its out-of-sample check follows
+    separately, :func:`run_backtest`, so the first screen does not wait for it).
+
+    ``progress`` is called with a short text before each long step.
+    """
     from optbench import compare
     s = inputs.settings
     return compare(scenario, None, model=s.model, dist=s.dist, mean=s.mean,
-                   n_paths=N_PATHS, seed=SEED, **s.extra)
+                   progress=progress, **s.extra)
+
+
+#: out-of-sample days of the model check: the last year of returns, as
+#: ``optbench compare --backtest`` without a split date
+OUT_OF_SAMPLE_DAYS = 252
+
+
+def run_backtest(scenario, comparison):
+    """The out-of-sample check of the comparison's fitted model (same model name,
+    distribution and mean) over the last :data:`OUT_OF_SAMPLE_DAYS` returns; returns
+    the comparison with its ``backtest`` summary filled in."""
+    from dataclasses import replace as _replace
+
+    from optbench.volatility.backtest import backtest
+    dates = scenario.history.dates
+    split = str(dates[max(len(dates) - OUT_OF_SAMPLE_DAYS - 1, 1)])[:10]
+    m = comparison.model
+    result = backtest(scenario.history, split, model=m.name, dist=m.dist, mean=m.mean)
+    return _replace(comparison, backtest=result.to_dict())
 
 
 def run_hedge(comparison, **request):

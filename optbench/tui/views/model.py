@@ -37,7 +37,7 @@ def counts_table(bt: dict | None) -> Table:
     t.add_column("Expected", justify="right")
     t.add_column("Zone / p", justify="right")
     if not bt:
-        t.add_row("no out-of-sample check in this comparison", "", "", "")
+        t.add_row("checking the model out of sample …", "", "", "")
         return t
     k = bt.get("band_k", 3)
     t.add_row(f"days outside ±{k:g}σ (of {bt.get('n_out', '?')})", str(bt.get("outside_band", "–")),
@@ -104,11 +104,13 @@ class ModelView(Horizontal):
             st.add_row(str(s["date"]), f"{s['z']:+.2f}")
         self.query_one("#model-surprises", Static).update(st)
         self.query_one("#model-returns", CellPlot).show(returns_plot(comparison))
-        h = comparison.history
-        if h is not None and "z" in h:
-            z = h["z"].to_numpy(float)
-            z = z[np.isfinite(z)]
-            counts, edges = np.histogram(z, bins=np.linspace(-6, 6, 25))
-            self.query_one("#model-hist", BarChart).show(
-                edges, counts, title="Standardised residuals (ret − μ)/σ, whole history",
-                x_format="{:+.0f}")
+        hist = (bt or {}).get("histogram")
+        chart = self.query_one("#model-hist", BarChart)
+        if hist:
+            below, above = hist.get("below", 0), hist.get("above", 0)
+            outside = f"; {below} below and {above} above the range" if below or above else ""
+            chart.show(hist["edges"], hist["counts"], expected=hist.get("expected_counts"),
+                       title=f"Out-of-sample residuals z = (r − μ)/σ, {bt.get('n_out')} days"
+                             f"{outside}", x_format="{:+.0f}")
+        else:
+            chart.show([], [], title="Out-of-sample residuals: checking …")

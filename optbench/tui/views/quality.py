@@ -11,7 +11,7 @@ from optbench.tui.widgets.table import SortableTable
 
 def quality_summary(quality: dict, source: str) -> Table:
     t = Table(title=f"Ingestion report — {source}", title_justify="left", header_style="bold",
-              expand=True)
+              expand=False, min_width=60)
     t.add_column("Rows")
     t.add_column("Count", justify="right")
     t.add_row("read from the file", str(quality.get("rows_in", 0)))

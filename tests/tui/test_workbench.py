@@ -1,0 +1,191 @@
+"""Pilot tests: open the demo, visit every view, edit the hedge planner, export, and
+open broken input — the app must answer each with the core's numbers or a clear
+message, and keep running."""
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+
+import pandas as pd
+import pytest
+from textual.widgets import Input, Select, Static, TabbedContent
+
+from optbench.tui.app import make_app
+from optbench.tui.screens.workbench import VIEWS
+
+from .conftest import ROOT, SIZE, settle
+
+
+async def test_demo_opens_and_every_view_shows_the_comparison(demo):
+    app = make_app()  # no path: the bundled demo
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(app, pilot)
+        assert app.error is None
+        c = app.comparison
+        assert c is not None and c.underlying == "ZPHX" and len(c.expiries) >= 5
+        tabs = app.screen.query_one("#views", TabbedContent)
+        for view_id, key, _ in VIEWS:
+            await pilot.press(key)
+            await pilot.pause()
+            assert tabs.active == view_id
+        # the overview's headline is the headline hedge estimate, as a % of the portfolio
+        headline = str(app.screen.query_one("#ov-headline", Static).render())
+        assert app.headline is not None
+        assert f"{app.headline.cost_pct * 100:.2f}%" in headline
+        assert app.headline.caution in str(app.screen.query_one("#ov-caution", Static).render())
+        # one term-structure row and one rich/cheap row per expiry, in the result's order
+        term = app.screen.query_one("#term-table")
+        assert term.row_count == len(c.expiries)
+        assert [r[0] for r in term.raw_rows] == [r.expiry.isoformat() for r in c.expiries]
+        rc = app.screen.query_one("#rc-expiries")
+        verdict_col = [str(v) for v in rc.get_column_at(len(rc.columns) - 1)]
+        # readable without colour: each verdict has its text mark
+        marks = {"rich": "▲ rich", "fair": "= fair", "cheap": "▼ cheap", "n/a": "? n/a"}
+        assert verdict_col == [marks[r.verdict] for r in c.expiries]
+        # the strike table holds the chosen expiry's quotes
+        strikes = app.screen.query_one("#rc-strikes")
+        assert strikes.row_count == len(c.strike_frame(app.view("richcheap").expiry))
+        # sorting the strike table by edge (vol points) orders the raw values
+        strikes.focus()
+        strikes.move_cursor(column=11)
+        await pilot.press("s")
+        edge = [r[11] for r in strikes.raw_rows]
+        shown = [strikes.get_row_at(i) for i in range(strikes.row_count)]
+        assert shown[0][11].plain.endswith(f"{min(e for e in edge if e == e):+.2f}")
+        # data quality: the counts add up and every rejected row is listed
+        q = c.quality
+        assert q["rows_in"] == q["rows_used"] + sum(q["rejected"].values())
+        assert app.screen.query_one("#dq-rejected").row_count == sum(q["rejected"].values())
+        # help lists every key with its description
+        await pilot.press("question_mark")
+        await pilot.pause()
+        listed = {(key, does) for key, does, _ in app.screen.entries}
+        for b in app.BINDINGS:
+            assert (b.key_display or b.key, b.description) in listed or not b.description
+        await pilot.press("escape")
+        await pilot.pause()
+        assert app.screen.query_one("#views", TabbedContent).active == "quality"
+
+
+async def _fill(pilot, app, widget_id: str, text: str) -> None:
+    field = app.screen.query_one(widget_id, Input)
+    field.value = text
+    await pilot.pause()
+
+
+def _cli_hedge(args: list[str]) -> dict:
+    out = subprocess.run([sys.executable, "-m", "optbench", "hedge", str(ROOT / "chains" / "ZPHX"),
+                          "--format", "json", *args], capture_output=True, text=True,
+                         cwd=ROOT, timeout=120)
+    assert out.returncode == 0, out.stderr
+    return json.loads(out.stdout)
+
+
+@pytest.mark.slow
+async def test_hedge_planner_equals_the_hedge_command(demo):
+    app = make_app()
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(app, pilot)
+        await pilot.press("5")
+        expiry = app.comparison.expiries[3].expiry.isoformat()
+        await _fill(pilot, app, "#hedge-portfolio", "2,500,000")
+        await _fill(pilot, app, "#hedge-beta", "1.3")
+        await _fill(pilot, app, "#hedge-floor", "92")
+        app.screen.query_one("#hedge-expiry", Select).value = expiry
+        app.screen.query_one("#hedge-structure", Select).value = "collar"
+        await pilot.pause(0.3)
+        await settle(app, pilot)
+        est = app.view("hedge").estimate
+        assert est is not None and est.structure == "collar"
+        shown = str(app.screen.query_one("#hedge-summary", Static).render())
+        ref = _cli_hedge(["--portfolio", "2500000", "--beta", "1.3", "--floor", "0.92",
+                          "--expiry", expiry, "--structure", "collar"])
+        assert est.contracts == ref["contracts"]
+        assert [float(k) for k in est.strikes] == pytest.approx(ref["strikes"])
+        for key in ("premium_mid", "premium_paid", "premium_at_forecast", "expected_payoff",
+                    "overpay", "cost_pct", "cost_pct_annual"):
+            assert getattr(est, key) == pytest.approx(ref[key], rel=1e-9, abs=1e-6), key
+        assert [s["hedged"] for s in est.scenarios] == pytest.approx(
+            [s["hedged"] for s in ref["scenarios"]])
+        assert est.caution == ref["caution"]
+        assert f"{ref['premium_paid']:,.0f}" in shown  # the screen shows the command's number
+        # a beta of "abc" is a clear message, the last estimate stays, the app keeps running
+        await _fill(pilot, app, "#hedge-beta", "abc")
+        await pilot.pause(0.3)
+        error = str(app.screen.query_one("#hedge-error", Static).render())
+        assert "beta" in error and "not a number" in error
+        await _fill(pilot, app, "#hedge-portfolio", "")
+        await pilot.pause(0.3)
+        assert "empty" in str(app.screen.query_one("#hedge-error", Static).render())
+        assert app.is_running
+
+
+async def test_export_writes_the_table_and_says_where(demo, tmp_path):
+    app = make_app()
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(app, pilot)
+        await pilot.press("4", "e")
+        await pilot.pause()
+        target = tmp_path / "expiries.csv"
+        app.screen.query_one("#export-path", Input).value = str(target)
+        await pilot.press("ctrl+s")
+        await settle(app, pilot)
+        assert app.last_export == target and target.exists()
+        table = pd.read_csv(target, skiprows=1)  # first line: the optbench comment + caution
+        assert list(pd.to_datetime(table["expiry"]).dt.date) == [
+            r.expiry for r in app.comparison.expiries]
+        assert table["atm_iv"].to_numpy() == pytest.approx(
+            [r.atm_iv for r in app.comparison.expiries], nan_ok=True)
+        assert any(str(target) in str(n.message) for n in app._notifications)
+
+
+async def test_broken_file_is_a_clear_message_and_the_app_keeps_running(tmp_path, demo):
+    bad = tmp_path / "chain.csv"
+    bad.write_text("this,is,not\nan,option,chain\n")
+    (tmp_path / "history.csv").write_text((demo / "history.csv").read_text())
+    app = make_app(bad)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(app, pilot)
+        assert app.comparison is None and app.error is not None
+        assert str(bad) in app.error and "Traceback" not in app.error
+        assert "✗" in str(app.screen.query_one("#ov-headline", Static).render())
+        # open the demo from the file picker: the app recovers
+        await pilot.press("o")
+        await pilot.pause()
+        app.screen.query_one("#open-chain", Input).value = str(demo)
+        await pilot.press("ctrl+o")
+        await settle(app, pilot)
+        assert app.error is None and app.comparison is not None
+        # a path that does not exist is refused inside the picker
+        await pilot.press("o")
+        await pilot.pause()
+        app.screen.query_one("#open-chain", Input).value = str(tmp_path / "nope.csv")
+        await pilot.press("ctrl+o")
+        await pilot.pause()
+        assert "no such file" in str(app.screen.query_one("#open-error", Static).render())
+        await pilot.press("escape")
+        assert app.is_running
+
+
+async def test_changing_the_model_recomputes_and_drops_stale_work(demo):
+    app = make_app()
+    async with app.run_test(size=SIZE) as pilot:
+        # change the model while the first run is still going: only the last run counts
+        app.inputs = app.inputs.with_settings(
+            app.inputs.settings.__class__(model="garch", dist="normal"))
+        app.start_compute()
+        await settle(app, pilot)
+        c = app.comparison
+        assert c.model.dist == "normal" and c.model.name.lower().startswith("garch")
+        # the settings dialog refuses a rate of "x" with a one-line message
+        await pilot.press("m")
+        await pilot.pause()
+        app.screen.query_one("#set-rate", Input).value = "x"
+        await pilot.press("ctrl+s")
+        await pilot.pause()
+        assert "rate: not a number" in str(app.screen.query_one("#settings-error", Static).render())
+        app.screen.query_one("#set-rate", Input).value = "5"
+        await pilot.press("ctrl+s")
+        await settle(app, pilot)
+        assert app.comparison.rate == pytest.approx(0.05)
