@@ -391,7 +391,7 @@ def _build_chain(rng: np.random.Generator, history: DemoHistory,
     vega = spot * np.exp(-DIV_YIELD * t) * np.sqrt(t) * np.exp(-0.5 * d1 ** 2) / np.sqrt(2 * np.pi)
     # half-spread in vol: a base, more far from the money (in standard deviations)
     # and at the short end
-    half_vol = 0.0035 + 0.0015 * np.minimum(np.abs(k) / sd, 4.0) + 0.002 / np.sqrt(t * 12.0)
+    half_vol = 0.0015 + 0.001 * np.minimum(np.abs(k) / sd, 4.0) + 0.0015 / np.sqrt(t * 12.0)
     half = np.maximum(vega * half_vol, 0.5 * _tick(mid))
     half = np.maximum(half, 0.004 * mid)
     bid = _round_down(mid - half)
