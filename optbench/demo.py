@@ -67,7 +67,7 @@ bad rows (see :data:`BAD_ROWS`; everything else is clean):
 4. ``duplicate`` -- a second line for a 2027-05-21 put, with a different quote;
 5. ``expired``   -- two lines (a call and a put) for 2026-11-20, a week before the
    quote date;
-6. ``unparseable`` -- a 2026-12-11 line whose strike reads ``"3,4OO"`` (letters in
+6. ``unparseable`` -- a 2026-12-11 line whose strike reads ``"5,O5O.00"`` (letters in
    place of digits) and whose symbol is blank, so no strike can be read from it.
 """
 from __future__ import annotations
