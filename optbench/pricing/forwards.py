@@ -77,11 +77,10 @@ def parity_pairs(quotes: pd.DataFrame) -> pd.DataFrame:
     q = q.sort_values("spread_").drop_duplicates(["expiry", "strike", "is_call"])
     calls = q[q["is_call"]].set_index(["expiry", "strike"])
     puts = q[~q["is_call"]].set_index(["expiry", "strike"])
-    both = calls[["t", "mid_", "spread_"]].join(
-        puts[["mid_", "spread_"]], how="inner", lsuffix="_c", rsuffix="_p")
-    both = both.reset_index().rename(columns={"mid__c": "c_mid", "mid__p": "p_mid",
-                                              "spread__c": "c_spread",
-                                              "spread__p": "p_spread"})
+    calls = calls[["t", "mid_", "spread_"]].rename(
+        columns={"mid_": "c_mid", "spread_": "c_spread"})
+    puts = puts[["mid_", "spread_"]].rename(columns={"mid_": "p_mid", "spread_": "p_spread"})
+    both = calls.join(puts, how="inner").reset_index()
     return both[["expiry", "t", "strike", "c_mid", "p_mid", "c_spread", "p_spread"]]
 
 
