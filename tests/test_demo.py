@@ -105,6 +105,16 @@ def test_cli_rejects_a_bad_seed_in_one_line(capsys):
     assert len(err.splitlines()) == 1 and "--seed" in err
 
 
+def test_cli_needs_out_outside_a_checkout(monkeypatch, capsys):
+    from optbench.cli import main
+    from optbench.commands import demo as demo_command
+    assert demo_command.checkout_folder() == FOLDER      # running from this checkout
+    monkeypatch.setattr(demo_command, "checkout_folder", lambda: None)
+    assert main(["demo"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "--out" in err
+
+
 def test_cli_refuses_to_write_over_a_file(tmp_path, capsys):
     from optbench.cli import main
     target = tmp_path / "not_a_folder"
