@@ -48,6 +48,7 @@ class VarCheck:
     conditional_coverage: ev.LRTest
     zone: str                    # over the whole out-of-sample period
     windows: tuple               # per 250-day block: dicts start, end, exceedances, zone
+    hits: np.ndarray = field(repr=False, default=None)  # bool per out-of-sample day
 
     def to_dict(self) -> dict:
         return {
@@ -424,7 +425,8 @@ def backtest(history, split, model: str = "auto", dist: str = "t",
             kupiec=ev.kupiec_pof(x, n_out, 1.0 - level),
             independence=ev.christoffersen_independence(hits),
             conditional_coverage=ev.christoffersen_conditional_coverage(hits, 1.0 - level),
-            zone=ev.basel_zone(x, n_out, level), windows=_zone_windows(hits, dout, level)))
+            zone=ev.basel_zone(x, n_out, level), windows=_zone_windows(hits, dout, level),
+            hits=hits))
 
     stats = ev.residual_stats(z)
     last_dist, last_nu = _innovation(fits[-1])

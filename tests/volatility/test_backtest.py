@@ -111,6 +111,7 @@ def test_var_quantiles_match_scipy_t(result):
         r_out = result.returns_out
         hits = r_out < result.mu + result.sigma_out * q
         assert v.exceedances == int(hits.sum())
+        np.testing.assert_array_equal(v.hits, hits)
         assert v.expected == pytest.approx(result.n_out * (1 - v.level))
 
 
@@ -156,6 +157,23 @@ def test_to_dict_has_design_keys(result):
     assert d["var"][0]["zone"] in ("green", "yellow", "red")
     import json
     json.dumps(d)
+
+
+def test_egarch_multi_step_forecasts_match_fixed_fit(series):
+    # EGARCH-normal h-day forecasts from each origin against the fixed-parameter
+    # fit's own forecast (optbench.volatility.garch.fix_garch, Nelson 1991 moments,
+    # which its tests check against arch) restarted at that origin
+    from optbench.volatility.garch import fix_garch
+    r, dates = series
+    res = backtest(r[:2000], dates[1 + SPLIT_AT], model="egarch", dist="normal",
+                   dates=dates[:2001], horizons=(5, 21))
+    p = res.model["params"]
+    for acc in res.accuracy:
+        for j in (0, 137, acc.n - 1):
+            origin = SPLIT_AT + 1 + j          # first return forecast
+            fixed = fix_garch(r[:origin], p, "egarch", "normal")
+            expected = fixed.forecast_variance(acc.horizon).sum() + acc.horizon * p["mu"] ** 2
+            assert acc.forecasts["model"][j] == pytest.approx(expected, rel=1e-6)
 
 
 def test_periodic_refits(series):

@@ -2,6 +2,7 @@
 pandas' rolling standard deviation, and the true sigma of simulated Brownian OHLC."""
 from __future__ import annotations
 
+import functools
 import math
 from types import SimpleNamespace
 
@@ -87,6 +88,7 @@ def test_yang_zhang_direct_formula():
         assert out[end] == pytest.approx(math.sqrt(252 * var), rel=1e-12)
 
 
+@functools.lru_cache(maxsize=4)
 def _brownian_ohlc(n_days, sigma_annual, drift_annual=0.0, overnight_share=0.0,
                    steps=800, seed=0):
     """OHLC of a geometric Brownian motion sampled `steps` times a day; a share of
