@@ -69,19 +69,19 @@ def _parse_unique(values: pd.Series) -> pd.Series:
     if not remaining.any():
         return out
     rest = text[remaining]
-    tried = [(fmt, pd.to_datetime(rest, format=fmt, errors="coerce"))
-             for fmt in DATE_FORMATS[1:]]
-    # best format first: most values read; ties keep the order of DATE_FORMATS
-    tried.sort(key=lambda item: -int(item[1].notna().sum()))
-    left = np.ones(len(rest), dtype=bool)
-    idx = rest.index
-    for _fmt, parsed in tried:
-        got = left & parsed.notna().to_numpy()
-        if got.any():
-            out.loc[idx[got]] = parsed[got].to_numpy()
-            left = left & ~got
+    # rank the other formats on a sample of the values; ties keep DATE_FORMATS order
+    sample = rest.iloc[:256]
+    ranked = sorted(DATE_FORMATS[1:], key=lambda fmt: -int(
+        pd.to_datetime(sample, format=fmt, errors="coerce").notna().sum()))
+    for fmt in ranked:
+        left = out.isna().to_numpy() & remaining
         if not left.any():
             break
+        idx = out.index[left]
+        parsed = pd.to_datetime(text[idx], format=fmt, errors="coerce")
+        got = parsed.notna().to_numpy()
+        if got.any():
+            out.loc[idx[got]] = parsed[got].to_numpy()
     return out
 
 
