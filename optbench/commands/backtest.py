@@ -78,8 +78,16 @@ def run(args: argparse.Namespace) -> int:
     from optbench.data.history import load_history
     from optbench.volatility.backtest import backtest
 
+    from optbench.errors import InputError
+    from optbench.volatility.backtest import MIN_IN_SAMPLE, MIN_OUT_OF_SAMPLE
+
     history = load_history(args.history)
     rdates = np.asarray(history.dates).astype("datetime64[D]")[1:]
+    needed = MIN_IN_SAMPLE + MIN_OUT_OF_SAMPLE
+    if rdates.size < needed:
+        raise InputError(history.source, f"only {rdates.size} returns; the check needs at "
+                                         f"least {needed} ({MIN_IN_SAMPLE} to fit, "
+                                         f"{MIN_OUT_OF_SAMPLE} to check)")
     split = args.split if args.split is not None else default_split(rdates, rdates.size)
     result = backtest(history, split, model=args.model, dist=args.dist, mean=args.mean,
                       k=args.k, refit_every=args.refit_every)
@@ -145,9 +153,14 @@ def table_text(result, width: int = 120) -> str:
     con.print(f"{r.source}: fitted on {r.n_in} returns to {r.split.isoformat()}, checked on "
               f"{r.n_out} ({r.dates_out[0]} to {r.dates_out[-1]})")
     con.print(f"model {m.get('name')}/{m.get('dist')} (mean {m.get('mean', '-')}): {params}")
+    cands = {k: v for k, v in (m.get("candidates") or {}).items()}
+    if cands:
+        shown = ", ".join(f"{k} {v:,.1f}" if v is not None else f"{k} failed"
+                          for k, v in cands.items())
+        con.print(f"chosen by BIC among: {shown}")
     if r.refit_every:
         con.print(f"parameters re-estimated every {r.refit_every} days "
-                  f"({len(r.refit_dates)} refits)")
+                  f"({len(r.refit_dates)} refits: {', '.join(r.refit_models) or 'none'})")
     else:
         con.print("parameters held fixed after the split")
     if r.fallback_reason:

@@ -119,6 +119,7 @@ class BacktestResult:
     accuracy: tuple                   # of HorizonAccuracy
     refit_every: int | None
     refit_dates: tuple                # dates (ISO) the parameters were re-estimated after
+    refit_models: tuple               # model each refit chose (differs with model="auto")
     fallback_reason: str | None
     # what a price chart with +-k sigma bands needs (all days with a return)
     chart_dates: np.ndarray = field(repr=False)    # datetime64[D], return dates
@@ -152,6 +153,7 @@ class BacktestResult:
             "accuracy": [a.to_dict() for a in self.accuracy],
             "refit_every": self.refit_every,
             "refit_dates": list(self.refit_dates),
+            "refit_models": list(self.refit_models),
             "model": self.model,
             "fallback_reason": self.fallback_reason,
             "history_issues": list(self.issues),
@@ -474,6 +476,7 @@ def backtest(history, split, model: str = "auto", dist: str = "t",
         histogram=hist, surprises=surprises, accuracy=accuracy,
         refit_every=int(refit_every) if refit_every else None,
         refit_dates=tuple(_iso(rdates[s - 1]) for s in starts[1:]),
+        refit_models=tuple(str(f.model) for f in fits[1:]),
         fallback_reason="; ".join(dict.fromkeys(reasons)) or None,
         chart_dates=rdates, chart_close=chart_close, chart_sigma=sigma,
         chart_band_low=band_low, chart_band_high=band_high, source=source,

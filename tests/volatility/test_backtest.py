@@ -182,7 +182,7 @@ def test_periodic_refits(series):
                      horizons=(1,))
     refit = backtest(r, dates[1 + SPLIT_AT], model="garch", dist="normal", dates=dates,
                      refit_every=500, horizons=(1,))
-    assert len(refit.refit_dates) == 2
+    assert len(refit.refit_dates) == 2 and refit.refit_models == ("garch", "garch")
     # identical up to the first refit, different after
     np.testing.assert_allclose(refit.sigma_out[:500], fixed.sigma_out[:500], rtol=1e-12)
     assert not np.allclose(refit.sigma_out[500:], fixed.sigma_out[500:], rtol=1e-6)
@@ -238,6 +238,12 @@ def test_cli_json_and_errors(series, tmp_path, capsys):
         assert main(["backtest", str(hist), "--split", bad]) == 2
         err = capsys.readouterr().err.strip().splitlines()
         assert len(err) == 1 and err[0].startswith("optbench: error: --split")
+    # a history too short to split: one line naming the file
+    short = tmp_path / "short.csv"
+    _write_history(short, r[:260], dates[:261])
+    assert main(["backtest", str(short)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "short.csv: only 260 returns" in err[0]
     # a bad option value is an argparse error: exit 2, one line
     with pytest.raises(SystemExit) as stop:
         main(["backtest", str(hist), "--k", "-1"])
