@@ -10,7 +10,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy.special import ndtr
+from scipy.special import ndtr, stdtrit
 
 from optbench.volatility.recursions import SQRT_2_OVER_PI
 
@@ -77,35 +77,91 @@ def hull_term_structure(trading_days, omega: float, alpha: float, beta: float,
     return np.sqrt(var)
 
 
-def egarch_log_mgf(c, alpha, gamma, dist: str, z_sample: np.ndarray | None = None):
+def std_t_quantile_grid(nu, n_points: int = 2000) -> np.ndarray:
+    """Mid-point quantiles ``Q((i - 1/2) / N)`` of the unit-variance Student-t,
+    i = 1..N (``nu`` may be an array: one grid per row)."""
+    nu = np.asarray(nu, dtype=float)[..., None]
+    p = (np.arange(n_points) + 0.5) / n_points
+    return stdtrit(nu, p) * np.sqrt((nu - 2.0) / nu)
+
+
+def egarch_log_mgf(c, alpha, gamma, dist: str, z_grid: np.ndarray | None = None):
     """``ln E[exp(c g(z))]`` for the EGARCH news term ``g(z) = alpha (|z| - sqrt(2/pi))
     + gamma z``, z a unit-variance innovation.
+
+    Parameters
+    ----------
+    c, alpha, gamma : float or ndarray (broadcast together)
+    dist : {"normal", "t"}
+    z_grid : ndarray, shape (..., N), for ``dist="t"``
+        Quantile grid of the innovation (see :func:`std_t_quantile_grid`); leading
+        axes broadcast with ``c``.
 
     Notes
     -----
     Normal z: ``E[exp(a|z| + b z)] = e^{(a+b)^2/2} Phi(a+b) + e^{(a-b)^2/2} Phi(a-b)``
-    with ``a = c alpha``, ``b = c gamma`` (Nelson 1991, the moment formula behind
-    the EGARCH variance forecast). For the Student-t the exact expectation is
-    infinite (the t has no moment-generating function), so the expectation is
-    replaced by the average over a fixed sample ``z_sample`` of t draws: the same
-    quantity a simulation forecast estimates.
+    with ``a = c alpha``, ``b = c gamma`` (the moment formula behind Nelson's 1991
+    EGARCH variance forecast). For the Student-t the exact expectation is infinite
+    (the t has no moment-generating function); optbench takes the expectation over
+    the t truncated at its ``1/(2N)`` and ``1 - 1/(2N)`` quantiles, i.e. the mean over
+    a mid-point quantile grid of N points. This is the finite quantity a simulation
+    forecast with a comparable number of draws estimates; say so when quoting it.
     """
     c = np.asarray(c, dtype=float)
     a = c * alpha
     b = c * gamma
-    if dist == "normal" or z_sample is None:
+    if dist == "normal" or z_grid is None:
         ap, am = a + b, a - b
         val = np.exp(0.5 * ap * ap) * ndtr(ap) + np.exp(0.5 * am * am) * ndtr(am)
         return np.log(val) - a * SQRT_2_OVER_PI
-    z = np.asarray(z_sample, dtype=float)
-    shock = (a[..., None] * (np.abs(z) - SQRT_2_OVER_PI) + b[..., None] * z)
+    z = np.asarray(z_grid, dtype=float)
+    shock = (np.asarray(a)[..., None] * (np.abs(z) - SQRT_2_OVER_PI)
+             + np.asarray(b)[..., None] * z)
     m = shock.max(axis=-1, keepdims=True)
     return (m + np.log(np.mean(np.exp(shock - m), axis=-1, keepdims=True)))[..., 0]
 
 
+def egarch_average_variance(last_variance, omega, alpha, gamma, beta, trading_days,
+                            dist: str, z_grid=None) -> np.ndarray:
+    """Average of the EGARCH expected daily variances over days 1..T, vectorised
+    over parameter draws (leading axis) — see :func:`egarch_forecast_variance`.
+
+    Parameters are arrays of shape (d,) (or scalars); ``z_grid`` (d, N) for the t.
+    Returns shape (d, len(trading_days)).
+    """
+    T = np.maximum(np.atleast_1d(np.asarray(trading_days, dtype=int)), 1)
+    h = int(T.max())
+    s1 = np.atleast_1d(np.asarray(last_variance, dtype=float))[:, None]
+    om, al, ga, be = (np.atleast_1d(np.asarray(x, dtype=float))[:, None]
+                      for x in (omega, alpha, gamma, beta))
+    k = np.arange(h)
+    bk = be ** k
+    with np.errstate(divide="ignore", invalid="ignore"):
+        drift = np.where(np.abs(1 - be) > 1e-12, om * (1 - bk) / (1 - be), om * k)
+    c = be ** np.arange(max(h - 1, 0))
+    if dist == "t" and z_grid is not None:
+        # ln E[exp(c g(z))] is smooth in c on [0, 1]: evaluate it on 33 nodes per
+        # draw and interpolate linearly at c = beta^j (error ~ 1e-6 in ln M)
+        zg = np.asarray(z_grid, dtype=float)
+        if zg.ndim == 1:
+            zg = zg[None, :]
+        nodes = np.linspace(0.0, 1.0, 33)
+        table = egarch_log_mgf(nodes[None, :], al, ga, dist, zg[:, None, :])
+        pos = np.clip(c, 0.0, 1.0) * 32.0
+        i0 = np.minimum(pos.astype(int), 31)
+        w = pos - i0
+        log_m = (np.take_along_axis(table, i0, axis=1) * (1 - w)
+                 + np.take_along_axis(table, i0 + 1, axis=1) * w)
+    else:
+        log_m = egarch_log_mgf(c, al, ga, "normal")
+    cum = np.concatenate([np.zeros((log_m.shape[0], 1)), np.cumsum(log_m, axis=1)], axis=1)
+    v = np.exp(drift + bk * np.log(s1) + cum)
+    return np.cumsum(v, axis=1)[:, T - 1] / T
+
+
 def egarch_forecast_variance(last_variance: float, omega: float, alpha: float,
                              gamma: float, beta: float, horizon: int, dist: str,
-                             z_sample: np.ndarray | None = None) -> np.ndarray:
+                             z_grid: np.ndarray | None = None) -> np.ndarray:
     """Expected daily variances E[sigma^2_{T+k}], k = 1..horizon, EGARCH(1,1).
 
     Notes
@@ -122,7 +178,7 @@ def egarch_forecast_variance(last_variance: float, omega: float, alpha: float,
     else:
         drift = omega * k
     log_m = egarch_log_mgf(beta ** np.arange(max(horizon - 1, 0)), alpha, gamma, dist,
-                           z_sample)
+                           z_grid)
     cum = np.concatenate([[0.0], np.cumsum(log_m)])
     return np.exp(drift + bk * math.log(last_variance) + cum)
 

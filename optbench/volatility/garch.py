@@ -22,7 +22,7 @@ from scipy.optimize import minimize
 from optbench.errors import InputError
 from optbench.volatility import forecast as fc
 from optbench.volatility.distributions import (NU_MIN, get_distribution, normal_loglik,
-                                               std_t_draws, std_t_loglik)
+                                               std_t_loglik)
 from optbench.volatility.recursions import (backcast_value, egarch_log_variance,
                                             garch_variance, linear_filter,
                                             reverse_filter)
@@ -421,12 +421,12 @@ class GarchFit:
         return None if v is None else math.sqrt(fc.TRADING_DAYS_PER_YEAR * v)
 
     @functools.cached_property
-    def _z_sample(self) -> np.ndarray | None:
+    def _z_grid(self) -> np.ndarray | None:
+        """Quantile grid of the unit-variance t for EGARCH-t forecasts (see
+        :func:`optbench.volatility.forecast.egarch_log_mgf`)."""
         if self.dist != "t":
             return None
-        rng = np.random.default_rng(20251201)
-        z = std_t_draws(rng, float(self.params["nu"]), 10_000)
-        return np.concatenate([z, -z])
+        return fc.std_t_quantile_grid(float(self.params["nu"]), 2000)
 
     # -- forecasts ---------------------------------------------------------------------
     def forecast_variance(self, horizon: int) -> np.ndarray:
@@ -449,7 +449,7 @@ class GarchFit:
         if self.model == "egarch":
             return fc.egarch_forecast_variance(self.last_variance, p["omega"], p["alpha"],
                                                p["gamma"], p["beta"], horizon, self.dist,
-                                               self._z_sample)
+                                               self._z_grid)
         return np.full(horizon, self.last_variance)
 
     def forecast_vol(self, trading_days):
@@ -519,6 +519,8 @@ class GarchFit:
             ok &= (np.abs(P["beta"]) < 1)
         if "nu" in P:
             ok &= P["nu"] > NU_MIN
+        if self.model == "egarch" and self.dist == "t":
+            n_draws = min(n_draws, 250)   # (draws x horizon x grid) work
         idx = np.flatnonzero(ok)[:n_draws]
         if idx.size < 20:
             lo = hi = point
@@ -538,18 +540,13 @@ class GarchFit:
             vl = P["omega"] / (1 - pers)
             avg = fc.linear_average_variance(s2[:, None], vl[:, None], pers[:, None], T)
         else:
-            z = None if self._z_sample is None else self._z_sample[::10]
-            hmax = int(T.max())
-            avg = np.empty((idx.size, T.size))
-            for d in range(idx.size):
-                zd = z
-                if z is not None and "nu" in P:
-                    zd = std_t_draws(np.random.default_rng(d), float(P["nu"][d]), 1000)
-                    zd = np.concatenate([zd, -zd])
-                v = fc.egarch_forecast_variance(s2[d], P["omega"][d], P["alpha"][d],
-                                                P["gamma"][d], P["beta"][d], hmax,
-                                                self.dist, zd)
-                avg[d] = np.cumsum(v)[T - 1] / T
+            # EGARCH: exact recursion per draw, vectorised over draws; the t
+            # expectation uses a 256-point quantile grid at the fitted nu (the
+            # uncertainty of nu itself is not carried into the EGARCH-t band)
+            zg = (fc.std_t_quantile_grid(float(self.params["nu"]), 256)
+                  if "nu" in P else None)
+            avg = fc.egarch_average_variance(s2, P["omega"], P["alpha"], P["gamma"],
+                                             P["beta"], T, self.dist, zg)
         vols = fc.annualise(avg)
         lo, hi = np.quantile(vols, level, axis=0)
         return (float(lo[0]), float(hi[0])) if scalar else (lo, hi)
