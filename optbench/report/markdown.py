@@ -67,7 +67,7 @@ def hedge_markdown(estimate) -> str:
              f"floor {100 * e.request.floor:.0f}%",
              "",
              "| Item | Value |", "|:---|---:|"]
-    lines += [f"| {LABELS[k]} | {_esc(fmt(summary[k], kind))} |" for k, _, kind in HEDGE_FIELDS]
+    lines += [f"| {label} | {_esc(fmt(summary[k], kind))} |" for k, label, kind in HEDGE_FIELDS]
     lines += ["", "## Legs", "", md_table([leg.to_dict() for leg in e.legs],
                                           [f for f, _, _ in LEG_FIELDS]),
               "", "## P&L at expiry", "",

@@ -1,0 +1,204 @@
+"""The comparison against outside references.
+
+- A chain priced at one flat vol by vollib (Black-Scholes-Merton with a dividend
+  yield) must come back at that vol on every expiry and strike.
+- The forecasts must equal what the arch package gives for the reported parameters
+  held fixed (arch's ``fix`` with the same backcast convention).
+- The verdicts must follow the stated rule, and the variance premium its definition.
+"""
+from __future__ import annotations
+
+import datetime as _dt
+import math
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from optbench.analysis.compare import compare
+
+ROOT = Path(__file__).resolve().parents[2]
+DEMO = ROOT / "chains" / "ZPHX"
+
+FLAT_VOL = 0.25
+SPOT, RATE, DIV = 100.0, 0.03, 0.01
+
+
+@pytest.fixture(scope="module")
+def demo():
+    return compare(DEMO, model="gjr", dist="t")
+
+
+@pytest.fixture(scope="module")
+def flat_chain(tmp_path_factory):
+    """A chain priced by vollib at 25 % on four expiries, with the demo history."""
+    from vollib.black_scholes_merton import black_scholes_merton
+
+    history = pd.read_csv(DEMO / "history.csv")
+    asof = _dt.date.fromisoformat(history["date"].iloc[-1])
+    rows = []
+    for days in (30, 91, 182, 365):
+        expiry = asof + _dt.timedelta(days=days)
+        t = days / 365
+        for strike in np.arange(60.0, 145.0, 2.5):
+            for flag in ("c", "p"):
+                price = black_scholes_merton(flag, SPOT, strike, t, RATE, FLAT_VOL, DIV)
+                if price < 0.05:
+                    continue
+                half = max(0.01, 0.005 * price)
+                rows.append({"underlying": "TEST", "quote_date": asof.isoformat(),
+                             "underlying_price": SPOT, "expiry": expiry.isoformat(),
+                             "strike": strike, "type": flag.upper(),
+                             "bid": price - half, "ask": price + half})
+    folder = tmp_path_factory.mktemp("flat")
+    pd.DataFrame(rows).to_csv(folder / "chain.csv", index=False, float_format="%.12g")
+    history.to_csv(folder / "history.csv", index=False)
+    return folder
+
+
+@pytest.fixture(scope="module")
+def flat(flat_chain):
+    return compare(flat_chain / "chain.csv", flat_chain / "history.csv", rate=RATE,
+                   div_yield=DIV, model="garch", dist="normal", n_paths=500)
+
+
+def test_flat_vollib_chain_comes_back_at_its_vol_on_every_expiry(flat):
+    # reference: vollib.black_scholes_merton priced every quote at 25 %
+    assert len(flat.expiries) == 4
+    for row in flat.expiries:
+        assert row.atm_iv == pytest.approx(FLAT_VOL, abs=1e-6)
+        assert row.iv_25d_put == pytest.approx(FLAT_VOL, abs=1e-6)
+        assert row.iv_25d_call == pytest.approx(FLAT_VOL, abs=1e-6)
+        assert row.iv_90 == pytest.approx(FLAT_VOL, abs=1e-6)
+        assert row.iv_95 == pytest.approx(FLAT_VOL, abs=1e-6)
+        assert abs(row.rr_25d) < 1e-6
+        # ATM bid/ask vols straddle the mid
+        assert row.atm_iv_bid < row.atm_iv < row.atm_iv_ask
+        # forward by parity = S e^{(r-q)t} of the pricing inputs (Hull ch. 11)
+        assert row.forward == pytest.approx(SPOT * math.exp((RATE - DIV) * row.t), rel=1e-6)
+        # model-free variance of a flat-vol strip is the flat variance, less the
+        # strip's discretisation and truncation (Demeterfi et al. 1999): within 1 vol pt
+        assert row.model_free_iv == pytest.approx(FLAT_VOL, abs=0.01)
+
+
+def test_flat_vollib_chain_every_strike_mid_vol(flat):
+    strikes = flat.strike_frame()
+    # out-of-the-money quotes (the ones the smile uses) come back at 25 % to 1e-7;
+    # deep in-the-money quotes carry the parity forward's rounding in their tiny time
+    # value, so they are held to quotes with a vega of at least 1 cent per vol point
+    otm = np.where(strikes["is_call"], strikes["moneyness"] >= 1, strikes["moneyness"] <= 1)
+    assert np.allclose(strikes.loc[otm, "iv_mid"], FLAT_VOL, atol=1e-7)
+    itm = ~otm & (strikes["vega_per_vol_point"] > 0.01)
+    assert itm.sum() > 10
+    assert np.allclose(strikes.loc[itm, "iv_mid"], FLAT_VOL, atol=1e-4)
+    # a bid below intrinsic (deep in the money) has no vol; every other bid vol lies
+    # below the mid vol and every ask vol above it
+    has_bid = np.isfinite(strikes["iv_bid"])
+    assert has_bid[otm].all()
+    fits = otm | itm
+    sel = has_bid & fits
+    assert (strikes.loc[sel, "iv_bid"] < strikes.loc[sel, "iv_mid"]).all()
+    assert (strikes.loc[fits, "iv_ask"] > strikes.loc[fits, "iv_mid"]).all()
+
+
+def test_price_at_forecast_matches_vollib(flat):
+    # reference: vollib.black_scholes_merton at each expiry's forecast vol
+    from vollib.black_scholes_merton import black_scholes_merton
+    frame = flat.strike_frame().iloc[::17]
+    for rec in frame.itertuples():
+        t = (rec.expiry.date() - flat.asof).days / 365
+        ref = black_scholes_merton("c" if rec.is_call else "p", SPOT, rec.strike, t, RATE,
+                                   rec.forecast_vol, DIV)
+        assert rec.price_at_forecast == pytest.approx(ref, rel=1e-6, abs=1e-9)
+        assert rec.edge_per_contract == pytest.approx((rec.mid - ref) * 100, rel=1e-5,
+                                                      abs=1e-6)
+
+
+def _arch_forecast(comparison, returns, vol_kind):
+    """Annualised average forecast vol to each expiry from arch with fixed parameters."""
+    from arch import arch_model
+    p = comparison.model.params
+    scale = 100.0                        # arch works in percent returns
+    if vol_kind == "gjr":
+        am = arch_model(returns * scale, mean="Constant", vol="GARCH", p=1, o=1, q=1,
+                        dist="t")
+        fixed = [p["mu"] * scale, p["omega"] * scale ** 2, p["alpha"], p["gamma"],
+                 p["beta"], p["nu"]]
+    else:
+        am = arch_model(returns * scale, mean="Constant", vol="GARCH", p=1, q=1,
+                        dist="normal")
+        fixed = [p["mu"] * scale, p["omega"] * scale ** 2, p["alpha"], p["beta"]]
+    res = am.fix(fixed)
+    h = max(r.trading_days for r in comparison.expiries)
+    var = res.forecast(horizon=h, reindex=False).variance.to_numpy()[-1] / scale ** 2
+    return np.array([math.sqrt(252 * var[:r.trading_days].mean())
+                     for r in comparison.expiries]), res
+
+
+def test_forecasts_equal_arch_with_parameters_held(demo):
+    # reference: arch (Sheppard), arch_model(...).fix(params).forecast(horizon)
+    from optbench.data.history import load_history
+    returns = load_history(DEMO / "history.csv").returns
+    ref, res = _arch_forecast(demo, returns, "gjr")
+    ours = np.array([r.forecast_vol for r in demo.expiries])
+    np.testing.assert_allclose(ours, ref, rtol=1e-6)
+    # the in-sample conditional vol the figures use is arch's too
+    np.testing.assert_allclose(demo.history["sigma"].to_numpy(),
+                               res.conditional_volatility / 100.0, rtol=1e-6)
+    # and the log-likelihood of the decimal returns: arch's on percent returns plus
+    # the Jacobian n*ln(100)
+    assert demo.model.loglik == pytest.approx(res.loglikelihood + len(returns) * math.log(100),
+                                              rel=1e-8)
+
+
+def test_verdicts_follow_the_stated_rule(demo):
+    assert "rich" in demo.verdict_rule and "cheap" in demo.verdict_rule
+    seen = set()
+    for row in demo.expiries:
+        assert row.forecast_low <= row.forecast_vol <= row.forecast_high
+        want = ("rich" if row.atm_iv > row.forecast_high else
+                "cheap" if row.atm_iv < row.forecast_low else "fair")
+        assert row.verdict == want
+        seen.add(row.verdict)
+        # Bollerslev, Tauchen & Zhou (2009): VRP = implied variance - expected variance
+        assert row.variance_premium == pytest.approx(row.atm_iv ** 2 - row.forecast_vol ** 2)
+        assert row.iv_minus_forecast == pytest.approx(row.atm_iv - row.forecast_vol)
+        assert 0.0 <= row.prob_realized_above_iv <= 1.0
+        assert 0.0 <= row.cone_percentile <= 1.0
+    # the demo is built so that implied sits above the forecast mostly and below once
+    assert "rich" in seen and "cheap" in seen
+
+
+def test_probability_realized_above_implied_falls_with_implied(demo):
+    # a higher implied vol must be exceeded less often by the same simulated paths
+    fit = demo.fit
+    row = demo.expiries[3]
+    sim = fit.simulate(row.trading_days, n_paths=demo.n_paths, seed=demo.seed)
+    rv = sim.realized_vol()
+    assert np.mean(rv > row.atm_iv) == pytest.approx(row.prob_realized_above_iv, abs=0.03)
+    assert np.mean(rv > row.atm_iv + 0.05) < row.prob_realized_above_iv
+
+
+def test_realized_vol_is_close_to_close_over_the_horizon(demo):
+    # close-to-close realized vol, sample standard deviation annualised with 252
+    # (common practice), recomputed by hand from the history file
+    close = pd.read_csv(DEMO / "history.csv")["close"].to_numpy(float)
+    r = np.diff(np.log(close))
+    row = demo.expiries[4]
+    w = max(row.trading_days, 5)
+    assert row.realized_vol == pytest.approx(np.std(r[-w:], ddof=1) * math.sqrt(252), rel=1e-9)
+
+
+def test_quality_and_strike_tables_cover_every_used_quote(demo):
+    q = demo.quality
+    assert q["rows_in"] == q["rows_used"] + sum(q["rejected"].values())
+    assert sum(r.n_quotes for r in demo.expiries) == len(demo.strike_frame())
+    assert len(demo.strike_frame()) <= q["rows_used"]
+
+
+def test_expiry_not_in_chain_is_one_line_error(demo):
+    from optbench.errors import InputError
+    with pytest.raises(InputError) as info:
+        demo.strike_frame("2031-01-17")
+    assert "not an expiry" in str(info.value) and "\n" not in str(info.value)
