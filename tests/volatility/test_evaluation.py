@@ -6,6 +6,8 @@ import math
 import numpy as np
 import pytest
 import scipy.stats as st
+from hypothesis import given, settings
+from hypothesis import strategies as hs
 
 from optbench.volatility import evaluation as ev
 
@@ -238,3 +240,35 @@ def test_out_of_sample_modules_stay_off_slow_imports():
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          check=True)
     assert out.stdout.strip() == ""
+
+
+# ------------------------------------------------------------- properties
+@settings(max_examples=60, deadline=None)
+@given(n=hs.integers(20, 2000), p=hs.floats(0.002, 0.2))
+def test_kupiec_smallest_at_the_expected_count(n, p):
+    # LR_pof is zero when x/n = p and grows either side (Kupiec 1995)
+    xs = np.arange(n + 1)
+    lr = np.array([ev.kupiec_pof(int(x), n, p).statistic for x in xs])
+    assert np.all(lr >= 0)
+    best = int(np.argmin(lr))
+    assert best in (math.floor(n * p), math.ceil(n * p))
+    assert np.all(np.diff(lr[best:]) > 0) and np.all(np.diff(lr[:best + 1]) < 0)
+
+
+@settings(max_examples=60, deadline=None)
+@given(hits=hs.lists(hs.booleans(), min_size=2, max_size=300))
+def test_transition_counts_add_up(hits):
+    n00, n01, n10, n11 = ev.transition_counts(hits)
+    h = np.asarray(hits)
+    assert n00 + n01 + n10 + n11 == h.size - 1
+    assert n01 + n11 == int(h[1:].sum()) and n10 + n11 == int(h[:-1].sum())
+    res = ev.christoffersen_independence(hits)
+    assert res.statistic >= 0 and 0 <= res.p_value <= 1
+
+
+@settings(max_examples=40, deadline=None)
+@given(n=hs.integers(50, 1500), level=hs.sampled_from([0.95, 0.975, 0.99]))
+def test_basel_zones_never_step_back(n, level):
+    order = {"green": 0, "yellow": 1, "red": 2}
+    zones = [order[ev.basel_zone(x, n, level)] for x in range(0, n // 5)]
+    assert zones[0] == 0 and np.all(np.diff(zones) >= 0)
