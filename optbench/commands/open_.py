@@ -1,15 +1,16 @@
 """``optbench open``: the terminal workbench on a chain file or a scenario folder.
 
-``optbench`` with no arguments runs ``open`` with no CHAIN, which opens the
-bundled demo scenario ``chains/ZPHX``.
+Takes the same chain, history, market, model and simulation options as
+``optbench compare``, plus the quote filter ``--max-spread``. ``optbench`` with no
+arguments runs ``open`` with no CHAIN, which opens the bundled demo ``chains/ZPHX``.
 """
 from __future__ import annotations
 
 import argparse
 from pathlib import Path
 
-from optbench.commands.common import (add_market_overrides, add_model_options,
-                                      parse_float)
+from optbench.commands.common import parse_float
+from optbench.commands.compare import add_chain_arguments
 from optbench.errors import InputError
 
 
@@ -18,16 +19,12 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
         "open", help="open the terminal workbench (default: the bundled demo)",
         description=("Open the terminal workbench on an option chain (a file, or a "
                      "scenario folder with chain.csv and history.csv). Without CHAIN it "
-                     "opens the bundled demo scenario. Keys are listed on the help "
+                     "opens the bundled demo scenario. Every key is listed on the help "
                      "screen (?)."))
-    parser.add_argument("chain", nargs="?", metavar="CHAIN", default=None,
-                        help="chain file or scenario folder (default: the bundled demo)")
-    parser.add_argument("--history", metavar="H", default=None,
-                        help="price history CSV (default: history.csv beside the chain)")
-    add_market_overrides(parser)
+    add_chain_arguments(parser)
     parser.add_argument("--max-spread", dest="max_spread", type=parse_float, default=None,
-                        help="widest bid/ask spread kept, as a fraction of mid (0.5 = 50%%)")
-    add_model_options(parser)
+                        help="quote filter: widest bid/ask spread kept, as a fraction of "
+                             "mid (0.5 = 50%%; default: the loader's)")
     parser.set_defaults(run=run)
     return parser
 
@@ -41,9 +38,11 @@ def run(args: argparse.Namespace) -> int:
     history = Path(args.history) if args.history else None
     if history is not None and not history.is_file():
         raise InputError(history, "no such file")
+    if args.max_spread is not None and args.max_spread <= 0:
+        raise InputError("--max-spread", f"must be positive, not {args.max_spread:g}")
     from optbench.tui.app import make_app
     app = make_app(chain, history, model=args.model, dist=args.dist, mean=args.mean,
                    spot=args.spot, asof=args.asof, rate=args.rate, div_yield=args.div_yield,
-                   max_spread=args.max_spread)
+                   max_spread=args.max_spread, hedge_paths=args.paths, seed=args.seed)
     app.run()
     return 0

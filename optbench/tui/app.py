@@ -150,7 +150,7 @@ class Workbench(App):
             if worker.is_cancelled:
                 return
             self.post_message(Progress(token, STEPS - 2, "pricing the headline protection"))
-            headline = session.headline_hedge(comparison)
+            headline = session.headline_hedge(comparison, inputs.settings)
             if worker.is_cancelled:
                 return
             self.post_message(Computed(token, comparison, headline,
@@ -318,7 +318,8 @@ class Workbench(App):
 def make_app(scenario_path: str | Path | None = None, history: str | Path | None = None, *,
              model: str = "auto", dist: str = "t", mean: str = "constant",
              spot: float | None = None, asof=None, rate: float | None = None,
-             div_yield: float | None = None, max_spread: float | None = None) -> Workbench:
+             div_yield: float | None = None, max_spread: float | None = None,
+             hedge_paths: int | None = None, seed: int | None = 7) -> Workbench:
     """The workbench on a chain file or scenario folder (default: the bundled demo).
 
     Parameters
@@ -328,9 +329,12 @@ def make_app(scenario_path: str | Path | None = None, history: str | Path | None
     model, dist, mean : the volatility model (as ``optbench compare``).
     spot, asof, rate, div_yield : market overrides (decimals for rate and yield).
     max_spread : widest bid/ask spread kept, as a fraction of mid (loader filter).
+    hedge_paths, seed : the simulation behind hedge estimates (default 20,000 paths,
+        seed 7, as ``optbench hedge``).
     """
     chain = Path(scenario_path) if scenario_path is not None else session.demo_scenario()
     source = OpenRequest(chain=chain, history=Path(history) if history is not None else None)
     settings = Settings(model=model, dist=dist, mean=mean, spot=spot, asof=asof, rate=rate,
-                        div_yield=div_yield, max_spread=max_spread)
+                        div_yield=div_yield, max_spread=max_spread,
+                        hedge_paths=int(hedge_paths or session.N_PATHS), seed=seed)
     return Workbench(session.Inputs(source=source, settings=settings))

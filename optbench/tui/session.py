@@ -25,8 +25,10 @@ HEADLINE = {"days": 91, "floor": 0.90, "structure": "put", "portfolio_value": 10
 
 
 def demo_scenario() -> Path:
-    """The bundled demo scenario folder, ``chains/ZPHX`` beside the package."""
-    return Path(__file__).resolve().parents[2] / "chains" / "ZPHX"
+    """The bundled demo scenario folder, ``chains/ZPHX`` of the checkout."""
+    from optbench.commands.demo import checkout_folder
+    folder = checkout_folder()
+    return folder if folder is not None else Path.cwd() / "chains" / "ZPHX"
 
 
 @dataclass(frozen=True)
@@ -73,7 +75,7 @@ def run_compare(inputs: Inputs, scenario, progress=None):
     from optbench import compare
     s = inputs.settings
     return compare(scenario, None, model=s.model, dist=s.dist, mean=s.mean,
-                   progress=progress, **s.extra)
+                   seed=s.seed, progress=progress)
 
 
 #: out-of-sample days of the model check: the last year of returns, as
@@ -95,16 +97,18 @@ def run_backtest(scenario, comparison):
     return _replace(comparison, backtest=result.to_dict())
 
 
-def run_hedge(comparison, **request):
-    """A hedge estimate on a finished comparison (the planner and the headline)."""
+def run_hedge(comparison, *, n_paths: int = N_PATHS, seed: int | None = SEED, **request):
+    """A hedge estimate on a finished comparison (the planner and the headline), as
+    ``optbench hedge`` computes it for the same inputs."""
     from optbench import hedge
-    return hedge(None, comparison=comparison, n_paths=N_PATHS, seed=SEED, **request)
+    return hedge(None, comparison=comparison, n_paths=n_paths, seed=seed, **request)
 
 
-def headline_hedge(comparison):
+def headline_hedge(comparison, settings: Settings | None = None):
     """The overview's headline protection, or None when the chain cannot give it."""
+    s = settings or Settings()
     try:
-        return run_hedge(comparison, **HEADLINE)
+        return run_hedge(comparison, n_paths=s.hedge_paths, seed=s.seed, **HEADLINE)
     except InputError:
         return None
 

@@ -14,10 +14,15 @@ from textual.widgets import Input, Select, Static, TabbedContent
 from optbench.tui.app import make_app
 from optbench.tui.screens.workbench import VIEWS
 
-from .conftest import ROOT, SIZE, settle
+from tui_helpers import ROOT, SIZE, demo, run, settle, text_of
 
 
-async def test_demo_opens_and_every_view_shows_the_comparison(demo):
+def test_demo_opens_and_every_view_shows_the_comparison():
+    run(_test_demo_opens_and_every_view_shows_the_comparison())
+
+
+async def _test_demo_opens_and_every_view_shows_the_comparison():
+    demo_dir = demo()
     app = make_app()  # no path: the bundled demo
     async with app.run_test(size=SIZE) as pilot:
         await settle(app, pilot)
@@ -30,10 +35,10 @@ async def test_demo_opens_and_every_view_shows_the_comparison(demo):
             await pilot.pause()
             assert tabs.active == view_id
         # the overview's headline is the headline hedge estimate, as a % of the portfolio
-        headline = str(app.screen.query_one("#ov-headline", Static).render())
+        headline = text_of(app.screen.query_one("#ov-headline", Static))
         assert app.headline is not None
         assert f"{app.headline.cost_pct * 100:.2f}%" in headline
-        assert app.headline.caution in str(app.screen.query_one("#ov-caution", Static).render())
+        assert app.headline.caution in text_of(app.screen.query_one("#ov-caution", Static))
         # one term-structure row and one rich/cheap row per expiry, in the result's order
         term = app.screen.query_one("#term-table")
         assert term.row_count == len(c.expiries)
@@ -57,7 +62,8 @@ async def test_demo_opens_and_every_view_shows_the_comparison(demo):
         q = c.quality
         assert q["rows_in"] == q["rows_used"] + sum(q["rejected"].values())
         assert app.screen.query_one("#dq-rejected").row_count == sum(q["rejected"].values())
-        # help lists every key with its description
+        # help lists every key with its description, and escape returns to the view
+        before = app.active_view
         await pilot.press("question_mark")
         await pilot.pause()
         listed = {(key, does) for key, does, _ in app.screen.entries}
@@ -65,7 +71,7 @@ async def test_demo_opens_and_every_view_shows_the_comparison(demo):
             assert (b.key_display or b.key, b.description) in listed or not b.description
         await pilot.press("escape")
         await pilot.pause()
-        assert app.screen.query_one("#views", TabbedContent).active == "quality"
+        assert app.screen.query_one("#views", TabbedContent).active == before
 
 
 async def _fill(pilot, app, widget_id: str, text: str) -> None:
@@ -83,7 +89,12 @@ def _cli_hedge(args: list[str]) -> dict:
 
 
 @pytest.mark.slow
-async def test_hedge_planner_equals_the_hedge_command(demo):
+def test_hedge_planner_equals_the_hedge_command():
+    run(_test_hedge_planner_equals_the_hedge_command())
+
+
+async def _test_hedge_planner_equals_the_hedge_command():
+    demo_dir = demo()
     app = make_app()
     async with app.run_test(size=SIZE) as pilot:
         await settle(app, pilot)
@@ -98,7 +109,7 @@ async def test_hedge_planner_equals_the_hedge_command(demo):
         await settle(app, pilot)
         est = app.view("hedge").estimate
         assert est is not None and est.structure == "collar"
-        shown = str(app.screen.query_one("#hedge-summary", Static).render())
+        shown = text_of(app.screen.query_one("#hedge-summary", Static))
         ref = _cli_hedge(["--portfolio", "2500000", "--beta", "1.3", "--floor", "0.92",
                           "--expiry", expiry, "--structure", "collar"])
         assert est.contracts == ref["contracts"]
@@ -113,15 +124,20 @@ async def test_hedge_planner_equals_the_hedge_command(demo):
         # a beta of "abc" is a clear message, the last estimate stays, the app keeps running
         await _fill(pilot, app, "#hedge-beta", "abc")
         await pilot.pause(0.3)
-        error = str(app.screen.query_one("#hedge-error", Static).render())
+        error = text_of(app.screen.query_one("#hedge-error", Static))
         assert "beta" in error and "not a number" in error
         await _fill(pilot, app, "#hedge-portfolio", "")
         await pilot.pause(0.3)
-        assert "empty" in str(app.screen.query_one("#hedge-error", Static).render())
+        assert "empty" in text_of(app.screen.query_one("#hedge-error", Static))
         assert app.is_running
 
 
-async def test_export_writes_the_table_and_says_where(demo, tmp_path):
+def test_export_writes_the_table_and_says_where(tmp_path):
+    run(_test_export_writes_the_table_and_says_where(tmp_path))
+
+
+async def _test_export_writes_the_table_and_says_where(tmp_path):
+    demo_dir = demo()
     app = make_app()
     async with app.run_test(size=SIZE) as pilot:
         await settle(app, pilot)
@@ -140,20 +156,25 @@ async def test_export_writes_the_table_and_says_where(demo, tmp_path):
         assert any(str(target) in str(n.message) for n in app._notifications)
 
 
-async def test_broken_file_is_a_clear_message_and_the_app_keeps_running(tmp_path, demo):
+def test_broken_file_is_a_clear_message_and_the_app_keeps_running(tmp_path):
+    run(_test_broken_file_is_a_clear_message_and_the_app_keeps_running(tmp_path))
+
+
+async def _test_broken_file_is_a_clear_message_and_the_app_keeps_running(tmp_path):
+    demo_dir = demo()
     bad = tmp_path / "chain.csv"
     bad.write_text("this,is,not\nan,option,chain\n")
-    (tmp_path / "history.csv").write_text((demo / "history.csv").read_text())
+    (tmp_path / "history.csv").write_text((demo_dir / "history.csv").read_text())
     app = make_app(bad)
     async with app.run_test(size=SIZE) as pilot:
         await settle(app, pilot)
         assert app.comparison is None and app.error is not None
         assert str(bad) in app.error and "Traceback" not in app.error
-        assert "✗" in str(app.screen.query_one("#ov-headline", Static).render())
+        assert "✗" in text_of(app.screen.query_one("#ov-headline", Static))
         # open the demo from the file picker: the app recovers
         await pilot.press("o")
         await pilot.pause()
-        app.screen.query_one("#open-chain", Input).value = str(demo)
+        app.screen.query_one("#open-chain", Input).value = str(demo_dir)
         await pilot.press("ctrl+o")
         await settle(app, pilot)
         assert app.error is None and app.comparison is not None
@@ -163,12 +184,17 @@ async def test_broken_file_is_a_clear_message_and_the_app_keeps_running(tmp_path
         app.screen.query_one("#open-chain", Input).value = str(tmp_path / "nope.csv")
         await pilot.press("ctrl+o")
         await pilot.pause()
-        assert "no such file" in str(app.screen.query_one("#open-error", Static).render())
+        assert "no such file" in text_of(app.screen.query_one("#open-error", Static))
         await pilot.press("escape")
         assert app.is_running
 
 
-async def test_changing_the_model_recomputes_and_drops_stale_work(demo):
+def test_changing_the_model_recomputes_and_drops_stale_work():
+    run(_test_changing_the_model_recomputes_and_drops_stale_work())
+
+
+async def _test_changing_the_model_recomputes_and_drops_stale_work():
+    demo_dir = demo()
     app = make_app()
     async with app.run_test(size=SIZE) as pilot:
         # change the model while the first run is still going: only the last run counts
@@ -184,7 +210,7 @@ async def test_changing_the_model_recomputes_and_drops_stale_work(demo):
         app.screen.query_one("#set-rate", Input).value = "x"
         await pilot.press("ctrl+s")
         await pilot.pause()
-        assert "rate: not a number" in str(app.screen.query_one("#settings-error", Static).render())
+        assert "rate: not a number" in text_of(app.screen.query_one("#settings-error", Static))
         app.screen.query_one("#set-rate", Input).value = "5"
         await pilot.press("ctrl+s")
         await settle(app, pilot)

@@ -2,7 +2,7 @@
 from __future__ import annotations
 
 import datetime as _dt
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 
 
@@ -39,7 +39,9 @@ class Settings:
     rate: float | None = None
     div_yield: float | None = None
     max_spread: float | None = None
-    extra: dict = field(default_factory=dict)
+    #: simulated paths behind the hedge's expected payoff (as ``optbench hedge --paths``)
+    hedge_paths: int = 20000
+    seed: int | None = 7
 
     def overrides(self) -> dict:
         """Market overrides for the loaders (only those the user set)."""

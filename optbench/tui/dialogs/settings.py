@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import math
+from dataclasses import replace
 
 from textual import on
 from textual.app import ComposeResult
@@ -101,13 +102,14 @@ class SettingsDialog(ModalScreen[Settings | None]):
         spread = parse_optional_float("spread", value("#set-spread"), percent=True)
         if spread is not None and spread <= 0:
             raise InputError("spread", "must be positive")
-        return Settings(
+        return replace(
+            self._settings,
             model=str(self.query_one("#set-model", Select).value),
             dist=str(self.query_one("#set-dist", Select).value),
             mean=str(self.query_one("#set-mean", Select).value),
             rate=parse_optional_float("rate", value("#set-rate"), percent=True),
             div_yield=parse_optional_float("dividend yield", value("#set-yield"), percent=True),
-            spot=spot, asof=asof, max_spread=spread, extra=dict(self._settings.extra))
+            spot=spot, asof=asof, max_spread=spread)
 
     @on(Button.Pressed, "#settings-ok")
     @on(Input.Submitted)

@@ -229,7 +229,9 @@ class HedgeView(Horizontal):
     def price(self, comparison, inputs: PlannerInputs) -> None:
         worker = get_current_worker()
         try:
-            estimate = session.run_hedge(comparison, **inputs.kwargs())
+            settings = self.app.inputs.settings
+            estimate = session.run_hedge(comparison, n_paths=settings.hedge_paths,
+                                         seed=settings.seed, **inputs.kwargs())
         except InputError as err:
             if not worker.is_cancelled:
                 self.post_message(self.Failed(str(err)))
