@@ -121,7 +121,9 @@ class BacktestResult:
     refit_dates: tuple                # dates (ISO) the parameters were re-estimated after
     refit_models: tuple               # model each refit chose (differs with model="auto")
     fallback_reason: str | None
-    # what a price chart with +-k sigma bands needs (all days with a return)
+    # what a price chart with +-k sigma bands needs (all days with a return); given
+    # bare returns instead of a PriceHistory, close is NaN and the bands are simple
+    # returns exp(mu +- k sigma) - 1
     chart_dates: np.ndarray = field(repr=False)    # datetime64[D], return dates
     chart_close: np.ndarray = field(repr=False)    # close on those dates
     chart_sigma: np.ndarray = field(repr=False)    # one-day-ahead daily vol, in and out
