@@ -1,0 +1,170 @@
+"""``optbench fit HISTORY``: fit the volatility model and show its forecast term structure.
+
+Prints the parameters with robust standard errors, the diagnostics (log-likelihood,
+AIC/BIC, persistence, half-life, long-run vol, convergence and any fallback) and the
+forecast volatility over each horizon in trading days with its 5%-95% band from
+parameter uncertainty.
+"""
+from __future__ import annotations
+
+import argparse
+import csv
+import io
+import json
+
+from optbench.commands.common import add_model_options, add_output_options, write_output
+from optbench.errors import InputError
+
+DEFAULT_HORIZONS = (5, 10, 21, 63, 126, 252)
+CAUTION = ("Model estimates from past prices, not advice. Decisions belong with your "
+           "licensed advisers and the rules of your exchange and broker.")
+
+
+def parse_horizons(text: str) -> tuple[int, ...]:
+    """argparse type: comma-separated trading-day counts, each at least 1."""
+    out = []
+    for part in text.split(","):
+        part = part.strip()
+        if not part:
+            continue
+        try:
+            value = int(part)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"not a whole number of days: {part!r}") from None
+        if value < 1:
+            raise argparse.ArgumentTypeError(f"horizons must be at least 1 day: {part!r}")
+        out.append(value)
+    if not out:
+        raise argparse.ArgumentTypeError("give at least one horizon, e.g. 5,21,63")
+    return tuple(sorted(set(out)))
+
+
+def add_parser(subparsers) -> argparse.ArgumentParser:
+    parser = subparsers.add_parser(
+        "fit", help="fit the volatility model: parameters, diagnostics, term structure",
+        description=("Fit a GARCH-family model to the daily log returns of HISTORY and "
+                     "show its parameters (robust standard errors), diagnostics and the "
+                     "forecast volatility term structure with a 5%%-95%% band from "
+                     "parameter uncertainty."))
+    parser.add_argument("history", metavar="HISTORY",
+                        help="history CSV/Parquet (date, close) or a scenario folder")
+    add_model_options(parser)
+    parser.add_argument("--horizons", type=parse_horizons, default=DEFAULT_HORIZONS,
+                        help="trading-day horizons, comma-separated "
+                             "(default: 5,10,21,63,126,252)")
+    add_output_options(parser)
+    parser.set_defaults(run=run)
+    return parser
+
+
+def fit_report(history, model: str, dist: str, mean: str, horizons) -> dict:
+    """Fit and assemble the JSON document of ``optbench fit`` (DESIGN.md keys)."""
+    from optbench.volatility.garch import fit_garch
+
+    try:
+        fit = fit_garch(history.returns, model=model, dist=dist, mean=mean)
+    except InputError as err:
+        raise InputError(history.source, err.problem) from None
+    vols = fit.forecast_vol(list(horizons))
+    low, high = fit.forecast_band(list(horizons))
+    dates = history.dates
+    return {
+        "source": str(history.source),
+        "first_date": str(dates[0]) if len(dates) else None,
+        "last_date": str(dates[-1]) if len(dates) else None,
+        "n_returns": int(fit.n_obs),
+        "model": fit.to_dict(),
+        "last_vol": float((252 * fit.last_variance) ** 0.5),
+        "term_structure": [
+            {"trading_days": int(h), "forecast_vol": float(v), "low": float(lo),
+             "high": float(hi)}
+            for h, v, lo, hi in zip(horizons, vols, low, high)],
+        "issues": list(history.issues),
+        "caution": CAUTION,
+    }
+
+
+def run(args: argparse.Namespace) -> int:
+    from optbench.data.history import load_history
+
+    history = load_history(args.history)
+    doc = fit_report(history, args.model, args.dist, args.mean, args.horizons)
+    if args.format == "json":
+        write_output(args, json.dumps(doc, indent=2, allow_nan=False))
+    elif args.format == "csv":
+        write_output(args, term_structure_csv(doc))
+    else:
+        write_output(args, table_text(doc))
+    return 0
+
+
+def term_structure_csv(doc: dict) -> str:
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(["trading_days", "forecast_vol", "low", "high", "model", "dist"])
+    m = doc["model"]
+    for row in doc["term_structure"]:
+        w.writerow([row["trading_days"], f"{row['forecast_vol']:.6f}", f"{row['low']:.6f}",
+                    f"{row['high']:.6f}", m["name"], m["dist"]])
+    return buf.getvalue()
+
+
+def _pct(x, digits=2) -> str:
+    return "-" if x is None else f"{100 * x:.{digits}f}"
+
+
+def _g(x, digits=6) -> str:
+    return "-" if x is None else f"{x:.{digits}g}"
+
+
+def table_text(doc: dict, width: int = 100) -> str:
+    from rich.console import Console
+    from rich.table import Table
+
+    m = doc["model"]
+    buf = io.StringIO()
+    con = Console(file=buf, width=width, color_system=None, highlight=False)
+    con.print(f"{doc['source']}: {doc['n_returns']} daily returns, {doc['first_date']} to "
+              f"{doc['last_date']}")
+    con.print(f"model {m['name']} / {m['dist']} innovations / {m['mean']} mean — "
+              f"{'converged' if m['converged'] else 'NOT converged'} ({m['message']})")
+    if m["fallback_reason"]:
+        con.print(f"note: {m['fallback_reason']}")
+    if m.get("candidates"):
+        shown = ", ".join(f"{k} {v:,.1f}" if v is not None else f"{k} failed"
+                          for k, v in m["candidates"].items())
+        con.print(f"chosen by lowest BIC among: {shown}")
+    for issue in doc["issues"]:
+        con.print(f"history: {issue}")
+
+    con.print("Parameters (decimal units; robust standard errors):")
+    par = Table()
+    for c in ("parameter", "estimate", "std. error", "t"):
+        par.add_column(c, justify="right")
+    for k, v in m["params"].items():
+        se = m["std_errors"].get(k)
+        t = None if (se in (None, 0) or v is None) else v / se
+        par.add_row(k, _g(v), _g(se, 3), "-" if t is None else f"{t:.2f}")
+    con.print(par)
+
+    con.print("Diagnostics:")
+    diag = Table()
+    for c in ("log-lik.", "AIC", "BIC", "persistence", "half-life (days)",
+              "long-run vol %", "vol now %"):
+        diag.add_column(c, justify="right")
+    diag.add_row(f"{m['loglik']:,.2f}", f"{m['aic']:,.2f}", f"{m['bic']:,.2f}",
+                 _g(m["persistence"], 5),
+                 "-" if m["half_life_days"] is None else f"{m['half_life_days']:.1f}",
+                 _pct(m["long_run_vol"]), _pct(doc["last_vol"]))
+    con.print(diag)
+
+    con.print("Forecast volatility, annualised % (band: 5%-95% from parameter uncertainty):")
+    ts = Table()
+    for c in ("trading days", "forecast %", "low %", "high %"):
+        ts.add_column(c, justify="right")
+    for row in doc["term_structure"]:
+        ts.add_row(str(row["trading_days"]), _pct(row["forecast_vol"]), _pct(row["low"]),
+                   _pct(row["high"]))
+    con.print(ts)
+    con.print(doc["caution"])
+    return buf.getvalue()
