@@ -152,8 +152,10 @@ def american_implied_vol_with_status(price, S, K, t, r, q, is_call,
     """Implied volatility of American options and a status code per element.
 
     Same arguments and status codes as
-    :func:`optbench.pricing.implied.implied_vol_with_status` (``below_intrinsic`` means
-    below the immediate-exercise value here). Accuracy is that of the tree
+    :func:`optbench.pricing.implied.implied_vol_with_status`; ``below_intrinsic`` means
+    at or below the option's value at (near) zero volatility, which for American
+    options may exceed immediate exercise (a deep in-the-money option whose price
+    does not move with volatility names no volatility). Accuracy is that of the tree
     (about 1e-4 of the price with the default steps), not machine precision.
     """
     from optbench.pricing import implied as iv
@@ -185,6 +187,16 @@ def american_implied_vol_with_status(price, S, K, t, r, q, is_call,
     status[above] = iv.ABOVE_MAX
     todo = np.flatnonzero(live & ~below & ~above)
     if todo.size:
+        # the lower bound is the value at (nearly) zero volatility, which for American
+        # options can exceed immediate exercise: at or below it no volatility is
+        # identified (prices within 1e-9 of the larger of S and K count as at it)
+        lo = _low_vol(r[todo], q[todo], t[todo], steps)
+        a_lo = american_price(S[todo], K[todo], t[todo], r[todo], q[todo], lo,
+                              is_call[todo], steps)
+        flat = price[todo] <= a_lo + 1e-9 * np.maximum(S[todo], K[todo])
+        status[todo[flat]] = iv.BELOW_INTRINSIC
+        todo = todo[~flat]
+    if todo.size:
         v, st = _solve(price[todo], S[todo], K[todo], t[todo], r[todo], q[todo],
                        is_call[todo], steps, max_iter)
         vol[todo] = v
@@ -212,7 +224,7 @@ def _solve(P, S, K, t, r, q, c, steps, max_iter):
     v1, _ = iv.black_implied_vol_with_status(P - prem, F, K, t, D, c)
     s1 = np.where(np.isfinite(v1), v1, np.where(f0 > 0, 0.8 * s0, 1.25 * s0))
     s1 = np.clip(s1, lo_vol, 5.0)
-    tol_price = 1e-10 * np.maximum(S, K)
+    tol_price = 1e-13 * np.maximum(S, K)
     done = np.abs(f0) <= tol_price
     s1 = np.where(done, s0, s1)
     act = np.flatnonzero(~done)
@@ -222,7 +234,7 @@ def _solve(P, S, K, t, r, q, c, steps, max_iter):
             break
         a1 = american_price(S[act], K[act], t[act], r[act], q[act], s1[act], c[act], steps)
         f1 = a1 - P[act]
-        conv = (np.abs(f1) <= tol_price[act]) | (np.abs(s1[act] - s0[act]) <= 1e-10)
+        conv = (np.abs(f1) <= tol_price[act]) | (np.abs(s1[act] - s0[act]) <= 1e-9 * s1[act])
         with np.errstate(divide="ignore", invalid="ignore"):
             slope = (f1 - f0[act]) / (s1[act] - s0[act])
             step = -f1 / slope
