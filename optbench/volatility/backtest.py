@@ -204,7 +204,10 @@ def _inputs(history, dates):
 
 
 def _fit(returns, model, dist, mean):
-    from optbench.volatility.garch import fit_garch
+    """fit_garch, or the EWMA benchmark (nothing to estimate) for model="ewma"."""
+    from optbench.volatility.garch import fit_garch, fix_garch
+    if model == "ewma":
+        return fix_garch(returns, {}, "ewma", "normal", mean)
     return fit_garch(returns, model=model, dist=dist, mean=mean)
 
 
@@ -304,7 +307,8 @@ def backtest(history, split, model: str = "auto", dist: str = "t",
     split : date or ISO string
         Last day of the estimation sample; returns dated after it are out of sample.
     model, dist, mean : str
-        Passed to :func:`optbench.volatility.garch.fit_garch`.
+        Passed to :func:`optbench.volatility.garch.fit_garch`; ``model="ewma"``
+        checks the EWMA (lambda 0.94) variance with normal innovations instead.
     k : float
         Width of the band in standard deviations (3 by default).
     var_levels : sequence of float

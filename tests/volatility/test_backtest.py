@@ -176,6 +176,17 @@ def test_egarch_multi_step_forecasts_match_fixed_fit(series):
             assert acc.forecasts["model"][j] == pytest.approx(expected, rel=1e-6)
 
 
+def test_ewma_model_check(series):
+    # EWMA (RiskMetrics 1996, lambda 0.94) held as the model: its one-day forecasts
+    # are the EWMA benchmark's, so the two rows of the accuracy table coincide
+    r, dates = series
+    res = backtest(r, dates[1 + SPLIT_AT], model="ewma", mean="zero", dates=dates,
+                   horizons=(1,))
+    assert res.model_name == "ewma" and res.dist == "normal"
+    one = res.accuracy[0]
+    np.testing.assert_allclose(one.forecasts["model"], one.forecasts["ewma"], rtol=1e-10)
+
+
 def test_periodic_refits(series):
     r, dates = series
     fixed = backtest(r, dates[1 + SPLIT_AT], model="garch", dist="normal", dates=dates,
