@@ -49,9 +49,15 @@ def _window(window: int, n: int) -> int:
 
 
 def _window_sums(x: np.ndarray, w: int) -> np.ndarray:
-    """Sums of x over each run of w consecutive values (cumulative-sum differences)."""
-    c = np.concatenate([[0.0], np.cumsum(x)])
-    return c[w:] - c[:-w]
+    """Sums of x over each run of w consecutive values (cumulative-sum differences);
+    NaN for a window that holds a missing value, without spoiling later windows."""
+    bad = ~np.isfinite(x)
+    c = np.concatenate([[0.0], np.cumsum(np.where(bad, 0.0, x))])
+    out = c[w:] - c[:-w]
+    if bad.any():
+        nb = np.concatenate([[0], np.cumsum(bad)])
+        out[(nb[w:] - nb[:-w]) > 0] = np.nan
+    return out
 
 
 def _rolling_mean(x: np.ndarray, w: int, offset: int = 0) -> np.ndarray:
@@ -75,7 +81,7 @@ def _rolling_var(x: np.ndarray, w: int, offset: int = 0, demean: bool = True) ->
         raise ValueError("a demeaned variance needs a window of at least 2")
     if x.size >= w:
         if demean:
-            xc = x - x.mean()
+            xc = x - np.nanmean(x)
             s1 = _window_sums(xc, w)
             s2 = _window_sums(xc * xc, w)
             out[w - 1 + offset:] = np.maximum(s2 - s1 * s1 / w, 0.0) / (w - 1)

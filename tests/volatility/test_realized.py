@@ -162,3 +162,21 @@ def test_rolling_sums_stay_accurate_on_long_series():
         ours = rv.close_to_close(close, w)[w:]
         ref = np.sqrt(252 * sliding_window_view(r, w).var(axis=1, ddof=1))
         np.testing.assert_allclose(ours, ref, rtol=1e-8)
+
+
+def test_missing_bar_spoils_only_the_windows_that_hold_it():
+    # a NaN high/low (the loader's mark for an inconsistent row) must not leak into
+    # windows that do not contain it; direct per-window evaluation as reference
+    h, l = H.copy(), L.copy()
+    h[2] = np.nan
+    out = rv.parkinson(h, l, 2)
+    for end in range(1, 7):
+        if end in (2, 3):
+            assert np.isnan(out[end])
+        else:
+            s = sum(math.log(h[i] / l[i]) ** 2 for i in (end - 1, end))
+            assert out[end] == pytest.approx(math.sqrt(252 * s / (8 * math.log(2))), rel=1e-12)
+    c = C.copy()
+    c[1] = np.nan   # returns 1 and 2 are missing
+    cc = rv.close_to_close(c, 2)
+    assert np.isnan(cc[:4]).all() and np.isfinite(cc[4:]).all()
