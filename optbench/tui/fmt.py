@@ -30,7 +30,10 @@ def pct(x: Any, digits: int = 1, signed: bool = False) -> str:
     """A decimal as percentage points: 0.215 -> '21.5'."""
     if _bad(x):
         return "–"
-    return f"{float(x) * 100:+.{digits}f}" if signed else f"{float(x) * 100:.{digits}f}"
+    v = float(x) * 100
+    if round(v, digits) == 0:
+        v = 0.0  # no sign on a rounded zero
+    return f"{v:+.{digits}f}" if signed else f"{v:.{digits}f}"
 
 
 def pct_sign(x: Any, digits: int = 1) -> str:
@@ -46,7 +49,8 @@ def num(x: Any, digits: int = 2, signed: bool = False) -> str:
 def money(x: Any, signed: bool = False) -> str:
     if _bad(x):
         return "–"
-    return f"{float(x):+,.0f}" if signed else f"{float(x):,.0f}"
+    v = 0.0 if round(float(x)) == 0 else float(x)
+    return f"{v:+,.0f}" if signed else f"{v:,.0f}"
 
 
 def date(x: Any) -> str:

@@ -44,7 +44,7 @@ async def _test_demo_opens_and_every_view_shows_the_comparison():
         assert term.row_count == len(c.expiries)
         assert [r[0] for r in term.raw_rows] == [r.expiry.isoformat() for r in c.expiries]
         rc = app.screen.query_one("#rc-expiries")
-        verdict_col = [str(v) for v in rc.get_column_at(len(rc.columns) - 1)]
+        verdict_col = [str(v) for v in rc.get_column("verdict")]
         # readable without colour: each verdict has its text mark
         marks = {"rich": "▲ rich", "fair": "= fair", "cheap": "▼ cheap", "n/a": "? n/a"}
         assert verdict_col == [marks[r.verdict] for r in c.expiries]
@@ -53,11 +53,14 @@ async def _test_demo_opens_and_every_view_shows_the_comparison():
         assert strikes.row_count == len(c.strike_frame(app.view("richcheap").expiry))
         # sorting the strike table by edge (vol points) orders the raw values
         strikes.focus()
-        strikes.move_cursor(column=11)
+        col = strikes.get_column_index("edgev")
+        strikes.move_cursor(column=col)
         await pilot.press("s")
-        edge = [r[11] for r in strikes.raw_rows]
-        shown = [strikes.get_row_at(i) for i in range(strikes.row_count)]
-        assert shown[0][11].plain.endswith(f"{min(e for e in edge if e == e):+.2f}")
+        edge = [r[col] for r in strikes.raw_rows]
+        first = strikes.get_row_at(0)[col].plain
+        assert first.endswith(f"{min(e for e in edge if e == e):+.2f}")
+        await pilot.press("s")  # again: high to low
+        assert strikes.get_row_at(0)[col].plain.endswith(f"{max(e for e in edge if e == e):+.2f}")
         # data quality: the counts add up and every rejected row is listed
         q = c.quality
         assert q["rows_in"] == q["rows_used"] + sum(q["rejected"].values())

@@ -118,7 +118,7 @@ def scenario_table(est) -> Table:
         t.add_column(c, justify="right", no_wrap=True)
     for s in est.scenarios:
         better = s["hedged"] > s["unhedged"]
-        t.add_row(f"{s['move']:+.0%}", fmt.num(s.get("level")), fmt.money(s["unhedged"], True),
+        t.add_row(fmt.pct(s["move"], 0, signed=True) + "%", fmt.num(s.get("level")), fmt.money(s["unhedged"], True),
                   Text(fmt.money(s["hedged"], True), style="green" if better else ""))
     return t
 
@@ -146,19 +146,21 @@ class HedgeView(Horizontal):
     def compose(self) -> ComposeResult:
         with VerticalScroll(id="hedge-form"):
             yield Label("Portfolio value")
-            yield Input("10,000,000", id="hedge-portfolio")
+            yield Input("10,000,000", id="hedge-portfolio", compact=True)
             yield Label("Beta to the underlying")
-            yield Input("1.0", id="hedge-beta")
+            yield Input("1.0", id="hedge-beta", compact=True)
             yield Label("Floor, % of spot (put strike)")
-            yield Input("90", id="hedge-floor")
+            yield Input("90", id="hedge-floor", compact=True)
             yield Label("Expiry")
-            yield Select([], id="hedge-expiry", allow_blank=True, prompt="nearest 3 months")
+            yield Select([], id="hedge-expiry", allow_blank=True, prompt="nearest 3 months",
+                         compact=True)
             yield Label("Structure")
-            yield Select(STRUCTURES, value="put", allow_blank=False, id="hedge-structure")
+            yield Select(STRUCTURES, value="put", allow_blank=False, id="hedge-structure",
+                         compact=True)
             yield Label("Put spread: sold put, % of spot")
-            yield Input("", placeholder="floor − 10", id="hedge-lower")
+            yield Input("", placeholder="floor − 10", id="hedge-lower", compact=True)
             yield Label("Collar: sold call strike")
-            yield Input("", placeholder="zero-cost call", id="hedge-call")
+            yield Input("", placeholder="zero-cost call", id="hedge-call", compact=True)
             yield Static("", id="hedge-error", classes="form-error")
         with VerticalScroll(id="hedge-result"):
             yield Static("Waiting for the comparison…", id="hedge-summary")

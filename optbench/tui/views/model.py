@@ -31,29 +31,34 @@ def params_table(model) -> Table:
 
 
 def counts_table(bt: dict | None) -> Table:
-    t = Table(title="Out of sample", title_justify="left", header_style="bold", expand=True)
-    t.add_column("Check")
+    title = "Out of sample" + (f" from {bt.get('split')}" if bt else "")
+    t = Table(title=title, title_justify="left", header_style="bold", expand=True)
+    t.add_column("Check", ratio=3)
     t.add_column("Seen", justify="right")
-    t.add_column("Expected", justify="right")
-    t.add_column("Zone / p", justify="right")
+    t.add_column("Expected", justify="right", ratio=2)
+    t.add_column("Zone, Kupiec p", justify="right", ratio=2)
     if not bt:
         t.add_row("checking the model out of sample …", "", "", "")
         return t
     k = bt.get("band_k", 3)
-    t.add_row(f"days outside ±{k:g}σ (of {bt.get('n_out', '?')})", str(bt.get("outside_band", "–")),
-              f"{fmt.num(bt.get('expected_model'), 1)} model / {fmt.num(bt.get('expected_normal'), 1)} normal",
-              "")
+    t.add_row(f"days outside ±{k:g}σ of {bt.get('n_out', '?')}", str(bt.get("outside_band", "–")),
+              f"{fmt.num(bt.get('expected_model'), 1)} model", "")
+    t.add_row("", "", f"{fmt.num(bt.get('expected_normal'), 1)} if normal", "")
     for v in bt.get("var", []) or []:
         zone = v.get("zone", "")
         mark = {"green": "● green", "yellow": "◐ yellow", "red": "○ red"}.get(zone, zone)
-        t.add_row(f"VaR {v.get('level', 0):.0%} exceedances", str(v.get("exceedances", "–")),
+        t.add_row(f"VaR {v.get('level', 0) * 100:g}% breaches", str(v.get("exceedances", "–")),
                   fmt.num(v.get("expected"), 1) if "expected" in v else "",
-                  f"{mark} p={fmt.num(v.get('kupiec_p'), 3)}")
+                  f"{mark} {fmt.num(v.get('kupiec_p'), 2)}")
     res = bt.get("residuals") or {}
     if res:
-        t.add_row("residual skew / excess kurtosis",
-                  f"{fmt.num(res.get('skew'), 2)} / {fmt.num(res.get('excess_kurtosis'), 2)}", "", "")
+        t.add_row("residual skew", fmt.num(res.get("skew"), 2), "", "")
+        t.add_row("residual excess kurtosis", fmt.num(res.get("excess_kurtosis"), 2), "", "")
     return t
+
+
+#: trading days of returns plotted (about two years: one before the check, one in it)
+PLOT_DAYS = 504
 
 
 def returns_plot(comparison) -> PlotSpec:
@@ -62,6 +67,7 @@ def returns_plot(comparison) -> PlotSpec:
     if h is None or len(h) == 0:
         return PlotSpec(title="no price history in this comparison")
     k = float(bt.get("band_k", 3))
+    h = h.tail(PLOT_DAYS)
     x = to_day_number(h["date"].to_numpy())
     ret = h["ret"].to_numpy(float) * 100
     band = h["sigma"].to_numpy(float) * 100 * k
@@ -70,13 +76,13 @@ def returns_plot(comparison) -> PlotSpec:
     surprises = bt.get("surprises") or []
     if surprises:
         dates = to_day_number([s["date"] for s in surprises])
-        where = np.searchsorted(x, dates).clip(0, len(x) - 1)
-        series.append(Series("out-of-sample surprises", dates, ret[where], kind="points",
+        returns = np.array([s.get("return", np.nan) for s in surprises], float) * 100
+        series.append(Series("out-of-sample surprises", dates, returns, kind="points",
                              color="bright_red", marker="✖"))
     split = bt.get("split")
     extra = ((("┆", f"out of sample from {split}"),) if split else ())
-    return PlotSpec(title=f"{comparison.underlying} daily log returns, % (±{k:g}σ band "
-                          "from the model's conditional vol)",
+    return PlotSpec(title=f"{comparison.underlying} daily log returns %, last {len(h)} days, "
+                          f"±{k:g}σ band of the model's conditional vol",
                     series=tuple(series), x_is_date=True, y_format="{:.1f}",
                     extra_legend=extra)
 

@@ -12,16 +12,16 @@ from textual.widgets import DataTable, Static
 from optbench.tui import fmt
 from optbench.tui.widgets.table import SortableTable
 
-EXPIRY_COLUMNS = (("expiry", "Expiry"), ("tenor", "Tenor"), ("n", "Quotes"),
+EXPIRY_COLUMNS = (("expiry", "Expiry"), ("tenor", "Tenor"), ("verdict", "Verdict"),
                   ("atm", "ATM IV %"), ("fc", "Forecast %"), ("band", "Band %"),
-                  ("diff", "IV − fc pts"), ("ratio", "IV / fc"), ("vrp", "Var prem"),
-                  ("rr", "25Δ RR pts"), ("prob", "P(RV > IV)"), ("verdict", "Verdict"))
+                  ("diff", "IV−fc pts"), ("ratio", "IV/fc"), ("vrp", "Var prem"),
+                  ("rr", "25Δ RR"), ("prob", "P(RV>IV) %"), ("n", "Quotes"))
 
-STRIKE_COLUMNS = (("type", "Type"), ("strike", "Strike"), ("money", "K / F"), ("bid", "Bid"),
-                  ("ask", "Ask"), ("ivb", "Bid IV %"), ("ivm", "Mid IV %"), ("iva", "Ask IV %"),
-                  ("fc", "Forecast %"), ("pf", "Value at fc"), ("edge", "Edge / contract"),
-                  ("edgev", "Edge, vol pts"), ("delta", "Delta"), ("vega", "Vega / pt"),
-                  ("line", "Line"))
+STRIKE_COLUMNS = (("type", "Type"), ("strike", "Strike"), ("money", "K/F"),
+                  ("edgev", "Edge vol pts"), ("edge", "Edge/contract"), ("bid", "Bid"),
+                  ("ask", "Ask"), ("ivb", "Bid IV"), ("ivm", "Mid IV"), ("iva", "Ask IV"),
+                  ("fc", "Fcst"), ("pf", "Value at fc"), ("delta", "Delta"),
+                  ("vega", "Vega/pt"), ("line", "Line"))
 
 
 def _edge_mark(points: float) -> Text:
@@ -32,20 +32,23 @@ def _edge_mark(points: float) -> Text:
     return Text(f"{mark} {points:+.2f}", style=style, justify="right")
 
 
+#: sort order of verdicts: dearest first
+_VERDICT_ORDER = {"rich": 0, "fair": 1, "cheap": 2, "n/a": 3}
+
+
 def expiry_rows(comparison):
     raw, shown = [], []
     for r in comparison.expiries:
-        raw.append((r.expiry.isoformat(), r.calendar_days, r.n_quotes, r.atm_iv, r.forecast_vol,
-                    r.forecast_high - r.forecast_low, r.iv_minus_forecast, r.iv_forecast_ratio,
-                    r.variance_premium, r.rr_25d, r.prob_realized_above_iv,
-                    ("rich", "fair", "cheap", "n/a").index(r.verdict)
-                    if r.verdict in ("rich", "fair", "cheap", "n/a") else 9))
-        shown.append((fmt.date(r.expiry), fmt.tenor(r.calendar_days), str(r.n_quotes),
+        raw.append((r.expiry.isoformat(), r.calendar_days, _VERDICT_ORDER.get(r.verdict, 9),
+                    r.atm_iv, r.forecast_vol, r.forecast_low, r.iv_minus_forecast,
+                    r.iv_forecast_ratio, r.variance_premium, r.rr_25d,
+                    r.prob_realized_above_iv, r.n_quotes))
+        shown.append((fmt.date(r.expiry), fmt.tenor(r.calendar_days), fmt.verdict(r.verdict),
                       fmt.pct(r.atm_iv), fmt.pct(r.forecast_vol),
                       f"{fmt.pct(r.forecast_low)}–{fmt.pct(r.forecast_high)}",
                       fmt.pct(r.iv_minus_forecast, signed=True), fmt.num(r.iv_forecast_ratio),
                       fmt.num(r.variance_premium, 4, signed=True), fmt.pct(r.rr_25d, signed=True),
-                      fmt.pct(r.prob_realized_above_iv, 0), fmt.verdict(r.verdict)))
+                      fmt.pct(r.prob_realized_above_iv, 0), str(r.n_quotes)))
     return raw, shown
 
 
@@ -55,16 +58,17 @@ def strike_rows(table):
     raw, shown = [], []
     for i in range(n):  # display rows only; the numbers are the core's per-strike table
         g = {c: cols[c][i] for c in cols}
-        raw.append((str(g["type"]), float(g["strike"]), float(g["moneyness"]), float(g["bid"]),
+        raw.append((str(g["type"]), float(g["strike"]), float(g["moneyness"]),
+                    float(g["edge_vol_points"]), float(g["edge_per_contract"]), float(g["bid"]),
                     float(g["ask"]), float(g["iv_bid"]), float(g["iv_mid"]), float(g["iv_ask"]),
                     float(g["forecast_vol"]), float(g["price_at_forecast"]),
-                    float(g["edge_per_contract"]), float(g["edge_vol_points"]),
                     float(g["delta"]), float(g["vega_per_vol_point"]), int(g["line"])))
         shown.append((str(g["type"]), fmt.num(g["strike"], 2), fmt.num(g["moneyness"], 3),
-                      fmt.num(g["bid"]), fmt.num(g["ask"]), fmt.pct(g["iv_bid"]),
-                      fmt.pct(g["iv_mid"]), fmt.pct(g["iv_ask"]), fmt.pct(g["forecast_vol"]),
-                      fmt.num(g["price_at_forecast"]), fmt.money(g["edge_per_contract"], True),
-                      _edge_mark(float(g["edge_vol_points"])), fmt.num(g["delta"], 3),
+                      _edge_mark(float(g["edge_vol_points"])),
+                      fmt.money(g["edge_per_contract"], True), fmt.num(g["bid"]),
+                      fmt.num(g["ask"]), fmt.pct(g["iv_bid"]), fmt.pct(g["iv_mid"]),
+                      fmt.pct(g["iv_ask"]), fmt.pct(g["forecast_vol"]),
+                      fmt.num(g["price_at_forecast"]), fmt.num(g["delta"], 3),
                       fmt.num(g["vega_per_vol_point"], 3), str(int(g["line"]))))
     return raw, shown
 
@@ -87,9 +91,9 @@ class RichCheapView(Vertical):
         self._comparison = comparison
         lo, hi = comparison.band
         self.query_one("#rc-rule", Static).update(
-            f"Verdict: {comparison.verdict_rule}.  ▲ rich  = fair  ▼ cheap.  Edge ▲ = market "
-            f"mid above the option's value at the forecast vol.  s sorts by the cursor's "
-            f"column; Enter on an expiry shows its strikes.")
+            "▲ rich / = fair / ▼ cheap: ATM implied vol above / inside / below the forecast "
+            f"band ({lo:.0%}–{hi:.0%}).  Edge ▲: market mid above the option's value at the "
+            "forecast vol.  s sorts by the cursor's column; Enter shows an expiry's strikes.")
         raw, shown = expiry_rows(comparison)
         self.query_one("#rc-expiries", SortableTable).set_rows(
             EXPIRY_COLUMNS, raw, shown, keys=[r[0] for r in raw])

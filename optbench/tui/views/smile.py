@@ -49,6 +49,8 @@ def smile_plot(comparison, row) -> PlotSpec:
     if curve is not None:
         series.insert(0, Series(f"fitted smile ({row.smile.get('method', 'svi')})", grid,
                                 curve * 100, color="yellow"))
+    series.append(Series(f"ATM {fmt.pct(row.atm_iv)}% at the forward", [row.forward],
+                         [row.atm_iv * 100], kind="points", color="bright_green", marker="◎"))
     series.append(Series(f"forecast {fmt.pct(row.forecast_vol)}%", [k.min(), k.max()],
                          [row.forecast_vol * 100] * 2, color="bright_blue"))
     series.append(Series("forecast band", [k.min(), k.max()], [row.forecast_low * 100] * 2,
@@ -59,7 +61,9 @@ def smile_plot(comparison, row) -> PlotSpec:
         title=(f"Smile {fmt.date(row.expiry)} ({fmt.tenor(row.calendar_days)}), implied vol % "
                f"by strike, out-of-the-money quotes; forward {fmt.num(row.forward)}"),
         series=tuple(series), x_format="{:.0f}",
-        extra_legend=(("|", f"ATM {fmt.pct(row.atm_iv)}%"),))
+        extra_legend=(() if curve is not None else
+                      (("", "(no fitted curve: the comparison does not carry the smile's "
+                            "parameters)"),)))
 
 
 class SmileView(Vertical):

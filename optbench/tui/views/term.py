@@ -10,12 +10,11 @@ from optbench.tui import fmt
 from optbench.tui.widgets.plot import CellPlot, PlotSpec, Series
 from optbench.tui.widgets.table import SortableTable
 
-COLUMNS = (("expiry", "Expiry"), ("days", "Days"), ("tdays", "Trading d"),
-           ("forward", "Forward"), ("atm", "ATM IV %"), ("bid", "Bid IV %"),
-           ("ask", "Ask IV %"), ("mfiv", "Model-free %"), ("fc", "Forecast %"),
-           ("low", "Band low %"), ("high", "Band high %"), ("rv", "Realized %"),
-           ("cone", "Cone pctile"), ("diff", "IV − fc pts"), ("prob", "P(RV > IV)"),
-           ("verdict", "Verdict"))
+COLUMNS = (("expiry", "Expiry"), ("days", "Days"), ("verdict", "Verdict"), ("tdays", "Tr.days"),
+           ("forward", "Forward"), ("atm", "ATM IV"), ("bid", "Bid IV"),
+           ("ask", "Ask IV"), ("mfiv", "MF IV"), ("fc", "Fcst"),
+           ("low", "Band lo"), ("high", "Band hi"), ("rv", "Realzd"),
+           ("cone", "Cone %ile"), ("diff", "IV−fc"), ("prob", "P(RV>IV)"))
 
 
 def term_plot(comparison) -> PlotSpec:
@@ -27,8 +26,9 @@ def term_plot(comparison) -> PlotSpec:
 
     lo, hi = comparison.band
     return PlotSpec(
-        title=(f"{comparison.underlying} vol term structure, % a year, against calendar days "
-               f"to expiry (band: {lo:.0%}–{hi:.0%} of simulated realized vol)"),
+        title=(f"{comparison.underlying} vol term structure, % a year, by calendar days to "
+               f"expiry (band: {lo:.0%}–{hi:.0%} of simulated realized vol). Table: vols in "
+               "%, IV−fc in vol points, MF = model-free"),
         series=(
             Series("forecast band", days, col("forecast_low"), kind="band",
                    y2=col("forecast_high"), color="grey27"),
@@ -47,16 +47,17 @@ def term_plot(comparison) -> PlotSpec:
 def term_rows(comparison):
     raw, shown = [], []
     for r in comparison.expiries:
-        raw.append((r.expiry.isoformat(), r.calendar_days, r.trading_days, r.forward,
+        raw.append((r.expiry.isoformat(), r.calendar_days, r.verdict, r.trading_days, r.forward,
                     r.atm_iv, r.atm_iv_bid, r.atm_iv_ask, r.model_free_iv, r.forecast_vol,
                     r.forecast_low, r.forecast_high, r.realized_vol, r.cone_percentile,
-                    r.iv_minus_forecast, r.prob_realized_above_iv, r.verdict))
-        shown.append((fmt.date(r.expiry), str(r.calendar_days), str(r.trading_days),
+                    r.iv_minus_forecast, r.prob_realized_above_iv))
+        shown.append((fmt.date(r.expiry), str(r.calendar_days), fmt.verdict(r.verdict),
+                      str(r.trading_days),
                       fmt.num(r.forward), fmt.pct(r.atm_iv), fmt.pct(r.atm_iv_bid),
                       fmt.pct(r.atm_iv_ask), fmt.pct(r.model_free_iv), fmt.pct(r.forecast_vol),
                       fmt.pct(r.forecast_low), fmt.pct(r.forecast_high), fmt.pct(r.realized_vol),
                       fmt.pct(r.cone_percentile, 0), fmt.pct(r.iv_minus_forecast, signed=True),
-                      fmt.pct(r.prob_realized_above_iv, 0), fmt.verdict(r.verdict)))
+                      fmt.pct(r.prob_realized_above_iv, 0)))
     return raw, shown
 
 

@@ -57,7 +57,7 @@ class PlotSpec:
     extra_legend: tuple[tuple[str, str], ...] = field(default_factory=tuple)
 
 
-def _finite_range(values: list[np.ndarray]) -> tuple[float, float] | None:
+def _finite_range(values: list[np.ndarray], pad_share: float = 0.05) -> tuple[float, float] | None:
     stacked = [v[np.isfinite(v)] for v in values if v is not None and v.size]
     stacked = [v for v in stacked if v.size]
     if not stacked:
@@ -67,7 +67,7 @@ def _finite_range(values: list[np.ndarray]) -> tuple[float, float] | None:
     if hi <= lo:
         pad = abs(lo) * 0.05 or 1.0
         return lo - pad, hi + pad
-    pad = (hi - lo) * 0.05
+    pad = (hi - lo) * pad_share
     return lo - pad, hi + pad
 
 
@@ -93,6 +93,11 @@ def _segment_dots(px: np.ndarray, py: np.ndarray) -> tuple[np.ndarray, np.ndarra
     return np.rint(xs).astype(int), np.rint(ys).astype(int)
 
 
+def _clean(label: str) -> str:
+    """'-0.0' -> '0.0': a rounded zero has no sign."""
+    return label[1:] if label.startswith("-") and not label.strip("-0.,") else label
+
+
 def _date_label(value: float) -> str:
     return str(np.datetime64(int(round(value)), "D"))
 
@@ -101,7 +106,7 @@ def render_plot(spec: PlotSpec, width: int, height: int) -> Text:
     """Draw ``spec`` into ``width`` x ``height`` cells and return rich Text."""
     width, height = max(width, 20), max(height, 5)
     series = [s for s in spec.series if s.x.size]
-    xr = _finite_range([s.x for s in series])
+    xr = _finite_range([s.x for s in series], pad_share=0.0)
     yr = spec.y_range or _finite_range([s.y for s in series] + [s.y2 for s in series if s.y2 is not None])
     text = Text(no_wrap=True, overflow="crop")
     if spec.title:
@@ -110,10 +115,10 @@ def render_plot(spec: PlotSpec, width: int, height: int) -> Text:
         text.append(spec.empty_text, style="dim italic")
         return text
     legend_rows = 1
-    plot_h = height - (1 if spec.title else 0) - legend_rows - 1  # x axis labels
+    plot_h = height - (1 if spec.title else 0) - legend_rows - 2  # x axis line and labels
     if plot_h < 2:
         plot_h = 2
-    y_labels = [spec.y_format.format(v) for v in np.linspace(yr[1], yr[0], plot_h)]
+    y_labels = [_clean(spec.y_format.format(v)) for v in np.linspace(yr[1], yr[0], plot_h)]
     margin = max(len(s) for s in y_labels) + 1
     plot_w = max(width - margin - 1, 10)
     x0, x1 = xr
@@ -188,7 +193,7 @@ def render_plot(spec: PlotSpec, width: int, height: int) -> Text:
     n_labels = max(2, plot_w // 14)
     axis = [" "] * (plot_w + margin + 1)
     for i, v in enumerate(np.linspace(x0, x1, n_labels)):
-        lab = _date_label(v) if spec.x_is_date else spec.x_format.format(v)
+        lab = _date_label(v) if spec.x_is_date else _clean(spec.x_format.format(v))
         pos = margin + 1 + int(round(i / (n_labels - 1) * (plot_w - 1)))
         start = min(max(pos - len(lab) // 2, margin + 1), len(axis) - len(lab))
         if all(ch == " " for ch in axis[max(start - 1, 0):start + len(lab) + 1]):
