@@ -1,0 +1,84 @@
+"""The fast recursions and densities against plain references: a Python loop, finite
+differences, and scipy's Student-t density (scipy.stats.t)."""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from optbench.volatility.distributions import normal_loglik, std_t_loglik
+from optbench.volatility.garch import _Problem
+from optbench.volatility.recursions import (garch_variance, garch_variance_loop,
+                                            linear_filter, linear_filter_loop,
+                                            reverse_filter)
+
+
+@pytest.mark.parametrize("n", [1, 2, 37, 250, 1000, 5003])
+def test_blocked_filter_equals_loop(n):
+    rng = np.random.default_rng(n)
+    u = rng.random((3, n))
+    np.testing.assert_allclose(linear_filter(u, 0.97, [1.0, 2.0, 0.5]),
+                               np.stack([linear_filter_loop(u[i], 0.97, x0)
+                                         for i, x0 in enumerate([1.0, 2.0, 0.5])]),
+                               rtol=1e-12)
+
+
+def test_reverse_filter_is_the_adjoint():
+    rng = np.random.default_rng(1)
+    v, w = rng.random(900), rng.random(900)
+    assert np.dot(w, linear_filter(v, 0.9)) == pytest.approx(
+        np.dot(v, reverse_filter(w, 0.9)), rel=1e-12)
+
+
+def test_gjr_variance_and_derivatives():
+    rng = np.random.default_rng(2)
+    e = 0.01 * rng.standard_normal(3000)
+    args = (1e-6, 0.04, 0.1, 0.88, 1.1e-4)
+    s2, d = garch_variance(e, *args, grad=True)
+    np.testing.assert_allclose(s2, garch_variance_loop(e, *args), rtol=1e-12)
+    for i in range(4):   # central differences of the loop reference
+        h = 1e-7 * max(abs(args[i]), 1e-4)
+        up, dn = list(args), list(args)
+        up[i] += h
+        dn[i] -= h
+        fd = (garch_variance_loop(e, *up) - garch_variance_loop(e, *dn)) / (2 * h)
+        np.testing.assert_allclose(d[i], fd, rtol=1e-5, atol=1e-12)
+
+
+@pytest.mark.parametrize("model,dist", [("garch", "normal"), ("gjr", "t")])
+def test_analytic_gradient_against_finite_differences(model, dist):
+    rng = np.random.default_rng(3)
+    y = rng.standard_normal(2000) * np.exp(0.3 * np.sin(np.arange(2000) / 50))
+    prob = _Problem(y, model, dist, True, 1.0)
+    theta = np.array([0.02, 0.05, 0.06] + ([0.08] if model == "gjr" else []) + [0.88]
+                     + ([6.5] if dist == "t" else []))
+    f, g = prob.objective_grad(theta)
+    for i in range(theta.size):
+        h = 1e-6
+        tp, tm = theta.copy(), theta.copy()
+        tp[i] += h
+        tm[i] -= h
+        fd = (prob.objective(tp) - prob.objective(tm)) / (2 * h)
+        assert g[i] == pytest.approx(fd, rel=1e-5, abs=1e-9)
+
+
+def test_densities_against_scipy():
+    from scipy import stats
+
+    rng = np.random.default_rng(4)
+    e = rng.standard_normal(50) * 0.02
+    s2 = rng.uniform(1e-4, 9e-4, 50)
+    np.testing.assert_allclose(normal_loglik(e, s2), stats.norm.logpdf(e, scale=np.sqrt(s2)),
+                               rtol=1e-12)
+    nu = 5.5
+    scale = np.sqrt(s2 * (nu - 2) / nu)   # unit-variance t (Bollerslev 1987)
+    np.testing.assert_allclose(std_t_loglik(e, s2, nu), stats.t.logpdf(e, nu, scale=scale),
+                               rtol=1e-12)
+    _, d_s2, d_e, d_nu = std_t_loglik(e, s2, nu, grad=True)
+    h = 1e-6
+    fd_nu = (std_t_loglik(e, s2, nu + h) - std_t_loglik(e, s2, nu - h)) / (2 * h)
+    np.testing.assert_allclose(d_nu, fd_nu, rtol=1e-6)
+    fd_s2 = (std_t_loglik(e, s2 * (1 + h), nu) - std_t_loglik(e, s2 * (1 - h), nu)) / (2 * h * s2)
+    np.testing.assert_allclose(d_s2, fd_s2, rtol=1e-5)
+    assert math.isfinite(float(d_e.sum()))
