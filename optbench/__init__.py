@@ -36,6 +36,7 @@ _EXPORTS: dict[str, str] = {
     "VolCone": "optbench.volatility.cone",
     "compare": "optbench.analysis.compare",
     "hedge": "optbench.analysis.hedge",
+    "screen": "optbench.screening.screen",
 }
 
 __all__ = sorted(_EXPORTS) + ["__version__"]

@@ -1,0 +1,96 @@
+"""``optbench screen FOLDER``: many underlyings, one ranked table, in local processes
+or on a Dask distributed cluster (``--scheduler``)."""
+from __future__ import annotations
+
+import argparse
+import sys
+
+from optbench.commands.common import add_model_options, add_output_options, parse_float
+from optbench.commands.common import write_output
+from optbench.errors import InputError
+
+FORMATS = ("table", "json", "csv", "xlsx")
+
+
+def parse_tenors(text: str) -> tuple[int, ...]:
+    try:
+        tenors = tuple(int(p) for p in text.replace(" ", "").split(",") if p)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"give days like 30,91,182, not {text!r}") from None
+    if not tenors or min(tenors) <= 0:
+        raise argparse.ArgumentTypeError(f"give positive days like 30,91,182, not {text!r}")
+    return tenors
+
+
+def add_parser(subparsers) -> argparse.ArgumentParser:
+    from optbench.screening.rows import COLUMNS
+    parser = subparsers.add_parser(
+        "screen", help="many underlyings, one ranked table of implied against forecast",
+        description=("Screen a folder of scenario folders (one per underlying): at each "
+                     "tenor, the nearest listed expiry's ATM implied vol against the "
+                     "forecast and its band, the verdict, and the cost of protection "
+                     "per 1,000,000 of notional against its expected payoff."))
+    parser.add_argument("folder", metavar="FOLDER", help="folder of scenario folders")
+    parser.add_argument("--tenors", type=parse_tenors, default=(30, 91, 182),
+                        metavar="DAYS,...", help="target tenors in calendar days "
+                                                 "(default: 30,91,182)")
+    parser.add_argument("--floor", type=parse_float, default=0.90,
+                        help="protection floor as a fraction of spot (default: 0.90)")
+    parser.add_argument("--sort", choices=COLUMNS, default="iv_minus_forecast",
+                        metavar="COLUMN", help="rank by this column (default: "
+                                               "iv_minus_forecast)")
+    parser.add_argument("--ascending", action="store_true",
+                        help="smallest first (default: largest first)")
+    parser.add_argument("--workers", type=int, default=None,
+                        help="local worker processes (default: the number of cores)")
+    parser.add_argument("--scheduler", metavar="ADDRESS", default=None,
+                        help="run on this Dask distributed scheduler (tcp://host:8786)")
+    parser.add_argument("--paths", type=int, default=2000,
+                        help="simulated paths per underlying (default: 2000)")
+    add_model_options(parser)
+    add_output_options(parser, formats=FORMATS)
+    parser.set_defaults(run=run)
+    return parser
+
+
+def _progress_bar():
+    """A progress bar on stderr when it is a terminal."""
+    if not sys.stderr.isatty():
+        return None, None
+    from rich.console import Console
+    from rich.progress import Progress
+    bar = Progress(console=Console(stderr=True), transient=True)
+    task = bar.add_task("screening", total=None)
+
+    def update(done: int, total: int) -> None:
+        bar.update(task, completed=done, total=total)
+    return bar, update
+
+
+def run(args: argparse.Namespace) -> int:
+    if args.format == "xlsx" and not args.output:
+        raise InputError("--format", "xlsx writes a file: give -o FILE")
+    from optbench.report import screen as views
+    from optbench.screening.screen import screen
+
+    bar, update = _progress_bar()
+    if bar is not None:
+        bar.start()
+    try:
+        result = screen(args.folder, tenors=args.tenors, floor=args.floor, model=args.model,
+                        dist=args.dist, mean=args.mean, sort=args.sort,
+                        descending=not args.ascending, workers=args.workers,
+                        scheduler=args.scheduler, n_paths=args.paths, progress=update)
+    finally:
+        if bar is not None:
+            bar.stop()
+    if args.format == "json":
+        payload = views.screen_json(result)
+    elif args.format == "csv":
+        payload = views.screen_csv(result)
+    elif args.format == "xlsx":
+        payload = views.screen_xlsx(result)
+    else:
+        payload = views.screen_table(result)
+    write_output(args, payload)
+    return 0

@@ -1,0 +1,114 @@
+"""One underlying's rows of the screen: at each chosen tenor, the listed expiry
+nearest to it, with implied against forecast and the cost of protection.
+
+Everything comes from :func:`optbench.compare` and
+:func:`optbench.analysis.hedge.hedge_from_comparison`; nothing is recomputed here.
+
+Cost of protection per 1,000,000 of notional
+    A protective put struck at ``floor`` × spot on the expiry, paid at the ask:
+    ``premium_paid / (contracts × multiplier × spot) × 1,000,000``, i.e. the premium
+    per unit of underlying scaled to the notional, free of contract rounding. Its
+    expected payoff is the mean discounted payoff over the fitted model's simulated
+    paths (the model's physical distribution), scaled the same way.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+
+NOTIONAL = 1_000_000.0
+DEFAULT_TENORS = (30, 91, 182)
+
+# column order of the screen table; every row has these keys
+COLUMNS = (
+    "code", "name", "tenor_days", "expiry", "calendar_days", "trading_days",
+    "atm_iv", "forecast_vol", "forecast_low", "forecast_high", "iv_minus_forecast",
+    "iv_forecast_ratio", "verdict", "floor", "put_strike", "protection_cost",
+    "protection_expected_payoff", "protection_overpay", "protection_cost_pct_annual",
+    "model", "fallback_reason", "rows_in", "rows_used", "error", "folder",
+)
+
+
+@dataclass(frozen=True)
+class ScreenTask:
+    """What one worker needs to screen one underlying (small and picklable)."""
+
+    folder: str
+    tenors: tuple[int, ...] = DEFAULT_TENORS
+    floor: float = 0.90
+    model: str = "auto"
+    dist: str = "t"
+    mean: str = "constant"
+    n_paths: int = 2000
+    seed: int = 7
+    overrides: dict = field(default_factory=dict)
+
+
+def failed_rows(task: ScreenTask, reason: str) -> list[dict]:
+    """The rows of an underlying that could not be screened: its code and the reason."""
+    code = Path(task.folder).name
+    return [dict.fromkeys(COLUMNS, None) | {"code": code, "name": code,
+                                            "tenor_days": tenor, "error": reason,
+                                            "folder": task.folder}
+            for tenor in task.tenors]
+
+
+def _num(x) -> float | None:
+    if x is None:
+        return None
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+def screen_one(task: ScreenTask) -> list[dict]:
+    """Rows for one scenario folder, one per tenor. Raises on a broken underlying
+    (the runner turns that into :func:`failed_rows`)."""
+    from optbench.analysis.compare import compare
+    from optbench.analysis.hedge import hedge_from_comparison
+    from optbench.analysis.results import HedgeRequest
+    from optbench.data.scenario import load_scenario
+
+    scenario = load_scenario(task.folder, **task.overrides)
+    comparison = compare(scenario, model=task.model, dist=task.dist, mean=task.mean,
+                         n_paths=task.n_paths, seed=task.seed)
+    expiries = comparison.expiries
+    if not expiries:
+        raise ValueError("no usable expiry in the chain")
+    model = comparison.model
+    rows = []
+    for tenor in task.tenors:
+        row = min(expiries, key=lambda e: (abs(e.calendar_days - tenor), e.calendar_days))
+        cost = payoff = overpay = annual = strike = None
+        error = None
+        try:
+            # a large notional keeps contract rounding out of the per-unit figures
+            request = HedgeRequest(portfolio_value=1e3 * NOTIONAL, hedge_ratio=1.0,
+                                   floor=task.floor, expiry=row.expiry, structure="put")
+            est = hedge_from_comparison(comparison, request, n_paths=task.n_paths,
+                                        seed=task.seed)
+            scale = NOTIONAL / (est.contracts * est.multiplier * comparison.spot)
+            cost = _num(est.premium_paid * scale)
+            payoff = _num(est.expected_payoff * scale)
+            overpay = _num(est.overpay * scale)
+            annual = _num(est.cost_pct_annual)
+            strike = _num(est.strike)
+        except Exception as err:  # the comparison row still stands without a hedge
+            error = f"hedge: {err}"
+        rows.append({
+            "code": scenario.code, "name": scenario.name, "tenor_days": tenor,
+            "expiry": row.expiry.isoformat(), "calendar_days": row.calendar_days,
+            "trading_days": row.trading_days, "atm_iv": _num(row.atm_iv),
+            "forecast_vol": _num(row.forecast_vol), "forecast_low": _num(row.forecast_low),
+            "forecast_high": _num(row.forecast_high),
+            "iv_minus_forecast": _num(row.iv_minus_forecast),
+            "iv_forecast_ratio": _num(row.iv_forecast_ratio), "verdict": row.verdict,
+            "floor": task.floor, "put_strike": strike, "protection_cost": cost,
+            "protection_expected_payoff": payoff, "protection_overpay": overpay,
+            "protection_cost_pct_annual": annual,
+            "model": f"{model.name}/{model.dist}", "fallback_reason": model.fallback_reason,
+            "rows_in": comparison.quality["rows_in"],
+            "rows_used": comparison.quality["rows_used"],
+            "error": error, "folder": task.folder,
+        })
+    return rows

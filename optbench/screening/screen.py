@@ -1,0 +1,144 @@
+"""``screen``: many underlyings, one ranked table.
+
+Each scenario folder is compared on its own (:func:`optbench.screening.rows.screen_one`),
+in local worker processes or on a Dask cluster (:mod:`optbench.screening.runner`); an
+underlying that fails keeps its rows, with the reason, and the screen goes on.
+"""
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from optbench.analysis.results import CAUTION
+from optbench.errors import InputError
+from optbench.screening.rows import (COLUMNS, DEFAULT_TENORS, NOTIONAL, ScreenTask,
+                                     failed_rows, screen_one)
+from optbench.screening.runner import TaskFailure, run_tasks
+from optbench.screening.universe import find_scenarios
+
+DEFAULT_SORT = "iv_minus_forecast"
+
+
+@dataclass(frozen=True, eq=False)
+class ScreenResult:
+    """The ranked table of a screen.
+
+    Attributes
+    ----------
+    universe : the folder screened.
+    tenors : target tenors in calendar days (each row uses the listed expiry nearest).
+    floor : protection floor as a fraction of spot (0.90 = a put struck at 90 %).
+    notional : the notional the protection figures are scaled to (1,000,000).
+    sort, descending : the ranking.
+    rows : one dict per (underlying, tenor), keys :data:`COLUMNS`; vols decimals,
+        money per ``notional``.
+    failures : ``{"code", "folder", "reason"}`` for each underlying that failed.
+    workers, scheduler : how it ran.
+    caution : the caution every hedge output carries.
+    """
+
+    universe: str
+    tenors: tuple[int, ...]
+    floor: float
+    notional: float
+    sort: str
+    descending: bool
+    rows: tuple[dict, ...]
+    failures: tuple[dict, ...]
+    workers: int | None
+    scheduler: str | None
+    model: str
+    dist: str
+    caution: str = CAUTION
+    columns: tuple[str, ...] = field(default=COLUMNS)
+
+    def to_dict(self) -> dict:
+        return {
+            "universe": self.universe, "tenors": list(self.tenors), "floor": self.floor,
+            "notional": self.notional, "sort": self.sort, "descending": self.descending,
+            "model": {"name": self.model, "dist": self.dist},
+            "conventions": {
+                "vols": "annualised decimals (0.215 = 21.5%)",
+                "tenor": "each row uses the listed expiry nearest to tenor_days",
+                "protection": (f"a put struck at floor x spot, paid at the ask, per "
+                               f"{self.notional:,.0f} of notional; expected payoff under "
+                               "the fitted model's simulated paths"),
+                "verdict": "rich above the forecast band, cheap below, fair inside",
+            },
+            "rows": [dict(r) for r in self.rows],
+            "failures": [dict(f) for f in self.failures],
+            "caution": self.caution,
+        }
+
+
+def _missing(value) -> bool:
+    return value is None or (isinstance(value, float) and math.isnan(value))
+
+
+def rank_rows(rows: Sequence[dict], column: str = DEFAULT_SORT,
+              descending: bool = True) -> list[dict]:
+    """Rows ordered by ``column``, rows without a value last; ties keep code and
+    tenor order."""
+    if column not in COLUMNS:
+        raise InputError("--sort", f"no such column {column!r}; choose one of "
+                                   f"{', '.join(COLUMNS)}")
+    ordered = sorted(rows, key=lambda r: (str(r.get("code")), r.get("tenor_days") or 0))
+    present = [r for r in ordered if not _missing(r.get(column))]
+    absent = [r for r in ordered if _missing(r.get(column))]
+    present.sort(key=lambda r: r[column], reverse=descending)
+    return present + absent
+
+
+def screen(folder: str | Path, *, tenors: Sequence[int] = DEFAULT_TENORS,
+           floor: float = 0.90, model: str = "auto", dist: str = "t",
+           mean: str = "constant", sort: str = DEFAULT_SORT, descending: bool = True,
+           workers: int | None = None, scheduler: str | None = None,
+           n_paths: int = 2000, seed: int = 7, overrides: dict | None = None,
+           progress: Callable[[int, int], None] | None = None) -> ScreenResult:
+    """Screen every scenario folder under ``folder`` and rank the rows.
+
+    Parameters
+    ----------
+    folder : a folder of scenario folders (or one scenario folder).
+    tenors : target tenors in calendar days; each row uses the nearest listed expiry.
+    floor : protection floor as a fraction of spot, in (0, 1].
+    model, dist, mean : the volatility model, as in ``compare``.
+    sort, descending : the column to rank by (default: implied minus forecast,
+        richest first).
+    workers : local worker processes (default: the number of cores; 1 = in process).
+    scheduler : address of a running Dask distributed scheduler; when given the same
+        tasks run on that cluster.
+    n_paths, seed : the simulation behind the expected payoffs.
+    overrides : market overrides applied to every underlying (rarely wanted).
+    progress : ``progress(done, total)`` after each underlying.
+    """
+    tenors = tuple(int(t) for t in tenors)
+    if not tenors or min(tenors) <= 0:
+        raise InputError("--tenors", "give one or more positive numbers of days")
+    if not 0 < float(floor) <= 1:
+        raise InputError("--floor", f"must be a fraction of spot in (0, 1], not {floor:g}")
+    if sort not in COLUMNS:
+        raise InputError("--sort", f"no such column {sort!r}; choose one of "
+                                   f"{', '.join(COLUMNS)}")
+    folders = find_scenarios(folder)
+    tasks = [ScreenTask(folder=str(f), tenors=tenors, floor=float(floor), model=model,
+                        dist=dist, mean=mean, n_paths=n_paths, seed=seed,
+                        overrides=dict(overrides or {})) for f in folders]
+    results = run_tasks(screen_one, tasks, workers=workers, scheduler=scheduler,
+                        progress=progress)
+    rows: list[dict] = []
+    failures: list[dict] = []
+    for task, result in zip(tasks, results):
+        if isinstance(result, TaskFailure):
+            failures.append({"code": Path(task.folder).name, "folder": task.folder,
+                             "reason": result.reason})
+            rows.extend(failed_rows(task, result.reason))
+        else:
+            rows.extend(result)
+    return ScreenResult(universe=str(folder), tenors=tenors, floor=float(floor),
+                        notional=NOTIONAL, sort=sort, descending=descending,
+                        rows=tuple(rank_rows(rows, sort, descending)),
+                        failures=tuple(failures), workers=workers, scheduler=scheduler,
+                        model=model, dist=dist)
