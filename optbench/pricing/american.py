@@ -35,20 +35,14 @@ from __future__ import annotations
 
 import numpy as np
 
-from optbench.pricing.bsm import black_price
+from optbench.pricing.bsm import as_flag_array, as_float_array, black_price
 
 #: tree steps of the finer of the two trees (the coarser has half)
 DEFAULT_STEPS = 100
 
 
 def _arrays(*values):
-    out = []
-    for v in values:
-        a = np.asarray(v)
-        if a.dtype.kind not in "biuf":
-            raise TypeError(f"american pricing needs numeric input, got {a.dtype}")
-        out.append(a.astype(float))
-    return out
+    return [as_float_array(v) for v in values]
 
 
 def _tree(S, K, t, r, q, sigma, is_call, n):
@@ -112,7 +106,7 @@ def american_price(S, K, t, r, q, sigma, is_call, steps: int = DEFAULT_STEPS) ->
     4.28
     """
     S, K, t, r, q, sigma = _arrays(S, K, t, r, q, sigma)
-    is_call = np.asarray(is_call, dtype=bool)
+    is_call = as_flag_array(is_call)
     S, K, t, r, q, sigma, is_call = np.broadcast_arrays(S, K, t, r, q, sigma, is_call)
     shape = S.shape
     S, K, t, r, q, sigma, is_call = (a.ravel() for a in (S, K, t, r, q, sigma, is_call))
@@ -161,10 +155,7 @@ def american_implied_vol_with_status(price, S, K, t, r, q, is_call,
     from optbench.pricing import implied as iv
 
     price, S, K, t, r, q = _arrays(price, S, K, t, r, q)
-    is_call = np.asarray(is_call)
-    if is_call.dtype.kind not in "biuf":
-        raise TypeError(f"is_call must be boolean, got values of type {is_call.dtype}")
-    is_call = is_call.astype(bool)
+    is_call = as_flag_array(is_call)
     price, S, K, t, r, q, is_call = np.broadcast_arrays(price, S, K, t, r, q, is_call)
     shape = price.shape
     price, S, K, t, r, q, is_call = (a.ravel() for a in (price, S, K, t, r, q, is_call))

@@ -23,8 +23,44 @@ from scipy.special import ndtr
 ArrayLike = np.ndarray | float | int
 
 
+def as_float_array(x: ArrayLike, name: str = "input") -> np.ndarray:
+    """``x`` as a float array; text (or anything not numeric) is a ``TypeError``
+    naming the argument rather than a silent conversion."""
+    arr = np.asarray(x)
+    if arr.dtype.kind in "biuf":
+        return arr.astype(float, copy=False)
+    if arr.dtype.kind == "O":
+        try:
+            if not all(isinstance(v, (int, float, np.number)) and not isinstance(v, bool)
+                       or v is None for v in arr.ravel()):
+                raise TypeError
+            return np.array([np.nan if v is None else float(v) for v in arr.ravel()],
+                            dtype=float).reshape(arr.shape)
+        except TypeError:
+            pass
+    raise TypeError(f"{name} must be numeric, got values of type {arr.dtype}")
+
+
+def as_flag_array(is_call) -> np.ndarray:
+    """``is_call`` as a bool array: booleans, or 0/1 numbers; text such as "put" is a
+    ``TypeError`` (numpy would silently read any non-empty string as True)."""
+    arr = np.asarray(is_call)
+    if arr.dtype.kind == "b":
+        return arr
+    if arr.dtype.kind in "iuf" or arr.dtype.kind == "O":
+        try:
+            num = arr.astype(float)
+        except (TypeError, ValueError):
+            num = None
+        if num is not None:
+            if not np.all((num == 0) | (num == 1)):
+                raise ValueError("is_call must be boolean (True for calls, False for puts)")
+            return num.astype(bool)
+    raise TypeError(f"is_call must be boolean, got values of type {arr.dtype}")
+
+
 def _as_float(x: ArrayLike) -> np.ndarray:
-    return np.asarray(x, dtype=float)
+    return as_float_array(x)
 
 
 def black_price(F: ArrayLike, K: ArrayLike, t: ArrayLike, D: ArrayLike,
@@ -35,7 +71,7 @@ def black_price(F: ArrayLike, K: ArrayLike, t: ArrayLike, D: ArrayLike,
     discounted intrinsic value ``D * max(±(F - K), 0)``.
     """
     F, K, t, D, sigma = map(_as_float, (F, K, t, D, sigma))
-    is_call = np.asarray(is_call, dtype=bool)
+    is_call = as_flag_array(is_call)
     sd = sigma * np.sqrt(np.maximum(t, 0.0))
     with np.errstate(divide="ignore", invalid="ignore"):
         d1 = np.log(F / K) / sd + 0.5 * sd
@@ -82,7 +118,8 @@ def bsm_price(S: ArrayLike, K: ArrayLike, t: ArrayLike, r: ArrayLike, q: ArrayLi
         return american_price(S, K, t, r, q, sigma, is_call)
     if style != "european":
         raise ValueError(f"style must be 'european' or 'american', not {style!r}")
-    S, K, t, r, q = map(_as_float, (S, K, t, r, q))
+    S, K, t, r, q = (as_float_array(v, n) for v, n in zip((S, K, t, r, q),
+                                                          ("S", "K", "t", "r", "q")))
     F = S * np.exp((r - q) * t)
     D = np.exp(-r * t)
     return black_price(F, K, t, D, sigma, is_call)

@@ -25,7 +25,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.special import ndtr
 
-from optbench.pricing.bsm import black_price
+from optbench.pricing.bsm import as_flag_array, as_float_array, black_price
 
 _INV_SQRT_2PI = 0.3989422804014326779399460599343818684758586311649
 
@@ -53,13 +53,7 @@ class Greeks:
 
 
 def _arrays(*values):
-    out = []
-    for v in values:
-        a = np.asarray(v)
-        if a.dtype.kind not in "biuf":
-            raise TypeError(f"greeks need numeric input, got values of type {a.dtype}")
-        out.append(a.astype(float))
-    return out
+    return [as_float_array(v) for v in values]
 
 
 def bsm_greeks(S, K, t, r, q, sigma, is_call) -> Greeks:
@@ -87,7 +81,7 @@ def bsm_greeks(S, K, t, r, q, sigma, is_call) -> Greeks:
     0.522
     """
     S, K, t, r, q, sigma = _arrays(S, K, t, r, q, sigma)
-    is_call = np.asarray(is_call, dtype=bool)
+    is_call = as_flag_array(is_call)
     S, K, t, r, q, sigma, is_call = np.broadcast_arrays(S, K, t, r, q, sigma, is_call)
     theta_sign = np.where(is_call, 1.0, -1.0)
     sqrt_t = np.sqrt(np.maximum(t, 0.0))

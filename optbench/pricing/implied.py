@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from optbench.pricing.bsm import as_flag_array, as_float_array
 from optbench.pricing.lets_be_rational import normalised_implied_vol_otm
 
 #: status codes returned beside each implied volatility
@@ -49,21 +50,11 @@ def status_name(status) -> np.ndarray | str:
 
 
 def _numeric(name: str, value) -> np.ndarray:
-    arr = np.asarray(value)
-    if arr.dtype.kind not in "biuf":
-        raise TypeError(f"{name} must be numeric, got values of type {arr.dtype}")
-    return arr.astype(float)
+    return as_float_array(value, name)
 
 
 def _flags(is_call) -> np.ndarray:
-    arr = np.asarray(is_call)
-    if arr.dtype.kind == "b":
-        return arr
-    if arr.dtype.kind in "iuf":
-        if not np.all(np.isin(arr, (0, 1))):
-            raise ValueError("is_call must be boolean (True for calls, False for puts)")
-        return arr.astype(bool)
-    raise TypeError(f"is_call must be boolean, got values of type {arr.dtype}")
+    return as_flag_array(is_call)
 
 
 def _broadcast(names, values):

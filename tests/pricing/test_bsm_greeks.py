@@ -147,3 +147,17 @@ def test_price_rises_with_vol_and_stays_in_bounds(S, k, t, r, q, v, call):
     assert lo - tol <= p1 <= hi + tol
     assert p2 >= p1 - tol
     assert float(bsm_greeks(S, K, t, r, q, v, call).vega) >= 0
+
+
+def test_text_flags_and_numbers_are_rejected_not_misread():
+    # numpy reads any non-empty string as True; optbench refuses instead
+    with pytest.raises(TypeError, match="is_call"):
+        bsm_price(100, 100, 1.0, 0.0, 0.0, 0.2, "put")
+    with pytest.raises(TypeError, match="S must be numeric"):
+        bsm_price("100", 100, 1.0, 0.0, 0.0, 0.2, True)
+    with pytest.raises(ValueError, match="is_call"):
+        bsm_price(100, 100, 1.0, 0.0, 0.0, 0.2, [2, 0])
+    # 0/1 and object arrays of numbers are fine
+    np.testing.assert_allclose(bsm_price(np.array([100.0], dtype=object), 100, 1.0, 0.0, 0.0,
+                                         0.2, [1, 0]),
+                               bsm_price(100.0, 100, 1.0, 0.0, 0.0, 0.2, [True, False]))
