@@ -7,11 +7,12 @@ into an analytic score. Only :mod:`scipy.special` is used (cheap to import).
 """
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.special import digamma, gammaln
+from scipy.special import digamma, gammaln, ndtr, stdtrit
 
 LOG_2PI = math.log(2.0 * math.pi)
 NU_MIN = 2.05   # smallest degrees of freedom allowed (variance must exist)
@@ -68,6 +69,47 @@ def std_t_draws(rng: np.random.Generator, nu: float, size, dtype=np.float64) -> 
     g = rng.standard_gamma(0.5 * nu, size, dtype=dtype)
     z *= np.sqrt(np.asarray((nu - 2.0) / 2.0, dtype=dtype) / g)
     return z
+
+
+_GRID_HALF_WIDTH = 8.0
+_GRID_STEPS = 8192
+
+
+@functools.lru_cache(maxsize=32)
+def _normal_to_t_table(nu: float):
+    """Nodes of the map x -> F_t^{-1}(Phi(x)) * sqrt((nu-2)/nu) on [-8, 8]."""
+    x = np.linspace(-_GRID_HALF_WIDTH, 0.0, _GRID_STEPS // 2 + 1)
+    left = stdtrit(nu, ndtr(x)) * math.sqrt((nu - 2.0) / nu)   # lower half, by symmetry
+    vals = np.concatenate([left, -left[-2::-1]])
+    vals[_GRID_STEPS // 2] = 0.0
+    slope = np.diff(vals)
+    return vals[:-1].astype(np.float32), slope.astype(np.float32)
+
+
+def std_t_draws_fast(rng: np.random.Generator, nu: float, size) -> np.ndarray:
+    """Unit-variance Student-t draws (float32) by the quantile transform of normals.
+
+    Notes
+    -----
+    ``z = F_t^{-1}(Phi(x)) sqrt((nu - 2)/nu)`` with ``x ~ N(0, 1)`` is exactly
+    unit-variance t distributed (probability integral transform). The smooth map is
+    tabulated on 8,193 nodes over ``x`` in [-8, 8] and interpolated linearly
+    (relative error in z below 2e-5); normals beyond +-8 (probability 1e-15) are
+    clipped.
+    About twice as fast as the normal / chi-square mixture of :func:`std_t_draws`.
+    """
+    vals, slope = _normal_to_t_table(float(nu))
+    x = rng.standard_normal(size, dtype=np.float32)
+    pos = x
+    pos += np.float32(_GRID_HALF_WIDTH)
+    pos *= np.float32(_GRID_STEPS / (2 * _GRID_HALF_WIDTH))
+    np.clip(pos, 0.0, np.float32(_GRID_STEPS - 1e-3), out=pos)
+    i = pos.astype(np.int32)
+    pos -= i
+    out = slope[i]
+    out *= pos
+    out += vals[i]
+    return out
 
 
 @dataclass(frozen=True)

@@ -10,7 +10,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from optbench.volatility.distributions import std_t_draws
+from optbench.volatility.distributions import std_t_draws_fast
 from optbench.volatility.forecast import TRADING_DAYS_PER_YEAR
 from optbench.volatility.specs import get_spec
 
@@ -71,7 +71,9 @@ def simulate_paths(model: str, params: dict, dist: str, last_variance: float,
     -----
     ``r_t = mu + sigma_t z_t``, ``sigma^2_{t+1}`` from the model's recursion
     (see :mod:`optbench.volatility.recursions`). Innovations are drawn in float32
-    (the shocks only need single precision); the recursion runs in float64.
+    (the shocks only need single precision; t draws by the tabulated quantile
+    transform of normals, :func:`optbench.volatility.distributions.std_t_draws_fast`);
+    the recursion runs in float64.
     """
     if horizon < 1 or n_paths < 1:
         raise ValueError("horizon and n_paths must be positive")
@@ -79,18 +81,34 @@ def simulate_paths(model: str, params: dict, dist: str, last_variance: float,
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
     size = (horizon, n_paths)
     if dist == "t":
-        z = std_t_draws(rng, float(params["nu"]), size, dtype=np.float32)
+        z = std_t_draws_fast(rng, float(params["nu"]), size)
     else:
         z = rng.standard_normal(size, dtype=np.float32)
     mu = float(params.get("mu", 0.0))
     r = np.empty(size)
     v = np.empty(size)
     s2 = np.full(n_paths, float(last_variance))
-    for t in range(horizon):
+    linear = model in ("garch", "gjr")
+    if linear:
+        omega, alpha, beta = (float(params[k]) for k in ("omega", "alpha", "beta"))
+        gamma = float(params.get("gamma", 0.0))
+    for t in range(horizon):   # loop over days only; each step is vectorised over paths
         v[t] = s2
-        e = np.sqrt(s2) * z[t]
-        r[t] = e
-        if t + 1 < horizon:
+        e = r[t]
+        np.sqrt(s2, out=e)
+        e *= z[t]
+        if t + 1 == horizon:
+            break
+        if linear:
+            e2 = e * e
+            s2 = s2 * beta
+            s2 += omega
+            if gamma:
+                e2 *= np.where(e < 0, alpha + gamma, alpha)
+            else:
+                e2 *= alpha
+            s2 += e2
+        else:
             s2 = spec.next_variance(e, s2, params)
     if mu:
         r += mu

@@ -67,3 +67,25 @@ def test_seed_reproduces_paths():
     b = simulate_paths("gjr", p, "t", 1e-4, 10, 50, seed=1).returns
     c = simulate_paths("gjr", p, "t", 1e-4, 10, 50, seed=2).returns
     assert np.array_equal(a, b) and not np.array_equal(a, c)
+
+
+def test_fast_t_draws_match_scipy():
+    """The tabulated quantile transform used by the simulator (scipy.stats.t reference)."""
+    from scipy import stats
+
+    from optbench.volatility.distributions import std_t_draws_fast
+
+    nu = 5.0
+    z = std_t_draws_fast(np.random.default_rng(12), nu, 400_000).astype(float)
+    scale = np.sqrt((nu - 2) / nu)
+    x = np.array([-5.0, -2.5, -1.0, 0.0, 0.5, 2.0, 4.0])
+    cdf = stats.t.cdf(x / scale, nu)
+    emp = (z[:, None] <= x).mean(axis=0)
+    assert np.all(np.abs(emp - cdf) < 4.5 * np.sqrt(cdf * (1 - cdf) / z.size))
+    # the map itself, node by node, against scipy's t quantiles of normal probabilities
+    from optbench.volatility.distributions import _normal_to_t_table
+    vals, _ = _normal_to_t_table(nu)
+    xs = np.linspace(-8, 8, vals.size + 1)[:-1]
+    lo = xs < 0
+    ref = stats.t.ppf(stats.norm.cdf(xs[lo]), nu) * scale
+    np.testing.assert_allclose(vals[lo], ref, rtol=1e-6)
