@@ -113,7 +113,9 @@ def black_implied_vol_with_status(price, F, K, t, D, is_call):
         beta = (p - intrinsic) / np.sqrt(F * K)
         # a remainder that rounds to zero (or beyond the normalised maximum) has no vol
         b_max = np.exp(0.5 * x)
-        tiny = todo & ~(beta > 0)
+        # subnormal normalised prices (below 2.2e-308) cannot be inverted to any
+        # useful accuracy (Jäckel 2015): treated as a time value that rounds to zero
+        tiny = todo & ~(beta >= np.finfo(float).tiny)
         status[tiny] = BELOW_INTRINSIC
         big = todo & ~tiny & (beta >= b_max)
         status[big] = ABOVE_MAX

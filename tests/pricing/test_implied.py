@@ -198,3 +198,26 @@ def test_round_trip_property(k, t, v, r, q):
     vol, code = implied_vol_with_status(p, S, K, t, r, q, call)
     assert code == OK
     assert abs(vol - v) <= 1e-12
+
+
+def test_extreme_inputs_finish_with_a_status_and_never_a_silent_nan():
+    # far outside the stated domain: log-moneyness to ±30, s = sigma sqrt(t) to ~300;
+    # every element gets a status, 'ok' elements are finite, and where the price still
+    # determines the vol (s < 5) the normalised prices invert to ~1e-13
+    rng = np.random.default_rng(9)
+    n = 50_000
+    F = np.exp(rng.uniform(-5, 10, n))
+    K = F * np.exp(rng.uniform(-30, 30, n))
+    t = 10 ** rng.uniform(-6, 1.5, n)
+    v = 10 ** rng.uniform(-3, 1, n)
+    s = v * np.sqrt(t)
+    x = -np.abs(np.log(F / K))
+    call = np.log(F / K) < 0
+    p = np.sqrt(F * K) * normalised_black_otm(x, s)
+    vol, status = black_implied_vol_with_status(p, F, K, t, 1.0, call)
+    assert set(np.unique(status)) <= set(STATUS_NAMES)
+    solved = (status == OK) | (status == FALLBACK)
+    assert np.all(np.isfinite(vol[solved])) and np.all(np.isnan(vol[~solved]))
+    well = solved & (s < 5)
+    assert well.sum() > 5_000
+    assert np.max(np.abs(vol[well] / v[well] - 1)) <= 1e-13
