@@ -41,8 +41,9 @@ def test_gjr_t_mean_simulated_variance_equals_forecast(returns):
     paths = fit.simulate(63, 100_000, seed=4)
     assert paths.returns.shape == (100_000, 63) == paths.variances.shape
     assert np.all(paths.variances[:, 0] == fit.last_variance)
-    np.testing.assert_allclose(paths.variances.mean(axis=0), fit.forecast_variance(63),
-                               rtol=0.01)
+    # within 4.5 Monte Carlo standard errors on every day
+    se = paths.variances.std(axis=0) / np.sqrt(paths.n_paths)
+    assert np.all(np.abs(paths.variances.mean(axis=0) - fit.forecast_variance(63)) < 4.5 * se)
     # daily returns: mean mu, variance = expected variance (unit-variance shocks)
     np.testing.assert_allclose(paths.returns.var(axis=0)[[0, 20, 62]],
                                fit.forecast_variance(63)[[0, 20, 62]], rtol=0.03)
