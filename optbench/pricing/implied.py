@@ -186,14 +186,14 @@ def implied_vol_with_status(price, S, K, t, r, q, is_call, style: str = "europea
         return american_implied_vol_with_status(price, S, K, t, r, q, is_call)
     if style != "european":
         raise ValueError(f"style must be 'european' or 'american', not {style!r}")
-    names = ("S", "t", "r", "q")
-    S, t, r, q = (_numeric(n, v) for n, v in zip(names, (S, t, r, q)))
+    names = ("price", "S", "K", "t", "r", "q")
+    vals = [_numeric(n, v) for n, v in zip(names, (price, S, K, t, r, q))]
+    _broadcast(names + ("is_call",), vals + [_flags(is_call)])  # one clear shape error
+    price, S, K, t, r, q = vals
     with np.errstate(over="ignore", invalid="ignore"):
-        F = S * np.exp((r - q) * t)
+        F = S * np.exp((r - q) * t)  # a non-positive spot gives F <= 0: bad_input
         D = np.exp(-r * t)
-    vol, status = black_implied_vol_with_status(price, F, K, t, D, is_call)
-    # a non-positive spot is bad input even though F would flag it too
-    return vol, status
+    return black_implied_vol_with_status(price, F, K, t, D, is_call)
 
 
 def implied_vol(price, S, K, t, r, q, is_call, style: str = "european"):

@@ -130,3 +130,21 @@ def test_implied_vol_dispatch_and_bad_types():
         pytest.approx(0.25, abs=1e-6)
     with pytest.raises(TypeError):
         american_price("100", 100, 1.0, 0.05, 0.0, 0.2, True)
+
+
+from hypothesis import given, settings, strategies as st  # noqa: E402
+
+
+@settings(max_examples=60, deadline=None)
+@given(k=st.floats(0.6, 1.6), t=st.floats(7 / 365, 2.0), v=st.floats(0.08, 0.8),
+       r=st.floats(0.0, 0.1), q=st.floats(0.0, 0.08), call=st.booleans())
+def test_american_price_rises_with_vol_and_stays_in_bounds(k, t, v, r, q, call):
+    # bounds (Hull ch. 11): max(immediate, European) <= American <= S (call) or K (put);
+    # the value rises with volatility (checked over a 10% vol bump, beyond tree noise)
+    S, K = 100.0, 100.0 * k
+    a1 = float(american_price(S, K, t, r, q, v, call))
+    a2 = float(american_price(S, K, t, r, q, v * 1.1, call))
+    e = float(bsm_price(S, K, t, r, q, v, call))
+    assert a1 >= max(e, (S - K) if call else (K - S), 0.0) - 1e-12
+    assert a1 <= (S if call else K)
+    assert a2 >= a1 - 1e-6 * max(S, K)
