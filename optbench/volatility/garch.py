@@ -23,7 +23,8 @@ from optbench.errors import InputError
 from optbench.volatility import forecast as fc
 from optbench.volatility.distributions import (NU_MIN, get_distribution, normal_loglik,
                                                std_t_loglik)
-from optbench.volatility.recursions import (backcast_value, egarch_log_variance,
+from optbench.volatility.recursions import (SQRT_2_OVER_PI, backcast_value,
+                                            egarch_adjoint, egarch_log_variance,
                                             garch_variance, linear_filter,
                                             reverse_filter)
 from optbench.volatility.specs import EWMA_LAMBDA, get_spec
@@ -148,6 +149,37 @@ class _Problem:
             return 1e6
         return -float(np.mean(ll))
 
+    def _egarch_objective_grad(self, theta):
+        """Minus the mean log-likelihood of EGARCH and its gradient by the adjoint
+        recursion (:func:`optbench.volatility.recursions.egarch_adjoint`)."""
+        mu, p, nu = self.unpack(theta)
+        eps = self.y - mu
+        hb = math.log(self.backcast)
+        h = egarch_log_variance(eps, p["omega"], p["alpha"], p["gamma"], p["beta"], hb)
+        s2 = np.exp(h)
+        if nu is None:
+            ll, d_s2, d_e = normal_loglik(eps, s2, grad=True)
+            d_nu = None
+        else:
+            ll, d_s2, d_e, d_nu = std_t_loglik(eps, s2, nu, grad=True)
+        total = float(ll.sum())
+        if not math.isfinite(total):
+            return 1e6, np.zeros(self.k)
+        inv_s = np.exp(-0.5 * h)
+        z = eps * inv_s
+        lam = egarch_adjoint(z.tolist(), d_s2 * s2, p["alpha"], p["gamma"], p["beta"])
+        zl = z[:-1]
+        l1 = lam[1:]
+        grad = []
+        if self.has_mu:
+            dz = -(p["alpha"] * np.sign(zl) + p["gamma"]) * inv_s[:-1]
+            grad.append(-d_e.sum() + np.dot(l1, dz))
+        grad += [lam.sum(), np.dot(l1, np.abs(zl) - SQRT_2_OVER_PI), np.dot(l1, zl),
+                 lam[0] * hb + np.dot(l1, h[:-1])]
+        if d_nu is not None:
+            grad.append(d_nu.sum())
+        return -total / self.n, -np.array(grad) / self.n
+
     def objective_grad(self, theta):
         """Minus the mean log-likelihood and its analytic gradient (GARCH, GJR).
 
@@ -156,6 +188,8 @@ class _Problem:
         (``u_t`` the filter input; ``sigma^2_{t-1}`` for beta), so one backward
         filter replaces one forward filter per parameter.
         """
+        if self.spec.name == "egarch":
+            return self._egarch_objective_grad(theta)
         mu, p, nu = self.unpack(theta)
         y = self.y
         eps = y - mu
@@ -239,31 +273,19 @@ class _Problem:
                 tp[i] += h[i]
                 H[:, i] = -self.n * (self.objective_grad(tp)[1] - g0) / h[i]
             return sc, 0.5 * (H + H.T)
-        # non-linear recursion: central differences of the per-observation likelihood
+        # non-linear recursion: per-day scores by forward differences of the
+        # per-day log-likelihood, Hessian by forward differences of the adjoint
+        # gradient (each recursion is a loop over days, so evaluations are counted)
         sc = np.empty((self.n, k))
-        f0 = float(np.sum(self.loglik_obs(theta)))
-        fp = np.empty(k)
-        fm = np.empty(k)
-        for i in range(k):
-            tp, tm = theta.copy(), theta.copy()
-            tp[i] += h[i]
-            tm[i] -= h[i]
-            lp, lm = self.loglik_obs(tp), self.loglik_obs(tm)
-            sc[:, i] = (lp - lm) / (2 * h[i])
-            fp[i], fm[i] = lp.sum(), lm.sum()
+        l0 = self.loglik_obs(theta)
+        g0 = self.objective_grad(theta)[1]
         H = np.empty((k, k))
         for i in range(k):
-            H[i, i] = (fp[i] - 2 * f0 + fm[i]) / h[i] ** 2
-            for j in range(i):
-                tpp, tmm, tpm, tmp = (theta.copy() for _ in range(4))
-                tpp[i] += h[i]; tpp[j] += h[j]
-                tmm[i] -= h[i]; tmm[j] -= h[j]
-                tpm[i] += h[i]; tpm[j] -= h[j]
-                tmp[i] -= h[i]; tmp[j] += h[j]
-                val = (np.sum(self.loglik_obs(tpp)) - np.sum(self.loglik_obs(tpm))
-                       - np.sum(self.loglik_obs(tmp)) + np.sum(self.loglik_obs(tmm)))
-                H[i, j] = H[j, i] = val / (4 * h[i] * h[j])
-        return sc, H
+            tp = theta.copy()
+            tp[i] += h[i]
+            sc[:, i] = (self.loglik_obs(tp) - l0) / h[i]
+            H[:, i] = -self.n * (self.objective_grad(tp)[1] - g0) / h[i]
+        return sc, 0.5 * (H + H.T)
 
     def robust_cov(self, theta):
         """Bollerslev-Wooldridge (1992) sandwich ``H^{-1} (S'S) H^{-1}``."""
@@ -685,14 +707,9 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast):
     x0 = np.clip(x0, [b[0] for b in bounds], [b[1] for b in bounds])
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
-        if prob.spec.linear:
-            res = minimize(prob.objective_grad, x0, jac=True, method="SLSQP",
-                           bounds=bounds, constraints=prob.constraint(),
-                           options={"ftol": 1e-12, "maxiter": 300})
-        else:
-            res = minimize(prob.objective, x0, method="SLSQP", bounds=bounds,
-                           constraints=prob.constraint(),
-                           options={"ftol": 1e-11, "maxiter": 300})
+        res = minimize(prob.objective_grad, x0, jac=True, method="SLSQP",
+                       bounds=bounds, constraints=prob.constraint(),
+                       options={"ftol": 1e-12, "maxiter": 300})
     theta = np.asarray(res.x, dtype=float)
     problem = None
     if not res.success:
@@ -752,7 +769,8 @@ def fit_garch(returns, model: str = "gjr", dist: str = "t", mean: str = "constan
     Maximises ``sum_t l(e_t; sigma^2_t, nu)`` with SLSQP under the stationarity
     constraint (persistence <= 1) and positivity bounds. For GARCH and GJR the
     variance and its derivatives come from one blocked linear filter, giving an
-    analytic gradient; EGARCH uses a loop and finite-difference gradients. If the
+    analytic gradient; EGARCH runs a loop over days with an adjoint (reverse-mode)
+    gradient. If the
     fit fails or is not stationary, a simpler model is tried (EGARCH -> GJR ->
     GARCH -> EWMA with lambda = 0.94, RiskMetrics 1996) and ``fallback_reason``
     says why. Standard errors are the robust sandwich of Bollerslev & Wooldridge

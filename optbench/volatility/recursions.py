@@ -212,6 +212,28 @@ def egarch_log_variance(eps: np.ndarray, omega: float, alpha: float, gamma: floa
     return np.array(out)
 
 
+def egarch_adjoint(z: list, lam_direct: np.ndarray, alpha: float, gamma: float,
+                   beta: float) -> np.ndarray:
+    """Backward (adjoint) recursion of EGARCH(1,1) for the gradient of a sum.
+
+    With ``h_t = ln sigma^2_t`` and ``a_t = dL/dh_t`` holding the other h fixed,
+    the total derivative obeys ``lam_t = a_t + J_{t+1} lam_{t+1}``, ``lam_{n-1} =
+    a_{n-1}``, where ``J_{t+1} = dh_{t+1}/dh_t = beta - (alpha |z_t| + gamma z_t)/2``
+    (``dz_t/dh_t = -z_t/2``). A loop over time on Python floats.
+    """
+    a = lam_direct.tolist()
+    n = len(a)
+    out = [0.0] * n
+    lam = a[n - 1]
+    out[n - 1] = lam
+    half_a, half_g = 0.5 * alpha, 0.5 * gamma
+    for t in range(n - 2, -1, -1):
+        zt = z[t]
+        lam = a[t] + (beta - half_a * (zt if zt >= 0 else -zt) - half_g * zt) * lam
+        out[t] = lam
+    return np.array(out)
+
+
 def ewma_variance(eps: np.ndarray, lam: float, backcast: float) -> np.ndarray:
     """EWMA variances ``sigma^2_t = lam sigma^2_{t-1} + (1 - lam) e_{t-1}^2``.
 

@@ -9,7 +9,6 @@ deviation), where the variance is of order one.
 """
 from __future__ import annotations
 
-import itertools
 import math
 from dataclasses import dataclass
 
@@ -50,7 +49,7 @@ class VolSpec:
             grid = ((0.03, 0.10, 0.95), (0.01, 0.15, 0.98), (0.06, 0.06, 0.90))
             return [[var * (1 - p), a, g, p - a - g / 2] for a, g, p in grid]
         if self.name == "egarch":
-            grid = itertools.product((0.05, 0.15), (-0.1, 0.0), (0.95, 0.98))
+            grid = ((0.10, -0.05, 0.97), (0.15, -0.10, 0.95), (0.05, 0.0, 0.99))
             return [[math.log(var) * (1 - b), a, g, b] for a, g, b in grid]
         return [[]]
 
