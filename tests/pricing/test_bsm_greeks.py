@@ -161,3 +161,33 @@ def test_text_flags_and_numbers_are_rejected_not_misread():
     np.testing.assert_allclose(bsm_price(np.array([100.0], dtype=object), 100, 1.0, 0.0, 0.0,
                                          0.2, [1, 0]),
                                bsm_price(100.0, 100, 1.0, 0.0, 0.0, 0.2, [True, False]))
+
+
+def test_matches_quantlib_analytic_european_engine():
+    # QuantLib AnalyticEuropeanEngine: NPV, delta, gamma, vega (per 1.00), rho, and
+    # theta per year (QuantLib's theta is per year; thetaPerDay divides by 365)
+    import QuantLib as ql
+
+    today = ql.Date(15, 3, 2027)
+    ql.Settings.instance().evaluationDate = today
+    dc = ql.Actual365Fixed()
+    cases = [(100.0, 95.0, 30, 0.03, 0.01, 0.25, True), (100.0, 120.0, 400, 0.05, 0.02, 0.4, False),
+             (2500.0, 2500.0, 730, 0.01, 0.03, 0.18, True), (50.0, 40.0, 91, 0.08, 0.0, 0.6, False)]
+    for S, K, days, r, q, v, call in cases:
+        process = ql.BlackScholesMertonProcess(
+            ql.QuoteHandle(ql.SimpleQuote(S)),
+            ql.YieldTermStructureHandle(ql.FlatForward(today, q, dc)),
+            ql.YieldTermStructureHandle(ql.FlatForward(today, r, dc)),
+            ql.BlackVolTermStructureHandle(ql.BlackConstantVol(today, ql.NullCalendar(), v, dc)))
+        option = ql.VanillaOption(
+            ql.PlainVanillaPayoff(ql.Option.Call if call else ql.Option.Put, K),
+            ql.EuropeanExercise(today + days))
+        option.setPricingEngine(ql.AnalyticEuropeanEngine(process))
+        g = bsm_greeks(S, K, days / 365.0, r, q, v, call)
+        assert float(g.price) == pytest.approx(option.NPV(), rel=1e-12)
+        assert float(g.delta) == pytest.approx(option.delta(), rel=1e-11)
+        assert float(g.gamma) == pytest.approx(option.gamma(), rel=1e-11)
+        assert float(g.vega) == pytest.approx(option.vega(), rel=1e-11)
+        assert float(g.rho) == pytest.approx(option.rho(), rel=1e-11)
+        assert float(g.theta_per_year) == pytest.approx(option.theta(), rel=1e-10)
+        assert float(g.theta_per_day) == pytest.approx(option.thetaPerDay(), rel=1e-10)
