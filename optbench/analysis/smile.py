@@ -43,10 +43,10 @@ MONEYNESS = (0.90, 0.95, 1.00, 1.05, 1.10)
 #: absolute delta of the wing points of :func:`smile_points`
 WING_DELTA = 0.25
 
-_GRID_M = 21          # points in m per grid round
-_GRID_S = 17          # points in sigma per grid round
-_ROUNDS = 2           # refinement rounds of the (m, sigma) grid
-_SIGMA_MIN = 1e-4     # smallest SVI sigma searched (log-moneyness units)
+_GRID = ((21, 17), (11, 9))   # (m, log sigma) points: coarse grid, zoom around a start
+_STARTS = 3                    # local minima of the coarse grid polished
+_SIGMA_MIN = 1e-4     # smallest SVI sigma (log-moneyness units)
+_SIGMA_GRID = (0.01, 2.0)  # coarse-grid sigma range, as fractions of the k range
 
 
 @dataclass(frozen=True)
@@ -118,22 +118,38 @@ class SviFit:
 # inner problem: exact box-constrained weighted least squares, batched
 # ---------------------------------------------------------------------------
 
-# active sets tried for the 3 unknowns (a, u, v): True = free, False = held at 0.
-# The first four leave ``a`` free (its solution is kept only where the minimum
-# variance a + sqrt(u*v) is not negative); the last three hold a = 0, a sufficient
-# condition for a non-negative smile.
-_ACTIVE = np.array([[True, True, True], [True, False, True], [True, True, False],
-                    [True, False, False], [False, True, True], [False, True, False],
-                    [False, False, True]])
+def _inner(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m: np.ndarray,
+           s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    r"""Best (a, u, v) and weighted squared error for each candidate (m, s).
 
+    ``k, w, wt`` have shape (n,); ``m, s`` shape (p,). Returns coefficients of shape
+    (p, 3) and objective of shape (p,).
 
-def _solve3(G: np.ndarray, h: np.ndarray) -> np.ndarray:
-    """Solve the batched symmetric 3x3 systems ``G x = h`` by Cramer's rule.
-
-    ``G`` has shape (p, 3, 3), ``h`` shape (p, 3); singular systems give NaN.
+    With :math:`y = (k - m)/s`, :math:`r = \sqrt{y^2 + 1}`, the model is
+    :math:`w = a + u P + v Q` with :math:`P = (r + y)/2`, :math:`Q = (r - y)/2`
+    (so :math:`u = c + d`, :math:`v = c - d` and :math:`PQ = 1/4`). Every active
+    set of the constraints :math:`u \ge 0`, :math:`v \ge 0` is solved in closed
+    form, with ``a`` free (kept where :math:`a + \sqrt{uv} \ge 0`, i.e. the
+    minimum variance is not negative) and with ``a = 0`` (a sufficient condition);
+    the feasible solution of least error is kept. For a convex quadratic this is
+    the exact constrained minimum over the sets tried.
     """
-    g00, g01, g02 = G[:, 0, 0], G[:, 0, 1], G[:, 0, 2]
-    g11, g12, g22 = G[:, 1, 1], G[:, 1, 2], G[:, 2, 2]
+    y = (k[None, :] - m[:, None]) / s[:, None]                      # (p, n)
+    r = np.sqrt(y * y + 1.0)
+    P = 0.5 * (r + y)
+    Q = 0.5 * (r - y)
+    wtw = wt * w
+    g00 = float(wt.sum())
+    g01, g02 = P @ wt, Q @ wt
+    g11, g22 = (P * P) @ wt, (Q * Q) @ wt
+    g12 = 0.25 * g00
+    h0 = float(wtw.sum())
+    h1, h2 = P @ wtw, Q @ wtw
+    ww = float(wtw @ w)
+    zero = np.zeros_like(g01)
+    tiny = 1e-300
+    cands = []
+    # (a, u, v) all free: Cramer's rule
     c00 = g11 * g22 - g12 * g12
     c01 = g02 * g12 - g01 * g22
     c02 = g01 * g12 - g02 * g11
@@ -141,61 +157,40 @@ def _solve3(G: np.ndarray, h: np.ndarray) -> np.ndarray:
     c12 = g01 * g02 - g00 * g12
     c22 = g00 * g11 - g01 * g01
     det = g00 * c00 + g01 * c01 + g02 * c02
-    with np.errstate(divide="ignore", invalid="ignore"):
-        inv = 1.0 / np.where(np.abs(det) > 0, det, np.nan)
-    h0, h1, h2 = h[:, 0], h[:, 1], h[:, 2]
-    return np.stack([(c00 * h0 + c01 * h1 + c02 * h2) * inv,
-                     (c01 * h0 + c11 * h1 + c12 * h2) * inv,
-                     (c02 * h0 + c12 * h1 + c22 * h2) * inv], axis=-1)
+    det = np.where(np.abs(det) > tiny, det, np.nan)
+    cands.append(((c00 * h0 + c01 * h1 + c02 * h2) / det,
+                  (c01 * h0 + c11 * h1 + c12 * h2) / det,
+                  (c02 * h0 + c12 * h1 + c22 * h2) / det))
 
+    def pair(gii, gij, gjj, hi, hj):
+        d = gii * gjj - gij * gij
+        d = np.where(np.abs(d) > tiny, d, np.nan)
+        return (gjj * hi - gij * hj) / d, (gii * hj - gij * hi) / d
 
-def _inner(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m: np.ndarray,
-           s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Best (a, u, v) and weighted squared error for each candidate (m, s).
-
-    ``k, w, wt`` have shape (n,); ``m, s`` shape (p,). Returns coefficients of shape
-    (p, 3) and objective of shape (p,).
-    """
-    y = (k[None, :] - m[:, None]) / s[:, None]                      # (p, n)
-    r = np.sqrt(y * y + 1.0)
-    # basis: w = a*1 + u*P + v*Q with P = (r + y)/2, Q = (r - y)/2; u = c + d, v = c - d
-    P = 0.5 * (r + y)
-    Q = 0.5 * (r - y)
-    Pw, Qw = P * wt, Q * wt
-    G = np.empty(m.shape + (3, 3))
-    G[:, 0, 0] = wt.sum()
-    G[:, 0, 1] = G[:, 1, 0] = Pw.sum(axis=1)
-    G[:, 0, 2] = G[:, 2, 0] = Qw.sum(axis=1)
-    G[:, 1, 1] = (Pw * P).sum(axis=1)
-    G[:, 1, 2] = G[:, 2, 1] = (Pw * Q).sum(axis=1)
-    G[:, 2, 2] = (Qw * Q).sum(axis=1)
-    h = np.stack([np.full(m.shape, float(wt @ w)), Pw @ w, Qw @ w], axis=-1)
-    ww = float(np.sum(wt * w * w))
-    eye = np.eye(3)
-    ridge = eye * (1e-13 * np.trace(G, axis1=1, axis2=2))[:, None, None]
-    # every active set at once: shape (sets, p, 3, 3); fixed unknowns are held at 0
-    # by replacing their rows and columns with the identity
-    mask = _ACTIVE.astype(float)[:, None, :]                          # (sets, 1, 3)
-    Gm = (G[None] * mask[..., :, None] * mask[..., None, :]
-          + eye * (1.0 - mask)[..., None, :] + ridge[None])
-    nsets, p = _ACTIVE.shape[0], m.shape[0]
-    coef = _solve3(Gm.reshape(nsets * p, 3, 3),
-                   (h[None] * mask).reshape(nsets * p, 3)).reshape(nsets, p, 3) * mask
-    Gc = (G[None] * coef[..., None, :]).sum(axis=-1)
-    obj = ww - 2.0 * (coef * h[None]).sum(axis=-1) + (coef * Gc).sum(axis=-1)
-    a, u, v = coef[..., 0], coef[..., 1], coef[..., 2]
-    ok = (u >= 0) & (v >= 0) & (a + np.sqrt(np.maximum(u * v, 0.0)) >= 0)
-    obj = np.where(ok, obj, np.inf)
-    pick = np.argmin(obj, axis=0)                                      # (p,)
-    cols = np.arange(p)
-    best_obj = obj[pick, cols]
-    best = coef[pick, cols]
-    # a = u = v = 0 is always feasible; a flat smile at the weighted mean too
+    a_, v_ = pair(g00, g02, g22, h0, h2)                  # u = 0
+    cands.append((a_, zero, v_))
+    a_, u_ = pair(g00, g01, g11, h0, h1)                  # v = 0
+    cands.append((a_, u_, zero))
+    cands.append((zero + h0 / g00, zero, zero))          # u = v = 0
+    u_, v_ = pair(g11, g12, g22, h1, h2)                  # a = 0
+    cands.append((zero, u_, v_))
+    cands.append((zero, h1 / g11, zero))                 # a = v = 0
+    cands.append((zero, zero, h2 / g22))                 # a = u = 0
+    best_obj = np.full(g01.shape, np.inf)
+    best = np.zeros(g01.shape + (3,))
+    for a, u, v in cands:
+        obj = (ww - 2.0 * (a * h0 + u * h1 + v * h2)
+               + a * a * g00 + u * u * g11 + v * v * g22
+               + 2.0 * (a * u * g01 + a * v * g02 + u * v * g12))
+        ok = (u >= 0) & (v >= 0) & (a + np.sqrt(np.maximum(u * v, 0.0)) >= 0)
+        take = ok & (obj < best_obj)
+        best_obj = np.where(take, obj, best_obj)
+        best[take] = np.stack([a, u, v], axis=-1)[take]
     flat = ~np.isfinite(best_obj)
     if np.any(flat):
-        a0 = float(np.sum(wt * w) / np.sum(wt))
-        best[flat] = [a0, 0.0, 0.0]
-        best_obj[flat] = float(np.sum(wt * (w - a0) ** 2))
+        # a = u = v = 0 is always feasible
+        best[flat] = 0.0
+        best_obj[flat] = ww
     return best, np.maximum(best_obj, 0.0)
 
 
@@ -210,7 +205,7 @@ def _raw_params(coef: np.ndarray, m: float, s: float) -> tuple[float, float, flo
 
 def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray,
             x0: tuple[float, float, float, float, float],
-            max_iter: int = 40) -> tuple[tuple[float, ...], float, bool]:
+            max_iter: int = 100) -> tuple[tuple[float, ...], float, bool]:
     """Levenberg-Marquardt steps on all five raw SVI parameters from ``x0``.
 
     A step is kept only if it lowers the weighted squared error and stays inside
@@ -227,7 +222,7 @@ def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray,
 
     def feasible(p):
         a, b, rho, m, s = p
-        return b >= 0 and abs(rho) < 1 and s > 0 and a + b * s * np.sqrt(1 - rho * rho) >= 0
+        return b >= 0 and abs(rho) < 1 and s >= _SIGMA_MIN and a + b * s * np.sqrt(1 - rho * rho) >= 0
 
     p = np.array(x0, dtype=float)
     e, x, R = resid(p)
@@ -364,33 +359,57 @@ def fit_svi(k: np.ndarray, w: np.ndarray, weights: np.ndarray | None = None, *,
                       "svi-fixed-m-sigma")
 
     m_lo, m_hi = float(k.min()) - span, float(k.max()) + span
-    ls_lo, ls_hi = np.log(_SIGMA_MIN), np.log(2.0 * span)
-    mg = np.linspace(m_lo, m_hi, _GRID_M)
-    lsg = np.linspace(ls_lo, ls_hi, _GRID_S)
+    ls_lo = np.log(max(_SIGMA_GRID[0] * span, _SIGMA_MIN))
+    ls_hi = np.log(_SIGMA_GRID[1] * span)
+    (n_m, n_s), (z_m, z_s) = _GRID
+    mg = np.linspace(m_lo, m_hi, n_m)
+    lsg = np.linspace(ls_lo, ls_hi, n_s)
     dm, dls = mg[1] - mg[0], lsg[1] - lsg[0]
-    best = (np.inf, 0.0, 0.0, None)
-    for _ in range(_ROUNDS):
-        M, LS = np.meshgrid(mg, lsg, indexing="ij")
-        coef, obj = _inner(k, w, wt, M.ravel(), np.exp(LS.ravel()))
+    M, LS = np.meshgrid(mg, lsg, indexing="ij")
+    _, obj0 = _inner(k, w, wt, M.ravel(), np.exp(LS.ravel()))
+    obj0 = obj0.reshape(M.shape)
+    # starts: the best grid points, each more than two cells from the ones already
+    # taken (a narrow diagonal valley may have no grid-local minimum of its own, and
+    # a flat plateau, e.g. sigma -> 0, has many tied ones)
+    order = np.argsort(obj0.ravel(), kind="stable")
+    cand: list[tuple[int, int]] = []
+    for c in order:
+        ci, cj = divmod(int(c), n_s)
+        if all(max(abs(ci - si), abs(cj - sj)) > 2 for si, sj in cand):
+            cand.append((ci, cj))
+            if len(cand) == _STARTS:
+                break
+    best = (np.inf, None, False)
+    for c in cand:
+        # zoom: a finer grid two cells either side of the start, then a polish
+        mc, lc = M[c], LS[c]
+        mz = np.linspace(max(mc - 2 * dm, m_lo), min(mc + 2 * dm, m_hi), z_m)
+        lz = np.linspace(max(lc - 2 * dls, ls_lo), min(lc + 2 * dls, ls_hi), z_s)
+        MZ, LZ = np.meshgrid(mz, lz, indexing="ij")
+        coef, obj = _inner(k, w, wt, MZ.ravel(), np.exp(LZ.ravel()))
         i = int(np.argmin(obj))
-        if obj[i] <= best[0]:
-            best = (float(obj[i]), float(M.ravel()[i]), float(LS.ravel()[i]), coef[i])
-        # zoom: the next grid spans two cells either side of the best point
-        mc, lc = best[1], best[2]
-        mg = np.linspace(max(mc - 2 * dm, m_lo), min(mc + 2 * dm, m_hi), _GRID_M)
-        lsg = np.linspace(max(lc - 2 * dls, ls_lo), min(lc + 2 * dls, ls_hi), _GRID_S)
-        dm, dls = mg[1] - mg[0], lsg[1] - lsg[0]
-    obj, m_best, ls_best, coef = best
-    s_best = float(np.exp(ls_best))
-    a, b, rho = _raw_params(coef, m_best, s_best)
-    on_edge = (ls_best <= ls_lo + 1e-9 or ls_best >= ls_hi - 1e-9
-               or m_best <= m_lo + 1e-9 or m_best >= m_hi - 1e-9)
-    if b > 0 and abs(rho) < 1:
-        (a, b, rho, m_best, s_best), _, _ = _polish(k, w, wt, (a, b, rho, m_best, s_best))
-    message = "raw SVI fit" if not on_edge else (
-        "raw SVI fit; m or sigma ended at its search bound (smile nearly linear or "
-        "nearly a corner)")
-    return finish(a, b, rho, m_best, s_best, not on_edge, message, "svi")
+        m_i, s_i = float(MZ.ravel()[i]), float(np.exp(LZ.ravel()[i]))
+        a, b, rho = _raw_params(coef[i], m_i, s_i)
+        params, val = (a, b, rho, m_i, s_i), float(obj[i])
+        if b > 0:
+            # start the polish inside the constraints (the grid's solution may sit on
+            # |rho| = 1); keep it only if it lowers the error
+            rho0 = float(np.clip(rho, -0.999, 0.999))
+            a0 = max(a, -b * s_i * np.sqrt(1.0 - rho0 * rho0))
+            p_pol, v_pol, _ = _polish(k, w, wt, (a0, b, rho0, m_i, s_i))
+            if v_pol < val:
+                params, val = p_pol, v_pol
+        if val < best[0]:
+            best = (val, params)
+    _, (a, b, rho, m_best, s_best) = best
+    # m far outside the strikes or a vanishing sigma: the smile is nearly a straight
+    # line or a corner over the quotes, and SVI's parameters are not identified
+    degenerate = (m_best <= m_lo or m_best >= m_hi or s_best <= _SIGMA_MIN * 1.0001
+                  or abs(rho) >= 0.999)
+    message = "raw SVI fit" if not degenerate else (
+        "raw SVI fit; parameters nearly degenerate (m outside the search range, sigma "
+        "near 0 or |rho| near 1): the smile is close to a line or a corner")
+    return finish(a, b, rho, m_best, s_best, not degenerate, message, "svi")
 
 
 # ---------------------------------------------------------------------------
