@@ -36,6 +36,8 @@ nickel is the usual minimum tick on listed options, so such a price is mostly ti
 
 DEFAULT_MULTIPLIER = 100.0
 
+STYLES = ("european", "american")
+
 QUOTE_COLUMNS = ("expiry", "strike", "is_call", "bid", "ask", "mid", "last", "volume",
                  "open_interest", "style", "multiplier", "t", "calendar_days", "line",
                  "warnings")
@@ -218,6 +220,24 @@ def _as_date(value, source: str) -> _dt.date:
 
 # ------------------------------------------------------------------------ load_chain
 
+def _flag_words(prefix: str, suffix: str, flags) -> np.ndarray:
+    """'' per row, or prefix + the names of the flags set on it + suffix; the text is
+    built only for flagged rows."""
+    n = len(flags[0][0])
+    out = np.full(n, "", dtype=object)
+    anyf = np.zeros(n, bool)
+    for mask, _ in flags:
+        anyf |= mask
+    if not anyf.any():
+        return out
+    words = np.full(int(anyf.sum()), "", dtype=object)
+    for mask, name in flags:
+        m = mask[anyf]
+        words[m] = np.where(words[m] == "", name, words[m] + ", " + name)
+    out[anyf] = prefix + words + suffix
+    return out
+
+
 def load_chain(path: str | Path, *, spot: float | None = None,
                asof: _dt.date | str | None = None, rate: float | None = None,
                div_yield: float | None = None, style: str | None = None,
@@ -294,7 +314,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
 
     n = len(pos)
     line = file_lines[pos]
-    p = pd.DataFrame({"line": line})
+    p: dict[str, np.ndarray] = {"line": line}
     dc = raw.decimal_comma
 
     def col(name):
@@ -312,7 +332,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     mismatch_detail = np.full(n, "", dtype=object)
     if sym is not None:
         has_sym = present(sym)
-        parsed = parse_occ(pd.Series(sym.to_numpy(dtype=object)))
+        parsed = parse_occ(sym.reset_index(drop=True))
         ok = parsed["ok"].to_numpy()
         if has_sym.any() and ok[has_sym].mean() >= 0.5:
             occ = parsed
@@ -330,8 +350,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     miss = {f: missing(f) for f in ("expiry", "strike", "type", "bid", "ask")}
     bad_date = ~miss["expiry"] & np.isnat(expiry)
     bad_strike = ~miss["strike"] & np.isnan(strike)
-    known_type = np.array([v is True or v is False for v in is_call], dtype=bool) \
-        if n < 64 else pd.Series(is_call).isin([True, False]).to_numpy(dtype=bool)
+    known_type = (is_call == True) | (is_call == False)  # noqa: E712 (object array)
     bad_type = ~miss["type"] & ~known_type
     if occ is not None:
         ok = occ["ok"].to_numpy()
@@ -345,11 +364,8 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         both = ok & ~miss["type"] & known_type
         m_c = both & (o_c != (is_call == True))  # noqa: E712
         mismatch = m_exp | m_k | m_c
-        mismatch_detail = np.where(m_exp, "expiry ", "") + np.where(m_k, "strike ", "") \
-            + np.where(m_c, "type ", "")
-        mismatch_detail = ("symbol disagrees on " +
-                           pd.Series(mismatch_detail).str.strip().str.replace(" ", ", ")
-                           ).to_numpy(dtype=object)
+        mismatch_detail = _flag_words("symbol disagrees on ", "",
+                                      [(m_exp, "expiry"), (m_k, "strike"), (m_c, "type")])
         fill = ok & miss["expiry"]
         expiry = np.where(fill, o_exp, expiry)
         miss["expiry"] = miss["expiry"] & ~ok
@@ -377,7 +393,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         if col("style") is not None:
             st = to_style(col("style")).to_numpy(dtype=object)
             has = present(col("style"))
-            bad_style = has & pd.isna(pd.Series(st)).to_numpy()
+            bad_style = has & pd.isna(st)
             row_style = np.where(has & ~bad_style, st, default_style).astype(object)
         else:
             row_style = np.full(n, default_style, dtype=object)
@@ -398,10 +414,9 @@ def load_chain(path: str | Path, *, spot: float | None = None,
             mult = np.full(n, default_mult)
             bad_mult = np.zeros(n, bool)
     bad_number = bad_strike | bad_bid | bad_ask | bad_mult
-    bad_number_detail = np.where(bad_strike, "strike ", "") + np.where(bad_bid, "bid ", "") \
-        + np.where(bad_ask, "ask ", "") + np.where(bad_mult, "multiplier ", "")
-    bad_number_detail = (pd.Series(bad_number_detail, dtype=object).str.strip()
-                         .str.replace(" ", ", ") + " not a number").to_numpy(dtype=object)
+    bad_number_detail = _flag_words("", " not a number",
+                                    [(bad_strike, "strike"), (bad_bid, "bid"),
+                                     (bad_ask, "ask"), (bad_mult, "multiplier")])
 
     # ---- underlying, quote date, spot, rate, yield
     other_underlying = np.zeros(n, bool)
@@ -511,31 +526,38 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     warn = quote_warnings(opt["volume"][kept], opt["open_interest"][kept], mid[kept],
                           bad_optional[kept], tiny_price=tiny_price)
 
+    # sorted by expiry, type (puts first), strike, line; numpy takes before the frame
+    idx = np.flatnonzero(kept)
+    kc = np.asarray(is_call[idx] == True, dtype=bool)  # noqa: E712
+    order = idx[np.lexsort((line[idx], strike[idx], kc, expiry[idx]))]
+    pos_in_kept = np.empty(n, dtype=np.int64)
+    pos_in_kept[idx] = np.arange(idx.size)
+    warn_sorted = pd.Categorical.from_codes(np.asarray(warn.codes)[pos_in_kept[order]],
+                                            categories=warn.categories)
     quotes = pd.DataFrame({
-        "expiry": expiry[kept].astype("datetime64[ns]"),
-        "strike": strike[kept].astype(float),
-        "is_call": is_call[kept].astype(bool),
-        "bid": bid[kept], "ask": ask[kept], "mid": mid[kept],
-        "last": opt["last"][kept], "volume": opt["volume"][kept],
-        "open_interest": opt["open_interest"][kept],
-        "style": row_style[kept].astype(object),
-        "multiplier": mult[kept].astype(float),
-        "t": calendar_days[kept] / 365.0,
-        "calendar_days": calendar_days[kept].astype(np.int64),
-        "line": line[kept].astype(np.int64),
-        "warnings": warn,
+        "expiry": expiry[order].astype("datetime64[ns]"),
+        "strike": strike[order].astype(float),
+        "is_call": np.asarray(is_call[order] == True, dtype=bool),  # noqa: E712
+        "bid": bid[order], "ask": ask[order], "mid": mid[order],
+        "last": opt["last"][order], "volume": opt["volume"][order],
+        "open_interest": opt["open_interest"][order],
+        "style": pd.Categorical.from_codes(
+            (row_style[order] == "american").astype(np.int8), categories=STYLES),
+        "multiplier": mult[order].astype(float),
+        "t": calendar_days[order] / 365.0,
+        "calendar_days": calendar_days[order].astype(np.int64),
+        "line": line[order].astype(np.int64),
+        "warnings": warn_sorted,
     })
     if col("iv") is not None:
         had_pct = bool(col("iv").astype("string").str.contains("%", regex=False)
                        .fillna(False).any()) if col("iv").dtype.kind not in "biuf" else False
         iv_dec, was_pct = percent_or_decimal(opt["iv"], had_pct)
-        quotes["iv_file"] = iv_dec[kept]
+        quotes["iv_file"] = iv_dec[order]
         if was_pct:
             notes.append("the file's IV column is in percent; converted to decimals")
     if sym is not None:
-        quotes["symbol"] = sym.to_numpy(dtype=object)[kept]
-    quotes = quotes.sort_values(["expiry", "is_call", "strike", "line"], kind="stable") \
-        .reset_index(drop=True)
+        quotes["symbol"] = sym.iloc[order].reset_index(drop=True)
 
     rej = ~kept
     rejected = pd.DataFrame({"line": line[rej].astype(np.int64),
@@ -551,9 +573,12 @@ def load_chain(path: str | Path, *, spot: float | None = None,
 
     counts = pd.Series(reason[rej]).value_counts()
     rejected_counts = {code: int(counts[code]) for code in REASONS if code in counts}
-    flags = pd.Series(warn[warn != ""]).str.split(",").explode().value_counts() \
-        if (warn != "").any() else pd.Series(dtype=int)
-    warning_counts = {f: int(flags[f]) for f in WARNINGS if f in flags}
+    per_combo = pd.Series(warn).value_counts()
+    warning_counts = {}
+    for f in WARNINGS:
+        count = sum(int(c) for combo, c in per_combo.items() if f in str(combo).split(","))
+        if count:
+            warning_counts[f] = count
     quality = Quality(rows_in=n, rows_used=int(kept.sum()), rejected=rejected_counts,
                       warnings=warning_counts)
     assert quality.rows_in == quality.rows_used + sum(rejected_counts.values())

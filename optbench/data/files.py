@@ -58,7 +58,7 @@ def _decode(head: bytes, path: Path) -> tuple[str, str]:
         return head.decode("utf-16", errors="replace"), "utf-16"
     if b"\x00" in head:
         raise InputError(path, "not a text table (binary content); expected CSV or Parquet")
-    for enc in ("utf-8-sig", "cp1252"):
+    for enc in (("utf-8-sig" if head.startswith(b"\xef\xbb\xbf") else "utf-8"), "cp1252"):
         try:
             return head.decode(enc), enc
         except UnicodeDecodeError:
@@ -125,11 +125,10 @@ def read_table(path: str | Path, *, header_test=None) -> RawTable:
     delim = _pick_delimiter(body)
     decimal_comma = delim == ";"
     try:
-        frame = pd.read_csv(path, sep=delim, skiprows=skip, skip_blank_lines=False,
-                            encoding=encoding, encoding_errors="replace",
-                            compression=compression,
-                            skipinitialspace=True, on_bad_lines="error",
-                            low_memory=False)
+        try:
+            frame = _read_csv(path, delim, skip, encoding, compression)
+        except UnicodeDecodeError:  # a stray byte beyond the sniffed head
+            frame = _read_csv(path, delim, skip, "cp1252", compression)
     except pd.errors.EmptyDataError:
         raise InputError(path, "file is empty") from None
     except pd.errors.ParserError as err:
@@ -140,6 +139,16 @@ def read_table(path: str | Path, *, header_test=None) -> RawTable:
     frame.columns = [str(c).strip() for c in frame.columns]
     return RawTable(path=path, frame=frame, line0=skip + 2, delimiter=delim,
                     decimal_comma=decimal_comma, kind="csv")
+
+
+def _read_csv(path: Path, delim: str, skip: int, encoding: str, compression):
+    import warnings
+    with warnings.catch_warnings():
+        # a column of mixed numbers and text is handled cell by cell downstream
+        warnings.simplefilter("ignore", pd.errors.DtypeWarning)
+        return pd.read_csv(path, sep=delim, skiprows=skip, skip_blank_lines=False,
+                           encoding=encoding, compression=compression,
+                           on_bad_lines="error")
 
 
 def _read_parquet(path: Path) -> RawTable:

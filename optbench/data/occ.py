@@ -38,19 +38,74 @@ def parse_occ(symbols: pd.Series | np.ndarray | list) -> pd.DataFrame:
     Corporation, *Options Symbology Initiative* (2010).
     """
     s = pd.Series(symbols) if not isinstance(symbols, pd.Series) else symbols
+    try:
+        root, ymd, cp, strike_txt = _split_arrow(s)
+    except ImportError:
+        root, ymd, cp, strike_txt = _split_pandas(s)
+    # OSI years are 20YY: strptime's %y would put 69-99 in the 1900s. Each distinct
+    # date is parsed once.
+    codes, uniq = pd.factorize(ymd, use_na_sentinel=True)
+    parsed = pd.to_datetime("20" + pd.Series(uniq, dtype=object).astype(str),
+                            format="%Y%m%d", errors="coerce").to_numpy(dtype="datetime64[ns]")
+    exp = np.full(len(s), np.datetime64("NaT"), dtype="datetime64[ns]")
+    exp[codes >= 0] = parsed[codes[codes >= 0]]
+    strike = np.asarray(strike_txt, dtype=float) / 1000.0
+    ok = ~np.isnat(exp) & np.isfinite(strike)
+    return pd.DataFrame({
+        "root": root,
+        "expiry": np.where(ok, exp, np.datetime64("NaT", "ns")),
+        "is_call": (np.asarray(cp, dtype=object) == "C") & ok,
+        "strike": np.where(ok, strike, np.nan),
+        "ok": ok,
+    }, index=s.index)
+
+
+def _split_pandas(s: pd.Series):
     text = s.astype("string").str.strip().str.upper()
     parts = text.str.extract(OCC_PATTERN)
-    # OSI years are 20YY: strptime's %y would put 69-99 in the 1900s
-    expiry = pd.to_datetime("20" + parts["ymd"], format="%Y%m%d", errors="coerce")
-    strike = pd.to_numeric(parts["strike"], errors="coerce") / 1000.0
-    ok = expiry.notna() & strike.notna()
-    return pd.DataFrame({
-        "root": parts["root"].where(ok),
-        "expiry": expiry.where(ok),
-        "is_call": (parts["cp"] == "C").fillna(False).astype(bool) & ok,
-        "strike": strike.where(ok).astype(float),
-        "ok": ok.astype(bool),
-    }, index=s.index)
+    strike = pd.to_numeric(parts["strike"], errors="coerce").to_numpy(dtype=float,
+                                                                     na_value=np.nan)
+    return (parts["root"].to_numpy(dtype=object), parts["ymd"].astype(object),
+            parts["cp"].to_numpy(dtype=object), strike)
+
+
+def _split_arrow(s: pd.Series):
+    """The four OSI fields with pyarrow's regex engine (C++), None where no match."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+    try:
+        arr = pa.array(s, type=pa.string(), from_pandas=True)
+    except (pa.ArrowInvalid, pa.ArrowTypeError):
+        obj = s.astype(object)
+        obj = obj.where(obj.isna(), obj.astype(str))
+        arr = pa.array(obj, type=pa.string(), from_pandas=True)
+    if isinstance(arr, pa.ChunkedArray):
+        arr = arr.combine_chunks()
+    text = pc.utf8_upper(pc.utf8_trim_whitespace(arr))
+    # fixed-width tail read from the right: YYMMDD (6), C/P (1), strike x 1000 (8)
+    n = pc.utf8_length(text)
+    ymd = pc.utf8_slice_codeunits(text, -15, -9)
+    cp = pc.utf8_slice_codeunits(text, -9, -8)
+    strike8 = pc.utf8_slice_codeunits(text, -8)
+    root = pc.utf8_rtrim(pc.utf8_slice_codeunits(text, 0, -15), characters=" ")
+    rlen = pc.utf8_length(root)
+    valid = pc.and_kleene(pc.and_kleene(pc.greater_equal(n, 16), pc.less_equal(n, 21)),
+                          pc.and_kleene(pc.utf8_is_digit(ymd), pc.utf8_is_digit(strike8)))
+    valid = pc.and_kleene(valid, pc.is_in(cp, value_set=pa.array(["C", "P"])))
+    valid = pc.and_kleene(valid, pc.and_kleene(pc.greater_equal(rlen, 1),
+                                               pc.less_equal(rlen, 6)))
+    valid = pc.and_kleene(valid, pc.match_substring_regex(root, r"^[A-Z0-9.]+$"))
+    valid = pc.fill_null(valid, False)
+    fields = (root, ymd, cp, strike8)
+
+    def field(i):
+        return pc.if_else(valid, fields[i], pa.scalar(None, pa.string()))
+
+    strike = pc.cast(field(3), pa.int64()).to_numpy(zero_copy_only=False)
+    strike = np.where(valid.to_numpy(zero_copy_only=False), strike, np.nan).astype(float)
+    return (pd.arrays.ArrowStringArray(field(0)),
+            pd.Series(field(1).to_numpy(zero_copy_only=False), dtype=object),
+            field(2).to_numpy(zero_copy_only=False).astype(object), strike)
 
 
 def format_occ(root, expiry, is_call, strike, *, pad: bool = True) -> np.ndarray:

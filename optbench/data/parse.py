@@ -20,8 +20,15 @@ def present(col: pd.Series) -> np.ndarray:
     """True where a cell holds something (not NaN and not only blanks)."""
     if col.dtype.kind in "biufcmM":
         return col.notna().to_numpy()
-    text = col.astype("string").str.strip()
-    return (text.notna() & (text != "")).fillna(False).to_numpy(dtype=bool)
+    has = col.notna().to_numpy(dtype=bool)
+    if isinstance(col.dtype, pd.StringDtype):
+        text = col.str.strip()
+    else:  # object: mixed cells; only the text ones can be blank
+        text = col[has].astype(str).str.strip()
+        out = has.copy()
+        out[has] = (text != "").to_numpy(dtype=bool)
+        return out
+    return has & (text != "").fillna(False).to_numpy(dtype=bool)
 
 
 def to_number(col: pd.Series, *, decimal_comma: bool = False) -> np.ndarray:

@@ -54,10 +54,7 @@ class _Assigner:
     def __init__(self, n: int) -> None:
         self.reason = np.full(n, "", dtype=object)
         self.detail = np.full(n, "", dtype=object)
-
-    @property
-    def open(self) -> np.ndarray:
-        return self.reason == ""
+        self.open = np.ones(n, dtype=bool)
 
     def apply(self, code: str, mask: np.ndarray, detail) -> None:
         assert code in REASONS, code
@@ -65,6 +62,7 @@ class _Assigner:
         if not sel.any():
             return
         self.reason[sel] = code
+        self.open[sel] = False
         if callable(detail):
             self.detail[sel] = detail(sel)
         elif isinstance(detail, np.ndarray):
@@ -100,62 +98,64 @@ def no_arbitrage_bounds(spot: float, strike: np.ndarray, t: np.ndarray, rate: fl
     return lower, upper
 
 
-def assign_reasons(p: pd.DataFrame, *, spot: float, rate: float, div_yield: float,
+def assign_reasons(p, *, spot: float, rate: float, div_yield: float,
                    max_spread: float | None) -> tuple[np.ndarray, np.ndarray]:
     """The rejection reason ('' for a kept row) and its detail for every row.
 
     Parameters
     ----------
-    p : DataFrame
-        Parsed rows with columns ``expiry`` (datetime64), ``strike``, ``bid``,
+    p : mapping of str -> ndarray
+        Parsed rows (one array per field, all the same length): ``expiry`` (datetime64), ``strike``, ``bid``,
         ``ask``, ``multiplier`` (float, NaN where unreadable), ``is_call`` (object:
         True/False/None), ``american`` (bool), ``calendar_days`` (float), the
         boolean masks ``missing_<field>``, ``bad_symbol``, ``bad_date``,
         ``bad_number``, ``bad_type``, ``bad_style``, ``symbol_mismatch``,
-        ``other_underlying``, ``other_quote_date``, and ``key`` columns for
-        duplicate detection.
+        ``other_underlying``, ``other_quote_date``, the detail texts
+        ``bad_number_detail`` and ``symbol_mismatch_detail``, and ``line``.
     spot, rate, div_yield : float
         Spot (price units), continuously compounded rate and yield (decimals).
     max_spread : float or None
         Largest accepted (ask − bid) / mid; None switches the rule off.
     """
-    n = len(p)
+    n = len(p["line"])
     a = _Assigner(n)
-    a.apply("bad_symbol", p["bad_symbol"].to_numpy(), "symbol not readable")
+    a.apply("bad_symbol", np.asarray(p["bad_symbol"]), "symbol not readable")
     for field in ("expiry", "strike", "type", "bid", "ask"):
-        a.apply("missing_field", p[f"missing_{field}"].to_numpy(), f"no {field}")
-    a.apply("bad_date", p["bad_date"].to_numpy(), "expiry not a date")
-    a.apply("bad_number", p["bad_number"].to_numpy(), p["bad_number_detail"].to_numpy())
-    a.apply("bad_type", p["bad_type"].to_numpy(), "type not call/put")
-    a.apply("bad_style", p["bad_style"].to_numpy(), "style not european/american")
-    a.apply("symbol_mismatch", p["symbol_mismatch"].to_numpy(),
-            p["symbol_mismatch_detail"].to_numpy())
-    a.apply("other_underlying", p["other_underlying"].to_numpy(), "another underlying")
-    a.apply("other_quote_date", p["other_quote_date"].to_numpy(), "another quote date")
+        a.apply("missing_field", np.asarray(p[f"missing_{field}"]), f"no {field}")
+    a.apply("bad_date", np.asarray(p["bad_date"]), "expiry not a date")
+    a.apply("bad_number", np.asarray(p["bad_number"]), np.asarray(p["bad_number_detail"]))
+    a.apply("bad_type", np.asarray(p["bad_type"]), "type not call/put")
+    a.apply("bad_style", np.asarray(p["bad_style"]), "style not european/american")
+    a.apply("symbol_mismatch", np.asarray(p["symbol_mismatch"]),
+            np.asarray(p["symbol_mismatch_detail"]))
+    a.apply("other_underlying", np.asarray(p["other_underlying"]), "another underlying")
+    a.apply("other_quote_date", np.asarray(p["other_quote_date"]), "another quote date")
 
-    strike = p["strike"].to_numpy(dtype=float)
-    bid = p["bid"].to_numpy(dtype=float)
-    ask = p["ask"].to_numpy(dtype=float)
-    days = p["calendar_days"].to_numpy(dtype=float)
-    mult = p["multiplier"].to_numpy(dtype=float)
+    strike = np.asarray(p["strike"], dtype=float)
+    bid = np.asarray(p["bid"], dtype=float)
+    ask = np.asarray(p["ask"], dtype=float)
+    days = np.asarray(p["calendar_days"], dtype=float)
+    mult = np.asarray(p["multiplier"], dtype=float)
     a.apply("nonpositive_strike", strike <= 0, lambda s: "strike " + _g(strike[s]))
     a.apply("bad_number", mult <= 0, lambda s: "multiplier " + _g(mult[s]))
     a.apply("expired", days <= 0,
             lambda s: "expiry " + np.datetime_as_string(
-                p["expiry"].to_numpy()[s], unit="D").astype(object))
+                np.asarray(p["expiry"])[s], unit="D").astype(object))
     a.apply("negative_quote", (bid < 0) | (ask < 0),
             lambda s: "bid " + _g(bid[s]) + ", ask " + _g(ask[s]))
     a.apply("crossed", ask < bid, lambda s: "ask " + _g(ask[s]) + " < bid " + _g(bid[s]))
     a.apply("no_bid", bid == 0, lambda s: "bid 0, ask " + _g(ask[s]))
 
-    live = a.open
+    live = a.open.copy()
+    is_call = np.asarray(p["is_call"], dtype=object) == True  # noqa: E712
     if live.any():
-        keys = p.loc[live, ["expiry", "strike", "is_call", "multiplier"]]
+        keys = pd.DataFrame({"expiry": np.asarray(p["expiry"])[live], "strike": strike[live],
+                             "is_call": is_call[live], "multiplier": mult[live]})
         dup = keys.duplicated(keep="first").to_numpy()
         if dup.any():
-            first_line = p.loc[live].groupby(
-                ["expiry", "strike", "is_call", "multiplier"], sort=False,
-                dropna=False)["line"].transform("first").to_numpy()
+            keys["line"] = np.asarray(p["line"])[live]
+            first_line = keys.groupby(["expiry", "strike", "is_call", "multiplier"],
+                                      sort=False)["line"].transform("first").to_numpy()
             mask = np.zeros(n, dtype=bool)
             mask[np.flatnonzero(live)[dup]] = True
             lines = np.zeros(n, dtype=np.int64)
@@ -163,12 +163,11 @@ def assign_reasons(p: pd.DataFrame, *, spot: float, rate: float, div_yield: floa
             a.apply("duplicate", mask, lambda s: "same contract as line "
                     + lines[s].astype(str).astype(object))
 
-    live = a.open
+    live = a.open.copy()
     mid = 0.5 * (bid + ask)
-    is_call = np.asarray(p["is_call"].to_numpy() == True, dtype=bool)  # noqa: E712
     t = np.where(live, days, 0.0) / 365.0
     lower, upper = no_arbitrage_bounds(spot, np.where(live, strike, 0.0), t, rate,
-                                       div_yield, is_call, p["american"].to_numpy(bool))
+                                       div_yield, is_call, np.asarray(p["american"], dtype=bool))
     tol_lo = BOUND_TOL_ABS + BOUND_TOL_REL * lower
     tol_hi = BOUND_TOL_ABS + BOUND_TOL_REL * upper
     a.apply("below_intrinsic", live & (mid < lower - tol_lo),
@@ -185,19 +184,22 @@ def assign_reasons(p: pd.DataFrame, *, spot: float, rate: float, div_yield: floa
 
 
 def quote_warnings(volume: np.ndarray, open_interest: np.ndarray, mid: np.ndarray,
-                   bad_optional: np.ndarray, *, tiny_price: float) -> np.ndarray:
-    """Comma-separated warning flags per kept quote ('' when none).
+                   bad_optional: np.ndarray, *, tiny_price: float) -> pd.Categorical:
+    """Comma-separated warning flags per kept quote ('' when none), as a categorical.
 
     ``stale``: the row reports volume and/or open interest and every reported one
-    is zero. ``tiny_price``: mid below ``tiny_price`` (price units). ``bad_optional_field``:
-    an optional cell was unreadable and left empty.
+    is zero. ``tiny_price``: mid below ``tiny_price`` (price units).
+    ``bad_optional_field``: an optional cell was unreadable and left empty.
     """
     known = np.isfinite(volume) | np.isfinite(open_interest)
     zero_or_none = ((~np.isfinite(volume)) | (volume == 0)) & \
                    ((~np.isfinite(open_interest)) | (open_interest == 0))
     flags = [("stale", known & zero_or_none), ("tiny_price", mid < tiny_price),
              ("bad_optional_field", bad_optional)]
-    out = np.full(len(mid), "", dtype=object)
-    for name, mask in flags:
-        out = np.where(mask, np.where(out == "", name, out + "," + name), out)
-    return out.astype(object)
+    # each combination of flags is one category: code = sum of 2**i over set flags
+    codes = np.zeros(len(mid), dtype=np.int16)
+    for i, (_, mask) in enumerate(flags):
+        codes += (np.asarray(mask, dtype=bool) << i).astype(np.int16)
+    names = [",".join(f for i, (f, _) in enumerate(flags) if code >> i & 1)
+             for code in range(2 ** len(flags))]
+    return pd.Categorical.from_codes(codes, categories=names)
