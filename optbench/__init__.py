@@ -21,6 +21,10 @@ _EXPORTS: dict[str, str] = {
     "bsm_price": "optbench.pricing.bsm",
     "bsm_greeks": "optbench.pricing.greeks",
     "implied_vol": "optbench.pricing.implied",
+    "implied_vol_with_status": "optbench.pricing.implied",
+    "american_price": "optbench.pricing.american",
+    "implied_forwards": "optbench.pricing.forwards",
+    "quote_implied_vols": "optbench.pricing.quotes",
     "load_chain": "optbench.data.chain",
     "load_history": "optbench.data.history",
     "load_scenario": "optbench.data.scenario",
@@ -36,6 +40,9 @@ _EXPORTS: dict[str, str] = {
     "VolCone": "optbench.volatility.cone",
     "compare": "optbench.analysis.compare",
     "hedge": "optbench.analysis.hedge",
+    "HedgeRequest": "optbench.analysis.results",
+    "Comparison": "optbench.analysis.results",
+    "HedgeEstimate": "optbench.analysis.results",
     "screen": "optbench.screening.screen",
 }
 
