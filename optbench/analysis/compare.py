@@ -42,6 +42,11 @@ where it exceeds the ATM implied vol. This is the model's *physical* distributio
 ``cone_percentile`` is the percentile rank of the ATM IV among the rolling realized
 vols of the cone window nearest :math:`h` (Burghardt & Lane 1990).
 
+**Smile fit.** Raw SVI on the out-of-the-money mid vols of each expiry, vega-weighted
+(:func:`optbench.analysis.smile.fit_svi`); on a dense expiry at most
+``MAX_SMILE_POINTS`` quotes evenly spaced in log-moneyness enter the fit (the smile's
+five parameters are fixed by far fewer points; this keeps large chains fast).
+
 **Per strike.** ``price_at_forecast`` is the Black-Scholes-Merton value at the expiry's
 forward and discount with the forecast vol (American exercise for American chains);
 ``edge_per_contract = (mid - price_at_forecast) * multiplier``;
@@ -70,6 +75,8 @@ DEFAULT_N_PATHS = 2000
 DEFAULT_SEED = 7
 DEFAULT_BAND = (0.05, 0.95)
 MIN_REALIZED_WINDOW = 5
+#: most out-of-the-money quotes per expiry given to the smile fit (evenly spaced in k)
+MAX_SMILE_POINTS = 200
 
 CONVENTIONS = {
     "vol": "annualised decimal (0.215 = 21.5%); a vol point is 0.01",
@@ -314,10 +321,14 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         use = sel & otm & np.isfinite(iv_mid)
         smile_info: dict = {"method": "none"}
         atm = iv25p = iv25c = rr = iv90 = iv95 = math.nan
-        if use.sum() >= 1:
-            vw = np.where(np.isfinite(vega_pt[use]), np.maximum(vega_pt[use], 1e-8), 1e-8)
+        idx = np.flatnonzero(use)
+        if idx.size > MAX_SMILE_POINTS:
+            idx = idx[np.argsort(k_q[idx], kind="stable")]
+            idx = idx[np.unique(np.linspace(0, idx.size - 1, MAX_SMILE_POINTS).round().astype(int))]
+        if idx.size >= 1:
+            vw = np.where(np.isfinite(vega_pt[idx]), np.maximum(vega_pt[idx], 1e-8), 1e-8)
             try:
-                sfit = fit_svi(k_q[use], iv_mid[use] ** 2 * t_e, vw, t=t_e)
+                sfit = fit_svi(k_q[idx], iv_mid[idx] ** 2 * t_e, vw, t=t_e)
                 pts = smile_points(sfit, F_e, t_e, r=float(fwd["rate"].iloc[j]),
                                    q=float(fwd["carry"].iloc[j]))
                 atm, iv25p, iv25c, rr = pts.iv_atm, pts.iv_25d_put, pts.iv_25d_call, pts.rr_25d

@@ -1,0 +1,158 @@
+"""Speed of ``optbench compare``: the bundled demo and a 20,000-quote chain.
+
+Targets (issue 5): ``optbench compare`` on the demo within 1.5 s wall including the
+interpreter's start, and within 2 s for a 20,000-quote chain. Printed side by side
+in the same run, because this machine is shared and noisy:
+
+- the floor every run pays: ``python -c pass`` and ``import numpy, pandas,
+  scipy.optimize`` (no optbench code);
+- ``optbench compare --format json`` on the demo and on the 20,000-quote chain
+  (medians of several runs, wall clock, new interpreter each time);
+- the in-process stages of one comparison of the large chain;
+- the reference library on the same job: vollib's scalar implied vol of the same
+  20,000 mids (timed on a 2,000-quote sample and scaled), against optbench's
+  vectorised bid/mid/ask vols, and their ratio.
+
+Run: .venv/bin/python tests/benchmarks/bench_compare.py [--repeats N]
+"""
+from __future__ import annotations
+
+import argparse
+import datetime as _dt
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+ROOT = Path(__file__).resolve().parents[2]
+DEMO = ROOT / "chains" / "ZPHX"
+PY = sys.executable
+
+
+CPU: dict[str, float] = {}
+
+
+def wall(cmd: list[str], repeats: int) -> float:
+    """Median wall seconds of a fresh process; its median CPU seconds go to CPU."""
+    import resource
+    times, cpu = [], []
+    for _ in range(repeats):
+        r0 = resource.getrusage(resource.RUSAGE_CHILDREN)
+        t0 = time.perf_counter()
+        subprocess.run(cmd, check=True, stdout=subprocess.DEVNULL)
+        times.append(time.perf_counter() - t0)
+        r1 = resource.getrusage(resource.RUSAGE_CHILDREN)
+        cpu.append(r1.ru_utime + r1.ru_stime - r0.ru_utime - r0.ru_stime)
+    CPU[" ".join(cmd)] = statistics.median(cpu)
+    return statistics.median(times)
+
+
+def big_chain(folder: Path, n_expiries: int = 20, n_strikes: int = 620) -> Path:
+    """A 20,000-quote chain on the demo's history: an invented skewed smile priced
+    with optbench's BSM, bid/ask around it (no real market)."""
+    from optbench.pricing.bsm import bsm_price
+    hist = pd.read_csv(DEMO / "history.csv")
+    asof = _dt.date.fromisoformat(hist["date"].iloc[-1])
+    spot = float(hist["close"].iloc[-1])
+    days = np.unique(np.geomspace(7, 730, n_expiries).round().astype(int))
+    while days.size < n_expiries:
+        days = np.unique(np.append(days, days.max() + 7 * (n_expiries - days.size)))
+    strikes = np.linspace(0.5, 1.5, n_strikes) * spot
+    D, K, C = np.meshgrid(days, strikes, [True, False], indexing="ij")
+    D, K, C = D.ravel(), K.ravel(), C.ravel()
+    t = D / 365
+    k = np.log(K / spot)
+    vol = 0.18 - 0.12 * k + 0.25 * k ** 2
+    price = bsm_price(spot, K, t, 0.04, 0.015, vol, C)
+    half = np.maximum(0.01, 0.01 * price)
+    frame = pd.DataFrame({
+        "underlying": "ZPHX", "quote_date": asof.isoformat(), "underlying_price": spot,
+        "expiry": [(asof + _dt.timedelta(days=int(d))).isoformat() for d in D],
+        "strike": K.round(2), "type": np.where(C, "C", "P"),
+        "bid": np.maximum(price - half, 0.0).round(4), "ask": (price + half).round(4)})
+    frame = frame[frame["bid"] > 0].head(20_000)
+    folder.mkdir(parents=True, exist_ok=True)
+    frame.to_csv(folder / "chain.csv", index=False)
+    hist.to_csv(folder / "history.csv", index=False)
+    (folder / "meta.toml").write_text((DEMO / "meta.toml").read_text())
+    return folder
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--repeats", type=int, default=5)
+    args = ap.parse_args()
+    n = args.repeats
+    with tempfile.TemporaryDirectory() as tmp:
+        big = big_chain(Path(tmp) / "BIG")
+        n_quotes = len(pd.read_csv(big / "chain.csv"))
+        print(f"medians of {n} runs, seconds (wall; CPU in brackets: on a loaded "
+              "machine wall exceeds CPU)")
+        base = wall([PY, "-c", "pass"], n)
+        floor = wall([PY, "-c", "import numpy, pandas, scipy.optimize"], n)
+        demo = wall([PY, "-m", "optbench", "compare", str(DEMO), "--format", "json"], n)
+        demo_gjr = wall([PY, "-m", "optbench", "compare", str(DEMO), "--model", "gjr",
+                         "--format", "json"], n)
+        large = wall([PY, "-m", "optbench", "compare", str(big), "--format", "json"], n)
+        cpu = iter(CPU.values())
+        print(f"{'python -c pass':<44}{base:8.2f} [{next(cpu):5.2f}]")
+        print(f"{'import numpy, pandas, scipy.optimize':<44}{floor:8.2f} [{next(cpu):5.2f}]")
+        print(f"{'optbench compare demo (model auto)':<44}{demo:8.2f} [{next(cpu):5.2f}]"
+              f"   target 1.5   "
+              f"over the import floor {demo - floor:5.2f}")
+        print(f"{'optbench compare demo (--model gjr)':<44}{demo_gjr:8.2f} [{next(cpu):5.2f}]"
+              f"   target 1.5   "
+              f"over the import floor {demo_gjr - floor:5.2f}")
+        print(f"{f'optbench compare {n_quotes:,} quotes (auto)':<44}{large:8.2f} "
+              f"[{next(cpu):5.2f}]   "
+              f"target 2.0   over the import floor {large - floor:5.2f}")
+
+        from optbench.analysis.compare import compare
+        stamps = []
+        t0 = time.perf_counter()
+        c = compare(big, progress=lambda s: stamps.append((time.perf_counter(), s)))
+        stamps.append((time.perf_counter(), "done"))
+        print("\nin-process stages, large chain:")
+        prev_t, prev_s = t0, "start"
+        for ts, s in stamps:
+            print(f"  {prev_s:<44}{ts - prev_t:8.3f}")
+            prev_t, prev_s = ts, s
+
+        # reference: vollib's scalar implied vol on the same mids
+        from vollib.black_scholes_merton.implied_volatility import implied_volatility
+        from optbench.pricing.implied import black_implied_vol_with_status
+        q = c.strike_frame()
+        sample = q.sample(2000, random_state=1) if len(q) > 2000 else q
+        t_fn = np.array([(e.date() - c.asof).days / 365 for e in sample["expiry"]])
+        t1 = time.perf_counter()
+        for (_, rec), tt in zip(sample.iterrows(), t_fn):
+            try:
+                implied_volatility(rec["mid"], c.spot, rec["strike"], tt, c.rate, c.div_yield,
+                                   "c" if rec["is_call"] else "p")
+            except Exception:   # vollib raises below intrinsic
+                pass
+        vollib_s = (time.perf_counter() - t1) * len(q) / len(sample)
+        tq = np.array([(e.date() - c.asof).days / 365 for e in q["expiry"]])
+        F = c.spot * np.exp((c.rate - c.div_yield) * tq)
+        Dd = np.exp(-c.rate * tq)
+        prices = q[["bid", "mid", "ask"]].to_numpy(float).T
+        ours = []
+        for _ in range(5):
+            t2 = time.perf_counter()
+            black_implied_vol_with_status(prices, F, q["strike"].to_numpy(float), tq, Dd,
+                                          q["is_call"].to_numpy(bool))
+            ours.append(time.perf_counter() - t2)
+        ours_s = statistics.median(ours)
+        print(f"\nimplied vols of {len(q):,} quotes")
+        print(f"  vollib, mids only (scalar loop, scaled)   {vollib_s:8.3f}")
+        print(f"  optbench, bid+mid+ask (vectorised)        {ours_s:8.3f}")
+        print(f"  ratio vollib / optbench (3x the vols)     {vollib_s / ours_s:8.1f}")
+
+
+if __name__ == "__main__":
+    main()
