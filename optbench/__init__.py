@@ -43,6 +43,13 @@ _EXPORTS: dict[str, str] = {
     "HedgeRequest": "optbench.analysis.results",
     "Comparison": "optbench.analysis.results",
     "HedgeEstimate": "optbench.analysis.results",
+    "fit_svi": "optbench.analysis.smile",
+    "SviFit": "optbench.analysis.smile",
+    "smile_points": "optbench.analysis.smile",
+    "strike_arbitrage": "optbench.analysis.arbitrage",
+    "calendar_arbitrage": "optbench.analysis.arbitrage",
+    "model_free_variance": "optbench.analysis.model_free",
+    "constant_maturity_variance": "optbench.analysis.model_free",
     "screen": "optbench.screening.screen",
 }
 

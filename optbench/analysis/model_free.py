@@ -5,8 +5,8 @@ Notes
 -----
 Under any diffusion for the forward, the risk-neutral expected annualised variance to
 expiry :math:`T` is the price of a strip of out-of-the-money options weighted by
-:math:`1/K^2` (Demeterfi, Derman, Kamal & Zou, "More than you ever wanted to know
-about volatility swaps", Goldman Sachs Quantitative Strategies, 1999; Britten-Jones
+:math:`1/K^2` (Demeterfi, Derman, Kamal & Zou, "A guide to volatility and variance
+swaps", Journal of Derivatives 6(4), 1999; Britten-Jones
 & Neuberger, "Option prices, implied price processes, and stochastic volatility",
 Journal of Finance 55, 2000):
 

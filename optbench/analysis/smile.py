@@ -12,21 +12,24 @@ as a function of log-moneyness :math:`k = \\ln(K/F)`:
 
 with :math:`b \\ge 0`, :math:`|\\rho| < 1`, :math:`\\sigma > 0` and
 :math:`a + b\\sigma\\sqrt{1-\\rho^2} \\ge 0` (the smallest total variance is not
-negative). The fit is the quasi-explicit method of De Marco & Martini (Zeliade
-Systems white paper, 2009): for fixed :math:`(m, \\sigma)`, put
+negative). The fit is the quasi-explicit method of De Marco & Martini (2009): for
+fixed :math:`(m, \\sigma)`, put
 :math:`y = (k - m)/\\sigma`; then :math:`w = a + d\\,y + c\\sqrt{y^2 + 1}` with
 :math:`c = b\\sigma`, :math:`d = \\rho b \\sigma` is linear in :math:`(a, d, c)` and
 the constraints :math:`c \\ge 0`, :math:`|d| \\le c` become the box
 :math:`u = c + d \\ge 0`, :math:`v = c - d \\ge 0`. The inner weighted linear least
-squares is solved exactly (every active set of the box is tried, batched in numpy);
-the outer problem in :math:`(m, \\sigma)` is searched on a grid that is refined
-around the best point, a deterministic search with no starting guess.
+squares is solved exactly (every active set of the box is tried in closed form,
+batched in numpy over candidate :math:`(m, \\sigma)`). The outer problem in
+:math:`(m, \\sigma)` is searched on a coarse grid; from the three best grid points
+that lie in distinct regions, a finer grid and then Levenberg-Marquardt steps on all
+five parameters (kept only while feasible and improving) polish the fit. The search
+is deterministic and needs no starting guess.
 
 References: J. Gatheral, "A parsimonious arbitrage-free implied volatility
 parameterization with application to the valuation of volatility derivatives",
 Global Derivatives, Madrid, 2004; J. Gatheral, *The Volatility Surface*, Wiley 2006,
 ch. 3; S. De Marco and C. Martini, "Quasi-explicit calibration of Gatheral's SVI
-model", Zeliade white paper, 2009; J. Gatheral and A. Jacquier, "Arbitrage-free SVI
+model", 2009; J. Gatheral and A. Jacquier, "Arbitrage-free SVI
 volatility surfaces", Quantitative Finance 14 (2014).
 """
 from __future__ import annotations
@@ -67,7 +70,8 @@ class SviFit:
     n_points : int
         Quotes used in the fit (finite inputs with positive weight).
     converged : bool
-        True when the (m, sigma) search ended inside its bounds on a full SVI fit.
+        True for a full SVI fit whose parameters are not degenerate (see
+        :func:`fit_svi`); False for the simpler fits of 1 to 4 points.
     message : str
         What was fitted, and any caveat.
     method : str
@@ -321,9 +325,12 @@ def fit_svi(k: np.ndarray, w: np.ndarray, weights: np.ndarray | None = None, *,
     :math:`\\sigma > 0`, :math:`a + b\\sigma\\sqrt{1-\\rho^2} \\ge 0` (Gatheral 2004),
     by the quasi-explicit reduction of De Marco & Martini (2009): the inner problem in
     :math:`(a, \\rho b\\sigma, b\\sigma)` is an exact box-constrained linear least
-    squares; the outer search in :math:`m \\in [k_{min} - \\Delta, k_{max} + \\Delta]`
-    and :math:`\\sigma \\in [10^{-4}, 2\\Delta]` (:math:`\\Delta` the strike range in
-    log-moneyness) is a grid refined around its best point.
+    squares; the outer search covers :math:`m \\in [k_{min} - \\Delta, k_{max} + \\Delta]`
+    and :math:`\\sigma \\in [0.01\\Delta, 2\\Delta]` on a log grid (:math:`\\Delta`
+    the quotes' range of log-moneyness), then zooms and polishes from the three best
+    grid points in distinct regions (see the module notes). ``converged`` is False
+    when the result is degenerate (m outside that range, sigma at its floor of
+    1e-4, or :math:`|\\rho| \\ge 0.999`).
 
     With 3 or 4 points SVI's five parameters are not identified: ``m`` is held at the
     point of lowest total variance and ``sigma`` at half the log-moneyness range,
