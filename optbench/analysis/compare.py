@@ -139,31 +139,19 @@ def _history(history):
 
 # ------------------------------------------------------------------- per-quote vols
 def _quote_vols(q: pd.DataFrame, fwd: pd.DataFrame, spot: float):
-    """Per-quote forward, discount, rate, carry and bid/mid/ask implied vols."""
-    from optbench.pricing.implied import black_implied_vol_with_status, implied_vol_with_status
+    """Per-quote forward, discount, rate, carry and bid/mid/ask implied vols
+    (:func:`optbench.pricing.quotes.quote_implied_vols`; American quotes by the tree)."""
+    from optbench.pricing.quotes import quote_implied_vols
 
+    iv = quote_implied_vols(q, fwd, spot)
     idx = pd.Index(fwd["expiry"]).get_indexer(q["expiry"])
-    F = fwd["forward"].to_numpy(float)[idx]
-    D = fwd["discount"].to_numpy(float)[idx]
     r = fwd["rate"].to_numpy(float)[idx]
     carry = fwd["carry"].to_numpy(float)[idx]
-    K = q["strike"].to_numpy(float)
-    t = q["t"].to_numpy(float)
-    is_call = q["is_call"].to_numpy(bool)
     american = (q["style"].astype(str).str.lower() == "american").to_numpy() \
         if "style" in q.columns else np.zeros(len(q), bool)
-    prices = np.vstack([q["bid"].to_numpy(float), q["mid"].to_numpy(float),
-                        q["ask"].to_numpy(float)])            # (3, n)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        vols, _ = black_implied_vol_with_status(
-            prices, F[None, :], K[None, :], t[None, :], D[None, :], is_call[None, :])
-    vols = np.where(prices > 0, vols, np.nan)
-    if american.any():
-        sel = np.flatnonzero(american)
-        av, _ = implied_vol_with_status(prices[:, sel], spot, K[sel], t[sel], r[sel],
-                                        carry[sel], is_call[sel], style="american")
-        vols[:, sel] = np.where(prices[:, sel] > 0, av, np.nan)
-    return F, D, r, carry, vols, american
+    vols = iv[["iv_bid", "iv_mid", "iv_ask"]].to_numpy(float).T
+    return (iv["forward"].to_numpy(float), iv["discount"].to_numpy(float), r, carry, vols,
+            american)
 
 
 def _interp_at_forward(k: np.ndarray, v: np.ndarray) -> float:

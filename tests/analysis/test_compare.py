@@ -202,3 +202,52 @@ def test_expiry_not_in_chain_is_one_line_error(demo):
     with pytest.raises(InputError) as info:
         demo.strike_frame("2031-01-17")
     assert "not an expiry" in str(info.value) and "\n" not in str(info.value)
+
+
+@pytest.fixture(scope="module")
+def american_chain(tmp_path_factory):
+    """American puts and calls priced by QuantLib (finite differences) at 30 %."""
+    import QuantLib as ql
+    history = pd.read_csv(DEMO / "history.csv")
+    asof = _dt.date.fromisoformat(history["date"].iloc[-1])
+    today = ql.Date(asof.day, asof.month, asof.year)
+    ql.Settings.instance().evaluationDate = today
+    spot, rate, div, vol = 100.0, 0.05, 0.02, 0.30
+    dc = ql.Actual365Fixed()
+    process = ql.BlackScholesMertonProcess(
+        ql.QuoteHandle(ql.SimpleQuote(spot)),
+        ql.YieldTermStructureHandle(ql.FlatForward(today, div, dc, ql.Continuous)),
+        ql.YieldTermStructureHandle(ql.FlatForward(today, rate, dc, ql.Continuous)),
+        ql.BlackVolTermStructureHandle(ql.BlackConstantVol(today, ql.NullCalendar(), vol, dc)))
+    engine = ql.FdBlackScholesVanillaEngine(process, 400, 400)
+    rows = []
+    for days in (61, 182):
+        expiry = asof + _dt.timedelta(days=days)
+        ex = ql.AmericanExercise(today, today + days)
+        for strike in np.arange(80.0, 122.5, 5.0):
+            for kind, flag in ((ql.Option.Call, "C"), (ql.Option.Put, "P")):
+                opt = ql.VanillaOption(ql.PlainVanillaPayoff(kind, float(strike)), ex)
+                opt.setPricingEngine(engine)
+                p = opt.NPV()
+                rows.append({"underlying": "TESTA", "quote_date": asof.isoformat(),
+                             "underlying_price": spot, "expiry": expiry.isoformat(),
+                             "strike": strike, "type": flag, "bid": p - 0.01,
+                             "ask": p + 0.01, "style": "american"})
+    folder = tmp_path_factory.mktemp("american")
+    pd.DataFrame(rows).to_csv(folder / "chain.csv", index=False, float_format="%.12g")
+    history.to_csv(folder / "history.csv", index=False)
+    return folder, rate, div, vol
+
+
+def test_american_chain_uses_american_implied_vols(american_chain):
+    # reference: QuantLib FdBlackScholesVanillaEngine, American exercise, flat 30 %
+    folder, rate, div, vol = american_chain
+    c = compare(folder, rate=rate, div_yield=div, model="garch", dist="normal", n_paths=200)
+    assert c.style == "american"
+    otm = c.strike_frame()
+    otm = otm[np.where(otm["is_call"], otm["moneyness"] >= 1, otm["moneyness"] <= 1)]
+    # tree-based inversion: accurate to about 1e-3 of vol (see the pricing notes)
+    np.testing.assert_allclose(otm["iv_mid"], vol, atol=2e-3)
+    for row in c.expiries:
+        assert row.style == "american"
+        assert row.atm_iv == pytest.approx(vol, abs=2e-3)
