@@ -345,12 +345,15 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     expiry = expiry_col.to_numpy(dtype="datetime64[ns]")
     strike = to_number(col("strike"), decimal_comma=dc) if col("strike") is not None \
         else np.full(n, np.nan)
-    is_call = to_is_call(col("type")).to_numpy(dtype=object) if col("type") is not None \
+    is_call_obj = to_is_call(col("type")).to_numpy(dtype=object) if col("type") is not None \
         else np.full(n, None, dtype=object)
+    # 1 call, 0 put, -1 unreadable
+    call_code = np.where(is_call_obj == True, 1,  # noqa: E712 (object array)
+                         np.where(is_call_obj == False, 0, -1)).astype(np.int8)  # noqa: E712
     miss = {f: missing(f) for f in ("expiry", "strike", "type", "bid", "ask")}
     bad_date = ~miss["expiry"] & np.isnat(expiry)
     bad_strike = ~miss["strike"] & np.isnan(strike)
-    known_type = (is_call == True) | (is_call == False)  # noqa: E712 (object array)
+    known_type = call_code >= 0
     bad_type = ~miss["type"] & ~known_type
     if occ is not None:
         ok = occ["ok"].to_numpy()
@@ -362,7 +365,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         both = ok & ~miss["strike"] & ~bad_strike
         m_k = both & (np.abs(o_k - strike) > 1e-6 * np.maximum(1.0, np.abs(o_k)))
         both = ok & ~miss["type"] & known_type
-        m_c = both & (o_c != (is_call == True))  # noqa: E712
+        m_c = both & (o_c != (call_code == 1))
         mismatch = m_exp | m_k | m_c
         mismatch_detail = _flag_words("symbol disagrees on ", "",
                                       [(m_exp, "expiry"), (m_k, "strike"), (m_c, "type")])
@@ -373,7 +376,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         strike = np.where(fill, o_k, strike)
         miss["strike"] = miss["strike"] & ~ok
         fill = ok & miss["type"]
-        is_call = np.where(fill, o_c, is_call).astype(object)
+        call_code = np.where(fill, o_c.astype(np.int8), call_code).astype(np.int8)
         miss["type"] = miss["type"] & ~ok
     bad_symbol_needed = bad_symbol  # an unreadable OCC symbol is always reported
     for f in ("expiry", "strike", "type"):
@@ -486,11 +489,13 @@ def load_chain(path: str | Path, *, spot: float | None = None,
 
     p["expiry"] = expiry
     p["strike"] = strike
+    is_call = call_code == 1
     p["is_call"] = is_call
     p["bid"] = bid
     p["ask"] = ask
     p["multiplier"] = mult
-    p["american"] = row_style == "american"
+    american = row_style == "american"
+    p["american"] = american
     p["calendar_days"] = calendar_days
     for f, m in miss.items():
         p[f"missing_{f}"] = m
@@ -528,7 +533,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
 
     # sorted by expiry, type (puts first), strike, line; numpy takes before the frame
     idx = np.flatnonzero(kept)
-    kc = np.asarray(is_call[idx] == True, dtype=bool)  # noqa: E712
+    kc = is_call[idx]
     order = idx[np.lexsort((line[idx], strike[idx], kc, expiry[idx]))]
     pos_in_kept = np.empty(n, dtype=np.int64)
     pos_in_kept[idx] = np.arange(idx.size)
@@ -537,12 +542,12 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     quotes = pd.DataFrame({
         "expiry": expiry[order].astype("datetime64[ns]"),
         "strike": strike[order].astype(float),
-        "is_call": np.asarray(is_call[order] == True, dtype=bool),  # noqa: E712
+        "is_call": is_call[order],
         "bid": bid[order], "ask": ask[order], "mid": mid[order],
         "last": opt["last"][order], "volume": opt["volume"][order],
         "open_interest": opt["open_interest"][order],
         "style": pd.Categorical.from_codes(
-            (row_style[order] == "american").astype(np.int8), categories=STYLES),
+            american[order].astype(np.int8), categories=STYLES),
         "multiplier": mult[order].astype(float),
         "t": calendar_days[order] / 365.0,
         "calendar_days": calendar_days[order].astype(np.int64),

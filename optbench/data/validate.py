@@ -105,13 +105,14 @@ def assign_reasons(p, *, spot: float, rate: float, div_yield: float,
     Parameters
     ----------
     p : mapping of str -> ndarray
-        Parsed rows (one array per field, all the same length): ``expiry`` (datetime64), ``strike``, ``bid``,
-        ``ask``, ``multiplier`` (float, NaN where unreadable), ``is_call`` (object:
-        True/False/None), ``american`` (bool), ``calendar_days`` (float), the
-        boolean masks ``missing_<field>``, ``bad_symbol``, ``bad_date``,
-        ``bad_number``, ``bad_type``, ``bad_style``, ``symbol_mismatch``,
-        ``other_underlying``, ``other_quote_date``, the detail texts
-        ``bad_number_detail`` and ``symbol_mismatch_detail``, and ``line``.
+        Parsed rows (one array per field, all the same length): ``expiry``
+        (datetime64), ``strike``, ``bid``, ``ask``, ``multiplier`` (float, NaN where
+        unreadable), ``is_call`` (bool; meaningless where ``bad_type``),
+        ``american`` (bool), ``calendar_days`` (float), ``line`` (int), the boolean
+        masks ``missing_<field>``, ``bad_symbol``, ``bad_date``, ``bad_number``,
+        ``bad_type``, ``bad_style``, ``symbol_mismatch``, ``other_underlying``,
+        ``other_quote_date``, and the detail texts ``bad_number_detail`` and
+        ``symbol_mismatch_detail``.
     spot, rate, div_yield : float
         Spot (price units), continuously compounded rate and yield (decimals).
     max_spread : float or None
@@ -147,7 +148,7 @@ def assign_reasons(p, *, spot: float, rate: float, div_yield: float,
     a.apply("no_bid", bid == 0, lambda s: "bid 0, ask " + _g(ask[s]))
 
     live = a.open.copy()
-    is_call = np.asarray(p["is_call"], dtype=object) == True  # noqa: E712
+    is_call = np.asarray(p["is_call"], dtype=bool)
     if live.any():
         keys = pd.DataFrame({"expiry": np.asarray(p["expiry"])[live], "strike": strike[live],
                              "is_call": is_call[live], "multiplier": mult[live]})
