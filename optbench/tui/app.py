@@ -105,6 +105,7 @@ class Workbench(App):
         self._token = 0
         self.last_export: Path | None = None
         self.last_compute_seconds: float | None = None
+        #: the current run has ended: comparison shown and its model check done (or failed)
         self.checked = False
 
     # ----------------------------------------------------------------- set-up
@@ -122,6 +123,7 @@ class Workbench(App):
     def start_compute(self) -> None:
         self._token += 1
         self.error = None
+        self.checked = False
         bar = self.screen_stack[0].query_one("#progress", ProgressBar)
         bar.update(total=STEPS, progress=0)
         self._status(f"opening {self.inputs.label} …")
@@ -219,6 +221,7 @@ class Workbench(App):
         if msg.token != self._token:
             return
         if self.comparison is not None and msg.stage == "check":
+            self.checked = True  # the run is over, without its out-of-sample check
             self.notify(msg.error, title="Out-of-sample check failed", severity="warning")
             self._status(f"out-of-sample check failed: {msg.error}")
             return

@@ -23,9 +23,15 @@ def run(coro) -> None:
     asyncio.run(coro)
 
 
-async def settle(app, pilot) -> None:
-    """Wait for every worker (compute, hedge, export) and for the screen to refresh."""
+async def settle(app, pilot, timeout: float = 180.0) -> None:
+    """Wait until the run has ended (checked out of sample, or failed), then for every
+    other worker (hedge, export) and for the screen to refresh."""
+    import time
+
     from textual.worker import WorkerCancelled
+    deadline = time.monotonic() + timeout
+    while not (app.checked or app.error) and time.monotonic() < deadline:
+        await pilot.pause(0.05)
     for _ in range(4):
         try:
             await app.workers.wait_for_complete()

@@ -9,8 +9,18 @@ from textual.widgets import Static
 from optbench.tui.widgets.table import SortableTable
 
 
+def short_path(source: str) -> str:
+    """The source relative to the working folder when it is inside it, else as given."""
+    from pathlib import Path
+    path = Path(source)
+    try:
+        return str(path.resolve().relative_to(Path.cwd().resolve()))
+    except ValueError:
+        return str(path)
+
+
 def quality_summary(quality: dict, source: str) -> Table:
-    t = Table(title=f"Ingestion report — {source}", title_justify="left", header_style="bold",
+    t = Table(title=f"Ingestion report — {short_path(source)}", title_justify="left", header_style="bold",
               expand=False, min_width=60)
     t.add_column("Rows")
     t.add_column("Count", justify="right")

@@ -1,0 +1,36 @@
+"""Save an SVG screenshot of each workbench view on the demo into docs/screenshots/.
+
+    .venv/bin/python tests/tui/make_screenshots.py
+
+Not a test (pytest collects test_*.py only); run it after changing the screens.
+"""
+from __future__ import annotations
+
+import asyncio
+from pathlib import Path
+
+from optbench.tui.app import make_app
+from optbench.tui.screens.workbench import VIEWS
+
+from tui_helpers import ROOT, SIZE, settle
+
+OUT = ROOT / "docs" / "screenshots"
+
+
+async def main() -> None:
+    OUT.mkdir(parents=True, exist_ok=True)
+    app = make_app()
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(app, pilot)
+        for view_id, key, title in VIEWS:
+            await pilot.press(key)
+            await pilot.pause(0.2)
+            path = app.save_screenshot(filename=f"{view_id}.svg", path=str(OUT))
+            print(f"{title}: {Path(path).relative_to(ROOT)}")
+        await pilot.press("question_mark")
+        await pilot.pause(0.2)
+        print("Help:", Path(app.save_screenshot(filename="help.svg", path=str(OUT))).relative_to(ROOT))
+
+
+if __name__ == "__main__":
+    asyncio.run(main())
