@@ -215,6 +215,10 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     say("loading the chain and the history")
     ch, hist, holidays, source = _load(chain, history, overrides)
     warnings: list[str] = list(getattr(ch, "notes", ()))
+    for name, flag in (("rate", "--rate"), ("div_yield", "--div-yield")):
+        if getattr(ch, f"{name}_source", "") == "default":
+            warnings.append(f"no {name.replace('_', ' ')} in the chain or meta.toml: 0 used "
+                            f"where parity cannot tell (give {flag})")
     q = ch.quotes
     if not len(q):
         raise InputError(ch.source, "no usable quotes in the chain")

@@ -604,6 +604,22 @@ class HedgeEstimate:
     def scenario_frame(self) -> pd.DataFrame:
         return pd.DataFrame(list(self.scenarios))
 
+    def pnl_at(self, moves) -> tuple[np.ndarray, np.ndarray]:
+        """Portfolio P&L at expiry (unhedged, hedged) for underlying moves (decimals).
+
+        The scenario table's rule on any grid of moves: unhedged ``V * beta * move``;
+        hedged adds the legs' payoff at ``spot * (1 + move)`` less the premium paid.
+        """
+        moves = np.asarray(moves, dtype=float)
+        level = self.spot * (1.0 + moves)
+        k = np.array([leg.strike for leg in self.legs])
+        c = np.array([leg.type == "C" for leg in self.legs])
+        q = np.array([leg.quantity for leg in self.legs], float) * self.multiplier
+        intrinsic = np.where(c, level[..., None] - k, k - level[..., None])
+        payoff = (np.maximum(intrinsic, 0.0) * q).sum(axis=-1)
+        unhedged = self.request.portfolio_value * self.request.beta * moves
+        return unhedged, unhedged + payoff - self.premium_paid
+
     def leg_frame(self) -> pd.DataFrame:
         return pd.DataFrame([leg.to_dict() for leg in self.legs])
 

@@ -15,6 +15,7 @@ import csv as _csv
 import datetime as _dt
 import io
 import math
+import re
 from collections.abc import Iterable, Sequence
 from typing import Any
 
@@ -22,6 +23,7 @@ import numpy as np
 import pandas as pd
 
 _TRIGGERS = ("=", "+", "-", "@", "\t", "\r")
+_NEGATIVE_NUMBER = re.compile(r"-(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?")
 
 
 def neutralise(value: Any) -> Any:
@@ -29,12 +31,8 @@ def neutralise(value: Any) -> Any:
     if not isinstance(value, str):
         return value
     if value and value[0] in _TRIGGERS:
-        if value[0] == "-" and len(value) > 1 and (value[1].isdigit() or value[1] == "."):
-            try:
-                float(value)
-                return value
-            except ValueError:
-                pass
+        if _NEGATIVE_NUMBER.fullmatch(value):
+            return value
         return "'" + value
     return value
 

@@ -12,6 +12,9 @@ Figures of a comparison:
 3. the price history with the model's ±3-sigma one-day bands
    (``close[t-1] * exp(mu ± 3 sigma[t])``), and the daily returns against ±3 sigma
    with the out-of-sample surprises marked.
+
+A hedge report has one figure: the portfolio's P&L at expiry with and without the
+hedge across underlying moves, with the scenario table's points.
 """
 from __future__ import annotations
 
@@ -155,6 +158,27 @@ def figure_history(comparison) -> str | None:
     return _png(fig)
 
 
+def figure_hedge(estimate) -> str:
+    """Portfolio P&L at expiry with and without the hedge, by underlying move (PNG)."""
+    plt = _plt()
+    moves = np.linspace(-0.35, 0.15, 201)
+    unhedged, hedged = estimate.pnl_at(moves)
+    fig, ax = plt.subplots(figsize=(7, 4))
+    ax.plot(moves * 100, unhedged, label="unhedged")
+    ax.plot(moves * 100, hedged, label="hedged")
+    sc = estimate.scenarios
+    ax.plot([s["move"] * 100 for s in sc], [s["hedged"] for s in sc], "o", ms=4,
+            label="scenario table")
+    ax.axhline(0, lw=0.6, color="0.4")
+    ax.set_xlabel("underlying move to expiry, %")
+    ax.set_ylabel("portfolio P&L")
+    ax.set_title(f"{estimate.underlying} {estimate.structure.replace('_', ' ')}, "
+                 f"expiry {estimate.expiry.isoformat()}")
+    ax.grid(alpha=0.3)
+    ax.legend(fontsize=8)
+    return _png(fig)
+
+
 def _table(records, columns) -> str:
     head = "".join(f'<th class="{"t" if KINDS.get(c) in ("text", "date") else ""}">'
                    f"{_html.escape(LABELS.get(c, c))}</th>" for c in columns)
@@ -223,6 +247,7 @@ def hedge_html(estimate) -> str:
                                      [f for f, _, _ in LEG_FIELDS]),
              "<h2>Portfolio P&amp;L at expiry</h2>",
              _table(list(h.scenarios), [f for f, _, _ in SCENARIO_FIELDS]),
+             f'<img alt="P&amp;L at expiry" src="{figure_hedge(h)}">',
              f"<p>Roll cost: {e(h.roll_method)}.</p>"]
     if h.collar_note:
         parts.append(f"<p>Collar: {e(h.collar_note)}.</p>")

@@ -141,3 +141,12 @@ def test_to_dict_has_the_design_keys(comparison):
                 "caution", "prob_payoff", "breakeven", "annual_roll_cost"):
         assert key in d
     assert {"move", "unhedged", "hedged"} <= set(d["scenarios"][0])
+
+
+def test_pnl_curve_goes_through_the_scenario_table(comparison):
+    est = hedge_from_comparison(comparison, HedgeRequest(V, beta=0.8, structure="collar",
+                                                         days=175), n_paths=500, seed=2)
+    moves = np.array([s["move"] for s in est.scenarios])
+    unhedged, hedged = est.pnl_at(moves)
+    np.testing.assert_allclose(hedged, [s["hedged"] for s in est.scenarios])
+    np.testing.assert_allclose(unhedged, [s["unhedged"] for s in est.scenarios])
