@@ -253,7 +253,7 @@ def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray,
                 obj_q = float(e_q @ e_q)
                 if obj_q < obj:
                     improved = True
-                    done = obj - obj_q <= 1e-14 * max(obj, 1e-300) or np.all(
+                    done = obj - obj_q <= 1e-10 * max(obj, 1e-300) or np.all(
                         np.abs(step) <= 1e-13 * (1.0 + np.abs(p)))
                     p, e, x, R, obj = q, e_q, x_q, R_q, obj_q
                     lam = max(lam / 3.0, 1e-12)
