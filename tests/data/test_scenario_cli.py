@@ -153,3 +153,40 @@ def test_cli_check_json_table_and_csv(tmp_path):
 
     out = _cli(str(folder))
     assert out.returncode == 0 and f"used {chain.quality.rows_used}" in out.stdout
+
+
+def test_corrupt_parquet_is_one_line(tmp_path):
+    path = tmp_path / "chain.parquet"
+    path.write_bytes(b"PAR1" + b"not really parquet" * 10)
+    with pytest.raises(InputError, match="cannot read as Parquet"):
+        load_chain(path)
+
+
+def test_non_occ_symbols_are_kept_not_read(tmp_path):
+    path = tmp_path / "c.csv"
+    path.write_text("quote_date,underlying_price,expiry,strike,type,bid,ask,symbol\n"
+                    "2026-11-27,100,2027-01-15,100,C,4.0,4.2,ZPHX-15JAN27-100-C\n"
+                    "2026-11-27,100,2027-01-15,100,P,3.9,4.1,ZPHX-15JAN27-100-P\n")
+    chain = load_chain(path)
+    assert chain.quality.rows_used == 2
+    assert any("not in OCC form" in n for n in chain.notes)
+
+
+def test_wide_line_with_one_side_empty(tmp_path):
+    path = tmp_path / "w.csv"
+    path.write_text("quote_date,underlying_price,expiry,Call Bid,Call Ask,Strike,Put Bid,Put Ask\n"
+                    "2026-11-27,100,2027-01-15,4.0,4.2,100,3.9,4.1\n"
+                    "2026-11-27,100,2027-01-15,1.0,1.2,110,,\n")
+    chain = load_chain(path)
+    assert chain.layout == "wide" and chain.quality.rows_in == 4
+    rej = chain.rejected.iloc[0]
+    assert (rej["line"], rej["reason"], rej["side"]) == (3, "missing_field", "put")
+
+
+def test_all_rejected_chain_is_not_an_error(tmp_path):
+    path = tmp_path / "c.csv"
+    path.write_text("quote_date,underlying_price,expiry,strike,type,bid,ask\n"
+                    "2026-11-27,100,2026-11-20,100,C,4.0,4.2\n")
+    chain = load_chain(path)
+    assert chain.quality.rows_used == 0 and chain.quality.rejected == {"expired": 1}
+    assert chain.quotes.empty and chain.expiries == []
