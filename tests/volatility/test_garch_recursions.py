@@ -82,3 +82,14 @@ def test_densities_against_scipy():
     fd_s2 = (std_t_loglik(e, s2 * (1 + h), nu) - std_t_loglik(e, s2 * (1 - h), nu)) / (2 * h * s2)
     np.testing.assert_allclose(d_s2, fd_s2, rtol=1e-5)
     assert math.isfinite(float(d_e.sum()))
+
+
+@pytest.mark.parametrize("b", [0.0, 0.3, 0.6, 0.75, 0.94, 0.999])
+def test_filter_paths_equal_loop_for_all_coefficients(b):
+    """Both solvers (Toeplitz blocks; scaled cumulative sums for 0.6 <= b < 1),
+    signed inputs, against the plain loop."""
+    rng = np.random.default_rng(7)
+    u = rng.standard_normal(4999)
+    ref = linear_filter_loop(u, b, 0.7)
+    np.testing.assert_allclose(linear_filter(u, b, 0.7), ref, rtol=0,
+                               atol=1e-13 * np.max(np.abs(ref)))
