@@ -13,6 +13,7 @@ from scipy.optimize import least_squares
 
 from vollib.black_scholes_merton import black_scholes_merton as vl_price
 from vollib.black_scholes_merton.greeks.analytical import delta as vl_delta
+from vollib.black_scholes_merton.greeks.analytical import vega as vl_vega
 from vollib.black_scholes_merton.implied_volatility import implied_volatility as vl_iv
 
 from optbench.analysis.smile import MONEYNESS, SviFit, fit_svi, smile_points
@@ -100,7 +101,8 @@ def test_flat_vol_chain_priced_by_vollib_gives_flat_smile_points():
     K = np.linspace(70, 135, 27)
     iv = np.array([vl_iv(vl_price("p" if x < F else "c", S, x, t, r, vol, q), S, x, t, r,
                          q, "p" if x < F else "c") for x in K])
-    vega_w = np.exp(-0.5 * (np.log(K / F) / (vol * np.sqrt(t))) ** 2)
+    # vega-weighted, with vollib's analytical BSM vega as the weights
+    vega_w = np.array([vl_vega("c", S, x, t, r, vol, q) for x in K])
     fit = fit_svi(np.log(K / F), iv ** 2 * t, vega_w, t=t)
     pts = smile_points(fit, F, t, r, q, S)
     np.testing.assert_allclose(pts.iv_moneyness, vol, atol=1e-9)
@@ -184,3 +186,20 @@ def test_property_fit_reproduces_any_svi_smile(a, b, rho, m, sigma):
     np.testing.assert_allclose(fit.total_variance(k), w, atol=1e-7)
     assert fit.b >= 0 and abs(fit.rho) <= 1 and fit.sigma > 0
     assert fit.min_total_variance >= -1e-15
+
+
+@settings(max_examples=20, deadline=None)
+@given(rho=st.floats(-0.9, 0.3), b=st.floats(0.05, 0.3), t=st.floats(0.05, 2.0),
+       r=st.floats(0.0, 0.06), q=st.floats(0.0, 0.04))
+def test_property_25_delta_strikes_have_delta_025_by_vollib(rho, b, t, r, q):
+    # vollib's analytical spot delta, at the solved strike with the smile's vol there,
+    # is -0.25 / +0.25 for any smile (here SVI with total variance scaled by t).
+    S = 100.0
+    F = S * np.exp((r - q) * t)
+    k = np.linspace(-1.0, 0.6, 25)
+    fit = fit_svi(k, t * svi_w(k, 0.02, b, rho, 0.0, 0.2), t=t)
+    pts = smile_points(fit, F, t, r, q, S)
+    assert vl_delta("p", S, pts.strike_25d_put, t, r, pts.iv_25d_put, q) == pytest.approx(
+        -0.25, abs=1e-8)
+    assert vl_delta("c", S, pts.strike_25d_call, t, r, pts.iv_25d_call, q) == pytest.approx(
+        0.25, abs=1e-8)
