@@ -294,8 +294,13 @@ def calendar_arbitrage(t, k, w, *, w_tol=None, abs_tol: float = 1e-12) -> Arbitr
     compared with the next listed expiry only, within that expiry's quoted range of
     :math:`k` (no extrapolation). The loop runs over expiries, not over quotes.
     """
-    t = np.asarray(t, dtype=float).ravel()
+    try:
+        t = np.asarray(t, dtype=float).ravel()
+    except (TypeError, ValueError):
+        raise InputError("arbitrage", "times to expiry must be numbers")
     n = t.size
+    if np.any(t[np.isfinite(t)] < 0):
+        raise InputError("arbitrage", "times to expiry must not be negative")
     k = _floats("log-moneyness", k, n)
     w = _floats("total variance", w, n)
     tol = np.zeros(n) if w_tol is None else np.where(

@@ -140,6 +140,13 @@ def test_bad_input_is_a_clear_error():
     with pytest.raises(InputError, match="arbitrage"):
         strike_arbitrage(1.0, [90, 100], [1.0, 2.0], True, forward=-1, discount=1)
     assert len(strike_arbitrage(1.0, [], [], True, forward=100, discount=1)) == 0
+    with pytest.raises(InputError, match="arbitrage"):
+        calendar_arbitrage(["a", "b"], [0.0, 0.0], [0.01, 0.02])
+    with pytest.raises(InputError, match="arbitrage"):
+        calendar_arbitrage([-0.1, 0.2], [0.0, 0.0], [0.01, 0.02])
+    with pytest.raises(InputError, match="arbitrage"):
+        calendar_arbitrage([0.1, 0.2], [0.0, 0.0, 0.1], [0.01, 0.02])
+    assert len(calendar_arbitrage([], [], [])) == 0
 
 
 @settings(max_examples=30, deadline=None)
