@@ -106,6 +106,29 @@ class SviFit:
         with np.errstate(invalid="ignore"):
             return np.sqrt(np.where(w >= 0, w, np.nan) / self.t)
 
+    def density_g(self, k: np.ndarray | float) -> np.ndarray:
+        """Durrleman's butterfly function g(k) of the fitted smile; the smile has no
+        butterfly arbitrage where g(k) >= 0.
+
+        Notes
+        -----
+        :math:`g(k) = \\bigl(1 - \\frac{k w'}{2w}\\bigr)^2
+        - \\frac{w'^2}{4}\\bigl(\\frac1w + \\frac14\\bigr) + \\frac{w''}{2}`, with, for raw
+        SVI, :math:`w' = b(\\rho + x/R)`, :math:`w'' = b\\sigma^2/R^3`,
+        :math:`x = k - m`, :math:`R = \\sqrt{x^2 + \\sigma^2}`. The risk-neutral density
+        of :math:`k` is :math:`g(k)\\,e^{-d_2^2/2}/\\sqrt{2\\pi w}` with
+        :math:`d_2 = -k/\\sqrt w - \\sqrt w/2` (Gatheral & Jacquier 2014, Lemma 2.2;
+        Breeden & Litzenberger 1978).
+        """
+        k = np.asarray(k, dtype=float)
+        x = k - self.m
+        R = np.sqrt(x * x + self.sigma ** 2)
+        w = self.a + self.b * (self.rho * x + R)
+        w1 = self.b * (self.rho + x / R)
+        w2 = self.b * self.sigma ** 2 / R ** 3
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return (1 - k * w1 / (2 * w)) ** 2 - w1 * w1 / 4 * (1 / w + 0.25) + w2 / 2
+
     @property
     def min_total_variance(self) -> float:
         """Smallest total variance of the smile, ``a + b*sigma*sqrt(1 - rho**2)``."""

@@ -203,3 +203,26 @@ def test_property_25_delta_strikes_have_delta_025_by_vollib(rho, b, t, r, q):
         -0.25, abs=1e-8)
     assert vl_delta("c", S, pts.strike_25d_call, t, r, pts.iv_25d_call, q) == pytest.approx(
         0.25, abs=1e-8)
+
+
+def test_durrleman_g_matches_breeden_litzenberger_on_vollib_prices():
+    # Breeden & Litzenberger (1978): d2C/dK2 = D * density(K). Prices are vollib's
+    # Black-76 prices at the smile's vols; the density from g(k) (Gatheral & Jacquier
+    # 2014, Lemma 2.2) must match their second difference in strike, sign included.
+    from vollib.black import black as vl_black
+    t, F = 1.0, 100.0
+    fit = SviFit(*GJ_2014, t=t, rmse_iv=0.0, n_points=0, converged=True, message="")
+    K = np.linspace(40.0, 300.0, 27)
+    h = 0.05
+    def call(x):
+        return vl_black("c", F, x, t, 0.0, float(fit.iv(np.log(x / F))))
+    d2c = np.array([(call(x + h) - 2 * call(x) + call(x - h)) / h ** 2 for x in K])
+    k = np.log(K / F)
+    w = fit.total_variance(k)
+    d2 = -k / np.sqrt(w) - np.sqrt(w) / 2
+    density_k = fit.density_g(k) * np.exp(-d2 ** 2 / 2) / np.sqrt(2 * np.pi * w)
+    np.testing.assert_allclose(d2c, density_k / K, rtol=2e-3, atol=1e-7)
+    # this parameter set is the one Gatheral & Jacquier (2014) use to show butterfly
+    # arbitrage in a raw SVI smile (from memory): g < 0 somewhere on the right wing
+    assert fit.density_g(np.linspace(0.0, 1.5, 151)).min() < 0
+    assert fit.density_g(np.linspace(-1.5, 0.0, 151)).min() > 0
