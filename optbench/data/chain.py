@@ -21,8 +21,8 @@ import pandas as pd
 from optbench.data.columns import SIDE_FIELDS, map_chain_columns, side_of
 from optbench.data.files import RawTable, drop_blank_rows, read_table
 from optbench.data.occ import parse_occ
-from optbench.data.parse import (percent_or_decimal, present, style_word, to_date,
-                                 to_is_call, to_number, to_style)
+from optbench.data.parse import (call_codes, percent_or_decimal, present, style_word, to_date,
+                                 to_number, to_style)
 from optbench.data.validate import REASONS, WARNINGS, assign_reasons, quote_warnings
 from optbench.errors import InputError
 
@@ -345,11 +345,9 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     expiry = expiry_col.to_numpy(dtype="datetime64[ns]")
     strike = to_number(col("strike"), decimal_comma=dc) if col("strike") is not None \
         else np.full(n, np.nan)
-    is_call_obj = to_is_call(col("type")).to_numpy(dtype=object) if col("type") is not None \
-        else np.full(n, None, dtype=object)
-    # 1 call, 0 put, -1 unreadable
-    call_code = np.where(is_call_obj == True, 1,  # noqa: E712 (object array)
-                         np.where(is_call_obj == False, 0, -1)).astype(np.int8)  # noqa: E712
+    # 1 call, 0 put, -1 empty or unreadable
+    call_code = call_codes(col("type")) if col("type") is not None \
+        else np.full(n, -1, dtype=np.int8)
     miss = {f: missing(f) for f in ("expiry", "strike", "type", "bid", "ask")}
     bad_date = ~miss["expiry"] & np.isnat(expiry)
     bad_strike = ~miss["strike"] & np.isnan(strike)

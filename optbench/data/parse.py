@@ -137,6 +137,16 @@ def _vocab(col: pd.Series, words: dict) -> pd.Series:
     return pd.Series(out, index=col.index, dtype=object)
 
 
+def call_codes(col: pd.Series) -> np.ndarray:
+    """Option type as int8 codes: 1 call, 0 put, -1 empty or unreadable."""
+    codes, uniques = pd.factorize(col, use_na_sentinel=True)
+    keys = pd.Series(uniques, dtype=object).astype("string").str.strip().str.lower()
+    table = np.array([{True: 1, False: 0}.get(_TYPE_WORDS.get(k) if isinstance(k, str)
+                                               else None, -1) for k in keys] + [-1],
+                     dtype=np.int8)
+    return table[codes]  # code -1 (missing) picks the trailing -1
+
+
 def to_is_call(col: pd.Series) -> pd.Series:
     """``C``/``P``, ``call``/``put`` (any case) -> True/False; None where unreadable."""
     return _vocab(col, _TYPE_WORDS)

@@ -54,13 +54,19 @@ def make_chain(path: Path, n: int = 100_000, seed: int = 2026) -> None:
     frame.to_csv(path, index=False)
 
 
-def _median(fn, runs: int) -> float:
-    times = []
+def _median(fn, runs: int) -> tuple[float, float]:
+    """Median wall-clock and median CPU (process) seconds of ``fn()``.
+
+    The CPU figure is the one to read on a shared, busy machine: wall-clock time
+    there includes waiting for a core.
+    """
+    wall, cpu = [], []
     for _ in range(runs):
-        t0 = time.perf_counter()
+        t0, c0 = time.perf_counter(), time.process_time()
         fn()
-        times.append(time.perf_counter() - t0)
-    return statistics.median(times)
+        wall.append(time.perf_counter() - t0)
+        cpu.append(time.process_time() - c0)
+    return statistics.median(wall), statistics.median(cpu)
 
 
 def main(runs: int = 7) -> None:
@@ -73,10 +79,12 @@ def main(runs: int = 7) -> None:
         q = chain.quality
         print(f"chain CSV: {q.rows_in:,} rows, {path.stat().st_size / 1e6:.1f} MB; "
               f"used {q.rows_used:,}, rejected {dict(q.rejected)}")
-        print(f"pandas.read_csv alone      : {1000 * bare:8.1f} ms (median of {runs})")
-        print(f"optbench load_chain        : {1000 * ours:8.1f} ms (median of {runs})")
-        print(f"ratio load_chain / read_csv: {ours / bare:8.1f}x")
-        print(f"target <= 250 ms           : {'met' if ours <= 0.25 else 'NOT met'}")
+        print(f"medians of {runs} runs          wall ms    CPU ms")
+        print(f"pandas.read_csv alone       {1000 * bare[0]:8.1f}  {1000 * bare[1]:8.1f}")
+        print(f"optbench load_chain         {1000 * ours[0]:8.1f}  {1000 * ours[1]:8.1f}")
+        print(f"ratio load_chain / read_csv {ours[0] / bare[0]:8.1f}x {ours[1] / bare[1]:8.1f}x")
+        print(f"target <= 250 ms: wall {'met' if ours[0] <= 0.25 else 'NOT met'}, "
+              f"CPU {'met' if ours[1] <= 0.25 else 'NOT met'}")
     sys.stdout.flush()
 
 
