@@ -328,7 +328,7 @@ def hedge_from_comparison(comparison, request: HedgeRequest, *, n_paths: int = 2
 
     cost_pct = premium_paid / V
     model = {"name": comparison.model.name, "dist": comparison.model.dist,
-             "measure": "physical (fitted on the price history), not risk-neutral"}
+             "measure": "physical measure fitted on the price history, not risk-neutral"}
     return HedgeEstimate(
         request=request, underlying=comparison.underlying, asof=comparison.asof,
         spot=spot, rate=rate, div_yield=q, expiry=row.expiry,
