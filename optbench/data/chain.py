@@ -475,6 +475,10 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     q_v, q_source = _resolve_number(
         "div_yield", div_yield, to_number(col("div_yield"))
         if col("div_yield") is not None else None, meta, 0.0, notes, path)
+    for name, source in (("rate", rate_source), ("div_yield", q_source)):
+        if source == "default":
+            notes.append(f"no {name.replace('_', ' ')} given (caller, file or meta.toml): "
+                         "0.0 is used")
     for name, v in (("rate", rate_v), ("div_yield", q_v)):
         if not np.isfinite(v) or abs(v) > 1.0:
             raise InputError("--" + name.replace("_", "-"),
