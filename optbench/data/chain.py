@@ -405,7 +405,13 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         mult = np.full(n, float(multiplier))
         bad_mult = np.zeros(n, bool)
     else:
-        default_mult = float(meta.get("multiplier", DEFAULT_MULTIPLIER))
+        try:
+            default_mult = float(meta.get("multiplier", DEFAULT_MULTIPLIER))
+        except (TypeError, ValueError):
+            raise InputError("meta.toml", f"multiplier {meta.get('multiplier')!r} is not a "
+                             "number") from None
+        if not np.isfinite(default_mult) or default_mult <= 0:
+            raise InputError("meta.toml", f"multiplier must be positive, not {default_mult:g}")
         if col("multiplier") is not None:
             mult = to_number(col("multiplier"), decimal_comma=dc)
             has = present(col("multiplier"))
