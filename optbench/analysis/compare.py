@@ -170,7 +170,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
             asof: _dt.date | str | None = None, rate: float | None = None,
             div_yield: float | None = None, band: tuple[float, float] = DEFAULT_BAND,
             n_paths: int = DEFAULT_N_PATHS, seed: int | None = DEFAULT_SEED,
-            backtest: bool | _dt.date | str = False,
+            backtest: bool | _dt.date | str = False, fit=None,
             progress: Callable[[str], None] | None = None) -> Comparison:
     """Compare the chain's implied vols with the fitted model's forecast.
 
@@ -186,6 +186,9 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     n_paths, seed : simulation behind ``prob_realized_above_iv`` and the hedge.
     backtest : False (default), True (out-of-sample check over the last 252 returns)
         or a split date; adds the backtest summary (and its surprises) to the result.
+    fit : a fitted or fixed-parameter model (``GarchFit`` from ``fit_garch`` or
+        ``fix_garch`` on this history's returns) to use instead of fitting one; then
+        ``model``, ``dist`` and ``mean`` are not used.
     progress : called with a short text before each long step (for views).
 
     Returns
@@ -244,8 +247,12 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
                            ask=q["ask"].to_numpy(float))
 
     # --- model fit and forecasts on the trading-day calendar
-    say(f"fitting the {model} volatility model")
-    fit = fit_garch(hist.returns, model=model, dist=dist, mean=mean)
+    if fit is None:
+        say(f"fitting the {model} volatility model")
+        fit = fit_garch(hist.returns, model=model, dist=dist, mean=mean)
+    elif len(fit.conditional_vol) != len(hist.returns):
+        raise InputError("fit", f"the model was fitted on {len(fit.conditional_vol)} "
+                                f"returns, the history has {len(hist.returns)}")
     if fit.fallback_reason:
         warnings.append(f"volatility model: {fit.fallback_reason}")
     exp_dates = [pd.Timestamp(e).date() for e in fwd["expiry"]]
