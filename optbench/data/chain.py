@@ -296,6 +296,9 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     frame = drop_blank_rows(raw.frame)
     file_lines = raw.line0 + frame.index.to_numpy()
     frame = frame.reset_index(drop=True)
+    if raw.last_line is not None and file_lines.size and file_lines[-1] != raw.last_line:
+        notes.append("some quoted cells span several lines: line numbers count records "
+                     "from the header, not physical lines")
     if frame.shape[1] <= 1:
         _require_columns(path, frame, {})
     colmap = map_chain_columns(frame.columns)
@@ -483,8 +486,8 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         if col("div_yield") is not None else None, meta, 0.0, notes, path)
     for name, source in (("rate", rate_source), ("div_yield", q_source)):
         if source == "default":
-            notes.append(f"no {name.replace('_', ' ')} given (caller, file or meta.toml): "
-                         "0.0 is used")
+            word = {"rate": "risk-free rate", "div_yield": "dividend yield"}[name]
+            notes.append(f"no {word} given (caller, file or meta.toml): 0.0 is used")
     for name, v in (("rate", rate_v), ("div_yield", q_v)):
         if not np.isfinite(v) or abs(v) > 1.0:
             raise InputError("--" + name.replace("_", "-"),

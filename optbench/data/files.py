@@ -26,7 +26,8 @@ class RawTable:
     """A table as read from a file, before any field is interpreted.
 
     ``frame`` row ``i`` came from file line ``line0 + i`` (1-based; Parquet rows
-    are numbered as if a header were line 1). ``decimal_comma`` says numbers in
+    are numbered as if a header were line 1) — unless quoted cells span lines,
+    which shows as a last row whose number differs from ``last_line``. ``decimal_comma`` says numbers in
     text cells use a comma as the decimal mark.
     """
 
@@ -36,6 +37,7 @@ class RawTable:
     delimiter: str | None
     decimal_comma: bool
     kind: str  # "csv" or "parquet"
+    last_line: int | None = None  # last non-blank file line (plain CSV only)
 
 
 def _check_file(path: Path) -> bytes:
@@ -137,8 +139,12 @@ def read_table(path: str | Path, *, header_test=None) -> RawTable:
     except (UnicodeError, ValueError, OSError) as err:
         raise InputError(path, f"cannot read as CSV ({err})") from None
     frame.columns = [str(c).strip() for c in frame.columns]
+    last_line = None
+    if compression is None and encoding != "utf-16":
+        # the number of the last non-blank line, to tell whether rows map to lines
+        last_line = path.read_bytes().rstrip(b"\r\n\t ").count(b"\n") + 1
     return RawTable(path=path, frame=frame, line0=skip + 2, delimiter=delim,
-                    decimal_comma=decimal_comma, kind="csv")
+                    decimal_comma=decimal_comma, kind="csv", last_line=last_line)
 
 
 def _read_csv(path: Path, delim: str, skip: int, encoding: str, compression):

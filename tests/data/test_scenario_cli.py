@@ -190,3 +190,13 @@ def test_all_rejected_chain_is_not_an_error(tmp_path):
     chain = load_chain(path)
     assert chain.quality.rows_used == 0 and chain.quality.rejected == {"expired": 1}
     assert chain.quotes.empty and chain.expiries == []
+
+
+def test_multiline_cells_are_noted(tmp_path):
+    path = tmp_path / "c.csv"
+    path.write_text("quote_date,underlying_price,expiry,strike,type,bid,ask,comment\n"
+                    '2026-11-27,100,2027-01-15,100,C,4.0,4.2,"two\nlines"\n'
+                    "2026-11-27,100,2027-01-15,100,P,3.9,4.1,one\n\n\n")
+    assert any("span several lines" in n for n in load_chain(path).notes)
+    path.write_text(CHAIN_OK + "\n\n")
+    assert not any("span several lines" in n for n in load_chain(path).notes)
