@@ -58,7 +58,6 @@ changes with the vol.
 """
 from __future__ import annotations
 
-import dataclasses
 import datetime as _dt
 import math
 from collections.abc import Callable
@@ -368,7 +367,6 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         say("out-of-sample check")
         bt = _backtest(hist, backtest, model, dist, mean)
 
-    mdict = fit.to_dict()
     summary = ModelSummary(
         name=fit.model, dist=fit.dist, mean=fit.mean, params=dict(fit.params),
         std_errors=dict(fit.std_errors), loglik=float(fit.loglik), aic=float(fit.aic),
@@ -376,7 +374,6 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         persistence=float(fit.persistence),
         half_life_days=_num(fit.half_life_days), long_run_vol=_num(fit.long_run_vol),
         n_obs=int(fit.n_obs), fallback_reason=fit.fallback_reason)
-    del mdict
     history_frame = pd.DataFrame({
         "date": pd.to_datetime(np.asarray(hist.dates[1:], dtype="datetime64[D]")),
         "close": np.asarray(hist.close[1:], float), "ret": np.asarray(hist.returns, float),

@@ -13,7 +13,7 @@ from pathlib import Path
 
 from optbench.commands.common import (add_market_overrides, add_model_options,
                                       add_output_options, market_overrides, parse_date,
-                                      parse_float, write_output)
+                                      write_output)
 from optbench.errors import InputError
 
 FORMATS = ("table", "json", "csv", "xlsx", "md", "html")

@@ -10,10 +10,10 @@ from __future__ import annotations
 import argparse
 import sys
 
-from optbench.commands.common import market_overrides, parse_date, write_output
+from optbench.commands.common import (add_output_options, market_overrides, parse_date,
+                                      write_output)
 from optbench.commands.compare import (FORMATS, add_chain_arguments, chain_source,
                                        check_file_formats, positive_int, progress_printer)
-from optbench.commands.common import add_output_options
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
