@@ -17,7 +17,6 @@ import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.optimize import minimize
 
 from optbench.errors import InputError
 from optbench.volatility import forecast as fc
@@ -27,6 +26,7 @@ from optbench.volatility.recursions import (SQRT_2_OVER_PI, backcast_value,
                                             egarch_adjoint, egarch_log_variance,
                                             garch_variance, linear_filter,
                                             reverse_filter)
+from optbench.volatility.optimize import minimize_box
 from optbench.volatility.specs import EWMA_LAMBDA, get_spec
 
 MIN_RETURNS = 250
@@ -243,6 +243,24 @@ class _Problem:
             m = float(np.mean(self.y))
             b.append((m - 10 * sd, m + 10 * sd))
         return b + self.spec.bounds(var) + self.dist.bounds()
+
+    def feasible(self, theta) -> bool:
+        """The non-box constraints (stationarity; alpha + gamma >= 0 for GJR)."""
+        i, nv = self.i_vol, self.n_vol
+        return bool(np.all(self.spec.constraints(theta[i:i + nv]) >= 0.0))
+
+    def hessian_estimate(self, theta):
+        """Hessian of the objective (minus the mean log-likelihood) by forward
+        differences of its gradient: the optimiser's starting curvature."""
+        k = self.k
+        f0, g0 = self.objective_grad(theta)
+        h = 1e-6 * np.maximum(np.abs(theta), 1e-2)
+        B = np.empty((k, k))
+        for i in range(k):
+            tp = theta.copy()
+            tp[i] += h[i]
+            B[:, i] = (self.objective_grad(tp)[1] - g0) / h[i]
+        return 0.5 * (B + B.T)
 
     def constraint(self):
         spec, i, nv = self.spec, self.i_vol, self.n_vol
@@ -707,9 +725,10 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast):
     x0 = np.clip(x0, [b[0] for b in bounds], [b[1] for b in bounds])
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
-        res = minimize(prob.objective_grad, x0, jac=True, method="SLSQP",
-                       bounds=bounds, constraints=prob.constraint(),
-                       options={"ftol": 1e-12, "maxiter": 300})
+        lo = np.array([b[0] for b in bounds])
+        hi = np.array([b[1] for b in bounds])
+        res = minimize_box(prob.objective_grad, x0, lo, hi, feasible=prob.feasible,
+                           hess0=prob.hessian_estimate(x0))
     theta = np.asarray(res.x, dtype=float)
     problem = None
     if not res.success:
@@ -766,8 +785,9 @@ def fit_garch(returns, model: str = "gjr", dist: str = "t", mean: str = "constan
 
     Notes
     -----
-    Maximises ``sum_t l(e_t; sigma^2_t, nu)`` with SLSQP under the stationarity
-    constraint (persistence <= 1) and positivity bounds. For GARCH and GJR the
+    Maximises ``sum_t l(e_t; sigma^2_t, nu)`` by a projected quasi-Newton method
+    (:func:`optbench.volatility.optimize.minimize_box`) within positivity bounds and
+    the stationarity constraint (persistence <= 1). For GARCH and GJR the
     variance and its derivatives come from one blocked linear filter, giving an
     analytic gradient; EGARCH runs a loop over days with an adjoint (reverse-mode)
     gradient. If the

@@ -9,6 +9,7 @@ average of the first 75 squared residuals).
 """
 from __future__ import annotations
 
+import dataclasses
 import math
 import warnings
 
@@ -180,16 +181,15 @@ def test_result_fields_and_json(pct_returns):
 def test_fallback_is_reported(pct_returns, monkeypatch):
     """A GJR fit that fails falls back to GARCH, and says so."""
     y = pct_returns.to_numpy()[-1500:] / 100
-    real = garch_mod.minimize
+    real = garch_mod.minimize_box
 
-    def failing_for_gjr(fun, x0, **kw):
-        res = real(fun, x0, **kw)
+    def failing_for_gjr(fun, x0, *args, **kw):
+        res = real(fun, x0, *args, **kw)
         if len(x0) == 6:  # mu, omega, alpha, gamma, beta, nu
-            res.success = False
-            res.message = "Iteration limit reached"
+            res = dataclasses.replace(res, success=False, message="iteration limit reached")
         return res
 
-    monkeypatch.setattr(garch_mod, "minimize", failing_for_gjr)
+    monkeypatch.setattr(garch_mod, "minimize_box", failing_for_gjr)
     fit = fit_garch(y, "gjr", "t")
     assert fit.model == "garch" and fit.converged
     assert fit.fallback_reason.startswith("gjr did not converge")
@@ -199,15 +199,13 @@ def test_fallback_is_reported(pct_returns, monkeypatch):
 
 def test_everything_failing_falls_back_to_ewma(pct_returns, monkeypatch):
     y = pct_returns.to_numpy()[-1500:] / 100
-    real = garch_mod.minimize
+    real = garch_mod.minimize_box
 
-    def always_fails(fun, x0, **kw):
-        res = real(fun, x0, **kw)
-        res.success = False
-        res.message = "Positive directional derivative for linesearch"
-        return res
+    def always_fails(fun, x0, *args, **kw):
+        res = real(fun, x0, *args, **kw)
+        return dataclasses.replace(res, success=False, message="line search found no decrease")
 
-    monkeypatch.setattr(garch_mod, "minimize", always_fails)
+    monkeypatch.setattr(garch_mod, "minimize_box", always_fails)
     fit = fit_garch(y, "egarch", "t")
     assert fit.model == "ewma"
     assert fit.fallback_reason.startswith("EWMA lambda=0.94 used:")
