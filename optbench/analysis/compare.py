@@ -246,6 +246,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
                            ask=q["ask"].to_numpy(float))
 
     # --- model fit and forecasts on the trading-day calendar
+    hist = _history_upto(hist, ch.asof, warnings)
     if fit is None:
         say(f"fitting the {model} volatility model")
         fit = fit_garch(hist.returns, model=model, dist=dist, mean=mean)
@@ -393,6 +394,24 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         warnings=tuple(warnings), caution=CAUTION, fit=fit,
         sources={name: getattr(ch, f"{name}_source", "file")
                  for name in ("spot", "asof", "rate", "div_yield")})
+
+
+def _history_upto(hist, asof: _dt.date, warnings: list):
+    """The history's days up to the quote date (no look-ahead past the quotes)."""
+    import dataclasses
+    dates = np.asarray(hist.dates, dtype="datetime64[D]")
+    keep = int(np.searchsorted(dates, np.datetime64(asof, "D"), side="right"))
+    if keep == len(dates):
+        return hist
+    if keep < 2:
+        raise InputError(hist.source, f"no closes on or before the quote date {asof}")
+    warnings.append(f"history closes after the quote date {asof.isoformat()} are not used")
+
+    def cut(x):
+        return None if x is None else np.asarray(x)[:keep]
+    return dataclasses.replace(hist, dates=dates[:keep], close=cut(hist.close),
+                               open=cut(hist.open), high=cut(hist.high), low=cut(hist.low),
+                               returns=np.asarray(hist.returns)[:keep - 1])
 
 
 def _num(x) -> float:

@@ -251,3 +251,16 @@ def test_american_chain_uses_american_implied_vols(american_chain):
     for row in c.expiries:
         assert row.style == "american"
         assert row.atm_iv == pytest.approx(vol, abs=2e-3)
+
+
+def test_history_after_the_quote_date_is_not_used(tmp_path, demo):
+    # no look-ahead: closes after the quote date must not move the forecast
+    import shutil
+    for name in ("chain.csv", "meta.toml"):
+        shutil.copy(DEMO / name, tmp_path / name)
+    text = (DEMO / "history.csv").read_text().rstrip("\n")
+    text += "\n2026-11-30,5210,5230,5190,5600.5\n2026-12-01,5600,5640,5500,5230.1\n"
+    (tmp_path / "history.csv").write_text(text)
+    late = compare(tmp_path, model="gjr", dist="t")
+    assert any("after the quote date" in w for w in late.warnings)
+    assert [r.forecast_vol for r in late.expiries] == [r.forecast_vol for r in demo.expiries]
