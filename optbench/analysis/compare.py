@@ -285,13 +285,11 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     strikes: dict[_dt.date, pd.DataFrame] = {}
     fc_q = fc[expiry_codes]
     with np.errstate(invalid="ignore", divide="ignore"):
-        if american.any():
-            price_fc = bsm_price(S, K, t_q, r_q, carry_q, fc_q, is_call,
-                                 style="american") if american.all() else np.where(
-                american, bsm_price(S, K, t_q, r_q, carry_q, fc_q, is_call, style="american"),
-                black_price(F, K, t_q, D, fc_q, is_call))
-        else:
-            price_fc = black_price(F, K, t_q, D, fc_q, is_call)
+        price_fc = black_price(F, K, t_q, D, fc_q, is_call)
+        if american.any():          # American quotes: the tree, on spot, rate and carry
+            am = np.flatnonzero(american)
+            price_fc[am] = bsm_price(S, K[am], t_q[am], r_q[am], carry_q[am], fc_q[am],
+                                     is_call[am], style="american")
         vega_vol = np.where(np.isfinite(iv_mid), iv_mid, fc_q)
         g = bsm_greeks(S, K, t_q, r_q, carry_q, vega_vol, is_call)
     mid = q["mid"].to_numpy(float)
