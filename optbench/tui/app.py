@@ -55,6 +55,14 @@ class Computed(Message):
         self.seconds = seconds
 
 
+class Headline(Message):
+    """The overview's headline hedge estimate (None when the chain cannot give it)."""
+
+    def __init__(self, token: int, estimate) -> None:
+        super().__init__()
+        self.token, self.estimate = token, estimate
+
+
 class Checked(Message):
     """The out-of-sample check has finished: the comparison with its backtest."""
 
@@ -107,6 +115,7 @@ class Workbench(App):
         self.last_compute_seconds: float | None = None
         #: the current run has ended: comparison shown and its model check done (or failed)
         self.checked = False
+        self.headline_ready = False
 
     # ----------------------------------------------------------------- set-up
     def get_default_screen(self) -> WorkbenchScreen:
@@ -117,7 +126,8 @@ class Workbench(App):
         # the first run starts when the workbench screen has mounted its widgets
 
     def view(self, view_id: str):
-        return self.screen_stack[0].query_one(f"#view-{view_id}")
+        """The view widget (it may still be waiting to mount; it draws when it does)."""
+        return self.screen_stack[0].views[view_id]
 
     # ------------------------------------------------------------------ work
     def start_compute(self) -> None:
@@ -151,12 +161,12 @@ class Workbench(App):
             comparison = session.run_compare(inputs, scenario, progress)
             if worker.is_cancelled:
                 return
-            self.post_message(Progress(token, STEPS - 2, "pricing the headline protection"))
+            self.post_message(Computed(token, comparison, None, time.perf_counter() - started))
+            stage = "headline"
             headline = session.headline_hedge(comparison, inputs.settings)
             if worker.is_cancelled:
                 return
-            self.post_message(Computed(token, comparison, headline,
-                                       time.perf_counter() - started))
+            self.post_message(Headline(token, headline))
             stage = "check"
             checked = session.run_backtest(scenario, comparison)
             if not worker.is_cancelled:
@@ -193,16 +203,25 @@ class Workbench(App):
             return
         self.comparison, self.headline = msg.comparison, msg.headline
         c = msg.comparison
-        self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=STEPS - 1)
+        self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=STEPS - 2)
         self.sub_title = f"{c.underlying} · {c.asof.isoformat()} · spot {c.spot:,.2f}"
         self.last_compute_seconds = msg.seconds
         self.checked = False
         self._status(f"{c.underlying}: {len(c.expiries)} expiries, model {c.model.name}/"
                      f"{c.model.dist} — checking the model out of sample …")
-        self.view("overview").show(c, msg.headline)
+        self.headline_ready = False
+        self.view("overview").show(c, None, True)
         for vid in ("term", "smile", "richcheap", "model", "hedge"):
             self.view(vid).show(c)
         self.view("quality").show(c.quality, c.rejected, c.source)
+
+    @on(Headline)
+    def _headline(self, msg: Headline) -> None:
+        if msg.token != self._token:
+            return
+        self.headline, self.headline_ready = msg.estimate, True
+        self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=STEPS - 1)
+        self.view("overview").show(self.comparison, msg.estimate)
 
     @on(Checked)
     def _checked(self, msg: Checked) -> None:
@@ -213,17 +232,18 @@ class Workbench(App):
         self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=STEPS)
         self._status(f"{c.underlying}: {len(c.expiries)} expiries, model {c.model.name}/"
                      f"{c.model.dist}, checked out of sample — ready")
-        self.view("overview").show(c, self.headline)
+        self.view("overview").show(c, self.headline, not self.headline_ready)
         self.view("model").show(c)
 
     @on(Failed)
     def _failed(self, msg: Failed) -> None:
         if msg.token != self._token:
             return
-        if self.comparison is not None and msg.stage == "check":
-            self.checked = True  # the run is over, without its out-of-sample check
-            self.notify(msg.error, title="Out-of-sample check failed", severity="warning")
-            self._status(f"out-of-sample check failed: {msg.error}")
+        if self.comparison is not None and msg.stage in ("headline", "check"):
+            self.checked = True  # the run is over, without its last steps
+            what = "Headline hedge" if msg.stage == "headline" else "Out-of-sample check"
+            self.notify(msg.error, title=f"{what} failed", severity="warning")
+            self._status(f"{what.lower()} failed: {msg.error}")
             return
         self.error = msg.error
         self._status(f"✗ {msg.error}")

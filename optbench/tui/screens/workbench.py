@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 from textual.app import ComposeResult
+from textual.lazy import Lazy
 from textual.containers import Horizontal
 from textual.screen import Screen
 from textual.widgets import Footer, Header, ProgressBar, Static, TabbedContent, TabPane
@@ -31,7 +32,16 @@ _VIEW_CLASSES = {"overview": OverviewView, "term": TermView, "smile": SmileView,
 
 
 class WorkbenchScreen(Screen):
-    """Holds the views; the app feeds them results."""
+    """Holds the views; the app feeds them results (``views[id].show(...)``).
+
+    Only the overview mounts before the first paint; the other views mount right
+    after it (they draw whatever results they were given meanwhile).
+    """
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.views = {view_id: _VIEW_CLASSES[view_id](id=f"view-{view_id}")
+                      for view_id, _, _ in VIEWS}
 
     def compose(self) -> ComposeResult:
         yield Header(show_clock=False)
@@ -41,7 +51,8 @@ class WorkbenchScreen(Screen):
         with TabbedContent(id="views", initial="overview"):
             for view_id, key, title in VIEWS:
                 with TabPane(f"{key} {title}", id=view_id):
-                    yield _VIEW_CLASSES[view_id](id=f"view-{view_id}")
+                    view = self.views[view_id]
+                    yield view if view_id == "overview" else Lazy(view)
         yield Footer()
 
     def on_mount(self) -> None:

@@ -20,6 +20,7 @@ from textual.worker import get_current_worker
 
 from optbench.errors import InputError
 from optbench.tui import fmt, session
+from optbench.tui.views.base import Deferred
 
 STRUCTURES = (("protective put", "put"), ("put spread", "put_spread"),
               ("collar (sell a call)", "collar"))
@@ -123,7 +124,7 @@ def scenario_table(est) -> Table:
     return t
 
 
-class HedgeView(Horizontal):
+class HedgeView(Deferred, Horizontal):
     """Form on the left, estimate on the right."""
 
     class Ready(Message):
@@ -169,7 +170,7 @@ class HedgeView(Horizontal):
             yield Static("", id="hedge-notes", classes="note")
             yield Static("", id="hedge-caution", classes="caution")
 
-    def show(self, comparison) -> None:
+    def draw(self, comparison) -> None:
         self._comparison = comparison
         select = self.query_one("#hedge-expiry", Select)
         keep = select.value if isinstance(select.value, str) else None

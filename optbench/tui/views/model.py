@@ -10,6 +10,7 @@ from textual.widgets import Static
 
 from optbench.tui import fmt
 from optbench.tui.widgets.plot import BarChart, CellPlot, PlotSpec, Series, to_day_number
+from optbench.tui.views.base import Deferred
 
 
 def params_table(model) -> Table:
@@ -87,7 +88,7 @@ def returns_plot(comparison) -> PlotSpec:
                     extra_legend=extra)
 
 
-class ModelView(Horizontal):
+class ModelView(Deferred, Horizontal):
     def compose(self) -> ComposeResult:
         with VerticalScroll(id="model-left"):
             yield Static("", id="model-params")
@@ -97,7 +98,7 @@ class ModelView(Horizontal):
             yield CellPlot(id="model-returns")
             yield BarChart(id="model-hist")
 
-    def show(self, comparison) -> None:
+    def draw(self, comparison) -> None:
         self.query_one("#model-params", Static).update(params_table(comparison.model))
         bt = comparison.backtest
         self.query_one("#model-counts", Static).update(counts_table(bt))

@@ -8,6 +8,7 @@ from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.widgets import Static
 
 from optbench.tui import fmt
+from optbench.tui.views.base import Deferred
 
 
 def headline_text(comparison, estimate) -> Text:
@@ -92,7 +93,7 @@ def state_text(comparison) -> Text:
     return text
 
 
-class OverviewView(VerticalScroll):
+class OverviewView(Deferred, VerticalScroll):
     """The first screen: the answer in one paragraph, then what it rests on."""
 
     def compose(self) -> ComposeResult:
@@ -101,11 +102,15 @@ class OverviewView(VerticalScroll):
         yield Static("", id="ov-state")
         yield Static("", id="ov-caution", classes="caution")
 
-    def show(self, comparison, estimate) -> None:
-        self.query_one("#ov-headline", Static).update(headline_text(comparison, estimate))
+    def draw(self, comparison, estimate, pending: bool = False) -> None:
+        """``pending``: the headline hedge is still being priced."""
+        self.query_one("#ov-headline", Static).update(
+            Text("Pricing the headline protection (a 3-month put at 90 % of spot) …")
+            if pending else headline_text(comparison, estimate))
         self.query_one("#ov-verdicts", Static).update(verdict_table(comparison))
         self.query_one("#ov-state", Static).update(state_text(comparison))
         self.query_one("#ov-caution", Static).update(f"⚠ {comparison.caution}")
 
     def show_loading(self, message: str) -> None:
-        self.query_one("#ov-headline", Static).update(message)
+        if self._ready:
+            self.query_one("#ov-headline", Static).update(message)

@@ -7,6 +7,7 @@ from textual.containers import Vertical
 from textual.widgets import Static
 
 from optbench.tui.widgets.table import SortableTable
+from optbench.tui.views.base import Deferred
 
 
 def short_path(source: str) -> str:
@@ -33,13 +34,13 @@ def quality_summary(quality: dict, source: str) -> Table:
     return t
 
 
-class QualityView(Vertical):
+class QualityView(Deferred, Vertical):
     def compose(self) -> ComposeResult:
         yield Static("Loading…", id="dq-summary")
         yield Static("Rejected rows (line numbers are the input file's):", classes="section-title")
         yield SortableTable(id="dq-rejected")
 
-    def show(self, quality: dict, rejected, source: str) -> None:
+    def draw(self, quality: dict, rejected, source: str) -> None:
         self.query_one("#dq-summary", Static).update(quality_summary(quality, source))
         table = self.query_one("#dq-rejected", SortableTable)
         if rejected is None or len(rejected) == 0:

@@ -11,6 +11,7 @@ from textual.widgets import DataTable, Static
 
 from optbench.tui import fmt
 from optbench.tui.widgets.table import SortableTable
+from optbench.tui.views.base import Deferred
 
 EXPIRY_COLUMNS = (("expiry", "Expiry"), ("tenor", "Tenor"), ("verdict", "Verdict"),
                   ("atm", "ATM IV %"), ("fc", "Forecast %"), ("band", "Band %"),
@@ -73,7 +74,7 @@ def strike_rows(table):
     return raw, shown
 
 
-class RichCheapView(Vertical):
+class RichCheapView(Deferred, Vertical):
     """Expiries on top (move the cursor to pick one), that expiry's strikes below."""
 
     def __init__(self, **kwargs) -> None:
@@ -87,7 +88,7 @@ class RichCheapView(Vertical):
         yield Static("", id="rc-strike-title", classes="section-title")
         yield SortableTable(id="rc-strikes")
 
-    def show(self, comparison) -> None:
+    def draw(self, comparison) -> None:
         self._comparison = comparison
         lo, hi = comparison.band
         self.query_one("#rc-rule", Static).update(

@@ -11,6 +11,7 @@ from textual.widgets import Label, Select, Static
 
 from optbench.tui import fmt
 from optbench.tui.widgets.plot import CellPlot, PlotSpec, Series
+from optbench.tui.views.base import Deferred
 
 _SVI_KEYS = ("a", "b", "rho", "m", "sigma", "t")
 
@@ -66,7 +67,7 @@ def smile_plot(comparison, row) -> PlotSpec:
                             "parameters)"),)))
 
 
-class SmileView(Vertical):
+class SmileView(Deferred, Vertical):
     BINDINGS = [
         Binding("left_square_bracket", "step(-1)", "Prev expiry", id="smile.prev"),
         Binding("right_square_bracket", "step(1)", "Next expiry", id="smile.next"),
@@ -83,7 +84,7 @@ class SmileView(Vertical):
             yield Static("", id="smile-facts", classes="toolbar-facts")
         yield CellPlot(id="smile-plot")
 
-    def show(self, comparison) -> None:
+    def draw(self, comparison) -> None:
         self._comparison = comparison
         select = self.query_one("#smile-expiry", Select)
         options = [(f"{fmt.date(r.expiry)}  {fmt.tenor(r.calendar_days)}", r.expiry.isoformat())

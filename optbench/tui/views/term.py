@@ -9,6 +9,7 @@ from textual.containers import Vertical
 from optbench.tui import fmt
 from optbench.tui.widgets.plot import CellPlot, PlotSpec, Series
 from optbench.tui.widgets.table import SortableTable
+from optbench.tui.views.base import Deferred
 
 COLUMNS = (("expiry", "Expiry"), ("days", "Days"), ("verdict", "Verdict"), ("tdays", "Tr.days"),
            ("forward", "Forward"), ("atm", "ATM IV"), ("bid", "Bid IV"),
@@ -61,12 +62,12 @@ def term_rows(comparison):
     return raw, shown
 
 
-class TermView(Vertical):
+class TermView(Deferred, Vertical):
     def compose(self) -> ComposeResult:
         yield CellPlot(id="term-plot")
         yield SortableTable(id="term-table")
 
-    def show(self, comparison) -> None:
+    def draw(self, comparison) -> None:
         self.query_one("#term-plot", CellPlot).show(term_plot(comparison))
         raw, shown = term_rows(comparison)
         self.query_one("#term-table", SortableTable).set_rows(

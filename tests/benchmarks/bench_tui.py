@@ -1,0 +1,185 @@
+"""Speed of the terminal workbench on this machine.
+
+    .venv/bin/python tests/benchmarks/bench_tui.py [--rounds 5]
+
+Prints medians (and worst cases) of:
+
+1. launch to the first useful screen on the demo (the overview with its headline),
+   a fresh interpreter each round, side by side with ``optbench compare --format
+   json`` on the same demo measured in the same run (the command-line reference);
+2. switching between the seven views (the key's action to the repainted screen:
+   every message handled, layout, compositor and paint done);
+3. a 20,000-quote chain (the demo chain densified to 1-point strikes by linear
+   interpolation of the quotes between listed strikes, which keeps them free of
+   static arbitrage): launch to the first useful screen, the longest gap of the
+   event loop while the core works in its thread (how long the screen could not
+   answer), and view switching once it is loaded.
+
+Targets (issue 6): first useful screen within 2 s, view switches within 100 ms,
+the 20,000-quote chain stays responsive.
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+ROOT = Path(__file__).resolve().parents[2]
+DEMO = ROOT / "chains" / "ZPHX"
+
+DRIVER = r"""
+import asyncio, json, sys, time
+t_start = float(sys.argv[2])
+from optbench.tui.app import make_app
+from optbench.tui.screens.workbench import VIEWS
+
+async def main():
+    app = make_app(sys.argv[1])
+    gaps, last = [], [time.perf_counter()]
+    def tick():
+        now = time.perf_counter(); gaps.append(now - last[0]); last[0] = now
+    out = {}
+    async with app.run_test(size=(120, 40)) as pilot:
+        app.set_interval(0.01, tick)
+        while app.comparison is None and app.error is None:
+            await asyncio.sleep(0.005)
+        await pilot._wait_for_screen()
+        app.screen._on_timer_update()   # lay out and paint now
+        out["first_screen_s"] = time.time() - t_start
+        out["error"] = app.error
+        while not (app.checked or app.error):
+            await asyncio.sleep(0.01)
+        out["checked_s"] = time.time() - t_start
+        out["max_gap_ms"] = 1000 * max(gaps) if gaps else None
+        out["p95_gap_ms"] = 1000 * float(sorted(gaps)[int(0.95 * (len(gaps) - 1))]) if gaps else None
+        await app.workers.wait_for_complete()
+        await pilot.pause()
+        switches = []
+        for _ in range(3):
+            for view_id, key, _ in VIEWS:
+                t = time.perf_counter()
+                app.action_view(view_id)          # what the view's key does
+                await pilot._wait_for_screen()    # every message it caused is handled
+                app.screen._on_timer_update()     # layout, compositor and paint
+                switches.append(1000 * (time.perf_counter() - t))
+        out["switch_ms"] = switches
+        out["quotes"] = int(app.comparison.quality["rows_used"]) if app.comparison else 0
+    print(json.dumps(out))
+
+asyncio.run(main())
+"""
+
+
+def run_driver(chain: Path) -> dict:
+    t0 = time.time()
+    out = subprocess.run([sys.executable, "-c", DRIVER, str(chain), repr(t0)],
+                         capture_output=True, text=True, cwd=ROOT, timeout=600)
+    if out.returncode != 0:
+        raise SystemExit(f"driver failed:\n{out.stderr[-2000:]}")
+    return json.loads(out.stdout.strip().splitlines()[-1])
+
+
+def cli_compare_seconds(chain: Path) -> float:
+    t0 = time.perf_counter()
+    out = subprocess.run([sys.executable, "-m", "optbench", "compare", str(chain),
+                          "--format", "json"], capture_output=True, text=True, cwd=ROOT,
+                         timeout=600)
+    if out.returncode != 0:
+        raise SystemExit(f"optbench compare failed: {out.stderr[-500:]}")
+    return time.perf_counter() - t0
+
+
+def dense_chain(folder: Path, step: float = 1.0) -> int:
+    """Write the demo densified to ``step``-point strikes into ``folder``; returns rows."""
+    raw = pd.read_csv(DEMO / "chain.csv", dtype=str)
+    for col in ("strike", "bid", "ask", "last", "volume", "open_interest"):
+        raw[col] = pd.to_numeric(raw[col], errors="coerce")
+    raw = raw.dropna(subset=["strike", "bid", "ask"])
+    raw = raw[(raw["bid"] > 0) & (raw["ask"] > raw["bid"])]
+    raw = raw.drop_duplicates(["expiry", "type", "strike"])
+    parts = []
+    for (expiry, kind), g in raw.groupby(["expiry", "type"]):
+        g = g.sort_values("strike")
+        k = g["strike"].to_numpy()
+        grid = np.arange(k.min(), k.max() + 1e-9, step)
+        part = pd.DataFrame({"strike": grid})
+        for col in ("bid", "ask", "last"):
+            part[col] = np.round(np.interp(grid, k, g[col].to_numpy(float)), 2)
+        for col in ("volume", "open_interest"):
+            part[col] = np.interp(grid, k, g[col].fillna(0).to_numpy(float)).astype(int)
+        first = g.iloc[0]
+        for col in ("underlying", "quote_date", "underlying_price", "style", "multiplier"):
+            part[col] = first[col]
+        part["expiry"], part["type"] = expiry, kind
+        parts.append(part)
+    chain = pd.concat(parts, ignore_index=True)
+    chain = chain[["underlying", "quote_date", "underlying_price", "expiry", "strike", "type",
+                   "bid", "ask", "last", "volume", "open_interest", "style", "multiplier"]]
+    chain.to_csv(folder / "chain.csv", index=False)
+    for name in ("history.csv", "meta.toml"):
+        (folder / name).write_bytes((DEMO / name).read_bytes())
+    return len(chain)
+
+
+def summary(values: list[float]) -> str:
+    return f"median {statistics.median(values):7.3f}   worst {max(values):7.3f}"
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--rounds", type=int, default=5)
+    args = parser.parse_args()
+
+    print(f"optbench workbench benchmark, {args.rounds} rounds (medians; this machine is "
+          "shared, so compare within one run)\n")
+    tui, cli = [], []
+    switches: list[float] = []
+    checked, demo_gaps = [], []
+    for _ in range(args.rounds):
+        r = run_driver(DEMO)
+        if r["error"]:
+            raise SystemExit(r["error"])
+        tui.append(r["first_screen_s"])
+        checked.append(r["checked_s"])
+        demo_gaps.append(r["max_gap_ms"])
+        switches += r["switch_ms"]
+        cli.append(cli_compare_seconds(DEMO))
+    print("1. demo, launch to the first useful screen (s)")
+    print(f"   workbench overview       {summary(tui)}")
+    print(f"   optbench compare --json  {summary(cli)}   (reference, same run)")
+    print(f"   ratio workbench / compare  {statistics.median(tui) / statistics.median(cli):.2f}")
+    print(f"   model check on screen    {summary(checked)}")
+    print(f"   longest event-loop gap while computing (ms)  {summary(demo_gaps)}")
+    print("2. demo, switching views (ms)")
+    print(f"   action to repaint        {summary(switches)}   over {len(switches)} switches")
+
+    with tempfile.TemporaryDirectory() as tmp:
+        folder = Path(tmp) / "DENSE"
+        folder.mkdir()
+        rows = dense_chain(folder)
+        big_tui, big_cli, gaps, big_switch = [], [], [], []
+        for _ in range(max(2, args.rounds // 2)):
+            r = run_driver(folder)
+            if r["error"]:
+                raise SystemExit(r["error"])
+            big_tui.append(r["first_screen_s"])
+            gaps.append(r["max_gap_ms"])
+            big_switch += r["switch_ms"]
+            big_cli.append(cli_compare_seconds(folder))
+        print(f"3. {rows:,}-quote chain ({r['quotes']:,} used)")
+        print(f"   workbench overview (s)   {summary(big_tui)}")
+        print(f"   optbench compare (s)     {summary(big_cli)}   (reference, same run)")
+        print(f"   longest event-loop gap while computing (ms)  {summary(gaps)}")
+        print(f"   switching views (ms)     {summary(big_switch)}")
+
+
+if __name__ == "__main__":
+    main()
