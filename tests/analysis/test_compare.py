@@ -236,12 +236,26 @@ def american_chain(tmp_path_factory):
     folder = tmp_path_factory.mktemp("american")
     pd.DataFrame(rows).to_csv(folder / "chain.csv", index=False, float_format="%.12g")
     history.to_csv(folder / "history.csv", index=False)
-    return folder, rate, div, vol
+
+    def price(strike, days, is_call, sigma):
+        proc = ql.BlackScholesMertonProcess(
+            ql.QuoteHandle(ql.SimpleQuote(spot)),
+            ql.YieldTermStructureHandle(ql.FlatForward(today, div, dc, ql.Continuous)),
+            ql.YieldTermStructureHandle(ql.FlatForward(today, rate, dc, ql.Continuous)),
+            ql.BlackVolTermStructureHandle(ql.BlackConstantVol(today, ql.NullCalendar(),
+                                                               sigma, dc)))
+        kind = ql.Option.Call if is_call else ql.Option.Put
+        opt = ql.VanillaOption(ql.PlainVanillaPayoff(kind, float(strike)),
+                               ql.AmericanExercise(today, today + days))
+        opt.setPricingEngine(ql.FdBlackScholesVanillaEngine(proc, 400, 400))
+        return opt.NPV()
+
+    return folder, rate, div, vol, price
 
 
 def test_american_chain_uses_american_implied_vols(american_chain):
     # reference: QuantLib FdBlackScholesVanillaEngine, American exercise, flat 30 %
-    folder, rate, div, vol = american_chain
+    folder, rate, div, vol, price = american_chain
     c = compare(folder, rate=rate, div_yield=div, model="garch", dist="normal", n_paths=200)
     assert c.style == "american"
     otm = c.strike_frame()
@@ -251,6 +265,11 @@ def test_american_chain_uses_american_implied_vols(american_chain):
     for row in c.expiries:
         assert row.style == "american"
         assert row.atm_iv == pytest.approx(vol, abs=2e-3)
+    # the value at the forecast vol is the American value (QuantLib at that vol)
+    for rec in otm[otm["strike"].isin([85.0, 115.0])].itertuples():
+        days = (rec.expiry.date() - c.asof).days
+        ref = price(rec.strike, days, rec.is_call, rec.forecast_vol)
+        assert rec.price_at_forecast == pytest.approx(ref, rel=2e-3, abs=2e-3)
 
 
 def test_history_after_the_quote_date_is_not_used(tmp_path, demo):
