@@ -94,6 +94,8 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
         step = 1.0
         accepted = False
         for _ in range(50):
+            if step * np.max(np.abs(d) / (1.0 + np.abs(x))) < 1e-15:
+                break   # the step no longer moves x: at the precision of f
             xn = np.clip(x + step * d, lo, hi)
             if feasible is None or feasible(xn):
                 fn, gn = fun_grad(xn)
@@ -114,7 +116,7 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
         sBs = float(np.dot(s, Bs))
         if sy > 1e-12 * np.sqrt(np.dot(s, s) * np.dot(y, y)) and sBs > 0:
             B = B + np.outer(y, y) / sy - np.outer(Bs, Bs) / sBs   # BFGS (direct form)
-        if step == 1.0 and df < ftol * (1.0 + abs(f)):
+        if df < ftol * (1.0 + abs(f)):
             return MinimizeResult(x, f, True, "relative change in the objective below "
                                               "tolerance", it, nfev)
     return MinimizeResult(x, f, False, f"iteration limit ({max_iter}) reached", max_iter, nfev)
