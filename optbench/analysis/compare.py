@@ -374,7 +374,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         half_life_days=_num(fit.half_life_days), long_run_vol=_num(fit.long_run_vol),
         n_obs=int(fit.n_obs), fallback_reason=fit.fallback_reason)
     history_frame = pd.DataFrame({
-        "date": pd.to_datetime(np.asarray(hist.dates[1:], dtype="datetime64[D]")),
+        "date": np.asarray(hist.dates[1:], dtype="datetime64[D]").astype("datetime64[ns]"),
         "close": np.asarray(hist.close[1:], float), "ret": np.asarray(hist.returns, float),
         "sigma": np.asarray(fit.conditional_vol, float),
         "z": np.asarray(fit.std_resid, float)})
@@ -437,27 +437,34 @@ def _model_free_vols(q: pd.DataFrame, fwd: pd.DataFrame, warnings: list) -> np.n
     """
     from optbench.analysis.model_free import model_free_variance
 
-    wide = q.pivot_table(index=["expiry", "strike"], columns="is_call",
-                         values=["mid", "bid"], aggfunc="first")
+    code = pd.Index(fwd["expiry"]).get_indexer(q["expiry"])
+    K = q["strike"].to_numpy(float)
+    calls = q["is_call"].to_numpy(bool)
+    mid = q["mid"].to_numpy(float)
+    bid = q["bid"].to_numpy(float)
     out = np.full(len(fwd), np.nan)
-    for j, e in enumerate(fwd["expiry"]):
-        try:
-            g = wide.loc[e]
-        except KeyError:
+    for j in range(len(fwd)):
+        sel = np.flatnonzero(code == j)
+        if sel.size == 0:
             continue
-
-        def col(name, side):
-            key = (name, side)
-            return g[key].to_numpy(float) if key in g.columns else np.full(len(g), np.nan)
-
+        strikes = np.unique(K[sel])
+        pos = np.searchsorted(strikes, K[sel])
+        side = {}
+        for name, values in (("mid", mid), ("bid", bid)):
+            for is_call in (True, False):
+                arr = np.full(strikes.size, np.nan)
+                pick = calls[sel] == is_call
+                arr[pos[pick]] = values[sel][pick]
+                side[name, is_call] = arr
         try:
-            mf = model_free_variance(g.index.to_numpy(float), float(fwd["t"].iloc[j]),
+            mf = model_free_variance(strikes, float(fwd["t"].iloc[j]),
                                      float(fwd["forward"].iloc[j]),
                                      float(fwd["discount"].iloc[j]),
-                                     call_mid=col("mid", True), put_mid=col("mid", False),
-                                     call_bid=col("bid", True), put_bid=col("bid", False))
+                                     call_mid=side["mid", True], put_mid=side["mid", False],
+                                     call_bid=side["bid", True], put_bid=side["bid", False])
         except InputError as err:
-            warnings.append(f"model-free variance, {pd.Timestamp(e).date()}: {err.problem}")
+            warnings.append(f"model-free variance, {pd.Timestamp(fwd['expiry'].iloc[j]).date()}: "
+                            f"{err.problem}")
             continue
         out[j] = mf.vol
     return out
