@@ -88,28 +88,35 @@ def simulate_paths(model: str, params: dict, dist: str, last_variance: float,
     r = np.empty(size)
     v = np.empty(size)
     s2 = np.full(n_paths, float(last_variance))
-    linear = model in ("garch", "gjr")
-    if linear:
+    if model in ("garch", "gjr"):
+        # e_t^2 = sigma_t^2 z_t^2 and 1[e_t < 0] = 1[z_t < 0], so
+        # sigma^2_{t+1} = omega + sigma^2_t * (beta + z_t^2 (alpha + gamma 1[z_t < 0])):
+        # the multiplier is built for all days at once, the loop is a multiply-add
         omega, alpha, beta = (float(params[k]) for k in ("omega", "alpha", "beta"))
         gamma = float(params.get("gamma", 0.0))
-    for t in range(horizon):   # loop over days only; each step is vectorised over paths
-        v[t] = s2
-        e = r[t]
-        np.sqrt(s2, out=e)
-        e *= z[t]
-        if t + 1 == horizon:
-            break
-        if linear:
-            e2 = e * e
-            s2 = s2 * beta
-            s2 += omega
-            if gamma:
-                e2 *= np.where(e < 0, alpha + gamma, alpha)
-            else:
-                e2 *= alpha
-            s2 += e2
-        else:
-            s2 = spec.next_variance(e, s2, params)
+        mult = z * z
+        mult *= np.float32(alpha)
+        if gamma:
+            neg = np.minimum(z, np.float32(0.0))
+            neg *= neg
+            neg *= np.float32(gamma)
+            mult += neg
+        mult += np.float32(beta)
+        for t in range(horizon):   # loop over days only; vectorised over paths
+            v[t] = s2
+            np.sqrt(s2, out=r[t])
+            r[t] *= z[t]
+            if t + 1 < horizon:
+                s2 = s2 * mult[t]
+                s2 += omega
+    else:
+        for t in range(horizon):
+            v[t] = s2
+            e = r[t]
+            np.sqrt(s2, out=e)
+            e *= z[t]
+            if t + 1 < horizon:
+                s2 = spec.next_variance(e, s2, params)
     if mu:
         r += mu
     return SimulatedPaths(returns=r.T, variances=v.T)
