@@ -482,10 +482,13 @@ class GarchFit:
         p = self.params
         if self.model in ("garch", "gjr"):
             pers = self.persistence
-            vl = p["omega"] / (1.0 - pers) if pers < 1 else self.last_variance
-            if pers >= 1:
-                pers = 1.0
-            return fc.linear_forecast_variance(self.last_variance, vl, pers, horizon)
+            if pers < 1:
+                return fc.linear_forecast_variance(self.last_variance,
+                                                   p["omega"] / (1.0 - pers), pers, horizon)
+            # held non-stationary parameters: omega sum_{j<k-1} p^j + p^{k-1} sigma^2_{T+1}
+            k = np.arange(horizon)
+            geo = k if pers == 1 else (pers ** k - 1.0) / (pers - 1.0)
+            return p["omega"] * geo + pers ** k * self.last_variance
         if self.model == "egarch":
             return fc.egarch_forecast_variance(self.last_variance, p["omega"], p["alpha"],
                                                p["gamma"], p["beta"], horizon, self.dist,
@@ -810,7 +813,8 @@ def fit_garch(returns, model: str = "gjr", dist: str = "t", mean: str = "constan
                 bics[m] = None
                 problems.append(prob)
         if not fits:
-            return _ewma(y, mean, backcast, "EWMA lambda=0.94 used: " + "; ".join(problems))
+            return _ewma(y, mean, backcast, "EWMA lambda=0.94 used: " + "; ".join(problems)
+                         + " (normal innovations)")
         best = min(fits, key=lambda m: fits[m].bic)
         reason = None
         return _replace(fits[best], candidates=bics, fallback_reason=reason)
@@ -825,7 +829,8 @@ def fit_garch(returns, model: str = "gjr", dist: str = "t", mean: str = "constan
             return f
         reasons.append(prob)
         m = FALLBACK[m]
-    return _ewma(y, mean, backcast, "EWMA lambda=0.94 used: " + "; ".join(reasons))
+    return _ewma(y, mean, backcast, "EWMA lambda=0.94 used: " + "; ".join(reasons)
+                 + " (normal innovations)")
 
 
 def _replace(fit: GarchFit, **changes) -> GarchFit:

@@ -232,3 +232,26 @@ def test_bad_choices_are_clear_errors(pct_returns):
         fit_garch(y, dist="skewt")
     with pytest.raises(InputError, match="missing"):
         fix_garch(y, {"omega": 1e-6}, "garch", "normal")
+
+
+def test_given_backcast_agrees_with_arch(pct_returns):
+    """fit_garch(backcast=...) against arch's fit(backcast=...) (arch: percent^2 units)."""
+    y = pct_returns.to_numpy() / 100
+    fit = fit_garch(y, "garch", "normal", backcast=2.5e-4)
+    am = arch_model(pct_returns, mean="Constant", rescale=False, vol="GARCH", p=1, q=1)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = am.fit(disp="off", backcast=2.5)
+    assert fit.backcast == pytest.approx(2.5e-4)
+    assert fit.loglik - y.size * math.log(100) == pytest.approx(res.loglikelihood, abs=1e-6)
+    assert fit.params["beta"] == pytest.approx(res.params["beta[1]"], abs=1e-3)
+
+
+def test_held_integrated_parameters_forecast_linearly(pct_returns):
+    """alpha + beta = 1 (integrated GARCH): E[sigma^2_{T+k}] = sigma^2_{T+1} + (k-1) omega."""
+    y = pct_returns.to_numpy() / 100
+    fixed = fix_garch(y, dict(mu=0.0, omega=1e-7, alpha=0.06, beta=0.94), "garch", "normal")
+    v = fixed.forecast_variance(10)
+    np.testing.assert_allclose(v, fixed.last_variance + 1e-7 * np.arange(10), rtol=1e-12)
+    assert fixed.half_life_days is None and fixed.long_run_vol is None
+    assert fixed.forecast_vol(10) == pytest.approx(math.sqrt(252 * v.mean()))
