@@ -68,8 +68,12 @@ def linear_filter(u: np.ndarray, b: float, x0: np.ndarray | float = 0.0) -> np.n
     lead = u.shape[:-1]
     if n == 0:
         return u.copy()
-    if u.ndim == 1 and 0.6 <= b < 1.0 and n >= 64:
-        return _scaled_cumsum_filter(u, float(b), float(x0))
+    if 0.6 <= b < 1.0 and n >= 64 and u.ndim <= 2 and (u.ndim == 1 or u.shape[0] <= 16):
+        if u.ndim == 1:
+            return _scaled_cumsum_filter(u, float(b), float(x0))
+        starts = np.broadcast_to(np.asarray(x0, dtype=float), lead)
+        return np.stack([_scaled_cumsum_filter(row, float(b), float(s0))
+                         for row, s0 in zip(u, starts)])
     L = _block_length(n)
     nb = -(-n // L)
     pad = nb * L - n

@@ -14,13 +14,18 @@ from optbench.volatility.recursions import (garch_variance, garch_variance_loop,
                                             reverse_filter)
 
 
+@pytest.mark.parametrize("b", [0.3, 0.97])
 @pytest.mark.parametrize("n", [1, 2, 37, 250, 1000, 5003])
-def test_blocked_filter_equals_loop(n):
+def test_blocked_filter_equals_loop(n, b):
     rng = np.random.default_rng(n)
     u = rng.random((3, n))
-    np.testing.assert_allclose(linear_filter(u, 0.97, [1.0, 2.0, 0.5]),
-                               np.stack([linear_filter_loop(u[i], 0.97, x0)
+    np.testing.assert_allclose(linear_filter(u, b, [1.0, 2.0, 0.5]),
+                               np.stack([linear_filter_loop(u[i], b, x0)
                                          for i, x0 in enumerate([1.0, 2.0, 0.5])]),
+                               rtol=1e-12)
+    # many channels take the Toeplitz-block solver whatever b is
+    wide = rng.random((20, n))
+    np.testing.assert_allclose(linear_filter(wide, b, 0.4), linear_filter_loop(wide, b, 0.4),
                                rtol=1e-12)
 
 
