@@ -53,13 +53,46 @@ def clean(value: Any) -> Any:
     return str(value)
 
 
+def frame_records(frame) -> list[dict]:
+    """A DataFrame as JSON-safe records, column by column in numpy (fast for the
+    per-strike table of a large chain): floats stay exact, NaN -> None, dates -> ISO."""
+    import pandas as pd
+    columns = []
+    for name in frame.columns:
+        col = frame[name]
+        if pd.api.types.is_datetime64_any_dtype(col):
+            iso = np.asarray(col.to_numpy(), dtype="datetime64[D]").astype(str)
+            values = [None if v == "NaT" else v for v in iso.tolist()]
+        elif pd.api.types.is_float_dtype(col):
+            arr = col.to_numpy(float)
+            values = arr.tolist()
+            bad = np.flatnonzero(~np.isfinite(arr))
+            for i in bad.tolist():
+                values[i] = None
+        elif pd.api.types.is_bool_dtype(col) or pd.api.types.is_integer_dtype(col):
+            values = col.to_numpy().tolist()
+        else:
+            values = [clean(v) for v in col.tolist()]
+        columns.append(values)
+    names = [str(c) for c in frame.columns]
+    return [dict(zip(names, row)) for row in zip(*columns)]
+
+
 def dumps(obj: Any, *, kind: str | None = None, indent: int | None = 2) -> str:
     """JSON text of a result object (anything with ``to_dict()``) or plain data.
 
     ``kind`` (``"compare"``/``"hedge"``) adds ``"schema": "optbench.<kind>/1"``.
     """
-    data = obj.to_dict() if hasattr(obj, "to_dict") else obj
-    data = clean(data)
+    strikes = None
+    if hasattr(obj, "strike_frame") and hasattr(obj, "to_dict"):
+        # the per-strike table can be large: serialise it column-wise
+        data = clean(obj.to_dict(strikes=False))
+        strikes = frame_records(obj.strike_frame())
+    else:
+        data = obj.to_dict() if hasattr(obj, "to_dict") else obj
+        data = clean(data)
+    if strikes is not None:
+        data["strikes"] = strikes
     if kind and isinstance(data, dict):
         data = {"schema": f"optbench.{kind}/{SCHEMA_VERSION}", **data}
     return json.dumps(data, indent=indent, allow_nan=False, ensure_ascii=False) + "\n"
