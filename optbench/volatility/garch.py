@@ -723,24 +723,34 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast):
     var = float(np.var(y_s))
     starts = prob.starting_points(var)
     vals = [prob.objective(s) for s in starts]
-    x0 = starts[int(np.argmin(vals))]
     bounds = prob.bounds(var)
-    x0 = np.clip(x0, [b[0] for b in bounds], [b[1] for b in bounds])
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)
-        lo = np.array([b[0] for b in bounds])
-        hi = np.array([b[1] for b in bounds])
-        res = minimize_box(prob.objective_grad, x0, lo, hi, feasible=prob.feasible,
-                           hess0=prob.hessian_estimate(x0))
-    theta = np.asarray(res.x, dtype=float)
-    problem = None
-    if not res.success:
-        problem = f"{model} did not converge ({res.message})"
-    else:
+    lo = np.array([b[0] for b in bounds])
+    hi = np.array([b[1] for b in bounds])
+
+    def run(x0):
+        x0 = np.clip(x0, lo, hi)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            res = minimize_box(prob.objective_grad, x0, lo, hi, feasible=prob.feasible,
+                               hess0=prob.hessian_estimate(x0))
+        theta = np.asarray(res.x, dtype=float)
+        if not res.success:
+            return res, theta, f"{model} did not converge ({res.message})"
         _, vol, _ = prob.unpack(theta)
         pers = prob.spec.persistence(vol)
         if not pers < 1.0 - STATIONARITY_MARGIN:
-            problem = f"{model} estimate is not stationary (persistence {pers:.6f})"
+            return res, theta, f"{model} estimate is not stationary (persistence {pers:.6f})"
+        return res, theta, None
+
+    order = list(np.argsort(vals))
+    res, theta, problem = run(starts[order[0]])
+    if problem is not None:
+        # a boundary or failed solution from the best start: try the other starts and
+        # keep the best stationary, converged one
+        for i in order[1:]:
+            r2, t2, p2 = run(starts[i])
+            if p2 is None and (problem is not None or r2.fun < res.fun):
+                res, theta, problem = r2, t2, None
     cov_s = prob.robust_cov(theta) if problem is None else None
     fit = _result(prob, theta, y, scale, mean, problem is None, str(res.message),
                   None, None, cov_s=cov_s)
