@@ -255,3 +255,35 @@ def test_held_integrated_parameters_forecast_linearly(pct_returns):
     np.testing.assert_allclose(v, fixed.last_variance + 1e-7 * np.arange(10), rtol=1e-12)
     assert fixed.half_life_days is None and fixed.long_run_vol is None
     assert fixed.forecast_vol(10) == pytest.approx(math.sqrt(252 * v.mean()))
+
+
+def test_non_stationary_estimate_falls_back(pct_returns):
+    """With one -22% day added to the sample, the GARCH-normal maximum sits on the
+    stationarity boundary — arch's own fit ends at alpha + beta = 1 too — so optbench
+    reports it and falls back to EWMA."""
+    y = pct_returns.to_numpy() / 100
+    y[3000] = -0.22
+    fit = fit_garch(y, "garch", "normal")
+    am = arch_model(100 * y, mean="Constant", rescale=False, vol="GARCH", p=1, q=1)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = am.fit(disp="off")
+    assert res.params["alpha[1]"] + res.params["beta[1]"] == pytest.approx(1.0, abs=1e-4)
+    assert fit.model == "ewma"
+    assert "garch estimate is not stationary" in fit.fallback_reason
+
+
+def test_fitting_stays_off_slow_scipy_imports():
+    """Start-up rule: a fit imports neither scipy.optimize, scipy.stats nor scipy.signal."""
+    import subprocess
+    import sys
+
+    code = ("import sys, numpy as np\n"
+            "from optbench.volatility.garch import fit_garch\n"
+            "r = np.random.default_rng(0).standard_normal(400) * 0.01\n"
+            "f = fit_garch(r, 'auto', 't'); f.forecast_band([5, 21]); f.simulate(5, 10)\n"
+            "print(','.join(m for m in sys.modules if m.split('.')[:2] in "
+            "(['scipy', 'optimize'], ['scipy', 'stats'], ['scipy', 'signal'])))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True)
+    assert out.stdout.strip() == ""
