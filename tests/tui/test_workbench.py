@@ -50,7 +50,7 @@ async def _test_demo_opens_and_every_view_shows_the_comparison():
         assert verdict_col == [marks[r.verdict] for r in c.expiries]
         # the strike table holds the chosen expiry's quotes
         strikes = app.screen.query_one("#rc-strikes")
-        assert strikes.row_count == len(c.strike_frame(app.view("richcheap").expiry))
+        assert strikes.total_rows == len(c.strike_frame(app.view("richcheap").expiry))
         # sorting the strike table by edge (vol points) orders the raw values
         strikes.focus()
         col = strikes.get_column_index("edgev")

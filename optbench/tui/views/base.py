@@ -10,8 +10,14 @@ class Deferred:
     _ready: bool = False
 
     def show(self, *args) -> None:
+        """Draw ``args`` after the next refresh, so that keys typed meanwhile are
+        handled between one view's drawing and the next."""
         self._pending = args
         if self._ready:
+            self.call_after_refresh(self._draw_pending, args)
+
+    def _draw_pending(self, args: tuple) -> None:
+        if self._pending is args:  # skip results that newer ones have replaced
             self.draw(*args)
 
     def on_mount(self) -> None:

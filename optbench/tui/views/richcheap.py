@@ -54,23 +54,23 @@ def expiry_rows(comparison):
 
 
 def strike_rows(table):
+    """Raw values of every row (for sorting) and a function giving a row's cells."""
     cols = {c: table[c].to_numpy() for c in table.columns}
-    n = len(table)
-    raw, shown = [], []
-    for i in range(n):  # display rows only; the numbers are the core's per-strike table
-        g = {c: cols[c][i] for c in cols}
-        raw.append((str(g["type"]), float(g["strike"]), float(g["moneyness"]),
-                    float(g["edge_vol_points"]), float(g["edge_per_contract"]), float(g["bid"]),
-                    float(g["ask"]), float(g["iv_bid"]), float(g["iv_mid"]), float(g["iv_ask"]),
-                    float(g["forecast_vol"]), float(g["price_at_forecast"]),
-                    float(g["delta"]), float(g["vega_per_vol_point"]), int(g["line"])))
-        shown.append((str(g["type"]), fmt.num(g["strike"], 2), fmt.num(g["moneyness"], 3),
-                      _edge_mark(float(g["edge_vol_points"])),
-                      fmt.money(g["edge_per_contract"], True), fmt.num(g["bid"]),
-                      fmt.num(g["ask"]), fmt.pct(g["iv_bid"]), fmt.pct(g["iv_mid"]),
-                      fmt.pct(g["iv_ask"]), fmt.pct(g["forecast_vol"]),
-                      fmt.num(g["price_at_forecast"]), fmt.num(g["delta"], 3),
-                      fmt.num(g["vega_per_vol_point"], 3), str(int(g["line"]))))
+    order = ("type", "strike", "moneyness", "edge_vol_points", "edge_per_contract", "bid",
+             "ask", "iv_bid", "iv_mid", "iv_ask", "forecast_vol", "price_at_forecast",
+             "delta", "vega_per_vol_point", "line")
+    numeric = [cols[c].astype(float) if c not in ("type", "line") else cols[c] for c in order]
+    raw = list(zip(*[v.tolist() for v in numeric]))
+
+    def shown(i: int) -> tuple:
+        g = {c: cols[c][i] for c in order}
+        return (str(g["type"]), fmt.num(g["strike"], 2), fmt.num(g["moneyness"], 3),
+                _edge_mark(float(g["edge_vol_points"])),
+                fmt.money(g["edge_per_contract"], True), fmt.num(g["bid"]),
+                fmt.num(g["ask"]), fmt.pct(g["iv_bid"]), fmt.pct(g["iv_mid"]),
+                fmt.pct(g["iv_ask"]), fmt.pct(g["forecast_vol"]),
+                fmt.num(g["price_at_forecast"]), fmt.num(g["delta"], 3),
+                fmt.num(g["vega_per_vol_point"], 3), str(int(g["line"])))
     return raw, shown
 
 
