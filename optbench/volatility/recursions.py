@@ -238,15 +238,18 @@ def egarch_log_variance(eps: np.ndarray, omega: float, alpha: float, gamma: floa
     e = np.asarray(eps, dtype=float).tolist()
     n = len(e)
     out = [0.0] * n
-    c = SQRT_2_OVER_PI
+    # alpha (|z| - sqrt(2/pi)) + gamma z = c0 + (alpha + gamma) z for z >= 0,
+    # c0 + (gamma - alpha) z for z < 0, with c0 = -alpha sqrt(2/pi)
+    const = omega - alpha * SQRT_2_OVER_PI
+    up, down = alpha + gamma, gamma - alpha
     exp = math.exp
     cap = LN_VARIANCE_CAP
     lnv = omega + beta * ln_backcast
     lnv = cap if lnv > cap else (-cap if lnv < -cap else lnv)
     out[0] = lnv
     for t in range(1, n):
-        z = e[t - 1] / exp(0.5 * lnv)
-        lnv = omega + alpha * ((z if z >= 0 else -z) - c) + gamma * z + beta * lnv
+        z = e[t - 1] * exp(-0.5 * lnv)
+        lnv = const + (up * z if z >= 0 else down * z) + beta * lnv
         if lnv > cap:
             lnv = cap
         elif lnv < -cap:
@@ -269,10 +272,10 @@ def egarch_adjoint(z: list, lam_direct: np.ndarray, alpha: float, gamma: float,
     out = [0.0] * n
     lam = a[n - 1]
     out[n - 1] = lam
-    half_a, half_g = 0.5 * alpha, 0.5 * gamma
+    up, down = 0.5 * (alpha + gamma), 0.5 * (gamma - alpha)
     for t in range(n - 2, -1, -1):
         zt = z[t]
-        lam = a[t] + (beta - half_a * (zt if zt >= 0 else -zt) - half_g * zt) * lam
+        lam = a[t] + (beta - (up * zt if zt >= 0 else down * zt)) * lam
         out[t] = lam
     return np.array(out)
 

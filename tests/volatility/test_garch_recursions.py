@@ -98,3 +98,19 @@ def test_filter_paths_equal_loop_for_all_coefficients(b):
     ref = linear_filter_loop(u, b, 0.7)
     np.testing.assert_allclose(linear_filter(u, b, 0.7), ref, rtol=0,
                                atol=1e-13 * np.max(np.abs(ref)))
+
+
+def test_egarch_loop_against_plain_formula():
+    """The EGARCH loop against the recursion written term by term (Nelson 1991)."""
+    from optbench.volatility.recursions import SQRT_2_OVER_PI, egarch_log_variance
+
+    rng = np.random.default_rng(8)
+    e = 0.01 * rng.standard_t(5, 800)
+    om, a, g, b, hb = -0.3, 0.12, -0.08, 0.97, math.log(1e-4)
+    got = egarch_log_variance(e, om, a, g, b, hb)
+    h = np.empty(800)
+    h[0] = om + b * hb
+    for t in range(1, 800):
+        z = e[t - 1] / math.sqrt(math.exp(h[t - 1]))
+        h[t] = om + a * (abs(z) - SQRT_2_OVER_PI) + g * z + b * h[t - 1]
+    np.testing.assert_allclose(got, h, rtol=1e-12, atol=1e-12)
