@@ -177,8 +177,19 @@ def egarch_forecast_variance(last_variance: float, omega: float, alpha: float,
         drift = omega * (1.0 - bk) / (1.0 - beta)
     else:
         drift = omega * k
-    log_m = egarch_log_mgf(beta ** np.arange(max(horizon - 1, 0)), alpha, gamma, dist,
-                           z_grid)
+    c = beta ** np.arange(max(horizon - 1, 0))
+    if dist == "t" and z_grid is not None:
+        # exact grid expectation while c >= 1e-3; below, the second-order cumulant
+        # expansion ln E[exp(c g)] = c^2 Var(g) / 2 + O(c^3) (E g = 0), with Var(g)
+        # over the same grid, keeps long horizons cheap
+        z = np.asarray(z_grid, dtype=float)
+        g = alpha * (np.abs(z) - SQRT_2_OVER_PI) + gamma * z
+        big = c >= 1e-3
+        log_m = np.empty_like(c)
+        log_m[big] = egarch_log_mgf(c[big], alpha, gamma, dist, z_grid)
+        log_m[~big] = 0.5 * c[~big] ** 2 * np.var(g) + c[~big] * np.mean(g)
+    else:
+        log_m = egarch_log_mgf(c, alpha, gamma, dist, z_grid)
     cum = np.concatenate([[0.0], np.cumsum(log_m)])
     return np.exp(drift + bk * math.log(last_variance) + cum)
 
