@@ -91,8 +91,16 @@ def dumps(obj: Any, *, kind: str | None = None, indent: int | None = 2) -> str:
     else:
         data = obj.to_dict() if hasattr(obj, "to_dict") else obj
         data = clean(data)
-    if strikes is not None:
-        data["strikes"] = strikes
     if kind and isinstance(data, dict):
         data = {"schema": f"optbench.{kind}/{SCHEMA_VERSION}", **data}
-    return json.dumps(data, indent=indent, allow_nan=False, ensure_ascii=False) + "\n"
+    text = json.dumps(data, indent=indent, allow_nan=False, ensure_ascii=False)
+    if strikes is not None:
+        # one record per line, written by the C encoder (an indented dump of a large
+        # table would go through the slow pure-Python encoder)
+        pad = " " * (indent or 0)
+        sep = ",\n" + pad * 2 if indent else ","
+        body = sep.join(json.dumps(r, allow_nan=False, ensure_ascii=False) for r in strikes)
+        head = f",\n{pad}\"strikes\": [\n{pad * 2}" if indent else ',"strikes":['
+        tail = f"\n{pad}]\n}}" if indent else "]}"
+        text = text[:text.rstrip().rfind("}")].rstrip() + head + body + tail
+    return text + "\n"
