@@ -36,6 +36,8 @@ class ExportDialog(ModalScreen[ExportRequest | None]):
         formats = self._tables[self._current][1]
         with Vertical(id="export-dialog", classes="dialog"):
             yield Label("Export", classes="dialog-title")
+            yield Label("ctrl+s or Enter in the file name exports · escape cancels",
+                        classes="dialog-hint")
             yield Label("What")
             yield Select(choices, value=self._current, allow_blank=False, id="export-what")
             yield Label("Format")

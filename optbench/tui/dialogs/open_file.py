@@ -30,6 +30,8 @@ class OpenDialog(ModalScreen[OpenRequest | None]):
     def compose(self) -> ComposeResult:
         with Vertical(id="open-dialog", classes="dialog"):
             yield Label("Open a chain file or a scenario folder", classes="dialog-title")
+            yield Label("Enter on a file or folder picks it · type a path · ctrl+o opens · "
+                        "escape cancels", classes="dialog-hint")
             yield DirectoryTree(str(self._start), id="open-tree")
             yield Label("Chain file or scenario folder")
             yield Input(placeholder="path/to/chain.csv or path/to/scenario/", id="open-chain")

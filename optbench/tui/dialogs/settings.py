@@ -58,6 +58,8 @@ class SettingsDialog(ModalScreen[Settings | None]):
         with Vertical(id="settings-dialog", classes="dialog"):
             yield Label("Model, market and filters — empty fields use the chain's own values",
                         classes="dialog-title")
+            yield Label("tab moves between fields · ctrl+s applies and recomputes · escape "
+                        "cancels", classes="dialog-hint")
             with Grid(id="settings-grid"):
                 yield Label("Volatility model")
                 yield Select(MODELS, value=s.model, allow_blank=False, id="set-model")

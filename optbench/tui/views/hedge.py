@@ -145,7 +145,7 @@ class HedgeView(Deferred, Horizontal):
         self._timer = None
 
     def compose(self) -> ComposeResult:
-        with VerticalScroll(id="hedge-form"):
+        with VerticalScroll(id="hedge-form", can_focus=False):
             yield Label("Portfolio value")
             yield Input("10,000,000", id="hedge-portfolio", compact=True)
             yield Label("Beta to the underlying")
@@ -164,7 +164,7 @@ class HedgeView(Deferred, Horizontal):
             yield Input("", placeholder="zero-cost call", id="hedge-call", compact=True)
             yield Static("", id="hedge-error", classes="form-error")
         with VerticalScroll(id="hedge-result"):
-            yield Static("Waiting for the comparison…", id="hedge-summary")
+            yield Static("Pricing …", id="hedge-summary")
             yield Static("", id="hedge-legs")
             yield Static("", id="hedge-scenarios")
             yield Static("", id="hedge-notes", classes="note")
