@@ -99,7 +99,10 @@ def dumps(obj: Any, *, kind: str | None = None, indent: int | None = 2) -> str:
         # table would go through the slow pure-Python encoder)
         pad = " " * (indent or 0)
         sep = ",\n" + pad * 2 if indent else ","
-        body = sep.join(json.dumps(r, allow_nan=False, ensure_ascii=False) for r in strikes)
+        # one C-encoder call for the whole list; records hold numbers, dates, "C"/"P"
+        # and booleans only, so "}, {" occurs only between records
+        body = json.dumps(strikes, allow_nan=False, ensure_ascii=False)[1:-1]
+        body = body.replace("}, {", "}" + sep + "{")
         head = f",\n{pad}\"strikes\": [\n{pad * 2}" if indent else ',"strikes":['
         tail = f"\n{pad}]\n}}" if indent else "]}"
         text = text[:text.rstrip().rfind("}")].rstrip() + head + body + tail
