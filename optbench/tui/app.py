@@ -283,7 +283,10 @@ class Workbench(App):
 
     def action_settings(self) -> None:
         from optbench.tui.dialogs.settings import SettingsDialog
-        self.push_screen(SettingsDialog(self.inputs.settings), self._settled)
+        c = self.comparison
+        used = ({"rate": c.rate, "div_yield": c.div_yield, "spot": c.spot, "asof": c.asof}
+                if c is not None else {})
+        self.push_screen(SettingsDialog(self.inputs.settings, used), self._settled)
 
     def _settled(self, settings: Settings | None) -> None:
         if settings is None or settings == self.inputs.settings:

@@ -49,9 +49,19 @@ class SettingsDialog(ModalScreen[Settings | None]):
         Binding("ctrl+s", "submit", "Apply", id="settings.submit"),
     ]
 
-    def __init__(self, settings: Settings) -> None:
+    def __init__(self, settings: Settings, used: dict | None = None) -> None:
+        """``used``: the values the current comparison ran with (shown as hints)."""
         super().__init__()
         self._settings = settings
+        self._used = used or {}
+
+    def _hint(self, key: str, source: str, percent: bool = False) -> str:
+        value = self._used.get(key)
+        if value is None:
+            return f"from the {source}"
+        shown = value.isoformat() if hasattr(value, "isoformat") else (
+            f"{value * 100:.2f}" if percent else f"{value:,.2f}")
+        return f"{shown} (from the {source})"
 
     def compose(self) -> ComposeResult:
         s = self._settings
@@ -68,15 +78,16 @@ class SettingsDialog(ModalScreen[Settings | None]):
                 yield Label("Mean of returns")
                 yield Select(MEANS, value=s.mean, allow_blank=False, id="set-mean")
                 yield Label("Rate, % a year (cont.)")
-                yield Input(_shown(s.rate, True), placeholder="from the scenario", id="set-rate")
+                yield Input(_shown(s.rate, True), placeholder=self._hint("rate", "scenario", True),
+                            id="set-rate")
                 yield Label("Dividend yield, %")
-                yield Input(_shown(s.div_yield, True), placeholder="from the scenario",
-                            id="set-yield")
+                yield Input(_shown(s.div_yield, True),
+                            placeholder=self._hint("div_yield", "scenario", True), id="set-yield")
                 yield Label("Spot")
-                yield Input(_shown(s.spot), placeholder="from the chain", id="set-spot")
+                yield Input(_shown(s.spot), placeholder=self._hint("spot", "chain"), id="set-spot")
                 yield Label("Quote date (YYYY-MM-DD)")
                 yield Input("" if s.asof is None else s.asof.isoformat(),
-                            placeholder="from the chain", id="set-asof")
+                            placeholder=self._hint("asof", "chain"), id="set-asof")
                 yield Label("Widest bid/ask spread, % of mid")
                 yield Input(_shown(s.max_spread, True), placeholder="loader default",
                             id="set-spread")
