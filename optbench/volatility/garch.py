@@ -380,7 +380,7 @@ class GarchFit:
         ``lambda`` for EWMA.
     std_errors : dict
         Robust (Bollerslev-Wooldridge 1992) standard errors, same keys (NaN where
-        not available).
+        not available); computed on first use, like ``cov``.
     loglik : float
         Log-likelihood of the decimal returns.
     aic, bic : float
@@ -401,14 +401,14 @@ class GarchFit:
     candidates : dict
         For ``model="auto"``: BIC of each candidate (None if it failed).
     cov : ndarray
-        Robust covariance of the parameters in ``param_names`` order (decimal units).
+        Robust covariance of the parameters in ``param_names`` order (decimal units),
+        computed on first use.
     """
 
     model: str
     dist: str
     mean: str
     params: dict
-    std_errors: dict
     loglik: float
     aic: float
     bic: float
@@ -420,12 +420,30 @@ class GarchFit:
     conditional_vol: np.ndarray = field(repr=False)
     std_resid: np.ndarray = field(repr=False)
     candidates: dict = field(default_factory=dict)
-    cov: np.ndarray = field(default=None, repr=False)
+    covariance_source: object = field(default=None, repr=False)
     param_names: tuple = ()
     backcast: float = float("nan")
     returns: np.ndarray = field(default=None, repr=False)
 
     # -- derived values --------------------------------------------------------------
+    @functools.cached_property
+    def cov(self) -> np.ndarray | None:
+        """Robust covariance of the parameters (``param_names`` order, decimal units),
+        computed on first use (None when the fit failed)."""
+        src = self.covariance_source
+        return src() if callable(src) else src
+
+    @functools.cached_property
+    def std_errors(self) -> dict:
+        """Robust (Bollerslev-Wooldridge 1992) standard errors, keyed like ``params``
+        (NaN where not available); computed on first use."""
+        cov = self.cov
+        out = {}
+        for i, n in enumerate(self.param_names):
+            v = float(cov[i, i]) if cov is not None and cov.size else float("nan")
+            out[n] = math.sqrt(v) if v >= 0 else float("nan")
+        return out
+
     @property
     def persistence(self) -> float:
         """alpha + beta (GARCH), alpha + gamma/2 + beta (GJR), beta (EGARCH), 1 (EWMA)."""
@@ -677,7 +695,7 @@ def _backcast_scaled(y_s, has_mu, backcast, scale):
 
 
 def _result(prob: _Problem, theta_s: np.ndarray, y: np.ndarray, scale: float, mean: str,
-            converged: bool, message: str, fallback_reason, candidates, cov_s=None,
+            converged: bool, message: str, fallback_reason, candidates, with_cov=False,
             n_free: int | None = None) -> GarchFit:
     model = prob.spec.name
     names = tuple(prob.names)
@@ -690,13 +708,13 @@ def _result(prob: _Problem, theta_s: np.ndarray, y: np.ndarray, scale: float, me
         params["lambda"] = EWMA_LAMBDA
         if mean == "constant":
             params = {"mu": float(np.mean(y)), **params}
-    if cov_s is None:
-        cov = np.zeros((0, 0)) if not names else None
+    if not names:
+        cov_source = np.zeros((0, 0))
+    elif with_cov:
+        def cov_source():   # the sandwich in the estimator's units, mapped to decimals
+            return J @ prob.robust_cov(theta_s) @ J.T
     else:
-        cov = J @ cov_s @ J.T
-    se = {}
-    for i, n in enumerate(names):
-        se[n] = float(math.sqrt(cov[i, i])) if (cov is not None and cov[i, i] >= 0) else float("nan")
+        cov_source = None
     k = len(names) if n_free is None else n_free
     s2 = s2_s / scale ** 2
     mu = params.get("mu", 0.0)
@@ -704,12 +722,12 @@ def _result(prob: _Problem, theta_s: np.ndarray, y: np.ndarray, scale: float, me
     e_last = np.array([y[-1] - mu])
     last = float(spec.next_variance(e_last, np.array([s2[-1]]), params)[0])
     return GarchFit(
-        model=model, dist=prob.dist.name, mean=mean, params=params, std_errors=se,
+        model=model, dist=prob.dist.name, mean=mean, params=params,
         loglik=ll, aic=-2 * ll + 2 * k, bic=-2 * ll + k * math.log(prob.n),
         n_obs=prob.n, converged=bool(converged), message=message,
         fallback_reason=fallback_reason, last_variance=last,
         conditional_vol=np.sqrt(s2), std_resid=(y - mu) / np.sqrt(s2),
-        candidates=dict(candidates or {}), cov=cov, param_names=names,
+        candidates=dict(candidates or {}), covariance_source=cov_source, param_names=names,
         backcast=prob.backcast / scale ** 2, returns=y)
 
 
@@ -751,9 +769,8 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast):
             r2, t2, p2 = run(starts[i])
             if p2 is None and (problem is not None or r2.fun < res.fun):
                 res, theta, problem = r2, t2, None
-    cov_s = prob.robust_cov(theta) if problem is None else None
     fit = _result(prob, theta, y, scale, mean, problem is None, str(res.message),
-                  None, None, cov_s=cov_s)
+                  None, None, with_cov=problem is None)
     return fit, problem
 
 
@@ -855,7 +872,7 @@ def fix_garch(returns, params: dict, model: str = "gjr", dist: str = "t",
 
     The result has the same interface as a fitted one (likelihood, conditional
     vols, forecasts, filtering, simulation); its standard errors are the robust
-    sandwich evaluated at the given parameters. ``converged`` is True and
+    sandwich evaluated at the given parameters (on first use). ``converged`` is True and
     ``message`` says the parameters were held.
     """
     y = _check_returns(returns)
@@ -875,6 +892,5 @@ def fix_garch(returns, params: dict, model: str = "gjr", dist: str = "t",
     theta = _to_scaled(model, prob.names, params, scale)
     if prob.loglik_obs(theta) is None:
         raise InputError("params", "give a non-positive variance on these returns")
-    cov_s = prob.robust_cov(theta)
     return _result(prob, theta, y, scale, mean, True, "parameters held fixed", None,
-                   None, cov_s=cov_s)
+                   None, with_cov=True)
