@@ -17,6 +17,7 @@ from optbench.tui.screens.workbench import VIEWS
 from tui_helpers import ROOT, SIZE, demo, run, settle, text_of
 
 
+@pytest.mark.slow
 def test_demo_opens_and_every_view_shows_the_comparison():
     run(_test_demo_opens_and_every_view_shows_the_comparison())
 
@@ -135,6 +136,7 @@ async def _test_hedge_planner_equals_the_hedge_command():
         assert app.is_running
 
 
+@pytest.mark.slow
 def test_export_writes_the_table_and_says_where(tmp_path):
     run(_test_export_writes_the_table_and_says_where(tmp_path))
 
@@ -159,6 +161,7 @@ async def _test_export_writes_the_table_and_says_where(tmp_path):
         assert any(str(target) in str(n.message) for n in app._notifications)
 
 
+@pytest.mark.slow
 def test_broken_file_is_a_clear_message_and_the_app_keeps_running(tmp_path):
     run(_test_broken_file_is_a_clear_message_and_the_app_keeps_running(tmp_path))
 
@@ -192,6 +195,7 @@ async def _test_broken_file_is_a_clear_message_and_the_app_keeps_running(tmp_pat
         assert app.is_running
 
 
+@pytest.mark.slow
 def test_changing_the_model_recomputes_and_drops_stale_work():
     run(_test_changing_the_model_recomputes_and_drops_stale_work())
 
