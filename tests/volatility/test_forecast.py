@@ -156,3 +156,13 @@ def test_band_matches_draw_spread_in_closed_form(pct_returns):
     grad[names.index("beta")] = lr / (2 * (1 - a - b))
     sd = math.sqrt(grad @ fit.cov @ grad)
     assert (hi[0] - lo[0]) == pytest.approx(2 * 1.645 * sd, rel=0.35)
+
+
+@pytest.mark.parametrize("dist", ["normal", "t"])
+def test_egarch_band_brackets_the_forecast(pct_returns, dist):
+    y = pct_returns.to_numpy()[-2500:] / 100
+    fit = fit_garch(y, "egarch", dist)
+    assert fit.model == "egarch"
+    lo, hi = fit.forecast_band([5, 21, 126], seed=3)
+    mid = fit.forecast_vol([5, 21, 126])
+    assert np.all(lo < mid) and np.all(mid < hi)
