@@ -97,3 +97,7 @@ def hedge_csv(estimate, table: str = "summary") -> str:
     items += [("strikes", " ".join(f"{k:g}" for k in estimate.strikes)),
               ("collar_note", estimate.collar_note), ("caution", estimate.caution)]
     return write_rows(["item", "value"], items, comment)
+
+
+#: public name of the comment line builder (title, underlying, as-of, model, caution)
+comment_line = _comment
