@@ -15,7 +15,7 @@ from textual import on, work
 from textual.app import App
 from textual.binding import Binding
 from textual.message import Message
-from textual.widgets import ProgressBar, Static, TabbedContent
+from textual.widgets import ProgressBar, Static, TabbedContent, Tabs
 from textual.worker import get_current_worker
 
 from optbench.errors import InputError
@@ -32,6 +32,7 @@ _VIEW_TABLE = {"overview": "report", "term": "expiries", "smile": "strikes",
 #: simulation, smiles, out-of-sample check, ...), the headline hedge
 STEPS = 8
 VIEW_KEYS = Binding.Group(description="views", compact=True)
+EXPIRY_KEYS = Binding.Group(description="expiry", compact=True)
 
 
 class Progress(Message):
@@ -94,6 +95,10 @@ class Workbench(App):
     TITLE = "optbench"
     BINDINGS = [
         *[Binding(key, f"view('{vid}')", title, id=f"view.{vid}", group=VIEW_KEYS) for vid, key, title in VIEWS],
+        Binding("left_square_bracket", "step_expiry(-1)", "Previous expiry", key_display="[",
+                id="app.prev_expiry", group=EXPIRY_KEYS),
+        Binding("right_square_bracket", "step_expiry(1)", "Next expiry", key_display="]",
+                id="app.next_expiry", group=EXPIRY_KEYS),
         Binding("o", "open", "Open", id="app.open"),
         Binding("m", "settings", "Model & market", id="app.settings"),
         Binding("r", "recompute", "Recompute", id="app.recompute"),
@@ -254,12 +259,26 @@ class Workbench(App):
 
     # --------------------------------------------------------------- actions
     def action_view(self, view_id: str) -> None:
-        tabs = self.screen_stack[0].query_one("#views", TabbedContent)
+        screen = self.screen_stack[0]
+        tabs = screen.query_one("#views", TabbedContent)
+        # focus on the tab bar: a widget focused in the old view would pull it back
+        tabs.query_one(Tabs).focus()
         tabs.active = view_id
 
     @property
     def active_view(self) -> str:
         return self.screen_stack[0].query_one("#views", TabbedContent).active
+
+    def action_step_expiry(self, step: int) -> None:
+        """[ and ]: the previous / next expiry in the smile or rich / cheap view."""
+        view = self.active_view
+        if view == "smile":
+            self.view("smile").action_step(step)
+        elif view == "richcheap":
+            self.view("richcheap").step_expiry(step)
+        else:
+            self.notify("[ and ] step through expiries in the Smile and Rich / cheap views",
+                        timeout=3)
 
     def action_leave_field(self) -> None:
         """Escape: leave a text field so the view keys work again."""
@@ -330,11 +349,9 @@ class Workbench(App):
 
     def action_help(self) -> None:
         from optbench.tui.screens.help import HelpScreen
-        from optbench.tui.views.smile import SmileView
         from optbench.tui.widgets.table import SortableTable
         groups = [("everywhere", list(self.BINDINGS)),
                   ("tables", list(SortableTable.BINDINGS)),
-                  ("smile", list(SmileView.BINDINGS)),
                   ("dialogs", [Binding("escape", "", "Cancel the dialog"),
                                Binding("ctrl+s", "", "Apply / export"),
                                Binding("tab", "", "Next field")])]

@@ -62,6 +62,17 @@ async def _test_demo_opens_and_every_view_shows_the_comparison():
         assert first.endswith(f"{min(e for e in edge if e == e):+.2f}")
         await pilot.press("s")  # again: high to low
         assert strikes.get_row_at(0)[col].plain.endswith(f"{max(e for e in edge if e == e):+.2f}")
+        # [ and ] step through the expiries of the smile and rich / cheap views
+        await pilot.press("3")
+        smile = app.screen.query_one("#smile-expiry", Select)
+        before_smile = smile.value
+        await pilot.press("right_square_bracket")
+        await pilot.pause()
+        isos = [r.expiry.isoformat() for r in c.expiries]
+        assert isos.index(smile.value) == isos.index(before_smile) + 1
+        await pilot.press("4", "right_square_bracket")
+        await pilot.pause()
+        assert app.view("richcheap").expiry == isos[1]
         # data quality: the counts add up and every rejected row is listed
         q = c.quality
         assert q["rows_in"] == q["rows_used"] + sum(q["rejected"].values())

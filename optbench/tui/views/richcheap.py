@@ -8,6 +8,7 @@ from textual import on
 from textual.app import ComposeResult
 from textual.containers import Vertical
 from textual.widgets import DataTable, Static
+from textual.widgets.data_table import RowDoesNotExist
 
 from optbench.tui import fmt
 from optbench.tui.widgets.table import SortableTable
@@ -115,6 +116,20 @@ class RichCheapView(Deferred, Vertical):
         raw, shown = strike_rows(table)
         self.query_one("#rc-strikes", SortableTable).set_rows(
             STRIKE_COLUMNS, raw, shown, keys=[f"{r[0]}{r[1]}-{r[14]}" for r in raw])
+
+    def step_expiry(self, step: int) -> None:
+        """Show the strikes of the previous / next expiry (and move the cursor there)."""
+        if self._comparison is None or not self._comparison.expiries:
+            return
+        values = [r.expiry.isoformat() for r in self._comparison.expiries]
+        i = values.index(self.expiry) + step if self.expiry in values else 0
+        iso = values[max(0, min(len(values) - 1, i))]
+        self.show_strikes(iso)
+        table = self.query_one("#rc-expiries", SortableTable)
+        try:
+            table.move_cursor(row=table.get_row_index(iso))
+        except RowDoesNotExist:  # on another page of the table: the strikes still change
+            pass
 
     @on(DataTable.CellHighlighted, "#rc-expiries")
     def _picked(self, event: DataTable.CellHighlighted) -> None:

@@ -5,7 +5,6 @@ from __future__ import annotations
 import numpy as np
 from textual import on
 from textual.app import ComposeResult
-from textual.binding import Binding
 from textual.containers import Horizontal, Vertical
 from textual.widgets import Label, Select, Static
 
@@ -68,11 +67,6 @@ def smile_plot(comparison, row) -> PlotSpec:
 
 
 class SmileView(Deferred, Vertical):
-    BINDINGS = [
-        Binding("left_square_bracket", "step(-1)", "Prev expiry", id="smile.prev"),
-        Binding("right_square_bracket", "step(1)", "Next expiry", id="smile.next"),
-    ]
-
     def __init__(self, **kwargs) -> None:
         super().__init__(**kwargs)
         self._comparison = None
