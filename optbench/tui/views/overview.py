@@ -30,7 +30,12 @@ def headline_text(comparison, estimate) -> Text:
     text.append(" and the model expects it to pay back ")
     text.append(fmt.money(estimate.expected_payoff), style="bold")
     text.append(f" — paying {fmt.money(estimate.overpay, signed=True)} over the model's "
-                "expected payoff.\n")
+                "expected payoff.")
+    if estimate.legs:
+        leg = estimate.legs[0]
+        text.append(f" The put is quoted at {fmt.pct(leg.iv_mid)}% implied vol (mid) against "
+                    f"a forecast of {fmt.pct(leg.forecast_vol)}%.")
+    text.append("\n")
     row = None
     for r in comparison.expiries:
         if r.expiry == estimate.expiry:
