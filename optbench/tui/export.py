@@ -83,7 +83,7 @@ def render(comparison, estimate, request: ExportRequest, *, expiry: str | None =
             raise InputError("export", "no expiry on screen: pick one in the rich / cheap view")
         frame = comparison.strike_frame(expiry)
         if fmt == "csv":
-            return rcsv.frame_csv(frame, rcsv._comment(f"compare strikes {expiry}", comparison))
+            return rcsv.frame_csv(frame, rcsv.comment_line(f"compare strikes {expiry}", comparison))
         if fmt == "md":
             return markdown.comparison_markdown(comparison, strikes_for=[expiry])
         return _frame_json(frame)
@@ -96,7 +96,7 @@ def render(comparison, estimate, request: ExportRequest, *, expiry: str | None =
         import pandas as pd
         frame = pd.DataFrame(columns=["line", "reason", "detail"])
     if fmt == "csv":
-        return rcsv.frame_csv(frame, rcsv._comment("rejected rows", comparison))
+        return rcsv.frame_csv(frame, rcsv.comment_line("rejected rows", comparison))
     return _frame_json(frame)
 
 
