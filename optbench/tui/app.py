@@ -354,6 +354,7 @@ class Workbench(App):
                   ("tables", list(SortableTable.BINDINGS)),
                   ("dialogs", [Binding("escape", "", "Cancel the dialog"),
                                Binding("ctrl+s", "", "Apply / export"),
+                               Binding("ctrl+o", "", "Open what the file picker shows"),
                                Binding("tab", "", "Next field")])]
         self.push_screen(HelpScreen(groups))
 
