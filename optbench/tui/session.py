@@ -9,7 +9,6 @@ from __future__ import annotations
 import datetime as _dt
 from dataclasses import dataclass, field, replace
 from pathlib import Path
-from typing import Any
 
 from optbench.errors import InputError
 from optbench.tui.dialogs.requests import OpenRequest, Settings

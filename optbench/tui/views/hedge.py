@@ -13,7 +13,7 @@ from rich.table import Table
 from rich.text import Text
 from textual import on, work
 from textual.app import ComposeResult
-from textual.containers import Grid, Horizontal, Vertical, VerticalScroll
+from textual.containers import Horizontal, VerticalScroll
 from textual.message import Message
 from textual.widgets import Input, Label, Select, Static
 from textual.worker import get_current_worker
