@@ -49,11 +49,17 @@ def smile_plot(comparison, row) -> PlotSpec:
     if curve is not None:
         series.insert(0, Series(f"fitted smile ({row.smile.get('method', 'svi')})", grid,
                                 curve * 100, color="yellow"))
-    series.append(Series(f"ATM {fmt.pct(row.atm_iv)}% at the forward", [row.forward],
+    if curve is None:
+        # points of the fitted smile the comparison reports: 90 % and 95 % of spot
+        spot = comparison.spot
+        series.append(Series("fit at 90/95% of spot", [0.90 * spot, 0.95 * spot],
+                             [row.iv_90 * 100, row.iv_95 * 100], kind="points",
+                             color="yellow", marker="◇"))
+    series.append(Series(f"ATM {fmt.pct(row.atm_iv)}%", [row.forward],
                          [row.atm_iv * 100], kind="points", color="bright_green", marker="◎"))
     series.append(Series(f"forecast {fmt.pct(row.forecast_vol)}%", [k.min(), k.max()],
                          [row.forecast_vol * 100] * 2, color="bright_blue"))
-    series.append(Series("forecast band", [k.min(), k.max()], [row.forecast_low * 100] * 2,
+    series.append(Series("band", [k.min(), k.max()], [row.forecast_low * 100] * 2,
                          kind="band", y2=[row.forecast_high * 100] * 2, color="grey23"))
     # draw the band first so everything sits on top of it
     series = [series[-1]] + series[:-1]
@@ -61,9 +67,7 @@ def smile_plot(comparison, row) -> PlotSpec:
         title=(f"Smile {fmt.date(row.expiry)} ({fmt.tenor(row.calendar_days)}), implied vol % "
                f"by strike, out-of-the-money quotes; forward {fmt.num(row.forward)}"),
         series=tuple(series), x_format="{:.0f}",
-        extra_legend=(() if curve is not None else
-                      (("", "(no fitted curve: the comparison does not carry the smile's "
-                            "parameters)"),)))
+        extra_legend=())
 
 
 class SmileView(Deferred, Vertical):
