@@ -21,16 +21,23 @@ the constraints :math:`c \\ge 0`, :math:`|d| \\le c` become the box
 squares is solved exactly (every active set of the box is tried in closed form,
 batched in numpy over candidate :math:`(m, \\sigma)`). The outer problem in
 :math:`(m, \\sigma)` is searched on a coarse grid; from the three best grid points
-that lie in distinct regions, a finer grid and then Levenberg-Marquardt steps on all
-five parameters (kept only while feasible and improving) polish the fit. The search
-is deterministic and needs no starting guess.
+that lie in distinct regions, a finer grid and then a variable-projection
+Levenberg-Marquardt polish in :math:`(m, \\ln\\sigma)` (Golub & Pereyra 1973,
+Kaufman 1975: Gauss-Newton steps of the reduced problem, each trial point scored by
+the exact inner solve) refine the fit, all starts and several damping factors in
+one batched step. The search is deterministic and needs no starting guess.
 
 References: J. Gatheral, "A parsimonious arbitrage-free implied volatility
 parameterization with application to the valuation of volatility derivatives",
 Global Derivatives, Madrid, 2004; J. Gatheral, *The Volatility Surface*, Wiley 2006,
 ch. 3; S. De Marco and C. Martini, "Quasi-explicit calibration of Gatheral's SVI
 model", 2009; J. Gatheral and A. Jacquier, "Arbitrage-free SVI
-volatility surfaces", Quantitative Finance 14 (2014).
+volatility surfaces", Quantitative Finance 14 (2014); G. H. Golub and V. Pereyra,
+"The differentiation of pseudo-inverses and nonlinear least squares problems whose
+variables separate", SIAM J. Numer. Anal. 10 (1973); L. Kaufman, "A variable
+projection method for solving separable nonlinear least squares problems", BIT 15
+(1975); D. W. Marquardt, "An algorithm for least-squares estimation of nonlinear
+parameters", J. SIAM 11 (1963).
 """
 from __future__ import annotations
 
@@ -50,6 +57,7 @@ _GRID = ((21, 17), (11, 9))   # (m, log sigma) points: coarse grid, zoom around 
 _STARTS = 3                    # local minima of the coarse grid polished
 _SIGMA_MIN = 1e-4     # smallest SVI sigma (log-moneyness units)
 _SIGMA_GRID = (0.01, 2.0)  # coarse-grid sigma range, as fractions of the k range
+_CRAWL = 0.1         # a start behind a finished one stops when a step gains less
 
 
 @dataclass(frozen=True)
@@ -145,80 +153,135 @@ class SviFit:
 # inner problem: exact box-constrained weighted least squares, batched
 # ---------------------------------------------------------------------------
 
+#: free coefficients (a, u, v) of each active set tried by :func:`_inner`; the last
+#: row is the all-zero fallback
+_FREE = np.array([[1, 1, 1], [1, 0, 1], [1, 1, 0], [1, 0, 0],
+                  [0, 1, 1], [0, 1, 0], [0, 0, 1], [0, 0, 0]], dtype=float)
+
+
+#: elements per block of the (candidates, quotes) arrays in :func:`_moments`: blocks
+#: of at most ~96 kB are reused by the allocator instead of being mapped afresh
+_BLOCK = 12_000
+
+
+def _basis(k: np.ndarray, m: np.ndarray, s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``P = (r + y)/2`` and ``Q = (r - y)/2`` with ``y = (k - m)/s``,
+    ``r = sqrt(y**2 + 1)``; shape (p, n)."""
+    y = np.subtract(k[None, :], m[:, None])
+    y /= s[:, None]
+    r = np.multiply(y, y)
+    r += 1.0
+    np.sqrt(r, out=r)
+    P = np.add(r, y)
+    P *= 0.5
+    Q = np.subtract(r, P, out=y)
+    return P, Q
+
+
+def _moments(k: np.ndarray, W2: np.ndarray, m: np.ndarray, s: np.ndarray):
+    """Weighted sums of the inner least squares for each candidate (m, s):
+    ``P'wt, P'(wt w), Q'wt, Q'(wt w), (P*P)'wt, (Q*Q)'wt``, each of shape (p,), and
+    ``(P, Q)`` when all candidates fit in one block (else None). Computed in blocks
+    of candidates, in place."""
+    p, n = m.size, k.size
+    rows = max(1, _BLOCK // max(n, 1))
+    wt = W2[:, 0]
+    out = np.empty((6, p))
+    PQ = None
+    for i in range(0, p, rows):
+        sl = slice(i, min(i + rows, p))
+        P, Q = _basis(k, m[sl], s[sl])
+        gP, gQ = P @ W2, Q @ W2
+        out[0, sl], out[1, sl] = gP[:, 0], gP[:, 1]
+        out[2, sl], out[3, sl] = gQ[:, 0], gQ[:, 1]
+        sq = np.multiply(P, P)
+        out[4, sl] = sq @ wt
+        np.multiply(Q, Q, out=sq)
+        out[5, sl] = sq @ wt
+        if rows >= p:
+            PQ = (P, Q)
+    return (*out, PQ)
+
+
+
 def _inner(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m: np.ndarray,
-           s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+           s: np.ndarray, exact: bool = False,
+           ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     r"""Best (a, u, v) and weighted squared error for each candidate (m, s).
 
     ``k, w, wt`` have shape (n,); ``m, s`` shape (p,). Returns coefficients of shape
-    (p, 3) and objective of shape (p,).
+    (p, 3), objective of shape (p,) and the index of the active set taken (a row of
+    ``_FREE``).
 
     With :math:`y = (k - m)/s`, :math:`r = \sqrt{y^2 + 1}`, the model is
     :math:`w = a + u P + v Q` with :math:`P = (r + y)/2`, :math:`Q = (r - y)/2`
     (so :math:`u = c + d`, :math:`v = c - d` and :math:`PQ = 1/4`). Every active
     set of the constraints :math:`u \ge 0`, :math:`v \ge 0` is solved in closed
-    form, with ``a`` free (kept where :math:`a + \sqrt{uv} \ge 0`, i.e. the
-    minimum variance is not negative) and with ``a = 0`` (a sufficient condition);
-    the feasible solution of least error is kept. For a convex quadratic this is
-    the exact constrained minimum over the sets tried.
+    form (Cramer's rule on the normal equations), with ``a`` free (kept where
+    :math:`a + \sqrt{uv} \ge 0`, i.e. the minimum variance is not negative) and with
+    ``a = 0`` (a sufficient condition); the feasible solution of least error is kept.
+    For a convex quadratic this is the exact constrained minimum over the sets tried.
+    The seven sets are evaluated together as (7, p) arrays. The objective is the
+    expanded quadratic :math:`\|w\|^2 - 2c^\top h + c^\top G c`; with ``exact`` it
+    is recomputed from the residuals of the set taken (full precision near a zero
+    residual, for the polish).
     """
-    y = (k[None, :] - m[:, None]) / s[:, None]                      # (p, n)
-    r = np.sqrt(y * y + 1.0)
-    P = 0.5 * (r + y)
-    Q = 0.5 * (r - y)
     wtw = wt * w
+    W2 = np.stack([wt, wtw], axis=1)                                # (n, 2)
+    g01, h1, g02, h2, g11, g22, PQ = _moments(k, W2, m, s)
     g00 = float(wt.sum())
-    g01, g02 = P @ wt, Q @ wt
-    g11, g22 = (P * P) @ wt, (Q * Q) @ wt
     g12 = 0.25 * g00
     h0 = float(wtw.sum())
-    h1, h2 = P @ wtw, Q @ wtw
     ww = float(wtw @ w)
-    zero = np.zeros_like(g01)
+    p = g01.size
     tiny = 1e-300
-    cands = []
-    # (a, u, v) all free: Cramer's rule
-    c00 = g11 * g22 - g12 * g12
-    c01 = g02 * g12 - g01 * g22
-    c02 = g01 * g12 - g02 * g11
-    c11 = g00 * g22 - g02 * g02
-    c12 = g01 * g02 - g00 * g12
-    c22 = g00 * g11 - g01 * g01
-    det = g00 * c00 + g01 * c01 + g02 * c02
-    det = np.where(np.abs(det) > tiny, det, np.nan)
-    cands.append(((c00 * h0 + c01 * h1 + c02 * h2) / det,
-                  (c01 * h0 + c11 * h1 + c12 * h2) / det,
-                  (c02 * h0 + c12 * h1 + c22 * h2) / det))
+    A = np.zeros((7, p))
+    U = np.zeros((7, p))
+    V = np.zeros((7, p))
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        # (a, u, v) all free: Cramer's rule
+        c00 = g11 * g22 - g12 * g12
+        c01 = g02 * g12 - g01 * g22
+        c02 = g01 * g12 - g02 * g11
+        c11 = g00 * g22 - g02 * g02
+        c12 = g01 * g02 - g00 * g12
+        c22 = g00 * g11 - g01 * g01
+        det = g00 * c00 + g01 * c01 + g02 * c02
+        det = np.where(np.abs(det) > tiny, det, np.nan)
+        A[0] = (c00 * h0 + c01 * h1 + c02 * h2) / det
+        U[0] = (c01 * h0 + c11 * h1 + c12 * h2) / det
+        V[0] = (c02 * h0 + c12 * h1 + c22 * h2) / det
 
-    def pair(gii, gij, gjj, hi, hj):
-        d = gii * gjj - gij * gij
-        d = np.where(np.abs(d) > tiny, d, np.nan)
-        return (gjj * hi - gij * hj) / d, (gii * hj - gij * hi) / d
+        def pair(gii, gij, gjj, hi, hj):
+            d = gii * gjj - gij * gij
+            d = np.where(np.abs(d) > tiny, d, np.nan)
+            return (gjj * hi - gij * hj) / d, (gii * hj - gij * hi) / d
 
-    a_, v_ = pair(g00, g02, g22, h0, h2)                  # u = 0
-    cands.append((a_, zero, v_))
-    a_, u_ = pair(g00, g01, g11, h0, h1)                  # v = 0
-    cands.append((a_, u_, zero))
-    cands.append((zero + h0 / g00, zero, zero))          # u = v = 0
-    u_, v_ = pair(g11, g12, g22, h1, h2)                  # a = 0
-    cands.append((zero, u_, v_))
-    cands.append((zero, h1 / g11, zero))                 # a = v = 0
-    cands.append((zero, zero, h2 / g22))                 # a = u = 0
-    best_obj = np.full(g01.shape, np.inf)
-    best = np.zeros(g01.shape + (3,))
-    for a, u, v in cands:
-        obj = (ww - 2.0 * (a * h0 + u * h1 + v * h2)
-               + a * a * g00 + u * u * g11 + v * v * g22
-               + 2.0 * (a * u * g01 + a * v * g02 + u * v * g12))
-        ok = (u >= 0) & (v >= 0) & (a + np.sqrt(np.maximum(u * v, 0.0)) >= 0)
-        take = ok & (obj < best_obj)
-        best_obj = np.where(take, obj, best_obj)
-        best[take] = np.stack([a, u, v], axis=-1)[take]
+        A[1], V[1] = pair(g00, g02, g22, h0, h2)          # u = 0
+        A[2], U[2] = pair(g00, g01, g11, h0, h1)          # v = 0
+        A[3] = h0 / g00                                   # u = v = 0
+        U[4], V[4] = pair(g11, g12, g22, h1, h2)          # a = 0
+        U[5] = h1 / g11                                   # a = v = 0
+        V[6] = h2 / g22                                   # a = u = 0
+        # each set's solution satisfies its normal equations, so c'Gc = c'h there
+        obj = ww - (A * h0 + U * h1 + V * h2)
+        ok = (U >= 0) & (V >= 0) & (A + np.sqrt(np.maximum(U * V, 0.0)) >= 0)
+    obj = np.where(ok & np.isfinite(obj), obj, np.inf)
+    sets = np.argmin(obj, axis=0)
+    cols = np.arange(p)
+    best_obj = obj[sets, cols]
+    best = np.stack([A[sets, cols], U[sets, cols], V[sets, cols]], axis=1)
     flat = ~np.isfinite(best_obj)
     if np.any(flat):
         # a = u = v = 0 is always feasible
         best[flat] = 0.0
         best_obj[flat] = ww
-    return best, np.maximum(best_obj, 0.0)
+        sets[flat] = 7
+    if exact:
+        P, Q = PQ if PQ is not None else _basis(k, m, s)
+        e = best[:, 0:1] + best[:, 1:2] * P + best[:, 2:3] * Q - w
+        best_obj = (e * e) @ wt
+    return best, np.maximum(best_obj, 0.0), sets
 
 
 def _raw_params(coef: np.ndarray, m: float, s: float) -> tuple[float, float, float]:
@@ -230,62 +293,167 @@ def _raw_params(coef: np.ndarray, m: float, s: float) -> tuple[float, float, flo
     return a, b, float(np.clip(rho, -1.0, 1.0))
 
 
-def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray,
-            x0: tuple[float, float, float, float, float],
-            max_iter: int = 100) -> tuple[tuple[float, ...], float, bool]:
-    """Levenberg-Marquardt steps on all five raw SVI parameters from ``x0``.
+#: for each active set of :func:`_inner` (rows of ``_FREE[:7]``), which entries of
+#: the 3 x 3 normal equations are kept (the others become an identity row/column)
+_KEEP7 = (_FREE[:7, :, None] * _FREE[:7, None, :]).astype(bool)
+_EYE3 = np.eye(3)
 
-    A step is kept only if it lowers the weighted squared error and stays inside
-    the constraints (b >= 0, |rho| < 1, sigma > 0, non-negative minimum variance).
-    Returns the parameters, their objective and whether the steps settled.
+
+def _inner_few(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m: np.ndarray,
+               s: np.ndarray) -> tuple[np.ndarray, ...]:
+    """:func:`_inner` for a few candidates (the polish's trial points), with the
+    seven active sets solved by one batched ``numpy.linalg.solve`` and the
+    objective taken from the residuals. Also returns the basis ``P, Q``."""
+    P, Q = _basis(k, m, s)
+    wtw = wt * w
+    W2 = np.stack([wt, wtw], axis=1)
+    gP, gQ = P @ W2, Q @ W2
+    p = m.size
+    g00 = float(wt.sum())
+    G = np.empty((p, 3, 3))
+    G[:, 0, 0] = g00
+    G[:, 0, 1] = G[:, 1, 0] = gP[:, 0]
+    G[:, 0, 2] = G[:, 2, 0] = gQ[:, 0]
+    G[:, 1, 2] = G[:, 2, 1] = 0.25 * g00
+    G[:, 1, 1] = (P * P) @ wt
+    G[:, 2, 2] = (Q * Q) @ wt
+    h = np.empty((p, 3))
+    h[:, 0] = float(wtw.sum())
+    h[:, 1] = gP[:, 1]
+    h[:, 2] = gQ[:, 1]
+    G7 = np.where(_KEEP7[:, None], G[None], _EYE3)                  # (7, p, 3, 3)
+    H7 = h[None] * _FREE[:7, None, :]
+    C = np.linalg.solve(G7, H7[..., None])[..., 0]                  # (7, p, 3)
+    # each set's solution satisfies its normal equations, so c'Gc = c'h there
+    obj = float(wtw @ w) - (C * h).sum(-1)
+    with np.errstate(invalid="ignore"):
+        ok = (C[..., 1:].min(-1) >= 0) & (
+            C[..., 0] + np.sqrt(np.maximum(C[..., 1] * C[..., 2], 0.0)) >= 0)
+    obj = np.where(ok & np.isfinite(obj), obj, np.inf)
+    sets = np.argmin(obj, axis=0)
+    cols = np.arange(p)
+    best = C[sets, cols]
+    flat = ~np.isfinite(obj[sets, cols])
+    if np.any(flat):
+        best[flat] = 0.0
+        sets[flat] = 7
+    e = best[:, 0:1] + best[:, 1:2] * P + best[:, 2:3] * Q - w
+    return best, (e * e) @ wt, sets, P, Q
+
+
+def _inner_exact(k, w, wt, m, s):
+    """:func:`_inner_few`, or the closed forms of :func:`_inner` (with the objective
+    from the residuals) should a set's normal equations be exactly singular."""
+    try:
+        return _inner_few(k, w, wt, m, s)
+    except np.linalg.LinAlgError:       # an exactly singular set: the closed forms
+        coef, obj, sets = _inner(k, w, wt, m, s, exact=True)
+        return (coef, obj, sets) + _basis(k, m, s)
+
+
+#: damping factors tried together in each polish step (times the start's lambda)
+_DAMPING = 10.0 ** np.array([-3.0, -1.0, 1.0, 3.0])
+
+
+def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m0: np.ndarray,
+            ls0: np.ndarray, bounds: tuple[float, float, float, float],
+            max_iter: int = 40) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    r"""Levenberg-Marquardt in (m, ln sigma) with the linear part solved exactly,
+    batched over starts and damping factors.
+
+    ``m0, ls0`` (shape (S,)) are the starts; ``bounds`` = (m_min, m_max, ln sigma
+    min, ln sigma max) clip the trial points. Returns m, ln sigma, coefficients
+    (a, u, v) of shape (S, 3) and objectives, each start's best point.
+
+    Notes
+    -----
+    Variable projection (Golub & Pereyra 1973) with Kaufman's (1975) Jacobian: at
+    the current :math:`(m, \ln\sigma)` the linear coefficients are optimal, so the
+    Gauss-Newton system of all five parameters,
+    :math:`J = \sqrt{\omega}\,[1, P, Q, \partial w/\partial m, \partial w/\partial\ln\sigma]`
+    with :math:`\partial w/\partial y = (uP - vQ)/r`, :math:`\partial y/\partial m = -1/\sigma`,
+    :math:`\partial y/\partial\ln\sigma = -y` (columns of coefficients held at 0 by
+    the active set dropped), gives the projected step in :math:`(m, \ln\sigma)`.
+    Each trial point is scored by the exact inner solve, so a step is kept only
+    when the reduced objective falls, and the constraints hold by construction.
+    Marquardt's scaling ``diag(J'J)``; every start tries the damping factors
+    ``_DAMPING`` at once (one batched solve and one batched inner solve per step)
+    and keeps the best. A start stops when its relative improvement is below 1e-10,
+    its step is negligible, or a round of steps fails to improve; once one start has
+    stopped, a start still behind it that gained less than ``_CRAWL`` (10 %) on its
+    last step stops too (it is creeping towards the same or a worse point). At most
+    ``max_iter`` rounds.
     """
     sw = np.sqrt(wt)
-
-    def resid(p):
-        a, b, rho, m, s = p
-        x = k - m
-        R = np.sqrt(x * x + s * s)
-        return sw * (a + b * (rho * x + R) - w), x, R
-
-    def feasible(p):
-        a, b, rho, m, s = p
-        return b >= 0 and abs(rho) < 1 and s >= _SIGMA_MIN and a + b * s * np.sqrt(1 - rho * rho) >= 0
-
-    p = np.array(x0, dtype=float)
-    e, x, R = resid(p)
-    obj = float(e @ e)
-    lam = 1e-3
-    settled = False
-    for _ in range(max_iter):
-        a, b, rho, m, s = p
-        J = np.stack([np.ones_like(x), rho * x + R, b * x, -b * (rho + x / R), b * s / R],
-                     axis=1) * sw[:, None]
-        A = J.T @ J
-        g = J.T @ e
-        diag = np.diag(np.diag(A)) + 1e-300
-        improved = False
-        for _ in range(8):
-            try:
-                step = np.linalg.solve(A + lam * diag, -g)
-            except np.linalg.LinAlgError:
-                lam *= 10.0
-                continue
-            q = p + step
-            if feasible(q):
-                e_q, x_q, R_q = resid(q)
-                obj_q = float(e_q @ e_q)
-                if obj_q < obj:
-                    improved = True
-                    done = obj - obj_q <= 1e-10 * max(obj, 1e-300) or np.all(
-                        np.abs(step) <= 1e-13 * (1.0 + np.abs(p)))
-                    p, e, x, R, obj = q, e_q, x_q, R_q, obj_q
-                    lam = max(lam / 3.0, 1e-12)
-                    break
-            lam *= 4.0
-        if not improved or done or obj <= 1e-30:
-            settled = True
+    n = k.size
+    m_min, m_max, ls_min, ls_max = bounds
+    m, ls = m0.astype(float).copy(), ls0.astype(float).copy()
+    coef, obj, sets, P, Q = _inner_exact(k, w, wt, m, np.exp(ls))
+    S = m.size
+    L = _DAMPING.size
+    lam = np.full(S, 1e-3)
+    live = np.ones(S, dtype=bool)
+    eye = np.eye(5)
+    rel = np.zeros(S)
+    for it in range(max_iter):
+        ia = np.flatnonzero(live)
+        if ia.size == 0:
             break
-    return tuple(float(v) for v in p), obj, settled
+        p = ia.size
+        mm, ll = m[ia], ls[ia]
+        Pa, Qa = P[ia], Q[ia]
+        y, r = Pa - Qa, Pa + Qa
+        c = coef[ia]
+        free = _FREE[sets[ia]]
+        e = sw * (c[:, 0:1] + c[:, 1:2] * Pa + c[:, 2:3] * Qa - w)
+        dwdy = (c[:, 1:2] * Pa - c[:, 2:3] * Qa) / r
+        dwdy *= sw
+        J = np.empty((p, n, 5))
+        J[:, :, 0] = free[:, 0:1] * sw
+        J[:, :, 1] = free[:, 1:2] * Pa * sw
+        J[:, :, 2] = free[:, 2:3] * Qa * sw
+        J[:, :, 3] = dwdy * (-1.0 / np.exp(ll))[:, None]
+        J[:, :, 4] = -dwdy * y
+        Jt = J.transpose(0, 2, 1)
+        A = Jt @ J                                                  # (p, 5, 5)
+        g = Jt @ e[:, :, None]                                      # (p, 5, 1)
+        d = np.diagonal(A, axis1=1, axis2=2)
+        d = np.where(d > 0, d, 1.0)
+        lams = lam[ia][:, None] * _DAMPING                           # (p, L)
+        Mx = A[:, None] + (lams[:, :, None, None] * eye) * d[:, None, None, :]
+        try:
+            step = np.linalg.solve(Mx, -np.repeat(g[:, None], L, axis=1))[..., 0]
+        except np.linalg.LinAlgError:
+            lam[ia] *= 1e4
+            live[ia] = False
+            continue
+        mt = np.clip(mm[:, None] + step[..., 3], m_min, m_max).ravel()
+        lt = np.clip(ll[:, None] + step[..., 4], ls_min, ls_max).ravel()
+        ct, ot, st, Pt, Qt = _inner_exact(k, w, wt, mt, np.exp(lt))
+        ot = np.where(np.isfinite(ot), ot, np.inf).reshape(p, L)
+        j = np.argmin(ot, axis=1)
+        pick = j + np.arange(p) * L
+        o_new = ot.ravel()[pick]
+        better = o_new < obj[ia]
+        obj_prev = obj.copy()
+        ib, pb = ia[better], pick[better]
+        if ib.size:
+            done = (obj[ib] - o_new[better] <= 1e-10 * np.maximum(obj[ib], 1e-300)) | (
+                (np.abs(mt[pb] - m[ib]) <= 1e-13 * (1.0 + np.abs(m[ib])))
+                & (np.abs(lt[pb] - ls[ib]) <= 1e-13 * (1.0 + np.abs(ls[ib]))))
+            m[ib], ls[ib] = mt[pb], lt[pb]
+            coef[ib], sets[ib], obj[ib] = ct[pb], st[pb], o_new[better]
+            P[ib], Q[ib] = Pt[pb], Qt[pb]
+            lam[ib] = np.maximum(lams.ravel()[pb] / 3.0, 1e-12)
+            live[ib] = ~done & (obj[ib] > 1e-30)
+        live[ia[~better]] = False
+        # a start still behind one that has finished and gaining little per step
+        # is heading for the same or a worse point: stop it
+        rel[ib] = (obj_prev[ib] - obj[ib]) / np.maximum(obj_prev[ib], 1e-300)
+        fin = ~live
+        if fin.any():
+            live &= ~((obj > obj[fin].min() * (1 + 1e-9)) & (rel < _CRAWL))
+    return m, ls, coef, obj
 
 
 def _check_inputs(k, w, weights, t) -> tuple[np.ndarray, np.ndarray, np.ndarray, float]:
@@ -351,7 +519,9 @@ def fit_svi(k: np.ndarray, w: np.ndarray, weights: np.ndarray | None = None, *,
     squares; the outer search covers :math:`m \\in [k_{min} - \\Delta, k_{max} + \\Delta]`
     and :math:`\\sigma \\in [0.01\\Delta, 2\\Delta]` on a log grid (:math:`\\Delta`
     the quotes' range of log-moneyness), then zooms and polishes from the three best
-    grid points in distinct regions (see the module notes). ``converged`` is False
+    grid points in distinct regions by variable-projection Levenberg-Marquardt in
+    :math:`(m, \\ln\\sigma)` (see the module notes and :func:`_polish`); the
+    result is never worse than the best zoomed grid point. ``converged`` is False
     when the result is degenerate (m outside that range, sigma at its floor of
     1e-4, or :math:`|\\rho| \\ge 0.999`).
 
@@ -382,7 +552,7 @@ def fit_svi(k: np.ndarray, w: np.ndarray, weights: np.ndarray | None = None, *,
     if n < 5:
         m0 = float(k[np.argmin(w)])
         s0 = max(0.5 * span, _SIGMA_MIN)
-        coef, _ = _inner(k, w, wt, np.array([m0]), np.array([s0]))
+        coef, _, _ = _inner(k, w, wt, np.array([m0]), np.array([s0]))
         a, b, rho = _raw_params(coef[0], m0, s0)
         return finish(a, b, rho, m0, s0, False,
                       f"{n} points: m and sigma held fixed, level/slope/curvature fitted",
@@ -396,7 +566,7 @@ def fit_svi(k: np.ndarray, w: np.ndarray, weights: np.ndarray | None = None, *,
     lsg = np.linspace(ls_lo, ls_hi, n_s)
     dm, dls = mg[1] - mg[0], lsg[1] - lsg[0]
     M, LS = np.meshgrid(mg, lsg, indexing="ij")
-    _, obj0 = _inner(k, w, wt, M.ravel(), np.exp(LS.ravel()))
+    _, obj0, _ = _inner(k, w, wt, M.ravel(), np.exp(LS.ravel()))
     obj0 = obj0.reshape(M.shape)
     # starts: the best grid points, each more than two cells from the ones already
     # taken (a narrow diagonal valley may have no grid-local minimum of its own, and
@@ -409,29 +579,26 @@ def fit_svi(k: np.ndarray, w: np.ndarray, weights: np.ndarray | None = None, *,
             cand.append((ci, cj))
             if len(cand) == _STARTS:
                 break
-    best = (np.inf, None, False)
-    for c in cand:
-        # zoom: a finer grid two cells either side of the start, then a polish
-        mc, lc = M[c], LS[c]
+    # zoom: a finer grid two cells either side of each start (one batched inner
+    # solve), then the polish from each zoomed minimum, all starts together
+    MZ, LZ = [], []
+    for ci, cj in cand:
+        mc, lc = M[ci, cj], LS[ci, cj]
         mz = np.linspace(max(mc - 2 * dm, m_lo), min(mc + 2 * dm, m_hi), z_m)
         lz = np.linspace(max(lc - 2 * dls, ls_lo), min(lc + 2 * dls, ls_hi), z_s)
-        MZ, LZ = np.meshgrid(mz, lz, indexing="ij")
-        coef, obj = _inner(k, w, wt, MZ.ravel(), np.exp(LZ.ravel()))
-        i = int(np.argmin(obj))
-        m_i, s_i = float(MZ.ravel()[i]), float(np.exp(LZ.ravel()[i]))
-        a, b, rho = _raw_params(coef[i], m_i, s_i)
-        params, val = (a, b, rho, m_i, s_i), float(obj[i])
-        if b > 0:
-            # start the polish inside the constraints (the grid's solution may sit on
-            # |rho| = 1); keep it only if it lowers the error
-            rho0 = float(np.clip(rho, -0.999, 0.999))
-            a0 = max(a, -b * s_i * np.sqrt(1.0 - rho0 * rho0))
-            p_pol, v_pol, _ = _polish(k, w, wt, (a0, b, rho0, m_i, s_i))
-            if v_pol < val:
-                params, val = p_pol, v_pol
-        if val < best[0]:
-            best = (val, params)
-    _, (a, b, rho, m_best, s_best) = best
+        mz, lz = np.meshgrid(mz, lz, indexing="ij")
+        MZ.append(mz.ravel())
+        LZ.append(lz.ravel())
+    MZ, LZ = np.array(MZ), np.array(LZ)
+    _, objz, _ = _inner(k, w, wt, MZ.ravel(), np.exp(LZ.ravel()))
+    iz = np.argmin(objz.reshape(MZ.shape), axis=1)
+    rows = np.arange(len(cand))
+    bounds = (m_lo - 10.0 * span, m_hi + 10.0 * span, np.log(_SIGMA_MIN),
+              ls_hi + np.log(10.0))
+    m_f, ls_f, coef_f, obj_f = _polish(k, w, wt, MZ[rows, iz], LZ[rows, iz], bounds)
+    ib = int(np.argmin(obj_f))
+    m_best, s_best = float(m_f[ib]), float(np.exp(ls_f[ib]))
+    a, b, rho = _raw_params(coef_f[ib], m_best, s_best)
     # m far outside the strikes or a vanishing sigma: the smile is nearly a straight
     # line or a corner over the quotes, and SVI's parameters are not identified
     degenerate = (m_best <= m_lo or m_best >= m_hi or s_best <= _SIGMA_MIN * 1.0001
