@@ -357,7 +357,7 @@ _DAMPING = 10.0 ** np.array([-3.0, -1.0, 1.0, 3.0])
 
 def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m0: np.ndarray,
             ls0: np.ndarray, bounds: tuple[float, float, float, float],
-            max_iter: int = 40) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+            max_iter: int = 20) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     r"""Levenberg-Marquardt in (m, ln sigma) with the linear part solved exactly,
     batched over starts and damping factors.
 
@@ -382,7 +382,9 @@ def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m0: np.ndarray,
     its step is negligible, or a round of steps fails to improve; once one start has
     stopped, a start still behind it that gained less than ``_CRAWL`` (10 %) on its
     last step stops too (it is creeping towards the same or a worse point). At most
-    ``max_iter`` rounds.
+    ``max_iter`` rounds: a nearly straight smile has its infimum at the edge of SVI's
+    parameter space (sigma -> 0 or m far outside the quotes) and would creep on; such
+    fits are flagged degenerate by :func:`fit_svi`.
     """
     sw = np.sqrt(wt)
     n = k.size
