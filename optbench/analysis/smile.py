@@ -263,8 +263,11 @@ def _inner(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m: np.ndarray,
         U[4], V[4] = pair(g11, g12, g22, h1, h2)          # a = 0
         U[5] = h1 / g11                                   # a = v = 0
         V[6] = h2 / g22                                   # a = u = 0
-        # each set's solution satisfies its normal equations, so c'Gc = c'h there
-        obj = ww - (A * h0 + U * h1 + V * h2)
+        # the full quadratic (not ww - c'h): exact for any c, also where the normal
+        # equations are ill-conditioned (sigma large against the quotes' spread)
+        obj = (ww - 2.0 * (A * h0 + U * h1 + V * h2)
+               + A * A * g00 + U * U * g11 + V * V * g22
+               + 2.0 * (A * U * g01 + A * V * g02 + U * V * g12))
         ok = (U >= 0) & (V >= 0) & (A + np.sqrt(np.maximum(U * V, 0.0)) >= 0)
     obj = np.where(ok & np.isfinite(obj), obj, np.inf)
     sets = np.argmin(obj, axis=0)
@@ -324,8 +327,8 @@ def _inner_few(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m: np.ndarray,
     G7 = np.where(_KEEP7[:, None], G[None], _EYE3)                  # (7, p, 3, 3)
     H7 = h[None] * _FREE[:7, None, :]
     C = np.linalg.solve(G7, H7[..., None])[..., 0]                  # (7, p, 3)
-    # each set's solution satisfies its normal equations, so c'Gc = c'h there
-    obj = float(wtw @ w) - (C * h).sum(-1)
+    obj = (float(wtw @ w) - 2.0 * (C * h).sum(-1)
+           + ((C[..., None, :] @ G)[..., 0, :] * C).sum(-1))
     with np.errstate(invalid="ignore"):
         ok = (C[..., 1:].min(-1) >= 0) & (
             C[..., 0] + np.sqrt(np.maximum(C[..., 1] * C[..., 2], 0.0)) >= 0)
