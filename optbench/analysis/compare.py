@@ -60,7 +60,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from pathlib import Path
 
 import numpy as np
@@ -153,6 +153,17 @@ def _quote_vols(q: pd.DataFrame, fwd: pd.DataFrame, spot: float):
             american)
 
 
+def _only_expiries(q: pd.DataFrame, expiries, source) -> pd.DataFrame:
+    """The quotes of the chosen expiries (the comparison then covers only those)."""
+    wanted = pd.to_datetime(pd.Index([pd.Timestamp(e) for e in expiries]))
+    listed = pd.to_datetime(q["expiry"])
+    missing = sorted(set(wanted) - set(listed))
+    if missing:
+        raise InputError("--expiry", f"{missing[0].date().isoformat()} is not an expiry "
+                                     f"with usable quotes in {source}")
+    return q[listed.isin(wanted).to_numpy()].reset_index(drop=True)
+
+
 def _interp_at_forward(k: np.ndarray, v: np.ndarray) -> float:
     """Linear interpolation of ``v`` at k = 0 (flat beyond the ends); NaN if empty."""
     ok = np.isfinite(k) & np.isfinite(v)
@@ -170,6 +181,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
             div_yield: float | None = None, band: tuple[float, float] = DEFAULT_BAND,
             n_paths: int = DEFAULT_N_PATHS, seed: int | None = DEFAULT_SEED,
             backtest: bool | _dt.date | str = False, fit=None,
+            expiries: Sequence[_dt.date] | None = None,
             progress: Callable[[str], None] | None = None) -> Comparison:
     """Compare the chain's implied vols with the fitted model's forecast.
 
@@ -188,6 +200,9 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     fit : a fitted or fixed-parameter model (``GarchFit`` from ``fit_garch`` or
         ``fix_garch`` on this history's returns) to use instead of fitting one; then
         ``model``, ``dist`` and ``mean`` are not used.
+    expiries : compare only these expiries (dates listed in the chain); the screen
+        uses it to work on the tenors it shows. Static-arbitrage flags across
+        expiries then look at these expiries only. Default: every expiry.
     progress : called with a short text before each long step (for views).
 
     Returns
@@ -225,6 +240,8 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     if not len(q):
         raise InputError(ch.source, "no usable quotes in the chain")
     q = q[q["t"] > 0].reset_index(drop=True)
+    if expiries is not None:
+        q = _only_expiries(q, expiries, ch.source)
     S, r0, q0 = float(ch.spot), float(ch.rate), float(ch.div_yield)
 
     # --- forwards and implied vols (vectorised over every quote)

@@ -8,6 +8,7 @@ import sys
 from optbench.commands.common import add_model_options, add_output_options, parse_float
 from optbench.commands.common import write_output
 from optbench.errors import InputError
+from optbench.screening.rows import DEFAULT_MODEL
 
 FORMATS = ("table", "json", "csv", "xlsx")
 
@@ -47,7 +48,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                         help="run on this Dask distributed scheduler (tcp://host:8786)")
     parser.add_argument("--paths", type=int, default=2000,
                         help="simulated paths per underlying (default: 2000)")
-    add_model_options(parser)
+    add_model_options(parser, default_model=DEFAULT_MODEL)
     add_output_options(parser, formats=FORMATS)
     parser.set_defaults(run=run)
     return parser

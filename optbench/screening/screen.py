@@ -13,8 +13,8 @@ from pathlib import Path
 
 from optbench.analysis.results import CAUTION
 from optbench.errors import InputError
-from optbench.screening.rows import (COLUMNS, DEFAULT_TENORS, NOTIONAL, ScreenTask,
-                                     failed_rows, screen_one)
+from optbench.screening.rows import (COLUMNS, DEFAULT_MODEL, DEFAULT_TENORS, NOTIONAL,
+                                     ScreenTask, failed_rows, screen_one)
 from optbench.screening.runner import TaskFailure, run_tasks
 from optbench.screening.universe import find_scenarios
 
@@ -92,7 +92,7 @@ def rank_rows(rows: Sequence[dict], column: str = DEFAULT_SORT,
 
 
 def screen(folder: str | Path, *, tenors: Sequence[int] = DEFAULT_TENORS,
-           floor: float = 0.90, model: str = "auto", dist: str = "t",
+           floor: float = 0.90, model: str = DEFAULT_MODEL, dist: str = "t",
            mean: str = "constant", sort: str = DEFAULT_SORT, descending: bool = True,
            workers: int | None = None, scheduler: str | None = None,
            n_paths: int = 2000, seed: int = 7, overrides: dict | None = None,
@@ -104,7 +104,8 @@ def screen(folder: str | Path, *, tenors: Sequence[int] = DEFAULT_TENORS,
     folder : a folder of scenario folders (or one scenario folder).
     tenors : target tenors in calendar days; each row uses the nearest listed expiry.
     floor : protection floor as a fraction of spot, in (0, 1].
-    model, dist, mean : the volatility model, as in ``compare``.
+    model, dist, mean : the volatility model, as in ``compare`` (default GJR-t; see
+        :data:`optbench.screening.rows.DEFAULT_MODEL`).
     sort, descending : the column to rank by (default: implied minus forecast,
         richest first).
     workers : local worker processes (default: the number of cores; 1 = in process).
