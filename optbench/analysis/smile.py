@@ -402,7 +402,7 @@ def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m0: np.ndarray,
     live = np.ones(S, dtype=bool)
     eye = np.eye(5)
     rel = np.zeros(S)
-    for it in range(max_iter):
+    for _ in range(max_iter):
         ia = np.flatnonzero(live)
         if ia.size == 0:
             break
