@@ -16,28 +16,15 @@ import json
 import numpy as np
 
 from optbench.commands.common import (add_model_options, add_output_options, parse_date,
-                                      parse_float, write_output)
+                                      parse_positive, whole_number, write_output)
 
 DEFAULT_OUT_OF_SAMPLE = 504   # trading days held out when --split is not given
 CAUTION = ("Model check on past data: estimates, not advice. Decisions belong with your "
            "licensed advisers and the rules of your exchange and broker.")
 
 
-def _positive_float(text: str) -> float:
-    value = parse_float(text)
-    if value <= 0:
-        raise argparse.ArgumentTypeError(f"must be positive: {text!r}")
-    return value
 
 
-def _positive_int(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not a whole number: {text!r}") from None
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"must be at least 1: {text!r}")
-    return value
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
@@ -55,9 +42,9 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                         help="last in-sample day, YYYY-MM-DD (default: hold out the last "
                              f"{DEFAULT_OUT_OF_SAMPLE} returns, leaving at least 250 to fit)")
     add_model_options(parser)
-    parser.add_argument("--k", type=_positive_float, default=3.0,
+    parser.add_argument("--k", type=parse_positive, default=3.0,
                         help="band width in standard deviations (default 3)")
-    parser.add_argument("--refit-every", dest="refit_every", type=_positive_int, default=None,
+    parser.add_argument("--refit-every", dest="refit_every", type=whole_number(1), default=None,
                         metavar="N", help="re-estimate the parameters every N out-of-sample "
                                           "days (default: hold them fixed)")
     add_output_options(parser)

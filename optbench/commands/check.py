@@ -17,24 +17,12 @@ import math
 from pathlib import Path
 
 from optbench.commands.common import (add_market_overrides, add_output_options,
-                                      market_overrides, parse_float, write_output)
+                                      market_overrides, parse_positive, whole_number,
+                                      write_output)
 
 
-def _positive(text: str) -> float:
-    value = parse_float(text)
-    if value <= 0:
-        raise argparse.ArgumentTypeError(f"must be positive: {text!r}")
-    return value
 
 
-def _count(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not a whole number: {text!r}") from None
-    if value < 0:
-        raise argparse.ArgumentTypeError(f"must be zero or positive: {text!r}")
-    return value
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
@@ -48,13 +36,13 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     add_market_overrides(parser)
     parser.add_argument("--style", choices=("european", "american"),
                         help="exercise style of every option (default: file, meta, european)")
-    parser.add_argument("--multiplier", type=_positive,
+    parser.add_argument("--multiplier", type=parse_positive,
                         help="contract multiplier of every option (default: file, meta, 100)")
-    parser.add_argument("--max-spread", dest="max_spread", type=_positive, default=None,
+    parser.add_argument("--max-spread", dest="max_spread", type=parse_positive, default=None,
                         help="largest accepted (ask-bid)/mid, a decimal (default 1.0 = 100%%)")
     parser.add_argument("--any-spread", dest="any_spread", action="store_true",
                         help="accept any bid-ask spread")
-    parser.add_argument("--rows", type=_count, default=10,
+    parser.add_argument("--rows", type=whole_number(0), default=10,
                         help="how many rejected rows to show (default 10; csv shows all)")
     parser.set_defaults(run=run)
     return parser

@@ -43,6 +43,28 @@ def parse_float(text: str) -> float:
     return value
 
 
+def parse_positive(text: str) -> float:
+    """argparse type for a finite number above zero."""
+    value = parse_float(text)
+    if value <= 0:
+        raise argparse.ArgumentTypeError(f"must be positive: {text!r}")
+    return value
+
+
+def whole_number(minimum: int = 0):
+    """argparse type for a whole number of at least ``minimum``."""
+    def parse(text: str) -> int:
+        try:
+            value = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"not a whole number: {text!r}") from None
+        if value < minimum:
+            raise argparse.ArgumentTypeError(f"must be at least {minimum}: {text!r}")
+        return value
+    parse.__name__ = f"whole number >= {minimum}"
+    return parse
+
+
 def add_market_overrides(parser: argparse.ArgumentParser) -> None:
     group = parser.add_argument_group("market overrides")
     group.add_argument("--spot", type=parse_float, help="underlying price at quote time")

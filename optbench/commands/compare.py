@@ -13,20 +13,12 @@ from pathlib import Path
 
 from optbench.commands.common import (add_market_overrides, add_model_options,
                                       add_output_options, market_overrides, parse_date,
-                                      write_output)
+                                      whole_number, write_output)
 from optbench.errors import InputError
 
 FORMATS = ("table", "json", "csv", "xlsx", "md", "html")
 
 
-def positive_int(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not a whole number: {text!r}") from None
-    if value <= 0:
-        raise argparse.ArgumentTypeError(f"must be positive: {text!r}")
-    return value
 
 
 def parse_band(text: str) -> tuple[float, float]:
@@ -51,7 +43,7 @@ def add_chain_arguments(parser: argparse.ArgumentParser) -> None:
     add_market_overrides(parser)
     add_model_options(parser)
     sim = parser.add_argument_group("simulation")
-    sim.add_argument("--paths", type=positive_int, default=None,
+    sim.add_argument("--paths", type=whole_number(1), default=None,
                      help="simulated paths of the fitted model (default: 2000 for compare, "
                           "20000 for hedge)")
     sim.add_argument("--seed", type=int, default=7, help="random seed (default: 7)")

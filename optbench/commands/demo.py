@@ -9,7 +9,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from optbench.commands.common import add_output_options, write_output
+from optbench.commands.common import add_output_options, whole_number, write_output
 from optbench.errors import InputError
 
 
@@ -21,14 +21,6 @@ def checkout_folder() -> Path | None:
     return None
 
 
-def _seed(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not a whole number: {text!r}") from None
-    if value < 0:
-        raise argparse.ArgumentTypeError(f"must be zero or positive: {text!r}")
-    return value
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
@@ -41,7 +33,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     parser.add_argument("--out", metavar="FOLDER", default=None,
                         help="scenario folder to write (default: chains/ZPHX of the "
                              "checkout optbench runs from)")
-    parser.add_argument("--seed", type=_seed, default=SEED,
+    parser.add_argument("--seed", type=whole_number(0), default=SEED,
                         help=f"random seed (default: {SEED}, the bundled scenario)")
     add_output_options(parser, formats=("table", "json"))
     parser.set_defaults(run=run)

@@ -11,9 +11,9 @@ import argparse
 import sys
 
 from optbench.commands.common import (add_output_options, market_overrides, parse_date,
-                                      write_output)
+                                      whole_number, write_output)
 from optbench.commands.compare import (FORMATS, add_chain_arguments, chain_source,
-                                       check_file_formats, positive_int, progress_printer)
+                                       check_file_formats, progress_printer)
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
@@ -37,7 +37,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     when = h.add_mutually_exclusive_group()
     when.add_argument("--expiry", type=parse_date, default=None, metavar="DATE",
                       help="expiry to use (a date in the chain)")
-    when.add_argument("--days", type=positive_int, default=None, metavar="N",
+    when.add_argument("--days", type=whole_number(1), default=None, metavar="N",
                       help="use the expiry nearest N calendar days (default: 91)")
     h.add_argument("--structure", choices=("put", "put-spread", "collar"), default="put",
                    help="protection structure (default: put)")

@@ -5,7 +5,8 @@ from __future__ import annotations
 import argparse
 import sys
 
-from optbench.commands.common import add_model_options, add_output_options, parse_float
+from optbench.commands.common import (add_model_options, add_output_options, parse_float,
+                                      whole_number)
 from optbench.commands.common import write_output
 from optbench.errors import InputError
 from optbench.screening.rows import DEFAULT_MODEL
@@ -42,11 +43,11 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                                                "iv_minus_forecast)")
     parser.add_argument("--ascending", action="store_true",
                         help="smallest first (default: largest first)")
-    parser.add_argument("--workers", type=int, default=None,
+    parser.add_argument("--workers", type=whole_number(1), default=None,
                         help="local worker processes (default: the number of cores)")
     parser.add_argument("--scheduler", metavar="ADDRESS", default=None,
                         help="run on this Dask distributed scheduler (tcp://host:8786)")
-    parser.add_argument("--paths", type=int, default=2000,
+    parser.add_argument("--paths", type=whole_number(100), default=2000,
                         help="simulated paths per underlying (default: 2000)")
     add_model_options(parser, default_model=DEFAULT_MODEL)
     add_output_options(parser, formats=FORMATS)

@@ -18,7 +18,7 @@ import pandas as pd
 
 from optbench.data.columns import map_history_columns
 from optbench.data.files import drop_blank_rows, read_table
-from optbench.data.parse import present, to_date, to_number
+from optbench.data.parse import to_date, to_number
 from optbench.errors import InputError
 
 GAP_DAYS = 7

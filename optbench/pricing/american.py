@@ -202,7 +202,6 @@ def _solve(P, S, K, t, r, q, c, steps, max_iter):
     secant steps on A(sigma) - P; bisection for whatever is left."""
     from optbench.pricing import implied as iv
 
-    n = P.size
     F = S * np.exp((r - q) * t)
     D = np.exp(-r * t)
     lo_vol = _low_vol(r, q, t, steps)

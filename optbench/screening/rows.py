@@ -65,7 +65,7 @@ def _num(x) -> float | None:
     return x if math.isfinite(x) else None
 
 
-def nearest_expiries(quotes, tenors) -> dict[int, "datetime.date"]:
+def nearest_expiries(quotes, tenors) -> dict:
     """For each tenor (calendar days), the listed expiry nearest to it (the shorter
     one on a tie), among expiries after the quote date."""
     days = quotes.loc[quotes["calendar_days"] > 0, ["expiry", "calendar_days"]]
