@@ -44,7 +44,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
         "fit", help="fit the volatility model: parameters, diagnostics, term structure",
         description=("Fit a GARCH-family model to the daily log returns of HISTORY and "
                      "show its parameters (robust standard errors), diagnostics and the "
-                     "forecast volatility term structure with a 5%%-95%% band from "
+                     "forecast volatility term structure with a 5%-95% band from "
                      "parameter uncertainty."))
     parser.add_argument("history", metavar="HISTORY",
                         help="history CSV/Parquet (date, close) or a scenario folder")
