@@ -22,7 +22,8 @@ from optbench.errors import InputError
 from optbench.volatility import forecast as fc
 from optbench.volatility.distributions import (NU_MIN, get_distribution, normal_loglik,
                                                std_t_loglik)
-from optbench.volatility.recursions import (SQRT_2_OVER_PI, backcast_value,
+from optbench.volatility.recursions import (LN_VARIANCE_CAP, SQRT_2_OVER_PI,
+                                            backcast_value,
                                             egarch_adjoint, egarch_log_variance,
                                             garch_variance, linear_filter,
                                             reverse_filter)
@@ -86,6 +87,7 @@ class _Problem:
         self.k = len(self.names)
         self.i_vol = 1 if has_mu else 0
         self.n_vol = len(self.spec.param_names)
+        self._h_guess = None   # last EGARCH log-variance path: the next solve's start
 
     def unpack(self, theta):
         mu = theta[0] if self.has_mu else 0.0
@@ -106,8 +108,7 @@ class _Problem:
                 out = (s2, np.delete(d, drop, axis=0))
             return eps, out
         if name == "egarch":
-            lnv = egarch_log_variance(eps, p["omega"], p["alpha"], p["gamma"], p["beta"],
-                                      math.log(self.backcast))
+            lnv = self._egarch_path(eps, p)
             return eps, np.exp(lnv)
         lam = EWMA_LAMBDA
         a = np.empty(self.n)
@@ -149,13 +150,22 @@ class _Problem:
             return 1e6
         return -float(np.mean(ll))
 
+    def _egarch_path(self, eps, p):
+        """EGARCH log-variances, started from the last path computed (the optimiser's
+        trial points are close to each other, so Newton needs few rounds)."""
+        h = egarch_log_variance(eps, p["omega"], p["alpha"], p["gamma"], p["beta"],
+                                math.log(self.backcast), start=self._h_guess)
+        if np.all(np.isfinite(h)) and float(np.max(np.abs(h))) < 0.5 * LN_VARIANCE_CAP:
+            self._h_guess = h
+        return h
+
     def _egarch_objective_grad(self, theta):
         """Minus the mean log-likelihood of EGARCH and its gradient by the adjoint
         recursion (:func:`optbench.volatility.recursions.egarch_adjoint`)."""
         mu, p, nu = self.unpack(theta)
         eps = self.y - mu
         hb = math.log(self.backcast)
-        h = egarch_log_variance(eps, p["omega"], p["alpha"], p["gamma"], p["beta"], hb)
+        h = self._egarch_path(eps, p)
         s2 = np.exp(h)
         if nu is None:
             ll, d_s2, d_e = normal_loglik(eps, s2, grad=True)
@@ -167,7 +177,7 @@ class _Problem:
             return 1e6, np.zeros(self.k)
         inv_s = np.exp(-0.5 * h)
         z = eps * inv_s
-        lam = egarch_adjoint(z.tolist(), d_s2 * s2, p["alpha"], p["gamma"], p["beta"])
+        lam = egarch_adjoint(z, d_s2 * s2, p["alpha"], p["gamma"], p["beta"])
         zl = z[:-1]
         l1 = lam[1:]
         grad = []

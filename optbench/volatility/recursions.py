@@ -6,11 +6,13 @@ recursions (GARCH, GJR-GARCH, EWMA) are written as a *blocked linear filter*:
 Toeplitz matrix of powers of ``b``, carrying the boundary value across blocks, so
 that no Python loop runs over the observations and the variance and all of its
 parameter derivatives are filtered in one matrix product. The EGARCH recursion is
-non-linear (the standardised residual feeds back), so it is a tight loop over
-time on Python floats.
+non-linear (the standardised residual feeds back); it is solved for the whole path
+at once by Newton's method, each round a time-varying linear recursion solved by a
+prefix scan of affine maps (:func:`affine_filter`), with the sequential loop as the
+fallback.
 
-Plain reference versions (:func:`linear_filter_loop`, :func:`garch_variance_loop`)
-are kept only so that tests can check the fast versions against them.
+Plain reference versions (:func:`linear_filter_loop`, :func:`garch_variance_loop`,
+:func:`affine_filter_loop`, :func:`egarch_adjoint_loop`) are kept only so that tests can check the fast versions against them.
 """
 from __future__ import annotations
 
@@ -223,21 +225,136 @@ def garch_variance_loop(eps, omega, alpha, gamma, beta, backcast):
     return s2
 
 
+def affine_filter(a: np.ndarray, b: np.ndarray, x0: np.ndarray | float = 0.0) -> np.ndarray:
+    """Solve the time-varying linear recursion ``x_t = a_t x_{t-1} + b_t`` with
+    ``x_{-1} = x0``, without a loop over time.
+
+    Parameters
+    ----------
+    a : ndarray, shape (n,)
+        Coefficients (any sign).
+    b : ndarray, shape (..., n)
+        Inputs; leading axes are channels sharing the coefficients ``a``.
+    x0 : float or ndarray broadcastable to ``b.shape[:-1]``
+
+    Returns
+    -------
+    ndarray, shape like ``b``
+
+    Notes
+    -----
+    Each step is the affine map ``x -> a_t x + b_t``; maps compose associatively,
+    ``(a2, b2) o (a1, b1) = (a2 a1, a2 b1 + b2)``, so all prefix compositions
+    follow from ceil(log2 n) vectorised doubling rounds (the Hillis-Steele scan;
+    Blelloch 1990, *Prefix sums and their applications*, CMU-CS-90-190). Only
+    products and sums of the inputs occur (no division), so the result agrees with
+    the sequential loop to rounding.
+    """
+    A = np.array(a, dtype=float)
+    B = np.array(b, dtype=float)
+    n = B.shape[-1]
+    if n == 0:
+        return B
+    B[..., 0] += A[0] * np.asarray(x0, dtype=float)
+    s = 1
+    while s < n:
+        B[..., s:] += A[s:] * B[..., :-s]
+        A[s:] *= A[:-s].copy()
+        s *= 2
+    return B
+
+
+def affine_filter_loop(a, b, x0=0.0) -> np.ndarray:
+    """Reference loop for :func:`affine_filter` (tests only)."""
+    b = np.asarray(b, dtype=float)
+    x = np.empty_like(b)
+    prev = np.asarray(x0, dtype=float)
+    for t in range(b.shape[-1]):
+        prev = a[t] * prev + b[..., t]
+        x[..., t] = prev
+    return x
+
+
+NEWTON_TOL = 1e-13      # largest residual of the EGARCH recursion accepted (log-variance)
+NEWTON_MAX_ITER = 40
+
+
 def egarch_log_variance(eps: np.ndarray, omega: float, alpha: float, gamma: float,
-                        beta: float, ln_backcast: float) -> np.ndarray:
+                        beta: float, ln_backcast: float, *,
+                        start: np.ndarray | None = None) -> np.ndarray:
     """Log conditional variances of EGARCH(1,1) (Nelson 1991).
+
+    Parameters
+    ----------
+    eps : ndarray, shape (n,)
+        Residuals.
+    omega, alpha, gamma, beta : float
+    ln_backcast : float
+        ``ln sigma^2_{-1}``.
+    start : ndarray, shape (n,), optional
+        A guess of the path (e.g. the path at nearby parameters); a cheap
+        exponentially weighted variance is used otherwise.
 
     Notes
     -----
     ``ln sigma^2_t = omega + alpha (|z_{t-1}| - sqrt(2/pi)) + gamma z_{t-1}
     + beta ln sigma^2_{t-1}``, ``z_t = e_t / sigma_t``; at t = 0 the shock terms
-    are absent and ``ln sigma^2_{-1} = ln_backcast``. The log-variance is kept in
-    [-30, 30] to keep a wild trial parameter from overflowing. The recursion is
-    non-linear, so this is a loop over time on Python floats.
+    are absent and ``ln sigma^2_{-1} = ln_backcast``.
+
+    Because ``sign z_t = sign e_t``, the shock term is ``k_t exp(-h_t / 2)`` with
+    ``k_t = (alpha + gamma) e_t`` for ``e_t >= 0`` and ``(gamma - alpha) e_t``
+    otherwise, so the whole path ``h`` solves the smooth causal system
+    ``F_t(h) = h_t - c - k_{t-1} exp(-h_{t-1}/2) - beta h_{t-1} = 0``
+    (``c = omega - alpha sqrt(2/pi)``). Newton's method on the path solves, per
+    round, the linear recursion ``d_t = J_t d_{t-1} - F_t`` with
+    ``J_t = beta - k_{t-1} exp(-h_{t-1}/2) / 2`` by :func:`affine_filter`, i.e.
+    without a loop over days; it stops when ``max |F_t| <= 1e-13``. If it does not
+    converge in 40 rounds, or the path leaves [-30, 30] (the overflow guard of the
+    loop), the sequential loop :func:`egarch_log_variance_loop` is used instead, so
+    the result is always the loop's up to rounding.
     """
+    e = np.asarray(eps, dtype=float)
+    n = e.shape[0]
+    cap = LN_VARIANCE_CAP
+    h0 = min(max(omega + beta * ln_backcast, -cap), cap)
+    if n < 2:
+        return np.full(n, h0)
+    const = omega - alpha * SQRT_2_OVER_PI
+    k = np.where(e[:-1] >= 0, alpha + gamma, gamma - alpha) * e[:-1]
+    with np.errstate(over="ignore", invalid="ignore", under="ignore"):
+        if start is not None and start.shape == (n,) and np.all(np.isfinite(start)):
+            h = start.copy()
+        else:
+            v0 = math.exp(ln_backcast)
+            a = np.empty(n)
+            a[0] = v0
+            a[1:] = e[:-1] * e[:-1]
+            h = np.log(linear_filter(0.06 * a, 0.94, v0) + 1e-300)
+        h[0] = h0
+        for _ in range(NEWTON_MAX_ITER):
+            w = k * np.exp(-0.5 * h[:-1])
+            r = h[1:] - (const + w + beta * h[:-1])
+            m = float(np.max(np.abs(r)))
+            if m <= NEWTON_TOL:
+                if float(np.max(np.abs(h))) <= cap:
+                    return h
+                break
+            if not math.isfinite(m):
+                break
+            h[1:] -= affine_filter(beta - 0.5 * w, r, 0.0)
+    return egarch_log_variance_loop(e, omega, alpha, gamma, beta, ln_backcast)
+
+
+def egarch_log_variance_loop(eps: np.ndarray, omega: float, alpha: float, gamma: float,
+                             beta: float, ln_backcast: float) -> np.ndarray:
+    """EGARCH(1,1) log-variances by the sequential loop on Python floats, with the
+    log-variance kept in [-30, 30] so that a wild trial parameter cannot overflow
+    (the fallback and reference of :func:`egarch_log_variance`)."""
     e = np.asarray(eps, dtype=float).tolist()
     n = len(e)
     out = [0.0] * n
+    if n == 0:
+        return np.array(out)
     # alpha (|z| - sqrt(2/pi)) + gamma z = c0 + (alpha + gamma) z for z >= 0,
     # c0 + (gamma - alpha) z for z < 0, with c0 = -alpha sqrt(2/pi)
     const = omega - alpha * SQRT_2_OVER_PI
@@ -258,16 +375,38 @@ def egarch_log_variance(eps: np.ndarray, omega: float, alpha: float, gamma: floa
     return np.array(out)
 
 
-def egarch_adjoint(z: list, lam_direct: np.ndarray, alpha: float, gamma: float,
+def egarch_jacobian(z: np.ndarray, alpha: float, gamma: float, beta: float) -> np.ndarray:
+    """``J_{t+1} = dh_{t+1}/dh_t = beta - (alpha |z_t| + gamma z_t) / 2`` for
+    t = 0..n-2 (``dz_t/dh_t = -z_t/2``), the coefficients of EGARCH's linearised
+    recursion."""
+    zl = np.asarray(z, dtype=float)[:-1]
+    return beta - 0.5 * (alpha * np.abs(zl) + gamma * zl)
+
+
+def egarch_adjoint(z: np.ndarray, lam_direct: np.ndarray, alpha: float, gamma: float,
                    beta: float) -> np.ndarray:
     """Backward (adjoint) recursion of EGARCH(1,1) for the gradient of a sum.
 
     With ``h_t = ln sigma^2_t`` and ``a_t = dL/dh_t`` holding the other h fixed,
     the total derivative obeys ``lam_t = a_t + J_{t+1} lam_{t+1}``, ``lam_{n-1} =
-    a_{n-1}``, where ``J_{t+1} = dh_{t+1}/dh_t = beta - (alpha |z_t| + gamma z_t)/2``
-    (``dz_t/dh_t = -z_t/2``). A loop over time on Python floats.
+    a_{n-1}``, with ``J`` from :func:`egarch_jacobian`; solved backwards in time by
+    :func:`affine_filter` (no loop over days).
     """
-    a = lam_direct.tolist()
+    a = np.asarray(lam_direct, dtype=float)
+    n = a.shape[0]
+    if n == 0:
+        return a.copy()
+    J = egarch_jacobian(z, alpha, gamma, beta)
+    coef = np.empty(n)
+    coef[0] = 0.0
+    coef[1:] = J[::-1]
+    return affine_filter(coef, a[::-1], 0.0)[::-1]
+
+
+def egarch_adjoint_loop(z, lam_direct, alpha: float, gamma: float, beta: float) -> np.ndarray:
+    """Reference loop for :func:`egarch_adjoint` (tests only)."""
+    a = np.asarray(lam_direct, dtype=float).tolist()
+    z = np.asarray(z, dtype=float).tolist()
     n = len(a)
     out = [0.0] * n
     lam = a[n - 1]
