@@ -78,43 +78,11 @@ CHUNK = 32768
 # the normalised Black function and its vega
 # ---------------------------------------------------------------------------
 
-def _asymptotic(h: np.ndarray, t: np.ndarray) -> np.ndarray:
-    """b for h < -10 and small t: 17th-order expansion of A(h,t) in q = (h/r)^2,
-    e = (t/h)^2, r = (h+t)(h-t); b = phi-part * (t/r) * A (Jäckel 2015, eq. 3.x)."""
-    e = (t / h) ** 2
-    r = (h + t) * (h - t)
-    q = (h / r) ** 2
-    # coefficients of the expansion, innermost first (A&S 26.2.12 carried to order 17)
-    s = (2.0 * e + 1.19E3) * -e - 1.0472E5
-    s = s * e - 3.24632E6
-    s = s * e - 4.707164E7
-    s = s * e - 3.67158792E8
-    s = s * e - 1.6689036E9
-    s = s * e - 4.6399188E9
-    s = s * e - 8.1198579E9
-    s = s * e - 9.0751353E9
-    s = s * e - 6.49588632E9
-    s = s * e - 2.9526756E9
-    s = s * e - 8.344518E8
-    s = s * e - 1.4121492E8
-    s = s * e - 1.344904E7
-    s = s * e - 6.49264E5
-    s = s * e - 1.309E4
-    s = s * e - 7.0E1
-    acc = 3.3E1 * s * q
-    for k, coeffs in _ASYMPTOTIC_TERMS:
-        poly = np.zeros_like(e)
-        for c in coeffs:
-            poly = poly * e + c
-        acc = k * q * (poly + acc)
-    A = 2.0 + acc
-    b = ONE_OVER_SQRT_TWO_PI * np.exp(-0.5 * (h * h + t * t)) * (t / r) * A
-    return np.abs(np.maximum(b, 0.0))
-
-
-# (multiplier, coefficients highest power of e first) for the terms of order 1..16,
-# outermost first; term n has multiplier (2n-1) and coefficients
-# (-1)^n * 2 * binomial-type integers (Jäckel 2015, appendix; A&S 26.2.12).
+# The asymptotic expansion of A(h, t) (Abramowitz & Stegun 26.2.12 carried to order 17,
+# as in Jäckel 2015) is nested as A = 2 + k_1 q (P_1(e) + k_2 q (P_2(e) + ... +
+# k_17 q P_17(e))) with k_n = 2n - 1. Term n of order 1..16: (k_n, coefficients of
+# P_n, highest power of e first); the coefficients are (-1)^n * 2 * binomial-type
+# integers (Jäckel 2015, appendix).
 _ASYMPTOTIC_TERMS_OUTER_FIRST = [
     (1.0, (-2.0, -6.0)),
     (3.0, (2.0, 2.0E1, 1.0E1)),
@@ -146,46 +114,145 @@ _ASYMPTOTIC_TERMS_OUTER_FIRST = [
                   1.6376184E9, 2.33360622E9, 2.07431664E9, 1.14633288E9, 3.8707344E8,
                   7.71342E7, 8.544096E6, 4.74672E5, 1.0912E4, 6.6E1)),
 ]
-# evaluated innermost first by _asymptotic
-_ASYMPTOTIC_TERMS = tuple(reversed(_ASYMPTOTIC_TERMS_OUTER_FIRST))
+#: P_17(e), highest power first (k_17 = 33)
+_ASYMPTOTIC_INNERMOST = (-2.0, -1.19E3, -1.0472E5, -3.24632E6, -4.707164E7, -3.67158792E8,
+                         -1.6689036E9, -4.6399188E9, -8.1198579E9, -9.0751353E9,
+                         -6.49588632E9, -2.9526756E9, -8.344518E8, -1.4121492E8,
+                         -1.344904E7, -6.49264E5, -1.309E4, -7.0E1)
 
 
-def _small_t(h: np.ndarray, t: np.ndarray) -> np.ndarray:
-    """b for t < 0.21: 12th-order expansion of Y(h+t) - Y(h-t) in t, Y = Phi/phi,
-    with a = 1 + h Y(h) from erfcx (Jäckel 2015)."""
-    a = 1.0 + h * (0.5 * SQRT_TWO_PI) * erfcx(-ONE_OVER_SQRT_TWO * h)
-    w = t * t
-    h2 = h * h
-    e = (-89055 + 135135 * a + h2 * (-82845 + 270270 * a + h2 * (
-        -20370 + 135135 * a + h2 * (-1926 + 25740 * a + h2 * (
-            -75 + 2145 * a + h2 * (-1 + 78 * a + a * h2)))))) * w / 6227020800.0
-    e = w * ((-6555 + 10395 * a + h2 * (-4680 + 17325 * a + h2 * (
-        -840 + 6930 * a + h2 * (-52 + 990 * a + h2 * (-1 + 55 * a + a * h2))))) / 39916800
-        + e)
-    e = w * ((-561 + 945 * a + h2 * (-285 + 1260 * a + h2 * (
-        -33 + 378 * a + h2 * (-1 + 36 * a + a * h2)))) / 362880 + e)
-    e = w * ((-57 + 105 * a + h2 * (-18 + 105 * a + h2 * (-1 + 21 * a + a * h2))) / 5040 + e)
-    e = w * ((-7 + 15 * a + h2 * (-1 + 10 * a + a * h2)) / 120 + e)
-    e = w * ((-1 + 3 * a + a * h2) / 6 + e)
-    expansion = 2 * t * (a + e)
-    b = ONE_OVER_SQRT_TWO_PI * np.exp(-0.5 * (h * h + t * t)) * expansion
+def _asymptotic_matrix() -> np.ndarray:
+    """Row n-1 holds k_1 k_2 ... k_n times the coefficients of P_n(e), lowest power
+    first, so that A = 2 + sum_n q^n (C @ (1, e, ..., e^17))_n."""
+    terms = _ASYMPTOTIC_TERMS_OUTER_FIRST + [(33.0, _ASYMPTOTIC_INNERMOST)]
+    C = np.zeros((len(terms), len(_ASYMPTOTIC_INNERMOST)))
+    k_prod = 1.0
+    for row, (k, coeffs) in enumerate(terms):
+        k_prod *= k
+        C[row, :len(coeffs)] = k_prod * np.asarray(coeffs[::-1])
+    return C
+
+
+_ASYMPTOTIC_C_T = np.ascontiguousarray(_asymptotic_matrix().T)  # (18 powers, 17 orders)
+
+
+def _powers(v: np.ndarray, n: int, first: float | None) -> np.ndarray:
+    """(m, n) matrix of v^1..v^n per row, or 1, v, ..., v^(n-1) when first == 1."""
+    out = np.empty((v.shape[0], n))
+    if first is None:
+        out[:] = v[:, None]
+    else:
+        out[:, 0] = first
+        out[:, 1:] = v[:, None]
+    return np.cumprod(out, axis=1, out=out)
+
+
+def _asymptotic(h: np.ndarray, t: np.ndarray, g: np.ndarray) -> np.ndarray:
+    """b for h < -10 and small t: 17th-order expansion of A(h, t) in q = (h/r)^2,
+    e = (t/h)^2, r = (h+t)(h-t); b = g (t/r) A / sqrt(2 pi) with
+    g = exp(-(h^2+t^2)/2) (Jäckel 2015, section 3; A&S 26.2.12).
+
+    The nested expansion is evaluated as one bivariate polynomial: powers of e times
+    the flattened coefficients (one matrix product), then powers of q."""
+    e = (t / h) ** 2
+    r = (h + t) * (h - t)
+    q = (h / r) ** 2
+    P = _powers(e, _ASYMPTOTIC_C_T.shape[0], 1.0) @ _ASYMPTOTIC_C_T
+    A = 2.0 + np.einsum("ij,ij->i", P, _powers(q, _ASYMPTOTIC_C_T.shape[1], None))
+    b = ONE_OVER_SQRT_TWO_PI * g * (t / r) * A
     return np.abs(np.maximum(b, 0.0))
 
 
-def _plain(x: np.ndarray, s: np.ndarray) -> np.ndarray:
-    """b from the cumulative normal directly (accurate when h + t > 0.85)."""
+# Small-t expansion of b / (2 t phi(h) e^{-t^2/2}) = a + sum_k w^k T_k(h^2, a),
+# w = t^2, a = 1 + h Y(h), Y = Phi/phi, T_k = (P_k(h^2) + a Q_k(h^2)) / D_k (Jäckel 2015,
+# the 12th-order expansion). Rows k = 1..6, columns h^0, h^2, ..., h^12.
+_SMALL_T_DEN = np.array([6.0, 120.0, 5040.0, 362880.0, 39916800.0, 6227020800.0])
+_SMALL_T_P = np.array([
+    [-1, 0, 0, 0, 0, 0, 0],
+    [-7, -1, 0, 0, 0, 0, 0],
+    [-57, -18, -1, 0, 0, 0, 0],
+    [-561, -285, -33, -1, 0, 0, 0],
+    [-6555, -4680, -840, -52, -1, 0, 0],
+    [-89055, -82845, -20370, -1926, -75, -1, 0],
+], dtype=float)
+_SMALL_T_Q = np.array([
+    [3, 1, 0, 0, 0, 0, 0],
+    [15, 10, 1, 0, 0, 0, 0],
+    [105, 105, 21, 1, 0, 0, 0],
+    [945, 1260, 378, 36, 1, 0, 0],
+    [10395, 17325, 6930, 990, 55, 1, 0],
+    [135135, 270270, 135135, 25740, 2145, 78, 1],
+], dtype=float)
+#: (7 powers of h^2, 12): the P_k / D_k columns, then the Q_k / D_k columns
+_SMALL_T_PQ_T = np.ascontiguousarray(
+    np.vstack([_SMALL_T_P / _SMALL_T_DEN[:, None], _SMALL_T_Q / _SMALL_T_DEN[:, None]]).T)
+
+
+def _small_t(h: np.ndarray, t: np.ndarray, g: np.ndarray) -> np.ndarray:
+    """b for t < 0.21: 12th-order expansion of Y(h+t) - Y(h-t) in t, Y = Phi/phi,
+    with a = 1 + h Y(h) from erfcx and g = exp(-(h^2+t^2)/2) (Jäckel 2015)."""
+    a = 1.0 + h * (0.5 * SQRT_TWO_PI) * erfcx(-ONE_OVER_SQRT_TWO * h)
+    PQ = _powers(h * h, 7, 1.0) @ _SMALL_T_PQ_T
+    T = PQ[:, 6:]
+    T *= a[:, None]
+    T += PQ[:, :6]
+    e = np.einsum("ij,ij->i", T, _powers(t * t, 6, None))
+    e += a
+    e *= 2.0 * ONE_OVER_SQRT_TWO_PI * t
+    e *= g
+    return np.abs(np.maximum(e, 0.0))
+
+
+def _black_vega(x: np.ndarray, s: np.ndarray, b_max: np.ndarray, lower_rule: bool):
+    """b(x, s), db/ds and h = x/s for 1-d arrays with x <= 0 < s; b_max = e^{x/2}.
+
+    The four regions of Jäckel (2015): the asymptotic expansion (h < -10 and small t;
+    ``lower_rule`` selects the bound t + h < 0.21 - 10 used for the segment points,
+    otherwise t - h < 0.21 + 10), the small-t expansion (t < 0.21), the plain form
+    Phi(h+t) e^{x/2} - Phi(h-t) e^{-x/2} (h + t > 0.85 or h - t >= -3) and the erfcx
+    form. Each region is evaluated only on its own elements; the Gaussian factor
+    g = exp(-(h^2+t^2)/2) is shared by the vega g / sqrt(2 pi) and three of the forms.
+    """
     h = x / s
     t = 0.5 * s
-    b_max = np.exp(0.5 * x)
-    b = ndtr(h + t) * b_max - ndtr(h - t) / b_max
-    return np.abs(np.maximum(b, 0.0))
-
-
-def _erfcx_form(h: np.ndarray, t: np.ndarray) -> np.ndarray:
-    """b = 1/2 exp(-(h^2+t^2)/2) [erfcx(-(h+t)/sqrt2) - erfcx(-(h-t)/sqrt2)]."""
-    b = 0.5 * np.exp(-0.5 * (h * h + t * t)) * (
-        erfcx(-ONE_OVER_SQRT_TWO * (h + t)) - erfcx(-ONE_OVER_SQRT_TWO * (h - t)))
-    return np.abs(np.maximum(b, 0.0))
+    g = h * h
+    g += t * t
+    g *= -0.5
+    np.exp(g, out=g)
+    hpt = h + t
+    hmt = h - t
+    small = t < SMALL_T
+    plain = hmt >= PLAIN_Z_MIN
+    plain |= hpt > 0.85
+    asym = h < ASYMPTOTIC_H
+    if lower_rule:
+        asym &= hpt < SMALL_T + ASYMPTOTIC_H
+    else:
+        asym &= (t - h) < SMALL_T - ASYMPTOTIC_H
+    b = np.empty_like(s)
+    other = small | plain
+    if asym.any():
+        i = np.flatnonzero(asym)
+        b[i] = _asymptotic(h[i], t[i], g[i])
+        keep = ~asym
+        small &= keep
+        plain &= keep
+        other |= asym
+    plain &= ~small
+    i = np.flatnonzero(small)
+    if i.size:
+        b[i] = _small_t(h[i], t[i], g[i])
+    i = np.flatnonzero(plain)
+    if i.size:
+        bm = b_max[i]
+        b[i] = ndtr(hpt[i]) * bm - ndtr(hmt[i]) / bm
+    if not other.all():
+        i = np.flatnonzero(~other)
+        b[i] = 0.5 * g[i] * (erfcx(-ONE_OVER_SQRT_TWO * hpt[i])
+                             - erfcx(-ONE_OVER_SQRT_TWO * hmt[i]))
+    np.maximum(b, 0.0, out=b)
+    g *= ONE_OVER_SQRT_TWO_PI
+    return b, g, h
 
 
 def normalised_intrinsic_call(x: np.ndarray) -> np.ndarray:
@@ -216,24 +283,16 @@ def normalised_black_otm(x: np.ndarray, s: np.ndarray) -> np.ndarray:
     x = np.asarray(x, dtype=float)
     s = np.asarray(s, dtype=float)
     x, s = np.broadcast_arrays(x, s)
+    shape = x.shape
+    x = x.ravel()
+    s = s.ravel()
     out = np.zeros(x.shape)
     with np.errstate(divide="ignore", invalid="ignore", over="ignore", under="ignore"):
-        pos = s > 0
-        r1 = pos & (x < s * ASYMPTOTIC_H) & (0.5 * s * s + x < s * (SMALL_T + ASYMPTOTIC_H))
-        rest = pos & ~r1
-        r2 = rest & (0.5 * s < SMALL_T)
-        rest &= ~r2
-        r3 = rest & ((x + 0.5 * s * s > 0.85 * s) | (x - 0.5 * s * s >= PLAIN_Z_MIN * s))
-        r4 = rest & ~r3
-        if r1.any():
-            out[r1] = _asymptotic(x[r1] / s[r1], 0.5 * s[r1])
-        if r2.any():
-            out[r2] = _small_t(x[r2] / s[r2], 0.5 * s[r2])
-        if r3.any():
-            out[r3] = _plain(x[r3], s[r3])
-        if r4.any():
-            out[r4] = _erfcx_form(x[r4] / s[r4], 0.5 * s[r4])
-    return out
+        i = np.flatnonzero(s > 0)
+        if i.size:
+            xi = x[i]
+            out[i] = _black_vega(xi, s[i], np.exp(0.5 * xi), True)[0]
+    return out.reshape(shape)
 
 
 def normalised_black_call(x: np.ndarray, s: np.ndarray) -> np.ndarray:
@@ -260,22 +319,22 @@ def _tiny(v):
     return np.abs(v) < DBL_MIN
 
 
-def _rc_param_left(x_l, x_r, y_l, y_r, d_l, d_r, d2_l):
-    h = x_r - x_l
-    num = 0.5 * h * d2_l + (d_r - d_l)
-    den = (y_r - y_l) / h - d_l
+def _rc_param(num, den):
+    """Control parameter num/den of the rational cubic, with its limits where the
+    denominator or the numerator vanish (Jäckel 2015)."""
     r = num / den
     r = np.where(_tiny(den), np.where(num > 0, R_MAX, R_MIN), r)
     return np.where(_tiny(num), 0.0, r)
+
+
+def _rc_param_left(x_l, x_r, y_l, y_r, d_l, d_r, d2_l):
+    h = x_r - x_l
+    return _rc_param(0.5 * h * d2_l + (d_r - d_l), (y_r - y_l) / h - d_l)
 
 
 def _rc_param_right(x_l, x_r, y_l, y_r, d_l, d_r, d2_r):
     h = x_r - x_l
-    num = 0.5 * h * d2_r + (d_r - d_l)
-    den = d_r - (y_r - y_l) / h
-    r = num / den
-    r = np.where(_tiny(den), np.where(num > 0, R_MAX, R_MIN), r)
-    return np.where(_tiny(num), 0.0, r)
+    return _rc_param(0.5 * h * d2_r + (d_r - d_l), d_r - (y_r - y_l) / h)
 
 
 def _rc_min_param(d_l, d_r, s, prefer_shape: bool):
@@ -283,15 +342,13 @@ def _rc_min_param(d_l, d_r, s, prefer_shape: bool):
     monotonic = (d_l * s >= 0) & (d_r * s >= 0)
     convex = (d_l <= s) & (s <= d_r)
     concave = (d_l >= s) & (s >= d_r)
-    r1 = np.full(np.shape(s), -DBL_MAX)
-    r1 = np.where(monotonic & ~_tiny(s), (d_r + d_l) / s, r1)
+    r1 = np.where(monotonic & ~_tiny(s), (d_r + d_l) / s, -DBL_MAX)
     if prefer_shape:
         r1 = np.where(monotonic & _tiny(s), R_MAX, r1)
     cc = convex | concave
     ok = ~(_tiny(s - d_l) | _tiny(d_r - s))
-    r2 = np.full(np.shape(s), -DBL_MAX)
     r2 = np.where(cc & ok, np.maximum(np.abs((d_r - d_l) / (d_r - s)),
-                                      np.abs((d_r - d_l) / (s - d_l))), r2)
+                                      np.abs((d_r - d_l) / (s - d_l))), -DBL_MAX)
     if prefer_shape:
         r2 = np.where(cc & ~ok, R_MAX, r2)
         r2 = np.where(~cc & monotonic, R_MAX, r2)
@@ -317,8 +374,7 @@ def _rc_interp(x, x_l, x_r, y_l, y_r, d_l, d_r, r):
     omt2 = omt * omt
     cubic = (y_r * t2 * t + (r * y_r - h * d_r) * t2 * omt + (r * y_l + h * d_l) * t * omt2
              + y_l * omt2 * omt) / (1 + (r - 3) * t * omt)
-    linear = y_r * t + y_l * omt
-    out = np.where(r >= R_MAX, linear, cubic)
+    out = np.where(r >= R_MAX, y_r * t + y_l * omt, cubic)
     return np.where(np.abs(h) <= 0, 0.5 * (y_l + y_r), out)
 
 
@@ -326,169 +382,163 @@ def _rc_interp(x, x_l, x_r, y_l, y_r, d_l, d_r, r):
 # the inversion
 # ---------------------------------------------------------------------------
 
-def _householder(newton, halley, hh3):
-    return (1 + 0.5 * halley * newton) / (1 + newton * (halley + hh3 * newton / 6))
+def _initial_guess(beta, x, b_max):
+    """Jäckel's four-segment initial guess for 1-d arrays, b_max = e^{x/2}.
 
-
-def _initial_guess(beta, x):
-    """Jäckel's four-segment initial guess. Returns (s0, objective) where objective is
-    0 (log objective, lowest segment), 1 (plain b - beta) or 2 (upper log objective)."""
-    n = beta.shape[0]
-    s0 = np.empty(n)
-    obj = np.ones(n, dtype=np.int8)
-    b_max = np.exp(0.5 * x)
+    Returns (s0, i_low, i_up): the guess and the indices of the elements iterated on
+    the log objective of the lowest segment and on the upper log objective
+    (beta > b_max/2 in the highest segment); all others use b - beta."""
     s_c = np.sqrt(np.abs(2 * x))
     # at s_c, h + t = 0 and h^2 + t^2 = |x|: b_c = e^{x/2}/2 - Phi(-s_c) e^{-x/2} and
     # v_c = exp(-|x|/2) / sqrt(2 pi); b_c only places the guess, so the mild
     # cancellation of this closed form near x = 0 does not reach the result
-    half = np.exp(0.5 * x)
-    b_c = np.maximum(0.5 * half - ndtr(-s_c) / half, 0.0)
-    v_c = ONE_OVER_SQRT_TWO_PI * half
+    b_c = ndtr(-s_c)
+    b_c /= b_max
+    np.subtract(0.5 * b_max, b_c, out=b_c)
+    np.maximum(b_c, 0.0, out=b_c)
+    v_c = ONE_OVER_SQRT_TWO_PI * b_max
     low = beta < b_c
+    # the segment point on beta's side of b_c: s_l = s_c - b_c/v_c below it,
+    # s_h = s_c + (b_max - b_c)/v_c above it; b and vega there in one evaluation
+    s_lh = np.where(low, -b_c, b_max - b_c)
+    s_lh /= v_c
+    s_lh += s_c
+    flat = ~(v_c > DBL_MIN)
+    if flat.any():
+        s_lh = np.where(flat & ~low, s_c, s_lh)
+    pos = s_lh > 0
+    if pos.all():
+        b_lh, v_lh, _ = _black_vega(x, s_lh, b_max, True)
+    else:  # b(x, 0) = 0; the vega at s = 0 as in normalised_vega
+        b_lh = np.zeros_like(s_lh)
+        v_lh = np.where(x == 0, ONE_OVER_SQRT_TWO_PI, 0.0)
+        i = np.flatnonzero(pos)
+        b_lh[i], v_lh[i], _ = _black_vega(x[i], s_lh[i], b_max[i], True)
+    lowest = beta < b_lh
+    lowest &= low
+    upper_mid = beta <= b_lh
+    upper_mid &= ~low
+    mid = low ^ lowest
+    mid |= upper_mid
+    top = ~low
+    top ^= upper_mid
+    s0 = np.empty_like(beta)
 
-    if low.any():
-        i = np.flatnonzero(low)
-        xl, bl_, sc, bc, vc = x[i], beta[i], s_c[i], b_c[i], v_c[i]
-        s_l = sc - bc / vc
-        b_l = normalised_black_otm(xl, s_l)
-        lowest = bl_ < b_l
+    i = np.flatnonzero(mid)
+    if i.size:
+        # the two middle segments: a rational cubic of s(beta) between (b_l, s_l) and
+        # (b_c, s_c), or (b_c, s_c) and (b_h, s_h), slopes 1/vega, shape-preserving
+        # with zero second derivative at the outer point (convex_right below b_c,
+        # convex_left above)
+        lo = low[i]
+        bc, sc, dc = b_c[i], s_c[i], 1.0 / v_c[i]
+        bo, so, do = b_lh[i], s_lh[i], 1.0 / v_lh[i]
+        x_l = np.where(lo, bo, bc)
+        x_r = np.where(lo, bc, bo)
+        y_l = np.where(lo, so, sc)
+        y_r = np.where(lo, sc, so)
+        d_l = np.where(lo, do, dc)
+        d_r = np.where(lo, dc, do)
+        slope = (y_r - y_l) / (x_r - x_l)
+        r = _rc_param(d_r - d_l, np.where(lo, d_r - slope, slope - d_l))
+        r = np.maximum(r, _rc_min_param(d_l, d_r, slope, False))
+        s0[i] = _rc_interp(beta[i], x_l, x_r, y_l, y_r, d_l, d_r, r)
+
+    i_low = np.flatnonzero(lowest)
+    if i_low.size:
         # lowest segment: interpolate the lower map f_l(beta) and invert it
-        if lowest.any():
-            j = np.flatnonzero(lowest)
-            xj, bj, slj, blj = xl[j], bl_[j], s_l[j], b_l[j]
-            ax = np.abs(xj)
-            z = SQRT_ONE_OVER_THREE * ax / slj
-            y = z * z
-            s2 = slj * slj
-            Phi = ndtr(-z)
-            phi = ONE_OVER_SQRT_TWO_PI * np.exp(-0.5 * z * z)
-            fpp = PI_OVER_SIX * y / (s2 * slj) * Phi * (
-                8 * SQRT_THREE * slj * ax + (3 * s2 * (s2 - 8) - 8 * xj * xj) * Phi / phi
-            ) * np.exp(2 * y + 0.25 * s2)
-            Phi2 = Phi * Phi
-            fp = TWO_PI * y * Phi2 * np.exp(y + 0.125 * s2)
-            f_l = TWO_PI_OVER_SQRT_TWENTY_SEVEN * ax * (Phi2 * Phi)
-            zero = np.zeros_like(bj)
-            r_ll = _rc_convex_right(zero, blj, zero, f_l, np.ones_like(bj), fp, fpp, True)
-            f = _rc_interp(bj, zero, blj, zero, f_l, np.ones_like(bj), fp, r_ll)
-            tq = bj / blj
-            f = np.where(f > 0, f, (f_l * tq + blj * (1 - tq)) * tq)
-            s_j = np.abs(xj / (SQRT_THREE * ndtri(
-                np.cbrt(f / (TWO_PI_OVER_SQRT_TWENTY_SEVEN * ax)))))
-            s_j = np.where(f > 0, s_j, 0.0)
-            s0[i[j]] = s_j
-            obj[i[j]] = 0
-        mid = ~lowest
-        if mid.any():
-            j = np.flatnonzero(mid)
-            xj, bj, slj, blj, scj, bcj, vcj = xl[j], bl_[j], s_l[j], b_l[j], sc[j], bc[j], vc[j]
-            v_l = normalised_vega(xj, slj)
-            r_lm = _rc_convex_right(blj, bcj, slj, scj, 1 / v_l, 1 / vcj, 0.0, False)
-            s0[i[j]] = _rc_interp(bj, blj, bcj, slj, scj, 1 / v_l, 1 / vcj, r_lm)
+        xj, bj, slj, blj = x[i_low], beta[i_low], s_lh[i_low], b_lh[i_low]
+        ax = np.abs(xj)
+        z = SQRT_ONE_OVER_THREE * ax / slj
+        y = z * z
+        s2 = slj * slj
+        Phi = ndtr(-z)
+        phi = ONE_OVER_SQRT_TWO_PI * np.exp(-0.5 * z * z)
+        fpp = PI_OVER_SIX * y / (s2 * slj) * Phi * (
+            8 * SQRT_THREE * slj * ax + (3 * s2 * (s2 - 8) - 8 * xj * xj) * Phi / phi
+        ) * np.exp(2 * y + 0.25 * s2)
+        Phi2 = Phi * Phi
+        fp = TWO_PI * y * Phi2 * np.exp(y + 0.125 * s2)
+        f_l = TWO_PI_OVER_SQRT_TWENTY_SEVEN * ax * (Phi2 * Phi)
+        r_ll = _rc_convex_right(0.0, blj, 0.0, f_l, 1.0, fp, fpp, True)
+        f = _rc_interp(bj, 0.0, blj, 0.0, f_l, 1.0, fp, r_ll)
+        tq = bj / blj
+        f = np.where(f > 0, f, (f_l * tq + blj * (1 - tq)) * tq)
+        s_j = np.abs(xj / (SQRT_THREE * ndtri(
+            np.cbrt(f / (TWO_PI_OVER_SQRT_TWENTY_SEVEN * ax)))))
+        s0[i_low] = np.where(f > 0, s_j, 0.0)
 
-    high = ~low
-    if high.any():
-        i = np.flatnonzero(high)
-        xh, bh_, sc, bc, vc, bm = x[i], beta[i], s_c[i], b_c[i], v_c[i], b_max[i]
-        s_h = np.where(vc > DBL_MIN, sc + (bm - bc) / vc, sc)
-        b_h = normalised_black_otm(xh, s_h)
-        upper_mid = bh_ <= b_h
-        if upper_mid.any():
-            j = np.flatnonzero(upper_mid)
-            xj, bj, shj, bhj, scj, bcj, vcj = xh[j], bh_[j], s_h[j], b_h[j], sc[j], bc[j], vc[j]
-            v_h = normalised_vega(xj, shj)
-            r_hm = _rc_convex_left(bcj, bhj, scj, shj, 1 / vcj, 1 / v_h, 0.0, False)
-            s0[i[j]] = _rc_interp(bj, bcj, bhj, scj, shj, 1 / vcj, 1 / v_h, r_hm)
-        top = ~upper_mid
-        if top.any():
-            j = np.flatnonzero(top)
-            xj, bj, shj, bhj, bmj = xh[j], bh_[j], s_h[j], b_h[j], bm[j]
-            # upper map f_u = Phi(-s/2) and its derivatives in beta
-            f_u = ndtr(-0.5 * shj)
-            w = (xj / shj) ** 2
-            fp = -0.5 * np.exp(0.5 * w)
-            fpp = SQRT_PI_OVER_TWO * np.exp(w + 0.125 * shj * shj) * w / shj
-            ok = fpp > -SQRT_DBL_MAX
-            r_hh = _rc_convex_left(bhj, bmj, f_u, np.zeros_like(bj), fp,
-                                   np.full_like(bj, -0.5), fpp, True)
-            f = _rc_interp(bj, bhj, bmj, f_u, np.zeros_like(bj), fp,
-                           np.full_like(bj, -0.5), r_hh)
-            f = np.where(ok, f, -1.0)
-            hh = bmj - bhj
-            tq = (bj - bhj) / hh
-            f = np.where(f > 0, f, (f_u * (1 - tq) + 0.5 * hh * tq) * (1 - tq))
-            s0[i[j]] = -2.0 * ndtri(f)
-            obj[i[j]] = np.where(bj > 0.5 * bmj, 2, 1)
-    return s0, obj
+    i_up = np.flatnonzero(top)
+    if i_up.size:
+        xj, bj, shj, bhj, bmj = x[i_up], beta[i_up], s_lh[i_up], b_lh[i_up], b_max[i_up]
+        # upper map f_u = Phi(-s/2) and its derivatives in beta
+        f_u = ndtr(-0.5 * shj)
+        w = (xj / shj) ** 2
+        fp = -0.5 * np.exp(0.5 * w)
+        fpp = SQRT_PI_OVER_TWO * np.exp(w + 0.125 * shj * shj) * w / shj
+        ok = fpp > -SQRT_DBL_MAX
+        r_hh = _rc_convex_left(bhj, bmj, f_u, 0.0, fp, -0.5, fpp, True)
+        f = _rc_interp(bj, bhj, bmj, f_u, 0.0, fp, -0.5, r_hh)
+        f = np.where(ok, f, -1.0)
+        hh = bmj - bhj
+        tq = (bj - bhj) / hh
+        f = np.where(f > 0, f, (f_u * (1 - tq) + 0.5 * hh * tq) * (1 - tq))
+        s0[i_up] = -2.0 * ndtri(f)
+        i_up = i_up[bj > 0.5 * bmj]
+    return s0, i_low, i_up
 
 
-def _black_and_vega(x, s):
-    """b(x, s) and db/ds together for x <= 0, s > 0 (they share exp(-(h^2+t^2)/2))."""
-    h = x / s
-    t = 0.5 * s
-    e = np.exp(-0.5 * (h * h + t * t))
-    vega = ONE_OVER_SQRT_TWO_PI * e
-    r1 = (h < ASYMPTOTIC_H) & (t - h < SMALL_T - ASYMPTOTIC_H)
-    r2 = ~r1 & (t < SMALL_T)
-    r3 = ~r1 & ~r2 & ((h + t > 0.85) | (h - t >= PLAIN_Z_MIN))
-    other = r1 | r2 | r3
-    if other.any():
-        b = np.empty_like(s)
-        i = np.flatnonzero(~other)
-        hi, ti = h[i], t[i]
-        b[i] = np.maximum(0.5 * e[i] * (erfcx(-ONE_OVER_SQRT_TWO * (hi + ti))
-                                        - erfcx(-ONE_OVER_SQRT_TWO * (hi - ti))), 0.0)
-        if r1.any():
-            b[r1] = _asymptotic(h[r1], t[r1])
-        if r2.any():
-            b[r2] = _small_t(h[r2], t[r2])
-        if r3.any():
-            b[r3] = _plain(x[r3], s[r3])
-    else:
-        b = np.maximum(0.5 * e * (erfcx(-ONE_OVER_SQRT_TWO * (h + t))
-                                  - erfcx(-ONE_OVER_SQRT_TWO * (h - t))), 0.0)
-    return b, vega
-
-
-def _step(beta, x, s, obj):
+def _step(beta, x, s, b_max, i_low, ln_beta_low, i_up):
     """One Householder(3) step for each element's objective; returns ds.
 
     With h = x/s: b2/b1 = h^2/s - s/4 and b3/b1 = (b2/b1)^2 - 3 (h/s)^2 - 1/4, where
     b1, b2, b3 are the first three derivatives of b in s (Jäckel 2015, section 4);
-    the log objectives add the terms noted inline."""
-    b, bp = _black_and_vega(x, s)
-    h = x / s
-    b_halley = h * h / s - s / 4
-    b_hh3 = b_halley * b_halley - 3 * (h / s) ** 2 - 0.25
+    the log objectives (on the elements i_low and i_up) add the terms noted inline."""
+    b, bp, h = _black_vega(x, s, b_max, False)
+    hs = h / s
+    halley = h * h
+    halley /= s
+    halley -= s / 4
+    hh3 = halley * halley
+    hs *= hs
+    hs *= 3
+    hh3 -= hs
+    hh3 -= 0.25
     # plain objective g = b - beta
-    newton = (beta - b) / bp
-    halley = b_halley.copy()
-    hh3 = b_hh3.copy()
-    o0 = obj == 0
-    if o0.any():
+    newton = beta - b
+    newton /= bp
+    if i_low.size:
         # g = 1/ln(b) - 1/ln(beta)
-        i = np.flatnonzero(o0)
-        bi, bpi, bhi = b[i], bp[i], b_halley[i]
+        bi, bhi = b[i_low], halley[i_low]
         ln_b = np.log(bi)
-        ln_beta = np.log(beta[i])
-        bpob = bpi / bi
-        newton[i] = (ln_beta - ln_b) * ln_b / ln_beta / bpob
-        halley[i] = bhi - bpob * (1 + 2 / ln_b)
-        hh3[i] = (b_hh3[i] + 2 * bpob * bpob * (1 + 3 / ln_b * (1 + 1 / ln_b))
-                  - 3 * bhi * bpob * (1 + 2 / ln_b))
-    o2 = obj == 2
-    if o2.any():
+        bpob = bp[i_low] / bi
+        c2 = 1 + 2 / ln_b
+        newton[i_low] = (ln_beta_low - ln_b) * ln_b / ln_beta_low / bpob
+        halley[i_low] = bhi - bpob * c2
+        hh3[i_low] = (hh3[i_low] + 2 * bpob * bpob * (1 + 3 / ln_b * (1 + 1 / ln_b))
+                      - 3 * bhi * bpob * c2)
+    if i_up.size:
         # g = ln(b_max - beta) - ln(b_max - b)
-        i = np.flatnonzero(o2)
-        b_max = np.exp(0.5 * x[i])
-        bmb = b_max - b[i]
-        g = np.log((b_max - beta[i]) / bmb)
-        gp = bp[i] / bmb
-        newton[i] = -g / gp
-        halley[i] = b_halley[i] + gp
-        hh3[i] = b_hh3[i] + gp * (2 * gp + 3 * b_halley[i])
-    ds = newton * _householder(newton, halley, hh3)
-    return np.maximum(-0.5 * s, ds)
+        bm = b_max[i_up]
+        bmb = bm - b[i_up]
+        g = np.log((bm - beta[i_up]) / bmb)
+        gp = bp[i_up] / bmb
+        bhi = halley[i_up]
+        newton[i_up] = -g / gp
+        halley[i_up] = bhi + gp
+        hh3[i_up] = hh3[i_up] + gp * (2 * gp + 3 * bhi)
+    # Householder factor (1 + halley n / 2) / (1 + n (halley + hh3 n / 6))
+    hh3 *= newton
+    hh3 /= 6
+    hh3 += halley
+    hh3 *= newton
+    hh3 += 1
+    halley *= 0.5
+    halley *= newton
+    halley += 1
+    halley /= hh3
+    newton *= halley
+    return np.maximum(-0.5 * s, newton, out=newton)
 
 
 def normalised_implied_vol_otm(beta: np.ndarray, x: np.ndarray,
@@ -510,7 +560,8 @@ def normalised_implied_vol_otm(beta: np.ndarray, x: np.ndarray,
     Notes
     -----
     Inputs outside the domain give meaningless output: the caller screens them.
-    Works in chunks of :data:`CHUNK` elements.
+    Works in chunks of :data:`CHUNK` elements; each piece of the initial guess and each
+    region of b is evaluated only on the elements that need it.
     """
     beta = np.ascontiguousarray(beta, dtype=float).ravel()
     x = np.ascontiguousarray(x, dtype=float).ravel()
@@ -521,26 +572,34 @@ def normalised_implied_vol_otm(beta: np.ndarray, x: np.ndarray,
         for start in range(0, n, CHUNK):
             sl = slice(start, start + CHUNK)
             bb, xx = beta[sl], x[sl]
-            s, obj = _initial_guess(bb, xx)
+            b_max = np.exp(0.5 * xx)
+            s, i_low, i_up = _initial_guess(bb, xx, b_max)
+            ln_beta_low = np.log(bb[i_low])
             ds = np.full_like(s, np.inf)
             for _ in range(iterations):
-                ds = _step(bb, xx, s, obj)
-                s = s + ds
+                ds = _step(bb, xx, s, b_max, i_low, ln_beta_low, i_up)
+                s += ds
             # freeze the settled elements; give the rest two more steps
             # Householder(3) converges with order four: a second step below 1e-5 of s
             # leaves an error far below machine precision (Jäckel 2015, section 5)
             act = ~(np.abs(ds) <= 1e-5 * s)
+            ok = np.isfinite(s)
+            ok &= s > 0
             if act.any():
                 i = np.flatnonzero(act)
-                si, bi, xi, oi = s[i], bb[i], xx[i], obj[i]
+                obj = np.ones(s.shape, dtype=np.int8)
+                obj[i_low] = 0
+                obj[i_up] = 2
+                oi = obj[i]
+                j_low = np.flatnonzero(oi == 0)
+                j_up = np.flatnonzero(oi == 2)
+                si, bi, xi, bmi = s[i], bb[i], xx[i], b_max[i]
+                ln_bj = np.log(bi[j_low])
                 for _ in range(2):
-                    dsi = _step(bi, xi, si, oi)
+                    dsi = _step(bi, xi, si, bmi, j_low, ln_bj, j_up)
                     si = si + dsi
                 s[i] = si
-                ds[i] = dsi
-            ok = np.isfinite(s) & (s > 0)
-            if act.any():
-                ok[i] &= np.abs(dsi) <= 1e-9 * si
+                ok[i] = np.isfinite(si) & (si > 0) & (np.abs(dsi) <= 1e-9 * si)
             s_out[sl] = s
             conv[sl] = ok
     return s_out, conv
