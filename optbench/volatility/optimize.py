@@ -21,7 +21,7 @@ class MinimizeResult:
 
 
 def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
-                 max_iter: int = 300, gtol: float = 1e-9, ftol: float = 1e-15
+                 fg0=None, max_iter: int = 300, gtol: float = 1e-9, ftol: float = 1e-15
                  ) -> MinimizeResult:
     """Minimise a smooth function with analytic gradient inside a box.
 
@@ -36,6 +36,9 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
         (used for the stationarity constraint, which is not a box).
     hess0 : ndarray, optional
         Starting Hessian estimate (e.g. by finite differences); identity otherwise.
+    fg0 : tuple, optional
+        ``(f, gradient)`` at ``x0`` when already known (saves one evaluation); only
+        used when ``x0`` lies inside the box.
 
     Returns
     -------
@@ -53,10 +56,15 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
     """
     lo = np.asarray(lower, dtype=float)
     hi = np.asarray(upper, dtype=float)
-    x = np.clip(np.asarray(x0, dtype=float), lo, hi)
+    x0 = np.asarray(x0, dtype=float)
+    x = np.clip(x0, lo, hi)
     k = x.size
-    f, g = fun_grad(x)
-    nfev = 1
+    if fg0 is not None and np.array_equal(x, x0):
+        f, g = float(fg0[0]), np.asarray(fg0[1], dtype=float)
+        nfev = 0
+    else:
+        f, g = fun_grad(x)
+        nfev = 1
     if not np.isfinite(f):
         return MinimizeResult(x, float(f), False, "objective not finite at the start", 0, 1)
     B = np.eye(k) if hess0 is None else 0.5 * (np.asarray(hess0, dtype=float)
@@ -78,7 +86,10 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
         for _ in range(k):   # Newton step on the free coordinates: B_ff d_f = -g_f
             d[:] = 0.0
             try:
-                d[free] = -np.linalg.solve(B[np.ix_(free, free)], g[free])
+                if free.all():
+                    d = -np.linalg.solve(B, g)
+                else:
+                    d[free] = -np.linalg.solve(B[np.ix_(free, free)], g[free])
             except np.linalg.LinAlgError:
                 d = -pg
                 break
