@@ -19,7 +19,7 @@ from __future__ import annotations
 import numpy as np
 
 from optbench.pricing.bsm import as_flag_array, as_float_array
-from optbench.pricing.lets_be_rational import normalised_implied_vol_otm
+from optbench.pricing.lets_be_rational import CHUNK, normalised_implied_vol_otm
 
 #: status codes returned beside each implied volatility
 OK = 0
@@ -91,46 +91,72 @@ def black_implied_vol_with_status(price, F, K, t, D, is_call):
     price, F, K, t, D, flags = (a.ravel() for a in (price, F, K, t, D, flags))
     n = price.shape[0]
     vol = np.full(n, np.nan)
-    status = np.full(n, OK, dtype=np.int8)
-
-    finite = (np.isfinite(price) & np.isfinite(F) & np.isfinite(K) & np.isfinite(t)
-              & np.isfinite(D))
-    bad = ~finite | (F <= 0) | (K <= 0) | (D <= 0) | (price < 0)
-    status[bad] = BAD_INPUT
-    expired = ~bad & (t <= 0)
-    status[expired] = EXPIRED
-    live = ~bad & ~expired
-    with np.errstate(divide="ignore", invalid="ignore"):
-        p = price / D  # undiscounted
-        intrinsic = np.maximum(np.where(flags, F - K, K - F), 0.0)
-        upper = np.where(flags, F, K)
-        below = live & (p <= intrinsic)
-        above = live & ~below & (p >= upper)
-        status[below] = BELOW_INTRINSIC
-        status[above] = ABOVE_MAX
-        todo = live & ~below & ~above
-        x = -np.abs(np.log(F / K))
-        beta = (p - intrinsic) / np.sqrt(F * K)
-        # a remainder that rounds to zero (or beyond the normalised maximum) has no vol
-        b_max = np.exp(0.5 * x)
-        # subnormal normalised prices (below 2.2e-308) cannot be inverted to any
-        # useful accuracy (Jäckel 2015): treated as a time value that rounds to zero
-        tiny = todo & ~(beta >= np.finfo(float).tiny)
-        status[tiny] = BELOW_INTRINSIC
-        big = todo & ~tiny & (beta >= b_max)
-        status[big] = ABOVE_MAX
-        todo &= ~tiny & ~big
-    idx = np.flatnonzero(todo)
-    if idx.size:
-        s, conv = normalised_implied_vol_otm(beta[idx], x[idx])
-        vol[idx] = s / np.sqrt(t[idx])
+    status = np.zeros(n, dtype=np.int8)
+    unsettled = []
+    # screened and solved in cache-sized chunks (the solver's own chunk size)
+    for start in range(0, n, CHUNK):
+        sl = slice(start, start + CHUNK)
+        idx, conv = _screen_and_solve(price[sl], F[sl], K[sl], t[sl], D[sl], flags[sl],
+                                      vol[sl], status[sl])
         if not conv.all():
-            bad_idx = idx[~conv]
-            vol[bad_idx], status[bad_idx] = _reference_fallback(
-                p[bad_idx], F[bad_idx], K[bad_idx], t[bad_idx], flags[bad_idx])
+            unsettled.append(start + idx[~conv])
+    if unsettled:
+        bad_idx = np.concatenate(unsettled)
+        p = price[bad_idx] / D[bad_idx]
+        vol[bad_idx], status[bad_idx] = _reference_fallback(
+            p, F[bad_idx], K[bad_idx], t[bad_idx], flags[bad_idx])
     if scalar:
         return float(vol[0]), int(status[0])
     return vol.reshape(shape), status.reshape(shape)
+
+
+def _screen_and_solve(price, F, K, t, D, flags, vol, status):
+    """Reason codes and implied vols for one chunk of 1-d inputs, written into ``vol``
+    and ``status``; returns the indices handed to the solver and its converged flags.
+
+    The codes are written lowest priority first so that the stronger reason wins:
+    bad input, then expired, below intrinsic, above the maximum, and last a normalised
+    remainder that is subnormal (below intrinsic) or at its maximum (above max)."""
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        p = price / D  # undiscounted
+        diff = F - K
+        intrinsic = np.where(flags, diff, -diff)
+        np.maximum(intrinsic, 0.0, out=intrinsic)
+        upper = np.where(flags, F, K)
+        x = F / K
+        np.log(x, out=x)
+        np.abs(x, out=x)
+        np.negative(x, out=x)
+        fk = F * K
+        np.sqrt(fk, out=fk)
+        beta = p - intrinsic
+        beta /= fk
+        # a remainder that rounds to zero (or beyond the normalised maximum) has no vol
+        b_max = np.exp(0.5 * x)
+        np.copyto(status, ABOVE_MAX, where=beta >= b_max)
+        # subnormal normalised prices (below 2.2e-308) cannot be inverted to any
+        # useful accuracy (Jäckel 2015): treated as a time value that rounds to zero
+        np.copyto(status, BELOW_INTRINSIC, where=~(beta >= np.finfo(float).tiny))
+        np.copyto(status, ABOVE_MAX, where=p >= upper)
+        np.copyto(status, BELOW_INTRINSIC, where=p <= intrinsic)
+        np.copyto(status, EXPIRED, where=t <= 0)
+        ok = np.isfinite(price)
+        ok &= np.isfinite(F)
+        ok &= np.isfinite(K)
+        ok &= np.isfinite(t)
+        ok &= np.isfinite(D)
+        ok &= F > 0
+        ok &= K > 0
+        ok &= D > 0
+        ok &= price >= 0
+        np.copyto(status, BAD_INPUT, where=~ok)
+    idx = np.flatnonzero(status == OK)
+    if not idx.size:
+        return idx, np.ones(0, dtype=bool)
+    s, conv = normalised_implied_vol_otm(beta[idx], x[idx])
+    s /= np.sqrt(t[idx])
+    vol[idx] = s
+    return idx, conv
 
 
 def _reference_fallback(p, F, K, t, flags):

@@ -71,7 +71,7 @@ PLAIN_Z_MIN = -3.0
 R_MIN = -(1.0 - np.sqrt(DBL_EPSILON))
 R_MAX = 2.0 / (DBL_EPSILON * DBL_EPSILON)
 #: elements processed at a time by callers
-CHUNK = 32768
+CHUNK = 8192
 
 
 # ---------------------------------------------------------------------------
@@ -133,18 +133,21 @@ def _asymptotic_matrix() -> np.ndarray:
     return C
 
 
-_ASYMPTOTIC_C_T = np.ascontiguousarray(_asymptotic_matrix().T)  # (18 powers, 17 orders)
+_ASYMPTOTIC_C = _asymptotic_matrix()  # (17 orders, 18 powers of e)
 
 
 def _powers(v: np.ndarray, n: int, first: float | None) -> np.ndarray:
-    """(m, n) matrix of v^1..v^n per row, or 1, v, ..., v^(n-1) when first == 1."""
-    out = np.empty((v.shape[0], n))
-    if first is None:
-        out[:] = v[:, None]
-    else:
-        out[:, 0] = first
-        out[:, 1:] = v[:, None]
-    return np.cumprod(out, axis=1, out=out)
+    """(n, m) array of the powers v^1..v^n of each element, one row per power (or
+    1, v, ..., v^(n-1) when first == 1)."""
+    out = np.empty((n, v.shape[0]))
+    k = 0
+    if first is not None:
+        out[0] = first
+        k = 1
+    out[k] = v
+    for j in range(k + 1, n):
+        np.multiply(out[j - 1], v, out=out[j])
+    return out
 
 
 def _asymptotic(h: np.ndarray, t: np.ndarray, g: np.ndarray) -> np.ndarray:
@@ -157,8 +160,8 @@ def _asymptotic(h: np.ndarray, t: np.ndarray, g: np.ndarray) -> np.ndarray:
     e = (t / h) ** 2
     r = (h + t) * (h - t)
     q = (h / r) ** 2
-    P = _powers(e, _ASYMPTOTIC_C_T.shape[0], 1.0) @ _ASYMPTOTIC_C_T
-    A = 2.0 + np.einsum("ij,ij->i", P, _powers(q, _ASYMPTOTIC_C_T.shape[1], None))
+    P = _ASYMPTOTIC_C @ _powers(e, _ASYMPTOTIC_C.shape[1], 1.0)
+    A = 2.0 + np.einsum("ij,ij->j", P, _powers(q, _ASYMPTOTIC_C.shape[0], None))
     b = ONE_OVER_SQRT_TWO_PI * g * (t / r) * A
     return np.abs(np.maximum(b, 0.0))
 
@@ -183,20 +186,20 @@ _SMALL_T_Q = np.array([
     [10395, 17325, 6930, 990, 55, 1, 0],
     [135135, 270270, 135135, 25740, 2145, 78, 1],
 ], dtype=float)
-#: (7 powers of h^2, 12): the P_k / D_k columns, then the Q_k / D_k columns
-_SMALL_T_PQ_T = np.ascontiguousarray(
-    np.vstack([_SMALL_T_P / _SMALL_T_DEN[:, None], _SMALL_T_Q / _SMALL_T_DEN[:, None]]).T)
+#: (12, 7 powers of h^2): the rows P_k / D_k, then the rows Q_k / D_k
+_SMALL_T_PQ = np.vstack([_SMALL_T_P / _SMALL_T_DEN[:, None],
+                         _SMALL_T_Q / _SMALL_T_DEN[:, None]])
 
 
 def _small_t(h: np.ndarray, t: np.ndarray, g: np.ndarray) -> np.ndarray:
     """b for t < 0.21: 12th-order expansion of Y(h+t) - Y(h-t) in t, Y = Phi/phi,
     with a = 1 + h Y(h) from erfcx and g = exp(-(h^2+t^2)/2) (Jäckel 2015)."""
     a = 1.0 + h * (0.5 * SQRT_TWO_PI) * erfcx(-ONE_OVER_SQRT_TWO * h)
-    PQ = _powers(h * h, 7, 1.0) @ _SMALL_T_PQ_T
-    T = PQ[:, 6:]
-    T *= a[:, None]
-    T += PQ[:, :6]
-    e = np.einsum("ij,ij->i", T, _powers(t * t, 6, None))
+    PQ = _SMALL_T_PQ @ _powers(h * h, 7, 1.0)
+    T = PQ[6:]
+    T *= a
+    T += PQ[:6]
+    e = np.einsum("ij,ij->j", T, _powers(t * t, 6, None))
     e += a
     e *= 2.0 * ONE_OVER_SQRT_TWO_PI * t
     e *= g
