@@ -326,8 +326,13 @@ def _rc_param(num, den):
     """Control parameter num/den of the rational cubic, with its limits where the
     denominator or the numerator vanish (Jäckel 2015)."""
     r = num / den
-    r = np.where(_tiny(den), np.where(num > 0, R_MAX, R_MIN), r)
-    return np.where(_tiny(num), 0.0, r)
+    m = _tiny(den)
+    if m.any():
+        r = np.where(m, np.where(num > 0, R_MAX, R_MIN), r)
+    m = _tiny(num)
+    if m.any():
+        r = np.where(m, 0.0, r)
+    return r
 
 
 def _rc_param_left(x_l, x_r, y_l, y_r, d_l, d_r, d2_l):
@@ -341,22 +346,41 @@ def _rc_param_right(x_l, x_r, y_l, y_r, d_l, d_r, d2_r):
 
 
 def _rc_min_param(d_l, d_r, s, prefer_shape: bool):
-    """Smallest control parameter that keeps the cubic monotone/convex (D&G 3.8, 3.18)."""
+    """Smallest control parameter that keeps the cubic monotone/convex (D&G 3.8, 3.18).
+
+    The exceptional cases (a vanishing slope or gap, a non-monotone or non-convex
+    configuration) are rare, so each is applied only where it occurs."""
     monotonic = (d_l * s >= 0) & (d_r * s >= 0)
-    convex = (d_l <= s) & (s <= d_r)
-    concave = (d_l >= s) & (s >= d_r)
-    r1 = np.where(monotonic & ~_tiny(s), (d_r + d_l) / s, -DBL_MAX)
+    cc = (d_l <= s) & (s <= d_r)  # convex
+    cc |= (d_l >= s) & (s >= d_r)  # concave
+    tiny_s = _tiny(s)
+    r1 = (d_r + d_l) / s
+    m = monotonic & ~tiny_s
+    if not m.all():
+        r1 = np.where(m, r1, -DBL_MAX)
     if prefer_shape:
-        r1 = np.where(monotonic & _tiny(s), R_MAX, r1)
-    cc = convex | concave
+        m = monotonic & tiny_s
+        if m.any():
+            r1 = np.where(m, R_MAX, r1)
     ok = ~(_tiny(s - d_l) | _tiny(d_r - s))
-    r2 = np.where(cc & ok, np.maximum(np.abs((d_r - d_l) / (d_r - s)),
-                                      np.abs((d_r - d_l) / (s - d_l))), -DBL_MAX)
+    dd = d_r - d_l
+    r2 = np.maximum(np.abs(dd / (d_r - s)), np.abs(dd / (s - d_l)))
+    m = cc & ok
+    if not m.all():
+        r2 = np.where(m, r2, -DBL_MAX)
     if prefer_shape:
-        r2 = np.where(cc & ~ok, R_MAX, r2)
-        r2 = np.where(~cc & monotonic, R_MAX, r2)
-    out = np.maximum(R_MIN, np.maximum(r1, r2))
-    return np.where(~monotonic & ~cc, R_MIN, out)
+        m = cc & ~ok
+        if m.any():
+            r2 = np.where(m, R_MAX, r2)
+        m = ~cc & monotonic
+        if m.any():
+            r2 = np.where(m, R_MAX, r2)
+    out = np.maximum(r1, r2)
+    np.maximum(out, R_MIN, out=out)
+    m = ~(monotonic | cc)
+    if m.any():
+        out = np.where(m, R_MIN, out)
+    return out
 
 
 def _rc_convex_left(x_l, x_r, y_l, y_r, d_l, d_r, d2_l, prefer_shape):
@@ -370,15 +394,28 @@ def _rc_convex_right(x_l, x_r, y_l, y_r, d_l, d_r, d2_r, prefer_shape):
 
 
 def _rc_interp(x, x_l, x_r, y_l, y_r, d_l, d_r, r):
+    """Rational cubic through (x_l, y_l), (x_r, y_r) with slopes d_l, d_r and control
+    parameter r, at x (Delbourgo & Gregory 1985); linear for r >= R_MAX, the mean of
+    the end values where the interval is empty."""
     h = x_r - x_l
     t = (x - x_l) / h
     omt = 1 - t
     t2 = t * t
     omt2 = omt * omt
-    cubic = (y_r * t2 * t + (r * y_r - h * d_r) * t2 * omt + (r * y_l + h * d_l) * t * omt2
-             + y_l * omt2 * omt) / (1 + (r - 3) * t * omt)
-    out = np.where(r >= R_MAX, y_r * t + y_l * omt, cubic)
-    return np.where(np.abs(h) <= 0, 0.5 * (y_l + y_r), out)
+    num = y_r * t2 * t
+    num += (r * y_r - h * d_r) * t2 * omt
+    num += (r * y_l + h * d_l) * t * omt2
+    num += y_l * omt2 * omt
+    den = (r - 3) * t * omt
+    den += 1
+    num /= den
+    m = r >= R_MAX
+    if m.any():
+        num = np.where(m, y_r * t + y_l * omt, num)
+    m = np.abs(h) <= 0
+    if m.any():
+        num = np.where(m, 0.5 * (y_l + y_r), num)
+    return num
 
 
 # ---------------------------------------------------------------------------
