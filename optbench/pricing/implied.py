@@ -150,7 +150,12 @@ def _screen_and_solve(price, F, K, t, D, flags, vol, status):
         ok &= D > 0
         ok &= price >= 0
         np.copyto(status, BAD_INPUT, where=~ok)
-    idx = np.flatnonzero(status == OK)
+    todo = status == OK
+    if todo.all():  # the common case: no gathers
+        s, conv = normalised_implied_vol_otm(beta, x)
+        np.divide(s, np.sqrt(t), out=vol)
+        return np.arange(status.shape[0]), conv
+    idx = np.flatnonzero(todo)
     if not idx.size:
         return idx, np.ones(0, dtype=bool)
     s, conv = normalised_implied_vol_otm(beta[idx], x[idx])
