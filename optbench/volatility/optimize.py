@@ -21,7 +21,7 @@ class MinimizeResult:
 
 
 def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
-                 fg0=None, max_iter: int = 300, gtol: float = 1e-9, ftol: float = 1e-15
+                 fg0=None, max_step=None, max_iter: int = 300, gtol: float = 1e-9, ftol: float = 1e-15
                  ) -> MinimizeResult:
     """Minimise a smooth function with analytic gradient inside a box.
 
@@ -39,6 +39,11 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
     fg0 : tuple, optional
         ``(f, gradient)`` at ``x0`` when already known (saves one evaluation); only
         used when ``x0`` lies inside the box.
+    max_step : array-like, optional
+        Largest change of each coordinate in one trial step: the line search starts
+        from the largest fraction of the quasi-Newton step (at most one) that
+        respects it (a simple trust region; keeps trial points where the model can
+        be evaluated cheaply).
 
     Returns
     -------
@@ -73,6 +78,7 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
     floor = 1e-8 * max(1.0, float(np.abs(w).max()))
     B = (V * np.maximum(np.abs(w), floor)) @ V.T            # positive definite start
     span = np.maximum(hi - lo, 1e-12)
+    cap_step = None if max_step is None else np.asarray(max_step, dtype=float)
     for it in range(1, max_iter + 1):
         tol = 1e-12 * span
         at_lo = x <= lo + tol
@@ -103,6 +109,10 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
             B = np.eye(k) * max(1.0, float(np.abs(np.diag(B)).max()))
             d = -pg / np.diag(B)
         step = 1.0
+        if max_step is not None:
+            big = np.abs(d) * step > cap_step
+            if big.any():
+                step = float(np.min(cap_step[big] / np.abs(d[big])))
         accepted = False
         for _ in range(50):
             if step * np.max(np.abs(d) / (1.0 + np.abs(x))) < 1e-15:

@@ -94,3 +94,23 @@ def test_egarch_objective_gradient_against_finite_differences(dist):
         tm[i] -= h
         fd = (prob.objective(tp) - prob.objective(tm)) / (2 * h)
         assert g[i] == pytest.approx(fd, rel=1e-5, abs=1e-9)
+
+
+@pytest.mark.parametrize("dist", ["normal", "t"])
+def test_egarch_per_day_scores_against_finite_differences(dist):
+    """Forward-sensitivity scores of each day against central differences of the
+    per-day log-likelihood (the robust covariance and the optimiser's start use them)."""
+    from optbench.volatility.garch import _Problem
+
+    y = _returns(1500, 15)
+    prob = _Problem(y, "egarch", dist, True, 1.0)
+    theta = np.array([0.02, 0.01, 0.12, -0.1, 0.96] + ([6.5] if dist == "t" else []))
+    ll, sc = prob.egarch_score_obs(theta)
+    np.testing.assert_allclose(ll, prob.loglik_obs(theta), rtol=1e-12)
+    for i in range(theta.size):
+        h = 1e-6
+        tp, tm = theta.copy(), theta.copy()
+        tp[i] += h
+        tm[i] -= h
+        fd = (prob.loglik_obs(tp) - prob.loglik_obs(tm)) / (2 * h)
+        np.testing.assert_allclose(sc[:, i], fd, rtol=1e-5, atol=1e-7)
