@@ -137,6 +137,8 @@ def _asymptotic_matrix() -> np.ndarray:
 
 
 _ASYMPTOTIC_C = _asymptotic_matrix()  # (17 orders, 18 powers of e)
+_ASYMPTOTIC_E_EXP = np.arange(18.0)[:, None]  # e^0 .. e^17
+_ASYMPTOTIC_Q_EXP = np.arange(1.0, 18.0)[:, None]  # q^1 .. q^17
 
 
 def _powers(v: np.ndarray, n: int, first: float | None) -> np.ndarray:
@@ -163,8 +165,13 @@ def _asymptotic(h: np.ndarray, t: np.ndarray, g: np.ndarray) -> np.ndarray:
     e = (t / h) ** 2
     r = (h + t) * (h - t)
     q = (h / r) ** 2
-    P = _ASYMPTOTIC_C @ _powers(e, _ASYMPTOTIC_C.shape[1], 1.0)
-    A = 2.0 + np.einsum("ij,ij->j", P, _powers(q, _ASYMPTOTIC_C.shape[0], None))
+    if e.shape[0] < 256:  # the usual handful of tail elements: one call per power table
+        E = np.power(e, _ASYMPTOTIC_E_EXP)
+        Q = np.power(q, _ASYMPTOTIC_Q_EXP)
+    else:
+        E = _powers(e, _ASYMPTOTIC_C.shape[1], 1.0)
+        Q = _powers(q, _ASYMPTOTIC_C.shape[0], None)
+    A = 2.0 + np.einsum("ij,ij->j", _ASYMPTOTIC_C @ E, Q)
     b = ONE_OVER_SQRT_TWO_PI * g * (t / r) * A
     return np.abs(np.maximum(b, 0.0))
 
