@@ -108,6 +108,11 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
         if not np.dot(d, g) < 0:
             B = np.eye(k) * max(1.0, float(np.abs(np.diag(B)).max()))
             d = -pg / np.diag(B)
+        elif -0.5 * float(np.dot(d, g)) < 0.1 * ftol * (1.0 + abs(f)):
+            # the full quasi-Newton step predicts a decrease far below what the
+            # objective can resolve: nothing is left to gain
+            return MinimizeResult(x, f, True, "predicted decrease below tolerance", it,
+                                  nfev)
         step = 1.0
         if max_step is not None:
             big = np.abs(d) * step > cap_step
