@@ -226,3 +226,72 @@ def test_extreme_inputs_finish_with_a_status_and_never_a_silent_nan():
     well = solved & (s < 5)
     assert well.sum() > 5_000
     assert np.max(np.abs(vol[well] / v[well] - 1)) <= 1e-13
+
+
+def test_every_segment_of_the_initial_guess_agrees_with_the_reference():
+    # vollib's lets_be_rational (Jäckel's reference code): normalised_black prices the
+    # out-of-the-money calls (q = +1) and
+    # normalised_implied_volatility_from_a_transformed_rational_guess inverts them.
+    # s from 0.05 s_c to 6 s_c, s_c = sqrt(2|x|), spans the lowest segment, both middle
+    # segments and the highest one (Jäckel 2015, section 3)
+    from lets_be_rational import normalised_black as ref_black
+    from lets_be_rational import (
+        normalised_implied_volatility_from_a_transformed_rational_guess as ref_iv)
+
+    from optbench.pricing.lets_be_rational import _initial_guess
+
+    X, M = (a.ravel() for a in np.meshgrid(-np.geomspace(1e-3, 30.0, 30),
+                                           np.geomspace(0.05, 6.0, 30)))
+    S = M * np.sqrt(2 * np.abs(X))
+    beta = np.array([ref_black(x, s, 1.0) for x, s in zip(X, S)])
+    keep = (beta > 1e-300) & (S < 5)
+    X, S, beta = X[keep], S[keep], beta[keep]
+    # each segment and each objective is represented
+    b_c = np.array([ref_black(x, np.sqrt(2 * abs(x)), 1.0) for x in X])
+    with np.errstate(all="ignore"):
+        _, i_low, i_up = _initial_guess(beta, X, np.exp(0.5 * X))
+    assert i_low.size > 20 and i_up.size > 20
+    assert (beta < b_c).sum() - i_low.size > 20 and (beta > b_c).sum() > i_up.size + 20
+    s_hat, conv = normalised_implied_vol_otm(beta, X)
+    assert conv.all()
+    expect = np.array([ref_iv(b, x, 1.0) for b, x in zip(beta, X)])
+    np.testing.assert_allclose(s_hat, expect, rtol=1e-13)
+    assert np.max(np.abs(s_hat / S - 1)) <= 1e-13
+
+
+def test_chunk_boundaries_keep_codes_vols_and_fallbacks_on_their_options(monkeypatch):
+    # chunks of 4 options: reason codes, solved vols and the indices handed to the
+    # fallback must land on the right options across chunk boundaries; reference:
+    # vollib.black_scholes_merton.implied_volatility, option by option
+    from vollib.black_scholes_merton.implied_volatility import implied_volatility as ref
+
+    S, r, q = 100.0, 0.03, 0.01
+    K = np.linspace(70.0, 140.0, 23)
+    t = np.full(K.shape, 0.6)
+    call = K >= 100.0
+    v = np.linspace(0.12, 0.8, K.size)
+    p = bsm_price(S, K, t, r, q, v, call)
+    p[5], p[10], t[13] = np.nan, -1.0, 0.0
+    whole, whole_status = implied_vol_with_status(p, S, K, t, r, q, call)
+
+    real = iv_mod.normalised_implied_vol_otm
+
+    def flag_every_third(beta, x):
+        s, conv = real(beta, x)
+        conv = conv.copy()
+        conv[::3] = False
+        return s, conv
+
+    monkeypatch.setattr(iv_mod, "CHUNK", 4)
+    monkeypatch.setattr(iv_mod, "normalised_implied_vol_otm", flag_every_third)
+    vol, status = implied_vol_with_status(p, S, K, t, r, q, call)
+    assert status[5] == BAD_INPUT and status[10] == BAD_INPUT and status[13] == EXPIRED
+    solved = (status == OK) | (status == FALLBACK)
+    assert solved.sum() == K.size - 3
+    assert (status == FALLBACK).sum() >= 5 and (status == OK).sum() >= 5
+    np.testing.assert_array_equal(solved, whole_status == OK)
+    np.testing.assert_allclose(vol[solved], whole[solved], rtol=1e-13)
+    for i in np.flatnonzero(solved):
+        expect = ref(float(p[i]), S, K[i], t[i], r, q, "c" if call[i] else "p")
+        assert vol[i] == pytest.approx(expect, abs=1e-11)
+        assert vol[i] == pytest.approx(v[i], abs=1e-12)
