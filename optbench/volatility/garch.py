@@ -102,11 +102,8 @@ class _Problem:
         name = self.spec.name
         if name in ("garch", "gjr"):
             out = garch_variance(eps, p["omega"], p["alpha"], p.get("gamma", 0.0),
-                                 p["beta"], self.backcast, grad=grad, with_mean=self.has_mu)
-            if grad and name == "garch":
-                s2, d = out
-                drop = (1 if self.has_mu else 0) + 2  # the gamma row
-                out = (s2, np.delete(d, drop, axis=0))
+                                 p["beta"], self.backcast, grad=grad, with_mean=self.has_mu,
+                                 with_gamma=name == "gjr")
             return eps, out
         if name == "egarch":
             lnv = self._egarch_path(eps, p)

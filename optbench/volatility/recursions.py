@@ -155,7 +155,7 @@ def linear_filter_loop(u: np.ndarray, b: float, x0: float = 0.0) -> np.ndarray:
 
 def garch_variance(eps: np.ndarray, omega: float, alpha: float, gamma: float,
                    beta: float, backcast: float, *, grad: bool = False,
-                   with_mean: bool = False):
+                   with_mean: bool = False, with_gamma: bool = True):
     """Conditional variances of GARCH(1,1) / GJR-GARCH(1,1), with derivatives.
 
     Parameters
@@ -171,12 +171,14 @@ def garch_variance(eps: np.ndarray, omega: float, alpha: float, gamma: float,
         (omega, alpha, gamma, beta) and, with ``with_mean``, mu.
     with_mean : bool
         Include the derivative with respect to the mean ``mu`` (as the first row).
+    with_gamma : bool
+        Include the derivative with respect to ``gamma`` (False for GARCH(1,1)).
 
     Returns
     -------
     sigma2 : ndarray, shape (n,)
     dsigma2 : ndarray, shape (k, n), only with ``grad``; rows ordered
-        (mu,) omega, alpha, gamma, beta.
+        (mu,) omega, alpha, (gamma,) beta.
 
     Notes
     -----
@@ -209,7 +211,7 @@ def garch_variance(eps: np.ndarray, omega: float, alpha: float, gamma: float,
         dm = np.zeros(n)
         dm[1:] = -2.0 * eps[:-1] * (alpha + gamma * neg[:-1])
         rows.append(dm)
-    rows += [np.ones(n), a, g, s2_lag]
+    rows += [np.ones(n), a, g, s2_lag] if with_gamma else [np.ones(n), a, s2_lag]
     d = linear_filter(np.stack(rows), beta, 0.0)
     return s2, d
 

@@ -114,3 +114,15 @@ def test_egarch_loop_against_plain_formula():
         z = e[t - 1] / math.sqrt(math.exp(h[t - 1]))
         h[t] = om + a * (abs(z) - SQRT_2_OVER_PI) + g * z + b * h[t - 1]
     np.testing.assert_allclose(got, h, rtol=1e-12, atol=1e-12)
+
+
+def test_garch_derivatives_without_the_gamma_row():
+    """GARCH(1,1) asks for no gamma row: the other rows are unchanged (mean row
+    included), against the full GJR set of rows at gamma = 0."""
+    rng = np.random.default_rng(21)
+    e = 0.01 * rng.standard_normal(1200)
+    args = (1e-6, 0.07, 0.0, 0.9, 1.1e-4)
+    s2_full, d_full = garch_variance(e, *args, grad=True, with_mean=True)
+    s2, d = garch_variance(e, *args, grad=True, with_mean=True, with_gamma=False)
+    np.testing.assert_array_equal(s2, s2_full)
+    np.testing.assert_allclose(d, np.delete(d_full, 3, axis=0), rtol=1e-13, atol=0)
