@@ -79,17 +79,28 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
     B = (V * np.maximum(np.abs(w), floor)) @ V.T            # positive definite start
     span = np.maximum(hi - lo, 1e-12)
     cap_step = None if max_step is None else np.asarray(max_step, dtype=float)
+    lo_tol = lo + 1e-12 * span
+    hi_tol = hi - 1e-12 * span
     for it in range(1, max_iter + 1):
-        tol = 1e-12 * span
-        at_lo = x <= lo + tol
-        at_hi = x >= hi - tol
-        active = (at_lo & (g > 0)) | (at_hi & (g < 0))
-        free = ~active
-        pg = np.where(active, 0.0, g)
+        at_lo = x <= lo_tol
+        at_hi = x >= hi_tol
+        interior = not (at_lo.any() or at_hi.any())
+        if interior:
+            pg = g
+        else:
+            active = (at_lo & (g > 0)) | (at_hi & (g < 0))
+            free = ~active
+            pg = np.where(active, 0.0, g)
         if np.max(np.abs(pg)) < gtol:
             return MinimizeResult(x, f, True, "projected gradient below tolerance", it, nfev)
         d = np.zeros(k)
-        for _ in range(k):   # Newton step on the free coordinates: B_ff d_f = -g_f
+        if interior:   # nothing on a bound: the plain quasi-Newton step
+            try:
+                d = -np.linalg.solve(B, g)
+            except np.linalg.LinAlgError:
+                d = -pg
+        for _ in range(0 if interior else k):
+            # Newton step on the free coordinates: B_ff d_f = -g_f
             d[:] = 0.0
             try:
                 if free.all():
