@@ -76,7 +76,10 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
                                                + np.asarray(hess0, dtype=float).T)
     w, V = np.linalg.eigh(B)
     floor = 1e-8 * max(1.0, float(np.abs(w).max()))
-    B = (V * np.maximum(np.abs(w), floor)) @ V.T            # positive definite start
+    wp = np.maximum(np.abs(w), floor)
+    B = (V * wp) @ V.T            # positive definite start
+    Hinv = (V / wp) @ V.T         # its inverse, kept alongside for the interior steps
+    eye = np.eye(k)
     span = np.maximum(hi - lo, 1e-12)
     cap_step = None if max_step is None else np.asarray(max_step, dtype=float)
     lo_tol = lo + 1e-12 * span
@@ -95,10 +98,7 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
             return MinimizeResult(x, f, True, "projected gradient below tolerance", it, nfev)
         d = np.zeros(k)
         if interior:   # nothing on a bound: the plain quasi-Newton step
-            try:
-                d = -np.linalg.solve(B, g)
-            except np.linalg.LinAlgError:
-                d = -pg
+            d = -(Hinv @ g)
         for _ in range(0 if interior else k):
             # Newton step on the free coordinates: B_ff d_f = -g_f
             d[:] = 0.0
@@ -117,8 +117,10 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
                 break
             free &= ~out
         if not np.dot(d, g) < 0:
-            B = np.eye(k) * max(1.0, float(np.abs(np.diag(B)).max()))
-            d = -pg / np.diag(B)
+            c = max(1.0, float(np.abs(np.diag(B)).max()))
+            B = eye * c
+            Hinv = eye / c
+            d = -pg / c
         elif -0.5 * float(np.dot(d, g)) < 0.1 * ftol * (1.0 + abs(f)):
             # the full quasi-Newton step predicts a decrease far below what the
             # objective can resolve: nothing is left to gain
@@ -133,7 +135,7 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
         for _ in range(50):
             if step * np.max(np.abs(d) / (1.0 + np.abs(x))) < 1e-15:
                 break   # the step no longer moves x: at the precision of f
-            xn = np.clip(x + step * d, lo, hi)
+            xn = np.minimum(np.maximum(x + step * d, lo), hi)
             if feasible is None or feasible(xn):
                 fn, gn = fun_grad(xn)
                 nfev += 1
@@ -153,6 +155,9 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
         sBs = float(np.dot(s, Bs))
         if sy > 1e-12 * np.sqrt(np.dot(s, s) * np.dot(y, y)) and sBs > 0:
             B = B + np.outer(y, y) / sy - np.outer(Bs, Bs) / sBs   # BFGS (direct form)
+            # the same update of the inverse (Nocedal & Wright, eq. 6.17)
+            Ms = eye - np.outer(s, y) / sy
+            Hinv = Ms @ Hinv @ Ms.T + np.outer(s, s) / sy
         if df < ftol * (1.0 + abs(f)):
             return MinimizeResult(x, f, True, "relative change in the objective below "
                                               "tolerance", it, nfev)
