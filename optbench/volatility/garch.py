@@ -20,8 +20,8 @@ import numpy as np
 
 from optbench.errors import InputError
 from optbench.volatility import forecast as fc
-from optbench.volatility.distributions import (NU_MIN, get_distribution, normal_loglik,
-                                               std_t_loglik)
+from optbench.volatility.distributions import (LOG_2PI, NU_MIN, get_distribution,
+                                               normal_loglik, std_t_loglik)
 from optbench.volatility.recursions import (LN_VARIANCE_CAP, SQRT_2_OVER_PI,
                                             affine_filter, backcast_value,
                                             egarch_jacobian,
@@ -262,10 +262,20 @@ class _Problem:
         if not (s2.min() > 0) or not np.isfinite(s2[-1]):
             return 1e6, np.zeros(self.k)
         if nu is None:
-            ll, d_s2, d_e = normal_loglik(eps, s2, grad=True)
+            # normal density written out (as normal_loglik): only sums are needed
+            inv = 1.0 / s2
+            r = e2 * inv
+            total = -0.5 * (self.n * LOG_2PI + float(np.log(s2).sum()) + float(r.sum()))
+            r -= 1.0
+            r *= inv
+            r *= 0.5
+            d_s2 = r
+            sum_d_e = -float(np.dot(eps, inv))
             d_nu = None
         else:
             ll, d_s2, d_e, d_nu = std_t_loglik(eps, s2, nu, grad=True)
+            total = float(ll.sum())
+            sum_d_e = float(d_e.sum())
         lam = reverse_filter(d_s2, beta)
         s2_lag = np.empty(self.n)
         s2_lag[0] = bc
@@ -273,7 +283,7 @@ class _Problem:
         grad = []
         if self.has_mu:
             coef = alpha + gamma * neg[:-1] if g is not None else alpha
-            grad.append(-2.0 * np.dot(lam[1:], eps[:-1] * coef) - d_e.sum())
+            grad.append(-2.0 * np.dot(lam[1:], eps[:-1] * coef) - sum_d_e)
         grad.append(lam.sum())
         grad.append(np.dot(lam, a))
         if g is not None:
@@ -281,7 +291,6 @@ class _Problem:
         grad.append(np.dot(lam, s2_lag))
         if d_nu is not None:
             grad.append(d_nu.sum())
-        total = float(ll.sum())
         if not math.isfinite(total):
             return 1e6, np.zeros(self.k)
         return -total / self.n, -np.array(grad) / self.n
