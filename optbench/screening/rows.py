@@ -19,10 +19,9 @@ from pathlib import Path
 
 NOTIONAL = 1_000_000.0
 DEFAULT_TENORS = (30, 91, 182)
-#: the screen fits GJR-GARCH by default: asymmetric, the usual choice for equity
-#: underlyings, and about 0.1 s per underlying cheaper than "auto" (which also fits
-#: EGARCH and picks by BIC); --model auto is there for a screen that wants it
-DEFAULT_MODEL = "gjr"
+#: the screen fits the same default model as ``compare``: GARCH, GJR and EGARCH,
+#: keeping the lowest BIC
+DEFAULT_MODEL = "auto"
 
 # column order of the screen table; every row has these keys
 COLUMNS = (

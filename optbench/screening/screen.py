@@ -104,8 +104,7 @@ def screen(folder: str | Path, *, tenors: Sequence[int] = DEFAULT_TENORS,
     folder : a folder of scenario folders (or one scenario folder).
     tenors : target tenors in calendar days; each row uses the nearest listed expiry.
     floor : protection floor as a fraction of spot, in (0, 1].
-    model, dist, mean : the volatility model, as in ``compare`` (default GJR-t; see
-        :data:`optbench.screening.rows.DEFAULT_MODEL`).
+    model, dist, mean : the volatility model, as in ``compare``.
     sort, descending : the column to rank by (default: implied minus forecast,
         richest first).
     workers : local worker processes (default: the number of cores; 1 = in process).

@@ -74,7 +74,7 @@ def test_broken_underlying_is_reported_not_fatal(result):
 
 
 def test_rows_carry_the_comparison_numbers(result):
-    comparison = compare(DEMO, model="gjr", n_paths=PATHS)   # the screen's default model
+    comparison = compare(DEMO, n_paths=PATHS)
     by_expiry = {e.expiry.isoformat(): e for e in comparison.expiries}
     for r in (r for r in result.rows if r["code"] == "ZPHA"):
         e = by_expiry[r["expiry"]]
