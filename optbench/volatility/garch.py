@@ -860,6 +860,17 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast):
 
     order = list(np.argsort(vals))
     res, theta, problem = run(starts[order[0]])
+    if problem is None and not prob.spec.linear:
+        # EGARCH's likelihood can have several local optima when the dynamics are weak
+        # (persistence far from one): also climb from the best start of the other
+        # persistence regime and keep the higher optimum
+        beta_of = [prob.unpack(x)[1]["beta"] for x in starts]
+        first = beta_of[order[0]]
+        other = [i for i in order[1:] if abs(beta_of[i] - first) > 0.1]
+        if other:
+            r2, t2, p2 = run(starts[other[0]])
+            if p2 is None and r2.fun < res.fun - 1e-12:
+                res, theta = r2, t2
     if problem is not None:
         # a boundary or failed solution from the best start: try the other starts and
         # keep the best stationary, converged one

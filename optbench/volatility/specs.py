@@ -49,7 +49,10 @@ class VolSpec:
             grid = ((0.03, 0.10, 0.95), (0.01, 0.15, 0.98), (0.06, 0.06, 0.90))
             return [[var * (1 - p), a, g, p - a - g / 2] for a, g, p in grid]
         if self.name == "egarch":
-            grid = ((0.10, -0.05, 0.97), (0.15, -0.10, 0.95), (0.05, 0.0, 0.99))
+            # high-persistence starts, and one of weak dynamics (a separate optimum
+            # can sit there; the estimator climbs from both regimes)
+            grid = ((0.10, -0.05, 0.97), (0.15, -0.10, 0.95), (0.05, 0.0, 0.99),
+                    (0.10, -0.05, 0.70))
             return [[math.log(var) * (1 - b), a, g, b] for a, g, b in grid]
         return [[]]
 
