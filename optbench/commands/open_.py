@@ -9,7 +9,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from optbench.commands.common import parse_float
+from optbench.commands.common import parse_float, whole_number
 from optbench.commands.compare import add_chain_arguments
 from optbench.errors import InputError
 
@@ -25,13 +25,25 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     parser.add_argument("--max-spread", dest="max_spread", type=parse_float, default=None,
                         help="quote filter: widest bid/ask spread kept, as a fraction of "
                              "mid (0.5 = 50%%; default: the loader's)")
+    parser.add_argument("--universe", metavar="FOLDER", default=None,
+                        help="a folder of scenario folders: the workbench opens on its "
+                             "screen (key u), and Enter on a row opens that underlying")
+    parser.add_argument("--workers", type=whole_number(1), default=None,
+                        help="local worker processes for the universe screen "
+                             "(default: the number of cores)")
     parser.set_defaults(run=run)
     return parser
 
 
 def run(args: argparse.Namespace) -> int:
     from optbench.tui import session
-    chain = Path(args.chain) if args.chain else session.demo_scenario()
+    universe = None
+    if args.universe:
+        from optbench.screening.universe import find_scenarios
+        universe = Path(args.universe)
+        scenarios = find_scenarios(universe)          # one-line error if none
+    chain = Path(args.chain) if args.chain else (scenarios[0] if universe is not None
+                                                 else session.demo_scenario())
     if not chain.exists():
         raise InputError(chain, "no such file or folder" if args.chain else
                          "the bundled demo scenario is missing; run `optbench demo`")
@@ -43,6 +55,7 @@ def run(args: argparse.Namespace) -> int:
     from optbench.tui.app import make_app
     app = make_app(chain, history, model=args.model, dist=args.dist, mean=args.mean,
                    spot=args.spot, asof=args.asof, rate=args.rate, div_yield=args.div_yield,
-                   max_spread=args.max_spread, hedge_paths=args.paths, seed=args.seed)
+                   max_spread=args.max_spread, hedge_paths=args.paths, seed=args.seed,
+                   universe=universe, workers=args.workers)
     app.run()
     return 0

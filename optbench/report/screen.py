@@ -33,7 +33,8 @@ SCREEN_BRIEF = ("code", "tenor_days", "expiry", "calendar_days", "atm_iv", "fore
                 "protection_cost", "protection_expected_payoff", "protection_overpay",
                 "error")
 
-VERDICT_MARK = {"rich": "rich ▲", "cheap": "cheap ▼", "fair": "fair ="}
+#: verdicts readable without colour, marked as in the workbench
+VERDICT_MARK = {"rich": "▲ rich", "cheap": "▼ cheap", "fair": "= fair"}
 
 
 def _comment(result) -> str:

@@ -100,6 +100,7 @@ class Workbench(App):
         Binding("right_square_bracket", "step_expiry(1)", "Next expiry", key_display="]",
                 id="app.next_expiry", group=EXPIRY_KEYS),
         Binding("o", "open", "Open", id="app.open"),
+        Binding("u", "universe", "Universe", id="app.universe"),
         Binding("m", "settings", "Model & market", id="app.settings"),
         Binding("r", "recompute", "Recompute", id="app.recompute"),
         Binding("e", "export", "Export", id="app.export"),
@@ -108,9 +109,14 @@ class Workbench(App):
         Binding("q", "quit", "Quit", id="app.quit"),
     ]
 
-    def __init__(self, inputs: session.Inputs) -> None:
+    def __init__(self, inputs: session.Inputs, universe: Path | None = None,
+                 workers: int | None = None) -> None:
         super().__init__()
         self.inputs = inputs
+        #: a folder of scenario folders to screen (key u), and its last screen
+        self.universe = Path(universe) if universe is not None else None
+        self.universe_workers = workers
+        self.universe_result = None
         self.comparison = None
         self.headline = None
         self.chain = None
@@ -129,6 +135,8 @@ class Workbench(App):
     def on_mount(self) -> None:
         self.sub_title = self.inputs.label
         # the first run starts when the workbench screen has mounted its widgets
+        if self.universe is not None:
+            self.call_after_refresh(self.action_universe)
 
     def view(self, view_id: str):
         """The view widget (it may still be waiting to mount; it draws when it does)."""
@@ -300,6 +308,37 @@ class Workbench(App):
         self.sub_title = self.inputs.label
         self.start_compute()
 
+    def action_universe(self) -> None:
+        """u: the screen of a universe; Enter on a row opens that underlying."""
+        from optbench.screening.universe import find_scenarios, is_scenario
+        from optbench.tui.dialogs.universe import UniverseScreen
+        folder = self.universe
+        if folder is None:   # the folder that holds the open scenario, if it holds several
+            here = self.inputs.source.chain
+            here = here if here.is_dir() else here.parent
+            parent = here.parent
+            if is_scenario(here) and sum(is_scenario(p) for p in parent.iterdir()) >= 2:
+                folder = parent
+        if folder is None:
+            self.notify("No universe to screen: start with optbench open --universe FOLDER "
+                        "(a folder of scenario folders).", severity="warning", timeout=8)
+            return
+        try:
+            find_scenarios(folder)
+        except InputError as err:
+            self.notify(str(err), title="Cannot screen", severity="error", timeout=8)
+            return
+        if folder != self.universe:
+            self.universe, self.universe_result = folder, None
+        s = self.inputs.settings
+        dialog = UniverseScreen(folder, self.universe_result, workers=self.universe_workers,
+                                model=s.model, dist=s.dist, mean=s.mean)
+
+        def chosen(request: OpenRequest | None) -> None:
+            self.universe_result = dialog.result
+            self._opened(request)
+        self.push_screen(dialog, chosen)
+
     def action_settings(self) -> None:
         from optbench.tui.dialogs.settings import SettingsDialog
         c = self.comparison
@@ -363,7 +402,8 @@ def make_app(scenario_path: str | Path | None = None, history: str | Path | None
              model: str = "auto", dist: str = "t", mean: str = "constant",
              spot: float | None = None, asof=None, rate: float | None = None,
              div_yield: float | None = None, max_spread: float | None = None,
-             hedge_paths: int | None = None, seed: int | None = 7) -> Workbench:
+             hedge_paths: int | None = None, seed: int | None = 7,
+             universe: str | Path | None = None, workers: int | None = None) -> Workbench:
     """The workbench on a chain file or scenario folder (default: the bundled demo).
 
     Parameters
@@ -375,10 +415,13 @@ def make_app(scenario_path: str | Path | None = None, history: str | Path | None
     max_spread : widest bid/ask spread kept, as a fraction of mid (loader filter).
     hedge_paths, seed : the simulation behind hedge estimates (default 20,000 paths,
         seed 7, as ``optbench hedge``).
+    universe, workers : a folder of scenario folders to screen (the universe screen,
+        key u, opens on start) and its local worker processes (default: the cores).
     """
     chain = Path(scenario_path) if scenario_path is not None else session.demo_scenario()
     source = OpenRequest(chain=chain, history=Path(history) if history is not None else None)
     settings = Settings(model=model, dist=dist, mean=mean, spot=spot, asof=asof, rate=rate,
                         div_yield=div_yield, max_spread=max_spread,
                         hedge_paths=int(hedge_paths or session.N_PATHS), seed=seed)
-    return Workbench(session.Inputs(source=source, settings=settings))
+    return Workbench(session.Inputs(source=source, settings=settings), universe=universe,
+                     workers=workers)

@@ -1,0 +1,89 @@
+"""The universe screen: the workbench screens a folder of scenario folders, shows the
+rows of ``optbench screen`` (the same numbers), and opens any row's underlying in its
+full views; a broken underlying stays a row with its reason."""
+from __future__ import annotations
+
+import shutil
+
+import pytest
+
+from optbench.screening.screen import screen
+from optbench.tui.app import make_app
+from optbench.tui.dialogs.universe import UniverseScreen
+
+from tui_helpers import SIZE, demo, run, settle
+
+PATHS = 500
+
+
+def _universe(root):
+    for code in ("ZPHA", "ZPHB"):
+        shutil.copytree(demo(), root / code)
+        meta = (root / code / "meta.toml").read_text()
+        (root / code / "meta.toml").write_text(meta.replace('code = "ZPHX"', f'code = "{code}"'))
+    (root / "BRKN").mkdir()
+    (root / "BRKN" / "chain.csv").write_text("not a chain\n")
+    shutil.copy(demo() / "history.csv", root / "BRKN" / "history.csv")
+    return root
+
+
+@pytest.mark.slow
+def test_universe_rows_open_in_the_full_views(tmp_path):
+    run(_universe_rows_open(tmp_path))
+
+
+async def _universe_rows_open(tmp_path):
+    universe = _universe(tmp_path)
+    app = make_app(universe / "ZPHA", universe=universe, workers=1, hedge_paths=PATHS)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(app, pilot)
+        dialog = app.screen
+        assert isinstance(dialog, UniverseScreen)
+        for _ in range(600):
+            if dialog.result is not None:
+                break
+            await pilot.pause(0.1)
+        result = dialog.result
+        assert result is not None
+        # the rows are the screen's own: same codes, same ranking, same numbers
+        reference = screen(universe, workers=1)
+        assert [(r["code"], r["tenor_days"]) for r in result.rows] == \
+               [(r["code"], r["tenor_days"]) for r in reference.rows]
+        assert [r["atm_iv"] for r in result.rows] == [r["atm_iv"] for r in reference.rows]
+        table = dialog.query_one("#universe-table")
+        assert table.row_count == len(result.rows) == 9
+        assert [f["code"] for f in result.failures] == ["BRKN"]
+        # Enter on the second row opens that underlying in every view
+        table.focus()
+        table.move_cursor(row=1)
+        chosen = dialog.selected_row()
+        await pilot.press("enter")
+        await settle(app, pilot)
+        assert not isinstance(app.screen, UniverseScreen)
+        assert app.inputs.source.chain == universe / chosen["code"]
+        row = next(e for e in app.comparison.expiries if e.expiry.isoformat() == chosen["expiry"])
+        assert row.atm_iv == pytest.approx(chosen["atm_iv"], rel=1e-12)
+        # u brings the same screen back without recomputing; a broken row says why
+        await pilot.press("u")
+        await pilot.pause()
+        again = app.screen
+        assert isinstance(again, UniverseScreen) and again.result is result
+        broken = next(i for i, r in enumerate(result.rows) if r["code"] == "BRKN")
+        again.query_one("#universe-table").move_cursor(row=broken)
+        await pilot.press("enter")
+        await pilot.pause()
+        assert isinstance(app.screen, UniverseScreen)      # stays: nothing to open
+        await pilot.press("escape")
+        await pilot.pause()
+        assert not isinstance(app.screen, UniverseScreen)
+
+
+def test_open_universe_errors_are_one_line(tmp_path):
+    import subprocess
+    import sys
+    for folder, needle in ((tmp_path / "nowhere", "no such folder"),
+                           (tmp_path, "no scenario folders")):
+        out = subprocess.run([sys.executable, "-m", "optbench", "open", "--universe",
+                              str(folder)], capture_output=True, text=True, timeout=60)
+        assert out.returncode == 2 and needle in out.stderr
+        assert len(out.stderr.strip().splitlines()) == 1
