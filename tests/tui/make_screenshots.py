@@ -30,6 +30,30 @@ async def main() -> None:
         await pilot.press("question_mark")
         await pilot.pause(0.2)
         print("Help:", Path(app.save_screenshot(filename="help.svg", path=str(OUT))).relative_to(ROOT))
+    await universe_screenshot()
+
+
+async def universe_screenshot() -> None:
+    """The universe screen on two invented copies of the demo (ZPHA, ZPHB)."""
+    import shutil
+    import tempfile
+
+    from optbench.tui.dialogs.universe import UniverseScreen
+    with tempfile.TemporaryDirectory() as tmp:
+        root = Path(tmp)
+        for code in ("ZPHA", "ZPHB"):
+            shutil.copytree(ROOT / "chains" / "ZPHX", root / code)
+            meta = (root / code / "meta.toml").read_text()
+            (root / code / "meta.toml").write_text(meta.replace('code = "ZPHX"',
+                                                                f'code = "{code}"'))
+        app = make_app(root / "ZPHA", universe=root, workers=1)
+        async with app.run_test(size=SIZE) as pilot:
+            await settle(app, pilot)
+            while not (isinstance(app.screen, UniverseScreen) and app.screen.result):
+                await pilot.pause(0.1)
+            await pilot.pause(0.2)
+            path = app.save_screenshot(filename="universe.svg", path=str(OUT))
+            print("Universe:", Path(path).relative_to(ROOT))
 
 
 if __name__ == "__main__":
