@@ -348,13 +348,7 @@ def hedge_from_comparison(comparison, request: HedgeRequest, *, n_paths: int = 2
 def _simulated_log_returns(fit, horizon: int, n_paths: int, seed: int | None) -> np.ndarray:
     """Sum of simulated daily log returns over ``horizon`` days, one per path."""
     sim = fit.simulate(int(horizon), n_paths=int(n_paths), seed=seed)
-    returns = getattr(sim, "returns", sim)
-    returns = np.asarray(returns, dtype=float)
-    if returns.ndim == 2:
-        # (paths, horizon) or (horizon, paths): the horizon axis has length `horizon`
-        axis = 1 if returns.shape[1] == horizon else 0
-        returns = returns.sum(axis=axis)
-    return returns
+    return np.asarray(sim.returns, dtype=float).sum(axis=1)    # (paths, horizon)
 
 
 def hedge(chain, history=None, *, portfolio_value: float, beta: float = 1.0,
