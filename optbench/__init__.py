@@ -10,8 +10,7 @@ and a script that only loads a chain does not pay for the volatility models.
 """
 from __future__ import annotations
 
-import importlib
-from typing import Any
+from optbench._lazy import lazy_names
 
 __version__ = "0.1.0"
 
@@ -56,13 +55,7 @@ _EXPORTS: dict[str, str] = {
 __all__ = sorted(_EXPORTS) + ["__version__"]
 
 
-def __getattr__(name: str) -> Any:
-    module = _EXPORTS.get(name)
-    if module is None:
-        raise AttributeError(f"module 'optbench' has no attribute {name!r}")
-    value = getattr(importlib.import_module(module), name)
-    globals()[name] = value
-    return value
+__getattr__, _lazy_dir = lazy_names("optbench", _EXPORTS, globals())
 
 
 def __dir__() -> list[str]:

@@ -9,7 +9,6 @@ from __future__ import annotations
 import argparse
 import datetime as _dt
 import sys
-from pathlib import Path
 
 from optbench.errors import InputError
 
@@ -96,14 +95,8 @@ def write_output(args: argparse.Namespace, payload: str | bytes) -> None:
     """Write to ``-o FILE`` (reporting where it went on stderr) or to stdout."""
     target = getattr(args, "output", None)
     if target:
-        path = Path(target)
-        try:
-            if isinstance(payload, bytes):
-                path.write_bytes(payload)
-            else:
-                path.write_text(payload, encoding="utf-8")
-        except OSError as err:
-            raise InputError(path, f"cannot write: {err.strerror or err}") from None
+        from optbench.report.files import write_payload
+        path = write_payload(target, payload)
         print(f"optbench: wrote {path}", file=sys.stderr)
         return
     if isinstance(payload, bytes):

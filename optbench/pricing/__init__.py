@@ -5,8 +5,8 @@ Names are imported on first use so that ``import optbench.pricing`` stays cheap.
 """
 from __future__ import annotations
 
-import importlib
-from typing import Any
+from optbench._lazy import lazy_names
+
 
 _NAMES: dict[str, str] = {
     "bsm_price": "optbench.pricing.bsm",
@@ -31,14 +31,6 @@ _NAMES: dict[str, str] = {
 __all__ = sorted(_NAMES)
 
 
-def __getattr__(name: str) -> Any:
-    module = _NAMES.get(name)
-    if module is None:
-        raise AttributeError(f"module 'optbench.pricing' has no attribute {name!r}")
-    value = getattr(importlib.import_module(module), name)
-    globals()[name] = value
-    return value
-
-
+__getattr__, __dir__ = lazy_names('optbench.pricing', _NAMES, globals())
 def __dir__() -> list[str]:
     return __all__

@@ -9,6 +9,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from optbench.errors import InputError
+from optbench.report.files import write_payload
 from optbench.tui.dialogs.requests import ExportRequest
 
 #: table id -> (label in the dialog, formats offered)
@@ -103,12 +104,5 @@ def render(comparison, estimate, request: ExportRequest, *, expiry: str | None =
 def export(comparison, estimate, request: ExportRequest, *, expiry: str | None = None) -> Path:
     """Write the export; returns the path. Errors are one-line InputErrors."""
     payload = render(comparison, estimate, request, expiry=expiry)
-    path = Path(request.path)
-    try:
-        if isinstance(payload, bytes):
-            path.write_bytes(payload)
-        else:
-            path.write_text(payload, encoding="utf-8")
-    except OSError as err:
-        raise InputError(path, f"cannot write: {err.strerror or err}") from None
+    path = write_payload(request.path, payload)
     return path

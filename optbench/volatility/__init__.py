@@ -5,8 +5,8 @@ importing the package costs nothing until a model is used.
 """
 from __future__ import annotations
 
-import importlib
-from typing import Any
+from optbench._lazy import lazy_names
+
 
 # public name -> module that defines it (other modules of this package add lines here)
 _LAZY: dict[str, str] = {
@@ -20,10 +20,4 @@ _LAZY: dict[str, str] = {
 }
 
 
-def __getattr__(name: str) -> Any:
-    module = _LAZY.get(name)
-    if module is None:
-        raise AttributeError(f"module 'optbench.volatility' has no attribute {name!r}")
-    value = getattr(importlib.import_module(module), name)
-    globals()[name] = value
-    return value
+__getattr__, __dir__ = lazy_names('optbench.volatility', _LAZY, globals())

@@ -17,13 +17,14 @@ from textual.screen import ModalScreen
 from textual.widgets import DataTable, Label, Static
 from textual.worker import get_current_worker
 
+from optbench.report.fields import fmt
 from optbench.report.screen import VERDICT_MARK
 from optbench.tui.dialogs.requests import OpenRequest
 from optbench.tui.widgets.table import SortableTable
 
 #: (row key, column label, kind for formatting)
 COLUMNS = (
-    ("code", "Code", "text"), ("tenor_days", "Tenor d", "int"), ("expiry", "Expiry", "text"),
+    ("code", "Code", "text"), ("tenor_days", "Tenor d", "int"), ("expiry", "Expiry", "date"),
     ("atm_iv", "ATM IV %", "vol"), ("forecast_low", "Fc low %", "vol"),
     ("forecast_vol", "Fcst %", "vol"), ("forecast_high", "Fc high %", "vol"),
     ("iv_minus_forecast", "IV−fc pts", "volpt"), ("verdict", "Verdict", "verdict"),
@@ -36,17 +37,10 @@ _STYLE = {"rich": "bold red", "cheap": "bold green", "fair": ""}
 
 
 def _cell(value, kind: str):
-    if value is None:
-        return "–"
-    if kind == "vol":
-        return f"{100 * value:.1f}"
-    if kind == "volpt":
-        return f"{100 * value:+.1f}"
-    if kind == "money":
-        return f"{value:,.0f}"
     if kind == "verdict":
-        return Text(VERDICT_MARK.get(value, value), style=_STYLE.get(value, ""))
-    return str(value)
+        text = VERDICT_MARK.get(value, value) if value else "–"
+        return Text(text, style=_STYLE.get(value, ""))
+    return fmt(value, kind, percent_sign=False)
 
 
 def _problem(row: dict) -> str:
