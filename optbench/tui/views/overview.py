@@ -88,7 +88,7 @@ def state_text(comparison) -> Text:
         text.append(f" (fallback: {m.fallback_reason})", style="yellow")
     bt = comparison.backtest
     if bt:
-        text.append(f"\nCheck ", style="bold")
+        text.append("\nCheck ", style="bold")
         text.append(f"out of sample from {bt.get('split', '?')}: {bt.get('outside_band', '?')} "
                     f"of {bt.get('n_out', '?')} days outside ±{bt.get('band_k', 3)}σ, "
                     f"{fmt.num(bt.get('expected_model'), 1)} expected by the model "
