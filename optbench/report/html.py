@@ -129,10 +129,7 @@ def figure_history(comparison) -> str | None:
     a1.plot(dates, close, lw=0.8, label="close")
     a1.fill_between(dates, prev * np.exp(mu - 3 * sigma), prev * np.exp(mu + 3 * sigma),
                     alpha=0.3, label="±3σ one-day band")
-    a1.set_yscale("log")
-    from matplotlib.ticker import NullFormatter, ScalarFormatter
-    a1.yaxis.set_major_formatter(ScalarFormatter())
-    a1.yaxis.set_minor_formatter(NullFormatter())
+    a1.set_ylabel("close")
     a1.legend(fontsize=8)
     a1.set_title(f"{comparison.underlying} closes and the {comparison.model.name} bands")
     a2.plot(dates, ret * 100, lw=0.5, label="daily log return")
