@@ -351,7 +351,11 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
                 iv95 = float(pts.iv_moneyness[money.index(0.95)])
                 smile_info = {"method": sfit.method, "rmse": float(sfit.rmse_iv),
                               "n_points": int(sfit.n_points), "converged": bool(sfit.converged),
-                              "bf_25d": float(pts.bf_25d)}
+                              "bf_25d": float(pts.bf_25d),
+                              # raw SVI parameters (total variance in log-moneyness), so
+                              # views can draw the fitted curve with SviFit itself
+                              "params": {name: float(getattr(sfit, name))
+                                         for name in ("a", "b", "rho", "m", "sigma", "t")}}
             except InputError as err:
                 smile_info = {"method": "failed", "reason": err.problem}
         atm_bid = _interp_at_forward(k_q[sel & otm], iv_bid[sel & otm])

@@ -70,7 +70,9 @@ Per-expiry fields (:class:`ExpiryRow`)
     ``"rich"`` (``atm_iv > forecast_high``), ``"cheap"`` (``atm_iv < forecast_low``)
     or ``"fair"`` (inside the band); ``"n/a"`` when either side is missing.
 ``smile``
-    a small summary of the smile fit (``{"method": ..., "rmse": ..., ...}``).
+    a small summary of the smile fit (``{"method", "rmse", "n_points", "converged",
+    "bf_25d", "params"}``; ``params`` holds the raw SVI ``a, b, rho, m, sigma, t`` of
+    the total variance in log-moneyness, so a view can draw the fitted curve).
 ``arbitrage_flags``
     count of quotes flagged by the static-arbitrage checks on that expiry.
 ``rate``, ``carry``

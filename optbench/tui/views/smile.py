@@ -50,9 +50,8 @@ def smile_plot(comparison, row) -> PlotSpec:
         series.insert(0, Series(f"fitted smile ({row.smile.get('method', 'svi')})", grid,
                                 curve * 100, color="yellow"))
     if curve is None:
-        # points of the fitted smile the comparison reports: 90 % and 95 % of spot
-        spot = comparison.spot
-        series.append(Series("fit at 90/95% of spot", [0.90 * spot, 0.95 * spot],
+        # points of the fitted smile the comparison reports: 90 % and 95 % of the forward
+        series.append(Series("fit at 90/95% of forward", [0.90 * row.forward, 0.95 * row.forward],
                              [row.iv_90 * 100, row.iv_95 * 100], kind="points",
                              color="yellow", marker="◇"))
     series.append(Series(f"ATM {fmt.pct(row.atm_iv)}%", [row.forward],
