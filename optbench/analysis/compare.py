@@ -71,6 +71,8 @@ from optbench.analysis.results import (CAUTION, STRIKE_COLUMNS, VERDICT_RULE, Co
 from optbench.errors import InputError
 
 DEFAULT_N_PATHS = 2000
+#: width of the one-day price band kept with the history, in conditional sigmas
+BAND_SIGMAS = 3.0
 DEFAULT_SEED = 7
 DEFAULT_BAND = (0.05, 0.95)
 MIN_REALIZED_WINDOW = 5
@@ -394,11 +396,16 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         persistence=float(fit.persistence),
         half_life_days=_num(fit.half_life_days), long_run_vol=_num(fit.long_run_vol),
         n_obs=int(fit.n_obs), fallback_reason=fit.fallback_reason)
+    sigma_d = np.asarray(fit.conditional_vol, float)
+    prev_close = np.asarray(hist.close[:-1], float)
+    mu_d = float(fit.params.get("mu", 0.0) or 0.0)
     history_frame = pd.DataFrame({
         "date": np.asarray(hist.dates[1:], dtype="datetime64[D]").astype("datetime64[ns]"),
         "close": np.asarray(hist.close[1:], float), "ret": np.asarray(hist.returns, float),
-        "sigma": np.asarray(fit.conditional_vol, float),
-        "z": np.asarray(fit.std_resid, float)})
+        "sigma": sigma_d, "z": np.asarray(fit.std_resid, float),
+        # the one-day ±3-sigma band of the close: previous close x exp(mu ± 3 sigma_t)
+        "band_low": prev_close * np.exp(mu_d - BAND_SIGMAS * sigma_d),
+        "band_high": prev_close * np.exp(mu_d + BAND_SIGMAS * sigma_d)})
     return Comparison(
         asof=ch.asof, underlying=ch.underlying or Path(source).stem, source=source,
         spot=S, rate=r0, div_yield=q0, style=style,

@@ -275,7 +275,9 @@ class Comparison:
         (``min``, ``p10``, ``p25``, ``median``, ``p75``, ``p90``, ``max``, decimals).
     history : price history with the model's conditional vol: DataFrame with
         ``date``, ``close``, ``ret`` (daily log return), ``sigma`` (conditional daily
-        vol, decimal), ``z`` (ret standardised by the model: ``(ret - mu)/sigma``).
+        vol, decimal), ``z`` (ret standardised by the model: ``(ret - mu)/sigma``),
+        ``band_low``/``band_high`` (the one-day ±3-sigma band of the close: previous
+        close × exp(mu ∓ 3·sigma), in price units).
     backtest : the out-of-sample summary (backtest JSON) when computed, else None.
     n_paths, seed : the simulation behind the bands and probabilities.
     rejected : rejected input rows (``line``, ``reason``, ``detail``), or None.

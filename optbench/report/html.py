@@ -123,11 +123,10 @@ def figure_history(comparison) -> str | None:
     ret = h["ret"].to_numpy(float)
     sigma = h["sigma"].to_numpy(float)
     mu = float(comparison.model.params.get("mu", 0.0) or 0.0)
-    prev = np.concatenate([[np.nan], close[:-1]])
     fig, (a1, a2) = plt.subplots(2, 1, figsize=(9, 6), sharex=True,
                                  gridspec_kw={"height_ratios": [3, 2]})
     a1.plot(dates, close, lw=0.8, label="close")
-    a1.fill_between(dates, prev * np.exp(mu - 3 * sigma), prev * np.exp(mu + 3 * sigma),
+    a1.fill_between(dates, h["band_low"].to_numpy(float), h["band_high"].to_numpy(float),
                     alpha=0.3, label="±3σ one-day band")
     a1.set_ylabel("close")
     a1.legend(fontsize=8)

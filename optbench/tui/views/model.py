@@ -88,6 +88,31 @@ def returns_plot(comparison) -> PlotSpec:
                     extra_legend=extra)
 
 
+def price_plot(comparison) -> PlotSpec:
+    """Closes with the model's one-day ±3σ band (from the comparison's history) and
+    the out-of-sample surprises at their closes."""
+    h = comparison.history
+    bt = comparison.backtest or {}
+    if h is None or len(h) == 0 or "band_low" not in h:
+        return PlotSpec(title="no price history in this comparison")
+    h = h.tail(PLOT_DAYS)
+    x = to_day_number(h["date"].to_numpy())
+    series = [Series("±3σ one-day band", x, h["band_low"].to_numpy(float), kind="band",
+                     y2=h["band_high"].to_numpy(float), color="grey37"),
+              Series("close", x, h["close"].to_numpy(float), color="bright_white")]
+    surprises = bt.get("surprises") or []
+    if surprises:
+        days = np.array([np.datetime64(s["date"], "D") for s in surprises])
+        hit = np.isin(h["date"].to_numpy().astype("datetime64[D]"), days)
+        if hit.any():
+            series.append(Series("out-of-sample surprises", x[hit],
+                                 h["close"].to_numpy(float)[hit], kind="points",
+                                 color="bright_red", marker="✖"))
+    return PlotSpec(title=f"{comparison.underlying} closes, last {len(h)} days, with the "
+                          "model's one-day ±3σ band", series=tuple(series), x_is_date=True,
+                    y_format="{:,.0f}")
+
+
 class ModelView(Deferred, Horizontal):
     def compose(self) -> ComposeResult:
         with VerticalScroll(id="model-left"):
@@ -95,6 +120,7 @@ class ModelView(Deferred, Horizontal):
             yield Static("", id="model-counts")
             yield Static("", id="model-surprises")
         with Vertical(id="model-right"):
+            yield CellPlot(id="model-price")
             yield CellPlot(id="model-returns")
             yield BarChart(id="model-hist")
 
@@ -110,6 +136,7 @@ class ModelView(Deferred, Horizontal):
         for s in surprises[:8]:
             st.add_row(str(s["date"]), f"{s['z']:+.2f}")
         self.query_one("#model-surprises", Static).update(st)
+        self.query_one("#model-price", CellPlot).show(price_plot(comparison))
         self.query_one("#model-returns", CellPlot).show(returns_plot(comparison))
         hist = (bt or {}).get("histogram")
         chart = self.query_one("#model-hist", BarChart)
