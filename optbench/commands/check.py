@@ -140,22 +140,16 @@ def _table_text(chain, rows: int) -> str:
     n_rej = sum(q.rejected.values())
     console.print(f"quotes read {q.rows_in}, used {q.rows_used}, rejected {n_rej}; "
                   f"{len(chain.expiries)} expiries")
-    if q.rejected:
-        t = Table(title="Rejected, by reason", title_justify="left")
-        t.add_column("reason")
-        t.add_column("rows", justify="right")
-        t.add_column("meaning")
-        for code, count in q.rejected.items():
-            t.add_row(code, str(count), REASONS[code])
-        console.print(t)
-    if q.warnings:
-        t = Table(title="Kept but flagged", title_justify="left")
-        t.add_column("flag")
-        t.add_column("rows", justify="right")
-        t.add_column("meaning")
-        for code, count in q.warnings.items():
-            t.add_row(code, str(count), WARNINGS[code])
-        console.print(t)
+    for title, head, counts, meanings in (("Rejected, by reason", "reason", q.rejected, REASONS),
+                                          ("Kept but flagged", "flag", q.warnings, WARNINGS)):
+        if counts:
+            t = Table(title=title, title_justify="left")
+            t.add_column(head)
+            t.add_column("rows", justify="right")
+            t.add_column("meaning")
+            for code, count in counts.items():
+                t.add_row(code, str(count), meanings[code])
+            console.print(t)
     recs = _rejected_records(chain, rows)
     if recs:
         shown = f"first {len(recs)} of {n_rej}" if n_rej > len(recs) else f"all {n_rej}"

@@ -64,6 +64,24 @@ def whole_number(minimum: int = 0):
     return parse
 
 
+def day_list(example: str):
+    """argparse type for comma-separated whole numbers of days, each at least 1;
+    returned sorted without repeats (``example`` goes into the error message)."""
+    def parse(text: str) -> tuple[int, ...]:
+        parts = [p.strip() for p in text.split(",") if p.strip()]
+        for part in parts:
+            if not part.lstrip("-").isdigit():
+                raise argparse.ArgumentTypeError(f"not a whole number of days: {part!r} "
+                                                 f"(give days like {example})")
+        days = sorted({int(p) for p in parts})
+        if not days or days[0] < 1:
+            raise argparse.ArgumentTypeError(f"give positive days like {example}, not "
+                                             f"{text!r}")
+        return tuple(days)
+    parse.__name__ = "list of days"
+    return parse
+
+
 def add_market_overrides(parser: argparse.ArgumentParser) -> None:
     group = parser.add_argument_group("market overrides")
     group.add_argument("--spot", type=parse_float, help="underlying price at quote time")

@@ -12,31 +12,14 @@ import csv
 import io
 import json
 
-from optbench.commands.common import add_model_options, add_output_options, write_output
+from optbench.commands.common import (add_model_options, add_output_options, day_list,
+                                      write_output)
 from optbench.errors import InputError
 
 DEFAULT_HORIZONS = (5, 10, 21, 63, 126, 252)
 CAUTION = ("Model estimates from past prices, not advice. Decisions belong with your "
            "licensed advisers and the rules of your exchange and broker.")
 
-
-def parse_horizons(text: str) -> tuple[int, ...]:
-    """argparse type: comma-separated trading-day counts, each at least 1."""
-    out = []
-    for part in text.split(","):
-        part = part.strip()
-        if not part:
-            continue
-        try:
-            value = int(part)
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"not a whole number of days: {part!r}") from None
-        if value < 1:
-            raise argparse.ArgumentTypeError(f"horizons must be at least 1 day: {part!r}")
-        out.append(value)
-    if not out:
-        raise argparse.ArgumentTypeError("give at least one horizon, e.g. 5,21,63")
-    return tuple(sorted(set(out)))
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
@@ -49,7 +32,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     parser.add_argument("history", metavar="HISTORY",
                         help="history CSV/Parquet (date, close) or a scenario folder")
     add_model_options(parser)
-    parser.add_argument("--horizons", type=parse_horizons, default=DEFAULT_HORIZONS,
+    parser.add_argument("--horizons", type=day_list("5,21,63"), default=DEFAULT_HORIZONS,
                         help="trading-day horizons, comma-separated "
                              "(default: 5,10,21,63,126,252)")
     add_output_options(parser)

@@ -5,23 +5,13 @@ from __future__ import annotations
 import argparse
 import sys
 
-from optbench.commands.common import (add_model_options, add_output_options, parse_float,
-                                      whole_number)
-from optbench.commands.common import write_output
+from optbench.commands.common import (add_model_options, add_output_options, day_list,
+                                      parse_float, whole_number, write_output)
 from optbench.errors import InputError
 from optbench.screening.rows import DEFAULT_MODEL
 
 FORMATS = ("table", "json", "csv", "xlsx")
 
-
-def parse_tenors(text: str) -> tuple[int, ...]:
-    try:
-        tenors = tuple(int(p) for p in text.replace(" ", "").split(",") if p)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"give days like 30,91,182, not {text!r}") from None
-    if not tenors or min(tenors) <= 0:
-        raise argparse.ArgumentTypeError(f"give positive days like 30,91,182, not {text!r}")
-    return tenors
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
@@ -33,7 +23,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                      "forecast and its band, the verdict, and the cost of protection "
                      "per 1,000,000 of notional against its expected payoff."))
     parser.add_argument("folder", metavar="FOLDER", help="folder of scenario folders")
-    parser.add_argument("--tenors", type=parse_tenors, default=(30, 91, 182),
+    parser.add_argument("--tenors", type=day_list("30,91,182"), default=(30, 91, 182),
                         metavar="DAYS,...", help="target tenors in calendar days "
                                                  "(default: 30,91,182)")
     parser.add_argument("--floor", type=parse_float, default=0.90,

@@ -83,17 +83,24 @@ def _run_in_processes(fn, items: Sequence[Any], n: int, progress: Progress | Non
     # "spawn" gives each worker a clean interpreter: safe when the caller has threads
     # (the workbench does), and the same on every platform.
     context = multiprocessing.get_context("spawn")
-    results: list[Any] = [None] * len(items)
     with cf.ProcessPoolExecutor(max_workers=n, mp_context=context) as pool:
-        futures = {pool.submit(call_safely, fn, item): i for i, item in enumerate(items)}
-        for done, future in enumerate(cf.as_completed(futures), start=1):
-            i = futures[future]
-            try:
-                results[i] = future.result()
-            except Exception as err:  # a worker process died
-                results[i] = TaskFailure(item=items[i], reason=_describe(err))
-            if progress:
-                progress(done, len(items))
+        futures = [pool.submit(call_safely, fn, item) for item in items]
+        return _gather(futures, cf.as_completed(futures), items, progress)
+
+
+def _gather(futures, completed, items: Sequence[Any], progress: Progress | None) -> list:
+    """Results in input order from futures finishing in any order (``completed``);
+    a future that raises (its worker died or was lost) becomes a TaskFailure."""
+    index = {id(f): i for i, f in enumerate(futures)}
+    results: list[Any] = [None] * len(items)
+    for done, future in enumerate(completed, start=1):
+        i = index[id(future)]
+        try:
+            results[i] = future.result()
+        except Exception as err:
+            results[i] = TaskFailure(item=items[i], reason=_describe(err))
+        if progress:
+            progress(done, len(items))
     return results
 
 
@@ -109,16 +116,6 @@ def _run_on_dask(fn, items: Sequence[Any], address: str, progress: Progress | No
                          f"{_describe(err)}") from None
     try:
         futures = client.map(call_safely, [fn] * len(items), items, pure=False)
-        index = {f.key: i for i, f in enumerate(futures)}
-        results: list[Any] = [None] * len(items)
-        for done, future in enumerate(as_completed(futures), start=1):
-            i = index[future.key]
-            try:
-                results[i] = future.result()
-            except Exception as err:  # a worker was lost
-                results[i] = TaskFailure(item=items[i], reason=_describe(err))
-            if progress:
-                progress(done, len(items))
-        return results
+        return _gather(futures, as_completed(futures), items, progress)
     finally:
         client.close()

@@ -157,15 +157,11 @@ class _Problem:
             self._h_guess = h
         return h
 
-    def egarch_score_obs(self, theta):
-        """Per-day log-likelihood and analytic scores of EGARCH by forward
-        sensitivities: ``dh_t/dtheta = J_t dh_{t-1}/dtheta + df_t/dtheta`` (``J`` from
-        :func:`optbench.volatility.recursions.egarch_jacobian`, ``f_t`` the right-hand
-        side of the recursion at fixed ``h_{t-1}``), all parameters in one
-        :func:`optbench.volatility.recursions.affine_filter`."""
+    def _egarch_loglik(self, theta):
+        """EGARCH's log-variance path and per-day log-likelihood with its derivatives
+        in sigma^2, the residual and nu: what the objective and the scores share."""
         mu, p, nu = self.unpack(theta)
         eps = self.y - mu
-        hb = math.log(self.backcast)
         h = self._egarch_path(eps, p)
         s2 = np.exp(h)
         if nu is None:
@@ -173,6 +169,16 @@ class _Problem:
             d_nu = None
         else:
             ll, d_s2, d_e, d_nu = std_t_loglik(eps, s2, nu, grad=True)
+        return p, eps, h, s2, ll, d_s2, d_e, d_nu
+
+    def egarch_score_obs(self, theta):
+        """Per-day log-likelihood and analytic scores of EGARCH by forward
+        sensitivities: ``dh_t/dtheta = J_t dh_{t-1}/dtheta + df_t/dtheta`` (``J`` from
+        :func:`optbench.volatility.recursions.egarch_jacobian`, ``f_t`` the right-hand
+        side of the recursion at fixed ``h_{t-1}``), all parameters in one
+        :func:`optbench.volatility.recursions.affine_filter`."""
+        p, eps, h, s2, ll, d_s2, d_e, d_nu = self._egarch_loglik(theta)
+        hb = math.log(self.backcast)
         inv_s = np.exp(-0.5 * h)
         z = eps * inv_s
         n = self.n
@@ -202,16 +208,8 @@ class _Problem:
     def _egarch_objective_grad(self, theta):
         """Minus the mean log-likelihood of EGARCH and its gradient by the adjoint
         recursion (:func:`optbench.volatility.recursions.egarch_adjoint`)."""
-        mu, p, nu = self.unpack(theta)
-        eps = self.y - mu
+        p, eps, h, s2, ll, d_s2, d_e, d_nu = self._egarch_loglik(theta)
         hb = math.log(self.backcast)
-        h = self._egarch_path(eps, p)
-        s2 = np.exp(h)
-        if nu is None:
-            ll, d_s2, d_e = normal_loglik(eps, s2, grad=True)
-            d_nu = None
-        else:
-            ll, d_s2, d_e, d_nu = std_t_loglik(eps, s2, nu, grad=True)
         total = float(ll.sum())
         if not math.isfinite(total):
             return 1e6, np.zeros(self.k)

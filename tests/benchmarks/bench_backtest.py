@@ -14,8 +14,6 @@ Run: .venv/bin/python tests/benchmarks/bench_backtest.py
 """
 from __future__ import annotations
 
-import statistics
-import time
 import warnings
 
 import numpy as np
@@ -25,16 +23,8 @@ from arch.data import sp500
 
 from optbench.volatility.backtest import backtest
 from optbench.volatility.realized import close_to_close
+from timing import median_time  # noqa: E402  (tests/benchmarks)
 
-
-def median_time(fn, repeats=7):
-    fn()  # warm-up
-    times = []
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return statistics.median(times)
 
 
 def main() -> None:

@@ -7,27 +7,17 @@ output). Target: optbench <= 0.25 s. Run: .venv/bin/python tests/benchmarks/benc
 """
 from __future__ import annotations
 
-import statistics
-import time
 
 import numpy as np
 from arch import arch_model
 from arch.univariate import StudentsT
 
 from optbench.volatility.simulate import simulate_paths
+from timing import median_time  # noqa: E402  (tests/benchmarks)
 
 PARAMS = dict(mu=3e-4, omega=1.5e-6, alpha=0.02, gamma=0.15, beta=0.9, nu=7.0)
 N_PATHS, HORIZON = 100_000, 63
 
-
-def median_time(fn, repeats):
-    fn()
-    times = []
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return statistics.median(times)
 
 
 def main() -> None:

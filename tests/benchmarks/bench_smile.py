@@ -15,8 +15,6 @@ Run: .venv/bin/python tests/benchmarks/bench_smile.py   (prints medians and rati
 """
 from __future__ import annotations
 
-import statistics
-import time
 
 import numpy as np
 import QuantLib as ql
@@ -26,15 +24,8 @@ from optbench.analysis.arbitrage import calendar_arbitrage, strike_arbitrage
 from optbench.analysis.model_free import model_free_variance
 from optbench.analysis.smile import fit_svi
 from optbench.pricing.bsm import bsm_price
+from timing import median_time  # noqa: E402  (tests/benchmarks)
 
-
-def median_time(fn, repeat: int) -> float:
-    times = []
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return statistics.median(times)
 
 
 def svi_w(k, a, b, rho, m, s):
