@@ -166,6 +166,17 @@ def _only_expiries(q: pd.DataFrame, expiries, source) -> pd.DataFrame:
     return q[listed.isin(wanted).to_numpy()].reset_index(drop=True)
 
 
+SMILE_CURVE_POINTS = 121
+
+
+def _smile_curve(fit, strikes: np.ndarray, forward: float) -> dict:
+    """The fitted smile on an even strike grid from the lowest to the highest quoted
+    strike: ``{"strike": [...], "iv": [...]}`` (decimal vols)."""
+    grid = np.linspace(float(strikes.min()), float(strikes.max()), SMILE_CURVE_POINTS)
+    return {"strike": grid.tolist(), "iv": np.asarray(fit.iv(np.log(grid / forward)),
+                                                      float).tolist()}
+
+
 def _interp_at_forward(k: np.ndarray, v: np.ndarray) -> float:
     """Linear interpolation of ``v`` at k = 0 (flat beyond the ends); NaN if empty."""
     ok = np.isfinite(k) & np.isfinite(v)
@@ -354,10 +365,11 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
                 smile_info = {"method": sfit.method, "rmse": float(sfit.rmse_iv),
                               "n_points": int(sfit.n_points), "converged": bool(sfit.converged),
                               "bf_25d": float(pts.bf_25d),
-                              # raw SVI parameters (total variance in log-moneyness), so
-                              # views can draw the fitted curve with SviFit itself
+                              # raw SVI parameters (total variance in log-moneyness)
                               "params": {name: float(getattr(sfit, name))
-                                         for name in ("a", "b", "rho", "m", "sigma", "t")}}
+                                         for name in ("a", "b", "rho", "m", "sigma", "t")},
+                              # the fitted curve across the quoted strikes, for views
+                              "curve": _smile_curve(sfit, K[sel], F_e)}
             except InputError as err:
                 smile_info = {"method": "failed", "reason": err.problem}
         atm_bid = _interp_at_forward(k_q[sel & otm], iv_bid[sel & otm])

@@ -71,8 +71,9 @@ Per-expiry fields (:class:`ExpiryRow`)
     or ``"fair"`` (inside the band); ``"n/a"`` when either side is missing.
 ``smile``
     a small summary of the smile fit (``{"method", "rmse", "n_points", "converged",
-    "bf_25d", "params"}``; ``params`` holds the raw SVI ``a, b, rho, m, sigma, t`` of
-    the total variance in log-moneyness, so a view can draw the fitted curve).
+    "bf_25d", "params", "curve"}``; ``params`` holds the raw SVI
+    ``a, b, rho, m, sigma, t`` of the total variance in log-moneyness, ``curve`` the
+    fitted smile ``{"strike": [...], "iv": [...]}`` across the quoted strikes).
 ``arbitrage_flags``
     count of quotes flagged by the static-arbitrage checks on that expiry.
 ``rate``, ``carry``

@@ -90,16 +90,17 @@ def test_open_universe_errors_are_one_line(tmp_path):
 
 
 def test_smile_view_draws_the_fitted_curve_from_the_comparison():
-    # the comparison carries the SVI parameters; the view evaluates the core's SviFit
-    # with them, and the curve passes through the comparison's own ATM implied vol
+    # the comparison carries the fitted curve; the view draws it as given, and the
+    # curve passes through the comparison's own ATM implied vol at the forward
     import numpy as np
 
     from optbench.analysis.compare import compare
     from optbench.tui.views.smile import fitted_curve, smile_plot
     c = compare(demo(), n_paths=PATHS)
     for row in c.expiries:
-        curve = fitted_curve(row, np.array([row.forward]))
+        curve = fitted_curve(row)
         assert curve is not None
-        assert curve[0] == pytest.approx(row.atm_iv, abs=1e-9)
+        strikes, vols = curve
+        assert np.interp(row.forward, strikes, vols) == pytest.approx(row.atm_iv, abs=2e-4)
         names = [s.label for s in smile_plot(c, row).series]
         assert any(n.startswith("fitted smile") for n in names)

@@ -12,19 +12,12 @@ from optbench.tui import fmt
 from optbench.tui.widgets.plot import CellPlot, PlotSpec, Series
 from optbench.tui.views.base import Deferred
 
-_SVI_KEYS = ("a", "b", "rho", "m", "sigma", "t")
-
-
-def fitted_curve(row, strikes: np.ndarray) -> np.ndarray | None:
-    """The expiry's fitted smile at ``strikes``, evaluated by the core's SviFit."""
-    smile = row.smile or {}
-    params = smile.get("params", smile)
-    if not all(k in params for k in _SVI_KEYS):
+def fitted_curve(row) -> tuple[np.ndarray, np.ndarray] | None:
+    """The expiry's fitted smile as the comparison computed it: (strikes, vols)."""
+    curve = (row.smile or {}).get("curve")
+    if not curve:
         return None
-    from optbench.analysis.smile import SviFit
-    fit = SviFit(**{k: float(params[k]) for k in _SVI_KEYS}, rmse_iv=float("nan"),
-                 n_points=0, converged=True, message="", method=str(smile.get("method", "svi")))
-    return fit.iv(np.log(strikes / row.forward))
+    return np.asarray(curve["strike"], float), np.asarray(curve["iv"], float)
 
 
 def smile_plot(comparison, row) -> PlotSpec:
@@ -44,11 +37,10 @@ def smile_plot(comparison, row) -> PlotSpec:
         Series("mid IV", k, t["iv_mid"].to_numpy(float) * 100, kind="points", color="white",
                marker="•"),
     ]
-    grid = np.linspace(k.min(), k.max(), 200)
-    curve = fitted_curve(row, grid)
+    curve = fitted_curve(row)
     if curve is not None:
-        series.insert(0, Series(f"fitted smile ({row.smile.get('method', 'svi')})", grid,
-                                curve * 100, color="yellow"))
+        series.insert(0, Series(f"fitted smile ({row.smile.get('method', 'svi')})", curve[0],
+                                curve[1] * 100, color="yellow"))
     if curve is None:
         # points of the fitted smile the comparison reports: 90 % and 95 % of the forward
         series.append(Series("fit at 90/95% of forward", [0.90 * row.forward, 0.95 * row.forward],
