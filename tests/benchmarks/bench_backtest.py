@@ -23,7 +23,7 @@ from arch.data import sp500
 
 from optbench.volatility.backtest import backtest
 from optbench.volatility.realized import close_to_close
-from timing import median_time  # noqa: E402  (tests/benchmarks)
+from timing import figure, median_time  # noqa: E402  (tests/benchmarks)
 
 
 
@@ -57,6 +57,8 @@ def main() -> None:
     ref = median_time(with_arch)
     print(f"{'GJR-t backtest, ' + str(y.size - n_fit) + ' days out':<34}{ours * 1e3:>13.2f}"
           f"{ref * 1e3:>10.2f}{ref / ours:>14.2f}   (arch: fit + fix + forecast only)")
+    figure("GJR-t backtest vs arch", ref / ours, "x", None, better="higher",
+           reference="arch fit + fix + forecast")
 
 
 if __name__ == "__main__":

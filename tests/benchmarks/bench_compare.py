@@ -29,6 +29,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+from timing import figure  # noqa: E402  (tests/benchmarks)
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "chains" / "ZPHX"
@@ -116,6 +117,9 @@ def main() -> None:
         print(f"{f'compare {n_quotes:,} quotes, table (auto)':<44}{large_table:8.2f} "
               f"[{next(cpu):5.2f}]   target 2.0   over the import floor "
               f"{large_table - floor:5.2f}")
+        figure("compare demo / numpy+pandas import floor", demo / floor, "x", 1.4,
+               reference=f"floor {floor:.2f} s, compare {demo:.2f} s")
+        figure(f"compare {n_quotes:,} quotes JSON", large, "s", 2.0)
 
         from optbench.analysis.compare import compare
         stamps = []

@@ -19,6 +19,7 @@ from vollib.black_scholes_merton.implied_volatility import implied_volatility as
 
 from optbench.pricing.bsm import bsm_price
 from optbench.pricing.implied import implied_vol_with_status
+from timing import figure  # noqa: E402  (tests/benchmarks)
 
 
 def main(n: int = 100_000, runs: int = 7, vollib_sample: int = 3_000) -> None:
@@ -67,6 +68,8 @@ def main(n: int = 100_000, runs: int = 7, vollib_sample: int = 3_000) -> None:
           f"of {vollib_sample:,} calls")
     print(f"  ratio                      {ref_ns / ours_ns:10.1f} x   (target >= 50 x); "
           f"per round {ratios[0]:.1f}-{ratios[-1]:.1f} x")
+    figure("implied vols vs vollib", ref_ns / ours_ns, "x", 50, better="higher",
+           reference="vollib implied_volatility, same options")
     print(f"  status counts: " + ", ".join(
         f"{k}={int(c)}" for k, c in enumerate(np.bincount(status.ravel())) if c))
     # accuracy on the out-of-the-money elements (in the money the price's rounding

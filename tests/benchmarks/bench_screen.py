@@ -25,6 +25,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 from synthetic_universe import write_universe  # noqa: E402
 
 from optbench.screening.screen import screen  # noqa: E402
+from timing import figure  # noqa: E402  (tests/benchmarks)
 
 
 def _tree_rss_bytes(root_pid: int) -> int:
@@ -137,6 +138,10 @@ def main() -> None:
               f"{per2 * 1000:6.0f} ms each   peak memory {mem2 / 2**20:6.0f} MiB  "
               f"(target <= 60 s, <= 2048 MiB)")
         print(f"speed-up 1 -> 2 workers: {per1 / per2:.2f}x   failures: {failed}")
+        # target: 5,000 underlyings in 180 s on 2 workers, scaled to this universe
+        figure(f"screen {a.n} underlyings, 2 workers", wall2, "s", 180 * a.n / 5000,
+               reference=f"1 worker {per1 * a.n:.0f} s extrapolated")
+        figure("screen peak memory, all processes", mem2 / 2**20, "MiB", 2048)
 
 
 if __name__ == "__main__":
