@@ -94,7 +94,8 @@ class PutJudgement:
         """The ExpiryRow fields of this put, named ``<prefix>_<field>``."""
         return {f"{prefix}_{k}": getattr(self, k)
                 for k in ("strike", "delta", "iv", "premium", "premium_mid",
-                          "expected_payoff", "payoff_low", "payoff_high", "verdict")}
+                          "expected_payoff", "payoff_low", "payoff_high", "payoff_se",
+                          "verdict")}
 
 
 def protection_verdict(premium: float, low: float, high: float) -> str:

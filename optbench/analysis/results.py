@@ -90,7 +90,8 @@ Per-expiry fields (:class:`ExpiryRow`)
     ``expected_payoff`` (the model-expected discounted payoff per unit over the
     simulated fitted model with the comparison's ``drift``); ``payoff_low``,
     ``payoff_high`` (its band: the forecast band carried to the payoff plus the
-    simulation error); ``verdict`` (``"rich"`` = expensive protection, the ask above
+    simulation error); ``payoff_se`` (the Monte Carlo standard error of
+    ``expected_payoff``); ``verdict`` (``"rich"`` = expensive protection, the ask above
     ``payoff_high``; ``"cheap"`` below ``payoff_low``; ``"fair"`` inside; ``"n/a"``
     without a put or a model). NaN where the expiry has no put with an ask.
 
@@ -268,6 +269,7 @@ class ExpiryRow:
     put25_expected_payoff: float = math.nan
     put25_payoff_low: float = math.nan
     put25_payoff_high: float = math.nan
+    put25_payoff_se: float = math.nan
     put25_verdict: str = "n/a"
     floor_put_strike: float = math.nan
     floor_put_delta: float = math.nan
@@ -277,6 +279,7 @@ class ExpiryRow:
     floor_put_expected_payoff: float = math.nan
     floor_put_payoff_low: float = math.nan
     floor_put_payoff_high: float = math.nan
+    floor_put_payoff_se: float = math.nan
     floor_put_verdict: str = "n/a"
 
     def to_dict(self) -> dict:
