@@ -58,7 +58,7 @@ DEFAULT_FLOOR = 0.90
 #: fewest simulated paths ending below the strike for a protection verdict
 MIN_PAYING_PATHS = 20
 
-PROTECTION_RULE = ("protection: the put a buyer would buy (nearest 25 delta, and nearest "
+PROTECTION_RULE = ("the put a buyer would buy (nearest 25 delta, and nearest "
                    "the floor of {floor:.0%} of spot) is rich (expensive protection) if its "
                    "ask is above the upper edge of its model-expected discounted payoff's "
                    "band, cheap if below the lower edge, fair inside; the band carries the "
