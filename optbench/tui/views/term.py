@@ -28,7 +28,7 @@ def term_plot(comparison) -> PlotSpec:
     lo, hi = comparison.band
     return PlotSpec(
         title=(f"{comparison.underlying} vol term structure, % a year, by calendar days to "
-               f"expiry (band: {lo:.0%}–{hi:.0%} of simulated realized vol). Table: vols in "
+               f"expiry (band: {lo:.0%}–{hi:.0%} {comparison.conventions.get('forecast_band', 'quantiles of the forecast over the model parameter uncertainty')}). Table: vols in "
                "%, IV−fc in vol points, MF = model-free"),
         series=(
             Series("forecast band", days, col("forecast_low"), kind="band",
