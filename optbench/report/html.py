@@ -63,7 +63,8 @@ def figure_term_structure(comparison) -> str:
     lo = np.array([r.forecast_low for r in rows]) * 100
     hi = np.array([r.forecast_high for r in rows]) * 100
     ax.fill_between(d, lo, hi, alpha=0.25, label=f"forecast band {comparison.band[0]:.0%}–"
-                                                  f"{comparison.band[1]:.0%}")
+                                                  f"{comparison.band[1]:.0%} (parameter "
+                                                  "uncertainty)")
     ax.plot(d, np.array([r.forecast_vol for r in rows]) * 100, "-", label="forecast")
     ax.plot(d, np.array([r.atm_iv for r in rows]) * 100, "o-", label="ATM implied")
     ax.plot(d, np.array([r.model_free_iv for r in rows]) * 100, "s--", ms=4,
