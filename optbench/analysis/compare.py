@@ -37,6 +37,15 @@ each path the realized vol to each expiry is
 :math:`\\sqrt{252/h\\,\\sum_{k\\le h} r_k^2}` and the probability is the share of paths
 where it exceeds the ATM implied vol. This is the model's *physical* distribution.
 
+**Drift of the simulated prices.** Every simulated terminal price and probability
+uses the drift of :mod:`optbench.analysis.drift`: by default :math:`r - q` (no
+expected excess return), an excess return the user sets, or the fitted mean only when
+asked for; the volatility dynamics are the fitted model's.
+
+**Protection verdict.** Per expiry, the put nearest 25 delta and the put nearest the
+floor judged on their own: the ask against the band of the model-expected discounted
+payoff (:mod:`optbench.analysis.protection`).
+
 **Trailing realized vol and the cone.** Close-to-close realized vol over the last
 :math:`\\max(h, 5)` trading days (:func:`optbench.volatility.realized.trailing_realized_vol`);
 ``cone_percentile`` is the percentile rank of the ATM IV among the rolling realized
@@ -66,6 +75,9 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from optbench.analysis.drift import choose_drift, simulate_terminal
+from optbench.analysis.protection import (DEFAULT_FLOOR, MIN_PAYING_PATHS, PROTECTION_RULE,
+                                          choose_puts, judge_puts)
 from optbench.analysis.results import (CAUTION, STRIKE_COLUMNS, VERDICT_RULE, Comparison,
                                        ExpiryRow, ModelSummary, verdict_for)
 from optbench.errors import InputError
@@ -88,7 +100,8 @@ CONVENTIONS = {
     "moneyness": "strike / forward",
     "delta": "Black-Scholes-Merton spot delta at the mid implied vol",
     "forecast_band": "quantiles of the forecast over the model's parameter uncertainty",
-    "probabilities": "the fitted model's simulated (physical) distribution",
+    "probabilities": "the fitted model's simulated volatility dynamics with the drift "
+                     "named under 'drift' (by default r - q, no expected excess return)",
     "money": "per contract (edge) or whole position, in the underlying's currency",
 }
 
@@ -195,7 +208,9 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
             n_paths: int = DEFAULT_N_PATHS, seed: int | None = DEFAULT_SEED,
             backtest: bool | _dt.date | str = False, fit=None,
             expiries: Sequence[_dt.date] | None = None,
-            progress: Callable[[str], None] | None = None) -> Comparison:
+            progress: Callable[[str], None] | None = None, drift: str = "risk-free",
+            excess_return: float | None = None,
+            floor: float = DEFAULT_FLOOR) -> Comparison:
     """Compare the chain's implied vols with the fitted model's forecast.
 
     Parameters
@@ -217,6 +232,11 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         uses it to work on the tenors it shows. Static-arbitrage flags across
         expiries then look at these expiries only. Default: every expiry.
     progress : called with a short text before each long step (for views).
+    drift, excess_return : the drift of the simulated prices
+        (:func:`optbench.analysis.drift.choose_drift`): ``"risk-free"`` (default, plus
+        ``excess_return`` a year when given, else the scenario's ``excess_return`` in
+        ``meta.toml``) or ``"fitted"`` (the fitted mean).
+    floor : the protection floor as a fraction of spot, in (0, 1] (default 0.90).
 
     Returns
     -------
@@ -240,6 +260,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         raise InputError("--band", f"band levels must satisfy 0 < low < high < 1, not {band}")
     if int(n_paths) < 100:
         raise InputError("--paths", f"need at least 100 simulated paths, not {n_paths}")
+    floor = _floor(floor)
     overrides = {k: v for k, v in (("spot", spot), ("asof", asof), ("rate", rate),
                                    ("div_yield", div_yield)) if v is not None}
     say("loading the chain and the history")
@@ -256,6 +277,9 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     if expiries is not None:
         q = _only_expiries(q, expiries, ch.source)
     S, r0, q0 = float(ch.spot), float(ch.rate), float(ch.div_yield)
+    meta_excess, meta_source = _meta_excess(chain)
+    drift_choice = choose_drift(drift, excess_return, rate=r0, div_yield=q0,
+                                meta_excess=meta_excess, meta_source=meta_source)
 
     # --- forwards and implied vols (vectorised over every quote)
     say("implied forwards and vols")
@@ -299,9 +323,13 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     band_lo, band_hi = np.atleast_1d(band_lo), np.atleast_1d(band_hi)
 
     say(f"simulating {int(n_paths):,} paths of the model")
-    sim = fit.simulate(int(td_model.max()), n_paths=int(n_paths), seed=seed)
-    cum_sq = np.cumsum(np.square(sim.returns), axis=1)        # (paths, horizon)
-    rv_paths = np.sqrt(252.0 / td_model * cum_sq[:, td_model - 1])   # (paths, expiries)
+    if drift_choice.rule == "fitted":
+        drift_choice = choose_drift("fitted", rate=r0, div_yield=q0,
+                                    fitted_mu=float(fit.params.get("mu", 0.0) or 0.0))
+    draws = simulate_terminal(fit, drift_choice, td_model, fwd["t"].to_numpy(float),
+                              fwd["rate"].to_numpy(float), fwd["carry"].to_numpy(float),
+                              n_paths=int(n_paths), seed=seed)
+    rv_paths = draws.realized_vol                              # (paths, expiries)
 
     # --- realized vol and the cone
     windows = np.maximum(td_model, MIN_REALIZED_WINDOW)
@@ -378,6 +406,18 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
             atm = _interp_at_forward(k_q[sel & otm], iv_mid[sel & otm])
         f_e, lo_e, hi_e = float(fc[j]), float(band_lo[j]), float(band_hi[j])
         prob = float(np.mean(rv_paths[:, j] > atm)) if math.isfinite(atm) else math.nan
+        part = table.loc[sel].sort_values(["is_call", "strike"]).reset_index(drop=True)
+        put25, floor_put = judge_puts(
+            part, choose_puts(part, S, floor), draws, j, spot=S,
+            discount=float(fwd["discount"].iloc[j]), forecast_vol=f_e, forecast_low=lo_e,
+            forecast_high=hi_e, band_high_level=hi_level)
+        for name, judged in (("25-delta put", put25), ("floor put", floor_put)):
+            if judged.unresolved:
+                warnings.append(
+                    f"protection verdict n/a for the {name} {judged.strike:g} on "
+                    f"{e_date.isoformat()}: only {judged.paying_paths} of "
+                    f"{judged.n_paths:,} simulated paths end below its strike (at least "
+                    f"{MIN_PAYING_PATHS} needed; more --paths resolve it)")
         rows.append(ExpiryRow(
             expiry=e_date, calendar_days=int(round(t_e * 365)), trading_days=int(td[j]),
             t=t_e, forward=F_e, discount=float(fwd["discount"].iloc[j]),
@@ -392,8 +432,8 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
             iv_forecast_ratio=float(atm / f_e) if f_e > 0 else math.nan,
             prob_realized_above_iv=prob, verdict=verdict_for(atm, lo_e, hi_e),
             smile=smile_info, arbitrage_flags=int(arb.quote_flag[sel].sum()),
-            rate=float(fwd["rate"].iloc[j]), carry=float(fwd["carry"].iloc[j])))
-        part = table.loc[sel].sort_values(["is_call", "strike"]).reset_index(drop=True)
+            rate=float(fwd["rate"].iloc[j]), carry=float(fwd["carry"].iloc[j]),
+            floor=floor, **put25.fields_with("put25"), **floor_put.fields_with("floor_put")))
         strikes[e_date] = part
 
     bt = None
@@ -431,7 +471,36 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         n_paths=int(n_paths), seed=seed, rejected=ch.rejected,
         warnings=tuple(warnings), caution=CAUTION, fit=fit,
         sources={name: getattr(ch, f"{name}_source", "file")
-                 for name in ("spot", "asof", "rate", "div_yield")})
+                 for name in ("spot", "asof", "rate", "div_yield")},
+        drift=drift_choice, floor=floor,
+        protection_rule=PROTECTION_RULE.format(floor=floor, low=lo_level, high=hi_level,
+                                               drift=drift_choice.text))
+
+
+def _floor(value) -> float:
+    """The protection floor, a fraction of spot in (0, 1]."""
+    try:
+        x = float(value)
+    except (TypeError, ValueError):
+        raise InputError("--floor", f"not a number: {value!r}") from None
+    if not (math.isfinite(x) and 0 < x <= 1):
+        raise InputError("--floor", f"must be a fraction of spot in (0, 1], such as 0.90, "
+                                    f"not {value!r}")
+    return x
+
+
+def _meta_excess(source) -> tuple[object, str]:
+    """(``excess_return`` of the scenario's meta.toml or None, where it was read)."""
+    from optbench.data.scenario import Scenario, read_meta
+    if isinstance(source, Scenario):
+        return source.meta.get("excess_return"), "meta.toml"
+    if not isinstance(source, (str, Path)):
+        return None, "meta.toml"
+    path = Path(source)
+    meta = (path if path.is_dir() else path.parent) / "meta.toml"
+    if not meta.is_file():
+        return None, str(meta)
+    return read_meta(meta).get("excess_return"), str(meta)
 
 
 def _history_upto(hist, asof: _dt.date, warnings: list):

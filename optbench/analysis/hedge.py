@@ -20,14 +20,15 @@ uses mid prices, the premium actually paid uses the ask for bought legs and the 
 for sold legs. Net premiums are cash paid (a credit is negative).
 
 **Expected payoff and probability of payoff.** Terminal prices are
-:math:`S_T = S\\exp(\\sum_i r_i - q\\,\\tau)` from the fitted model's simulated daily log
-returns :math:`r_i` over the trading days to expiry (the model's *physical*
-distribution, fitted on the history — not a risk-neutral one; the history's closes are
-dividend-adjusted, so the dividend yield :math:`q` over the calendar time :math:`\\tau`
-is taken off). The expected payoff is the discounted mean of the legs' payoff over the
-paths, :math:`e^{-r\\tau}\\,\\overline{\\text{payoff}(S_T)}`; the overpay is premium paid
-less that expected payoff; the probability of payoff is the share of paths on which
-the legs pay more than zero.
+:math:`S_T = S\\exp(X)` with :math:`X` the terminal log return of the fitted model's
+simulated paths over the trading days to expiry, with the comparison's drift
+(:mod:`optbench.analysis.drift`: by default :math:`E[S_T] = S e^{(r-q)\\tau}` — no
+expected excess return — with the fitted volatility dynamics; an excess return the
+user sets; or the fitted mean only when asked for), :math:`r`, :math:`q` the expiry's
+rate and carry. The expected payoff is the discounted mean of the legs' payoff over
+the paths, :math:`e^{-r\\tau}\\,\\overline{\\text{payoff}(S_T)}`; the overpay is premium
+paid less that expected payoff; the probability of payoff is the share of paths on
+which the legs pay more than zero.
 
 **Breakeven.** The underlying level at expiry below which the hedge pays back more
 than it cost: :math:`K_{put} - p/(n m)` with :math:`p` the net premium paid (NaN for a
@@ -55,6 +56,7 @@ from collections.abc import Sequence
 import numpy as np
 import pandas as pd
 
+from optbench.analysis.drift import DriftChoice, choose_drift, simulate_terminal
 from optbench.analysis.results import (CAUTION, HedgeEstimate, HedgeLeg, HedgeRequest)
 from optbench.errors import InputError
 
@@ -286,15 +288,19 @@ def hedge_from_comparison(comparison, request: HedgeRequest, *, n_paths: int = 2
     premium_paid = float(sum(leg.premium_paid for leg in legs))
     premium_fc = float(sum(leg.premium_at_forecast for leg in legs))
 
-    # simulated terminal prices under the fitted model (physical measure)
+    # simulated terminal prices: fitted volatility dynamics, the comparison's drift
     tau = row.t
     fit = getattr(comparison, "fit", None)
+    choice = _drift_of(comparison)
     warnings: list[str] = []
     if fit is not None and row.trading_days > 0:
-        paths = _simulated_log_returns(fit, row.trading_days, n_paths, seed)
-        s_t = spot * np.exp(paths - q * tau)
+        r_e = row.rate if math.isfinite(row.rate) else rate
+        q_e = row.carry if math.isfinite(row.carry) else q
+        draws = simulate_terminal(fit, choice, [row.trading_days], [tau], [r_e], [q_e],
+                                  n_paths=n_paths, seed=seed)
+        s_t = spot * np.exp(draws.log_return(1.0, 0))
         pay = leg_payoff(s_t, k, c, s) * units
-        expected = float(math.exp(-rate * tau) * pay.mean())
+        expected = float(math.exp(-r_e * tau) * pay.mean())
         prob = float((pay > 1e-12).mean())
     else:
         expected, prob = math.nan, math.nan
@@ -328,7 +334,7 @@ def hedge_from_comparison(comparison, request: HedgeRequest, *, n_paths: int = 2
 
     cost_pct = premium_paid / V
     model = {"name": comparison.model.name, "dist": comparison.model.dist,
-             "measure": "physical measure fitted on the price history, not risk-neutral"}
+             "measure": f"fitted volatility dynamics; drift: {choice.text}"}
     return HedgeEstimate(
         request=request, underlying=comparison.underlying, asof=comparison.asof,
         spot=spot, rate=rate, div_yield=q, expiry=row.expiry,
@@ -342,13 +348,17 @@ def hedge_from_comparison(comparison, request: HedgeRequest, *, n_paths: int = 2
         breakeven=be, breakeven_move=be / spot - 1.0 if math.isfinite(be) else math.nan,
         scenarios=scenarios, annual_roll_cost=roll, annual_roll_cost_pct=roll / V,
         roll_method=roll_method, collar_note=note, model=model, n_paths=int(n_paths),
-        seed=seed, warnings=tuple(warnings) + tuple(comparison.warnings), caution=CAUTION)
+        seed=seed, warnings=tuple(warnings) + tuple(comparison.warnings), caution=CAUTION,
+        drift=choice.to_dict())
 
 
-def _simulated_log_returns(fit, horizon: int, n_paths: int, seed: int | None) -> np.ndarray:
-    """Sum of simulated daily log returns over ``horizon`` days, one per path."""
-    sim = fit.simulate(int(horizon), n_paths=int(n_paths), seed=seed)
-    return np.asarray(sim.returns, dtype=float).sum(axis=1)    # (paths, horizon)
+def _drift_of(comparison) -> DriftChoice:
+    """The comparison's drift (risk-free at its rate and yield if it carries none)."""
+    choice = getattr(comparison, "drift", None)
+    if isinstance(choice, DriftChoice):
+        return choice
+    return choose_drift("risk-free", rate=float(comparison.rate),
+                        div_yield=float(comparison.div_yield))
 
 
 def hedge(chain, history=None, *, portfolio_value: float, beta: float = 1.0,
@@ -374,10 +384,12 @@ def hedge(chain, history=None, *, portfolio_value: float, beta: float = 1.0,
     lower_floor : sold put strike as a fraction of spot (put spread).
     call_strike : sold call strike (collar); None = near-zero net premium.
     multiplier : contract multiplier (default: the chain's).
-    comparison : a finished :func:`~optbench.analysis.compare.compare` result to reuse.
+    comparison : a finished :func:`~optbench.analysis.compare.compare` result to reuse
+        (its drift is used).
     n_paths, seed : the simulation of the fitted model.
     **compare_options : passed to :func:`~optbench.analysis.compare.compare`
-        (``model``, ``dist``, ``mean``, ``spot``, ``asof``, ``rate``, ``div_yield``).
+        (``model``, ``dist``, ``mean``, ``spot``, ``asof``, ``rate``, ``div_yield``,
+        ``drift``, ``excess_return``).
 
     Returns
     -------
@@ -390,5 +402,6 @@ def hedge(chain, history=None, *, portfolio_value: float, beta: float = 1.0,
                            call_strike=call_strike, multiplier=multiplier)
     if comparison is None:
         from optbench.analysis.compare import compare
-        comparison = compare(chain, history, n_paths=n_paths, seed=seed, **compare_options)
+        comparison = compare(chain, history, n_paths=n_paths, seed=seed, floor=floor,
+                             **compare_options)
     return hedge_from_comparison(comparison, request, n_paths=n_paths, seed=seed)

@@ -80,6 +80,20 @@ Per-expiry fields (:class:`ExpiryRow`)
     the rate and the carry (dividend yield plus borrow) used for that expiry,
     continuously compounded decimals: implied by put-call parity where
     ``forward_source`` says so, else the given rate and dividend yield.
+``floor``
+    the protection floor as a fraction of spot (``Comparison.floor``, 0.90 by default).
+``put25_*``, ``floor_put_*`` — the protection verdict (:mod:`optbench.analysis.protection`)
+    two listed puts judged on their own: the put nearest 25 delta (``put25_``) and the
+    put nearest ``floor`` × spot (``floor_put_``). Per put: ``strike``; ``delta``
+    (Black-Scholes-Merton spot delta at its mid vol); ``iv`` (its mid implied vol);
+    ``premium`` (the ask a buyer pays, per unit of the underlying) and ``premium_mid``;
+    ``expected_payoff`` (the model-expected discounted payoff per unit over the
+    simulated fitted model with the comparison's ``drift``); ``payoff_low``,
+    ``payoff_high`` (its band: the forecast band carried to the payoff plus the
+    simulation error); ``payoff_se`` (the Monte Carlo standard error of
+    ``expected_payoff``); ``verdict`` (``"rich"`` = expensive protection, the ask above
+    ``payoff_high``; ``"cheap"`` below ``payoff_low``; ``"fair"`` inside; ``"n/a"``
+    without a put or a model). NaN where the expiry has no put with an ask.
 
 Per-strike table (``Comparison.strikes[expiry]``, a DataFrame)
 --------------------------------------------------------------
@@ -245,6 +259,28 @@ class ExpiryRow:
     arbitrage_flags: int = 0
     rate: float = math.nan
     carry: float = math.nan
+    # the protection verdict (see the module docstring and analysis/protection.py)
+    floor: float = math.nan
+    put25_strike: float = math.nan
+    put25_delta: float = math.nan
+    put25_iv: float = math.nan
+    put25_premium: float = math.nan
+    put25_premium_mid: float = math.nan
+    put25_expected_payoff: float = math.nan
+    put25_payoff_low: float = math.nan
+    put25_payoff_high: float = math.nan
+    put25_payoff_se: float = math.nan
+    put25_verdict: str = "n/a"
+    floor_put_strike: float = math.nan
+    floor_put_delta: float = math.nan
+    floor_put_iv: float = math.nan
+    floor_put_premium: float = math.nan
+    floor_put_premium_mid: float = math.nan
+    floor_put_expected_payoff: float = math.nan
+    floor_put_payoff_low: float = math.nan
+    floor_put_payoff_high: float = math.nan
+    floor_put_payoff_se: float = math.nan
+    floor_put_verdict: str = "n/a"
 
     def to_dict(self) -> dict:
         return {f.name: plain(getattr(self, f.name)) for f in fields(self)}
@@ -288,6 +324,11 @@ class Comparison:
         not part of ``to_dict()``.
     sources : where each market input came from (``{"spot": "file", "rate": "meta",
         ...}``: ``caller``, ``file``, ``meta`` or ``default``).
+    drift : the drift of every simulated terminal price and probability
+        (:class:`optbench.analysis.drift.DriftChoice`; in JSON ``{"rule":
+        "risk-free"|"excess"|"fitted", "annual", "excess_return", "source", "text"}``).
+    floor : the protection floor, a fraction of spot (the floor put of each expiry).
+    protection_rule : the protection verdict's rule in plain words.
     """
 
     asof: _dt.date
@@ -316,6 +357,9 @@ class Comparison:
     caution: str = CAUTION
     fit: Any = field(default=None, repr=False)
     sources: dict = field(default_factory=dict)
+    drift: Any = None
+    floor: float = 0.90
+    protection_rule: str = ""
 
     # -- access
     def expiry_frame(self) -> pd.DataFrame:
@@ -370,6 +414,9 @@ class Comparison:
             "model": self.model.to_dict(),
             "band": list(self.band),
             "verdict_rule": self.verdict_rule,
+            "drift": plain(self.drift),
+            "floor": plain(self.floor),
+            "protection_rule": self.protection_rule,
             "n_paths": self.n_paths,
             "seed": self.seed,
             "expiries": [row.to_dict() for row in self.expiries],
@@ -568,6 +615,8 @@ class HedgeEstimate:
     model : model name and distribution used for the simulation.
     n_paths, seed : simulation behind ``expected_payoff`` and ``prob_payoff``.
     caution : :data:`CAUTION`.
+    drift : the drift of the simulated terminal prices, as the comparison's
+        (``{"rule", "annual", "excess_return", "source", "text"}``).
     """
 
     request: HedgeRequest
@@ -605,6 +654,7 @@ class HedgeEstimate:
     seed: int | None
     warnings: tuple[str, ...] = ()
     caution: str = CAUTION
+    drift: dict = field(default_factory=dict)
 
     def scenario_frame(self) -> pd.DataFrame:
         return pd.DataFrame(list(self.scenarios))

@@ -109,6 +109,27 @@ def add_model_options(parser: argparse.ArgumentParser, default_model: str = "aut
                        help="mean of the daily returns (default: constant)")
 
 
+def add_drift_options(parser: argparse.ArgumentParser) -> None:
+    """``--excess-return`` and ``--drift``: the drift of simulated prices behind expected
+    payoffs and probabilities (:mod:`optbench.analysis.drift`)."""
+    group = parser.add_argument_group("drift of simulated prices")
+    group.add_argument("--excess-return", dest="excess_return", type=parse_float,
+                       default=None, metavar="X",
+                       help="expected excess return of the underlying a year over the "
+                            "risk-free rate less dividend yield, decimal (0.03 = 3%%; "
+                            "default: meta.toml's excess_return, else 0)")
+    group.add_argument("--drift", choices=("risk-free", "fitted"), default="risk-free",
+                       help="risk-free (default): r - q plus the excess return; fitted: "
+                            "the volatility model's fitted mean return (mostly noise "
+                            "over a few years of history)")
+
+
+def drift_options(args: argparse.Namespace) -> dict:
+    """``drift`` and ``excess_return`` keyword arguments for compare/screen."""
+    return {"drift": getattr(args, "drift", "risk-free"),
+            "excess_return": getattr(args, "excess_return", None)}
+
+
 def write_output(args: argparse.Namespace, payload: str | bytes) -> None:
     """Write to ``-o FILE`` (reporting where it went on stderr) or to stdout."""
     target = getattr(args, "output", None)

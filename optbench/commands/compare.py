@@ -11,8 +11,9 @@ import argparse
 import sys
 from pathlib import Path
 
-from optbench.commands.common import (add_market_overrides, add_model_options,
-                                      add_output_options, market_overrides, parse_date,
+from optbench.commands.common import (add_drift_options, add_market_overrides,
+                                      add_model_options, add_output_options, drift_options,
+                                      market_overrides, parse_date, parse_float,
                                       whole_number, write_output)
 from optbench.errors import InputError
 
@@ -47,6 +48,7 @@ def add_chain_arguments(parser: argparse.ArgumentParser) -> None:
                      help="simulated paths of the fitted model (default: 2000 for compare, "
                           "20000 for hedge)")
     sim.add_argument("--seed", type=int, default=7, help="random seed (default: 7)")
+    add_drift_options(parser)
 
 
 def chain_source(args: argparse.Namespace) -> str | Path:
@@ -92,6 +94,9 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                                              "expiry (repeatable; CSV: only these rows)")
     parser.add_argument("--table", choices=("expiries", "strikes"), default="expiries",
                         help="which table CSV writes (default: expiries)")
+    parser.add_argument("--floor", type=parse_float, default=0.90,
+                        help="protection floor as a fraction of spot: the put judged "
+                             "beside the 25-delta put (default: 0.90)")
     parser.add_argument("--backtest", action="store_true",
                         help="add the out-of-sample check over the last year (HTML "
                              "reports always include it)")
@@ -107,7 +112,8 @@ def run(args: argparse.Namespace) -> int:
     comparison = compare(chain_source(args), args.history, model=args.model, dist=args.dist,
                          mean=args.mean, band=args.band, n_paths=args.paths or 2000,
                          seed=args.seed, backtest=bool(args.backtest or args.format == "html"),
-                         progress=progress_printer(), **market_overrides(args))
+                         progress=progress_printer(), floor=args.floor,
+                         **drift_options(args), **market_overrides(args))
     for e in args.expiry or ():
         comparison.expiry_row(e)        # an expiry not in the chain -> one-line error
     write_output(args, render(comparison, args))

@@ -10,8 +10,8 @@ from __future__ import annotations
 import argparse
 import sys
 
-from optbench.commands.common import (add_output_options, market_overrides, parse_date,
-                                      whole_number, write_output)
+from optbench.commands.common import (add_output_options, drift_options, market_overrides,
+                                      parse_date, whole_number, write_output)
 from optbench.commands.compare import (FORMATS, add_chain_arguments, chain_source,
                                        check_file_formats, progress_printer)
 
@@ -71,7 +71,8 @@ def run(args: argparse.Namespace) -> int:
     say = progress_printer()
     comparison = compare(chain_source(args), args.history, model=args.model,
                          dist=args.dist, mean=args.mean, n_paths=min(n_paths, 2000),
-                         seed=args.seed, progress=say, **market_overrides(args))
+                         seed=args.seed, progress=say, floor=request.floor,
+                         **drift_options(args), **market_overrides(args))
     if say:
         say(f"hedge estimates over {n_paths:,} paths")
     estimate = hedge_from_comparison(comparison, request, n_paths=n_paths, seed=args.seed)

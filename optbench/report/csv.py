@@ -83,7 +83,10 @@ def comparison_csv(comparison, table: str = "expiries") -> str:
     """The per-expiry table (``table="expiries"``) or every per-strike row (``"strikes"``)."""
     if table == "strikes":
         return frame_csv(comparison.strike_frame(), _comment("compare strikes", comparison))
-    return frame_csv(comparison.expiry_frame(), _comment("compare expiries", comparison))
+    comment = _comment("compare expiries", comparison)
+    if comparison.drift is not None:
+        comment += f" | drift: {comparison.drift.text}"
+    return frame_csv(comparison.expiry_frame(), comment)
 
 
 def hedge_csv(estimate, table: str = "summary") -> str:
@@ -95,7 +98,8 @@ def hedge_csv(estimate, table: str = "summary") -> str:
         return frame_csv(estimate.scenario_frame(), comment)
     items = list(estimate.summary().items())
     items += [("strikes", " ".join(f"{k:g}" for k in estimate.strikes)),
-              ("collar_note", estimate.collar_note), ("caution", estimate.caution)]
+              ("collar_note", estimate.collar_note),
+              ("drift", estimate.drift.get("text", "")), ("caution", estimate.caution)]
     return write_rows(["item", "value"], items, comment)
 
 

@@ -45,6 +45,27 @@ EXPIRY_FIELDS: tuple[tuple[str, str, str], ...] = (
     ("smile_method", "Smile fit", "text"),
     ("smile_rmse", "Smile RMSE", "volpt"),
     ("arbitrage_flags", "Arbitrage flags", "int"),
+    ("floor", "Floor", "pct"),
+    ("put25_strike", "25d put strike", "price"),
+    ("put25_delta", "25d put delta", "num"),
+    ("put25_iv", "25d put IV", "vol"),
+    ("put25_premium", "25d put ask", "price"),
+    ("put25_premium_mid", "25d put mid", "price"),
+    ("put25_expected_payoff", "25d put expected payoff", "price"),
+    ("put25_payoff_low", "25d put payoff low", "price"),
+    ("put25_payoff_high", "25d put payoff high", "price"),
+    ("put25_payoff_se", "25d put payoff s.e.", "price"),
+    ("put25_verdict", "25d put verdict", "text"),
+    ("floor_put_strike", "Floor put strike", "price"),
+    ("floor_put_delta", "Floor put delta", "num"),
+    ("floor_put_iv", "Floor put IV", "vol"),
+    ("floor_put_premium", "Floor put ask", "price"),
+    ("floor_put_premium_mid", "Floor put mid", "price"),
+    ("floor_put_expected_payoff", "Floor put expected payoff", "price"),
+    ("floor_put_payoff_low", "Floor put payoff low", "price"),
+    ("floor_put_payoff_high", "Floor put payoff high", "price"),
+    ("floor_put_payoff_se", "Floor put payoff s.e.", "price"),
+    ("floor_put_verdict", "Floor put verdict", "text"),
 )
 
 #: the per-expiry columns a terminal or Markdown table shows
@@ -52,6 +73,14 @@ EXPIRY_BRIEF = ("expiry", "calendar_days", "atm_iv", "iv_25d_put", "iv_25d_call"
                 "model_free_iv", "forecast_low", "forecast_vol", "forecast_high",
                 "realized_vol", "cone_percentile", "iv_minus_forecast",
                 "variance_premium", "prob_realized_above_iv", "verdict")
+
+#: the protection verdict's columns in terminal, Markdown and HTML tables
+PROTECTION_BRIEF = ("expiry", "calendar_days", "verdict",
+                    "put25_strike", "put25_premium", "put25_premium_mid",
+                    "put25_expected_payoff", "put25_payoff_low", "put25_payoff_high",
+                    "put25_verdict", "floor_put_strike", "floor_put_premium",
+                    "floor_put_premium_mid", "floor_put_expected_payoff",
+                    "floor_put_payoff_low", "floor_put_payoff_high", "floor_put_verdict")
 
 STRIKE_FIELDS: tuple[tuple[str, str, str], ...] = (
     ("expiry", "Expiry", "date"),

@@ -26,6 +26,7 @@ import math
 import numpy as np
 
 from optbench.report.fields import (EXPIRY_BRIEF, HEDGE_FIELDS, KINDS, LABELS, LEG_FIELDS,
+                                    PROTECTION_BRIEF,
                                     SCENARIO_FIELDS, fmt)
 
 _CSS = """
@@ -62,7 +63,8 @@ def figure_term_structure(comparison) -> str:
     lo = np.array([r.forecast_low for r in rows]) * 100
     hi = np.array([r.forecast_high for r in rows]) * 100
     ax.fill_between(d, lo, hi, alpha=0.25, label=f"forecast band {comparison.band[0]:.0%}–"
-                                                  f"{comparison.band[1]:.0%}")
+                                                  f"{comparison.band[1]:.0%} (parameter "
+                                                  "uncertainty)")
     ax.plot(d, np.array([r.forecast_vol for r in rows]) * 100, "-", label="forecast")
     ax.plot(d, np.array([r.atm_iv for r in rows]) * 100, "o-", label="ATM implied")
     ax.plot(d, np.array([r.model_free_iv for r in rows]) * 100, "s--", ms=4,
@@ -186,7 +188,7 @@ def _table(records, columns) -> str:
             cls = []
             if KINDS.get(c) in ("text", "date"):
                 cls.append("t")
-            if c == "verdict" and text in ("rich", "cheap"):
+            if c.endswith("verdict") and text in ("rich", "cheap"):
                 cls.append(text)
             cells.append(f'<td class="{" ".join(cls)}">{_html.escape(text)}</td>')
         body.append("<tr>" + "".join(cells) + "</tr>")
@@ -210,7 +212,10 @@ def comparison_html(comparison, *, figures: bool = True) -> str:
              f"{c.n_paths:,} simulated paths</p>",
              f'<p class="caution">{e(c.caution)}</p>',
              "<h2>Per expiry</h2>", _table([r.to_dict() for r in c.expiries], EXPIRY_BRIEF),
-             f"<p>Verdict rule: {e(c.verdict_rule)}.</p>"]
+             f"<p>Verdict rule: {e(c.verdict_rule)}.</p>",
+             "<h2>Protection</h2>",
+             _table([r.to_dict() for r in c.expiries], PROTECTION_BRIEF),
+             f"<p>Protection rule: {e(c.protection_rule)}.</p>"]
     if figures:
         parts += ["<h2>Term structure</h2>", f'<img alt="term structure" src="{figure_term_structure(c)}">',
                   "<h2>Smiles</h2>", f'<img alt="smiles" src="{figure_smiles(c)}">']

@@ -8,7 +8,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 
 from optbench.report.fields import (EXPIRY_BRIEF, HEDGE_FIELDS, KINDS, LABELS, LEG_FIELDS,
-                                    SCENARIO_FIELDS, STRIKE_BRIEF, fmt)
+                                    PROTECTION_BRIEF, SCENARIO_FIELDS, STRIKE_BRIEF, fmt)
 
 
 def _esc(text: str) -> str:
@@ -41,6 +41,12 @@ def comparison_markdown(comparison, *, strikes_for=None) -> str:
              md_table([r.to_dict() for r in c.expiries], EXPIRY_BRIEF),
              "",
              f"Verdict rule: {c.verdict_rule}.",
+             "",
+             "## Protection",
+             "",
+             md_table([r.to_dict() for r in c.expiries], PROTECTION_BRIEF),
+             "",
+             f"Protection rule: {c.protection_rule}.",
              ""]
     for exp in ([] if strikes_for is None else list(strikes_for)):
         frame = c.strike_frame(exp)

@@ -17,6 +17,8 @@ SCREEN_KINDS = {
     "protection_expected_payoff": "money", "protection_overpay": "money",
     "protection_cost_pct_annual": "pct", "model": "text", "fallback_reason": "text",
     "rows_in": "int", "rows_used": "int", "error": "text", "folder": "text",
+    "floor_put_verdict": "text", "put25_verdict": "text", "drift_rule": "text",
+    "drift_annual": "pct",
 }
 
 SCREEN_LABELS = {
@@ -25,12 +27,14 @@ SCREEN_LABELS = {
     "forecast_high": "Fcst\nhigh", "iv_minus_forecast": "IV-\nFcst", "verdict": "Verdict",
     "protection_cost": "Cost", "protection_expected_payoff": "Expected\npayoff",
     "protection_overpay": "Over-\npay", "protection_cost_pct_annual": "Cost\n% a year",
+    "floor_put_verdict": "Put\nverdict",
     "model": "Model", "error": "Problem",
 }
 
 SCREEN_BRIEF = ("code", "tenor_days", "expiry", "calendar_days", "atm_iv", "forecast_low",
                 "forecast_vol", "forecast_high", "iv_minus_forecast", "verdict",
                 "protection_cost", "protection_expected_payoff", "protection_overpay",
+                "floor_put_verdict",
                 "error")
 
 #: verdicts readable without colour, marked as in the workbench
@@ -126,14 +130,22 @@ def screen_table(result, *, width: int | None = None, color: bool = False) -> st
             if c == "error":
                 cells.append("failed (below)" if r.get(c) and r.get("atm_iv") is None
                              else (r.get(c) or ""))
-            elif c == "verdict":
+            elif c in ("verdict", "floor_put_verdict"):
                 v = r.get(c) or "–"
                 cells.append(Text(VERDICT_MARK.get(v, v), style=styles.get(v, "")))
             else:
                 cells.append(fmt(r.get(c), SCREEN_KINDS[c], percent_sign=False))
         table.add_row(*cells)
     notes = [f"Ranked by {result.sort}{' (largest first)' if result.descending else ''}. "
-             "Verdict: rich above the forecast band, cheap below, fair inside."]
+             "Verdict: rich above the forecast band, cheap below, fair inside. "
+             "Put verdict: the floor put's ask against the band of its model-expected "
+             "payoff (rich = expensive protection)."]
+    drifts = sorted({(r.get("drift_rule"), r.get("drift_annual")) for r in result.rows
+                     if r.get("drift_rule")}, key=str)
+    if drifts:
+        notes.append("Drift of simulated prices: " + "; ".join(
+            f"{rule} {fmt(annual, 'pct')} a year" for rule, annual in drifts)
+            + " (risk-free = r - q, no expected excess return).")
     for f in result.failures:
         notes.append(f"Could not screen {f['code']}: {f['reason']}")
     notes.append(result.caution)

@@ -7,7 +7,7 @@ from __future__ import annotations
 import io
 
 from optbench.report.fields import (EXPIRY_BRIEF, HEDGE_FIELDS, KINDS, LABELS, LEG_FIELDS,
-                                    SCENARIO_FIELDS, STRIKE_BRIEF, fmt)
+                                    PROTECTION_BRIEF, SCENARIO_FIELDS, STRIKE_BRIEF, fmt)
 
 _VERDICT_STYLE = {"rich": "bold red", "cheap": "bold green", "fair": "", "n/a": "dim"}
 
@@ -25,7 +25,14 @@ SHORT = {"expiry": "Expiry", "calendar_days": "Days", "atm_iv": "ATM\nIV",
          "side": "Side", "quantity": "Contracts", "mid": "Mid", "premium_mid": "Premium\nmid",
          "premium_paid": "Premium\npaid", "premium_at_forecast": "Value at\nfcst",
          "move": "Move", "level": "Level", "unhedged": "P&L\nunhedged",
-         "hedged": "P&L\nhedged"}
+         "hedged": "P&L\nhedged",
+         "put25_strike": "25d put\nstrike", "put25_premium": "Ask", "put25_premium_mid": "Mid",
+         "put25_expected_payoff": "Expected\npayoff", "put25_payoff_low": "Payoff\nlow",
+         "put25_payoff_high": "Payoff\nhigh", "put25_verdict": "25d put\nverdict",
+         "floor_put_strike": "Floor put\nstrike", "floor_put_premium": "Ask",
+         "floor_put_premium_mid": "Mid", "floor_put_expected_payoff": "Expected\npayoff",
+         "floor_put_payoff_low": "Payoff\nlow", "floor_put_payoff_high": "Payoff\nhigh",
+         "floor_put_verdict": "Floor put\nverdict"}
 
 
 def _render(renderables, width: int | None, color: bool = False) -> str:
@@ -38,22 +45,22 @@ def _render(renderables, width: int | None, color: bool = False) -> str:
     return buf.getvalue()
 
 
-def _table(title: str, records, columns):
+def _table(title: str, records, columns, headings: dict | None = None):
     from rich.table import Table
     from rich.text import Text
     from rich import box
     t = Table(title=title, title_justify="left", show_lines=False, pad_edge=False,
               box=box.SIMPLE_HEAD)
     for c in columns:
-        t.add_column(SHORT.get(c, LABELS.get(c, c)),
+        t.add_column((headings or {}).get(c) or SHORT.get(c, LABELS.get(c, c)),
                      justify="left" if KINDS.get(c) in ("text", "date") else "right",
                      no_wrap=True)
     for r in records:
         cells = []
         for c in columns:
             text = fmt(r.get(c), KINDS.get(c, "text"), percent_sign=False)
-            cells.append(Text(text, style=_VERDICT_STYLE.get(text, "")) if c == "verdict"
-                         else text)
+            cells.append(Text(text, style=_VERDICT_STYLE.get(text, ""))
+                         if c.endswith("verdict") else text)
         t.add_row(*cells)
     return t
 
@@ -69,7 +76,15 @@ def comparison_table(comparison, *, strikes_for=None, width: int | None = None,
              f"long-run vol {100 * m.long_run_vol:.2f}%, {c.n_paths:,} simulated paths",
              _table("Implied against forecast (vols and probabilities in %, differences in vol points)",
                     [r.to_dict() for r in c.expiries], EXPIRY_BRIEF),
-             f"Verdict rule: {c.verdict_rule}."]
+             f"Verdict rule: {c.verdict_rule}.",
+             *[_table(f"Protection: the {name} judged on its own (prices per unit of the "
+                      "underlying)", [r.to_dict() for r in c.expiries],
+                      [f for f in PROTECTION_BRIEF if not f.startswith(other)],
+                      {"verdict": "ATM\nverdict"})
+               for name, other in (("put nearest 25 delta", "floor_put_"),
+                                   (f"put nearest the floor ({c.floor:.0%} of spot)",
+                                    "put25_"))],
+             f"Protection rule: {c.protection_rule}."]
     for exp in ([] if strikes_for is None else list(strikes_for)):
         frame = c.strike_frame(exp)
         parts.append(_table(f"Strikes, {exp} (vols in %, edges in money per contract and "

@@ -116,6 +116,9 @@ def comparison_xlsx(comparison) -> bytes:
     items = [(k, v) for k, v in md.items()] + params + errs
     items.append(("verdict_rule", comparison.verdict_rule))
     items.append(("band", f"{comparison.band[0]:g} to {comparison.band[1]:g}"))
+    items.append(("protection_rule", comparison.protection_rule))
+    drift = comparison.drift.to_dict() if comparison.drift is not None else {}
+    items += [(f"drift_{k}", v) for k, v in drift.items()]
     _sheet(wb, "Model", title + " - model", comparison, model_text,
            pd.DataFrame(items, columns=["item", "value"]))
     return _save(wb)
@@ -130,7 +133,8 @@ def hedge_xlsx(estimate) -> bytes:
     title = f"optbench hedge: {estimate.underlying} {estimate.structure}"
     summary = list(estimate.summary().items()) + [
         ("strikes", " ".join(f"{k:g}" for k in estimate.strikes)),
-        ("roll_method", estimate.roll_method), ("collar_note", estimate.collar_note)]
+        ("roll_method", estimate.roll_method), ("collar_note", estimate.collar_note),
+        ("drift", estimate.drift.get("text", ""))]
     ws = wb.create_sheet("Summary")
     _header(ws, title + " - summary", estimate, model_text)
     _table(ws, ["item", "value"], summary)

@@ -30,6 +30,7 @@ COLUMNS = (
     "iv_forecast_ratio", "verdict", "floor", "put_strike", "protection_cost",
     "protection_expected_payoff", "protection_overpay", "protection_cost_pct_annual",
     "model", "fallback_reason", "rows_in", "rows_used", "error", "folder",
+    "floor_put_verdict", "put25_verdict", "drift_rule", "drift_annual",
 )
 
 
@@ -46,6 +47,8 @@ class ScreenTask:
     n_paths: int = 2000
     seed: int = 7
     overrides: dict = field(default_factory=dict)
+    drift: str = "risk-free"
+    excess_return: float | None = None
 
 
 def failed_rows(task: ScreenTask, reason: str) -> list[dict]:
@@ -92,7 +95,8 @@ def screen_one(task: ScreenTask) -> list[dict]:
     # only the expiries the rows show are compared: the same numbers, less work
     comparison = compare(scenario, model=task.model, dist=task.dist, mean=task.mean,
                          n_paths=task.n_paths, seed=task.seed,
-                         expiries=sorted(set(listed.values())))
+                         expiries=sorted(set(listed.values())), floor=task.floor,
+                         drift=task.drift, excess_return=task.excess_return)
     by_expiry = {e.expiry: e for e in comparison.expiries}
     model = comparison.model
     rows = []
@@ -129,5 +133,8 @@ def screen_one(task: ScreenTask) -> list[dict]:
             "rows_in": comparison.quality["rows_in"],
             "rows_used": comparison.quality["rows_used"],
             "error": error, "folder": task.folder,
+            "floor_put_verdict": row.floor_put_verdict, "put25_verdict": row.put25_verdict,
+            "drift_rule": comparison.drift.rule,
+            "drift_annual": _num(comparison.drift.annual),
         })
     return rows

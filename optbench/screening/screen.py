@@ -37,6 +37,8 @@ class ScreenResult:
     failures : ``{"code", "folder", "reason"}`` for each underlying that failed.
     workers, scheduler : how it ran.
     caution : the caution every hedge output carries.
+    drift : the drift asked for (``{"rule", "excess_return"}``; None = each
+        underlying's meta.toml, else 0); each row says the drift it used.
     """
 
     universe: str
@@ -53,6 +55,7 @@ class ScreenResult:
     dist: str
     caution: str = CAUTION
     columns: tuple[str, ...] = field(default=COLUMNS)
+    drift: dict = field(default_factory=dict)
 
     def to_dict(self) -> dict:
         return {
@@ -66,7 +69,15 @@ class ScreenResult:
                                f"{self.notional:,.0f} of notional; expected payoff under "
                                "the fitted model's simulated paths"),
                 "verdict": "rich above the forecast band, cheap below, fair inside",
+                "protection_verdict": ("the put at the floor and the 25-delta put: rich "
+                                       "(expensive protection) when the ask is above the "
+                                       "band of its model-expected discounted payoff, "
+                                       "cheap below, fair inside"),
+                "drift": ("simulated prices grow at drift_annual a year (drift_rule: "
+                          "risk-free = r - q, excess = r - q plus the excess return, "
+                          "fitted = the fitted mean)"),
             },
+            "drift": dict(self.drift),
             "rows": [dict(r) for r in self.rows],
             "failures": [dict(f) for f in self.failures],
             "caution": self.caution,
@@ -96,7 +107,8 @@ def screen(folder: str | Path, *, tenors: Sequence[int] = DEFAULT_TENORS,
            mean: str = "constant", sort: str = DEFAULT_SORT, descending: bool = True,
            workers: int | None = None, scheduler: str | None = None,
            n_paths: int = 2000, seed: int = 7, overrides: dict | None = None,
-           progress: Callable[[int, int], None] | None = None) -> ScreenResult:
+           progress: Callable[[int, int], None] | None = None, drift: str = "risk-free",
+           excess_return: float | None = None) -> ScreenResult:
     """Screen every scenario folder under ``folder`` and rank the rows.
 
     Parameters
@@ -113,6 +125,9 @@ def screen(folder: str | Path, *, tenors: Sequence[int] = DEFAULT_TENORS,
     n_paths, seed : the simulation behind the expected payoffs.
     overrides : market overrides applied to every underlying (rarely wanted).
     progress : ``progress(done, total)`` after each underlying.
+    drift, excess_return : the drift of the simulated prices, as in ``compare``
+        (each underlying's ``meta.toml`` may set its own ``excess_return``; the rows'
+        ``drift_rule`` and ``drift_annual`` say what each used).
     """
     tenors = tuple(int(t) for t in tenors)
     if not tenors or min(tenors) <= 0:
@@ -122,10 +137,13 @@ def screen(folder: str | Path, *, tenors: Sequence[int] = DEFAULT_TENORS,
     if sort not in COLUMNS:
         raise InputError("--sort", f"no such column {sort!r}; choose one of "
                                    f"{', '.join(COLUMNS)}")
+    from optbench.analysis.drift import choose_drift
+    choose_drift(drift, excess_return, rate=0.0, div_yield=0.0)   # a bad value fails here
     folders = find_scenarios(folder)
     tasks = [ScreenTask(folder=str(f), tenors=tenors, floor=float(floor), model=model,
                         dist=dist, mean=mean, n_paths=n_paths, seed=seed,
-                        overrides=dict(overrides or {})) for f in folders]
+                        overrides=dict(overrides or {}), drift=drift,
+                        excess_return=excess_return) for f in folders]
     results = run_tasks(screen_one, tasks, workers=workers, scheduler=scheduler,
                         progress=progress)
     rows: list[dict] = []
@@ -141,4 +159,5 @@ def screen(folder: str | Path, *, tenors: Sequence[int] = DEFAULT_TENORS,
                         notional=NOTIONAL, sort=sort, descending=descending,
                         rows=tuple(rank_rows(rows, sort, descending)),
                         failures=tuple(failures), workers=workers, scheduler=scheduler,
-                        model=model, dist=dist)
+                        model=model, dist=dist,
+                        drift={"rule": drift, "excess_return": excess_return})

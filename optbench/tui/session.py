@@ -74,7 +74,8 @@ def run_compare(inputs: Inputs, scenario, progress=None):
     from optbench import compare
     s = inputs.settings
     return compare(scenario, None, model=s.model, dist=s.dist, mean=s.mean,
-                   seed=s.seed, progress=progress)
+                   seed=s.seed, progress=progress, drift=s.drift,
+                   excess_return=s.excess_return)
 
 
 #: out-of-sample days of the model check: the last year of returns, as

@@ -51,7 +51,8 @@ class SimulatedPaths:
 
 
 def simulate_paths(model: str, params: dict, dist: str, last_variance: float,
-                   horizon: int, n_paths: int, seed=None) -> SimulatedPaths:
+                   horizon: int, n_paths: int, seed=None,
+                   drift: float | None = None) -> SimulatedPaths:
     """Simulate ``n_paths`` paths of ``horizon`` days from a fitted state.
 
     Parameters
@@ -66,10 +67,23 @@ def simulate_paths(model: str, params: dict, dist: str, last_variance: float,
         sigma^2 of the first simulated day (the fit's ``last_variance``).
     horizon, n_paths : int
     seed : int, numpy Generator or None
+    drift : float or None
+        Daily log drift ``a`` of the price set by the caller (e.g. ``(r - q + x) / 252``
+        or ``(r - q + x) tau / h`` for a horizon of ``h`` trading days over ``tau``
+        years). None (default) keeps the fitted mean ``mu``.
 
     Notes
     -----
-    ``r_t = mu + sigma_t z_t``, ``sigma^2_{t+1}`` from the model's recursion
+    ``r_t = mu + sigma_t z_t`` (fitted mean), or with ``drift`` given
+    ``r_t = a - sigma_t^2 / 2 + sigma_t z_t``: the convexity term ``-sigma_t^2/2``
+    makes ``E[exp(r_t) | sigma_t] = exp(a)`` for normal innovations, so
+    ``E[S_h] = S_0 e^{a h}`` by iterated expectations (for the unit-variance t with
+    ``nu > 4`` the daily error is of order ``sigma_t^4 (kurtosis - 3) / 24``, below
+    1e-6 a day at daily vols under 5 %; the tabulated t draws are bounded, so the
+    mean of ``exp`` exists).
+    The drift never enters the variance recursion, which runs on ``sigma_t z_t``:
+    the volatility paths are the same whatever the drift.
+    ``sigma^2_{t+1}`` from the model's recursion
     (see :mod:`optbench.volatility.recursions`). Innovations are drawn in float32
     (the shocks only need single precision; t draws by the tabulated quantile
     transform of normals, :func:`optbench.volatility.distributions.std_t_draws_fast`);
@@ -117,6 +131,9 @@ def simulate_paths(model: str, params: dict, dist: str, last_variance: float,
             e *= z[t]
             if t + 1 < horizon:
                 s2 = spec.next_variance(e, s2, params)
-    if mu:
+    if drift is not None:
+        r += float(drift)
+        r -= 0.5 * v
+    elif mu:
         r += mu
     return SimulatedPaths(returns=r.T, variances=v.T)

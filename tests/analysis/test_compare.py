@@ -172,9 +172,12 @@ def test_verdicts_follow_the_stated_rule(demo):
 
 def test_probability_realized_above_implied_falls_with_implied(demo):
     # a higher implied vol must be exceeded less often by the same simulated paths
+    from optbench.volatility.simulate import simulate_paths
     fit = demo.fit
     row = demo.expiries[3]
-    sim = fit.simulate(row.trading_days, n_paths=demo.n_paths, seed=demo.seed)
+    sim = simulate_paths(fit.model, fit.params, fit.dist, fit.last_variance,
+                         row.trading_days, demo.n_paths, demo.seed,
+                         drift=demo.drift.annual / 252)
     rv = sim.realized_vol()
     assert np.mean(rv > row.atm_iv) == pytest.approx(row.prob_realized_above_iv, abs=0.03)
     assert np.mean(rv > row.atm_iv + 0.05) < row.prob_realized_above_iv

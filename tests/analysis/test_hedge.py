@@ -106,16 +106,41 @@ def test_put_spread_and_collar_by_hand(comparison, quotes):
 
 
 def test_expected_payoff_and_probability_agree_with_the_simulated_paths(comparison):
-    # the expected payoff is the discounted mean payoff over the fitted model's paths,
-    # recomputed here from the simulation alone
+    # the expected payoff is the discounted mean payoff over the fitted model's paths
+    # with the default drift r - q of the expiry's forward, recomputed here from a
+    # simulation with that per-step drift a = (r - q) tau / h (and its -sigma^2/2 term)
+    from optbench.volatility.simulate import simulate_paths
     est = hedge_from_comparison(comparison, HedgeRequest(V, floor=0.9, days=84),
                                 n_paths=5000, seed=11)
-    sim = comparison.fit.simulate(est.trading_days, n_paths=5000, seed=11)
-    s_t = est.spot * np.exp(sim.terminal_return() - est.div_yield * est.calendar_days / 365)
+    assert est.drift["rule"] == "risk-free"
+    row = comparison.expiry_row(est.expiry)
+    fit = comparison.fit
+    a = (row.rate - row.carry) * row.t / row.trading_days
+    sim = simulate_paths(fit.model, fit.params, fit.dist, fit.last_variance,
+                         row.trading_days, 5000, 11, drift=a)
+    s_t = est.spot * np.exp(sim.terminal_return())
     pay = est.contracts * 100 * np.maximum(est.strike - s_t, 0.0)
-    assert est.expected_payoff == pytest.approx(
-        math.exp(-est.rate * est.calendar_days / 365) * pay.mean(), rel=1e-9)
+    assert est.expected_payoff == pytest.approx(math.exp(-row.rate * row.t) * pay.mean(),
+                                                rel=1e-9)
     assert est.prob_payoff == pytest.approx(np.mean(pay > 0))
+
+
+def test_fitted_drift_only_when_asked(comparison):
+    # --drift fitted: the fitted mean of the log returns, less the carry, as the
+    # history's closes are dividend-adjusted
+    fitted = compare(DEMO, model="gjr", dist="t", drift="fitted")
+    est = hedge_from_comparison(fitted, HedgeRequest(V, floor=0.9, days=84),
+                                n_paths=5000, seed=11)
+    assert est.drift["rule"] == "fitted"
+    row = fitted.expiry_row(est.expiry)
+    sim = fitted.fit.simulate(row.trading_days, n_paths=5000, seed=11)
+    s_t = est.spot * np.exp(sim.terminal_return() - row.carry * row.t)
+    pay = est.contracts * 100 * np.maximum(est.strike - s_t, 0.0)
+    assert est.expected_payoff == pytest.approx(math.exp(-row.rate * row.t) * pay.mean(),
+                                                rel=1e-9)
+    default = hedge_from_comparison(comparison, HedgeRequest(V, floor=0.9, days=84),
+                                    n_paths=5000, seed=11)
+    assert default.drift["rule"] == "risk-free" and default.drift["excess_return"] == 0.0
 
 
 def test_hedge_api_and_errors():
@@ -166,26 +191,53 @@ def constant_variance(comparison):
 
 
 def test_expected_payoff_matches_the_lognormal_closed_form(constant_variance):
-    # reference: vollib.black.black with the forward E[S_T] = S exp(h mu + h s2 / 2 - q tau)
-    # and total variance h s2 (Black 1976 on the physical distribution of S_T)
+    # reference: vollib.black.black (Black 1976) with the forward of the default drift,
+    # E[S_T] = S exp((r - q) tau) with the expiry's rate and carry, and total variance
+    # h s2: under a constant vol and no excess return the expected discounted payoff of
+    # a put is its Black-Scholes-Merton price (Hull, Options, Futures, and Other
+    # Derivatives, ch. 15)
     from vollib.black import black
     comp, mu, s2 = constant_variance
     est = hedge_from_comparison(comp, HedgeRequest(V, floor=0.95, days=84),
                                 n_paths=200_000, seed=4)
-    h, tau = est.trading_days, est.calendar_days / 365
-    forward = est.spot * math.exp(h * mu + h * s2 / 2 - est.div_yield * tau)
-    ref = black("p", forward, est.strike, tau, est.rate, math.sqrt(h * s2 / tau))
+    row = comp.expiry_row(est.expiry)
+    h, tau = row.trading_days, row.t
+    forward = est.spot * math.exp((row.rate - row.carry) * tau)
+    ref = black("p", forward, est.strike, tau, row.rate, math.sqrt(h * s2 / tau))
     assert est.expected_payoff == pytest.approx(est.contracts * 100 * ref, rel=0.02)
     assert comp.expiry_row(est.expiry).forecast_vol == pytest.approx(math.sqrt(252 * s2))
+
+
+def test_expected_payoff_with_the_fitted_mean_matches_its_closed_form(constant_variance):
+    # reference: vollib.black.black with the forward E[S_T] = S exp(h mu + h s2 / 2 - q tau)
+    # (i.i.d. N(mu, s2) log returns, the fitted mean asked for with drift="fitted")
+    from optbench.volatility.garch import fix_garch
+    from optbench.data.history import load_history
+    from vollib.black import black
+    comp, mu, s2 = constant_variance
+    fixed = fix_garch(load_history(DEMO / "history.csv").returns,
+                      {"mu": mu, "omega": s2, "alpha": 0.0, "beta": 0.0},
+                      model="garch", dist="normal")
+    fitted = compare(DEMO, fit=fixed, n_paths=2_000, seed=21, drift="fitted")
+    est = hedge_from_comparison(fitted, HedgeRequest(V, floor=0.95, days=84),
+                                n_paths=200_000, seed=4)
+    row = fitted.expiry_row(est.expiry)
+    h, tau = row.trading_days, row.t
+    forward = est.spot * math.exp(h * mu + h * s2 / 2 - row.carry * tau)
+    ref = black("p", forward, est.strike, tau, row.rate, math.sqrt(h * s2 / tau))
+    assert est.expected_payoff == pytest.approx(est.contracts * 100 * ref, rel=0.02)
 
 
 def test_probability_realized_above_implied_matches_the_chi_square_law(constant_variance):
     # reference: scipy.stats.ncx2 — the sum of h squared N(mu, s2) returns is s2 times a
     # non-central chi-square with h degrees of freedom and non-centrality h mu^2 / s2
+    # with the default drift the simulated daily log return is N(m, s2) with
+    # m = (r - q) / 252 - s2 / 2 (the chain's rate and yield; the convexity term)
     from scipy.stats import ncx2
     comp, mu, s2 = constant_variance
+    m = (comp.rate - comp.div_yield) / 252 - s2 / 2
     for row in comp.expiries[1:6]:
         h = row.trading_days
-        ref = ncx2.sf(row.atm_iv ** 2 * h / 252 / s2, h, h * mu ** 2 / s2)
+        ref = ncx2.sf(row.atm_iv ** 2 * h / 252 / s2, h, h * m ** 2 / s2)
         # 20,000 paths: standard error below 0.0036, the tolerance is about three of them
         assert row.prob_realized_above_iv == pytest.approx(ref, abs=0.01)

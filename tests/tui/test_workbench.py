@@ -233,3 +233,29 @@ async def _test_changing_the_model_recomputes_and_drops_stale_work():
         await pilot.press("ctrl+s")
         await settle(app, pilot)
         assert app.comparison.rate == pytest.approx(0.05)
+
+
+@pytest.mark.slow
+def test_the_model_dialog_sets_the_drift():
+    run(_test_the_model_dialog_sets_the_drift())
+
+
+async def _test_the_model_dialog_sets_the_drift():
+    app = make_app()
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(app, pilot)
+        assert app.comparison.drift.rule == "risk-free"
+        await pilot.press("m")
+        await pilot.pause()
+        app.screen.query_one("#set-excess", Input).value = "x"
+        await pilot.press("ctrl+s")
+        await pilot.pause()
+        assert "excess return: not a number" in text_of(
+            app.screen.query_one("#settings-error", Static))
+        app.screen.query_one("#set-excess", Input).value = "3"
+        await pilot.press("ctrl+s")
+        await settle(app, pilot)
+        assert app.inputs.settings.excess_return == pytest.approx(0.03)
+        assert app.comparison.drift.rule == "excess"
+        assert app.comparison.drift.annual == pytest.approx(
+            app.comparison.rate - app.comparison.div_yield + 0.03)

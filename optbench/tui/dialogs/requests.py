@@ -42,6 +42,10 @@ class Settings:
     #: simulated paths behind the hedge's expected payoff (as ``optbench hedge --paths``)
     hedge_paths: int = 20000
     seed: int | None = 7
+    #: drift of simulated prices: "risk-free" (r - q plus ``excess_return``) or "fitted"
+    drift: str = "risk-free"
+    #: expected excess return a year (decimal); None = the scenario's meta.toml, else 0
+    excess_return: float | None = None
 
     def overrides(self) -> dict:
         """Market overrides for the loaders (only those the user set)."""

@@ -19,6 +19,7 @@ MODELS = (("auto (lowest BIC)", "auto"), ("GARCH(1,1)", "garch"),
           ("GJR-GARCH (leverage)", "gjr"), ("EGARCH", "egarch"))
 DISTS = (("Student t", "t"), ("normal", "normal"))
 MEANS = (("constant", "constant"), ("zero", "zero"))
+DRIFTS = (("risk-free rate less yield (+ excess)", "risk-free"), ("fitted mean", "fitted"))
 
 
 def parse_optional_float(name: str, text: str, *, percent: bool = False) -> float | None:
@@ -77,6 +78,12 @@ class SettingsDialog(ModalScreen[Settings | None]):
                 yield Select(DISTS, value=s.dist, allow_blank=False, id="set-dist")
                 yield Label("Mean of returns")
                 yield Select(MEANS, value=s.mean, allow_blank=False, id="set-mean")
+                yield Label("Drift of simulated prices")
+                yield Select(DRIFTS, value=s.drift, allow_blank=False, id="set-drift")
+                yield Label("Expected excess return, % a year")
+                yield Input(_shown(s.excess_return, True),
+                            placeholder="meta.toml's excess_return, else 0",
+                            id="set-excess")
                 yield Label("Rate, % a year (cont.)")
                 yield Input(_shown(s.rate, True), placeholder=self._hint("rate", "scenario", True),
                             id="set-rate")
@@ -112,6 +119,13 @@ class SettingsDialog(ModalScreen[Settings | None]):
         spot = parse_optional_float("spot", value("#set-spot"))
         if spot is not None and spot <= 0:
             raise InputError("spot", "must be positive")
+        drift = str(self.query_one("#set-drift", Select).value)
+        excess = parse_optional_float("excess return", value("#set-excess"), percent=True)
+        if excess is not None and drift == "fitted":
+            raise InputError("excess return", "leave it empty with the fitted-mean drift "
+                                              "(the fitted mean is the drift)")
+        if excess is not None and abs(excess) >= 1:
+            raise InputError("excess return", "must lie between -100 and 100 % a year")
         spread = parse_optional_float("spread", value("#set-spread"), percent=True)
         if spread is not None and spread <= 0:
             raise InputError("spread", "must be positive")
@@ -122,7 +136,7 @@ class SettingsDialog(ModalScreen[Settings | None]):
             mean=str(self.query_one("#set-mean", Select).value),
             rate=parse_optional_float("rate", value("#set-rate"), percent=True),
             div_yield=parse_optional_float("dividend yield", value("#set-yield"), percent=True),
-            spot=spot, asof=asof, max_spread=spread)
+            spot=spot, asof=asof, max_spread=spread, drift=drift, excess_return=excess)
 
     @on(Button.Pressed, "#settings-ok")
     @on(Input.Submitted)

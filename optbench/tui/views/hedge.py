@@ -93,6 +93,8 @@ def summary_table(est) -> Table:
     t.add_row("Value at forecast vol", fmt.money(est.premium_at_forecast), "the legs priced at the model's vol")
     t.add_row("Model expected payoff", fmt.money(est.expected_payoff),
               f"{est.n_paths:,} simulated paths of the fitted model")
+    t.add_row("Drift of the paths", (est.drift or {}).get("rule", "–"),
+              (est.drift or {}).get("text", ""))
     t.add_row("Paid over expected", fmt.money(est.overpay, signed=True), "premium paid − expected payoff")
     t.add_row("Chance it pays", fmt.pct_sign(est.prob_payoff, 0), "share of paths with a payoff")
     t.add_row("Breakeven", fmt.num(est.breakeven), f"{fmt.pct_sign(est.breakeven_move, 1)} from spot")

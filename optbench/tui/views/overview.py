@@ -56,13 +56,14 @@ def verdict_table(comparison) -> Table:
                   expand=True, header_style="bold")
     for col, just in (("Expiry", "left"), ("Tenor", "right"), ("ATM IV %", "right"),
                       ("Forecast %", "right"), ("Band %", "right"), ("IV − fc, pts", "right"),
-                      ("Verdict", "left")):
+                      ("Verdict", "left"), ("25Δ put", "left"), ("Floor put", "left")):
         table.add_column(col, justify=just, no_wrap=True)
     for r in comparison.expiries:
         table.add_row(fmt.date(r.expiry), fmt.tenor(r.calendar_days), fmt.pct(r.atm_iv),
                       fmt.pct(r.forecast_vol),
                       f"{fmt.pct(r.forecast_low)}–{fmt.pct(r.forecast_high)}",
-                      fmt.pct(r.iv_minus_forecast, signed=True), fmt.verdict(r.verdict))
+                      fmt.pct(r.iv_minus_forecast, signed=True), fmt.verdict(r.verdict),
+                      fmt.verdict(r.put25_verdict), fmt.verdict(r.floor_put_verdict))
     return table
 
 
@@ -86,6 +87,10 @@ def state_text(comparison) -> Text:
                 style="green" if m.converged else "bold red")
     if m.fallback_reason:
         text.append(f" (fallback: {m.fallback_reason})", style="yellow")
+    if comparison.drift is not None:
+        text.append("\nDrift ", style="bold")
+        text.append(f"simulated prices: {comparison.drift.text}. Puts: ask against the "
+                    f"band of the model-expected payoff (floor {comparison.floor:.0%} of spot).")
     bt = comparison.backtest
     if bt:
         text.append("\nCheck ", style="bold")

@@ -17,7 +17,9 @@ from optbench.tui.views.base import Deferred
 EXPIRY_COLUMNS = (("expiry", "Expiry"), ("tenor", "Tenor"), ("verdict", "Verdict"),
                   ("atm", "ATM IV %"), ("fc", "Forecast %"), ("band", "Band %"),
                   ("diff", "IV−fc pts"), ("ratio", "IV/fc"), ("vrp", "Var prem"),
-                  ("rr", "25Δ RR"), ("prob", "P(RV>IV) %"), ("n", "Quotes"))
+                  ("rr", "25Δ RR"), ("prob", "P(RV>IV) %"), ("n", "Quotes"),
+                  ("p25", "25Δ put"), ("p25e", "25Δ ask · E[payoff]"),
+                  ("pfl", "Floor put"), ("pfle", "Floor ask · E[payoff]"))
 
 STRIKE_COLUMNS = (("type", "Type"), ("strike", "Strike"), ("money", "K/F"),
                   ("edgev", "Edge vol pts"), ("edge", "Edge/contract"), ("bid", "Bid"),
@@ -44,13 +46,19 @@ def expiry_rows(comparison):
         raw.append((r.expiry.isoformat(), r.calendar_days, _VERDICT_ORDER.get(r.verdict, 9),
                     r.atm_iv, r.forecast_vol, r.forecast_low, r.iv_minus_forecast,
                     r.iv_forecast_ratio, r.variance_premium, r.rr_25d,
-                    r.prob_realized_above_iv, r.n_quotes))
+                    r.prob_realized_above_iv, r.n_quotes,
+                    _VERDICT_ORDER.get(r.put25_verdict, 9), r.put25_expected_payoff,
+                    _VERDICT_ORDER.get(r.floor_put_verdict, 9), r.floor_put_expected_payoff))
         shown.append((fmt.date(r.expiry), fmt.tenor(r.calendar_days), fmt.verdict(r.verdict),
                       fmt.pct(r.atm_iv), fmt.pct(r.forecast_vol),
                       f"{fmt.pct(r.forecast_low)}–{fmt.pct(r.forecast_high)}",
                       fmt.pct(r.iv_minus_forecast, signed=True), fmt.num(r.iv_forecast_ratio),
                       fmt.num(r.variance_premium, 4, signed=True), fmt.pct(r.rr_25d, signed=True),
-                      fmt.pct(r.prob_realized_above_iv, 0), str(r.n_quotes)))
+                      fmt.pct(r.prob_realized_above_iv, 0), str(r.n_quotes),
+                      fmt.verdict(r.put25_verdict),
+                      f"{fmt.num(r.put25_premium)} · {fmt.num(r.put25_expected_payoff)}",
+                      fmt.verdict(r.floor_put_verdict),
+                      f"{fmt.num(r.floor_put_premium)} · {fmt.num(r.floor_put_expected_payoff)}"))
     return raw, shown
 
 
@@ -94,8 +102,12 @@ class RichCheapView(Deferred, Vertical):
         lo, hi = comparison.band
         self.query_one("#rc-rule", Static).update(
             "▲ rich / = fair / ▼ cheap: ATM implied vol above / inside / below the forecast "
-            f"band ({lo:.0%}–{hi:.0%}).  Edge ▲: market mid above the option's value at the "
-            "forecast vol.  s sorts by the cursor's column; Enter shows an expiry's strikes.")
+            f"band ({lo:.0%}–{hi:.0%} quantiles of the forecast over the model's parameter "
+            "uncertainty).  Puts (25Δ, floor "
+            f"{comparison.floor:.0%}): the ask above / inside / below the band of the "
+            "model-expected payoff (▲ = expensive protection).  Edge ▲: market mid above the "
+            "option's value at the forecast vol.  s sorts by the cursor's column; Enter shows "
+            "an expiry's strikes.")
         raw, shown = expiry_rows(comparison)
         self.query_one("#rc-expiries", SortableTable).set_rows(
             EXPIRY_COLUMNS, raw, shown, keys=[r[0] for r in raw])

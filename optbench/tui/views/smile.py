@@ -50,7 +50,8 @@ def smile_plot(comparison, row) -> PlotSpec:
                          [row.atm_iv * 100], kind="points", color="bright_green", marker="◎"))
     series.append(Series(f"forecast {fmt.pct(row.forecast_vol)}%", [k.min(), k.max()],
                          [row.forecast_vol * 100] * 2, color="bright_blue"))
-    series.append(Series("band", [k.min(), k.max()], [row.forecast_low * 100] * 2,
+    series.append(Series("forecast band (parameter uncertainty)", [k.min(), k.max()],
+                         [row.forecast_low * 100] * 2,
                          kind="band", y2=[row.forecast_high * 100] * 2, color="grey23"))
     # draw the band first so everything sits on top of it
     series = [series[-1]] + series[:-1]

@@ -26,9 +26,11 @@ def term_plot(comparison) -> PlotSpec:
         return np.array([getattr(r, name) for r in rows], float) * 100.0
 
     lo, hi = comparison.band
+    band = comparison.conventions.get(
+        "forecast_band", "quantiles of the forecast over the model's parameter uncertainty")
     return PlotSpec(
         title=(f"{comparison.underlying} vol term structure, % a year, by calendar days to "
-               f"expiry (band: {lo:.0%}–{hi:.0%} of simulated realized vol). Table: vols in "
+               f"expiry (band: {lo:.0%}–{hi:.0%} {band}). Table: vols in "
                "%, IV−fc in vol points, MF = model-free"),
         series=(
             Series("forecast band", days, col("forecast_low"), kind="band",
