@@ -342,7 +342,10 @@ def hedge_from_comparison(comparison, request: HedgeRequest, *, n_paths: int = 2
         breakeven=be, breakeven_move=be / spot - 1.0 if math.isfinite(be) else math.nan,
         scenarios=scenarios, annual_roll_cost=roll, annual_roll_cost_pct=roll / V,
         roll_method=roll_method, collar_note=note, model=model, n_paths=int(n_paths),
-        seed=seed, warnings=tuple(warnings) + tuple(comparison.warnings), caution=CAUTION)
+        seed=seed, warnings=tuple(warnings) + tuple(comparison.warnings), caution=CAUTION,
+        style=str(getattr(comparison, "style", "european")),
+        sources=dict(getattr(comparison, "sources", {}) or {})
+        | ({"multiplier": "caller"} if request.multiplier else {}))
 
 
 def _simulated_log_returns(fit, horizon: int, n_paths: int, seed: int | None) -> np.ndarray:

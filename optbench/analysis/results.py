@@ -568,6 +568,10 @@ class HedgeEstimate:
     model : model name and distribution used for the simulation.
     n_paths, seed : simulation behind ``expected_payoff`` and ``prob_payoff``.
     caution : :data:`CAUTION`.
+    style : exercise style of the quotes the legs were priced from.
+    sources : where spot, as-of date, rate, dividend yield, style and multiplier came
+        from (as :attr:`Comparison.sources`; the multiplier is ``caller`` when the
+        request sets it).
     """
 
     request: HedgeRequest
@@ -605,6 +609,8 @@ class HedgeEstimate:
     seed: int | None
     warnings: tuple[str, ...] = ()
     caution: str = CAUTION
+    style: str = "european"
+    sources: dict = field(default_factory=dict)
 
     def scenario_frame(self) -> pd.DataFrame:
         return pd.DataFrame(list(self.scenarios))

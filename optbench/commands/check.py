@@ -34,10 +34,6 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     parser.add_argument("chain", metavar="CHAIN", help="chain file or scenario folder")
     add_output_options(parser)
     add_market_overrides(parser)
-    parser.add_argument("--style", choices=("european", "american"),
-                        help="exercise style of every option (default: file, meta, european)")
-    parser.add_argument("--multiplier", type=parse_positive,
-                        help="contract multiplier of every option (default: file, meta, 100)")
     parser.add_argument("--max-spread", dest="max_spread", type=parse_positive, default=None,
                         help="largest accepted (ask-bid)/mid, a decimal (default 1.0 = 100%%)")
     parser.add_argument("--any-spread", dest="any_spread", action="store_true",
@@ -53,9 +49,6 @@ def _load(args):
     from optbench.data.scenario import read_meta
     path = Path(args.chain)
     kwargs = market_overrides(args)
-    for key in ("style", "multiplier"):
-        if getattr(args, key, None) is not None:
-            kwargs[key] = getattr(args, key)
     kwargs["max_spread"] = None if args.any_spread else (
         args.max_spread if args.max_spread is not None else DEFAULT_MAX_SPREAD)
     folder = path if path.is_dir() else path.parent

@@ -60,6 +60,7 @@ def run(args: argparse.Namespace) -> int:
     app = make_app(chain, history, model=args.model, dist=args.dist, mean=args.mean,
                    spot=args.spot, asof=args.asof, rate=args.rate, div_yield=args.div_yield,
                    max_spread=args.max_spread, hedge_paths=args.paths, seed=args.seed,
+                   style=args.style, multiplier=args.multiplier,
                    universe=universe, workers=args.workers)
     app.run()
     return 0

@@ -5,7 +5,8 @@ from __future__ import annotations
 import argparse
 import sys
 
-from optbench.commands.common import (add_model_options, add_output_options, day_list,
+from optbench.commands.common import (add_contract_options, add_model_options,
+                                      add_output_options, contract_overrides, day_list,
                                       parse_float, whole_number, write_output)
 from optbench.errors import InputError
 from optbench.screening.rows import DEFAULT_MODEL
@@ -40,6 +41,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     parser.add_argument("--paths", type=whole_number(100), default=2000,
                         help="simulated paths per underlying (default: 2000)")
     add_model_options(parser, default_model=DEFAULT_MODEL)
+    add_contract_options(parser.add_argument_group("every underlying's options"))
     add_output_options(parser, formats=FORMATS)
     parser.set_defaults(run=run)
     return parser
@@ -72,7 +74,8 @@ def run(args: argparse.Namespace) -> int:
         result = screen(args.folder, tenors=args.tenors, floor=args.floor, model=args.model,
                         dist=args.dist, mean=args.mean, sort=args.sort,
                         descending=not args.ascending, workers=args.workers,
-                        scheduler=args.scheduler, n_paths=args.paths, progress=update)
+                        scheduler=args.scheduler, n_paths=args.paths, progress=update,
+                        overrides=contract_overrides(args))
     finally:
         if bar is not None:
             bar.stop()

@@ -42,8 +42,11 @@ class Settings:
     #: simulated paths behind the hedge's expected payoff (as ``optbench hedge --paths``)
     hedge_paths: int = 20000
     seed: int | None = 7
+    #: exercise style and contract multiplier of every option (None: the chain's)
+    style: str | None = None
+    multiplier: float | None = None
 
     def overrides(self) -> dict:
         """Market overrides for the loaders (only those the user set)."""
-        keys = ("spot", "asof", "rate", "div_yield", "max_spread")
+        keys = ("spot", "asof", "rate", "div_yield", "max_spread", "style", "multiplier")
         return {k: getattr(self, k) for k in keys if getattr(self, k) is not None}
