@@ -203,3 +203,11 @@ def test_a_multiplier_that_is_not_positive_is_a_one_line_error(bad, capsys):
     assert exc.value.code == 2
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and "--multiplier" in err
+
+
+def test_check_names_style_and_multiplier_sources(capsys):
+    assert main(["check", str(DEMO), "--format", "json", "--style", "american"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["sources"]["style"] == "caller" and doc["sources"]["multiplier"] == "file"
+    assert main(["check", str(DEMO), "--multiplier", "10"]) == 0
+    assert "multiplier 10 [caller]" in capsys.readouterr().out

@@ -126,3 +126,12 @@ def test_screen_reports_the_broken_member_in_its_own_row(universe, capsys):
                  "--paths", "500"]) == 0
     table = capsys.readouterr().out
     assert all(m.code in table for m, _ in members)
+
+
+def test_without_out_a_universe_goes_to_the_user_data_folder(tmp_path, monkeypatch, capsys):
+    from optbench.data import scenario
+    monkeypatch.setattr(scenario, "user_data_folder", lambda: tmp_path / "data")
+    assert main(["demo", "--universe", "3", "--seed", "0"]) == 0
+    target = tmp_path / "data" / "universes" / "3-seed0"
+    assert str(target) in capsys.readouterr().out
+    assert len([p for p in target.iterdir() if p.is_dir()]) == 3

@@ -107,7 +107,8 @@ def report_dict(chain, rows: int) -> dict:
         "asof": chain.asof.isoformat(), "spot": chain.spot, "rate": chain.rate,
         "div_yield": chain.div_yield,
         "sources": {"spot": chain.spot_source, "asof": chain.asof_source,
-                    "rate": chain.rate_source, "div_yield": chain.div_yield_source},
+                    "rate": chain.rate_source, "div_yield": chain.div_yield_source,
+                    "style": chain.style_source, "multiplier": chain.multiplier_source},
         "layout": chain.layout,
         "quality": chain.quality.as_dict(),
         "expiries": _expiries(chain),
@@ -130,6 +131,11 @@ def _table_text(chain, rows: int) -> str:
                   f"[{chain.spot_source}]  rate {100 * chain.rate:.2f}% [{chain.rate_source}]"
                   f"  div {100 * chain.div_yield:.2f}% [{chain.div_yield_source}]",
                   markup=False)
+    used = chain.quotes
+    styles = "/".join(sorted(map(str, used["style"].unique()))) or "–"
+    mults = "/".join(f"{m:g}" for m in sorted(used["multiplier"].unique())) or "–"
+    console.print(f"style {styles} [{chain.style_source}]  multiplier {mults} "
+                  f"[{chain.multiplier_source}]", markup=False)
     n_rej = sum(q.rejected.values())
     console.print(f"quotes read {q.rows_in}, used {q.rows_used}, rejected {n_rej}; "
                   f"{len(chain.expiries)} expiries")

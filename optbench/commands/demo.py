@@ -7,7 +7,7 @@ scenario folder each, for ``optbench screen``.
 
 Where it writes: ``--out FOLDER``; else, from a source checkout, the repository's
 ``chains/ZPHX`` (the bundled scenario); else (an installed copy) the user's data
-folder. A ``--out`` folder that already holds files needs ``--force``; then only the
+folder (a universe in a sub-folder named by its size and seed). A ``--out`` folder that already holds files needs ``--force``; then only the
 files optbench writes are replaced, everything else in the folder stays.
 """
 from __future__ import annotations
@@ -29,16 +29,19 @@ def checkout_folder() -> Path | None:
     return None if root is None else root / "chains" / DEMO_CODE
 
 
-def default_folder(universe: bool) -> Path:
+def default_folder(universe: int | None, seed: int | None) -> Path:
     """Where ``optbench demo`` writes without ``--out``: the checkout's
-    ``chains/ZPHX`` (scenario), else the user's data folder."""
+    ``chains/ZPHX`` (scenario), else the user's data folder; a universe goes to
+    ``universes/<N>-seed<seed>`` there, so universes of other sizes never mix."""
     from optbench.data.scenario import DEMO_CODE, user_data_folder
-    if not universe:
+    if universe is None:
         folder = checkout_folder()
         if folder is not None:
             return folder
         return user_data_folder() / "scenarios" / DEMO_CODE
-    return user_data_folder() / "universe"
+    from optbench.demo_universe import UNIVERSE_SEED
+    seed = UNIVERSE_SEED if seed is None else seed
+    return user_data_folder() / "universes" / f"{universe}-seed{seed}"
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
@@ -83,7 +86,8 @@ def run(args: argparse.Namespace) -> int:
         raise InputError("--universe", f"at most {MAX_UNIVERSE} underlyings, not "
                                        f"{args.universe}")
     universe = args.universe is not None
-    folder = Path(args.out) if args.out is not None else default_folder(universe)
+    folder = Path(args.out) if args.out is not None else default_folder(args.universe,
+                                                                         args.seed)
     check_target(folder, given=args.out is not None, force=args.force)
     try:
         payload = (_write_universe(folder, args) if universe
