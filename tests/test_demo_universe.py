@@ -99,7 +99,16 @@ def test_cli_json_lists_the_members_and_needs_force_for_a_full_folder(universe, 
                  "--format", "json"]) == 0
     doc = json.loads(capsys.readouterr().out)
     assert [m["code"] for m in doc["members"]] == [m.code for m, _ in members]
-    assert doc["invented"] is True
+    assert doc["invented"] is True and doc["other_scenarios"] == []
+
+
+def test_force_over_a_larger_universe_names_the_folders_left_behind(tmp_path, capsys):
+    folder = tmp_path / "u"
+    assert main(["demo", "--universe", "4", "--out", str(folder)]) == 0
+    assert main(["demo", "--universe", "2", "--seed", "5", "--out", str(folder),
+                 "--force"]) == 0
+    out = capsys.readouterr().out
+    assert "also holds 4 other scenario folder(s)" in out
 
 
 def test_cli_rejects_a_universe_too_large(tmp_path, capsys):

@@ -121,16 +121,26 @@ def _write_scenario(folder: Path, args: argparse.Namespace) -> str:
 def _write_universe(folder: Path, args: argparse.Namespace) -> str:
     from optbench import demo_universe
     seed = demo_universe.UNIVERSE_SEED if args.seed is None else args.seed
+    from optbench.screening.universe import is_scenario
     members = demo_universe.write_universe(folder, args.universe, seed=seed)
+    codes = {m.code for m in members}
+    # scenario folders already there (a --force over an earlier universe) stay, and
+    # `optbench screen` would include them: say so
+    others = sorted(p.name for p in folder.iterdir() if p.name not in codes and is_scenario(p))
     if args.format == "json":
         import json
         return json.dumps({"folder": str(folder), "seed": seed, "invented": True,
-                           "members": [m.to_dict() for m in members]}, indent=2)
+                           "members": [m.to_dict() for m in members],
+                           "other_scenarios": others}, indent=2)
     width = max(len(m.name) for m in members)
     lines = [f"wrote a sample universe of {len(members)} invented underlyings, seed {seed}, "
              f"into {folder}:"]
     for m in members:
         lines.append(f"  {m.code:<6} {m.name:<{width}}  {m.character:<10} {m.note}")
+    if others:
+        lines.append(f"note: {folder} also holds {len(others)} other scenario folder(s) "
+                     f"that a screen includes: {', '.join(others[:10])}"
+                     f"{' …' if len(others) > 10 else ''}")
     lines += [f"screen it with: optbench screen {folder}",
               "the data are invented: no real company, ticker or market event"]
     return "\n".join(lines)
