@@ -105,14 +105,49 @@ def test_cli_rejects_a_bad_seed_in_one_line(capsys):
     assert len(err.splitlines()) == 1 and "--seed" in err
 
 
-def test_cli_needs_out_outside_a_checkout(monkeypatch, capsys):
+def test_cli_writes_to_the_user_data_folder_outside_a_checkout(monkeypatch, tmp_path, capsys):
+    """An installed copy has no chains/ZPHX to regenerate: without --out, `optbench
+    demo` writes into the user's data folder (platformdirs) and says where."""
     from optbench.cli import main
     from optbench.commands import demo as demo_command
+    from optbench.data import scenario
     assert demo_command.checkout_folder() == FOLDER      # running from this checkout
     monkeypatch.setattr(demo_command, "checkout_folder", lambda: None)
-    assert main(["demo"]) == 2
+    monkeypatch.setattr(scenario, "user_data_folder", lambda: tmp_path / "data")
+    assert main(["demo"]) == 0
+    target = tmp_path / "data" / "scenarios" / "ZPHX"
+    assert str(target) in capsys.readouterr().out
+    for name in ("chain.csv", "history.csv", "meta.toml"):
+        assert (target / name).read_bytes() == (FOLDER / name).read_bytes()
+    assert main(["demo"]) == 0                           # optbench's own folder: rewritten
+
+
+def test_cli_refuses_a_non_empty_out_folder_without_force(tmp_path, capsys):
+    from optbench.cli import main
+    folder = tmp_path / "mine"
+    folder.mkdir()
+    (folder / "chain.csv").write_text("my own chain\n")
+    assert main(["demo", "--out", str(folder)]) == 2
     err = capsys.readouterr().err.strip()
-    assert len(err.splitlines()) == 1 and "--out" in err
+    assert len(err.splitlines()) == 1 and "--force" in err and str(folder) in err
+    assert (folder / "chain.csv").read_text() == "my own chain\n"     # untouched
+    (folder / "notes.txt").write_text("keep me")
+    assert main(["demo", "--out", str(folder), "--force"]) == 0
+    assert (folder / "chain.csv").read_bytes() == (FOLDER / "chain.csv").read_bytes()
+    assert (folder / "notes.txt").read_text() == "keep me"  # other files stay
+
+
+def test_an_empty_out_folder_needs_no_force(tmp_path):
+    from optbench.cli import main
+    (tmp_path / "empty").mkdir()
+    assert main(["demo", "--out", str(tmp_path / "empty")]) == 0
+
+
+def test_bundled_demo_is_the_checkout_folder_here():
+    from optbench.data.scenario import bundled_demo, packaged_demo
+    assert bundled_demo() == FOLDER
+    # an installed package keeps its copy inside optbench/ (setup.py copies it there)
+    assert packaged_demo().parts[-3:] == ("optbench", "scenarios", "ZPHX")
 
 
 def test_cli_refuses_to_write_over_a_file(tmp_path, capsys):

@@ -204,7 +204,8 @@ def _interp_at_forward(k: np.ndarray, v: np.ndarray) -> float:
 def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
             mean: str = "constant", spot: float | None = None,
             asof: _dt.date | str | None = None, rate: float | None = None,
-            div_yield: float | None = None, band: tuple[float, float] = DEFAULT_BAND,
+            div_yield: float | None = None, style: str | None = None,
+            multiplier: float | None = None, band: tuple[float, float] = DEFAULT_BAND,
             n_paths: int = DEFAULT_N_PATHS, seed: int | None = DEFAULT_SEED,
             backtest: bool | _dt.date | str = False, fit=None,
             expiries: Sequence[_dt.date] | None = None,
@@ -221,6 +222,8 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     model, dist, mean : the volatility model (as ``optbench fit``): ``garch``, ``gjr``,
         ``egarch`` or ``auto`` (lowest BIC); ``normal`` or ``t``; ``constant`` or ``zero``.
     spot, asof, rate, div_yield : market overrides (decimals for rate and yield).
+    style, multiplier : exercise style (``european``/``american``) and contract
+        multiplier of every option, in place of the file's columns and meta.toml.
     band : quantile levels of the forecast band (default 5 % and 95 %).
     n_paths, seed : simulation behind ``prob_realized_above_iv`` and the hedge.
     backtest : False (default), True (out-of-sample check over the last 252 returns)
@@ -262,7 +265,8 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         raise InputError("--paths", f"need at least 100 simulated paths, not {n_paths}")
     floor = _floor(floor)
     overrides = {k: v for k, v in (("spot", spot), ("asof", asof), ("rate", rate),
-                                   ("div_yield", div_yield)) if v is not None}
+                                   ("div_yield", div_yield), ("style", style),
+                                   ("multiplier", multiplier)) if v is not None}
     say("loading the chain and the history")
     ch, hist, holidays, source = _load(chain, history, overrides)
     warnings: list[str] = list(getattr(ch, "notes", ()))
@@ -471,7 +475,8 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         n_paths=int(n_paths), seed=seed, rejected=ch.rejected,
         warnings=tuple(warnings), caution=CAUTION, fit=fit,
         sources={name: getattr(ch, f"{name}_source", "file")
-                 for name in ("spot", "asof", "rate", "div_yield")},
+                 for name in ("spot", "asof", "rate", "div_yield", "style",
+                              "multiplier")},
         drift=drift_choice, floor=floor,
         protection_rule=PROTECTION_RULE.format(floor=floor, low=lo_level, high=hi_level,
                                                drift=drift_choice.text))

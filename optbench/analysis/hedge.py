@@ -349,7 +349,10 @@ def hedge_from_comparison(comparison, request: HedgeRequest, *, n_paths: int = 2
         scenarios=scenarios, annual_roll_cost=roll, annual_roll_cost_pct=roll / V,
         roll_method=roll_method, collar_note=note, model=model, n_paths=int(n_paths),
         seed=seed, warnings=tuple(warnings) + tuple(comparison.warnings), caution=CAUTION,
-        drift=choice.to_dict())
+        drift=choice.to_dict(),
+        style=str(getattr(comparison, "style", "european")),
+        sources=dict(getattr(comparison, "sources", {}) or {})
+        | ({"multiplier": "caller"} if request.multiplier else {}))
 
 
 def _drift_of(comparison) -> DriftChoice:

@@ -617,6 +617,10 @@ class HedgeEstimate:
     caution : :data:`CAUTION`.
     drift : the drift of the simulated terminal prices, as the comparison's
         (``{"rule", "annual", "excess_return", "source", "text"}``).
+    style : exercise style of the quotes the legs were priced from.
+    sources : where spot, as-of date, rate, dividend yield, style and multiplier came
+        from (as :attr:`Comparison.sources`; the multiplier is ``caller`` when the
+        request sets it).
     """
 
     request: HedgeRequest
@@ -655,6 +659,8 @@ class HedgeEstimate:
     warnings: tuple[str, ...] = ()
     caution: str = CAUTION
     drift: dict = field(default_factory=dict)
+    style: str = "european"
+    sources: dict = field(default_factory=dict)
 
     def scenario_frame(self) -> pd.DataFrame:
         return pd.DataFrame(list(self.scenarios))

@@ -34,10 +34,6 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     parser.add_argument("chain", metavar="CHAIN", help="chain file or scenario folder")
     add_output_options(parser)
     add_market_overrides(parser)
-    parser.add_argument("--style", choices=("european", "american"),
-                        help="exercise style of every option (default: file, meta, european)")
-    parser.add_argument("--multiplier", type=parse_positive,
-                        help="contract multiplier of every option (default: file, meta, 100)")
     parser.add_argument("--max-spread", dest="max_spread", type=parse_positive, default=None,
                         help="largest accepted (ask-bid)/mid, a decimal (default 1.0 = 100%%)")
     parser.add_argument("--any-spread", dest="any_spread", action="store_true",
@@ -53,9 +49,6 @@ def _load(args):
     from optbench.data.scenario import read_meta
     path = Path(args.chain)
     kwargs = market_overrides(args)
-    for key in ("style", "multiplier"):
-        if getattr(args, key, None) is not None:
-            kwargs[key] = getattr(args, key)
     kwargs["max_spread"] = None if args.any_spread else (
         args.max_spread if args.max_spread is not None else DEFAULT_MAX_SPREAD)
     folder = path if path.is_dir() else path.parent
@@ -114,7 +107,8 @@ def report_dict(chain, rows: int) -> dict:
         "asof": chain.asof.isoformat(), "spot": chain.spot, "rate": chain.rate,
         "div_yield": chain.div_yield,
         "sources": {"spot": chain.spot_source, "asof": chain.asof_source,
-                    "rate": chain.rate_source, "div_yield": chain.div_yield_source},
+                    "rate": chain.rate_source, "div_yield": chain.div_yield_source,
+                    "style": chain.style_source, "multiplier": chain.multiplier_source},
         "layout": chain.layout,
         "quality": chain.quality.as_dict(),
         "expiries": _expiries(chain),
@@ -137,6 +131,11 @@ def _table_text(chain, rows: int) -> str:
                   f"[{chain.spot_source}]  rate {100 * chain.rate:.2f}% [{chain.rate_source}]"
                   f"  div {100 * chain.div_yield:.2f}% [{chain.div_yield_source}]",
                   markup=False)
+    used = chain.quotes
+    styles = "/".join(sorted(map(str, used["style"].unique()))) or "–"
+    mults = "/".join(f"{m:g}" for m in sorted(used["multiplier"].unique())) or "–"
+    console.print(f"style {styles} [{chain.style_source}]  multiplier {mults} "
+                  f"[{chain.multiplier_source}]", markup=False)
     n_rej = sum(q.rejected.values())
     console.print(f"quotes read {q.rows_in}, used {q.rows_used}, rejected {n_rej}; "
                   f"{len(chain.expiries)} expiries")

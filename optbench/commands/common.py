@@ -90,12 +90,31 @@ def add_market_overrides(parser: argparse.ArgumentParser) -> None:
                        help="risk-free rate, continuously compounded decimal (0.04 = 4%%)")
     group.add_argument("--div-yield", dest="div_yield", type=parse_float,
                        help="dividend yield, continuously compounded decimal")
+    add_contract_options(group)
+
+
+def add_contract_options(group) -> None:
+    """``--style`` and ``--multiplier``: the same for every option of the chain(s)."""
+    group.add_argument("--style", choices=("european", "american"), default=None,
+                       help="exercise style of every option (default: the chain file's "
+                            "column, else meta.toml, else european)")
+    group.add_argument("--multiplier", type=parse_positive, default=None,
+                       help="contract multiplier of every option (default: the chain "
+                            "file's column, else meta.toml, else 100)")
+
+
+def contract_overrides(args: argparse.Namespace) -> dict:
+    """``--style`` and ``--multiplier`` as the user gave them, for the loaders."""
+    keys = ("style", "multiplier")
+    return {k: getattr(args, k) for k in keys if getattr(args, k, None) is not None}
 
 
 def market_overrides(args: argparse.Namespace) -> dict:
-    """The overrides the user gave, as keyword arguments for the loaders."""
+    """The overrides the user gave (market inputs, style and multiplier), as keyword
+    arguments for the loaders."""
     keys = ("spot", "asof", "rate", "div_yield")
-    return {k: getattr(args, k) for k in keys if getattr(args, k, None) is not None}
+    return ({k: getattr(args, k) for k in keys if getattr(args, k, None) is not None}
+            | contract_overrides(args))
 
 
 def add_model_options(parser: argparse.ArgumentParser, default_model: str = "auto") -> None:

@@ -37,7 +37,7 @@ def add_chain_arguments(parser: argparse.ArgumentParser) -> None:
     """CHAIN (file or scenario folder; default the bundled demo) and --history."""
     parser.add_argument("chain", metavar="CHAIN", nargs="?", default=None,
                         help="option chain file (CSV/Parquet) or scenario folder "
-                             "(default: the bundled demo scenario chains/ZPHX)")
+                             "(default: the bundled demo scenario ZPHX)")
     parser.add_argument("--history", metavar="FILE", default=None,
                         help="price history CSV (date, close); optional when CHAIN's "
                              "folder holds history.csv")
@@ -52,13 +52,12 @@ def add_chain_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def chain_source(args: argparse.Namespace) -> str | Path:
+    """CHAIN as given, else the bundled demo scenario (the checkout's ``chains/ZPHX``
+    or the copy inside the installed package)."""
     if args.chain is not None:
         return args.chain
-    from optbench.commands.demo import checkout_folder
-    folder = checkout_folder()
-    if folder is None or not folder.is_dir():
-        raise InputError("CHAIN", "give an option chain file or scenario folder")
-    return folder
+    from optbench.data.scenario import bundled_demo
+    return bundled_demo()
 
 
 def progress_printer():

@@ -47,8 +47,6 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     h.add_argument("--call-strike", dest="call_strike", default=None,
                    help="collar: sold call strike (default: the listed call giving a "
                         "net premium nearest zero)")
-    h.add_argument("--multiplier", default=None,
-                   help="contract multiplier (default: the chain's, usually 100)")
     parser.add_argument("--table", choices=("summary", "legs", "scenarios"),
                         default="summary", help="which table CSV writes (default: summary)")
     add_output_options(parser, formats=FORMATS)

@@ -2,7 +2,8 @@
 
 Takes the same chain, history, market, model and simulation options as
 ``optbench compare``, plus the quote filter ``--max-spread``. ``optbench`` with no
-arguments runs ``open`` with no CHAIN, which opens the bundled demo ``chains/ZPHX``.
+arguments runs ``open`` with no CHAIN, which opens the bundled demo scenario (the
+checkout's ``chains/ZPHX``, or the copy shipped inside an installed package).
 """
 from __future__ import annotations
 
@@ -36,17 +37,20 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
 
 
 def run(args: argparse.Namespace) -> int:
-    from optbench.tui import session
     universe = None
     if args.universe:
         from optbench.screening.universe import find_scenarios
         universe = Path(args.universe)
         scenarios = find_scenarios(universe)          # one-line error if none
-    chain = Path(args.chain) if args.chain else (scenarios[0] if universe is not None
-                                                 else session.demo_scenario())
+    if args.chain:
+        chain = Path(args.chain)
+    elif universe is not None:
+        chain = scenarios[0]
+    else:
+        from optbench.data.scenario import bundled_demo
+        chain = bundled_demo()            # the checkout's chains/ZPHX or the packaged copy
     if not chain.exists():
-        raise InputError(chain, "no such file or folder" if args.chain else
-                         "the bundled demo scenario is missing; run `optbench demo`")
+        raise InputError(chain, "no such file or folder")
     history = Path(args.history) if args.history else None
     if history is not None and not history.is_file():
         raise InputError(history, "no such file")
@@ -56,6 +60,7 @@ def run(args: argparse.Namespace) -> int:
     app = make_app(chain, history, model=args.model, dist=args.dist, mean=args.mean,
                    spot=args.spot, asof=args.asof, rate=args.rate, div_yield=args.div_yield,
                    max_spread=args.max_spread, hedge_paths=args.paths, seed=args.seed,
+                   style=args.style, multiplier=args.multiplier,
                    universe=universe, workers=args.workers)
     app.run()
     return 0

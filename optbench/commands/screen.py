@@ -5,8 +5,9 @@ from __future__ import annotations
 import argparse
 import sys
 
-from optbench.commands.common import (add_drift_options, add_model_options,
-                                      add_output_options, day_list, drift_options,
+from optbench.commands.common import (add_contract_options, add_drift_options,
+                                      add_model_options, add_output_options,
+                                      contract_overrides, day_list, drift_options,
                                       parse_float, whole_number, write_output)
 from optbench.errors import InputError
 from optbench.screening.rows import DEFAULT_MODEL
@@ -42,6 +43,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                         help="simulated paths per underlying (default: 2000)")
     add_model_options(parser, default_model=DEFAULT_MODEL)
     add_drift_options(parser)
+    add_contract_options(parser.add_argument_group("every underlying's options"))
     add_output_options(parser, formats=FORMATS)
     parser.set_defaults(run=run)
     return parser
@@ -75,7 +77,7 @@ def run(args: argparse.Namespace) -> int:
                         dist=args.dist, mean=args.mean, sort=args.sort,
                         descending=not args.ascending, workers=args.workers,
                         scheduler=args.scheduler, n_paths=args.paths, progress=update,
-                        **drift_options(args))
+                         overrides=contract_overrides(args), **drift_options(args))
     finally:
         if bar is not None:
             bar.stop()

@@ -90,6 +90,9 @@ class OptionChain:
     spot_source, asof_source, rate_source, div_yield_source : str
         Where each market input came from: ``caller``, ``file``, ``meta`` or
         ``default``.
+    style_source, multiplier_source : str
+        The same for the exercise style and the contract multiplier; ``file+meta``
+        (or ``file+default``) when the file's column is blank on some rows.
     layout : str
         ``long`` or ``wide``.
     notes : tuple of str
@@ -111,6 +114,8 @@ class OptionChain:
     rate_source: str = "default"
     div_yield_source: str = "default"
     layout: str = "long"
+    style_source: str = "default"
+    multiplier_source: str = "default"
     notes: tuple = field(default_factory=tuple)
 
     @property
@@ -236,6 +241,18 @@ def _flag_words(prefix: str, suffix: str, flags) -> np.ndarray:
         words[m] = np.where(words[m] == "", name, words[m] + ", " + name)
     out[anyf] = prefix + words + suffix
     return out
+
+
+def _column_source(column, in_meta: bool) -> str:
+    """Where a per-row input came from: ``file`` (the column, on every row), ``meta``
+    or ``default`` (no column), ``file+meta``/``file+default`` (blank on some rows)."""
+    fallback = "meta" if in_meta else "default"
+    if column is None:
+        return fallback
+    has = present(column)
+    if not has.any():
+        return fallback
+    return "file" if has.all() else f"file+{fallback}"
 
 
 def load_chain(path: str | Path, *, spot: float | None = None,
@@ -392,7 +409,9 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     if style is not None:
         row_style = np.full(n, style_word(style, "--style"), dtype=object)
         bad_style = np.zeros(n, bool)
+        style_source = "caller"
     else:
+        style_source = _column_source(col("style"), "style" in meta)
         default_style = style_word(meta.get("style"), "meta style") or "european"
         if col("style") is not None:
             st = to_style(col("style")).to_numpy(dtype=object)
@@ -407,7 +426,9 @@ def load_chain(path: str | Path, *, spot: float | None = None,
             raise InputError("--multiplier", f"must be a positive number, not {multiplier}")
         mult = np.full(n, float(multiplier))
         bad_mult = np.zeros(n, bool)
+        multiplier_source = "caller"
     else:
+        multiplier_source = _column_source(col("multiplier"), "multiplier" in meta)
         try:
             default_mult = float(meta.get("multiplier", DEFAULT_MULTIPLIER))
         except (TypeError, ValueError):
@@ -605,4 +626,5 @@ def load_chain(path: str | Path, *, spot: float | None = None,
                        quotes=quotes, rejected=rejected, quality=quality, holidays=hol,
                        spot_source=spot_source, asof_source=asof_source,
                        rate_source=rate_source, div_yield_source=q_source,
-                       layout="wide" if wide else "long", notes=tuple(notes))
+                       layout="wide" if wide else "long", notes=tuple(notes),
+                       style_source=style_source, multiplier_source=multiplier_source)

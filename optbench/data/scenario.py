@@ -138,3 +138,48 @@ def load_scenario(path: str | Path, **overrides) -> Scenario:
     name = str(meta.get("name") or code)
     return Scenario(path=chain_path.parent, name=name, code=code, chain=chain,
                     history=history, meta=meta, holidays=chain.holidays)
+
+
+# ---------------------------------------------------------------- the bundled demo
+#: code of the bundled demo scenario (the invented Zephyr Composite Index)
+DEMO_CODE = "ZPHX"
+
+
+def checkout_root() -> Path | None:
+    """The source checkout optbench runs from (editable install or ``python -m``),
+    or None for an installed copy."""
+    root = Path(__file__).resolve().parents[2]
+    if (root / "pyproject.toml").is_file() and (root / "optbench").is_dir():
+        return root
+    return None
+
+
+def packaged_demo() -> Path:
+    """Where an installed optbench keeps its copy of the demo scenario:
+    ``optbench/scenarios/ZPHX`` inside the package (the build copies ``chains/ZPHX``
+    there; see ``setup.py``)."""
+    return Path(__file__).resolve().parents[1] / "scenarios" / DEMO_CODE
+
+
+def bundled_demo() -> Path:
+    """The bundled demo scenario folder that commands open when given no chain.
+
+    ``chains/ZPHX`` of the checkout optbench runs from, else the copy shipped inside
+    the installed package. Raises :class:`InputError` when neither holds a chain
+    (a damaged installation), naming both places.
+    """
+    root = checkout_root()
+    candidates = ([root / "chains" / DEMO_CODE] if root is not None else []) + [packaged_demo()]
+    for folder in candidates:
+        if folder.is_dir() and any((folder / n).is_file()
+                                   for n in ("chain.csv", "chain.parquet")):
+            return folder
+    raise InputError(candidates[0], "the bundled demo scenario is missing; write one with "
+                                    "`optbench demo --out FOLDER` and open that folder")
+
+
+def user_data_folder() -> Path:
+    """optbench's folder in the user's data directory (``platformdirs``), where
+    ``optbench demo`` writes when optbench is not running from a checkout."""
+    from platformdirs import user_data_path
+    return user_data_path("optbench", appauthor=False)

@@ -22,6 +22,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from optbench.report.provenance import inputs_line
+
 _TRIGGERS = ("=", "+", "-", "@", "\t", "\r")
 _NEGATIVE_NUMBER = re.compile(r"-(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?")
 
@@ -76,7 +78,7 @@ def _comment(title: str, result) -> str:
     name = model.name if hasattr(model, "name") else (model or {}).get("name", "")
     dist = model.dist if hasattr(model, "dist") else (model or {}).get("dist", "")
     return (f"optbench {title} | {result.underlying} | as of {result.asof.isoformat()} | "
-            f"model {name}/{dist} | {result.caution}")
+            f"model {name}/{dist} | {inputs_line(result)} | {result.caution}")
 
 
 def comparison_csv(comparison, table: str = "expiries") -> str:

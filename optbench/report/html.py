@@ -28,6 +28,7 @@ import numpy as np
 from optbench.report.fields import (EXPIRY_BRIEF, HEDGE_FIELDS, KINDS, LABELS, LEG_FIELDS,
                                     PROTECTION_BRIEF,
                                     SCENARIO_FIELDS, fmt)
+from optbench.report.provenance import inputs_line
 
 _CSS = """
 body{font-family:system-ui,sans-serif;margin:2em;max-width:1200px;color:#1d2330}
@@ -210,6 +211,7 @@ def comparison_html(comparison, *, figures: bool = True) -> str:
              f"{100 * c.rate:.2f}% · dividend yield {100 * c.div_yield:.2f}% · {e(c.style)}"
              f" · model {e(m.name)} ({e(m.dist)} innovations, {e(m.mean)} mean), "
              f"{c.n_paths:,} simulated paths</p>",
+             f"<p>{e(inputs_line(c))}</p>",
              f'<p class="caution">{e(c.caution)}</p>',
              "<h2>Per expiry</h2>", _table([r.to_dict() for r in c.expiries], EXPIRY_BRIEF),
              f"<p>Verdict rule: {e(c.verdict_rule)}.</p>",
@@ -242,6 +244,7 @@ def hedge_html(estimate) -> str:
              f"<p>As of <b>{h.asof.isoformat()}</b> · spot {h.spot:,.2f} · portfolio "
              f"{h.request.portfolio_value:,.0f} · ratio {h.request.exposure_ratio:g} · floor "
              f"{100 * h.request.floor:.0f}%</p>",
+             f"<p>{e(inputs_line(h))}</p>",
              f'<p class="caution">{e(h.caution)}</p>',
              f"<table>{rows}</table>",
              "<h2>Legs</h2>", _table([leg.to_dict() for leg in h.legs],

@@ -9,6 +9,7 @@ from collections.abc import Sequence
 
 from optbench.report.fields import (EXPIRY_BRIEF, HEDGE_FIELDS, KINDS, LABELS, LEG_FIELDS,
                                     PROTECTION_BRIEF, SCENARIO_FIELDS, STRIKE_BRIEF, fmt)
+from optbench.report.provenance import inputs_line
 
 
 def _esc(text: str) -> str:
@@ -31,6 +32,8 @@ def comparison_markdown(comparison, *, strikes_for=None) -> str:
              "",
              f"As of **{c.asof.isoformat()}** · spot {c.spot:,.2f} · rate {100 * c.rate:.2f}% · "
              f"dividend yield {100 * c.div_yield:.2f}% · {c.style} · multiplier {c.multiplier:g}",
+             "",
+             inputs_line(c),
              "",
              f"Model: **{m.name}** with {m.dist} innovations, {m.mean} mean "
              f"(log-likelihood {m.loglik:,.1f}, persistence {m.persistence:.4f}, "
@@ -71,6 +74,8 @@ def hedge_markdown(estimate) -> str:
              f"As of **{e.asof.isoformat()}** · spot {e.spot:,.2f} · portfolio "
              f"{e.request.portfolio_value:,.0f} · ratio {e.request.exposure_ratio:g} · "
              f"floor {100 * e.request.floor:.0f}%",
+             "",
+             inputs_line(e),
              "",
              "| Item | Value |", "|:---|---:|"]
     lines += [f"| {label} | {_esc(fmt(summary[k], kind))} |" for k, label, kind in HEDGE_FIELDS]

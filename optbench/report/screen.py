@@ -16,7 +16,8 @@ SCREEN_KINDS = {
     "floor": "pct", "put_strike": "price", "protection_cost": "money",
     "protection_expected_payoff": "money", "protection_overpay": "money",
     "protection_cost_pct_annual": "pct", "model": "text", "fallback_reason": "text",
-    "rows_in": "int", "rows_used": "int", "error": "text", "folder": "text",
+    "rows_in": "int", "rows_used": "int", "spot": "price", "asof": "date", "style": "text",
+    "multiplier": "num", "sources": "text", "error": "text", "folder": "text",
     "floor_put_verdict": "text", "put25_verdict": "text", "drift_rule": "text",
     "drift_annual": "pct",
 }
@@ -46,6 +47,24 @@ def _comment(result) -> str:
             f"{' (descending)' if result.descending else ''}; protection: put at "
             f"{result.floor:.0%} of spot per {result.notional:,.0f} notional. "
             f"{result.caution}")
+
+
+def inputs_note(rows) -> str:
+    """One line: the style, multiplier and input sources the screened underlyings
+    used, each distinct combination with the codes that used it."""
+    groups: dict[str, list[str]] = {}
+    for r in rows:
+        if r.get("style") is None:
+            continue
+        key = f"{r['style']}, multiplier {r['multiplier']:g} ({r.get('sources') or ''})"
+        codes = groups.setdefault(key, [])
+        if r["code"] not in codes:
+            codes.append(r["code"])
+    if not groups:
+        return "Inputs: none screened."
+    if len(groups) == 1:
+        return f"Inputs of every underlying: {next(iter(groups))}."
+    return "Inputs: " + "; ".join(f"{', '.join(codes)}: {key}" for key, codes in groups.items()) + "."
 
 
 def screen_json(result) -> str:
@@ -148,5 +167,6 @@ def screen_table(result, *, width: int | None = None, color: bool = False) -> st
             + " (risk-free = r - q, no expected excess return).")
     for f in result.failures:
         notes.append(f"Could not screen {f['code']}: {f['reason']}")
+    notes.append(inputs_note(result.rows))
     notes.append(result.caution)
     return _render([table, *notes], width=width, color=color)

@@ -8,6 +8,7 @@ import io
 
 from optbench.report.fields import (EXPIRY_BRIEF, HEDGE_FIELDS, KINDS, LABELS, LEG_FIELDS,
                                     PROTECTION_BRIEF, SCENARIO_FIELDS, STRIKE_BRIEF, fmt)
+from optbench.report.provenance import inputs_line
 
 _VERDICT_STYLE = {"rich": "bold red", "cheap": "bold green", "fair": "", "n/a": "dim"}
 
@@ -72,6 +73,7 @@ def comparison_table(comparison, *, strikes_for=None, width: int | None = None,
     m = c.model
     parts = [f"{c.underlying}  as of {c.asof.isoformat()}  spot {c.spot:,.2f}  "
              f"rate {100 * c.rate:.2f}%  div {100 * c.div_yield:.2f}%  {c.style}",
+             inputs_line(c),
              f"model {m.name}/{m.dist} (mean {m.mean}), persistence {m.persistence:.4f}, "
              f"long-run vol {100 * m.long_run_vol:.2f}%, {c.n_paths:,} simulated paths",
              _table("Implied against forecast (vols and probabilities in %, differences in vol points)",
@@ -111,6 +113,7 @@ def hedge_table(estimate, *, width: int | None = None, color: bool = False) -> s
         summary.add_row(label, fmt(s[k], kind))
     parts = [f"{e.underlying}  as of {e.asof.isoformat()}  spot {e.spot:,.2f}  "
              f"ratio {e.request.exposure_ratio:g}  floor {100 * e.request.floor:.0f}%",
+             inputs_line(e),
              summary,
              _table("Legs", [leg.to_dict() for leg in e.legs],
                     [f for f, _, _ in LEG_FIELDS if f not in ("expiry", "bid", "ask")]),

@@ -19,9 +19,10 @@ import pandas as pd
 
 from optbench.report.csv import neutralise
 from optbench.report.fields import EXCEL_FORMATS, KINDS
+from optbench.report.provenance import inputs_line
 
 #: rows of the header block before the table's header row
-HEADER_ROWS = 9
+HEADER_ROWS = 10
 
 
 def _value(v: Any) -> Any:
@@ -52,7 +53,7 @@ def _header(ws, title: str, result, model_text: str) -> None:
     rows = [("underlying", result.underlying), ("asof", result.asof),
             ("spot", float(result.spot)), ("rate", float(result.rate)),
             ("div_yield", float(result.div_yield)), ("model", model_text),
-            ("caution", result.caution)]
+            ("caution", result.caution), ("inputs", inputs_line(result))]
     for key, value in rows:
         ws.append([key, _value(value)])
     ws["B3"].number_format = "yyyy-mm-dd"

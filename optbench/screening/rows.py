@@ -29,7 +29,8 @@ COLUMNS = (
     "atm_iv", "forecast_vol", "forecast_low", "forecast_high", "iv_minus_forecast",
     "iv_forecast_ratio", "verdict", "floor", "put_strike", "protection_cost",
     "protection_expected_payoff", "protection_overpay", "protection_cost_pct_annual",
-    "model", "fallback_reason", "rows_in", "rows_used", "error", "folder",
+    "model", "fallback_reason", "rows_in", "rows_used", "spot", "asof", "style",
+    "multiplier", "sources", "error", "folder",
     "floor_put_verdict", "put25_verdict", "drift_rule", "drift_annual",
 )
 
@@ -89,6 +90,7 @@ def screen_one(task: ScreenTask) -> list[dict]:
     from optbench.analysis.hedge import hedge_from_comparison
     from optbench.analysis.results import HedgeRequest
     from optbench.data.scenario import load_scenario
+    from optbench.report.provenance import sources_text
 
     scenario = load_scenario(task.folder, **task.overrides)
     listed = nearest_expiries(scenario.chain.quotes, task.tenors)
@@ -132,6 +134,9 @@ def screen_one(task: ScreenTask) -> list[dict]:
             "model": f"{model.name}/{model.dist}", "fallback_reason": model.fallback_reason,
             "rows_in": comparison.quality["rows_in"],
             "rows_used": comparison.quality["rows_used"],
+            "spot": _num(comparison.spot), "asof": comparison.asof.isoformat(),
+            "style": comparison.style, "multiplier": _num(comparison.multiplier),
+            "sources": sources_text(comparison.sources),
             "error": error, "folder": task.folder,
             "floor_put_verdict": row.floor_put_verdict, "put25_verdict": row.put25_verdict,
             "drift_rule": comparison.drift.rule,

@@ -403,7 +403,8 @@ def make_app(scenario_path: str | Path | None = None, history: str | Path | None
              spot: float | None = None, asof=None, rate: float | None = None,
              div_yield: float | None = None, max_spread: float | None = None,
              hedge_paths: int | None = None, seed: int | None = 7,
-             universe: str | Path | None = None, workers: int | None = None) -> Workbench:
+             universe: str | Path | None = None, workers: int | None = None,
+             style: str | None = None, multiplier: float | None = None) -> Workbench:
     """The workbench on a chain file or scenario folder (default: the bundled demo).
 
     Parameters
@@ -417,11 +418,14 @@ def make_app(scenario_path: str | Path | None = None, history: str | Path | None
         seed 7, as ``optbench hedge``).
     universe, workers : a folder of scenario folders to screen (the universe screen,
         key u, opens on start) and its local worker processes (default: the cores).
+    style, multiplier : exercise style and contract multiplier of every option
+        (default: the chain file's columns, else meta.toml, else european and 100).
     """
     chain = Path(scenario_path) if scenario_path is not None else session.demo_scenario()
     source = OpenRequest(chain=chain, history=Path(history) if history is not None else None)
     settings = Settings(model=model, dist=dist, mean=mean, spot=spot, asof=asof, rate=rate,
                         div_yield=div_yield, max_spread=max_spread,
-                        hedge_paths=int(hedge_paths or session.N_PATHS), seed=seed)
+                        hedge_paths=int(hedge_paths or session.N_PATHS), seed=seed,
+                        style=style, multiplier=multiplier)
     return Workbench(session.Inputs(source=source, settings=settings), universe=universe,
                      workers=workers)

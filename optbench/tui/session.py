@@ -24,10 +24,10 @@ HEADLINE = {"days": 91, "floor": 0.90, "structure": "put", "portfolio_value": 10
 
 
 def demo_scenario() -> Path:
-    """The bundled demo scenario folder, ``chains/ZPHX`` of the checkout."""
-    from optbench.commands.demo import checkout_folder
-    folder = checkout_folder()
-    return folder if folder is not None else Path.cwd() / "chains" / "ZPHX"
+    """The bundled demo scenario folder: the checkout's ``chains/ZPHX``, or the copy
+    shipped inside an installed package."""
+    from optbench.data.scenario import bundled_demo
+    return bundled_demo()
 
 
 @dataclass(frozen=True)

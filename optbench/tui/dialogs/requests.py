@@ -46,8 +46,11 @@ class Settings:
     drift: str = "risk-free"
     #: expected excess return a year (decimal); None = the scenario's meta.toml, else 0
     excess_return: float | None = None
+    #: exercise style and contract multiplier of every option (None: the chain's)
+    style: str | None = None
+    multiplier: float | None = None
 
     def overrides(self) -> dict:
         """Market overrides for the loaders (only those the user set)."""
-        keys = ("spot", "asof", "rate", "div_yield", "max_spread")
+        keys = ("spot", "asof", "rate", "div_yield", "max_spread", "style", "multiplier")
         return {k: getattr(self, k) for k in keys if getattr(self, k) is not None}
