@@ -193,10 +193,10 @@ def track_record(history, iv_sources, *, underlying: str = "", holidays=(),
     tenors = np.unique(o["tenor"].to_numpy())
     checked_per = o.groupby("tenor")["checked"].sum()
     if int(checked_per.max()) == 0:
-        raise InputError(name, f"no tenor can be checked: every expiry lies after the price "
-                               f"history's last date {history.dates[-1]} (the longest "
-                               f"usable tenor is shorter than the time the history runs "
-                               f"past the implied-vol dates)")
+        first_exp = pd.Timestamp(o["expiry"].min()).date()
+        raise InputError(name, f"no tenor can be checked: the price history ends "
+                               f"{history.dates[-1]}, before the earliest expiry "
+                               f"{first_exp} (tenors longer than the history can check)")
     if int(checked_per.max()) < min_checked:
         raise InputError(name, f"too few dates for a track record: at most "
                                f"{int(checked_per.max())} checked observations in a tenor, "
