@@ -46,13 +46,12 @@ def newey_west_cov(X: np.ndarray, resid: np.ndarray, lags: int) -> np.ndarray:
 
     Notes
     -----
-    :math:`\\hat V = \\tfrac{n}{n-k} (X'X)^{-1} \\hat S (X'X)^{-1}` with
+    :math:`\\hat V = (X'X)^{-1} \\hat S (X'X)^{-1}` with
     :math:`\\hat S = \\Gamma_0 + \\sum_{l=1}^{L} (1 - \\tfrac{l}{L+1})
     (\\Gamma_l + \\Gamma_l')`, :math:`\\Gamma_l = \\sum_{t>l} x_t u_t u_{t-l} x_{t-l}'`
     (Bartlett weights; Newey & West, "A simple, positive semi-definite,
     heteroskedasticity and autocorrelation consistent covariance matrix",
-    *Econometrica* 55, 1987). The factor n/(n−k) is the usual small-sample
-    correction (statsmodels applies it by default).
+    *Econometrica* 55, 1987), without a small-sample degrees-of-freedom factor.
     """
     X = np.asarray(X, float)
     u = np.asarray(resid, float)
@@ -63,7 +62,7 @@ def newey_west_cov(X: np.ndarray, resid: np.ndarray, lags: int) -> np.ndarray:
         gamma = g[lag:].T @ g[:-lag]
         S += (1.0 - lag / (lags + 1.0)) * (gamma + gamma.T)
     bread = np.linalg.inv(X.T @ X)
-    return bread @ S @ bread * (n / (n - k))
+    return bread @ S @ bread
 
 
 def ols_newey_west(y, regressors: dict, lags: int) -> Regression:
