@@ -90,8 +90,8 @@ def _coef(d: dict, name: str) -> str:
 
 
 TABLE_HEAD = ("tenor", "obs", "checked", "rich", "fair", "cheap", "hit rich", "hit cheap",
-              "IV−RV rich", "IV−RV fair", "IV−RV cheap", "Brier (base)", "MZ IV b (se)",
-              "MZ fc b (se)", "enc IV | fc", "lags", "today IV−fc", "pctile", "today")
+              "IV−RV rich", "IV−RV fair", "IV−RV cheap", "Brier (base)", "MZ IV² b (se)",
+              "MZ fc² b (se)", "enc IV² | fc²", "lags", "today IV−fc", "pctile", "today")
 
 
 def tenor_cells(t) -> list[str]:
@@ -106,9 +106,9 @@ def tenor_cells(t) -> list[str]:
             _pts(g.get("fair", {}).get("mean", math.nan)),
             _pts(g.get("cheap", {}).get("mean", math.nan)),
             f"{_num(t.brier, 3)} ({_num(t.brier_base_rate, 3)})",
-            _coef(t.mz_implied, "atm_iv"), _coef(t.mz_forecast, "forecast_vol"),
-            f"{_num((t.encompassing.get('coef') or {}).get('atm_iv', math.nan))} | "
-            f"{_num((t.encompassing.get('coef') or {}).get('forecast_vol', math.nan))}",
+            _coef(t.mz_implied, "implied_var"), _coef(t.mz_forecast, "forecast_var"),
+            f"{_num((t.encompassing.get('coef') or {}).get('implied_var', math.nan))} | "
+            f"{_num((t.encompassing.get('coef') or {}).get('forecast_var', math.nan))}",
             f"{t.lags}", _pts(t.today.get("iv_minus_forecast", math.nan)),
             _pct(t.today.get("gap_percentile", math.nan), 0) + "%",
             str(t.today.get("verdict", "n/a"))]
@@ -125,8 +125,8 @@ def track_table(record) -> str:
     out = [f"Track record of the rich / fair / cheap verdict: {_headline(record)}", ""]
     out.append(_grid(TABLE_HEAD, [tenor_cells(t) for t in record.tenors]))
     out += ["", "vols in %, gaps in vol points; hit rich = realized ended below implied "
-            "on rich days, hit cheap = above on cheap days; MZ = realized on implied or "
-            "forecast, Newey–West errors", ""]
+            "on rich days, hit cheap = above on cheap days; MZ = realized variance on "
+            "implied or forecast variance, Newey–West errors", ""]
     out.append("Reliability of P(realized > implied): forecast / observed (n) per bucket")
     for t in record.tenors:
         if not t.reliability:
@@ -270,8 +270,8 @@ def track_markdown(record) -> str:
              "|" + "|".join("---:" for _ in TABLE_HEAD) + "|"]
     lines += [_md_row(tenor_cells(t)) for t in record.tenors]
     lines += ["", "Vols in %, gaps in vol points. Hit rich: realized ended below implied "
-              "on rich days; hit cheap: above on cheap days. MZ: slope of realized vol on "
-              "implied or forecast vol (Newey–West standard error).", "",
+              "on rich days; hit cheap: above on cheap days. MZ: slope of realized variance "
+              "on implied or forecast variance (Newey–West standard error).", "",
               "## Reliability of P(realized > implied)", "",
               _md_row(("tenor", "bucket", "n", "mean forecast", "observed")),
               "|---:|:---|---:|---:|---:|"]

@@ -13,8 +13,11 @@ Per tenor, over the observations whose expiry the history reaches ("checked"):
   1950) against the outcome, the score of always forecasting the observed base rate
   :math:`\\bar o(1-\\bar o)` beside it, and the reliability table by probability
   bucket (Murphy & Winkler 1987);
-- Mincer–Zarnowitz regressions :math:`\\sigma_{real} = a + b\\,x + e` with ``x`` the
-  implied vol and, separately, the forecast (an unbiased forecast has a = 0, b = 1;
+- Mincer–Zarnowitz regressions :math:`\\sigma_{real}^2 = a + b\\,x + e` with ``x`` the
+  implied variance :math:`\\sigma_{imp}^2` and, separately, the forecast variance
+  :math:`\\hat\\sigma^2` (an unbiased forecast has a = 0, b = 1; variances, not vols,
+  because the forecast is an expected variance and a vol's expectation is below the
+  root of the expected variance;
   Mincer & Zarnowitz, "The evaluation of economic forecasts", in *Economic
   Forecasts and Expectations*, NBER 1969), and the encompassing regression on both
   (Chong & Hendry 1986; used for implied against time-series vol forecasts by
@@ -84,9 +87,11 @@ def tenor_record(obs: pd.DataFrame, tenor: int, *, min_checked: int = MIN_CHECKE
         brier = stats.brier_score(p, outcome)
         base = float(outcome.mean())
         reliability = stats.reliability_table(p, outcome, buckets)
-        mz_iv = stats.ols_newey_west(rv, {"atm_iv": iv}, lags).to_dict()
-        mz_fc = stats.ols_newey_west(rv, {"forecast_vol": fcv}, lags).to_dict()
-        enc = stats.ols_newey_west(rv, {"atm_iv": iv, "forecast_vol": fcv}, lags).to_dict()
+        rvar, ivar, fvar = rv ** 2, iv ** 2, fcv ** 2
+        mz_iv = stats.ols_newey_west(rvar, {"implied_var": ivar}, lags).to_dict()
+        mz_fc = stats.ols_newey_west(rvar, {"forecast_var": fvar}, lags).to_dict()
+        enc = stats.ols_newey_west(rvar, {"implied_var": ivar, "forecast_var": fvar},
+                                   lags).to_dict()
     else:
         gaps, payoff, reliability = {}, {}, []
         hit_rich = hit_cheap = below = brier = base = nan

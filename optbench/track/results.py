@@ -54,7 +54,9 @@ class TenorRecord:
     lags : int
         Newey–West lags (the overlap of the observations' windows).
     mz_implied, mz_forecast, encompassing : dict
-        Regressions of realized vol on implied, on the forecast, and on both, each
+        Regressions of realized variance on implied variance, on the forecast
+        variance, and on both (coefficients ``const``, ``implied_var``,
+        ``forecast_var``), each
         ``{"n_obs", "lags", "r_squared", "coef": {...}, "std_error": {...}}``.
     payoff_by_verdict : dict
         Verdict (and ``"all"``) -> summary of ``realized² − implied²`` (annualised
@@ -208,14 +210,14 @@ def summary_row(t: TenorRecord) -> dict:
         "mean_gap_fair": _get(t.gap_by_verdict, "fair", "mean"),
         "mean_gap_cheap": _get(t.gap_by_verdict, "cheap", "mean"),
         "brier": t.brier, "brier_base_rate": t.brier_base_rate,
-        "mz_implied_slope": _get(t.mz_implied, "coef", "atm_iv"),
-        "mz_implied_slope_se": _get(t.mz_implied, "std_error", "atm_iv"),
-        "mz_forecast_slope": _get(t.mz_forecast, "coef", "forecast_vol"),
-        "mz_forecast_slope_se": _get(t.mz_forecast, "std_error", "forecast_vol"),
-        "enc_implied": _get(t.encompassing, "coef", "atm_iv"),
-        "enc_implied_se": _get(t.encompassing, "std_error", "atm_iv"),
-        "enc_forecast": _get(t.encompassing, "coef", "forecast_vol"),
-        "enc_forecast_se": _get(t.encompassing, "std_error", "forecast_vol"),
+        "mz_implied_slope": _get(t.mz_implied, "coef", "implied_var"),
+        "mz_implied_slope_se": _get(t.mz_implied, "std_error", "implied_var"),
+        "mz_forecast_slope": _get(t.mz_forecast, "coef", "forecast_var"),
+        "mz_forecast_slope_se": _get(t.mz_forecast, "std_error", "forecast_var"),
+        "enc_implied": _get(t.encompassing, "coef", "implied_var"),
+        "enc_implied_se": _get(t.encompassing, "std_error", "implied_var"),
+        "enc_forecast": _get(t.encompassing, "coef", "forecast_var"),
+        "enc_forecast_se": _get(t.encompassing, "std_error", "forecast_var"),
         "lags": t.lags,
         "today_gap": t.today.get("iv_minus_forecast", math.nan),
         "today_percentile": t.today.get("gap_percentile", math.nan),

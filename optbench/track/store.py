@@ -134,7 +134,7 @@ def _cell(name: str, value):
 
 
 def append_rows(path: str | Path, comparison: dict, expiries: Sequence[dict], *,
-                timeout: float = DEFAULT_TIMEOUT) -> int:
+                timeout: float | None = None) -> int:
     """Append one comparison and its expiry rows in one transaction.
 
     ``comparison`` is keyed by :data:`COMPARISON_FIELDS` (``recorded_at`` defaults
@@ -146,8 +146,9 @@ def append_rows(path: str | Path, comparison: dict, expiries: Sequence[dict], *,
     InputError
         The folder does not exist; the file is not a record store, is damaged, is
         of a newer schema, or stays locked by another writer beyond ``timeout``
-        seconds. Nothing is written then.
+        seconds (default :data:`DEFAULT_TIMEOUT`). Nothing is written then.
     """
+    timeout = DEFAULT_TIMEOUT if timeout is None else float(timeout)
     path = Path(path)
     if path.is_dir():
         raise InputError(path, "is a folder; give the record store's file name")
@@ -195,7 +196,7 @@ def append_rows(path: str | Path, comparison: dict, expiries: Sequence[dict], *,
             con.close()
 
 
-def record_comparison(path: str | Path, comparison, *, timeout: float = DEFAULT_TIMEOUT
+def record_comparison(path: str | Path, comparison, *, timeout: float | None = None
                       ) -> int:
     """Append a :class:`~optbench.analysis.results.Comparison` (each expiry's row) to
     the store at ``path`` (created when missing). Returns the comparison's id."""
@@ -210,7 +211,7 @@ def record_comparison(path: str | Path, comparison, *, timeout: float = DEFAULT_
     return append_rows(path, head, rows, timeout=timeout)
 
 
-def read_records(path: str | Path, *, timeout: float = DEFAULT_TIMEOUT
+def read_records(path: str | Path, *, timeout: float | None = None
                  ) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Every row of the store: ``(comparisons, expiries)`` as DataFrames with the
     tables' columns (NULL numbers as NaN, dates as ISO strings)."""
@@ -219,7 +220,8 @@ def read_records(path: str | Path, *, timeout: float = DEFAULT_TIMEOUT
         raise InputError(path, "no such record store")
     con = None
     try:
-        con = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=timeout)
+        con = sqlite3.connect(f"file:{path}?mode=ro", uri=True,
+                              timeout=DEFAULT_TIMEOUT if timeout is None else timeout)
         version = _check_version(con, path)
         if version is None:
             raise InputError(path, "an empty file, not a record store")
