@@ -159,8 +159,9 @@ def track_json(record) -> str:
 # -------------------------------------------------------------------------- CSV
 def _comment(record, table: str) -> str:
     m = record.model
+    warn = (" | warnings: " + "; ".join(record.warnings)) if record.warnings else ""
     return (f"optbench track {table} | {record.underlying} | as of {record.asof} | model "
-            f"{m['name']}/{m['dist']} refit {record.refit_every} | {record.caution}")
+            f"{m['name']}/{m['dist']} refit {record.refit_every}{warn} | {record.caution}")
 
 
 CSV_TABLES = ("tenors", "observations", "verdicts", "reliability", "regressions")
