@@ -75,6 +75,10 @@ def _pct(x, digits: int = 1) -> str:
     return "—" if x is None or not math.isfinite(float(x)) else f"{100 * float(x):.{digits}f}"
 
 
+def _share(x) -> str:
+    return "—" if x is None or not math.isfinite(float(x)) else f"{100 * float(x):.0f}%"
+
+
 def _pts(x) -> str:
     return "—" if x is None or not math.isfinite(float(x)) else f"{100 * float(x):+.1f}"
 
@@ -100,8 +104,8 @@ def tenor_cells(t) -> list[str]:
     g = t.gap_by_verdict
     return [f"{t.tenor_days}d", f"{t.n_obs}", f"{t.n_checked}",
             f"{t.counts.get('rich', 0)}", f"{t.counts.get('fair', 0)}",
-            f"{t.counts.get('cheap', 0)}", _pct(t.hit_rate_rich, 0) + "%",
-            _pct(t.hit_rate_cheap, 0) + "%",
+            f"{t.counts.get('cheap', 0)}", _share(t.hit_rate_rich),
+            _share(t.hit_rate_cheap),
             _pts(g.get("rich", {}).get("mean", math.nan)),
             _pts(g.get("fair", {}).get("mean", math.nan)),
             _pts(g.get("cheap", {}).get("mean", math.nan)),
@@ -110,7 +114,7 @@ def tenor_cells(t) -> list[str]:
             f"{_num((t.encompassing.get('coef') or {}).get('implied_var', math.nan))} | "
             f"{_num((t.encompassing.get('coef') or {}).get('forecast_var', math.nan))}",
             f"{t.lags}", _pts(t.today.get("iv_minus_forecast", math.nan)),
-            _pct(t.today.get("gap_percentile", math.nan), 0) + "%",
+            _share(t.today.get("gap_percentile", math.nan)),
             str(t.today.get("verdict", "n/a"))]
 
 

@@ -172,3 +172,23 @@ def test_compare_record_appends_and_a_locked_store_loses_nothing(tmp_path, capsy
     assert before[0].equals(after[0]) and before[1].equals(after[1])
     # one comparison on one date: nothing can be checked yet -> one line, exit 2
     _bad(capsys, ["track", str(FOLDER), "--store", str(path)], "no tenor can be checked")
+
+
+def test_file_and_store_together_count_every_row(tmp_path, capsys):
+    """A recorded comparison beside the implied-vol file: every row is counted, the
+    store's new tenors are shown, and the ones the history cannot check are said."""
+    path = tmp_path / "records.sqlite"
+    assert main(["compare", str(FOLDER), "--record", str(path), "-f", "json",
+                 "-o", str(tmp_path / "c.json")]) == 0
+    capsys.readouterr()
+    assert main(["track", str(FOLDER), "--iv-history", str(FOLDER / "iv_history.csv"),
+                 "--store", str(path), "-f", "json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    n_file = (FOLDER / "iv_history.csv").read_text().count("\n") - 1
+    q = doc["quality"]
+    assert q["rows_in"] == n_file + 8
+    assert q["rows_in"] == q["rows_used"] + sum(q["rejected"].values())
+    assert doc["iv_sources"] == [str(FOLDER / "iv_history.csv"), str(path)]
+    unchecked = [t["tenor_days"] for t in doc["tenors"] if t["n_checked"] == 0]
+    assert unchecked and all(any(f"tenor {d} days: no expiry" in w for w in doc["warnings"])
+                             for d in unchecked)
