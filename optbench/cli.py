@@ -23,6 +23,7 @@ COMMANDS: dict[str, str] = {
     "compare": "compare",
     "hedge": "hedge",
     "screen": "screen",
+    "track": "track",
     "demo": "demo",
 }
 

@@ -562,3 +562,91 @@ def write_scenario(folder: str | Path, seed: int = SEED) -> dict[str, int]:
     for name, data in files.items():
         (folder / name).write_bytes(data)
     return {name: len(data) for name, data in files.items()}
+
+
+# --------------------------------------------------------------- implied-vol history
+IV_HISTORY_YEARS = 3
+IV_TENORS = (30, 61, 91, 182, 365)          # calendar days
+IV_PREMIUM_MEAN = 0.022                     # average ATM premium over the expected vol
+IV_PREMIUM_PERSISTENCE = 0.985              # daily AR(1) weight of the premium
+IV_PREMIUM_SD = 0.018                       # stationary spread of the premium (vol)
+IV_NOISE_SD = 0.004                         # day-to-day quoting noise per tenor (vol)
+IV_PUT_SKEW, IV_CALL_SKEW = 0.045, -0.015   # 25-delta wings against ATM at 30 days
+IV_STREAM = 2                               # independent random stream of the seed
+
+
+def expected_vol(history: DemoHistory, index: np.ndarray, trading_days: np.ndarray
+                 ) -> np.ndarray:
+    """The true model's expected average vol from the day after ``dates[index]`` over
+    ``trading_days`` days, holding that day's long-run level.
+
+    With the simulation's GJR persistence :math:`P = \\alpha + \\gamma/2 + \\beta`,
+    long-run daily variance :math:`\\bar\\sigma^2_t` in force on the day and the
+    next day's conditional variance :math:`\\sigma^2_{t+1}`:
+    :math:`\\sqrt{252\\,(\\bar\\sigma^2_t + (\\sigma^2_{t+1} - \\bar\\sigma^2_t)
+    \\tfrac{1 - P^h}{(1-P)h})}` (Glosten, Jagannathan and Runkle 1993; the level
+    shifts of the regime chain are not anticipated).
+    """
+    p = ALPHA + 0.5 * GAMMA + BETA
+    nxt = np.append(history.cond_var[1:], history.next_var)[index]
+    level = (history.long_run_vol[index] ** 2 / 252.0)
+    h = np.asarray(trading_days, float)
+    avg = level[:, None] if level.ndim == 1 and h.ndim == 2 else level
+    nx = nxt[:, None] if nxt.ndim == 1 and h.ndim == 2 else nxt
+    return np.sqrt(252.0 * (avg + (nx - avg) * (1.0 - p ** h) / ((1.0 - p) * h)))
+
+
+def generate_iv_history(scenario: DemoScenario | None = None, seed: int = SEED) -> list[str]:
+    """The demo's implied-vol history: one CSV line per date and tenor (no header).
+
+    Over the last :data:`IV_HISTORY_YEARS` years of the price history, for each date
+    and each tenor of :data:`IV_TENORS`, the ATM implied vol is the true model's
+    expected vol to that tenor (:func:`expected_vol`) plus a premium that wanders
+    as an AR(1) around :data:`IV_PREMIUM_MEAN` (sometimes below zero, so "cheap"
+    shows up) plus quoting noise; the 25-delta put and call sit a skew above and
+    below, shrinking with the tenor as :math:`(30/\\text{tenor})^{0.3}`. A separate
+    random stream of the seed is used, so the chain and price history do not change.
+    """
+    sc = generate(seed) if scenario is None else scenario
+    h = sc.history
+    rng = np.random.default_rng([seed, IV_STREAM])
+    first = np.datetime64(ASOF.replace(year=ASOF.year - IV_HISTORY_YEARS))
+    index = np.flatnonzero(h.dates > first)
+    n, k = index.size, len(IV_TENORS)
+    tenor = np.array(IV_TENORS, dtype="timedelta64[D]")
+    d = h.dates[index]
+    hol = np.array(sc.holidays, dtype="datetime64[D]")
+    one = np.timedelta64(1, "D")
+    td = np.busday_count((d + one)[:, None], (d[:, None] + tenor[None, :]) + one, holidays=hol)
+    vol = expected_vol(h, index, td)
+    shock = rng.standard_normal(n) * IV_PREMIUM_SD * np.sqrt(1 - IV_PREMIUM_PERSISTENCE ** 2)
+    prem = np.empty(n)
+    x = 0.0
+    for i in range(n):                      # an AR(1): each day depends on the one before
+        x = IV_PREMIUM_PERSISTENCE * x + shock[i]
+        prem[i] = x
+    atm = vol + IV_PREMIUM_MEAN + prem[:, None] + rng.standard_normal((n, k)) * IV_NOISE_SD
+    wing = (30.0 / np.array(IV_TENORS, float)) ** 0.3
+    put = atm + IV_PUT_SKEW * wing + rng.standard_normal((n, k)) * IV_NOISE_SD / 2
+    call = atm + IV_CALL_SKEW * wing + rng.standard_normal((n, k)) * IV_NOISE_SD / 2
+    atm, put, call = (np.maximum(v, 0.02) for v in (atm, put, call))
+    days = d.astype(str)
+    return [f"{days[i]},{IV_TENORS[j]},{atm[i, j]:.4f},{put[i, j]:.4f},{call[i, j]:.4f}"
+            for i in range(n) for j in range(k)]
+
+
+def render_iv_history(scenario: DemoScenario | None = None, seed: int = SEED) -> bytes:
+    """``iv_history.csv`` of the demo as bytes (header ``date,tenor_days,atm_iv,
+    iv_25d_put,iv_25d_call``; decimal vols)."""
+    lines = generate_iv_history(scenario, seed)
+    return ("date,tenor_days,atm_iv,iv_25d_put,iv_25d_call\n" + "\n".join(lines)
+            + "\n").encode()
+
+
+def write_iv_history(folder: str | Path, seed: int = SEED) -> dict[str, int]:
+    """Write the demo's ``iv_history.csv`` into ``folder``; ``{name: bytes}``."""
+    data = render_iv_history(None, seed)
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    (folder / "iv_history.csv").write_bytes(data)
+    return {"iv_history.csv": len(data)}

@@ -99,6 +99,9 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     parser.add_argument("--backtest", action="store_true",
                         help="add the out-of-sample check over the last year (HTML "
                              "reports always include it)")
+    parser.add_argument("--record", metavar="FILE", default=None,
+                        help="also append each expiry's row to this record store (an "
+                             "SQLite file, created when missing) for 'optbench track'")
     add_output_options(parser, formats=FORMATS)
     parser.set_defaults(run=run)
     return parser
@@ -115,6 +118,12 @@ def run(args: argparse.Namespace) -> int:
                          **drift_options(args), **market_overrides(args))
     for e in args.expiry or ():
         comparison.expiry_row(e)        # an expiry not in the chain -> one-line error
+    if getattr(args, "record", None):
+        from optbench.track.store import record_comparison
+        record_comparison(args.record, comparison)
+        print(f"optbench: recorded {len(comparison.expiries)} expiries of "
+              f"{comparison.underlying} {comparison.asof.isoformat()} in {args.record}",
+              file=sys.stderr)
     write_output(args, render(comparison, args))
     return 0
 

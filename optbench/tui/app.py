@@ -104,6 +104,7 @@ class Workbench(App):
         Binding("m", "settings", "Model & market", id="app.settings"),
         Binding("r", "recompute", "Recompute", id="app.recompute"),
         Binding("e", "export", "Export", id="app.export"),
+        Binding("t", "track", "Track record", id="app.track"),
         Binding("question_mark,f1", "help", "Help", key_display="?", id="app.help"),
         Binding("escape", "leave_field", "Leave field", show=False, id="app.leave"),
         Binding("q", "quit", "Quit", id="app.quit"),
@@ -385,6 +386,10 @@ class Workbench(App):
             value = self.view("smile").query_one("#smile-expiry").value
             return value if isinstance(value, str) else None
         return self.view("richcheap").expiry
+
+    def action_track(self) -> None:
+        from optbench.tui.views.track import TrackScreen
+        self.push_screen(TrackScreen(self.inputs.source))
 
     def action_help(self) -> None:
         from optbench.tui.screens.help import HelpScreen
