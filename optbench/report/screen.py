@@ -17,6 +17,7 @@ SCREEN_KINDS = {
     "protection_expected_payoff": "money", "protection_overpay": "money",
     "protection_cost_pct_annual": "pct", "model": "text", "fallback_reason": "text",
     "rows_in": "int", "rows_used": "int", "error": "text", "folder": "text",
+    "warnings": "text",
 }
 
 SCREEN_LABELS = {
@@ -136,5 +137,11 @@ def screen_table(result, *, width: int | None = None, color: bool = False) -> st
              "Verdict: rich above the forecast band, cheap below, fair inside."]
     for f in result.failures:
         notes.append(f"Could not screen {f['code']}: {f['reason']}")
+    warned = {}
+    for r in result.rows:
+        if r.get("warnings"):
+            warned.setdefault(r.get("code"), r["warnings"])
+    for code, text in warned.items():
+        notes.append(f"Warnings for {code}: {text}")
     notes.append(result.caution)
     return _render([table, *notes], width=width, color=color)

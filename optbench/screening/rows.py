@@ -29,8 +29,11 @@ COLUMNS = (
     "atm_iv", "forecast_vol", "forecast_low", "forecast_high", "iv_minus_forecast",
     "iv_forecast_ratio", "verdict", "floor", "put_strike", "protection_cost",
     "protection_expected_payoff", "protection_overpay", "protection_cost_pct_annual",
-    "model", "fallback_reason", "rows_in", "rows_used", "error", "folder",
+    "model", "fallback_reason", "rows_in", "rows_used", "error", "folder", "warnings",
 )
+#: ``warnings`` holds the comparison's and the hedge's warnings (input disagreements,
+#: dropped history rows, ATM or forecast flags) joined with "; " ('' when none)
+WARNING_SEPARATOR = "; "
 
 
 @dataclass(frozen=True)
@@ -100,6 +103,7 @@ def screen_one(task: ScreenTask) -> list[dict]:
         row = by_expiry[listed[tenor]]
         cost = payoff = overpay = annual = strike = None
         error = None
+        notes = list(comparison.warnings)
         try:
             # a large notional keeps contract rounding out of the per-unit figures
             request = HedgeRequest(portfolio_value=1e3 * NOTIONAL, hedge_ratio=1.0,
@@ -112,6 +116,7 @@ def screen_one(task: ScreenTask) -> list[dict]:
             overpay = _num(est.overpay * scale)
             annual = _num(est.cost_pct_annual)
             strike = _num(est.strike)
+            notes += [w for w in est.warnings if w not in notes]
         except Exception as err:  # the comparison row still stands without a hedge
             error = f"hedge: {err}"
         rows.append({
@@ -129,5 +134,6 @@ def screen_one(task: ScreenTask) -> list[dict]:
             "rows_in": comparison.quality["rows_in"],
             "rows_used": comparison.quality["rows_used"],
             "error": error, "folder": task.folder,
+            "warnings": WARNING_SEPARATOR.join(notes),
         })
     return rows
