@@ -48,9 +48,17 @@ def test_out_of_range_dates_in_screen_stay_in_their_row(tmp_path):
     frame.loc[10, "expiry"] = "9999-12-31"
     frame.loc[11, "quote_date"] = "1600-01-01"
     frame.to_csv(root / "ZPHX" / "chain.csv", index=False)
+    hist = pd.read_csv(DEMO / "history.csv", dtype=str)
+    hist.loc[50, "close"] = "-3"
+    hist.to_csv(root / "ZPHX" / "history.csv", index=False)
     result = screen(root, workers=1, n_paths=200, model="garch", dist="normal")
     assert not result.failures
     assert all(r["error"] is None for r in result.rows)
+    # the dropped history row travels into every row of the screen, and its views
+    assert all("negative_close" in r["warnings"] for r in result.rows)
+    from optbench.report.screen import screen_csv, screen_table
+    assert "negative_close" in screen_csv(result)
+    assert "negative_close" in screen_table(result, width=200)
 
 
 @pytest.mark.parametrize("day", ["9999-01-04", "1500-01-04"])
