@@ -348,7 +348,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     mid = q["mid"].to_numpy(float)
     edge_unit = mid - price_fc
     vega_pt = np.asarray(g.vega_per_vol_point, float)
-    with np.errstate(invalid="ignore", divide="ignore"):
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
         edge_vega = np.where(vega_pt > 1e-12, edge_unit / vega_pt, np.nan)
     edge_pts = 100.0 * (iv_mid - fc_q)
     table = pd.DataFrame({

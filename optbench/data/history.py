@@ -200,7 +200,7 @@ def load_history(path: str | Path) -> PriceHistory:
         shown = "; ".join(f"{d[i]} to {d[i + 1]} ({gaps[i]} days)" for i in long_gap[:_SHOW])
         more = f" and {long_gap.size - _SHOW} more" if long_gap.size > _SHOW else ""
         issues.append(f"{long_gap.size} gaps longer than {GAP_DAYS} calendar days: "
-                      f"{shown}{more}")
+                      f"{shown}{more} (the return across a gap counts as one day's)")
     c = df["close"].to_numpy(dtype=float)
     out = {f: (df[f].to_numpy(dtype=float).copy() if v is not None else None)
            for f, v in ohlc.items()}

@@ -250,3 +250,35 @@ def test_history_loader_counts_every_row(tmp_path):
     loaded = load_history(path)
     assert loaded.dropped == {"bad_date": 2, "zero_close": 1, "negative_close": 1}
     assert loaded.rows_in == len(loaded.dates) + 4
+
+
+def test_dense_chain_whose_smile_misses_the_atm_quotes_falls_back(tmp_path):
+    """A dense expiry whose vols carry a narrow bump at the money (3 vol points over
+    +-1 % of the forward): five SVI parameters cannot follow it, so the fitted ATM vol
+    lies below the tight ATM bid-ask vols and the interpolated quotes are used. Prices
+    from vollib's Black-Scholes-Merton."""
+    from vollib.black_scholes_merton import black_scholes_merton
+    hist = pd.read_csv(DEMO / "history.csv")
+    asof = _dt.date.fromisoformat(hist["date"].iloc[-1])
+    spot, r, q, days = float(hist["close"].iloc[-1]), 0.04, 0.015, 91
+    t = days / 365
+    fwd = spot * math.exp((r - q) * t)
+    rows = []
+    for k in np.linspace(0.6, 1.4, 401) * fwd:
+        x = math.log(k / fwd)
+        vol = 0.16 - 0.1 * x + 0.2 * x * x + 0.03 * math.exp(-(x / 0.01) ** 2)
+        for flag in ("c", "p"):
+            p = black_scholes_merton(flag, spot, k, t, r, vol, q)
+            if p < 0.5:
+                continue
+            rows.append({"underlying": "ZPHX", "quote_date": asof.isoformat(),
+                         "underlying_price": spot,
+                         "expiry": (asof + _dt.timedelta(days=days)).isoformat(),
+                         "strike": round(k, 2), "type": flag.upper(),
+                         "bid": round(p * 0.999, 4), "ask": round(p * 1.001, 4)})
+    c = compare(_scenario(tmp_path, chain=pd.DataFrame(rows)), **FAST)
+    (e,) = c.expiries
+    assert e.smile["atm_source"] == "interpolated quotes"
+    assert e.atm_iv_bid <= e.atm_iv <= e.atm_iv_ask
+    assert e.atm_iv == pytest.approx(0.19, abs=0.003)     # the bump's top, from the quotes
+    assert any("smile fit's ATM vol" in w for w in c.warnings)
