@@ -281,6 +281,8 @@ def _choose_legs(request: HedgeRequest, table: pd.DataFrame, spot: float,
         if i_low < 0:
             raise InputError("--lower-floor", f"no listed put below {put_k:g} with a bid "
                                               f"on {expiry.isoformat()}")
+        _near_strike("--lower-floor", lower * spot, strikes[i_low], spot, "put to sell",
+                     warnings)
         sells.append(i_low)
     elif request.structure == "collar":
         calls_ok = is_call & sellable & (strikes > spot)

@@ -100,24 +100,40 @@ def compare_prices(a: float, a_name: str, b: float, b_name: str, *,
 def parity_spot(quotes: pd.DataFrame, rate: float, div_yield: float) -> float:
     """Median over strikes of the spot put-call parity implies, European quotes only.
 
-    :math:`S = (C - P + K e^{-rt}) e^{qt}` per strike with a two-sided call and put
-    (Hull, ch. 11); NaN when no such strike exists.
+    :math:`S = (C - P + K e^{-rt}) e^{qt}` per (expiry, strike) with a two-sided call
+    and put (Hull, ch. 11); NaN when no such strike exists. Pure numpy (the keys are
+    matched with ``np.intersect1d``), so it adds little to a comparison's time.
     """
-    from optbench.pricing.forwards import parity_pairs
-
     q = quotes
-    if "style" in q.columns:
-        q = q[(q["style"].astype(str).str.lower() != "american").to_numpy()]
-    q = q[(q["t"] > 0).to_numpy()]
     if not len(q):
         return math.nan
-    pairs = parity_pairs(q)
-    if not len(pairs):
+    t = q["t"].to_numpy(float)
+    bid = q["bid"].to_numpy(float)
+    ask = q["ask"].to_numpy(float)
+    ok = (t > 0) & (bid > 0) & (ask >= bid)
+    if "style" in q.columns:
+        ok &= (q["style"] != "american").to_numpy(dtype=bool)   # canonical words
+    if not ok.any():
         return math.nan
-    t = pairs["t"].to_numpy(float)
+    expiry = q["expiry"].to_numpy()[ok]
+    strike = q["strike"].to_numpy(float)[ok]
+    call = q["is_call"].to_numpy(bool)[ok]
+    mid = 0.5 * (bid[ok] + ask[ok])
+    t = t[ok]
+    _, e_code = np.unique(expiry, return_inverse=True)
+    _, k_code = np.unique(strike, return_inverse=True)
+    key = e_code.astype(np.int64) * (int(k_code.max()) + 1) + k_code
+    c_keys, c_first = np.unique(key[call], return_index=True)
+    p_keys, p_first = np.unique(key[~call], return_index=True)
+    _, ci, pi = np.intersect1d(c_keys, p_keys, assume_unique=True, return_indices=True)
+    if not ci.size:
+        return math.nan
+    c_rows = np.flatnonzero(call)[c_first[ci]]
+    p_rows = np.flatnonzero(~call)[p_first[pi]]
+    tt = t[c_rows]
     with np.errstate(over="ignore", invalid="ignore"):
-        s = (pairs["c_mid"].to_numpy(float) - pairs["p_mid"].to_numpy(float)
-             + pairs["strike"].to_numpy(float) * np.exp(-rate * t)) * np.exp(div_yield * t)
+        s = (mid[c_rows] - mid[p_rows] + strike[c_rows] * np.exp(-rate * tt)) \
+            * np.exp(div_yield * tt)
     s = s[np.isfinite(s) & (s > 0)]
     return float(np.median(s)) if s.size else math.nan
 

@@ -97,3 +97,9 @@ def test_request_alone_checks_beta_range():
     with pytest.raises(InputError, match="at most 10"):
         HedgeRequest(portfolio_value=1e6, beta=11)
     assert HedgeRequest(portfolio_value=1e6, beta=2.5).beta == 2.5
+
+
+def test_put_spread_lower_floor_far_from_any_listed_put_is_an_error(comparison):
+    with pytest.raises(InputError) as err:
+        _hedge(comparison, structure="put_spread", floor=0.95, lower_floor=0.02)
+    assert str(err.value).startswith("--lower-floor: ")
