@@ -147,12 +147,23 @@ def test_extreme_options_are_one_line_errors(argv, needle, capsys):
     assert len(err.splitlines()) == 1 and needle in err and "Traceback" not in err
 
 
-def test_fit_json_with_nan_is_valid_json_with_null(tmp_path, capsys):
+def test_fit_json_with_nan_is_valid_json_with_null(monkeypatch, capsys):
     import json
-    # a history whose fit leaves some statistic undefined still writes valid JSON:
-    # every non-finite number becomes null (docs/schema.md, RFC 8259 section 6)
+
+    from optbench.commands import fit as fit_cmd
+    real = fit_cmd.fit_report
+
+    def with_nan(*args, **kwargs):
+        doc = real(*args, **kwargs)
+        doc["model"]["std_errors"]["omega"] = float("nan")   # as a degenerate fit gives
+        doc["term_structure"][0]["high"] = float("inf")
+        return doc
+    monkeypatch.setattr(fit_cmd, "fit_report", with_nan)
     assert main(["fit", str(DEMO), "--model", "garch", "--format", "json"]) == 0
-    doc = json.loads(capsys.readouterr().out)
-    from optbench.report.jsonout import clean
-    assert clean({"x": float("nan"), "y": [float("inf")]}) == {"x": None, "y": [None]}
+    out = capsys.readouterr().out
+    doc = json.loads(out)
+    assert "NaN" not in out and "Infinity" not in out
+    # JSON has no NaN (RFC 8259 section 6): non-finite numbers are null (docs/schema.md)
+    assert doc["model"]["std_errors"]["omega"] is None
+    assert doc["term_structure"][0]["high"] is None
     assert "warnings" in doc and "dropped" in doc
