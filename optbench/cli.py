@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import re
 import sys
 from collections.abc import Sequence
 
@@ -65,8 +66,31 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 
+#: a value that starts with a minus sign and a digit: ``-5``, ``-1e7``, ``-.5``, ``-5m``
+_NEGATIVE_VALUE = re.compile(r"^-\.?\d")
+
+
+def join_negative_values(argv: Sequence[str]) -> list[str]:
+    """``--opt -5e6`` -> ``--opt=-5e6``, so that a negative value reaches the option's
+    own check ("must be positive") instead of argparse's "expected one argument"
+    (argparse reads ``-1e7`` as an option name)."""
+    out: list[str] = []
+    i = 0
+    argv = list(argv)
+    while i < len(argv):
+        tok = argv[i]
+        if (tok.startswith("--") and "=" not in tok and len(tok) > 2 and i + 1 < len(argv)
+                and _NEGATIVE_VALUE.match(argv[i + 1])):
+            out.append(f"{tok}={argv[i + 1]}")
+            i += 2
+            continue
+        out.append(tok)
+        i += 1
+    return out
+
+
 def main(argv: Sequence[str] | None = None) -> int:
-    argv = list(sys.argv[1:] if argv is None else argv)
+    argv = join_negative_values(sys.argv[1:] if argv is None else argv)
     parser = build_parser()
     args = parser.parse_args(argv)
     if args.command is None:

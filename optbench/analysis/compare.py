@@ -13,7 +13,19 @@ Notes
 fitted smile at log-moneyness 0 (:func:`optbench.analysis.smile.smile_points`); the bid
 and ask ATM vols are the bid and ask implied vols of the out-of-the-money quotes
 (puts below the forward, calls above) interpolated linearly in log-moneyness
-:math:`k = \\ln(K/F)` at :math:`k = 0`.
+:math:`k = \\ln(K/F)` at :math:`k = 0`. The ATM vol is only read where quotes with a
+mid implied vol lie on both sides of the forward within ``ATM_MAX_DISTANCE`` (10 %) in
+:math:`|k|`; otherwise it is unavailable (NaN, verdict ``n/a``, with a warning) and never
+extrapolated from a far strike. A smile fit whose ATM vol lies outside the ATM bid–ask
+vols is not used for it: the interpolated mid quotes are (and a warning says so);
+``smile["atm_source"]`` names which (``smile``, ``interpolated quotes`` or
+``unavailable``).
+
+**Sanity gates.** Before any model runs, :mod:`optbench.analysis.sanity` checks the
+inputs against each other (spot, the parity-implied spot, a ``--spot`` override, the
+history's last close and date) and the history for degenerate stretches; its warnings,
+and every row the history loader dropped, are part of ``warnings``. A forecast outside
+the plausible range is flagged and gets no verdict.
 
 **Forecast and band.** ``forecast_vol`` is the model's annualised average vol over the
 trading days to expiry, :math:`\\sqrt{252\\,\\tfrac1h\\sum_{k\\le h} E[\\sigma^2_{T+k}]}`;
@@ -90,6 +102,9 @@ DEFAULT_BAND = (0.05, 0.95)
 MIN_REALIZED_WINDOW = 5
 #: most out-of-the-money quotes per expiry given to the smile fit (evenly spaced in k)
 MAX_SMILE_POINTS = 200
+#: the ATM vol needs a quote with a mid implied vol on each side of the forward within
+#: this distance in log-moneyness |ln(K/F)| (10 %), else it is unavailable
+ATM_MAX_DISTANCE = 0.10
 
 CONVENTIONS = {
     "vol": "annualised decimal (0.215 = 21.5%); a vol point is 0.01",
@@ -211,7 +226,8 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
             expiries: Sequence[_dt.date] | None = None,
             progress: Callable[[str], None] | None = None, drift: str = "risk-free",
             excess_return: float | None = None,
-            floor: float = DEFAULT_FLOOR) -> Comparison:
+            floor: float = DEFAULT_FLOOR,
+            max_strike_ratio: float | None = None) -> Comparison:
     """Compare the chain's implied vols with the fitted model's forecast.
 
     Parameters
@@ -240,6 +256,8 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         ``excess_return`` a year when given, else the scenario's ``excess_return`` in
         ``meta.toml``) or ``"fitted"`` (the fitted mean).
     floor : the protection floor as a fraction of spot, in (0, 1] (default 0.90).
+    max_strike_ratio : the loader's plausible-strike factor (default 10; see
+        :func:`optbench.data.chain.load_chain`).
 
     Returns
     -------
@@ -266,7 +284,8 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     floor = _floor(floor)
     overrides = {k: v for k, v in (("spot", spot), ("asof", asof), ("rate", rate),
                                    ("div_yield", div_yield), ("style", style),
-                                   ("multiplier", multiplier)) if v is not None}
+                                   ("multiplier", multiplier),
+                                   ("max_strike_ratio", max_strike_ratio)) if v is not None}
     say("loading the chain and the history")
     ch, hist, holidays, source = _load(chain, history, overrides)
     warnings: list[str] = list(getattr(ch, "notes", ()))
@@ -276,7 +295,12 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
                             f"where parity cannot tell (give {flag})")
     q = ch.quotes
     if not len(q):
-        raise InputError(ch.source, "no usable quotes in the chain")
+        raise InputError(ch.source, _no_quotes_problem(ch))
+    from optbench.analysis import sanity
+    warnings.extend(f"history: {issue}" for issue in getattr(hist, "issues", ()))
+    hist = _history_upto(hist, ch.asof, warnings)
+    warnings.extend(sanity.history_findings(hist))
+    warnings.extend(sanity.input_consistency(ch, hist))
     q = q[q["t"] > 0].reset_index(drop=True)
     if expiries is not None:
         q = _only_expiries(q, expiries, ch.source)
@@ -304,7 +328,6 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
                            ask=q["ask"].to_numpy(float))
 
     # --- model fit and forecasts on the trading-day calendar
-    hist = _history_upto(hist, ch.asof, warnings)
     if fit is None:
         say(f"fitting the {model} volatility model")
         fit = fit_garch(hist.returns, model=model, dist=dist, mean=mean)
@@ -315,7 +338,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         warnings.append(f"volatility model: {fit.fallback_reason}")
     exp_dates = [pd.Timestamp(e).date() for e in fwd["expiry"]]
     last_day = pd.Timestamp(hist.dates[-1]).date()
-    if last_day != ch.asof:
+    if last_day != ch.asof and (ch.asof - last_day).days <= sanity.STALE_DAYS:
         warnings.append(f"the history ends on {last_day.isoformat()}, the quotes are of "
                         f"{ch.asof.isoformat()}: forecasts run from the day after the "
                         "last close")
@@ -357,7 +380,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     mid = q["mid"].to_numpy(float)
     edge_unit = mid - price_fc
     vega_pt = np.asarray(g.vega_per_vol_point, float)
-    with np.errstate(invalid="ignore", divide="ignore"):
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
         edge_vega = np.where(vega_pt > 1e-12, edge_unit / vega_pt, np.nan)
     edge_pts = 100.0 * (iv_mid - fc_q)
     table = pd.DataFrame({
@@ -406,9 +429,17 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
                 smile_info = {"method": "failed", "reason": err.problem}
         atm_bid = _interp_at_forward(k_q[sel & otm], iv_bid[sel & otm])
         atm_ask = _interp_at_forward(k_q[sel & otm], iv_ask[sel & otm])
-        if not math.isfinite(atm):
-            atm = _interp_at_forward(k_q[sel & otm], iv_mid[sel & otm])
+        atm, atm_bid, atm_ask, atm_source, atm_note = _atm_rules(
+            e_date, atm, atm_bid, atm_ask, k_q[sel], iv_mid[sel],
+            _interp_at_forward(k_q[sel & otm], iv_mid[sel & otm]))
+        smile_info["atm_source"] = atm_source
+        if atm_note:
+            warnings.append(atm_note)
         f_e, lo_e, hi_e = float(fc[j]), float(band_lo[j]), float(band_hi[j])
+        verdict = verdict_for(atm, lo_e, hi_e)
+        if sanity.implausible_forecast(f_e):
+            warnings.append(sanity.forecast_flag(e_date, f_e))
+            verdict = "n/a"
         prob = float(np.mean(rv_paths[:, j] > atm)) if math.isfinite(atm) else math.nan
         part = table.loc[sel].sort_values(["is_call", "strike"]).reset_index(drop=True)
         put25, floor_put = judge_puts(
@@ -434,7 +465,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
             cone_percentile=float(cone.percentile_rank(atm, td_model[j])),
             iv_minus_forecast=float(atm - f_e), variance_premium=float(atm ** 2 - f_e ** 2),
             iv_forecast_ratio=float(atm / f_e) if f_e > 0 else math.nan,
-            prob_realized_above_iv=prob, verdict=verdict_for(atm, lo_e, hi_e),
+            prob_realized_above_iv=prob, verdict=verdict,
             smile=smile_info, arbitrage_flags=int(arb.quote_flag[sel].sum()),
             rate=float(fwd["rate"].iloc[j]), carry=float(fwd["carry"].iloc[j]),
             floor=floor, **put25.fields_with("put25"), **floor_put.fields_with("floor_put")))
@@ -506,6 +537,56 @@ def _meta_excess(source) -> tuple[object, str]:
     if not meta.is_file():
         return None, str(meta)
     return read_meta(meta).get("excess_return"), str(meta)
+
+
+def _no_quotes_problem(ch) -> str:
+    """Why a chain has no usable quote, from its rejection counts."""
+    rejected = dict(ch.quality.rejected)
+    if not rejected:
+        return "no usable quotes in the chain"
+    top = sorted(rejected.items(), key=lambda kv: -kv[1])
+    shown = ", ".join(f"{n} {code}" for code, n in top[:3])
+    text = f"no usable quotes: all {ch.quality.rows_in} rows rejected ({shown})"
+    if top[0][0] == "other_quote_date":
+        text += (f"; the chain's as-of date is {ch.asof.isoformat()} "
+                 f"[{getattr(ch, 'asof_source', 'file')}]")
+    elif top[0][0] == "implausible_strike":
+        text += (f"; the spot is {ch.spot:,.6g} [{getattr(ch, 'spot_source', 'file')}] — "
+                 "is it the underlying's price?")
+    elif top[0][0] == "expired":
+        text += f"; every expiry is on or before the as-of date {ch.asof.isoformat()}"
+    return text
+
+
+def _atm_rules(expiry, smile_atm: float, atm_bid: float, atm_ask: float,
+               k: np.ndarray, iv_mid: np.ndarray, interp_mid: float):
+    """The ATM vol the verdict uses: ``(atm, bid, ask, source, warning or '')``.
+
+    Quotes with a mid vol must lie on both sides of the forward within
+    :data:`ATM_MAX_DISTANCE`; a smile ATM outside [bid, ask] gives way to the
+    interpolated quotes (module Notes).
+    """
+    ok = np.isfinite(k) & np.isfinite(iv_mid)
+    below = ok & (k <= 0) & (k >= -ATM_MAX_DISTANCE)
+    above = ok & (k >= 0) & (k <= ATM_MAX_DISTANCE)
+    if not (below.any() and above.any()):
+        near = np.abs(k[ok]).min() if ok.any() else math.nan
+        where = (f"the nearest is {100 * (math.exp(float(near)) - 1):+.0f}% from it"
+                 if math.isfinite(near) else "no strike has a mid implied vol")
+        side = "below" if not below.any() else "above"
+        return (math.nan, math.nan, math.nan, "unavailable",
+                f"{expiry.isoformat()}: ATM vol unavailable (no quote {side} the forward "
+                f"within {ATM_MAX_DISTANCE:.0%}; {where}); verdict n/a")
+    if math.isfinite(smile_atm):
+        if math.isfinite(atm_bid) and math.isfinite(atm_ask) and not (
+                atm_bid - 1e-6 <= smile_atm <= atm_ask + 1e-6):
+            return (interp_mid, atm_bid, atm_ask, "interpolated quotes",
+                    f"{expiry.isoformat()}: the smile fit's ATM vol {100 * smile_atm:.2f}% "
+                    f"lies outside the ATM bid-ask vols {100 * atm_bid:.2f}-"
+                    f"{100 * atm_ask:.2f}%; the interpolated quotes' "
+                    f"{100 * interp_mid:.2f}% is used")
+        return smile_atm, atm_bid, atm_ask, "smile", ""
+    return interp_mid, atm_bid, atm_ask, "interpolated quotes", ""
 
 
 def _history_upto(hist, asof: _dt.date, warnings: list):

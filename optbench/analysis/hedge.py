@@ -65,6 +65,22 @@ SCENARIO_MOVES = tuple(round(m, 2) for m in np.arange(-0.30, 0.1001, 0.05))
 
 DEFAULT_DAYS = 91
 
+#: A request for ``days`` uses the nearest listed expiry; it is named in a warning
+#: when it is more than ``max(TENOR_WARN_DAYS, TENOR_WARN_SHARE * days)`` away, and the
+#: request is refused when the listed expiry is under half or over twice the days
+#: asked and more than ``TENOR_GROSS_DAYS`` away (common practice: a tenor is "near"
+#: within about a week or a tenth of itself).
+TENOR_WARN_DAYS = 7
+TENOR_WARN_SHARE = 0.10
+TENOR_GROSS_DAYS = 14
+#: A floor (or a collar's call strike) uses the nearest listed strike; it is named in
+#: a warning when more than ``STRIKE_WARN`` (1 % of spot) away from the level asked,
+#: and the request is refused beyond ``STRIKE_GROSS`` (5 % of spot).
+STRIKE_WARN = 0.01
+STRIKE_GROSS = 0.05
+#: Most contracts a hedge may hold; beyond it the inputs are out of scale.
+MAX_CONTRACTS = 1e9
+
 
 # ------------------------------------------------------------------- pure pieces
 def contracts_for(portfolio_value: float, ratio: float, multiplier: float,
@@ -74,7 +90,13 @@ def contracts_for(portfolio_value: float, ratio: float, multiplier: float,
     Hull, *Options, Futures, and Other Derivatives*, §3.5 (beta-weighted hedge) and
     §17.2 (portfolio insurance with index options).
     """
-    n = int(round(ratio * portfolio_value / (multiplier * spot)))
+    x = ratio * portfolio_value / (multiplier * spot)
+    if not math.isfinite(x) or x > MAX_CONTRACTS:
+        raise InputError("--portfolio", f"{portfolio_value:g} x {ratio:g} needs more than "
+                                        f"{MAX_CONTRACTS:,.0f} contracts of {multiplier:g} x "
+                                        f"{spot:g}: check the portfolio value, beta and "
+                                        "multiplier")
+    n = int(round(x))
     if n < 1:
         raise InputError("--portfolio", f"{portfolio_value:g} is smaller than half of one "
                                         f"contract ({multiplier:g} x {spot:g}); nothing to hedge")
@@ -180,7 +202,7 @@ def breakeven_level(put_strike: float, net_premium_per_unit: float,
 
 # ------------------------------------------------------------------ orchestration
 def _pick_expiry(request: HedgeRequest, expiries: Sequence[_dt.date],
-                 calendar_days: Sequence[int]) -> int:
+                 calendar_days: Sequence[int], warnings: list | None = None) -> int:
     if not expiries:
         raise InputError("chain", "no usable expiry in the chain")
     if request.expiry is not None:
@@ -192,7 +214,17 @@ def _pick_expiry(request: HedgeRequest, expiries: Sequence[_dt.date],
                                      f"the chain (have: {have})")
     days = request.days if request.days is not None else DEFAULT_DAYS
     cd = np.asarray(calendar_days, float)
-    return nearest_index(cd, days)
+    i = nearest_index(cd, days)
+    used = int(cd[i])
+    off = abs(used - days)
+    if off > TENOR_GROSS_DAYS and not 0.5 <= used / days <= 2.0:
+        raise InputError("--days", f"no listed expiry near {days} days: the nearest, "
+                                   f"{expiries[i].isoformat()}, is {used} days away (listed: "
+                                   f"{int(cd.min())} to {int(cd.max())} days)")
+    if off > max(TENOR_WARN_DAYS, TENOR_WARN_SHARE * days) and warnings is not None:
+        warnings.append(f"no expiry at {days} days: the nearest listed, "
+                        f"{expiries[i].isoformat()} ({used} days), is used")
+    return i
 
 
 def _leg(side: str, row: pd.Series, expiry: _dt.date, contracts: int,
@@ -212,8 +244,23 @@ def _leg(side: str, row: pd.Series, expiry: _dt.date, contracts: int,
         line=int(row["line"]) if "line" in row and pd.notna(row["line"]) else 0)
 
 
+def _near_strike(name: str, asked: float, listed: float, spot: float, what: str,
+                 warnings: list | None) -> None:
+    """Refuse (beyond :data:`STRIKE_GROSS`) or name (beyond :data:`STRIKE_WARN`) a
+    listed strike used for a level that is not listed."""
+    off = abs(listed - asked) / spot
+    if off > STRIKE_GROSS:
+        raise InputError(name, f"no listed {what} near {asked:,.2f} ({asked / spot:.1%} of "
+                               f"spot): the nearest is {listed:,.2f} ({listed / spot:.1%}), "
+                               f"more than {STRIKE_GROSS:.0%} of spot away")
+    if off > STRIKE_WARN and warnings is not None:
+        warnings.append(f"no {what} at {asked:,.2f} ({asked / spot:.1%} of spot): the "
+                        f"nearest listed, {listed:,.2f} ({listed / spot:.1%}), is used")
+
+
 def _choose_legs(request: HedgeRequest, table: pd.DataFrame, spot: float,
-                 contracts: int, multiplier: float, expiry: _dt.date):
+                 contracts: int, multiplier: float, expiry: _dt.date,
+                 warnings: list | None = None):
     """Pick the listed strikes for the structure; returns (buy rows, sell rows, note)."""
     strikes = table["strike"].to_numpy(float)
     is_call = table["is_call"].to_numpy(bool)
@@ -226,6 +273,7 @@ def _choose_legs(request: HedgeRequest, table: pd.DataFrame, spot: float,
     if i_put < 0:
         raise InputError("--expiry", f"{expiry.isoformat()} has no put with an ask to buy")
     put_k = strikes[i_put]
+    _near_strike("--floor", request.floor * spot, put_k, spot, "put", warnings)
     buys, sells, note = [i_put], [], ""
     if request.structure == "put_spread":
         lower = request.lower_floor if request.lower_floor is not None else request.floor - 0.10
@@ -235,13 +283,22 @@ def _choose_legs(request: HedgeRequest, table: pd.DataFrame, spot: float,
         if i_low < 0:
             raise InputError("--lower-floor", f"no listed put below {put_k:g} with a bid "
                                               f"on {expiry.isoformat()}")
+        _near_strike("--lower-floor", lower * spot, strikes[i_low], spot, "put to sell",
+                     warnings)
         sells.append(i_low)
     elif request.structure == "collar":
         calls_ok = is_call & sellable & (strikes > spot)
         if request.call_strike is not None:
-            i_call = nearest_index(strikes, request.call_strike, is_call & sellable)
+            if request.call_strike <= put_k:
+                raise InputError("--call-strike", f"{request.call_strike:g} is not above "
+                                                  f"the bought put's strike {put_k:g}: a "
+                                                  "collar sells a call above the put")
+            i_call = nearest_index(strikes, request.call_strike,
+                                   is_call & sellable & (strikes > put_k))
             if i_call < 0:
                 raise InputError("--call-strike", f"no call with a bid on {expiry.isoformat()}")
+            _near_strike("--call-strike", request.call_strike, strikes[i_call], spot,
+                         "call", warnings)
             note = "call strike as given"
             if not math.isclose(strikes[i_call], request.call_strike):
                 note = (f"call strike {request.call_strike:g} not listed; nearest listed "
@@ -270,14 +327,17 @@ def hedge_from_comparison(comparison, request: HedgeRequest, *, n_paths: int = 2
     """
     spot, rate, q = float(comparison.spot), float(comparison.rate), float(comparison.div_yield)
     expiries = [row.expiry for row in comparison.expiries]
-    i_exp = _pick_expiry(request, expiries, [row.calendar_days for row in comparison.expiries])
+    warnings: list[str] = []
+    i_exp = _pick_expiry(request, expiries, [row.calendar_days for row in comparison.expiries],
+                         warnings)
     row = comparison.expiries[i_exp]
     table = comparison.strikes[row.expiry]
     multiplier = float(request.multiplier or comparison.multiplier or 100.0)
     ratio = request.exposure_ratio
     V = request.portfolio_value
     n = contracts_for(V, ratio, multiplier, spot)
-    buys, sells, note = _choose_legs(request, table, spot, n, multiplier, row.expiry)
+    buys, sells, note = _choose_legs(request, table, spot, n, multiplier, row.expiry,
+                                     warnings)
     legs = tuple([_leg("buy", table.iloc[i], row.expiry, n, multiplier) for i in buys]
                  + [_leg("sell", table.iloc[i], row.expiry, n, multiplier) for i in sells])
     k = np.array([leg.strike for leg in legs])
@@ -292,7 +352,6 @@ def hedge_from_comparison(comparison, request: HedgeRequest, *, n_paths: int = 2
     tau = row.t
     fit = getattr(comparison, "fit", None)
     choice = _drift_of(comparison)
-    warnings: list[str] = []
     if fit is not None and row.trading_days > 0:
         r_e = row.rate if math.isfinite(row.rate) else rate
         q_e = row.carry if math.isfinite(row.carry) else q
@@ -316,16 +375,21 @@ def hedge_from_comparison(comparison, request: HedgeRequest, *, n_paths: int = 2
     scenarios = tuple({"move": float(m), "level": float(lv), "unhedged": float(u),
                        "hedged": float(h)} for m, lv, u, h in zip(moves, level, unhedged, hedged))
 
-    w_of = total_variance_curve([r.t for r in comparison.expiries],
-                                [r.atm_iv for r in comparison.expiries])
     half_spread = np.array([(leg.ask - leg.mid) if leg.side == "buy" else (leg.mid - leg.bid)
                             for leg in legs])
-    atm_now = row.atm_iv if math.isfinite(row.atm_iv) else float(np.sqrt(w_of(tau) / tau))
-    roll_unit = annual_roll_cost(
-        spot=spot, rate=rate, div_yield=q, tau=tau, calendar_days=row.calendar_days,
-        w_of=w_of, atm_iv_now=atm_now, leg_moneyness=k / spot, leg_is_call=c,
-        leg_signs=s, leg_iv=np.array([leg.iv_mid for leg in legs]),
-        leg_half_spread=half_spread)
+    if any(math.isfinite(r.atm_iv) for r in comparison.expiries):
+        w_of = total_variance_curve([r.t for r in comparison.expiries],
+                                    [r.atm_iv for r in comparison.expiries])
+        atm_now = row.atm_iv if math.isfinite(row.atm_iv) else float(np.sqrt(w_of(tau) / tau))
+        roll_unit = annual_roll_cost(
+            spot=spot, rate=rate, div_yield=q, tau=tau, calendar_days=row.calendar_days,
+            w_of=w_of, atm_iv_now=atm_now, leg_moneyness=k / spot, leg_is_call=c,
+            leg_signs=s, leg_iv=np.array([leg.iv_mid for leg in legs]),
+            leg_half_spread=half_spread)
+    else:
+        roll_unit = math.nan
+        warnings.append("no expiry has an ATM implied vol: the annual roll cost is not "
+                        "computed")
     roll = roll_unit * units
     roll_method = ("same strikes as fractions of spot and same tenor re-bought every "
                    f"{row.calendar_days} days for a year ({365 / row.calendar_days:.2f} "

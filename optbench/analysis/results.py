@@ -132,6 +132,10 @@ VERDICTS = ("rich", "fair", "cheap", "n/a")
 
 STRUCTURES = ("put", "put_spread", "collar")
 
+#: Largest beta or hedge ratio a request accepts (a leveraged portfolio's beta to
+#: its index is a few units; beyond 10 the number is a typing error).
+MAX_BETA = 10.0
+
 #: Columns of every per-strike table, in order.
 STRIKE_COLUMNS = ("expiry", "strike", "is_call", "type", "moneyness", "bid", "ask", "mid",
                   "iv_bid", "iv_mid", "iv_ask", "delta", "vega_per_vol_point",
@@ -455,6 +459,10 @@ class HedgeRequest:
     call_strike : the sold call's strike in money (collar only); None = choose the
         listed call that makes the net premium nearest zero.
     multiplier : contract multiplier; None = the chain's.
+
+    Ranges: ``beta`` and ``hedge_ratio`` at most :data:`MAX_BETA` in size; a collar's
+    ``call_strike`` must lie above the put strike (checked against the chain, where
+    the listed strikes are known).
     """
 
     portfolio_value: float
@@ -494,6 +502,10 @@ class HedgeRequest:
         elif beta <= 0:
             raise InputError("--beta", f"a protective hedge needs a positive beta, not "
                                        f"{value_text(beta)}")
+        for name, ratio in (("--beta", beta), ("--hedge-ratio", self.hedge_ratio)):
+            if ratio is not None and abs(float(ratio)) > MAX_BETA:
+                raise InputError(name, f"{value_text(float(ratio))} is beyond any "
+                                       f"portfolio's exposure (at most {MAX_BETA:g})")
         floor = num("--floor", self.floor)
         if not 0 < floor <= 1:
             raise InputError("--floor", f"must be a fraction of spot in (0, 1], such as "

@@ -68,7 +68,10 @@ def run(args: argparse.Namespace) -> int:
     from optbench.errors import InputError
     from optbench.volatility.backtest import MIN_IN_SAMPLE, MIN_OUT_OF_SAMPLE
 
+    from optbench.analysis import sanity
+
     history = load_history(args.history)
+    findings = sanity.history_findings(history)
     rdates = np.asarray(history.dates).astype("datetime64[D]")[1:]
     needed = MIN_IN_SAMPLE + MIN_OUT_OF_SAMPLE
     if rdates.size < needed:
@@ -81,12 +84,14 @@ def run(args: argparse.Namespace) -> int:
     if args.format == "json":
         from optbench.report.jsonout import clean
         doc = clean(result.to_dict())
+        doc["warnings"] = [f"history: {i}" for i in history.issues] + findings
         doc["caution"] = CAUTION
         write_output(args, json.dumps(doc, indent=2, allow_nan=False))
     elif args.format == "csv":
         write_output(args, daily_csv(result))
     else:
-        write_output(args, table_text(result))
+        write_output(args, "".join(f"warning: {w}\n" for w in findings)
+                     + table_text(result))
     return 0
 
 

@@ -50,8 +50,9 @@ def parse_positive(text: str) -> float:
     return value
 
 
-def whole_number(minimum: int = 0):
-    """argparse type for a whole number of at least ``minimum``."""
+def whole_number(minimum: int = 0, maximum: int | None = None):
+    """argparse type for a whole number of at least ``minimum`` (and at most
+    ``maximum`` when given)."""
     def parse(text: str) -> int:
         try:
             value = int(text)
@@ -59,14 +60,26 @@ def whole_number(minimum: int = 0):
             raise argparse.ArgumentTypeError(f"not a whole number: {text!r}") from None
         if value < minimum:
             raise argparse.ArgumentTypeError(f"must be at least {minimum}: {text!r}")
+        if maximum is not None and value > maximum:
+            raise argparse.ArgumentTypeError(f"must be at most {maximum:,}: {text!r}")
         return value
     parse.__name__ = f"whole number >= {minimum}"
     return parse
 
 
-def day_list(example: str):
-    """argparse type for comma-separated whole numbers of days, each at least 1;
-    returned sorted without repeats (``example`` goes into the error message)."""
+#: Most simulated paths a command accepts (beyond it the figures shown do not change,
+#: and memory grows with paths x days).
+MAX_PATHS = 200_000
+#: Longest horizon or tenor in days a command accepts (ten years of calendar days).
+MAX_DAYS = 3650
+#: Largest random seed (numpy's seeds are non-negative; 2**32 - 1 as in its legacy API).
+MAX_SEED = 2**32 - 1
+
+
+def day_list(example: str, maximum: int = MAX_DAYS):
+    """argparse type for comma-separated whole numbers of days, each from 1 to
+    ``maximum``; returned sorted without repeats (``example`` goes into the error
+    message)."""
     def parse(text: str) -> tuple[int, ...]:
         parts = [p.strip() for p in text.split(",") if p.strip()]
         for part in parts:
@@ -77,6 +90,9 @@ def day_list(example: str):
         if not days or days[0] < 1:
             raise argparse.ArgumentTypeError(f"give positive days like {example}, not "
                                              f"{text!r}")
+        if days[-1] > maximum:
+            raise argparse.ArgumentTypeError(f"{days[-1]:,} days is beyond the longest "
+                                             f"horizon accepted ({maximum:,})")
         return tuple(days)
     parse.__name__ = "list of days"
     return parse
@@ -91,6 +107,10 @@ def add_market_overrides(parser: argparse.ArgumentParser) -> None:
     group.add_argument("--div-yield", dest="div_yield", type=parse_float,
                        help="dividend yield, continuously compounded decimal")
     add_contract_options(group)
+    group.add_argument("--max-strike-ratio", dest="max_strike_ratio", type=parse_float,
+                       default=None, metavar="FACTOR",
+                       help="reject strikes above FACTOR x spot or below spot / FACTOR "
+                            "as implausible (default: 10)")
 
 
 def add_contract_options(group) -> None:
@@ -112,7 +132,7 @@ def contract_overrides(args: argparse.Namespace) -> dict:
 def market_overrides(args: argparse.Namespace) -> dict:
     """The overrides the user gave (market inputs, style and multiplier), as keyword
     arguments for the loaders."""
-    keys = ("spot", "asof", "rate", "div_yield")
+    keys = ("spot", "asof", "rate", "div_yield", "max_strike_ratio")
     return ({k: getattr(args, k) for k in keys if getattr(args, k, None) is not None}
             | contract_overrides(args))
 

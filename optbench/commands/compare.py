@@ -11,8 +11,9 @@ import argparse
 import sys
 from pathlib import Path
 
-from optbench.commands.common import (add_drift_options, add_market_overrides,
-                                      add_model_options, add_output_options, drift_options,
+from optbench.commands.common import (MAX_PATHS, MAX_SEED, add_drift_options,
+                                      add_market_overrides, add_model_options,
+                                      add_output_options, drift_options,
                                       market_overrides, parse_date, parse_float,
                                       whole_number, write_output)
 from optbench.errors import InputError
@@ -44,10 +45,11 @@ def add_chain_arguments(parser: argparse.ArgumentParser) -> None:
     add_market_overrides(parser)
     add_model_options(parser)
     sim = parser.add_argument_group("simulation")
-    sim.add_argument("--paths", type=whole_number(1), default=None,
+    sim.add_argument("--paths", type=whole_number(100, MAX_PATHS), default=None,
                      help="simulated paths of the fitted model (default: 2000 for compare, "
                           "20000 for hedge)")
-    sim.add_argument("--seed", type=int, default=7, help="random seed (default: 7)")
+    sim.add_argument("--seed", type=whole_number(0, MAX_SEED), default=7,
+                     help="random seed, a whole number from 0 (default: 7)")
     add_drift_options(parser)
 
 

@@ -42,14 +42,24 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
 
 def fit_report(history, model: str, dist: str, mean: str, horizons) -> dict:
     """Fit and assemble the JSON document of ``optbench fit`` (DESIGN.md keys)."""
+    from optbench.analysis import sanity
     from optbench.volatility.garch import fit_garch
 
+    warnings = [f"history: {issue}" for issue in history.issues]
+    warnings += sanity.history_findings(history)
     try:
         fit = fit_garch(history.returns, model=model, dist=dist, mean=mean)
     except InputError as err:
         raise InputError(history.source, err.problem) from None
     vols = fit.forecast_vol(list(horizons))
     low, high = fit.forecast_band(list(horizons))
+    if fit.fallback_reason:
+        warnings.append(f"volatility model: {fit.fallback_reason}")
+    for h, v in zip(horizons, vols):
+        if sanity.implausible_forecast(v):
+            warnings.append(f"{int(h)} trading days: forecast vol {100 * float(v):,.4g}% is "
+                            f"outside the plausible range {sanity.PLAUSIBLE_VOL[0]:.0%} to "
+                            f"{sanity.PLAUSIBLE_VOL[1]:.0%} — check the price history")
     dates = history.dates
     return {
         "source": str(history.source),
@@ -63,6 +73,8 @@ def fit_report(history, model: str, dist: str, mean: str, horizons) -> dict:
              "high": float(hi)}
             for h, v, lo, hi in zip(horizons, vols, low, high)],
         "issues": list(history.issues),
+        "dropped": dict(getattr(history, "dropped", {}) or {}),
+        "warnings": warnings,
         "caution": CAUTION,
     }
 
@@ -73,7 +85,8 @@ def run(args: argparse.Namespace) -> int:
     history = load_history(args.history)
     doc = fit_report(history, args.model, args.dist, args.mean, args.horizons)
     if args.format == "json":
-        write_output(args, json.dumps(doc, indent=2, allow_nan=False))
+        from optbench.report.jsonout import clean
+        write_output(args, json.dumps(clean(doc), indent=2, allow_nan=False))
     elif args.format == "csv":
         write_output(args, term_structure_csv(doc))
     else:
@@ -117,8 +130,8 @@ def table_text(doc: dict, width: int = 100) -> str:
         shown = ", ".join(f"{k} {v:,.1f}" if v is not None else f"{k} failed"
                           for k, v in m["candidates"].items())
         con.print(f"chosen by lowest BIC among: {shown}")
-    for issue in doc["issues"]:
-        con.print(f"history: {issue}")
+    for warning in doc["warnings"]:
+        con.print(f"warning: {warning}", markup=False)
 
     con.print("Parameters (decimal units; robust standard errors):")
     par = Table()

@@ -21,8 +21,8 @@ import pandas as pd
 from optbench.data.columns import SIDE_FIELDS, map_chain_columns, side_of
 from optbench.data.files import RawTable, drop_blank_rows, read_table
 from optbench.data.occ import parse_occ
-from optbench.data.parse import (call_codes, percent_or_decimal, present, style_word, to_date,
-                                 to_number, to_style)
+from optbench.data.parse import (DATE_MAX, DATE_MIN, call_codes, percent_or_decimal, present,
+                                 style_word, to_date, to_number, to_style)
 from optbench.data.validate import REASONS, WARNINGS, assign_reasons, quote_warnings
 from optbench.errors import InputError
 
@@ -35,6 +35,12 @@ DEFAULT_TINY_PRICE = 0.05
 nickel is the usual minimum tick on listed options, so such a price is mostly tick)."""
 
 DEFAULT_MULTIPLIER = 100.0
+
+DEFAULT_MAX_STRIKE_RATIO = 10.0
+"""Strikes above this many times spot, or below spot divided by it, are rejected as
+``implausible_strike`` (a strike typed with extra zeros, a placeholder such as 1e308).
+Listed strikes lie well inside a factor of 10 of spot (common practice: exchanges
+list from about a fifth to a few times spot, even on long-dated expiries)."""
 
 STYLES = ("european", "american")
 
@@ -97,6 +103,9 @@ class OptionChain:
         ``long`` or ``wide``.
     notes : tuple of str
         Decisions the loader took that the user should know about.
+    spot_reference, spot_reference_source : float, str
+        With a caller's spot: the spot the file (or meta.toml) gives, and which of
+        them gave it; NaN and "" when there is none or the spot is not overridden.
     """
 
     source: str
@@ -117,6 +126,10 @@ class OptionChain:
     style_source: str = "default"
     multiplier_source: str = "default"
     notes: tuple = field(default_factory=tuple)
+    #: when the caller overrides the spot: the file's (or meta.toml's) own spot and
+    #: where it came from, for the consistency checks (NaN and "" otherwise)
+    spot_reference: float = float("nan")
+    spot_reference_source: str = ""
 
     @property
     def expiries(self) -> list[_dt.date]:
@@ -214,16 +227,46 @@ def _resolve_number(name, caller, file_values, meta, default, notes, path):
 
 def _as_date(value, source: str) -> _dt.date:
     if isinstance(value, _dt.datetime):
-        return value.date()
+        value = value.date()
     if isinstance(value, _dt.date):
+        if not DATE_MIN <= np.datetime64(value, "D") <= DATE_MAX:
+            raise InputError(source, f"{value.isoformat()} is outside the dates optbench "
+                                     f"reads ({DATE_MIN} to {DATE_MAX})")
         return value
     parsed = to_date(pd.Series([str(value)])).iloc[0]
     if pd.isna(parsed):
-        raise InputError(source, f"not a date: {value!r}")
+        raise InputError(source, f"not a date between {DATE_MIN} and {DATE_MAX}: {value!r}")
     return parsed.date()
 
 
 # ------------------------------------------------------------------------ load_chain
+
+def file_iv_decimals(raw: pd.Series, values: np.ndarray) -> tuple[np.ndarray, str]:
+    """A file's implied-vol column as decimals, cell by cell, and a note ('' if none).
+
+    A cell written with ``%`` is a percent; the other cells are read together by
+    :func:`optbench.data.parse.percent_or_decimal` (percent when their median
+    exceeds 3.0). A column mixing ``21.5%`` and ``0.215`` so reads both as 0.215.
+    """
+    if raw.dtype.kind in "biuf":
+        pct_cell = np.zeros(len(values), bool)
+    else:
+        pct_cell = raw.astype("string").str.contains("%", regex=False).fillna(False) \
+            .to_numpy(dtype=bool)
+    out = np.array(values, dtype=float)
+    out[pct_cell] = values[pct_cell] / 100.0
+    plain_cells = ~pct_cell & np.isfinite(values)
+    rest, rest_pct = percent_or_decimal(np.where(plain_cells, values, np.nan), False)
+    out[~pct_cell] = rest[~pct_cell]
+    if pct_cell.any() and plain_cells.any():
+        form = "percent" if rest_pct else "decimals"
+        return out, (f"the file's IV column mixes cells with % ({int(pct_cell.sum())}) and "
+                     f"without ({int(plain_cells.sum())}, read as {form}); each cell is "
+                     "converted by its own form")
+    if pct_cell.any() or rest_pct:
+        return out, "the file's IV column is in percent; converted to decimals"
+    return out, ""
+
 
 def _flag_words(prefix: str, suffix: str, flags) -> np.ndarray:
     """'' per row, or prefix + the names of the flags set on it + suffix; the text is
@@ -261,7 +304,8 @@ def load_chain(path: str | Path, *, spot: float | None = None,
                multiplier: float | None = None,
                max_spread: float | None = DEFAULT_MAX_SPREAD,
                holidays: Iterable = (), tiny_price: float = DEFAULT_TINY_PRICE,
-               meta: Mapping | None = None) -> OptionChain:
+               meta: Mapping | None = None,
+               max_strike_ratio: float | None = DEFAULT_MAX_STRIKE_RATIO) -> OptionChain:
     """Load and validate an option chain.
 
     Parameters
@@ -293,6 +337,10 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         Mids below this many price units are flagged ``tiny_price``.
     meta : mapping, optional
         A scenario's ``meta.toml`` values, used where neither caller nor file gives one.
+    max_strike_ratio : float or None
+        Strikes above ``spot * max_strike_ratio`` or below ``spot / max_strike_ratio``
+        are rejected as ``implausible_strike`` (default
+        :data:`DEFAULT_MAX_STRIKE_RATIO`); ``None`` switches the rule off.
 
     Returns
     -------
@@ -302,7 +350,8 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     ------
     InputError
         The file is missing, empty, binary, not a table, lacks a required column,
-        or gives no spot / quote date; or an override is invalid.
+        or gives no spot / quote date (every missing market input named in one
+        message); or an override is invalid.
     """
     path = Path(path)
     if path.is_dir():
@@ -440,6 +489,12 @@ def load_chain(path: str | Path, *, spot: float | None = None,
             mult = to_number(col("multiplier"), decimal_comma=dc)
             has = present(col("multiplier"))
             bad_mult = has & np.isnan(mult)
+            if has.any():
+                # a multiplier column that has values elsewhere: an empty or NaN-like
+                # cell ("nan", "NA") is not a multiplier, not a licence for the default
+                bad_mult |= ~has
+            else:
+                notes.append(f"the multiplier column is empty: {default_mult:g} is used")
             mult = np.where(has, mult, default_mult)
         else:
             mult = np.full(n, default_mult)
@@ -482,20 +537,39 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     elif meta.get("asof") is not None:
         asof_d, asof_source = _as_date(meta["asof"], "meta asof"), "meta"
     else:
+        asof_d, asof_source = None, ""
+    missing_inputs = []
+    if asof_d is None:
         what = "no readable date in its quote_date column" if qd is not None \
             else "no quote_date column"
-        raise InputError(path, f"no quote date: the file has {what}; "
-                         "give --asof YYYY-MM-DD")
+        missing_inputs.append(f"no quote date (the file has {what}; give --asof YYYY-MM-DD)")
+    bad_quote_date = np.zeros(n, bool)
     if qd is not None:
-        other_quote_date = ~np.isnat(qd) & (qd != np.datetime64(asof_d, "ns"))
+        bad_quote_date = present(col("quote_date")) & np.isnat(qd)
+        if asof_d is not None:
+            other_quote_date = ~np.isnat(qd) & (qd != np.datetime64(asof_d, "ns"))
+            dated = ~np.isnat(qd)
+            if asof_source == "caller" and dated.any() and other_quote_date[dated].all():
+                days = np.unique(qd[dated]).astype("datetime64[D]")
+                shown = ", ".join(str(d) for d in days[:3]) + (
+                    f" and {days.size - 3} more" if days.size > 3 else "")
+                raise InputError("--asof", f"{asof_d.isoformat()} is not a quote date of "
+                                 f"{path.name}: its quotes are of {shown}")
 
-    spot_v, spot_source = _resolve_number(
-        "spot", spot, to_number(col("underlying_price"), decimal_comma=dc)
-        if col("underlying_price") is not None else None, meta, None, notes, path)
+    file_spot = to_number(col("underlying_price"), decimal_comma=dc) \
+        if col("underlying_price") is not None else None
+    spot_v, spot_source = _resolve_number("spot", spot, file_spot, meta, None, notes, path)
     if spot_v is None:
         what = "no readable underlying_price" if col("underlying_price") is not None \
             else "no underlying_price column"
-        raise InputError(path, f"no spot price: the file has {what}; give --spot")
+        missing_inputs.append(f"no spot price (the file has {what}; give --spot)")
+    if missing_inputs:
+        raise InputError(path, "; ".join(missing_inputs))
+    spot_ref, spot_ref_source = float("nan"), ""
+    if spot_source == "caller":
+        ref, ref_source = _resolve_number("spot", None, file_spot, meta, None, [], path)
+        if ref is not None and np.isfinite(ref) and ref > 0:
+            spot_ref, spot_ref_source = float(ref), ref_source
     if not np.isfinite(spot_v) or spot_v <= 0:
         raise InputError("--spot" if spot_source == "caller" else path,
                          f"spot must be a positive price, not {spot_v:g}")
@@ -533,6 +607,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         p[f"missing_{f}"] = m
     p["bad_symbol"] = bad_symbol
     p["bad_date"] = bad_date
+    p["bad_quote_date"] = bad_quote_date
     p["bad_number"] = bad_number
     p["bad_number_detail"] = bad_number_detail
     p["bad_type"] = bad_type
@@ -544,8 +619,13 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     if max_spread is not None and (not np.isfinite(max_spread) or max_spread <= 0):
         raise InputError("--max-spread", f"must be a positive number, not {max_spread}")
 
+    if max_strike_ratio is not None and (not np.isfinite(max_strike_ratio)
+                                         or max_strike_ratio <= 1):
+        raise InputError("--max-strike-ratio", f"must be a number above 1, not "
+                                               f"{max_strike_ratio}")
+
     reason, detail = assign_reasons(p, spot=spot_v, rate=rate_v, div_yield=q_v,
-                                    max_spread=max_spread)
+                                    max_spread=max_spread, max_strike_ratio=max_strike_ratio)
     kept = reason == ""
 
     # ---- optional fields
@@ -587,12 +667,10 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         "warnings": warn_sorted,
     })
     if col("iv") is not None:
-        had_pct = bool(col("iv").astype("string").str.contains("%", regex=False)
-                       .fillna(False).any()) if col("iv").dtype.kind not in "biuf" else False
-        iv_dec, was_pct = percent_or_decimal(opt["iv"], had_pct)
+        iv_dec, note = file_iv_decimals(col("iv"), opt["iv"])
         quotes["iv_file"] = iv_dec[order]
-        if was_pct:
-            notes.append("the file's IV column is in percent; converted to decimals")
+        if note:
+            notes.append(note)
     if sym is not None:
         quotes["symbol"] = sym.iloc[order].reset_index(drop=True)
 
@@ -627,4 +705,5 @@ def load_chain(path: str | Path, *, spot: float | None = None,
                        spot_source=spot_source, asof_source=asof_source,
                        rate_source=rate_source, div_yield_source=q_source,
                        layout="wide" if wide else "long", notes=tuple(notes),
-                       style_source=style_source, multiplier_source=multiplier_source)
+                       style_source=style_source, multiplier_source=multiplier_source,
+                       spot_reference=spot_ref, spot_reference_source=spot_ref_source)

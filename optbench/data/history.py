@@ -4,13 +4,17 @@ A history file is a CSV (or Parquet) with a date and a close; the adjusted close
 is used when the file has one (``Adj Close``, ``adjusted_close``, ...), and
 ``open``/``high``/``low`` are read when present (range-based realized-vol
 estimators need them). Problems are reported in ``PriceHistory.issues`` and never
-filled in silently: rows with an unreadable date or a missing or non-positive
-close are dropped (and listed), unsorted dates are sorted, a date given twice
-keeps its last row, and gaps longer than a week are listed.
+filled in silently: rows with an unreadable or out-of-range date (``bad_date``), or a
+missing/unreadable (``bad_close``), zero (``zero_close``) or negative
+(``negative_close``) close are dropped, each reason counted in
+``PriceHistory.dropped`` and listed with its first line numbers; unsorted dates are
+sorted; a date given twice keeps its last row (``duplicate_date`` when the rows
+agree on the close, ``conflicting_date`` when they do not); and gaps longer than a
+week are listed.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
@@ -47,6 +51,11 @@ class PriceHistory:
         What was found and done, one sentence each.
     close_column : str
         The file's column the closes came from.
+    rows_in : int
+        Data rows read from the file (``rows_in == len(dates) + sum(dropped.values())``).
+    dropped : dict of str -> int
+        Rows dropped, by reason: ``bad_date``, ``bad_close``, ``zero_close``,
+        ``negative_close``, ``duplicate_date``, ``conflicting_date``.
     """
 
     source: str
@@ -58,6 +67,8 @@ class PriceHistory:
     returns: np.ndarray
     issues: list
     close_column: str = "close"
+    rows_in: int = 0
+    dropped: dict = field(default_factory=dict)
 
     def __len__(self) -> int:
         return len(self.dates)
@@ -126,14 +137,20 @@ def load_history(path: str | Path) -> PriceHistory:
     bad_date = np.isnat(dates)
     if bad_date.all():
         raise InputError(path, f"no readable date in column '{cols['date']}'")
-    if bad_date.any():
-        issues.append(f"{int(bad_date.sum())} rows with a missing or unreadable date "
-                      f"dropped (lines {_lines(lines[bad_date])})")
-    bad_price = ~bad_date & ~(close > 0)
-    if bad_price.any():
-        issues.append(f"{int(bad_price.sum())} rows with a missing or non-positive close "
-                      f"dropped (lines {_lines(lines[bad_price])})")
-    keep = ~bad_date & ~bad_price
+    dropped: dict[str, int] = {}
+
+    def drop(code: str, mask: np.ndarray, what: str) -> None:
+        if mask.any():
+            dropped[code] = int(mask.sum())
+            issues.append(f"{int(mask.sum())} rows with {what} dropped ({code}; lines "
+                          f"{_lines(lines[mask])})")
+    drop("bad_date", bad_date, "a missing, unreadable or out-of-range date")
+    live = ~bad_date
+    drop("bad_close", live & np.isnan(close), f"a missing or unreadable close "
+                                              f"('{cols[close_field]}')")
+    drop("zero_close", live & (close == 0), "a zero close")
+    drop("negative_close", live & (close < 0), "a negative close")
+    keep = live & (close > 0)
 
     ohlc = {}
     for f in ("open", "high", "low"):
@@ -158,8 +175,20 @@ def load_history(path: str | Path) -> PriceHistory:
         df = df.sort_values("date", kind="stable")
     dup = df["date"].duplicated(keep="last").to_numpy()
     if dup.any():
-        issues.append(f"{int(dup.sum())} dates given more than once; the last row of each "
-                      f"is kept (dropped lines {_lines(df['line'].to_numpy()[dup])})")
+        # a repeated date whose rows disagree on the close is a conflict, not a copy
+        spread = df.groupby("date")["close"].transform(lambda c: c.max() - c.min())
+        conflict = dup & (spread.to_numpy() > 0)
+        same = dup & ~conflict
+        dl = df["line"].to_numpy()
+        if same.any():
+            dropped["duplicate_date"] = int(same.sum())
+            issues.append(f"{int(same.sum())} rows repeat an earlier row's date and close; "
+                          f"dropped (duplicate_date; lines {_lines(dl[same])})")
+        if conflict.any():
+            dropped["conflicting_date"] = int(conflict.sum())
+            issues.append(f"{int(conflict.sum())} rows give a date again with a different "
+                          "close; the last row of each date is kept (conflicting_date; "
+                          f"dropped lines {_lines(dl[conflict])})")
         df = df[~dup]
     if len(df) < 2:
         raise InputError(path, f"only {len(df)} usable price(s); at least 2 are needed")
@@ -171,7 +200,7 @@ def load_history(path: str | Path) -> PriceHistory:
         shown = "; ".join(f"{d[i]} to {d[i + 1]} ({gaps[i]} days)" for i in long_gap[:_SHOW])
         more = f" and {long_gap.size - _SHOW} more" if long_gap.size > _SHOW else ""
         issues.append(f"{long_gap.size} gaps longer than {GAP_DAYS} calendar days: "
-                      f"{shown}{more}")
+                      f"{shown}{more} (the return across a gap counts as one day's)")
     c = df["close"].to_numpy(dtype=float)
     out = {f: (df[f].to_numpy(dtype=float).copy() if v is not None else None)
            for f, v in ohlc.items()}
@@ -196,4 +225,5 @@ def load_history(path: str | Path) -> PriceHistory:
     returns = np.diff(np.log(c))
     return PriceHistory(source=str(path), dates=d, close=c, open=out["open"],
                         high=out["high"], low=out["low"], returns=returns, issues=issues,
-                        close_column=str(cols[close_field]))
+                        close_column=str(cols[close_field]), rows_in=int(len(frame)),
+                        dropped=dropped)

@@ -60,40 +60,61 @@ def to_number(col: pd.Series, *, decimal_comma: bool = False) -> np.ndarray:
     return out
 
 
+#: Dates outside this range are read as unreadable (NaT) and their rows reported
+#: (``bad_date``): no listed option or price history lies before 1900 or after 2200,
+#: and pandas' nanosecond timestamps stop in 2262.
+DATE_MIN = np.datetime64("1900-01-01", "D")
+DATE_MAX = np.datetime64("2200-12-31", "D")
+
+
+def _in_range_ns(values) -> np.ndarray:
+    """Parsed datetimes of any resolution -> datetime64[ns] at midnight, NaT outside
+    :data:`DATE_MIN` .. :data:`DATE_MAX` (never an out-of-bounds error)."""
+    arr = np.asarray(values)
+    if arr.dtype.kind != "M":
+        arr = np.asarray(pd.to_datetime(pd.Series(arr), errors="coerce"))
+    days = arr.astype("datetime64[D]")
+    ok = ~np.isnat(days) & (days >= DATE_MIN) & (days <= DATE_MAX)
+    out = np.full(days.shape, np.datetime64("NaT"), dtype="datetime64[ns]")
+    out[ok] = days[ok].astype("datetime64[ns]")
+    return out
+
+
 def _parse_unique(values: pd.Series) -> pd.Series:
     """Parse unique date strings, choosing the format that reads most of them."""
     text = values.astype("string").str.strip()
     # a trailing time of day is dropped: quotes are dated by their day
     text = text.str.replace(r"[T ]\d{1,2}:\d{2}(:\d{2}(\.\d*)?)?([+-]\d{2}:?\d{2}|Z)?$",
                             "", regex=True)
-    out = pd.Series(pd.NaT, index=values.index, dtype="datetime64[ns]")
+    out = np.full(len(text), np.datetime64("NaT"), dtype="datetime64[ns]")
     remaining = text.notna().to_numpy(dtype=bool).copy()
     # fast path: ISO dates, by far the most common
-    iso = pd.to_datetime(text, format=DATE_FORMATS[0], errors="coerce")
-    take = remaining & iso.notna().to_numpy()
+    iso = _in_range_ns(pd.to_datetime(text, format=DATE_FORMATS[0], errors="coerce"))
+    take = remaining & ~np.isnat(iso)
     out[take] = iso[take]
     remaining = remaining & ~take
     if not remaining.any():
-        return out
+        return pd.Series(out, index=values.index)
     rest = text[remaining]
     # rank the other formats on a sample of the values; ties keep DATE_FORMATS order
     sample = rest.iloc[:256]
     ranked = sorted(DATE_FORMATS[1:], key=lambda fmt: -int(
         pd.to_datetime(sample, format=fmt, errors="coerce").notna().sum()))
     for fmt in ranked:
-        left = out.isna().to_numpy() & remaining
+        left = np.isnat(out) & remaining
         if not left.any():
             break
-        idx = out.index[left]
-        parsed = pd.to_datetime(text[idx], format=fmt, errors="coerce")
-        got = parsed.notna().to_numpy()
+        idx = np.flatnonzero(left)
+        parsed = _in_range_ns(pd.to_datetime(text.iloc[idx], format=fmt, errors="coerce"))
+        got = ~np.isnat(parsed)
         if got.any():
-            out.loc[idx[got]] = parsed[got].to_numpy()
-    return out
+            out[idx[got]] = parsed[got]
+    return pd.Series(out, index=values.index)
 
 
 def to_date(col: pd.Series) -> pd.Series:
-    """Parse a column of dates to datetime64[ns] at midnight (NaT where unreadable).
+    """Parse a column of dates to datetime64[ns] at midnight (NaT where unreadable
+    or outside :data:`DATE_MIN` .. :data:`DATE_MAX`).
 
     Accepts ISO ``YYYY-MM-DD`` (with or without a time of day), ``YYYYMMDD`` (also
     as a number), ``MM/DD/YYYY`` (``DD/MM/YYYY`` when the column's values only fit
@@ -101,9 +122,8 @@ def to_date(col: pd.Series) -> pd.Series:
     is parsed once, so a chain of 100,000 rows with 20 expiries costs 20 parses.
     """
     if col.dtype.kind == "M":
-        return pd.Series(pd.to_datetime(col).dt.tz_localize(None)
-                         if getattr(col.dt, "tz", None) is not None else col,
-                         index=col.index).dt.normalize().astype("datetime64[ns]")
+        naive = col.dt.tz_localize(None) if getattr(col.dt, "tz", None) is not None else col
+        return pd.Series(_in_range_ns(naive.to_numpy()), index=col.index)
     if col.dtype.kind in "iuf":
         num = col.to_numpy(dtype=float, na_value=np.nan)
         whole = np.isfinite(num) & (num == np.round(num))

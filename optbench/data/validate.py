@@ -14,14 +14,15 @@ import pandas as pd
 REASONS: dict[str, str] = {
     "bad_symbol": "option symbol is not an OCC symbol (root, YYMMDD, C/P, strike x 1000)",
     "missing_field": "a required field (expiry, strike, type, bid, ask) is empty",
-    "bad_date": "expiry is not a readable date",
-    "bad_number": "strike, bid, ask or multiplier is not a number",
+    "bad_date": "expiry or quote date is not a readable date between 1900 and 2200",
+    "bad_number": "strike, bid, ask or multiplier is not a finite number (multiplier > 0)",
     "bad_type": "option type is not call/put (C/P)",
     "bad_style": "exercise style is not european/american",
     "symbol_mismatch": "option symbol disagrees with the expiry, strike or type columns",
     "other_underlying": "row is for another underlying than the chain's",
     "other_quote_date": "row is quoted on another date than the chain's as-of date",
     "nonpositive_strike": "strike is zero or negative",
+    "implausible_strike": "strike further from spot than the plausible factor (default 10x)",
     "expired": "expiry is on or before the quote date",
     "negative_quote": "bid or ask is negative",
     "crossed": "crossed market: ask below bid",
@@ -99,7 +100,8 @@ def no_arbitrage_bounds(spot: float, strike: np.ndarray, t: np.ndarray, rate: fl
 
 
 def assign_reasons(p, *, spot: float, rate: float, div_yield: float,
-                   max_spread: float | None) -> tuple[np.ndarray, np.ndarray]:
+                   max_spread: float | None,
+                   max_strike_ratio: float | None = None) -> tuple[np.ndarray, np.ndarray]:
     """The rejection reason ('' for a kept row) and its detail for every row.
 
     Parameters
@@ -117,13 +119,18 @@ def assign_reasons(p, *, spot: float, rate: float, div_yield: float,
         Spot (price units), continuously compounded rate and yield (decimals).
     max_spread : float or None
         Largest accepted (ask − bid) / mid; None switches the rule off.
+    max_strike_ratio : float or None
+        Strikes outside ``[spot / ratio, spot * ratio]`` are ``implausible_strike``;
+        None switches the rule off.
     """
     n = len(p["line"])
     a = _Assigner(n)
     a.apply("bad_symbol", np.asarray(p["bad_symbol"]), "symbol not readable")
     for field in ("expiry", "strike", "type", "bid", "ask"):
         a.apply("missing_field", np.asarray(p[f"missing_{field}"]), f"no {field}")
-    a.apply("bad_date", np.asarray(p["bad_date"]), "expiry not a date")
+    a.apply("bad_date", np.asarray(p["bad_date"]), "expiry not a date in 1900-2200")
+    if "bad_quote_date" in p:
+        a.apply("bad_date", np.asarray(p["bad_quote_date"]), "quote date not a date in 1900-2200")
     a.apply("bad_number", np.asarray(p["bad_number"]), np.asarray(p["bad_number_detail"]))
     a.apply("bad_type", np.asarray(p["bad_type"]), "type not call/put")
     a.apply("bad_style", np.asarray(p["bad_style"]), "style not european/american")
@@ -138,6 +145,12 @@ def assign_reasons(p, *, spot: float, rate: float, div_yield: float,
     days = np.asarray(p["calendar_days"], dtype=float)
     mult = np.asarray(p["multiplier"], dtype=float)
     a.apply("nonpositive_strike", strike <= 0, lambda s: "strike " + _g(strike[s]))
+    if max_strike_ratio is not None:
+        with np.errstate(over="ignore", invalid="ignore"):
+            far = (strike > spot * max_strike_ratio) | (strike < spot / max_strike_ratio)
+        a.apply("implausible_strike", far,
+                lambda s: "strike " + _g(strike[s]) + f" outside spot {spot:g} "
+                + f"/ x {max_strike_ratio:g}")
     a.apply("bad_number", mult <= 0, lambda s: "multiplier " + _g(mult[s]))
     a.apply("expired", days <= 0,
             lambda s: "expiry " + np.datetime_as_string(

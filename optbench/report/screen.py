@@ -20,6 +20,7 @@ SCREEN_KINDS = {
     "multiplier": "num", "sources": "text", "error": "text", "folder": "text",
     "floor_put_verdict": "text", "put25_verdict": "text", "drift_rule": "text",
     "drift_annual": "pct",
+    "warnings": "text",
 }
 
 SCREEN_LABELS = {
@@ -167,6 +168,12 @@ def screen_table(result, *, width: int | None = None, color: bool = False) -> st
             + " (risk-free = r - q, no expected excess return).")
     for f in result.failures:
         notes.append(f"Could not screen {f['code']}: {f['reason']}")
+    warned = {}
+    for r in result.rows:
+        if r.get("warnings"):
+            warned.setdefault(r.get("code"), r["warnings"])
+    for code, text in warned.items():
+        notes.append(f"Warnings for {code}: {text}")
     notes.append(inputs_note(result.rows))
     notes.append(result.caution)
     return _render([table, *notes], width=width, color=color)

@@ -31,8 +31,11 @@ COLUMNS = (
     "protection_expected_payoff", "protection_overpay", "protection_cost_pct_annual",
     "model", "fallback_reason", "rows_in", "rows_used", "spot", "asof", "style",
     "multiplier", "sources", "error", "folder",
-    "floor_put_verdict", "put25_verdict", "drift_rule", "drift_annual",
+    "floor_put_verdict", "put25_verdict", "drift_rule", "drift_annual", "warnings",
 )
+#: ``warnings`` holds the comparison's and the hedge's warnings (input disagreements,
+#: dropped history rows, ATM or forecast flags) joined with "; " ('' when none)
+WARNING_SEPARATOR = "; "
 
 
 @dataclass(frozen=True)
@@ -106,6 +109,7 @@ def screen_one(task: ScreenTask) -> list[dict]:
         row = by_expiry[listed[tenor]]
         cost = payoff = overpay = annual = strike = None
         error = None
+        notes = list(comparison.warnings)
         try:
             # a large notional keeps contract rounding out of the per-unit figures
             request = HedgeRequest(portfolio_value=1e3 * NOTIONAL, hedge_ratio=1.0,
@@ -118,6 +122,7 @@ def screen_one(task: ScreenTask) -> list[dict]:
             overpay = _num(est.overpay * scale)
             annual = _num(est.cost_pct_annual)
             strike = _num(est.strike)
+            notes += [w for w in est.warnings if w not in notes]
         except Exception as err:  # the comparison row still stands without a hedge
             error = f"hedge: {err}"
         rows.append({
@@ -141,5 +146,6 @@ def screen_one(task: ScreenTask) -> list[dict]:
             "floor_put_verdict": row.floor_put_verdict, "put25_verdict": row.put25_verdict,
             "drift_rule": comparison.drift.rule,
             "drift_annual": _num(comparison.drift.annual),
+            "warnings": WARNING_SEPARATOR.join(notes),
         })
     return rows

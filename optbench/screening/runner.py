@@ -111,7 +111,8 @@ def _run_on_dask(fn, items: Sequence[Any], address: str, progress: Progress | No
         raise InputError("--scheduler", "dask.distributed is not installed") from None
     try:
         client = Client(address, timeout="10s")
-    except (OSError, TimeoutError) as err:
+    except (OSError, TimeoutError, ValueError, TypeError) as err:
+        # ValueError/TypeError: not an address at all ("missing port number")
         raise InputError("--scheduler", f"cannot reach the Dask scheduler at {address}: "
                          f"{_describe(err)}") from None
     try:

@@ -35,6 +35,16 @@ VIEW_KEYS = Binding.Group(description="views", compact=True)
 EXPIRY_KEYS = Binding.Group(description="expiry", compact=True)
 
 
+def _ready_text(comparison) -> str:
+    """'ready', or 'ready with N warnings' naming the first: the status line never
+    says ready over a flagged answer without the flag."""
+    n = len(comparison.warnings)
+    if not n:
+        return "ready"
+    first = comparison.warnings[0]
+    return f"⚠ ready with {n} warning{'s' if n > 1 else ''} (overview): {first}"
+
+
 class Progress(Message):
     def __init__(self, token: int, step: int, text: str) -> None:
         super().__init__()
@@ -245,7 +255,8 @@ class Workbench(App):
         self.checked = True
         self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=STEPS)
         self._status(f"{c.underlying}: {len(c.expiries)} expiries, model {c.model.name}/"
-                     f"{c.model.dist}, checked out of sample — ready")
+                     f"{c.model.dist}, checked out of sample — "
+                     + _ready_text(c))
         self.view("overview").show(c, self.headline, not self.headline_ready)
         self.view("model").show(c)
 

@@ -30,6 +30,17 @@ def demo():
     return compare(DEMO, model="gjr", dist="t")
 
 
+def _scaled_to(history: pd.DataFrame, spot: float) -> pd.DataFrame:
+    """The demo history's prices scaled to end at ``spot`` (same returns), so the
+    chain's spot and the history's last close agree as the sanity gates require."""
+    out = history.copy()
+    factor = spot / float(out["close"].iloc[-1])
+    for col in ("open", "high", "low", "close"):
+        if col in out.columns:
+            out[col] = out[col] * factor
+    return out
+
+
 @pytest.fixture(scope="module")
 def flat_chain(tmp_path_factory):
     """A chain priced by vollib at 25 % on four expiries, with the demo history."""
@@ -53,7 +64,7 @@ def flat_chain(tmp_path_factory):
                              "bid": price - half, "ask": price + half})
     folder = tmp_path_factory.mktemp("flat")
     pd.DataFrame(rows).to_csv(folder / "chain.csv", index=False, float_format="%.12g")
-    history.to_csv(folder / "history.csv", index=False)
+    _scaled_to(history, SPOT).to_csv(folder / "history.csv", index=False)
     return folder
 
 
@@ -238,7 +249,7 @@ def american_chain(tmp_path_factory):
                              "ask": p + 0.01, "style": "american"})
     folder = tmp_path_factory.mktemp("american")
     pd.DataFrame(rows).to_csv(folder / "chain.csv", index=False, float_format="%.12g")
-    history.to_csv(folder / "history.csv", index=False)
+    _scaled_to(history, spot).to_csv(folder / "history.csv", index=False)
 
     def price(strike, days, is_call, sigma):
         proc = ql.BlackScholesMertonProcess(

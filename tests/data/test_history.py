@@ -54,10 +54,14 @@ def test_issues_are_reported_not_filled(tmp_path):
     np.testing.assert_allclose(h.close, [100, 101, 103, 104])
     np.testing.assert_allclose(h.returns, np.diff(np.log([100, 101, 103, 104])))
     text = " | ".join(h.issues)
-    assert "unreadable date dropped (lines 9)" in text
-    assert "non-positive close dropped (lines 4, 5)" in text
+    assert "out-of-range date dropped (bad_date; lines 9)" in text
+    assert "a negative close dropped (negative_close; lines 4)" in text
+    assert "unreadable close ('Close') dropped (bad_close; lines 5)" in text
     assert "sorted" in text
-    assert "last row of each is kept (dropped lines 6)" in text
+    assert "last row of each date is kept (conflicting_date; dropped lines 6)" in text
+    assert h.dropped == {"bad_date": 1, "bad_close": 1, "negative_close": 1,
+                         "conflicting_date": 1}
+    assert h.rows_in == len(h.dates) + sum(h.dropped.values())
     assert "2026-01-08 to 2026-02-09 (32 days)" in text
     assert h.open is None and h.high is None
 

@@ -29,6 +29,8 @@ ROWS = {
     "other_underlying":   "ZPHXW,2026-11-27,100,2027-05-28,120,C,1.00,1.20,10,100,european,",
     "other_quote_date":   "ZPHX,2026-11-26,100,2027-05-28,125,C,1.00,1.20,10,100,european,",
     "nonpositive_strike": "ZPHX,2026-11-27,100,2027-05-28,0,C,99.0,99.4,10,100,european,",
+    # a strike typed with three extra zeros: 1,000x spot, beyond the default factor 10
+    "implausible_strike": "ZPHX,2026-11-27,100,2027-05-28,100000,P,5.00,5.10,10,100,european,",
     "expired":            "ZPHX,2026-11-27,100,2026-11-27,95,C,5.00,5.10,10,100,european,",
     "negative_quote":     "ZPHX,2026-11-27,100,2027-05-28,130,C,-0.10,0.40,10,100,european,",
     "crossed":            "ZPHX,2026-11-27,100,2027-05-28,90,P,2.00,1.80,10,100,european,",
