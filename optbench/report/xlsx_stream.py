@@ -187,15 +187,17 @@ class StreamingWorkbook:
         return self._styles.index[code]
 
     @contextmanager
-    def _sheet(self, name: str, columns: Sequence[str]):
-        """Open sheet ``name``, write its header row; yields the text stream."""
+    def _sheet(self, name: str, columns: Sequence[str], n_rows: int):
+        """Open sheet ``name`` (``n_rows`` below the header), write its header row;
+        yields the text stream."""
         index = len(self._sheets) + 1
         self._sheets.append(name)
         with self._zip.open(f"xl/worksheets/sheet{index}.xml", "w", force_zip64=True) as raw:
             out = io.TextIOWrapper(raw, encoding="utf-8", newline="")
             widths = "".join(f'<col min="{j}" max="{j}" width="{max(10, min(28, len(c) + 2))}"'
                              ' customWidth="1"/>' for j, c in enumerate(columns, start=1))
-            out.write(f"{_HEAD}<worksheet {_NS}><sheetViews><sheetView workbookViewId=\"0\">"
+            last = f"{column_letter(max(len(columns), 1))}{n_rows + 1}"
+            out.write(f"{_HEAD}<worksheet {_NS}><dimension ref=\"A1:{last}\"/><sheetViews><sheetView workbookViewId=\"0\">"
                       '<pane ySplit="1" topLeftCell="A2" activePane="bottomLeft" '
                       'state="frozen"/></sheetView></sheetViews>'
                       f"{'<cols>' + widths + '</cols>' if columns else ''}<sheetData>")
@@ -215,12 +217,11 @@ class StreamingWorkbook:
         (a DataFrame or several with these columns, written in order); ``formats``
         maps a column to its number format."""
         formats = formats or {}
-        if isinstance(frames, pd.DataFrame):
-            frames = [frames]
+        frames = [frames] if isinstance(frames, pd.DataFrame) else list(frames)
         columns = [str(c) for c in columns]
         letters = [column_letter(j) for j in range(1, len(columns) + 1)]
         styles = [self._style(formats.get(c)) for c in columns]
-        with self._sheet(name, columns) as out:
+        with self._sheet(name, columns, sum(len(f) for f in frames)) as out:
             row = 2
             for frame in frames:
                 frame = frame.set_axis([str(c) for c in frame.columns], axis=1)
@@ -251,7 +252,8 @@ class StreamingWorkbook:
         columns = [str(c) for c in columns]
         letters = [column_letter(j) for j in range(1, len(columns) + 1)]
         cache: dict[str, str] = {}
-        with self._sheet(name, columns) as out:
+        rows = [list(r) for r in rows]
+        with self._sheet(name, columns, len(rows)) as out:
             for i, values in enumerate(rows):
                 r = i + 2
                 last = len(values) - 1
