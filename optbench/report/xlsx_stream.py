@@ -103,7 +103,7 @@ def _column_cells(values: pd.Series, letter: str, rows: list[str], style: int) -
         return [f'<c r="{letter}{r}"{s}><v>{v}</v></c>' for r, v in zip(rows, arr.tolist())]
     if pd.api.types.is_float_dtype(dtype):
         arr = values.to_numpy(dtype=float)
-        text = arr.astype(str).tolist()       # shortest text that round-trips the float
+        text = list(map(repr, arr.tolist()))   # shortest text that round-trips the float
         finite = np.isfinite(arr).tolist()
         return [f'<c r="{letter}{r}"{s}><v>{v}</v></c>' if ok else ""
                 for r, v, ok in zip(rows, text, finite)]
@@ -113,7 +113,12 @@ def _column_cells(values: pd.Series, letter: str, rows: list[str], style: int) -
         serial = (arr - _EPOCH).astype(np.int64).tolist()
         return [f'<c r="{letter}{r}"{s}><v>{v}</v></c>' if good else ""
                 for r, v, good in zip(rows, serial, ok)]
-    return _mixed_cells(values.tolist(), letter, rows, s)
+    items = values.tolist()
+    if all(type(v) is str for v in items):                # text: escaped once per value
+        xml = {v: _text_xml(v) for v in set(items)}
+        return [f'<c r="{letter}{r}" t="inlineStr"{s}><is><t xml:space="preserve">{xml[v]}'
+                '</t></is></c>' for r, v in zip(rows, items)]
+    return _mixed_cells(items, letter, rows, s)
 
 
 def _mixed_cells(items: list, letter: str, rows: list[str], s: str) -> list[str]:
