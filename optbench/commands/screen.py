@@ -64,7 +64,6 @@ def run(args: argparse.Namespace) -> int:
     for path, fmt in plan:
         if fmt in ("xlsx", "html") and path is None:
             raise InputError("--format", f"{fmt} writes a file: give -o FILE")
-    from optbench.report import screen as views
     from optbench.screening.screen import screen
 
     bar, update = _progress_bar()
