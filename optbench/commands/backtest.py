@@ -15,8 +15,8 @@ import json
 
 import numpy as np
 
-from optbench.commands.common import (add_model_options, add_output_options, parse_date,
-                                      parse_positive, whole_number, write_output)
+from optbench.commands.common import (add_model_options, add_output_options, output_plan,
+                                      parse_date, parse_positive, whole_number, write_outputs)
 
 DEFAULT_OUT_OF_SAMPLE = 504   # trading days held out when --split is not given
 CAUTION = ("Model check on past data: estimates, not advice. Decisions belong with your "
@@ -47,7 +47,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     parser.add_argument("--refit-every", dest="refit_every", type=whole_number(1), default=None,
                         metavar="N", help="re-estimate the parameters every N out-of-sample "
                                           "days (default: hold them fixed)")
-    add_output_options(parser)
+    add_output_options(parser, formats=("table", "json", "csv", "xlsx"))
     parser.set_defaults(run=run)
     return parser
 
@@ -70,6 +70,10 @@ def run(args: argparse.Namespace) -> int:
 
     from optbench.analysis import sanity
 
+    plan = output_plan(args)
+    for path, fmt in plan:
+        if fmt == "xlsx" and path is None:
+            raise InputError("--format", "xlsx writes a file: give -o FILE")
     history = load_history(args.history)
     findings = sanity.history_findings(history)
     rdates = np.asarray(history.dates).astype("datetime64[D]")[1:]
@@ -81,41 +85,58 @@ def run(args: argparse.Namespace) -> int:
     split = args.split if args.split is not None else default_split(rdates, rdates.size)
     result = backtest(history, split, model=args.model, dist=args.dist, mean=args.mean,
                       k=args.k, refit_every=args.refit_every)
-    if args.format == "json":
-        from optbench.report.jsonout import clean
-        doc = clean(result.to_dict())
-        doc["warnings"] = [f"history: {i}" for i in history.issues] + findings
-        doc["caution"] = CAUTION
-        write_output(args, json.dumps(doc, indent=2, allow_nan=False))
-    elif args.format == "csv":
-        write_output(args, daily_csv(result))
-    else:
-        write_output(args, "".join(f"warning: {w}\n" for w in findings)
-                     + table_text(result))
+    warnings = [f"history: {i}" for i in history.issues] + findings
+    write_outputs(args, lambda fmt: render(result, fmt, warnings, findings), plan)
     return 0
 
 
-# --------------------------------------------------------------------------- csv
-def daily_csv(result) -> str:
-    """One row per out-of-sample day: return, forecast daily vol, z, band, VaR hits."""
-    import csv
+def render(result, fmt: str, warnings=(), findings=()):
+    """``backtest`` in ``fmt``: JSON, one row per out-of-sample day as CSV (with its
+    notes), the workbook (days, VaR, surprises, notes), or the report. ``warnings``
+    (history issues and the sanity findings) go into the JSON; the table leads with
+    ``findings`` (it lists the history issues itself)."""
+    if fmt == "json":
+        from optbench.report.jsonout import clean
+        doc = clean(result.to_dict())
+        doc["warnings"] = list(warnings)
+        doc["caution"] = CAUTION
+        return json.dumps(doc, indent=2, allow_nan=False)
+    if fmt == "csv":
+        return daily_csv(result)
+    if fmt == "xlsx":
+        from optbench.report.files import StreamedFile
+        from optbench.report.xlsx import backtest_xlsx
+        return StreamedFile(lambda f: backtest_xlsx(result, daily_frame(result), CAUTION, f))
+    return "".join(f"warning: {w}\n" for w in findings) + table_text(result)
 
-    n_in = result.n_in
-    levels = [v.level for v in result.var]
-    buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(["date", "return", "sigma_daily", "z", "band_low", "band_high", "close",
-                "outside_band"] + [f"var_{100 * lv:g}_exceeded" for lv in levels])
-    z = result.std_resid_out
-    hits = [z < v.quantile_z for v in result.var]
-    for i in range(result.n_out):  # output formatting, one line per day
-        w.writerow([str(result.dates_out[i]), f"{result.returns_out[i]:.8f}",
-                    f"{result.sigma_out[i]:.8f}", f"{z[i]:.6f}",
-                    f"{result.chart_band_low[n_in + i]:.6f}",
-                    f"{result.chart_band_high[n_in + i]:.6f}",
-                    f"{result.chart_close[n_in + i]:.6f}",
-                    int(abs(z[i]) > result.band_k)] + [int(h[i]) for h in hits])
-    return buf.getvalue()
+
+# --------------------------------------------------------------------------- csv
+def daily_frame(result):
+    """One row per out-of-sample day: date, return, forecast daily vol (sigma_daily),
+    z, the close's band, the close, outside_band and one 0/1 column per VaR level."""
+    import pandas as pd
+    n_in, n = result.n_in, result.n_out
+    z = np.asarray(result.std_resid_out, float)
+    frame = pd.DataFrame({
+        "date": pd.to_datetime(np.asarray(result.dates_out, "datetime64[D]")),
+        "return": np.asarray(result.returns_out, float),
+        "sigma_daily": np.asarray(result.sigma_out, float),
+        "z": z,
+        "band_low": np.asarray(result.chart_band_low, float)[n_in:n_in + n],
+        "band_high": np.asarray(result.chart_band_high, float)[n_in:n_in + n],
+        "close": np.asarray(result.chart_close, float)[n_in:n_in + n],
+        "outside_band": (np.abs(z) > result.band_k).astype(int)})
+    for v in result.var:
+        frame[f"var_{100 * v.level:g}_exceeded"] = (z < v.quantile_z).astype(int)
+    return frame
+
+
+def daily_csv(result):
+    """The daily table as CSV text with its notes."""
+    from optbench.report.csv import frame_csv
+    from optbench.report.notes import backtest_notes
+    return frame_csv(daily_frame(result),
+                     backtest_notes(result, CAUTION, "optbench backtest: out-of-sample days"))
 
 
 # --------------------------------------------------------------------------- table

@@ -17,8 +17,8 @@ import math
 from pathlib import Path
 
 from optbench.commands.common import (add_market_overrides, add_output_options,
-                                      market_overrides, parse_positive, whole_number,
-                                      write_output)
+                                      market_overrides, output_plan, parse_positive,
+                                      whole_number, write_outputs)
 
 
 
@@ -32,7 +32,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                      "folder). Every quote is used or rejected with one named reason; "
                      "usable quotes that deserve a look are flagged."))
     parser.add_argument("chain", metavar="CHAIN", help="chain file or scenario folder")
-    add_output_options(parser)
+    add_output_options(parser, formats=("table", "json", "csv", "xlsx"))
     add_market_overrides(parser)
     parser.add_argument("--max-spread", dest="max_spread", type=parse_positive, default=None,
                         help="largest accepted (ask-bid)/mid, a decimal (default 1.0 = 100%%)")
@@ -167,17 +167,29 @@ def _table_text(chain, rows: int) -> str:
 
 
 def run(args: argparse.Namespace) -> int:
+    plan = output_plan(args)
+    for path, fmt in plan:
+        if fmt == "xlsx" and path is None:
+            from optbench.errors import InputError
+            raise InputError("--format", "xlsx writes a file: give -o FILE")
     chain = _load(args)
-    if args.format == "json":
-        doc = report_dict(chain, args.rows)
-        try:
-            from optbench.report.jsonout import clean
-            doc = clean(doc)
-        except ImportError:
-            pass
-        write_output(args, json.dumps(doc, indent=2, allow_nan=False))
-    elif args.format == "csv":
-        write_output(args, chain.rejected.to_csv(index=False, lineterminator="\n"))
-    else:
-        write_output(args, _table_text(chain, args.rows))
+    write_outputs(args, lambda fmt: render(chain, args, fmt), plan)
     return 0
+
+
+def render(chain, args: argparse.Namespace, fmt: str):
+    """``check`` in ``fmt``: the JSON document, every rejected row as CSV (with its
+    notes), the workbook (rejected rows, reasons, expiries, notes) or the report."""
+    if fmt == "json":
+        from optbench.report.jsonout import clean
+        return json.dumps(clean(report_dict(chain, args.rows)), indent=2, allow_nan=False)
+    if fmt == "csv":
+        from optbench.report.csv import frame_csv
+        from optbench.report.notes import chain_notes
+        return frame_csv(chain.rejected, chain_notes(chain, "optbench check: rejected rows"))
+    if fmt == "xlsx":
+        from optbench.report.files import StreamedFile
+        from optbench.report.xlsx import chain_xlsx
+        expiries = _expiries(chain)
+        return StreamedFile(lambda f: chain_xlsx(chain, expiries, f))
+    return _table_text(chain, args.rows)

@@ -1,6 +1,8 @@
 """Options shared by several sub-commands, and writing their output.
 
-Every command takes ``--format`` and ``-o FILE``; commands that read a chain take
+Every command takes ``--format`` and ``-o FILE`` (repeatable: ``-o t.csv -o t.xlsx``
+writes both from one run, each in the format its extension names); an ``-o`` that
+names one of the command's input files is refused. Commands that read a chain take
 the market overrides ``--spot``, ``--asof``, ``--rate``, ``--div-yield``; commands
 that fit a volatility model take ``--model``, ``--dist`` and ``--mean``.
 """
@@ -8,7 +10,10 @@ from __future__ import annotations
 
 import argparse
 import datetime as _dt
+import os
 import sys
+from collections.abc import Callable
+from pathlib import Path
 
 from optbench.errors import InputError
 
@@ -16,12 +21,45 @@ TEXT_FORMATS = ("table", "json", "csv", "md", "html")
 FILE_ONLY_FORMATS = ("xlsx",)
 
 
+#: output format named by a file's extension
+EXTENSION_FORMATS = {".csv": "csv", ".json": "json", ".xlsx": "xlsx", ".md": "md",
+                     ".markdown": "md", ".html": "html", ".htm": "html", ".txt": "table"}
+
+from optbench.report.files import (SCENARIO_FILES, _exists, _same,  # noqa: F401
+                                   refuse_input_overwrite)
+
+
+class _FormatAction(argparse.Action):
+    """``--format``: remembers that the user chose it (``args.format_given``)."""
+
+    def __call__(self, parser, namespace, value, option_string=None):
+        namespace.format = value
+        namespace.format_given = True
+
+
+class _OutputAction(argparse.Action):
+    """``-o FILE``, repeatable: ``args.outputs`` lists them, ``args.output`` is the first."""
+
+    def __call__(self, parser, namespace, value, option_string=None):
+        outputs = list(getattr(namespace, "outputs", None) or [])
+        outputs.append(value)
+        namespace.outputs = outputs
+        if getattr(namespace, "output", None) is None:
+            namespace.output = value
+
+
 def add_output_options(parser: argparse.ArgumentParser,
                        formats: tuple[str, ...] = ("table", "json", "csv")) -> None:
     parser.add_argument("--format", "-f", choices=formats, default="table",
-                        help="output format (default: table)")
-    parser.add_argument("-o", "--output", metavar="FILE", default=None,
-                        help="write the output to FILE instead of the terminal")
+                        action=_FormatAction,
+                        help="output format (default: table, or the extension of -o)")
+    parser.add_argument("-o", "--output", metavar="FILE", default=None, action=_OutputAction,
+                        help="write the output to FILE instead of the terminal; repeat to "
+                             "write several formats from one run, each named by its "
+                             "extension (" + ", ".join(
+                                 e for e, f in EXTENSION_FORMATS.items() if f in formats)
+                             + "); never one of the command's input files")
+    parser.set_defaults(outputs=None, format_given=False, output_formats=tuple(formats))
 
 
 def parse_date(text: str) -> _dt.date:
@@ -169,14 +207,110 @@ def drift_options(args: argparse.Namespace) -> dict:
             "excess_return": getattr(args, "excess_return", None)}
 
 
-def write_output(args: argparse.Namespace, payload: str | bytes) -> None:
-    """Write to ``-o FILE`` (reporting where it went on stderr) or to stdout."""
+def input_paths(args: argparse.Namespace, extra=()) -> list[tuple[str, Path]]:
+    """``(argument, path)`` of every argument value that names an existing file or
+    folder (the command's inputs: chain, history, scenario or universe folder,
+    holdings, ...), plus ``extra`` (inputs the command found itself)."""
+    skip = {"output", "outputs", "format", "format_given", "output_formats", "run",
+            "command"}
+    found = []
+    for key, value in vars(args).items():
+        if key in skip or key.startswith("_"):
+            continue
+        for item in (value if isinstance(value, (list, tuple)) else [value]):
+            if isinstance(item, (str, os.PathLike)) and str(item):
+                path = Path(item).expanduser()
+                if _exists(path):
+                    found.append((key, path))
+    found += [("CHAIN", Path(p)) for p in extra if p is not None and _exists(Path(p))]
+    return found
+
+
+def output_plan(args: argparse.Namespace, extra_inputs=()) -> list[tuple[Path | None, str]]:
+    """Where each output goes and in which format: ``[(path or None, format)]``.
+
+    One ``-o`` takes ``--format`` when given, else its extension's format, else the
+    table; several ``-o`` each take their extension's format (``--format`` only for
+    an extension that names none). A format the command cannot write, an extension
+    that names no format, the same file twice, or a file that is one of the
+    command's inputs (:func:`refuse_input_overwrite`) is an InputError. Also sets
+    ``args.format`` to the first output's format.
+    """
+    outputs = list(getattr(args, "outputs", None) or [])
+    if not outputs and getattr(args, "output", None):
+        outputs = [args.output]
+    offered = tuple(getattr(args, "output_formats", None) or ())
+    given = bool(getattr(args, "format_given", False))
+    fmt = getattr(args, "format", None) or "table"
+    if not outputs:
+        return [(None, fmt)]
+    plan: list[tuple[Path | None, str]] = []
+    for out in outputs:
+        named = EXTENSION_FORMATS.get(Path(out).suffix.lower())
+        if given and len(outputs) == 1:
+            chosen = fmt
+        elif named is not None:
+            chosen = named
+        elif given or len(outputs) == 1:
+            chosen = fmt
+        else:
+            raise InputError(f"-o {out}", "the extension names no format; use one of "
+                             + ", ".join(e for e, f in EXTENSION_FORMATS.items()
+                                         if not offered or f in offered))
+        if offered and chosen not in offered:
+            raise InputError(f"-o {out}", f"this command cannot write {chosen}; it writes "
+                                          f"{', '.join(offered)}")
+        plan.append((Path(out), chosen))
+    seen: list[Path] = []
+    for path, _ in plan:
+        if any(path.resolve(strict=False) == p.resolve(strict=False) or _same(path, p)
+               for p in seen):
+            raise InputError(f"-o {path}", "named twice; give each output its own file")
+        seen.append(path)
+    inputs = input_paths(args, extra_inputs)
+    for path, _ in plan:
+        refuse_input_overwrite(path, inputs)
+    args.format = plan[0][1]
+    return plan
+
+
+def write_outputs(args: argparse.Namespace, render: Callable[[str], object],
+                  plan: list[tuple[Path | None, str]] | None = None) -> None:
+    """Render once per planned output (``render(format)`` gives text, bytes or a
+    :class:`~optbench.report.files.StreamedFile`) and write each; the result behind
+    them is computed once by the caller."""
+    plan = plan if plan is not None else output_plan(args)
+    for path, fmt in plan:
+        _write_one(path, render(fmt))
+
+
+def _write_one(path: Path | None, payload) -> None:
+    from optbench.report.files import StreamedFile, sidecar_path, write_payload
+    if path is not None:
+        written = write_payload(path, payload)
+        print(f"optbench: wrote {written}", file=sys.stderr)
+        if getattr(payload, "notes", None):
+            print(f"optbench: wrote {sidecar_path(written)} (the table's notes)",
+                  file=sys.stderr)
+        return
+    if isinstance(payload, (bytes, StreamedFile)):
+        raise InputError("--format", "this format writes a file: give -o FILE")
+    text = str(payload)
+    sys.stdout.write(text if text.endswith("\n") else text + "\n")
+    notes = getattr(payload, "notes", None)
+    if notes:
+        from optbench.report.notes import note_lines
+        sys.stdout.flush()
+        for line in note_lines(notes):
+            if line.split(":", 1)[0] in ("warnings", "failures", "caution", "table",
+                                         "asof", "model", "source"):
+                print(f"optbench: {line}", file=sys.stderr)
+
+
+def write_output(args: argparse.Namespace, payload) -> None:
+    """Write to ``-o FILE`` (reporting where it went on stderr) or to stdout; an
+    ``-o`` naming an input of the command is refused."""
     target = getattr(args, "output", None)
     if target:
-        from optbench.report.files import write_payload
-        path = write_payload(target, payload)
-        print(f"optbench: wrote {path}", file=sys.stderr)
-        return
-    if isinstance(payload, bytes):
-        raise InputError("--format", "this format writes a file: give -o FILE")
-    sys.stdout.write(payload if payload.endswith("\n") else payload + "\n")
+        refuse_input_overwrite(target, input_paths(args))
+    _write_one(Path(target) if target else None, payload)

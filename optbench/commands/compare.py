@@ -13,9 +13,9 @@ from pathlib import Path
 
 from optbench.commands.common import (MAX_PATHS, MAX_SEED, add_drift_options,
                                       add_market_overrides, add_model_options,
-                                      add_output_options, drift_options,
-                                      market_overrides, parse_date, parse_float,
-                                      whole_number, write_output)
+                                      add_output_options, drift_options, market_overrides,
+                                      output_plan, parse_date, parse_float, whole_number,
+                                      write_outputs)
 from optbench.errors import InputError
 
 FORMATS = ("table", "json", "csv", "xlsx", "md", "html")
@@ -74,9 +74,15 @@ def progress_printer():
     return say
 
 
-def check_file_formats(args: argparse.Namespace) -> None:
-    if args.format in ("xlsx", "html") and not args.output:
-        raise InputError("--format", f"{args.format} writes a file: give -o FILE")
+def check_file_formats(args: argparse.Namespace, plan=None) -> list:
+    """The output plan (:func:`~optbench.commands.common.output_plan`), with the
+    default chain folder counted as an input; xlsx and html need ``-o FILE``."""
+    if plan is None:
+        plan = output_plan(args, [chain_source(args)] if args.chain is None else [])
+    for path, fmt in plan:
+        if fmt in ("xlsx", "html") and path is None:
+            raise InputError("--format", f"{fmt} writes a file: give -o FILE")
+    return plan
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
@@ -110,12 +116,13 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
 
 
 def run(args: argparse.Namespace) -> int:
-    check_file_formats(args)
+    plan = check_file_formats(args)
     from optbench.analysis.compare import compare
 
+    html = any(fmt == "html" for _, fmt in plan)
     comparison = compare(chain_source(args), args.history, model=args.model, dist=args.dist,
                          mean=args.mean, band=args.band, n_paths=args.paths or 2000,
-                         seed=args.seed, backtest=bool(args.backtest or args.format == "html"),
+                         seed=args.seed, backtest=bool(args.backtest or html),
                          progress=progress_printer(), floor=args.floor,
                          **drift_options(args), **market_overrides(args))
     for e in args.expiry or ():
@@ -126,26 +133,26 @@ def run(args: argparse.Namespace) -> int:
         print(f"optbench: recorded {len(comparison.expiries)} expiries of "
               f"{comparison.underlying} {comparison.asof.isoformat()} in {args.record}",
               file=sys.stderr)
-    write_output(args, render(comparison, args))
+    write_outputs(args, lambda fmt: render(comparison, args, fmt), plan)
     return 0
 
 
-def render(comparison, args: argparse.Namespace) -> str | bytes:
-    fmt = args.format
+def render(comparison, args: argparse.Namespace, fmt: str | None = None):
+    """The output in ``fmt`` (default ``args.format``): text, CSV text with its
+    notes, or a streamed XLSX file."""
+    fmt = fmt or args.format
     expiries = [e.isoformat() for e in (args.expiry or ())]
     if fmt == "json":
         from optbench.report.jsonout import dumps
         return dumps(comparison, kind="compare")
     if fmt == "csv":
-        from optbench.report.csv import comparison_csv, frame_csv, _comment
-        if args.table == "strikes" and expiries:
-            import pandas as pd
-            frame = pd.concat([comparison.strike_frame(e) for e in expiries], ignore_index=True)
-            return frame_csv(frame, _comment("compare strikes", comparison))
-        return comparison_csv(comparison, args.table)
+        from optbench.report.csv import comparison_csv
+        return comparison_csv(comparison, args.table,
+                              expiries if args.table == "strikes" else None)
     if fmt == "xlsx":
+        from optbench.report.files import StreamedFile
         from optbench.report.xlsx import comparison_xlsx
-        return comparison_xlsx(comparison)
+        return StreamedFile(lambda f: comparison_xlsx(comparison, f))
     if fmt == "md":
         from optbench.report.markdown import comparison_markdown
         return comparison_markdown(comparison, strikes_for=expiries)

@@ -8,12 +8,11 @@ parameter uncertainty.
 from __future__ import annotations
 
 import argparse
-import csv
 import io
 import json
 
 from optbench.commands.common import (add_model_options, add_output_options, day_list,
-                                      write_output)
+                                      output_plan, write_outputs)
 from optbench.errors import InputError
 
 DEFAULT_HORIZONS = (5, 10, 21, 63, 126, 252)
@@ -35,7 +34,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     parser.add_argument("--horizons", type=day_list("5,21,63"), default=DEFAULT_HORIZONS,
                         help="trading-day horizons, comma-separated "
                              "(default: 5,10,21,63,126,252)")
-    add_output_options(parser)
+    add_output_options(parser, formats=("table", "json", "csv", "xlsx"))
     parser.set_defaults(run=run)
     return parser
 
@@ -82,27 +81,40 @@ def fit_report(history, model: str, dist: str, mean: str, horizons) -> dict:
 def run(args: argparse.Namespace) -> int:
     from optbench.data.history import load_history
 
+    plan = output_plan(args)
+    for path, fmt in plan:
+        if fmt == "xlsx" and path is None:
+            raise InputError("--format", "xlsx writes a file: give -o FILE")
     history = load_history(args.history)
     doc = fit_report(history, args.model, args.dist, args.mean, args.horizons)
-    if args.format == "json":
-        from optbench.report.jsonout import clean
-        write_output(args, json.dumps(clean(doc), indent=2, allow_nan=False))
-    elif args.format == "csv":
-        write_output(args, term_structure_csv(doc))
-    else:
-        write_output(args, table_text(doc))
+    write_outputs(args, lambda fmt: render(doc, fmt), plan)
     return 0
 
 
-def term_structure_csv(doc: dict) -> str:
-    buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(["trading_days", "forecast_vol", "low", "high", "model", "dist"])
+def render(doc: dict, fmt: str):
+    """``fit`` in ``fmt``: JSON, the term structure as CSV (with its notes), the
+    workbook, or the report."""
+    if fmt == "json":
+        from optbench.report.jsonout import clean
+        return json.dumps(clean(doc), indent=2, allow_nan=False)
+    if fmt == "csv":
+        return term_structure_csv(doc)
+    if fmt == "xlsx":
+        from optbench.report.files import StreamedFile
+        from optbench.report.xlsx import fit_xlsx
+        return StreamedFile(lambda f: fit_xlsx(doc, f))
+    return table_text(doc)
+
+
+def term_structure_csv(doc: dict):
+    """One row per horizon: trading_days, forecast_vol, low, high, model, dist."""
+    from optbench.report.csv import write_rows
+    from optbench.report.notes import fit_notes
     m = doc["model"]
-    for row in doc["term_structure"]:
-        w.writerow([row["trading_days"], f"{row['forecast_vol']:.6f}", f"{row['low']:.6f}",
-                    f"{row['high']:.6f}", m["name"], m["dist"]])
-    return buf.getvalue()
+    rows = ([row["trading_days"], row["forecast_vol"], row["low"], row["high"], m["name"],
+             m["dist"]] for row in doc["term_structure"])
+    return write_rows(["trading_days", "forecast_vol", "low", "high", "model", "dist"], rows,
+                      fit_notes(doc, "optbench fit: forecast term structure"))
 
 
 def _pct(x, digits=2) -> str:

@@ -11,7 +11,8 @@ import argparse
 import sys
 
 from optbench.commands.common import (add_output_options, drift_options, market_overrides,
-                                      parse_date, whole_number, write_output)
+                                      parse_date, whole_number,
+                                      write_outputs)
 from optbench.commands.compare import (FORMATS, add_chain_arguments, chain_source,
                                        check_file_formats, progress_printer)
 
@@ -55,7 +56,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
 
 
 def run(args: argparse.Namespace) -> int:
-    check_file_formats(args)
+    plan = check_file_formats(args)
     from optbench.analysis.compare import compare
     from optbench.analysis.hedge import hedge_from_comparison
     from optbench.analysis.results import HedgeRequest
@@ -74,12 +75,12 @@ def run(args: argparse.Namespace) -> int:
     if say:
         say(f"hedge estimates over {n_paths:,} paths")
     estimate = hedge_from_comparison(comparison, request, n_paths=n_paths, seed=args.seed)
-    write_output(args, render(estimate, args))
+    write_outputs(args, lambda fmt: render(estimate, args, fmt), plan)
     return 0
 
 
-def render(estimate, args: argparse.Namespace) -> str | bytes:
-    fmt = args.format
+def render(estimate, args: argparse.Namespace, fmt: str | None = None):
+    fmt = fmt or args.format
     if fmt == "json":
         from optbench.report.jsonout import dumps
         return dumps(estimate, kind="hedge")
@@ -87,8 +88,9 @@ def render(estimate, args: argparse.Namespace) -> str | bytes:
         from optbench.report.csv import hedge_csv
         return hedge_csv(estimate, args.table)
     if fmt == "xlsx":
+        from optbench.report.files import StreamedFile
         from optbench.report.xlsx import hedge_xlsx
-        return hedge_xlsx(estimate)
+        return StreamedFile(lambda f: hedge_xlsx(estimate, f))
     if fmt == "md":
         from optbench.report.markdown import hedge_markdown
         return hedge_markdown(estimate)

@@ -8,11 +8,12 @@ import sys
 from optbench.commands.common import (add_contract_options, add_drift_options,
                                       add_model_options, add_output_options,
                                       contract_overrides, day_list, drift_options,
-                                      parse_float, whole_number, write_output)
+                                      output_plan, parse_float, whole_number,
+                                      write_outputs)
 from optbench.errors import InputError
 from optbench.screening.rows import DEFAULT_MODEL
 
-FORMATS = ("table", "json", "csv", "xlsx")
+FORMATS = ("table", "json", "csv", "xlsx", "md", "html")
 
 
 
@@ -64,9 +65,10 @@ def _progress_bar():
 
 
 def run(args: argparse.Namespace) -> int:
-    if args.format == "xlsx" and not args.output:
-        raise InputError("--format", "xlsx writes a file: give -o FILE")
-    from optbench.report import screen as views
+    plan = output_plan(args)
+    for path, fmt in plan:
+        if fmt in ("xlsx", "html") and path is None:
+            raise InputError("--format", f"{fmt} writes a file: give -o FILE")
     from optbench.screening.screen import screen
 
     bar, update = _progress_bar()
@@ -81,13 +83,22 @@ def run(args: argparse.Namespace) -> int:
     finally:
         if bar is not None:
             bar.stop()
-    if args.format == "json":
-        payload = views.screen_json(result)
-    elif args.format == "csv":
-        payload = views.screen_csv(result)
-    elif args.format == "xlsx":
-        payload = views.screen_xlsx(result)
-    else:
-        payload = views.screen_table(result)
-    write_output(args, payload)
+    write_outputs(args, lambda fmt: render(result, fmt), plan)
     return 0
+
+
+def render(result, fmt: str):
+    """The screen in ``fmt``: text, CSV text with its notes, or a streamed XLSX."""
+    from optbench.report import screen as views
+    if fmt == "json":
+        return views.screen_json(result)
+    if fmt == "csv":
+        return views.screen_csv(result)
+    if fmt == "xlsx":
+        from optbench.report.files import StreamedFile
+        return StreamedFile(lambda f: views.screen_xlsx(result, f))
+    if fmt == "md":
+        return views.screen_markdown(result)
+    if fmt == "html":
+        return views.screen_html(result)
+    return views.screen_table(result)

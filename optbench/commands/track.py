@@ -9,7 +9,8 @@ from __future__ import annotations
 
 import argparse
 
-from optbench.commands.common import (add_output_options, whole_number, write_output)
+from optbench.commands.common import (add_output_options, output_plan, whole_number,
+                                      write_outputs)
 from optbench.errors import InputError
 
 FORMATS = ("table", "json", "csv", "xlsx", "md", "html")
@@ -66,28 +67,29 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
 
 
 def run(args: argparse.Namespace) -> int:
-    from optbench.commands.compare import check_file_formats, progress_printer
-    check_file_formats(args)
+    from optbench.commands.compare import progress_printer
     from optbench.track.build import track
 
     scenario = args.scenario
     if scenario is None and args.history is None:
-        from optbench.commands.demo import checkout_folder
-        scenario = checkout_folder()
-        if scenario is None or not scenario.is_dir():
-            raise InputError("SCENARIO", "give a scenario folder or --history FILE")
+        from optbench.data.scenario import bundled_demo
+        scenario = bundled_demo()
+    plan = output_plan(args, [scenario] if args.scenario is None else [])
+    for path, fmt in plan:
+        if fmt in ("xlsx", "html") and path is None:
+            raise InputError("--format", f"{fmt} writes a file: give -o FILE")
     record = track(scenario, iv_history=args.iv_history, store=args.store,
                    history=args.history, model=args.model, dist=args.dist, mean=args.mean,
                    refit_every=args.refit_every, band=args.band, n_paths=args.paths,
                    seed=args.seed, min_checked=args.min_checked, buckets=args.buckets,
                    progress=progress_printer())
-    write_output(args, render(record, args))
+    write_outputs(args, lambda fmt: render(record, args, fmt), plan)
     return 0
 
 
-def render(record, args: argparse.Namespace) -> str | bytes:
+def render(record, args: argparse.Namespace, fmt: str | None = None) -> str | bytes:
     from optbench.report import track as view
-    fmt = args.format
+    fmt = fmt or args.format
     if fmt == "json":
         return view.track_json(record)
     if fmt == "csv":

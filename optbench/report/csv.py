@@ -5,9 +5,11 @@ or a carriage return (OWASP, "CSV Injection"). Every such *text* cell is prefixe
 a single quote ``'`` so it shows as text; a text cell starting with ``-`` followed by a
 digit (a negative number written as text) is left alone, and numbers stay numbers.
 
-The first line of every optbench CSV is one comment cell beginning with ``#`` that
-names the table, the as-of date, the model and the caution; read the table with
-``pandas.read_csv(path, skiprows=1)``.
+The first line of every optbench CSV is its header, so ``pandas.read_csv(path)``
+reads it with default settings. What the table rests on (source, as-of date, model,
+warnings, the caution) travels as *notes* (:mod:`optbench.report.notes`): the
+writers return a :class:`CsvText`, the CSV text with its notes attached, and the file
+writer puts them in a sidecar ``<file>.meta.json`` (on stderr for the terminal).
 """
 from __future__ import annotations
 
@@ -56,21 +58,36 @@ def _cell(value: Any) -> Any:
     return neutralise(str(value))
 
 
+class CsvText(str):
+    """CSV text (header first, then the rows) carrying its notes in ``.notes``
+    (an ordered dict, see :mod:`optbench.report.notes`) and its ``.columns``."""
+
+    notes: dict
+    columns: list
+
+    def __new__(cls, text: str, notes: dict | None = None, columns=()):
+        obj = super().__new__(cls, text)
+        obj.notes = dict(notes or {})
+        obj.columns = [str(c) for c in columns]
+        return obj
+
+
 def write_rows(header: Sequence[str], rows: Iterable[Sequence[Any]],
-               comment: str | None = None) -> str:
-    """CSV text: an optional comment line, the header and the rows (all neutralised)."""
+               notes: dict | str | None = None) -> CsvText:
+    """CSV text: the header and the rows (all neutralised), with ``notes`` attached
+    (a plain string becomes ``{"table": text}``)."""
     buf = io.StringIO()
     w = _csv.writer(buf, lineterminator="\n")
-    if comment is not None:
-        w.writerow(["# " + " ".join(comment.split())])
     w.writerow([neutralise(str(h)) for h in header])
     for row in rows:
         w.writerow([_cell(v) for v in row])
-    return buf.getvalue()
+    if isinstance(notes, str):
+        notes = {"table": notes}
+    return CsvText(buf.getvalue(), notes, header)
 
 
-def frame_csv(frame: pd.DataFrame, comment: str | None = None) -> str:
-    return write_rows(list(frame.columns), frame.itertuples(index=False, name=None), comment)
+def frame_csv(frame: pd.DataFrame, notes: dict | str | None = None) -> CsvText:
+    return write_rows(list(frame.columns), frame.itertuples(index=False, name=None), notes)
 
 
 def _comment(title: str, result) -> str:
@@ -81,29 +98,42 @@ def _comment(title: str, result) -> str:
             f"model {name}/{dist} | {inputs_line(result)} | {result.caution}")
 
 
-def comparison_csv(comparison, table: str = "expiries") -> str:
-    """The per-expiry table (``table="expiries"``) or every per-strike row (``"strikes"``)."""
+def comparison_csv(comparison, table: str = "expiries", expiries=None) -> CsvText:
+    """The per-expiry table (``table="expiries"``) or the per-strike rows
+    (``"strikes"``: every expiry, or only ``expiries`` when given)."""
+    from optbench.report.notes import comparison_notes
     if table == "strikes":
-        return frame_csv(comparison.strike_frame(), _comment("compare strikes", comparison))
-    comment = _comment("compare expiries", comparison)
-    if comparison.drift is not None:
-        comment += f" | drift: {comparison.drift.text}"
-    return frame_csv(comparison.expiry_frame(), comment)
+        if expiries:
+            frame = pd.concat([comparison.strike_frame(e) for e in expiries],
+                              ignore_index=True)
+            title = "compare strikes " + " ".join(str(e) for e in expiries)
+        else:
+            frame, title = comparison.strike_frame(), "compare strikes"
+        return frame_csv(frame, comparison_notes(comparison, title))
+    return frame_csv(comparison.expiry_frame(), comparison_notes(comparison, "compare expiries"))
 
 
-def hedge_csv(estimate, table: str = "summary") -> str:
+def hedge_csv(estimate, table: str = "summary") -> CsvText:
     """The hedge summary (``item,value``), its legs or its scenario table."""
-    comment = _comment(f"hedge {table}", estimate)
+    from optbench.report.notes import hedge_notes
+    notes = hedge_notes(estimate, f"hedge {table}")
     if table == "legs":
-        return frame_csv(estimate.leg_frame(), comment)
+        return frame_csv(estimate.leg_frame(), notes)
     if table == "scenarios":
-        return frame_csv(estimate.scenario_frame(), comment)
+        return frame_csv(estimate.scenario_frame(), notes)
+    return write_rows(["item", "value"], hedge_summary_items(estimate), notes)
+
+
+def hedge_summary_items(estimate) -> list[tuple[str, Any]]:
+    """The hedge summary as ``(item, value)`` rows (CSV and XLSX)."""
     items = list(estimate.summary().items())
     items += [("strikes", " ".join(f"{k:g}" for k in estimate.strikes)),
+              ("roll_method", estimate.roll_method),
               ("collar_note", estimate.collar_note),
-              ("drift", estimate.drift.get("text", "")), ("caution", estimate.caution)]
-    return write_rows(["item", "value"], items, comment)
+              ("drift", (estimate.drift or {}).get("text", "")),
+              ("caution", estimate.caution)]
+    return items
 
 
-#: public name of the comment line builder (title, underlying, as-of, model, caution)
+#: public name of the one-line description (title, underlying, as-of, model, caution)
 comment_line = _comment

@@ -7,6 +7,25 @@ from optbench.report.csv import write_rows
 from optbench.report.fields import fmt
 from optbench.report.jsonout import dumps
 
+
+def inputs_note(rows) -> str:
+    """One line: the style, multiplier and input sources the screened underlyings
+    used, each distinct combination with the codes that used it."""
+    groups: dict[str, list[str]] = {}
+    for r in rows:
+        if r.get("style") is None:
+            continue
+        key = f"{r['style']}, multiplier {r['multiplier']:g} ({r.get('sources') or ''})"
+        codes = groups.setdefault(key, [])
+        if r["code"] not in codes:
+            codes.append(r["code"])
+    if not groups:
+        return "Inputs: none screened."
+    if len(groups) == 1:
+        return f"Inputs of every underlying: {next(iter(groups))}."
+    return "Inputs: " + "; ".join(f"{', '.join(codes)}: {key}"
+                                  for key, codes in groups.items()) + "."
+
 #: kind of each screen column, for formatting (see optbench.report.fields)
 SCREEN_KINDS = {
     "code": "text", "name": "text", "tenor_days": "int", "expiry": "date",
@@ -43,84 +62,99 @@ SCREEN_BRIEF = ("code", "tenor_days", "expiry", "calendar_days", "atm_iv", "fore
 VERDICT_MARK = {"rich": "▲ rich", "cheap": "▼ cheap", "fair": "= fair"}
 
 
-def _comment(result) -> str:
-    return (f"optbench screen of {result.universe}; sorted by {result.sort}"
-            f"{' (descending)' if result.descending else ''}; protection: put at "
-            f"{result.floor:.0%} of spot per {result.notional:,.0f} notional. "
-            f"{result.caution}")
-
-
-def inputs_note(rows) -> str:
-    """One line: the style, multiplier and input sources the screened underlyings
-    used, each distinct combination with the codes that used it."""
-    groups: dict[str, list[str]] = {}
-    for r in rows:
-        if r.get("style") is None:
-            continue
-        key = f"{r['style']}, multiplier {r['multiplier']:g} ({r.get('sources') or ''})"
-        codes = groups.setdefault(key, [])
-        if r["code"] not in codes:
-            codes.append(r["code"])
-    if not groups:
-        return "Inputs: none screened."
-    if len(groups) == 1:
-        return f"Inputs of every underlying: {next(iter(groups))}."
-    return "Inputs: " + "; ".join(f"{', '.join(codes)}: {key}" for key, codes in groups.items()) + "."
-
-
 def screen_json(result) -> str:
     return dumps(result, kind="screen")
 
 
-def screen_csv(result) -> str:
+def screen_csv(result):
+    """Every row and column of the screen (decimals), notes attached (see
+    :mod:`optbench.report.notes`)."""
+    from optbench.report.notes import screen_notes
     cols = result.columns
-    return write_rows(cols, ([r.get(c) for c in cols] for r in result.rows), _comment(result))
+    return write_rows(cols, ([r.get(c) for c in cols] for r in result.rows),
+                      screen_notes(result, "optbench screen"))
 
 
-def screen_xlsx(result) -> bytes:
-    """One sheet ``Screen`` (header block then the table) and one ``Failures``."""
-    import io
-
-    from openpyxl import Workbook
-    from openpyxl.styles import Font
-
-    from optbench.report.fields import EXCEL_FORMATS
-    from optbench.report.xlsx import _value
-
-    wb = Workbook()
-    ws = wb.active
-    ws.title = "Screen"
-    ws.append(["optbench screen"])
-    ws["A1"].font = Font(bold=True, size=13)
-    for key, value in (("universe", result.universe), ("sort", result.sort),
-                       ("floor", result.floor), ("notional", result.notional),
-                       ("model", f"{result.model}/{result.dist}"),
-                       ("caution", result.caution)):
-        ws.append([key, _value(value)])
-    ws.append([])
-    ws.append(list(result.columns))
-    header = ws.max_row
-    for cell in ws[header]:
-        cell.font = Font(bold=True)
-    for row in result.rows:
-        ws.append([_value(row.get(c)) for c in result.columns])
-    for j, col in enumerate(result.columns, start=1):
-        number_format = EXCEL_FORMATS.get(SCREEN_KINDS.get(col, "text"))
-        if number_format:
-            for r in range(header + 1, ws.max_row + 1):
-                ws.cell(row=r, column=j).number_format = number_format
-    ws.freeze_panes = ws.cell(row=header + 1, column=1)
-    failures = wb.create_sheet("Failures")
-    failures.append(["code", "folder", "reason"])
-    for f in result.failures:
-        failures.append([_value(f["code"]), _value(f["folder"]), _value(f["reason"])])
-    buf = io.BytesIO()
-    wb.save(buf)
-    return buf.getvalue()
+def screen_xlsx(result, out=None):
+    """Sheets Screen (the ranked rows at A1), Failures and Notes."""
+    from optbench.report.xlsx import screen_xlsx as write
+    return write(result, out)
 
 
-#: rows of the XLSX header block before the table's header row
-XLSX_HEADER_ROWS = 8
+def _title(result) -> str:
+    return (f"Screen of {result.universe}: implied against forecast volatility")
+
+
+def _lede(result) -> str:
+    return (f"Ranked by {result.sort}{' (largest first)' if result.descending else ''}. "
+            f"Vols in %, differences in vol points; protection is a put at "
+            f"{result.floor:.0%} of spot per {result.notional:,.0f} notional, paid at the "
+            f"ask; model {result.model} / {result.dist}. Verdict: rich above the forecast "
+            "band, cheap below, fair inside.")
+
+
+def _cell_text(row: dict, c: str) -> str:
+    if c == "verdict":
+        v = row.get(c)
+        return VERDICT_MARK.get(v, v) if v else "–"
+    if c == "error":
+        return row.get(c) or ""
+    return fmt(row.get(c), SCREEN_KINDS.get(c, "text"), percent_sign=False)
+
+
+def _label(c: str) -> str:
+    return SCREEN_LABELS.get(c, c).replace("\n", " ")
+
+
+def screen_markdown(result) -> str:
+    """The ranked table as Markdown, with its notes, failures and the caution."""
+    from optbench.report.markdown import _esc
+    head = "| " + " | ".join(_esc(_label(c)) for c in SCREEN_BRIEF) + " |"
+    align = "|" + "|".join(":---" if SCREEN_KINDS[c] in ("text", "date") else "---:"
+                           for c in SCREEN_BRIEF) + "|"
+    body = ["| " + " | ".join(_esc(_cell_text(r, c)) for c in SCREEN_BRIEF) + " |"
+            for r in result.rows]
+    lines = [f"# {_esc(_title(result))}", "", _esc(_lede(result)), "", head, align, *body, ""]
+    if result.failures:
+        lines += ["## Could not screen", ""]
+        lines += [f"- {_esc(f['code'])}: {_esc(f['reason'])}" for f in result.failures]
+        lines.append("")
+    warnings = list(getattr(result, "warnings", ()) or ())
+    if warnings:
+        lines += ["## Notes", ""] + [f"- {_esc(w)}" for w in warnings] + [""]
+    lines += [f"*{_esc(result.caution)}*", ""]
+    return "\n".join(lines)
+
+
+def screen_html(result) -> str:
+    """The ranked table as a self-contained HTML page (no figures)."""
+    import html as _html
+
+    from optbench.report.html import _page
+    e = _html.escape
+    head = "".join(f'<th class="{"t" if SCREEN_KINDS[c] in ("text", "date") else ""}">'
+                   f"{e(_label(c))}</th>" for c in SCREEN_BRIEF)
+    body = []
+    for r in result.rows:
+        cells = []
+        for c in SCREEN_BRIEF:
+            cls = ["t"] if SCREEN_KINDS[c] in ("text", "date") else []
+            if c == "verdict" and r.get(c) in ("rich", "cheap"):
+                cls.append(r[c])
+            cells.append(f'<td class="{" ".join(cls)}">{e(_cell_text(r, c))}</td>')
+        body.append("<tr>" + "".join(cells) + "</tr>")
+    parts = [f"<h1>{e(_title(result))}</h1>", f"<p>{e(_lede(result))}</p>",
+             f'<p class="caution">{e(result.caution)}</p>',
+             f"<table><tr>{head}</tr>{''.join(body)}</table>"]
+    if result.failures:
+        parts.append("<h2>Could not screen</h2><ul>" + "".join(
+            f"<li>{e(str(f['code']))}: {e(str(f['reason']))}</li>" for f in result.failures)
+            + "</ul>")
+    warnings = list(getattr(result, "warnings", ()) or ())
+    if warnings:
+        parts.append("<h2>Notes</h2><ul>" + "".join(f"<li>{e(w)}</li>" for w in warnings)
+                     + "</ul>")
+    return _page(f"optbench screen {result.universe}", "".join(parts))
 
 
 def screen_table(result, *, width: int | None = None, color: bool = False) -> str:
@@ -177,3 +211,7 @@ def screen_table(result, *, width: int | None = None, color: bool = False) -> st
     notes.append(inputs_note(result.rows))
     notes.append(result.caution)
     return _render([table, *notes], width=width, color=color)
+
+
+#: rows above the XLSX table's header row (the table starts at A1)
+XLSX_HEADER_ROWS = 0

@@ -224,15 +224,9 @@ def track_xlsx(record) -> bytes:
     wb.remove(wb.active)
 
     def sheet(name: str, frame: pd.DataFrame) -> None:
+        # every table starts at A1 (its header row); what describes it is on Notes
         ws = wb.create_sheet(name)
-        ws.append([f"optbench track: {record.underlying} - {name.lower()}"])
-        ws["A1"].font = Font(bold=True, size=13)
-        ws.append(["asof", record.asof])
-        ws.append(["model", f"{record.model['name']} / {record.model['dist']} / refit "
-                            f"every {record.refit_every} trading days"])
-        ws.append(["caution", record.caution])
-        ws.append([])
-        ws.append(list(frame.columns))
+        ws.append([neutralise(str(c)) for c in frame.columns])
         hdr = ws.max_row
         for cell in ws[hdr]:
             cell.font = Font(bold=True)
@@ -252,11 +246,15 @@ def track_xlsx(record) -> bytes:
     sheet("Regressions", regression_frame(record))
     sheet("Observations", record.observations)
     sheet("Refits", record.refits)
-    notes = ([("warning", w) for w in record.warnings]
+    notes = ([("table", f"optbench track: {record.underlying}"), ("asof", record.asof),
+              ("model", f"{record.model['name']} / {record.model['dist']} / refit every "
+                        f"{record.refit_every} trading days")]
+             + [("warning", w) for w in record.warnings]
              + [(f"method {k}", v) for k, v in record.method.items()]
              + [("rows_in", record.quality["rows_in"]),
                 ("rows_used", record.quality["rows_used"])]
-             + [(f"rejected {k}", n) for k, n in record.quality["rejected"].items()])
+             + [(f"rejected {k}", n) for k, n in record.quality["rejected"].items()]
+             + [("caution", record.caution)])
     sheet("Notes", pd.DataFrame(notes, columns=["item", "value"]))
     sheet("Rejected", record.rejected)
     buf = io.BytesIO()

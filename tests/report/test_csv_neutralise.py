@@ -30,9 +30,9 @@ def test_harmless_text_and_negative_numbers_pass(cell):
 def test_numbers_stay_numbers_on_reread():
     frame = pd.DataFrame({"name": ["=cmd()", "ok", "-x"], "value": [-0.25, 1.5, float("nan")],
                           "n": [1, -2, 3]})
-    text = frame_csv(frame, comment="test | caution")
-    assert text.splitlines()[0].startswith("# test")
-    back = pd.read_csv(io.StringIO(text), skiprows=1)
+    text = frame_csv(frame, {"table": "test", "caution": "caution"})
+    assert text.splitlines()[0] == "name,value,n" and text.notes["caution"] == "caution"
+    back = pd.read_csv(io.StringIO(text))
     assert back["name"].tolist() == ["'=cmd()", "ok", "'-x"]
     assert back["value"].iloc[0] == -0.25 and back["value"].iloc[1] == 1.5
     assert pd.isna(back["value"].iloc[2])

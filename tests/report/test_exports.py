@@ -16,7 +16,7 @@ from optbench.analysis.hedge import hedge_from_comparison
 from optbench.analysis.results import CAUTION, HedgeRequest
 from optbench.report.csv import comparison_csv, hedge_csv
 from optbench.report.jsonout import dumps
-from optbench.report.xlsx import HEADER_ROWS, comparison_xlsx, hedge_xlsx
+from optbench.report.xlsx import comparison_xlsx, hedge_xlsx
 
 DEMO = Path(__file__).resolve().parents[2] / "chains" / "ZPHX"
 
@@ -63,13 +63,13 @@ def test_nan_becomes_null():
 
 def test_csv_reread_by_pandas_equals_json(comparison):
     data = json.loads(dumps(comparison))
-    frame = pd.read_csv(io.StringIO(comparison_csv(comparison)), skiprows=1)
+    frame = pd.read_csv(io.StringIO(comparison_csv(comparison)))   # default settings
     assert len(frame) == len(data["expiries"])
     for rec, row in zip(frame.to_dict(orient="records"), data["expiries"]):
         for key in ("atm_iv", "forecast_vol", "forecast_low", "forecast_high",
                     "variance_premium", "prob_realized_above_iv", "forward", "verdict"):
             assert _same(row[key], rec[key]), key
-    strikes = pd.read_csv(io.StringIO(comparison_csv(comparison, "strikes")), skiprows=1)
+    strikes = pd.read_csv(io.StringIO(comparison_csv(comparison, "strikes")))
     assert len(strikes) == len(data["strikes"])
     for key in ("strike", "iv_mid", "edge_per_contract", "price_at_forecast"):
         np.testing.assert_array_equal(strikes[key].to_numpy(float),
@@ -81,14 +81,12 @@ def test_xlsx_reread_by_openpyxl_equals_json(comparison):
     from openpyxl import load_workbook
     data = json.loads(dumps(comparison))
     wb = load_workbook(io.BytesIO(comparison_xlsx(comparison)), read_only=True)
-    assert wb.sheetnames == ["Expiries", "Strikes", "Quality", "Model"]
-    ws = wb["Expiries"]
-    rows = list(ws.iter_rows(values_only=True))
-    header_block = {r[0]: r[1] for r in rows[1:HEADER_ROWS - 1]}
-    assert header_block["caution"] == CAUTION
-    assert header_block["asof"].date().isoformat() == data["asof"]
-    header = rows[HEADER_ROWS]
-    body = rows[HEADER_ROWS + 1:]
+    assert wb.sheetnames == ["Expiries", "Strikes", "Quality", "Model", "Notes"]
+    notes = dict(list(wb["Notes"].iter_rows(values_only=True))[1:])
+    assert notes["caution"] == CAUTION
+    assert notes["asof"].date().isoformat() == data["asof"]
+    rows = list(wb["Expiries"].iter_rows(values_only=True))
+    header, body = rows[0], rows[1:]          # the table starts at A1
     assert len(body) == len(data["expiries"])
     for values, row in zip(body, data["expiries"]):
         rec = dict(zip(header, values))
@@ -98,27 +96,27 @@ def test_xlsx_reread_by_openpyxl_equals_json(comparison):
     # percent formats on the vol columns
     wb2 = load_workbook(io.BytesIO(comparison_xlsx(comparison)))
     col = list(header).index("atm_iv") + 1
-    assert wb2["Expiries"].cell(row=HEADER_ROWS + 2, column=col).number_format == "0.00%"
+    assert wb2["Expiries"].cell(row=2, column=col).number_format == "0.00%"
 
 
 def test_hedge_exports_agree(estimate):
     from openpyxl import load_workbook
     data = json.loads(dumps(estimate, kind="hedge"))
-    summary = pd.read_csv(io.StringIO(hedge_csv(estimate)), skiprows=1).set_index("item")
+    summary = pd.read_csv(io.StringIO(hedge_csv(estimate))).set_index("item")
     for key in ("contracts", "premium_mid", "premium_paid", "expected_payoff", "overpay",
                 "cost_pct", "cost_pct_annual", "annual_roll_cost"):
         assert float(summary.loc[key, "value"]) == pytest.approx(data[key], rel=1e-12)
     assert summary.loc["caution", "value"] == CAUTION
-    scen = pd.read_csv(io.StringIO(hedge_csv(estimate, "scenarios")), skiprows=1)
+    scen = pd.read_csv(io.StringIO(hedge_csv(estimate, "scenarios")))
     np.testing.assert_array_equal(scen["hedged"], [s["hedged"] for s in data["scenarios"]])
     wb = load_workbook(io.BytesIO(hedge_xlsx(estimate)), read_only=True)
     rows = list(wb["Summary"].iter_rows(values_only=True))
-    items = {r[0]: r[1] for r in rows[HEADER_ROWS + 1:]}
+    items = {r[0]: r[1] for r in rows[1:]}
     assert items["premium_paid"] == pytest.approx(data["premium_paid"], rel=1e-12)
     assert items["contracts"] == data["contracts"]
     legs = list(wb["Legs"].iter_rows(values_only=True))
-    assert len(legs) - HEADER_ROWS - 1 == len(data["legs"])
-    assert dict(rows[1:HEADER_ROWS - 1])["caution"] == CAUTION
+    assert len(legs) - 1 == len(data["legs"])
+    assert dict(list(wb["Notes"].iter_rows(values_only=True))[1:])["caution"] == CAUTION
 
 
 def test_markdown_and_html_carry_the_caution_and_figures(comparison, estimate):

@@ -46,9 +46,10 @@ def test_csv_xlsx_md_html_and_table_carry_them(comparison):
     from optbench.report.tables import comparison_table
     from optbench.report.xlsx import comparison_xlsx, read_table
     text = comparison_csv(comparison)
-    assert "drift: risk-free rate less dividend yield plus an expected excess" in \
-        text.splitlines()[0]
-    frame = pd.read_csv(io.StringIO(text), skiprows=1)
+    # the CSV holds the table alone; its notes (the drift among them) travel beside it
+    assert "risk-free rate less dividend yield plus an expected excess" in \
+        text.notes["drift"]
+    frame = pd.read_csv(io.StringIO(text))
     for prefix in ("put25", "floor_put"):
         assert list(frame[f"{prefix}_verdict"].fillna("n/a")) == [
             getattr(r, f"{prefix}_verdict") for r in comparison.expiries]
@@ -58,9 +59,9 @@ def test_csv_xlsx_md_html_and_table_carry_them(comparison):
     sheet = read_table(book, "Expiries")
     assert sheet["floor_put_payoff_high"].tolist() == pytest.approx(
         [r.floor_put_payoff_high for r in comparison.expiries])
-    model = read_table(book, "Model").set_index("item")["value"]
-    assert model["drift_rule"] == "excess" and "protection" not in model["drift_text"]
-    assert "25 delta" in model["protection_rule"]
+    notes = read_table(book, "Notes").set_index("item")["value"]
+    assert "expected excess" in notes["drift"] and "protection" not in notes["drift"]
+    assert "25 delta" in notes["protection_rule"]
     for page in (comparison_markdown(comparison), comparison_html(comparison,
                                                                   figures=False),
                  comparison_table(comparison, width=160)):

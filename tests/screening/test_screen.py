@@ -20,7 +20,7 @@ import pytest
 
 from optbench.analysis.compare import compare
 from optbench.errors import InputError
-from optbench.report.screen import XLSX_HEADER_ROWS, screen_csv, screen_xlsx
+from optbench.report.screen import screen_csv, screen_xlsx
 from optbench.screening.screen import rank_rows, screen
 from optbench.screening.universe import find_scenarios
 
@@ -130,13 +130,13 @@ def test_dask_cluster_gives_the_same_rows(universe, result):
 
 
 def test_csv_and_xlsx_reread_equal_the_rows(result, tmp_path):
-    frame = pd.read_csv(io.StringIO(screen_csv(result)), skiprows=1)
+    frame = pd.read_csv(io.StringIO(screen_csv(result)))
     assert list(frame["code"]) == [r["code"] for r in result.rows]
     ok = [r for r in result.rows if r["atm_iv"] is not None]
     assert frame["atm_iv"].dropna().tolist() == pytest.approx([r["atm_iv"] for r in ok])
     path = tmp_path / "screen.xlsx"
     path.write_bytes(screen_xlsx(result))
-    sheet = pd.read_excel(path, sheet_name="Screen", skiprows=XLSX_HEADER_ROWS)
+    sheet = pd.read_excel(path)  # the table is the first sheet, at A1
     assert sheet["protection_cost"].dropna().tolist() == pytest.approx(
         [r["protection_cost"] for r in ok])
     failures = pd.read_excel(path, sheet_name="Failures")

@@ -74,16 +74,18 @@ def test_json_document(record):
 def test_every_view_reads_the_same_numbers(record, tmp_path):
     from optbench.report import track as view
     csv = view.track_csv(record, "tenors")
-    frame = pd.read_csv(io.StringIO(csv), skiprows=1)
+    frame = pd.read_csv(io.StringIO(csv))   # header on line 1, pandas defaults
     t0 = record.tenors[0]
     assert frame.loc[0, "hit_rate_rich"] == pytest.approx(t0.hit_rate_rich, rel=1e-12)
     assert frame.loc[0, "brier"] == pytest.approx(t0.brier, rel=1e-12)
-    obs = pd.read_csv(io.StringIO(view.track_csv(record, "observations")), skiprows=1)
+    obs = pd.read_csv(io.StringIO(view.track_csv(record, "observations")))
     assert len(obs) == len(record.observations)
     from openpyxl import load_workbook
     wb = load_workbook(io.BytesIO(view.track_xlsx(record)), read_only=True)
     assert {"Tenors", "Verdicts", "Reliability", "Regressions", "Observations",
             "Refits", "Notes"} <= set(wb.sheetnames)
+    tenors = pd.read_excel(io.BytesIO(view.track_xlsx(record)), sheet_name="Tenors")
+    assert tenors.loc[0, "brier"] == pytest.approx(t0.brier, rel=1e-12)   # table at A1
     md = view.track_markdown(record)
     assert "| 30d |" in md and record.caution in md
     html = view.track_html(record)

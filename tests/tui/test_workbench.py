@@ -164,7 +164,8 @@ async def _test_export_writes_the_table_and_says_where(tmp_path):
         await pilot.press("ctrl+s")
         await settle(app, pilot)
         assert app.last_export == target and target.exists()
-        table = pd.read_csv(target, skiprows=1)  # first line: the optbench comment + caution
+        table = pd.read_csv(target)  # header first; the notes are in the .meta.json sidecar
+        assert "not advice" in (tmp_path / "expiries.csv.meta.json").read_text()
         assert list(pd.to_datetime(table["expiry"]).dt.date) == [
             r.expiry for r in app.comparison.expiries]
         assert table["atm_iv"].to_numpy() == pytest.approx(

@@ -55,6 +55,7 @@ class UniverseScreen(ModalScreen[OpenRequest | None]):
     BINDINGS = [
         Binding("escape", "cancel", "Back", id="universe.cancel"),
         Binding("enter", "open_row", "Open underlying", id="universe.open", priority=True),
+        Binding("e", "export", "Export table", id="universe.export"),
     ]
 
     def __init__(self, folder: Path, result=None, *, workers: int | None = None,
@@ -69,7 +70,8 @@ class UniverseScreen(ModalScreen[OpenRequest | None]):
         with Vertical(id="universe-dialog", classes="dialog"):
             yield Label(f"Screen of {self.folder}", classes="dialog-title")
             yield Label("Enter opens the underlying of the row in every view · s sorts by "
-                        "the column · escape goes back", classes="dialog-hint")
+                        "the column · e exports the table · escape goes back",
+                        classes="dialog-hint")
             yield Static("screening …", id="universe-status")
             yield SortableTable(id="universe-table")
 
@@ -148,3 +150,31 @@ class UniverseScreen(ModalScreen[OpenRequest | None]):
 
     def action_cancel(self) -> None:
         self.dismiss(None)
+
+    # -- export: the writers of ``optbench screen`` (optbench.tui.export)
+    def action_export(self) -> None:
+        from optbench.tui.dialogs.export import ExportDialog
+        from optbench.tui.export import UNIVERSE_TABLES
+        if self.result is None:
+            self.notify("Nothing to export yet: the screen has not finished.",
+                        severity="warning")
+            return
+        self.app.push_screen(ExportDialog(UNIVERSE_TABLES, "universe",
+                                          f"screen-{self.folder.name}"), self._export)
+
+    def _export(self, request) -> None:
+        if request is not None:
+            self.write_export(request)
+
+    @work(thread=True, exclusive=True, group="universe-export", exit_on_error=False)
+    def write_export(self, request) -> None:
+        from optbench.errors import InputError
+        from optbench.tui.export import export_screen
+        try:
+            path = export_screen(self.result, request)
+        except InputError as err:
+            self.app.call_from_thread(self.notify, str(err), title="Export failed",
+                                      severity="error", timeout=10)
+            return
+        self.last_export = path
+        self.app.call_from_thread(self.notify, f"wrote {path.resolve()}", title="Exported")
