@@ -558,9 +558,7 @@ def write_scenario(folder: str | Path, seed: int = SEED) -> dict[str, int]:
     """
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
-    scenario = generate(seed)
-    files = render_files(scenario)
-    files.update(render_portfolio_files(generate_portfolio(scenario)))
+    files = render_files(generate(seed))
     for name, data in files.items():
         (folder / name).write_bytes(data)
     return {name: len(data) for name, data in files.items()}
@@ -638,3 +636,18 @@ def render_portfolio_files(portfolio: DemoPortfolio) -> dict[str, bytes]:
                    + "\n")
     return {"holdings.csv": hold.getvalue().encode(),
             "holdings_history.csv": hist.getvalue().encode()}
+
+
+def write_portfolio(folder: str | Path, seed: int = SEED,
+                    portfolio_seed: int = PORTFOLIO_SEED) -> dict[str, int]:
+    """Generate the demo portfolio on the scenario of ``seed`` and write
+    ``holdings.csv`` and ``holdings_history.csv`` into ``folder``.
+
+    Returns ``{file name: bytes written}``.
+    """
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    files = render_portfolio_files(generate_portfolio(generate(seed), portfolio_seed))
+    for name, data in files.items():
+        (folder / name).write_bytes(data)
+    return {name: len(data) for name, data in files.items()}

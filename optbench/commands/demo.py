@@ -53,6 +53,7 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(folder, "exists and is not a folder")
     try:
         written = demo.write_scenario(folder, seed=args.seed)
+        written.update(demo.write_portfolio(folder, seed=args.seed))
     except OSError as err:
         raise InputError(folder, f"cannot write: {err.strerror or err}") from None
 

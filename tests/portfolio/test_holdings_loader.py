@@ -80,3 +80,17 @@ def test_value_history(tmp_path):
     assert panel.closes["PORTFOLIO"].tolist() == [100, 101]
     with pytest.raises(InputError, match="missing column 'value'"):
         load_value_history(_write(tmp_path, "v2.csv", "date,a,b\n2026-01-05,1,2\n"))
+
+
+def test_demo_portfolio_files_are_what_the_generator_writes(tmp_path):
+    from pathlib import Path
+
+    from optbench import demo
+    folder = Path(__file__).resolve().parents[2] / "chains" / "ZPHX"
+    written = demo.write_portfolio(tmp_path)
+    assert set(written) == {"holdings.csv", "holdings_history.csv"}
+    for name in written:
+        assert (tmp_path / name).read_bytes() == (folder / name).read_bytes(), (
+            f"chains/ZPHX/{name} is out of date: run `optbench demo`")
+    h = load_holdings(folder / "holdings.csv")
+    assert len(h.symbols) == 12 and h.rejected.empty
