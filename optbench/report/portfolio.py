@@ -153,7 +153,8 @@ def portfolio_table(ph, *, menu_rows: str = "efficient", width: int | None = Non
         parts.append(table(f"Protection menu ({'all' if menu_rows == 'all' else 'efficient'} "
                            f"rows of {len(m.frame)}; cost = {m.cost_measure})", frame,
                            MENU_BRIEF))
-        parts.append(f"Efficient: {m.efficient_rule}.")
+        parts.append(f"Efficient: {m.efficient_rule}." + (f" Collars: {m.collar_rule}."
+                                                         if m.collar_rule else ""))
     parts += [f"note: {w}" for w in ph.warnings]
     parts.append(ph.basis_note)
     parts.append(ph.caution)
@@ -204,7 +205,8 @@ def portfolio_markdown(ph) -> str:
     if ph.menu is not None:
         lines += ["## Protection menu (efficient rows)", "",
                   _md_table(ph.menu.efficient_frame(), MENU_BRIEF), "",
-                  f"Cost = {ph.menu.cost_measure}; efficient: {ph.menu.efficient_rule}.", ""]
+                  f"Cost = {ph.menu.cost_measure}; efficient: {ph.menu.efficient_rule}."
+                  + (f" Collars: {ph.menu.collar_rule}." if ph.menu.collar_rule else ""), ""]
     lines += [f"- {w}" for w in ph.warnings] + ["", ph.basis_note, "", f"*{ph.caution}*", ""]
     return "\n".join(lines)
 

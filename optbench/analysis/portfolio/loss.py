@@ -11,7 +11,6 @@ a level, and a histogram on common bins.
 """
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -105,10 +104,3 @@ def loss_distribution(joint, estimate, *, loss_level: float | None = None,
         n_paths=int(joint.index.shape[0]), seed=None, drift_rule=joint.drift_rule,
         residual_method=joint.residual_method if np.any(joint.residual) else "none",
         residual_vol_today=joint.residual_vol_today, warnings=tuple(notes))
-
-
-def is_finite(x) -> bool:
-    try:
-        return math.isfinite(float(x))
-    except (TypeError, ValueError):
-        return False

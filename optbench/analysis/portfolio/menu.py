@@ -63,6 +63,7 @@ class ProtectionMenu:
     drift_rule: str
     cost_measure: str
     efficient_rule: str
+    collar_rule: str = ""
     warnings: tuple[str, ...] = ()
     caution: str = CAUTION
 
@@ -75,6 +76,7 @@ class ProtectionMenu:
                 "value": self.value, "hedge_ratio": self.hedge_ratio,
                 "n_paths": self.n_paths, "drift_rule": self.drift_rule,
                 "cost_measure": self.cost_measure, "efficient_rule": self.efficient_rule,
+                "collar_rule": self.collar_rule,
                 "warnings": list(self.warnings), "caution": self.caution}
 
 
@@ -106,6 +108,7 @@ def protection_menu(comparison, joint, *, value: float, hedge_ratio: float,
     n = contracts_for(value, hedge_ratio, m, spot)
     units = n * m
     rows, missing = [], []
+    collar_rule = ""
     for row in menu_expiries(comparison, min_days, max_days):
         table = comparison.strikes[row.expiry]
         strikes = table["strike"].to_numpy(float)
@@ -124,6 +127,8 @@ def protection_menu(comparison, joint, *, value: float, hedge_ratio: float,
                     missing.append({"expiry": row.expiry, "structure": structure,
                                     "floor": floor, "reason": err.problem})
                     continue
+                if note.startswith("call strike chosen"):
+                    collar_rule, note = note, ""     # said once for the menu
                 cells.append((structure, floor, buys[0], sells[0] if sells else -1, note))
         if not cells:
             continue
@@ -185,4 +190,5 @@ def protection_menu(comparison, joint, *, value: float, hedge_ratio: float,
         drift_rule=joint.drift_rule,
         cost_measure="overpay: premium paid less the model's expected payoff (money)",
         efficient_rule="not beaten on both overpay (lower is better) and 99% expected-"
-                       "shortfall reduction (higher is better)", warnings=tuple(notes))
+                       "shortfall reduction (higher is better)", collar_rule=collar_rule,
+        warnings=tuple(notes))
