@@ -17,6 +17,11 @@ from optbench.commands.compare import (FORMATS, add_chain_arguments, chain_sourc
 from optbench.errors import InputError
 
 CSV_TABLES = ("menu", "greeks", "grid", "holdings", "loss")
+#: --menu-sort: column and direction (best first)
+MENU_SORT = {"expiry": ("expiry", True), "cost": ("overpay", True),
+             "protection": ("es99_reduction", False),
+             "cost-per-protection": ("cost_per_reduction", True),
+             "premium": ("premium_paid", True)}
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
@@ -82,6 +87,9 @@ def add_portfolio_arguments(parser: argparse.ArgumentParser) -> None:
                    help="calendar days of the menu's expiries (default: 30:366)")
     p.add_argument("--menu-rows", dest="menu_rows", choices=("efficient", "all"),
                    default="efficient", help="menu rows in the table (default: efficient)")
+    p.add_argument("--menu-sort", dest="menu_sort", choices=tuple(MENU_SORT),
+                   default="expiry", help="order of the menu's rows in every view "
+                                          "(default: expiry)")
     p.add_argument("--moves", default=None, metavar="LIST",
                    help="underlying moves for the scenarios: -0.3,-0.2,0.1 or FROM:TO:STEP "
                         "(default: -0.30:0.10:0.05)")
@@ -230,6 +238,12 @@ def run(args: argparse.Namespace) -> int:
                              menu_days=menu_days, moves=moves, vol_shocks=shocks,
                              horizon_days=args.horizon_days, loss_level=loss_level,
                              n_paths=n_paths, seed=args.seed)
+    if result.menu is not None and args.menu_sort != "expiry":
+        import dataclasses
+        col, ascending = MENU_SORT[args.menu_sort]
+        frame = result.menu.frame.sort_values(col, ascending=ascending, kind="stable",
+                                              na_position="last").reset_index(drop=True)
+        result = dataclasses.replace(result, menu=dataclasses.replace(result.menu, frame=frame))
     write_output(args, render(result, args))
     return 0
 

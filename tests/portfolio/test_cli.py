@@ -97,3 +97,10 @@ def test_bad_arguments_give_one_line(capsys, args, message):
     code = main(["hedge", str(DEMO), *args])
     err = capsys.readouterr().err
     assert code == 2 and message in err and err.count("\n") == 1
+
+
+def test_menu_sort_orders_every_view(capsys):
+    code, out, _ = _run(capsys, "--menu", "--menu-sort", "protection", "--format", "csv",
+                        "--table", "menu")
+    frame = pd.read_csv(io.StringIO(out.split("\n", 1)[1]))
+    assert code == 0 and frame["es99_reduction"].is_monotonic_decreasing
