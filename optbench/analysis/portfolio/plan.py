@@ -124,6 +124,10 @@ def portfolio_hedge(comparison, request: HedgeRequest, *, portfolio: PortfolioFi
                                     hedge_ratio=estimate.request.exposure_ratio,
                                     multiplier=estimate.multiplier, min_days=menu_days[0],
                                     max_days=menu_days[1])
+    if d is not None and getattr(estimate, "drift", None) is None and loss is not None:
+        warnings.append("the hedge's expected payoff above follows the single-hedge rule "
+                        "(the fitted model's mean); the loss distribution and the menu use "
+                        f"a drift of {d:.2%} a year")
     greeks = hedge_greeks(estimate)
     grid = scenario_grid(estimate, moves, vol_shocks, horizon_days)
     return PortfolioHedge(estimate=estimate, portfolio=portfolio, loss=loss, menu=table,
