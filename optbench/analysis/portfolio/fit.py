@@ -104,6 +104,8 @@ def _returns_on_grid(closes: pd.DataFrame, grid: np.ndarray):
     inside = closes[span]
     off_grid = (~inside.index.isin(idx))
     off_counts = inside[off_grid].notna().sum(axis=0)
+    # closes after the underlying's last date cannot be lined up: counted with the others
+    off_counts = off_counts + closes[closes.index > idx[-1]].notna().sum(axis=0)
     on = closes.reindex(idx)
     missing = on.isna().sum(axis=0)
     c = on.to_numpy(float)
@@ -199,7 +201,7 @@ def fit_portfolio(index_dates, index_returns, *, holdings=None, panel=None,
                            f"(under {min_coverage:.0%}): left out of the estimate")
             if int(off.get(s, 0)):
                 why.append(f"{int(off[s])} closes on dates that are not the underlying's "
-                           "trading dates ignored")
+                           "trading dates (or after its last date) ignored")
             gaps = int(miss.get(s, 0))
             if use[i] and gaps:
                 why.append(f"no close on {gaps} of the underlying's dates")
