@@ -250,8 +250,18 @@ def add_xlsx_sheets(book: bytes, ph) -> bytes:
         ws.append([ph.basis_note])
         ws.append([str(c) for c in frame.columns])
         for r in frame.itertuples(index=False, name=None):
-            ws.append([None if isinstance(v, float) and math.isnan(v) else
-                       (v.isoformat() if hasattr(v, "isoformat") else v) for v in r])
+            ws.append([cell(v) for v in r])
+
+    def cell(v):
+        """Numbers as numbers, dates as ISO text, every other text neutralised as in
+        the CSV export (no cell starts a formula)."""
+        from optbench.report.csv import neutralise
+        if v is None or isinstance(v, (bool, int, float)) or hasattr(v, "dtype"):
+            x = v.item() if hasattr(v, "item") else v
+            return None if isinstance(x, float) and not math.isfinite(x) else x
+        if hasattr(v, "isoformat"):
+            return v.isoformat()[:10]
+        return neutralise(str(v))
 
     if ph.portfolio is not None:
         sheet("Holdings", ph.portfolio.holdings)

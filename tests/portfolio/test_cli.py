@@ -104,3 +104,21 @@ def test_menu_sort_orders_every_view(capsys):
                         "--table", "menu")
     frame = pd.read_csv(io.StringIO(out.split("\n", 1)[1]))
     assert code == 0 and frame["es99_reduction"].is_monotonic_decreasing
+
+
+def test_xlsx_sheets_neutralise_text_from_the_holdings_file(tmp_path, capsys):
+    import shutil
+    folder = tmp_path / "p"
+    folder.mkdir()
+    shutil.copy(DEMO / "holdings_history.csv", folder)
+    text = (DEMO / "holdings.csv").read_text().replace("ZH01", "=ZH01")
+    (folder / "holdings.csv").write_text(text)
+    hist = (folder / "holdings_history.csv").read_text().replace("ZH01", "=ZH01", 1)
+    (folder / "holdings_history.csv").write_text(hist)
+    code = main(["hedge", str(DEMO), "--holdings", str(folder / "holdings.csv"), "--paths",
+                 "2000", "--format", "xlsx", "-o", str(tmp_path / "o.xlsx")])
+    assert code == 0
+    from openpyxl import load_workbook
+    ws = load_workbook(tmp_path / "o.xlsx")["Holdings"]
+    symbols = [row[0].value for row in ws.iter_rows(min_row=4)]
+    assert "=ZH01" not in symbols and any(str(s).endswith("=ZH01") for s in symbols)
