@@ -1,6 +1,7 @@
 """VaR and expected shortfall of simulated P&L against their definitions and, for
 normal P&L, the closed forms of Hull, *Risk Management and Financial Institutions*
-(§12.6: VaR = -mu + sigma z, ES = -mu + sigma phi(z) / (1 - X))."""
+(chapter "Value at Risk and Expected Shortfall": VaR = -mu + sigma z,
+ES = -mu + sigma phi(z) / (1 - X); the formulas as remembered, not copied from a page)."""
 from __future__ import annotations
 
 import math
@@ -18,9 +19,9 @@ def test_normal_pnl_matches_hulls_closed_form(level):
     pnl = np.random.default_rng(11).normal(mu, sigma, 400_000)
     var, es = var_es(pnl, level)
     z = norm.ppf(level)
-    assert float(var) == pytest.approx(-mu + sigma * z, rel=0.01), "Hull RMFI §12.6 VaR"
+    assert float(var) == pytest.approx(-mu + sigma * z, rel=0.01), "Hull RMFI, normal VaR"
     assert float(es) == pytest.approx(-mu + sigma * norm.pdf(z) / (1 - level), rel=0.01), \
-        "Hull RMFI §12.6 ES of a normal distribution"
+        "Hull RMFI, ES of a normal distribution"
 
 
 def test_definitions_on_a_small_sample():

@@ -13,7 +13,7 @@ For portfolio returns :math:`y_t` and the underlying's returns :math:`x_t`,
     \operatorname{se}(\hat\alpha) = \sqrt{s^2\,(1/n + \bar x^2/S_{xx})},
 
 :math:`R^2 = 1 - \sum\hat e_t^2 / S_{yy}`, with :math:`S_{xy} = \sum (x_t-\bar x)(y_t-\bar y)`
-(Greene, *Econometric Analysis*, 7th ed., §4.3 and §4.7; the usual homoskedastic
+(Greene, *Econometric Analysis*, 7th ed., ch. 4 — chapter from memory; the usual homoskedastic
 standard errors). The residual (idiosyncratic) volatility is :math:`s\sqrt{252}`.
 The market-model beta of a portfolio used for index hedging: Hull, *Options, Futures,
 and Other Derivatives*, §3.5.

@@ -21,7 +21,7 @@ On the joint paths (:mod:`optbench.analysis.portfolio.joint`) at that expiry:
 
 The **efficient set**: rows not beaten on both cost and protection — no other row has
 an overpay at most as large and an ES reduction at least as large, one of them
-strictly (a Pareto frontier; Markowitz, *Portfolio Selection*, 1959, ch. 7, applied to
+strictly (a Pareto frontier, as in Markowitz's mean-variance efficient set (1959), applied to
 cost and tail protection). ``efficient`` is over the whole menu,
 ``efficient_in_expiry`` within each expiry.
 

@@ -15,7 +15,7 @@ For P&L samples :math:`x_1..x_n` (losses negative) and a confidence level
 
 For normal P&L with mean :math:`\mu` and deviation :math:`\sigma` the closed forms
 are VaR :math:`= -\mu + \sigma z_\alpha` and ES :math:`= -\mu + \sigma\varphi(z_\alpha)/(1-\alpha)`
-(Hull, *RMFI*, §12.6); the tests check the simulated figures against them.
+(Hull, *RMFI*, chapter "Value at Risk and Expected Shortfall"; section from memory); the tests check the simulated figures against them.
 """
 from __future__ import annotations
 
