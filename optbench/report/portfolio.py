@@ -211,7 +211,28 @@ def portfolio_markdown(ph) -> str:
     return "\n".join(lines)
 
 
-def portfolio_html(ph) -> str:
+def figure_loss(ph) -> str:
+    """The loss distribution's histogram, unhedged and hedged, with the 99% VaR marked
+    (PNG data URI; the counts and edges are the result's, nothing recomputed)."""
+    from optbench.report.html import _plt, _png
+    plt = _plt()
+    h, L = ph.loss.histogram, ph.loss
+    edges = h["edges"]
+    width = edges[1] - edges[0]
+    fig, ax = plt.subplots(figsize=(7, 4))
+    ax.bar(edges[:-1], h["unhedged"], width=width, align="edge", alpha=0.5, label="unhedged")
+    ax.bar(edges[:-1], h["hedged"], width=width, align="edge", alpha=0.5, label="hedged")
+    for side, style in ((L.unhedged, "--"), (L.hedged, ":")):
+        ax.axvline(-side["var_99"], ls=style, lw=1, color="0.2")
+    ax.set_xlabel("portfolio P&L at expiry (lines: 99% VaR, unhedged dashed, hedged dotted)")
+    ax.set_ylabel("paths")
+    ax.set_title(f"{L.n_paths:,} joint paths to {L.expiry}")
+    ax.grid(alpha=0.3)
+    ax.legend(fontsize=8)
+    return _png(fig)
+
+
+def portfolio_html(ph, *, figures: bool = True) -> str:
     e = _html.escape
 
     def table(frame, columns):
@@ -228,6 +249,9 @@ def portfolio_html(ph) -> str:
                        for a, b, c in loss_rows(ph))
         parts += ["<h2>P&amp;L at expiry (simulated)</h2>",
                   f"<table><tr><th></th><th>Unhedged</th><th>Hedged</th></tr>{rows}</table>"]
+        if figures:
+            parts.append(f'<img alt="distribution of P&amp;L at expiry" '
+                         f'src="{figure_loss(ph)}">')
     parts += ["<h2>Greeks of the hedge</h2>", table(ph.greeks, GREEK_BRIEF),
               "<h2>Scenarios</h2>", table(ph.scenario_grid, GRID_BRIEF)]
     if ph.menu is not None:
