@@ -80,3 +80,19 @@ def test_exact_beta_portfolio_has_that_beta_and_no_residual(comparison):
     assert fit.beta.beta == pytest.approx(1.3, abs=1e-12)
     assert fit.beta.beta_se < 1e-12 and fit.beta.r_squared == pytest.approx(1.0)
     assert fit.value == 25e6
+
+
+def test_net_short_holdings_are_a_one_line_error(comparison):
+    from optbench.analysis.portfolio import fit_portfolio
+    from optbench.data.holdings import Holdings, PricePanel
+    from optbench.errors import InputError
+    import pandas as pd
+    d = comparison.history["date"].to_numpy()
+    r = comparison.history["ret"].to_numpy()
+    closes = pd.DataFrame({"A": 50 * np.exp(np.cumsum(r)), "B": 80 * np.exp(np.cumsum(r))},
+                          index=pd.DatetimeIndex(d))
+    table = pd.DataFrame({"symbol": ["A", "B"], "quantity": [10.0, -20.0],
+                          "weight": [np.nan] * 2, "price": [np.nan] * 2, "lines": ["2", "3"]})
+    h = Holdings("short.csv", table, "quantity", pd.DataFrame(), (), 2)
+    with pytest.raises(InputError, match="short.csv: .*not net long"):
+        fit_portfolio(d, r, holdings=h, panel=PricePanel("c.csv", closes))

@@ -212,6 +212,11 @@ def fit_portfolio(index_dates, index_returns, *, holdings=None, panel=None,
             raise InputError(holdings.source, "no holding has a usable price history over "
                                               f"the last {len(x)} returns of the underlying")
         w_fit = np.where(use, wv, 0.0)
+        if not w_fit.sum() > 0:
+            raise InputError(holdings.source, "the holdings with usable histories are not "
+                                              "net long (their values sum to "
+                                              f"{w_fit.sum():,.0f}); a protective put does "
+                                              "not hedge them")
         w_fit = w_fit / w_fit.sum()
         left = ~use
         if left.any():
