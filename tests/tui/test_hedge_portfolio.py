@@ -8,7 +8,7 @@ import subprocess
 import sys
 
 import pytest
-from textual.widgets import Select, Static
+from textual.widgets import Input, Select, Static
 
 from optbench.tui.app import make_app
 
@@ -49,4 +49,8 @@ async def _test():
         n_eff = sum(r["efficient"] for r in ref["menu"]["rows"])
         assert f"{n_eff} efficient of {len(ref['menu']['rows'])}" in shown
         assert "Basis risk" in shown
+        # a holdings file that does not exist is a one-line message; the app keeps running
+        app.screen.query_one("#hedge-holdings", Input).value = "/no/such/holdings.csv"
+        await pilot.pause(0.5)
+        assert "no such file" in text_of(app.screen.query_one("#hedge-error", Static))
         assert app.is_running

@@ -167,6 +167,8 @@ class HedgeView(Deferred, Horizontal):
             yield Label("Portfolio (beta from history)")
             yield Select(hp.SOURCES, value="typed", allow_blank=False, id="hedge-source",
                          compact=True)
+            yield Input("", placeholder="holdings file (default: beside the chain)",
+                        id="hedge-holdings", compact=True)
             yield Label("Protection menu")
             yield Select(hp.MENU_CHOICES, value="off", allow_blank=False, id="hedge-menu",
                          compact=True)
@@ -236,9 +238,12 @@ class HedgeView(Deferred, Horizontal):
             return
         holdings = None
         if self.query_one("#hedge-source", Select).value == "holdings":
-            holdings = hp.find_holdings(self.app.inputs.source.chain)
-            if holdings is None:
-                error.update("✗ no holdings.csv beside the chain")
+            typed = self.query_one("#hedge-holdings", Input).value.strip()
+            holdings = (hp.Path(typed).expanduser() if typed
+                        else hp.find_holdings(self.app.inputs.source.chain))
+            if holdings is None or not holdings.is_file():
+                error.update(f"✗ {typed}: no such file" if typed
+                             else "✗ no holdings.csv beside the chain")
                 self.add_class("stale")
                 return
         error.update("")
