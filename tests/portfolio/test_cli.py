@@ -30,7 +30,7 @@ def test_json_has_the_portfolio_keys_and_agrees_with_the_table(capsys):
     d = json.loads(out)
     assert d["schema"] == "optbench.hedge/1" and d["caution"] == CAUTION
     for key in ("contracts", "premium_paid", "scenarios", "portfolio", "loss_distribution",
-                "menu", "greeks", "scenario_grid", "basis_note", "drift"):
+                "menu", "greeks", "scenario_grid", "basis_note", "simulation_drift"):
         assert key in d
     p = d["portfolio"]
     assert p["beta"] > 0 and p["beta_se"] > 0 and 0 < p["r_squared"] < 1

@@ -27,13 +27,25 @@ def test_ewma_matches_the_riskmetrics_recursion():
     assert today == pytest.approx(math.sqrt(s2[-1]), rel=1e-9)
 
 
-def test_drift_is_matched_and_residual_variance_adds_up(comparison, demo_fit):
+def test_drift_and_residual_variance(comparison, demo_fit):
     td, t = np.array([21, 63]), np.array([30 / 365, 91 / 365])
-    drift = comparison.rate - comparison.div_yield
+    r, q = np.array([0.04, 0.041]), np.array([0.015, 0.014])
     j = simulate_joint(comparison.fit, demo_fit.beta.residuals, demo_fit.beta.beta, td, t,
-                       drift=drift, n_paths=20000, seed=5)
-    # the empirical martingale correction makes the mean exact (Duan & Simonato 1998)
-    np.testing.assert_allclose(np.exp(j.index).mean(axis=0), np.exp(drift * t), rtol=1e-12)
+                       rates=r, carries=q, n_paths=20000, seed=5)
+    # by hand from the same simulated days: X = (r - q) tau + sum(sigma z) - sum(sigma^2)/2
+    # (Glasserman, Monte Carlo Methods in Financial Engineering, 2003, §3.2)
+    sim = comparison.fit.simulate(63, n_paths=20000, seed=5)
+    mu = comparison.fit.params.get("mu", 0.0)
+    shock = np.cumsum(sim.returns - mu, axis=1)[:, td - 1]
+    var = np.cumsum(sim.variances, axis=1)[:, td - 1]
+    np.testing.assert_allclose(j.index, (r - q) * t + shock - 0.5 * var, atol=1e-12)
+    # E[S_T/S] = exp((r - q) tau) up to Monte Carlo error (t shocks: approximately)
+    np.testing.assert_allclose(np.exp(j.index).mean(axis=0), np.exp((r - q) * t), rtol=5e-3)
+    # the fitted-mean rule: sum of the simulated returns less the carry
+    jf = simulate_joint(comparison.fit, None, 1.0, td, t, rates=r, carries=q, drift=None,
+                        n_paths=20000, seed=5)
+    np.testing.assert_allclose(jf.index, np.cumsum(sim.returns, axis=1)[:, td - 1] - q * t,
+                               atol=1e-12)
     # i.i.d. bootstrap of unit-variance draws: Var(sum of h) = h s_today^2
     s_day = j.residual_vol_today / math.sqrt(252)
     np.testing.assert_allclose(j.residual.var(axis=0), td * s_day ** 2, rtol=0.05)
@@ -102,16 +114,16 @@ def test_menu_payoff_agrees_with_leg_payoff(comparison, demo_fit):
                          portfolio=demo_fit, menu=True, n_paths=3000, seed=4,
                          menu_days=(80, 90))
     e = ph.estimate
-    row = ph.menu.frame[(ph.menu.frame["structure"] == "collar")
-                        & (ph.menu.frame["floor"] == 0.9)].iloc[0]
+    menu_row = ph.menu.frame[(ph.menu.frame["structure"] == "collar")
+                             & (ph.menu.frame["floor"] == 0.9)].iloc[0]
     td = np.array([e.trading_days])
+    row = comparison.expiry_row(e.expiry)
     j = simulate_joint(comparison.fit, demo_fit.beta.residuals, demo_fit.beta.beta, td,
-                       [e.calendar_days / 365], drift=comparison.rate - comparison.div_yield,
-                       n_paths=3000, seed=4)
+                       [row.t], rates=[row.rate], carries=[row.carry], n_paths=3000, seed=4)
     s_t = e.spot * np.exp(j.index[:, 0])
     k = np.array([leg.strike for leg in e.legs])
     c = np.array([leg.type == "C" for leg in e.legs])
     s = np.array([1.0 if leg.side == "buy" else -1.0 for leg in e.legs])
     pay = leg_payoff(s_t, k, c, s) * e.contracts * e.multiplier
-    assert row["expected_payoff"] == pytest.approx(
-        math.exp(-e.rate * e.calendar_days / 365) * pay.mean(), rel=1e-9)
+    assert menu_row["expected_payoff"] == pytest.approx(
+        math.exp(-row.rate * row.t) * pay.mean(), rel=1e-9)

@@ -2,19 +2,20 @@ r"""Joint simulation of the underlying and the portfolio to one or more horizons
 
 Notes
 -----
-**Underlying.** Daily log returns :math:`r_i` from the fitted GARCH-family model
-(:meth:`optbench.volatility.GarchFit.simulate`, starting from today's conditional
-variance). With an annual drift :math:`\mu_a` (default the risk-free rate less the
-dividend yield, :math:`r-q`), the log return to a horizon of :math:`h` trading days and
-calendar time :math:`\tau` is
+**Underlying.** Daily log returns :math:`r_i = \hat\mu + \sigma_i z_i` from the fitted
+GARCH-family model (:meth:`optbench.volatility.GarchFit.simulate`, starting from
+today's conditional variance). With an annual drift :math:`a` (default each expiry's
+rate less its carry, :math:`r-q`, plus an excess return the caller may give), the log
+return to a horizon of :math:`h` trading days and calendar time :math:`\tau` is
 
-.. math:: X_h = \sum_{i\le h}(r_i - \hat\mu) - \ln\overline{\exp\Bigl(\sum_{i\le h}(r_i-\hat\mu)\Bigr)} + \mu_a\tau,
+.. math:: X_h = a\tau + \sum_{i\le h}\sigma_i z_i - \tfrac12\sum_{i\le h}\sigma_i^2,
 
-so that the simulated mean of :math:`S_T/S` is exactly :math:`e^{\mu_a\tau}` (empirical
-martingale correction: Duan and Simonato, "Empirical martingale simulation for asset
-prices", *Management Science* 44(9), 1998). With ``drift=None`` the fitted mean is kept
-and the dividend yield taken off, :math:`X_h = \sum r_i - q\tau` (the rule of
-:func:`optbench.analysis.hedge.hedge_from_comparison`).
+whose conditional mean of :math:`e^{X_h}` given the volatility path is :math:`e^{a\tau}`
+for normal shocks, so :math:`E[S_T] = S e^{a\tau}` (Glasserman, *Monte Carlo Methods in
+Financial Engineering*, 2003, §3.2, the discretised log price; the same construction
+as the single hedge's drift rule). With ``drift=None`` the fitted mean is kept and the
+carry taken off, :math:`X_h = \sum r_i - q\tau`. The simulation runs once to the
+longest horizon; every expiry reads its own partial sums.
 
 **Portfolio.** :math:`\ln(V_T/V) = \hat\beta X_h + \sum_{i\le h}\varepsilon_i`, with the
 estimated beta and no alpha (common practice: an estimated alpha is mostly noise).
@@ -55,7 +56,7 @@ class JointPaths:
     index: np.ndarray
     residual: np.ndarray
     beta: float
-    drift: float | None
+    drift: float | str | None
     drift_rule: str
     residual_vol_today: float
     residual_method: str = RESIDUAL_METHOD
@@ -103,9 +104,9 @@ def horizon_sums(daily: np.ndarray, trading_days: np.ndarray) -> np.ndarray:
     return np.cumsum(seg, axis=0).T
 
 
-def simulate_joint(fit, residuals, beta: float, trading_days, t, *, div_yield: float = 0.0,
-                   drift: float | None = 0.0, n_paths: int = 20000,
-                   seed: int | None = 7) -> JointPaths:
+def simulate_joint(fit, residuals, beta: float, trading_days, t, *, rates, carries,
+                   drift: float | str | None = "carry", excess_return: float = 0.0,
+                   n_paths: int = 20000, seed: int | None = 7) -> JointPaths:
     """Simulate the underlying and the portfolio to every horizon (see module Notes).
 
     Parameters
@@ -115,12 +116,15 @@ def simulate_joint(fit, residuals, beta: float, trading_days, t, *, div_yield: f
         empty for a portfolio that is exactly ``beta`` × the underlying.
     beta : the portfolio's beta.
     trading_days, t : horizons in trading days and in calendar years (same length).
-    div_yield : dividend yield (used with ``drift=None`` only).
-    drift : annual drift of the underlying's price (decimal, e.g. ``r - q``), or None
-        for the fitted mean less the dividend yield.
+    rates, carries : each horizon's rate and carry (its forward's), decimals.
+    drift : ``"carry"`` — each horizon's ``r - q`` plus ``excess_return`` (the
+        default); a number — that annual drift for every horizon; None — the fitted
+        mean of the daily log returns less the carry.
     """
     td = np.asarray(trading_days, int)
     tt = np.asarray(t, float)
+    rr = np.broadcast_to(np.asarray(rates, float), td.shape)
+    qq = np.broadcast_to(np.asarray(carries, float), td.shape)
     if td.size == 0 or (td < 1).any():
         raise ValueError("horizons must be positive trading days")
     h_max = int(td.max())
@@ -128,13 +132,23 @@ def simulate_joint(fit, residuals, beta: float, trading_days, t, *, div_yield: f
     mu = float(fit.params.get("mu", 0.0) or 0.0)
     cum = horizon_sums(sim.returns.T, td)   # the simulation's (days, paths) memory
     if drift is None:
-        index = cum - div_yield * tt[None, :]
-        rule = "fitted mean of the model, less the dividend yield"
+        index = cum - (qq * tt)[None, :]
+        rule = "fitted mean of the model's daily log returns, less the carry"
     else:
-        core = cum - mu * td[None, :]
-        shift = np.log(np.mean(np.exp(core), axis=0))
-        index = core - shift[None, :] + float(drift) * tt[None, :]
-        rule = f"{drift:.4%} a year (mean of S_T matched to it on the paths)"
+        if isinstance(drift, str):
+            if drift != "carry":
+                raise ValueError(f"drift must be 'carry', a number or None, not {drift!r}")
+            annual = rr - qq + float(excess_return)
+            rule = ("risk-free rate less carry of each expiry"
+                    + (f", plus an excess return of {excess_return:+.2%} a year"
+                       if excess_return else " (no expected excess return)"))
+        else:
+            annual = np.full(td.shape, float(drift))
+            rule = f"{float(drift):+.2%} a year"
+        # sum of sigma_i z_i, less half the summed variance: E[S_T/S] = exp(annual tau)
+        shock = cum - mu * td[None, :]
+        var = horizon_sums(sim.variances.T, td)
+        index = (annual * tt)[None, :] + shock - 0.5 * var
     e = np.asarray(residuals if residuals is not None else [], float)
     e = e[np.isfinite(e)]
     if e.size >= 2 and math.sqrt(float(e @ e) / e.size) > 1e-12:   # else: no basis risk
@@ -147,5 +161,6 @@ def simulate_joint(fit, residuals, beta: float, trading_days, t, *, div_yield: f
         s_today = 0.0
         resid = np.zeros_like(index)
     return JointPaths(trading_days=td, t=tt, index=index, residual=resid, beta=float(beta),
-                      drift=None if drift is None else float(drift), drift_rule=rule,
+                      drift=drift if drift is None or isinstance(drift, str) else float(drift),
+                      drift_rule=rule,
                       residual_vol_today=s_today * math.sqrt(252))

@@ -10,7 +10,8 @@ and ``optbench hedge`` with the same expiry, floor and structure agree to the un
 On the joint paths (:mod:`optbench.analysis.portfolio.joint`) at that expiry:
 
 * premium paid (ask for bought legs, bid for sold legs) and at mid;
-* expected payoff :math:`e^{-r\tau}\,\overline{\text{payoff}}` and overpay = premium
+* expected payoff :math:`e^{-r\tau}\,\overline{\text{payoff}}` (:math:`r` the expiry's
+  rate) and overpay = premium
   paid − expected payoff. The overpay is the menu's **cost**: the expected drag of
   the hedge under the model, which counts a collar's forgone upside (its premium
   alone would call a zero-cost collar free);
@@ -148,7 +149,9 @@ def protection_menu(comparison, joint, *, value: float, hedge_ratio: float,
         pay -= np.where(has2[None, :], np.maximum(sold, 0.0), 0.0)
         paid = units * (ask[ip] - np.where(has2, bid[io0], 0.0))
         pmid = units * (mid[ip] - np.where(has2, mid[io0], 0.0))
-        expected = math.exp(-rate * row.t) * units * pay.mean(axis=0)
+        r_e = getattr(row, "rate", math.nan)
+        r_e = r_e if math.isfinite(r_e) else rate     # the expiry's own rate, as the hedge
+        expected = math.exp(-r_e * row.t) * units * pay.mean(axis=0)
         # (rows, paths) so that each row's tail is found in contiguous memory
         hedged = np.ascontiguousarray(pay.T)
         hedged *= units

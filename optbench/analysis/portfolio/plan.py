@@ -13,6 +13,7 @@
 from __future__ import annotations
 
 import dataclasses
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -45,7 +46,7 @@ class PortfolioHedge:
     greeks : DataFrame (:data:`~optbench.analysis.portfolio.greeks.GREEK_COLUMNS`).
     scenario_grid : DataFrame ``move, vol_shock, level, hedge_value, unhedged, hedged``.
     horizon_days : calendar days from today of the vol-shocked scenarios.
-    drift : annual drift used in the joint simulation (None = fitted mean).
+    drift : the joint simulation's drift rule in plain words (None without a model).
     warnings : everything the numbers carry (estimate, portfolio, simulation).
     """
 
@@ -56,7 +57,7 @@ class PortfolioHedge:
     greeks: pd.DataFrame
     scenario_grid: pd.DataFrame
     horizon_days: int
-    drift: float | None
+    drift: str | None
     warnings: tuple[str, ...] = ()
     basis_note: str = BASIS_NOTE
     caution: str = CAUTION
@@ -71,10 +72,31 @@ class PortfolioHedge:
         out["greeks"] = plain(self.greeks)
         out["scenario_grid"] = plain(self.scenario_grid)
         out["scenario_horizon_days"] = self.horizon_days
-        out["drift"] = self.drift
+        out["simulation_drift"] = self.drift
         out["basis_note"] = self.basis_note
         out["caution"] = self.caution
         return out
+
+
+def horizon_market(comparison, trading_days, estimate):
+    """Calendar years, rate and carry of each horizon (trading days) from the
+    comparison's expiries (the chain's rate and yield where an expiry has none)."""
+    r0, q0 = float(comparison.rate), float(comparison.div_yield)
+    by_days = {row.trading_days: row for row in comparison.expiries}
+    t, rates, carries = [], [], []
+    for h in trading_days:
+        row = by_days.get(int(h))
+        if row is None:
+            t.append(estimate.calendar_days / 365.0)
+            rates.append(r0)
+            carries.append(q0)
+            continue
+        t.append(row.t)
+        r = getattr(row, "rate", math.nan)
+        q = getattr(row, "carry", math.nan)
+        rates.append(r if math.isfinite(r) else r0)
+        carries.append(q if math.isfinite(q) else q0)
+    return np.array(t), np.array(rates), np.array(carries)
 
 
 def portfolio_hedge(comparison, request: HedgeRequest, *, portfolio: PortfolioFit | None = None,
@@ -87,8 +109,10 @@ def portfolio_hedge(comparison, request: HedgeRequest, *, portfolio: PortfolioFi
 
     With ``portfolio``, the request's beta is replaced by the estimated beta and its
     value by the portfolio's (unless the request carries a hedge-ratio override,
-    which is kept). ``drift``: ``"carry"`` (r − q, the default), a number (annual), or
-    None (the fitted mean). ``loss_level`` in money (default 10 % of the value).
+    which is kept). ``drift``: ``"carry"`` (each expiry's r − q, the default, plus the
+    comparison's excess return or its fitted-mean rule where it carries a drift
+    choice), a number (annual, every expiry), or None (the fitted mean less the
+    carry). ``loss_level`` in money (default 10 % of the value).
     """
     warnings: list[str] = []
     if portfolio is not None:
@@ -101,22 +125,33 @@ def portfolio_hedge(comparison, request: HedgeRequest, *, portfolio: PortfolioFi
         from optbench.analysis.hedge import hedge_from_comparison
         estimate = hedge_from_comparison(comparison, request, n_paths=n_paths, seed=seed)
     warnings = list(estimate.warnings) + warnings
-    d = (float(comparison.rate) - float(comparison.div_yield)) if drift == CARRY else drift
+    excess = 0.0
+    if drift == CARRY:
+        # the comparison's own drift rule, where it carries one (fitted mean or an
+        # excess return over the carry); else the carry alone
+        choice = getattr(comparison, "drift", None)
+        rule = getattr(choice, "rule", None)
+        if rule == "fitted":
+            drift = None
+        elif rule is not None:
+            x = float(getattr(choice, "excess_return", 0.0) or 0.0)
+            excess = x if x == x else 0.0
     fit = getattr(comparison, "fit", None)
     loss = table = None
+    joint = None
     if fit is None or estimate.trading_days < 1:
         warnings.append("no fitted model: loss distribution and menu not computed")
     else:
-        rows = {estimate.trading_days: estimate.calendar_days / 365.0}
+        wanted = {estimate.trading_days}
         if menu:
-            rows.update({r.trading_days: r.t for r in menu_expiries(comparison, *menu_days)})
-        td = np.array(sorted(rows))
+            wanted |= {r.trading_days for r in menu_expiries(comparison, *menu_days)}
+        td = np.array(sorted(wanted))
+        t, rates, carries = horizon_market(comparison, td, estimate)
         from optbench.analysis.portfolio.joint import simulate_joint
         resid = portfolio.beta.residuals if portfolio is not None else None
         beta = portfolio.beta.beta if portfolio is not None else request.beta
-        joint = simulate_joint(fit, resid, beta, td, [rows[k] for k in td],
-                               div_yield=float(comparison.div_yield), drift=d,
-                               n_paths=n_paths, seed=seed)
+        joint = simulate_joint(fit, resid, beta, td, t, rates=rates, carries=carries,
+                               drift=drift, excess_return=excess, n_paths=n_paths, seed=seed)
         loss = dataclasses.replace(loss_distribution(joint, estimate, loss_level=loss_level),
                                    seed=seed)
         if menu:
@@ -124,12 +159,13 @@ def portfolio_hedge(comparison, request: HedgeRequest, *, portfolio: PortfolioFi
                                     hedge_ratio=estimate.request.exposure_ratio,
                                     multiplier=estimate.multiplier, min_days=menu_days[0],
                                     max_days=menu_days[1])
-    if d is not None and getattr(estimate, "drift", None) is None and loss is not None:
+    if joint is not None and drift is not None and getattr(estimate, "drift", None) is None:
         warnings.append("the hedge's expected payoff above follows the single-hedge rule "
                         "(the fitted model's mean); the loss distribution and the menu use "
-                        f"a drift of {d:.2%} a year")
+                        f"a drift of: {joint.drift_rule}")
     greeks = hedge_greeks(estimate)
     grid = scenario_grid(estimate, moves, vol_shocks, horizon_days)
     return PortfolioHedge(estimate=estimate, portfolio=portfolio, loss=loss, menu=table,
                           greeks=greeks, scenario_grid=grid, horizon_days=int(horizon_days),
-                          drift=d, warnings=tuple(dict.fromkeys(warnings)))
+                          drift=joint.drift_rule if joint is not None else None,
+                          warnings=tuple(dict.fromkeys(warnings)))
