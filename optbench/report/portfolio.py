@@ -61,7 +61,8 @@ def _cell(value, col) -> str:
     return fmt(value, kind)
 
 
-def _records(frame: pd.DataFrame, columns) -> list[list[str]]:
+def _records(frame: pd.DataFrame, columns) -> tuple[list[list[str]], list[str]]:
+    """The frame's rows as display text, and the columns shown (those it has)."""
     cols = [c for c in columns if c in frame.columns]
     return [[_cell(r[c], c) for c in cols] for r in frame.to_dict(orient="records")], cols
 

@@ -23,7 +23,7 @@ dates on which a holding that is kept has no return are dropped from the regress
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
@@ -70,7 +70,6 @@ class PortfolioFit:
     window: int
     warnings: tuple[str, ...] = ()
     basis_note: str = BASIS_NOTE
-    extra: dict = field(default_factory=dict)
 
     @property
     def residual_daily_returns(self) -> np.ndarray:
