@@ -91,7 +91,8 @@ def add_portfolio_arguments(parser: argparse.ArgumentParser) -> None:
                    default="expiry", help="order of the menu's rows in every view "
                                           "(default: expiry)")
     p.add_argument("--moves", default=None, metavar="LIST",
-                   help="underlying moves for the scenarios: -0.3,-0.2,0.1 or FROM:TO:STEP "
+                   help="underlying moves for the scenarios, written with '=' when they "
+                        "start with a minus: --moves=-0.3,-0.2,0.1 or --moves=FROM:TO:STEP "
                         "(default: -0.30:0.10:0.05)")
     p.add_argument("--vol-shocks", dest="vol_shocks", default=None, metavar="POINTS",
                    help="implied-vol shocks in vol points, e.g. 5,10 (each applied up and "
