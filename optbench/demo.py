@@ -650,3 +650,90 @@ def write_iv_history(folder: str | Path, seed: int = SEED) -> dict[str, int]:
     folder.mkdir(parents=True, exist_ok=True)
     (folder / "iv_history.csv").write_bytes(data)
     return {"iv_history.csv": len(data)}
+# --------------------------------------------------------------- demo portfolio
+# An invented portfolio of a dozen invented holdings on the invented index: each
+# holding's daily log return is beta_i x the index's plus its own Student-t noise
+# (the market model; Sharpe 1963, "A simplified model for portfolio analysis").
+# Written as chains/ZPHX/holdings.csv and a wide history of closes,
+# chains/ZPHX/holdings_history.csv, with a few deliberate gaps so the loader has
+# something to report: ZH07 listed only 120 trading days ago (too short for the
+# one-year beta), ZH11 with four days of missing closes, ZH12 absent from the
+# history file, a column ZH13 (a holding since sold) that matches no holding, and
+# ZH05 without a price in the holdings file (its last close is used).
+PORTFOLIO_SEED = 20261414
+PORTFOLIO_YEARS = 3                    # trading years of holdings history
+PORTFOLIO_TARGET_VALUE = 25_000_000.0
+PORTFOLIO_CODES = tuple(f"ZH{i:02d}" for i in range(1, 14))   # ZH13 = sold holding
+
+
+@dataclass(frozen=True)
+class DemoPortfolio:
+    """The invented holdings (``holdings`` rows) and the wide closes (``dates``, ``closes``
+    as ``{code: array, NaN = no close}``)."""
+
+    holdings: list[dict]
+    dates: np.ndarray
+    closes: dict
+    betas: dict
+
+
+def generate_portfolio(scenario: DemoScenario, seed: int = PORTFOLIO_SEED) -> DemoPortfolio:
+    """Invent the demo portfolio on ``scenario``'s index history (pure, fixed seed)."""
+    rng = np.random.default_rng(seed)
+    h = scenario.history
+    n = min(len(h.close), PORTFOLIO_YEARS * 252 + 1)
+    dates = h.dates[-n:]
+    idx_ret = np.diff(np.log(h.close[-n:]))
+    k = len(PORTFOLIO_CODES)
+    betas = np.round(rng.uniform(0.6, 1.7, k), 2)
+    idio = rng.uniform(0.12, 0.32, k) / np.sqrt(252)        # daily residual vol
+    nu = 5.0
+    z = rng.standard_t(nu, size=(n - 1, k)) * np.sqrt((nu - 2) / nu)
+    rets = idx_ret[:, None] * betas[None, :] + z * idio[None, :]
+    start = np.round(rng.uniform(20.0, 400.0, k), 2)
+    closes = np.round(start[None, :] * np.exp(np.vstack([np.zeros(k), np.cumsum(rets, 0)])), 2)
+    closes[:-120, 6] = np.nan                                # ZH07: listed 120 days ago
+    closes[[-200, -150, -90, -30], 10] = np.nan              # ZH11: four gaps
+    shares = rng.uniform(0.04, 0.12, 12)
+    shares /= shares.sum()
+    rows = []
+    for i, code in enumerate(PORTFOLIO_CODES[:12]):
+        price = float(closes[-1, i])
+        qty = int(round(PORTFOLIO_TARGET_VALUE * shares[i] / price))
+        rows.append({"symbol": code, "quantity": str(qty),
+                     "price": "" if code == "ZH05" else f"{price:.2f}"})
+    columns = {code: closes[:, i] for i, code in enumerate(PORTFOLIO_CODES) if code != "ZH12"}
+    return DemoPortfolio(holdings=rows, dates=dates, closes=columns,
+                         betas=dict(zip(PORTFOLIO_CODES, betas.tolist())))
+
+
+def render_portfolio_files(portfolio: DemoPortfolio) -> dict[str, bytes]:
+    """``holdings.csv`` and ``holdings_history.csv`` as bytes (fixed decimals, ``\\n``)."""
+    hold = io.StringIO()
+    hold.write("symbol,quantity,price\n")
+    for r in portfolio.holdings:
+        hold.write(f"{r['symbol']},{r['quantity']},{r['price']}\n")
+    codes = list(portfolio.closes)
+    hist = io.StringIO()
+    hist.write("date," + ",".join(codes) + "\n")
+    cols = np.column_stack([portfolio.closes[c] for c in codes])
+    for d, row in zip(portfolio.dates.astype(str), cols):
+        hist.write(d + "," + ",".join("" if not np.isfinite(v) else f"{v:.2f}" for v in row)
+                   + "\n")
+    return {"holdings.csv": hold.getvalue().encode(),
+            "holdings_history.csv": hist.getvalue().encode()}
+
+
+def write_portfolio(folder: str | Path, seed: int = SEED,
+                    portfolio_seed: int = PORTFOLIO_SEED) -> dict[str, int]:
+    """Generate the demo portfolio on the scenario of ``seed`` and write
+    ``holdings.csv`` and ``holdings_history.csv`` into ``folder``.
+
+    Returns ``{file name: bytes written}``.
+    """
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    files = render_portfolio_files(generate_portfolio(generate(seed), portfolio_seed))
+    for name, data in files.items():
+        (folder / name).write_bytes(data)
+    return {name: len(data) for name, data in files.items()}

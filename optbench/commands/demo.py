@@ -103,6 +103,7 @@ def _write_scenario(folder: Path, args: argparse.Namespace) -> str:
     seed = demo.SEED if args.seed is None else args.seed
     written = demo.write_scenario(folder, seed=seed)
     written.update(demo.write_iv_history(folder, seed=seed))
+    written.update(demo.write_portfolio(folder, seed=seed))
     rows = {name: (folder / name).read_bytes().count(b"\n") - 1
             for name in written if name.endswith(".csv")}
     if args.format == "json":

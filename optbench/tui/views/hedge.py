@@ -19,7 +19,8 @@ from textual.widgets import Input, Label, Select, Static
 from textual.worker import get_current_worker
 
 from optbench.errors import InputError
-from optbench.tui import fmt, session
+from optbench.tui import fmt
+from optbench.tui.views import hedge_portfolio as hp
 from optbench.tui.views.base import Deferred
 
 STRUCTURES = (("protective put", "put"), ("put spread", "put_spread"),
@@ -130,10 +131,11 @@ class HedgeView(Deferred, Horizontal):
     """Form on the left, estimate on the right."""
 
     class Ready(Message):
-        def __init__(self, estimate, inputs: PlannerInputs) -> None:
+        def __init__(self, estimate, inputs: PlannerInputs, portfolio=None) -> None:
             super().__init__()
             self.estimate = estimate
             self.inputs = inputs
+            self.portfolio = portfolio
 
     class Failed(Message):
         def __init__(self, error: str) -> None:
@@ -164,11 +166,20 @@ class HedgeView(Deferred, Horizontal):
             yield Input("", placeholder="floor − 10", id="hedge-lower", compact=True)
             yield Label("Collar: sold call strike")
             yield Input("", placeholder="zero-cost call", id="hedge-call", compact=True)
+            yield Label("Portfolio (beta from history)")
+            yield Select(hp.SOURCES, value="typed", allow_blank=False, id="hedge-source",
+                         compact=True)
+            yield Input("", placeholder="holdings file (default: beside the chain)",
+                        id="hedge-holdings", compact=True)
+            yield Label("Protection menu")
+            yield Select(hp.MENU_CHOICES, value="off", allow_blank=False, id="hedge-menu",
+                         compact=True)
             yield Static("", id="hedge-error", classes="form-error")
         with VerticalScroll(id="hedge-result"):
             yield Static("Pricing …", id="hedge-summary")
             yield Static("", id="hedge-legs")
             yield Static("", id="hedge-scenarios")
+            yield Static("", id="hedge-portfolio-view")
             yield Static("", id="hedge-notes", classes="note")
             yield Static("", id="hedge-caution", classes="caution")
 
@@ -227,22 +238,34 @@ class HedgeView(Deferred, Horizontal):
             error.update(f"✗ {err}")
             self.add_class("stale")
             return
+        holdings = None
+        if self.query_one("#hedge-source", Select).value == "holdings":
+            typed = self.query_one("#hedge-holdings", Input).value.strip()
+            holdings = (hp.Path(typed).expanduser() if typed
+                        else hp.find_holdings(self.app.inputs.source.chain))
+            if holdings is None or not holdings.is_file():
+                error.update(f"✗ {typed}: no such file" if typed
+                             else "✗ no holdings.csv beside the chain")
+                self.add_class("stale")
+                return
         error.update("")
-        self.price(self._comparison, inputs)
+        self.price(self._comparison, inputs, holdings,
+                   self.query_one("#hedge-menu", Select).value == "on")
 
     @work(thread=True, exclusive=True, group="hedge")
-    def price(self, comparison, inputs: PlannerInputs) -> None:
+    def price(self, comparison, inputs: PlannerInputs, holdings=None, menu=False) -> None:
         worker = get_current_worker()
         try:
             settings = self.app.inputs.settings
-            estimate = session.run_hedge(comparison, n_paths=settings.hedge_paths,
-                                         seed=settings.seed, **inputs.kwargs())
+            ph = hp.compute(comparison, inputs.kwargs(), holdings=holdings, menu=menu,
+                            n_paths=settings.hedge_paths, seed=settings.seed)
+            estimate = ph.estimate
         except InputError as err:
             if not worker.is_cancelled:
                 self.post_message(self.Failed(str(err)))
             return
         if not worker.is_cancelled:
-            self.post_message(self.Ready(estimate, inputs))
+            self.post_message(self.Ready(estimate, inputs, ph))
 
     @on(Ready)
     def _ready(self, message: Ready) -> None:
@@ -253,7 +276,11 @@ class HedgeView(Deferred, Horizontal):
         self.query_one("#hedge-summary", Static).update(summary_table(est))
         self.query_one("#hedge-legs", Static).update(legs_table(est))
         self.query_one("#hedge-scenarios", Static).update(scenario_table(est))
-        notes = [n for n in (est.collar_note, *est.warnings) if n]
+        if message.portfolio is not None:
+            self.query_one("#hedge-portfolio-view", Static).update(
+                hp.portfolio_view(message.portfolio))
+        warnings = message.portfolio.warnings if message.portfolio else est.warnings
+        notes = [n for n in (est.collar_note, *warnings) if n]
         self.query_one("#hedge-notes", Static).update("\n".join(notes))
         self.query_one("#hedge-caution", Static).update(f"⚠ {est.caution}")
 
