@@ -31,6 +31,9 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     parser.add_argument("--workers", type=whole_number(1), default=None,
                         help="local worker processes for the universe screen "
                              "(default: the number of cores)")
+    parser.add_argument("--scheduler", metavar="ADDRESS", default=None,
+                        help="address of a running Dask scheduler (tcp://host:8786): the "
+                             "universe screen runs on that cluster")
     parser.set_defaults(run=run)
     return parser
 
@@ -56,6 +59,7 @@ def run(args: argparse.Namespace) -> int:
     app = make_app(chain, history, model=args.model, dist=args.dist, mean=args.mean,
                    spot=args.spot, asof=args.asof, rate=args.rate, div_yield=args.div_yield,
                    max_spread=args.max_spread, hedge_paths=args.paths, seed=args.seed,
-                   universe=universe, workers=args.workers)
+                   universe=universe, workers=args.workers,
+                   scheduler=args.scheduler)
     app.run()
     return 0

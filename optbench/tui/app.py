@@ -110,12 +110,14 @@ class Workbench(App):
     ]
 
     def __init__(self, inputs: session.Inputs, universe: Path | None = None,
-                 workers: int | None = None) -> None:
+                 workers: int | None = None, scheduler: str | None = None) -> None:
         super().__init__()
         self.inputs = inputs
         #: a folder of scenario folders to screen (key u), and its last screen
         self.universe = Path(universe) if universe is not None else None
         self.universe_workers = workers
+        #: a running Dask scheduler's address: the universe screen runs there instead
+        self.universe_scheduler = scheduler
         self.universe_result = None
         self.comparison = None
         self.headline = None
@@ -332,6 +334,7 @@ class Workbench(App):
             self.universe, self.universe_result = folder, None
         s = self.inputs.settings
         dialog = UniverseScreen(folder, self.universe_result, workers=self.universe_workers,
+                                scheduler=self.universe_scheduler,
                                 model=s.model, dist=s.dist, mean=s.mean)
 
         def chosen(request: OpenRequest | None) -> None:
@@ -403,7 +406,8 @@ def make_app(scenario_path: str | Path | None = None, history: str | Path | None
              spot: float | None = None, asof=None, rate: float | None = None,
              div_yield: float | None = None, max_spread: float | None = None,
              hedge_paths: int | None = None, seed: int | None = 7,
-             universe: str | Path | None = None, workers: int | None = None) -> Workbench:
+             universe: str | Path | None = None, workers: int | None = None,
+             scheduler: str | None = None) -> Workbench:
     """The workbench on a chain file or scenario folder (default: the bundled demo).
 
     Parameters
@@ -417,6 +421,8 @@ def make_app(scenario_path: str | Path | None = None, history: str | Path | None
         seed 7, as ``optbench hedge``).
     universe, workers : a folder of scenario folders to screen (the universe screen,
         key u, opens on start) and its local worker processes (default: the cores).
+    scheduler : address of a running Dask scheduler for the universe screen (in place
+        of local processes).
     """
     chain = Path(scenario_path) if scenario_path is not None else session.demo_scenario()
     source = OpenRequest(chain=chain, history=Path(history) if history is not None else None)
@@ -424,4 +430,4 @@ def make_app(scenario_path: str | Path | None = None, history: str | Path | None
                         div_yield=div_yield, max_spread=max_spread,
                         hedge_paths=int(hedge_paths or session.N_PATHS), seed=seed)
     return Workbench(session.Inputs(source=source, settings=settings), universe=universe,
-                     workers=workers)
+                     workers=workers, scheduler=scheduler)

@@ -3,6 +3,7 @@ rows of ``optbench screen`` (the same numbers), and opens any row's underlying i
 full views; a broken underlying stays a row with its reason."""
 from __future__ import annotations
 
+import asyncio
 import shutil
 
 import pytest
@@ -104,3 +105,54 @@ def test_smile_view_draws_the_fitted_curve_from_the_comparison():
         assert np.interp(row.forward, strikes, vols) == pytest.approx(row.atm_iv, abs=2e-4)
         names = [s.label for s in smile_plot(c, row).series]
         assert any(n.startswith("fitted smile") for n in names)
+
+
+async def _screen_inside_the_workbench(universe, **options):
+    """Run the universe screen from inside the running workbench (stdout and stderr
+    captured by the UI, as in a terminal) and return its result."""
+    app = make_app(universe / "ZPHA", universe=universe, hedge_paths=PATHS, **options)
+    async with app.run_test(size=SIZE) as pilot:
+        for _ in range(1200):
+            if isinstance(app.screen, UniverseScreen) and app.screen.result is not None:
+                break
+            status = app.screen.query("#universe-status")
+            if status and "✗" in str(status.first().content):
+                pytest.fail(str(status.first().content))
+            await pilot.pause(0.1)
+        dialog = app.screen
+        assert isinstance(dialog, UniverseScreen) and dialog.result is not None
+        return dialog.result
+
+
+def _two_underlyings(root):
+    for code in ("ZPHA", "ZPHB"):
+        shutil.copytree(demo(), root / code)
+        meta = (root / code / "meta.toml").read_text()
+        (root / code / "meta.toml").write_text(meta.replace('code = "ZPHX"', f'code = "{code}"'))
+    return root
+
+
+@pytest.mark.slow
+def test_universe_screen_runs_two_local_processes_inside_the_workbench(tmp_path):
+    # launching worker processes while the UI holds stdout/stderr used to fail with
+    # "bad value(s) in fds_to_keep"; the rows must equal the in-process screen's
+    universe = _two_underlyings(tmp_path)
+    result = asyncio.run(_screen_inside_the_workbench(universe, workers=2))
+    reference = screen(universe, workers=1)
+    assert result.failures == () and len(result.rows) == len(reference.rows) == 6
+    assert [(r["code"], r["tenor_days"], r["atm_iv"]) for r in result.rows] == \
+           [(r["code"], r["tenor_days"], r["atm_iv"]) for r in reference.rows]
+
+
+@pytest.mark.slow
+def test_universe_screen_runs_on_a_dask_cluster_from_the_workbench(tmp_path):
+    from distributed import LocalCluster
+    universe = _two_underlyings(tmp_path)
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                      host="127.0.0.1", dashboard_address=None) as cluster:
+        result = asyncio.run(_screen_inside_the_workbench(universe,
+                                                          scheduler=cluster.scheduler_address))
+    assert result.scheduler is not None and result.failures == ()
+    reference = screen(universe, workers=1)
+    assert [(r["code"], r["tenor_days"], r["atm_iv"]) for r in result.rows] == \
+           [(r["code"], r["tenor_days"], r["atm_iv"]) for r in reference.rows]

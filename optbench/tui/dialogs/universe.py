@@ -58,11 +58,12 @@ class UniverseScreen(ModalScreen[OpenRequest | None]):
     ]
 
     def __init__(self, folder: Path, result=None, *, workers: int | None = None,
-                 **screen_options) -> None:
+                 scheduler: str | None = None, **screen_options) -> None:
         super().__init__()
         self.folder = Path(folder)
         self.result = result
         self.n_workers = workers
+        self.scheduler = scheduler
         self.screen_options = screen_options
 
     def compose(self) -> ComposeResult:
@@ -90,8 +91,8 @@ class UniverseScreen(ModalScreen[OpenRequest | None]):
                 self.app.call_from_thread(self._progress, done, total)
 
         try:
-            result = screen(self.folder, workers=self.n_workers, progress=progress,
-                            **self.screen_options)
+            result = screen(self.folder, workers=self.n_workers, scheduler=self.scheduler,
+                            progress=progress, **self.screen_options)
         except Exception as err:  # shown to the user; the app keeps running
             if not worker.is_cancelled:
                 self.app.call_from_thread(self._failed, str(err))
