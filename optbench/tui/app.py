@@ -93,20 +93,27 @@ class Workbench(App):
 
     CSS_PATH = "app.tcss"
     TITLE = "optbench"
+    #: screen classes for the layout: below 100 columns views stack and labels
+    #: shorten; below 32 rows the header gives way and boxes lose their padding
+    HORIZONTAL_BREAKPOINTS = [(0, "-narrow"), (100, "-medium"), (160, "-wide")]
+    VERTICAL_BREAKPOINTS = [(0, "-short"), (32, "-tall")]
+
+    #: the key bar shows these in order (the most used first, so that a narrow
+    #: terminal still shows export, help and quit); the help screen lists them all
     BINDINGS = [
         *[Binding(key, f"view('{vid}')", title, id=f"view.{vid}", group=VIEW_KEYS) for vid, key, title in VIEWS],
+        Binding("o", "open", "Open", id="app.open"),
+        Binding("m", "settings", "Model & market", id="app.settings"),
+        Binding("e", "export", "Export", id="app.export"),
+        Binding("question_mark,f1", "help", "Help", key_display="?", id="app.help"),
+        Binding("q", "quit", "Quit", id="app.quit"),
+        Binding("u", "universe", "Universe", id="app.universe"),
+        Binding("r", "recompute", "Recompute", id="app.recompute"),
         Binding("left_square_bracket", "step_expiry(-1)", "Previous expiry", key_display="[",
                 id="app.prev_expiry", group=EXPIRY_KEYS),
         Binding("right_square_bracket", "step_expiry(1)", "Next expiry", key_display="]",
                 id="app.next_expiry", group=EXPIRY_KEYS),
-        Binding("o", "open", "Open", id="app.open"),
-        Binding("u", "universe", "Universe", id="app.universe"),
-        Binding("m", "settings", "Model & market", id="app.settings"),
-        Binding("r", "recompute", "Recompute", id="app.recompute"),
-        Binding("e", "export", "Export", id="app.export"),
-        Binding("question_mark,f1", "help", "Help", key_display="?", id="app.help"),
         Binding("escape", "leave_field", "Leave field", show=False, id="app.leave"),
-        Binding("q", "quit", "Quit", id="app.quit"),
     ]
 
     def __init__(self, inputs: session.Inputs, universe: Path | None = None,
@@ -192,6 +199,12 @@ class Workbench(App):
             if not worker.is_cancelled:
                 self.post_message(Failed(token, _describe(err), stage))
 
+    @staticmethod
+    def _facts(c) -> str:
+        """The comparison on screen in a few words (the status line leads with the state)."""
+        return (f"{c.underlying} {c.asof.isoformat()} · spot {c.spot:,.2f} · "
+                f"{len(c.expiries)} expiries · {c.model.name}/{c.model.dist}")
+
     def _status(self, text: str) -> None:
         self.screen_stack[0].query_one("#status-text", Static).update(text)
 
@@ -222,8 +235,7 @@ class Workbench(App):
         self.sub_title = f"{c.underlying} · {c.asof.isoformat()} · spot {c.spot:,.2f}"
         self.last_compute_seconds = msg.seconds
         self.checked = False
-        self._status(f"{c.underlying}: {len(c.expiries)} expiries, model {c.model.name}/"
-                     f"{c.model.dist} — checking the model out of sample …")
+        self._status(f"checking the model out of sample … · {self._facts(c)}")
         self.headline_ready = False
         self.view("overview").show(c, None, True)
         for vid in ("term", "smile", "richcheap", "model", "hedge"):
@@ -245,8 +257,7 @@ class Workbench(App):
         self.comparison = c = msg.comparison
         self.checked = True
         self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=STEPS)
-        self._status(f"{c.underlying}: {len(c.expiries)} expiries, model {c.model.name}/"
-                     f"{c.model.dist}, checked out of sample — ready")
+        self._status(f"ready · {self._facts(c)}")
         self.view("overview").show(c, self.headline, not self.headline_ready)
         self.view("model").show(c)
 

@@ -8,7 +8,7 @@ from dataclasses import replace
 from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Grid, Horizontal, Vertical
+from textual.containers import Grid, Horizontal, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Button, Input, Label, Select, Static
 
@@ -65,7 +65,7 @@ class SettingsDialog(ModalScreen[Settings | None]):
 
     def compose(self) -> ComposeResult:
         s = self._settings
-        with Vertical(id="settings-dialog", classes="dialog"):
+        with VerticalScroll(id="settings-dialog", classes="dialog"):
             yield Label("Model, market and filters — empty fields use the chain's own values",
                         classes="dialog-title")
             yield Label("tab moves between fields · ctrl+s applies and recomputes · escape "

@@ -13,7 +13,7 @@ from rich.table import Table
 from rich.text import Text
 from textual import on, work
 from textual.app import ComposeResult
-from textual.containers import Horizontal, VerticalScroll
+from textual.containers import ScrollableContainer, VerticalScroll
 from textual.message import Message
 from textual.widgets import Input, Label, Select, Static
 from textual.worker import get_current_worker
@@ -51,6 +51,22 @@ def parse_fraction(name: str, text: str) -> float:
     percent = t.endswith("%")
     value = parse_number(name, t.rstrip("%"))
     return value / 100.0 if (percent or value > 1.5) else value
+
+
+def expiry_options(comparison) -> list[tuple[str, str]]:
+    """Every listed expiry, labelled with its date and calendar days: '2027-02-19 (84d)'."""
+    return [(f"{fmt.date(r.expiry)} ({r.calendar_days}d)", r.expiry.isoformat())
+            for r in comparison.expiries]
+
+
+def nearest_expiry(comparison, days: int) -> int:
+    """Index of the expiry nearest ``days`` calendar days, as the hedge picks it."""
+    import numpy as np
+
+    from optbench.analysis.hedge import nearest_index
+    if not comparison.expiries:
+        return 0
+    return nearest_index(np.array([r.calendar_days for r in comparison.expiries], float), days)
 
 
 @dataclass(frozen=True)
@@ -124,8 +140,8 @@ def scenario_table(est) -> Table:
     return t
 
 
-class HedgeView(Deferred, Horizontal):
-    """Form on the left, estimate on the right."""
+class HedgeView(Deferred, ScrollableContainer):
+    """Form on the left, estimate on the right (stacked on a narrow terminal)."""
 
     class Ready(Message):
         def __init__(self, estimate, inputs: PlannerInputs) -> None:
@@ -153,7 +169,7 @@ class HedgeView(Deferred, Horizontal):
             yield Label("Floor, % of spot (put strike)")
             yield Input("90", id="hedge-floor", compact=True)
             yield Label("Expiry")
-            yield Select([], id="hedge-expiry", allow_blank=True, prompt="nearest 3 months",
+            yield Select([], id="hedge-expiry", allow_blank=True, prompt="expiry",
                          compact=True)
             yield Label("Structure")
             yield Select(STRUCTURES, value="put", allow_blank=False, id="hedge-structure",
@@ -174,12 +190,14 @@ class HedgeView(Deferred, Horizontal):
         self._comparison = comparison
         select = self.query_one("#hedge-expiry", Select)
         keep = select.value if isinstance(select.value, str) else None
-        options = [(f"{fmt.date(r.expiry)} ({fmt.tenor(r.calendar_days)})", r.expiry.isoformat())
-                   for r in comparison.expiries]
+        options = expiry_options(comparison)
+        values = [v for _, v in options]
         with self.prevent(Select.Changed):
             select.set_options(options)
-            if keep in [v for _, v in options]:
+            if keep in values:
                 select.value = keep
+            elif values:  # the headline's tenor until the user picks another
+                select.value = values[nearest_expiry(comparison, session.HEADLINE["days"])]
         self.recalculate(now=True)
 
     def read_form(self) -> PlannerInputs:

@@ -52,14 +52,14 @@ def headline_text(comparison, estimate) -> Text:
 
 
 def verdict_table(comparison) -> Table:
-    table = Table(title="Implied against forecast, per expiry", title_justify="left",
-                  expand=True, header_style="bold")
-    for col, just in (("Expiry", "left"), ("Tenor", "right"), ("ATM IV %", "right"),
-                      ("Forecast %", "right"), ("Band %", "right"), ("IV − fc, pts", "right"),
+    table = Table(title="Implied against forecast, per expiry (vols in %, IV−fc in vol "
+                        "points)", title_justify="left", expand=True, header_style="bold")
+    for col, just in (("Expiry", "left"), ("Days", "right"), ("ATM IV", "right"),
+                      ("Fcst", "right"), ("Band", "right"), ("IV−fc", "right"),
                       ("Verdict", "left")):
         table.add_column(col, justify=just, no_wrap=True)
     for r in comparison.expiries:
-        table.add_row(fmt.date(r.expiry), fmt.tenor(r.calendar_days), fmt.pct(r.atm_iv),
+        table.add_row(fmt.date(r.expiry), str(r.calendar_days), fmt.pct(r.atm_iv),
                       fmt.pct(r.forecast_vol),
                       f"{fmt.pct(r.forecast_low)}–{fmt.pct(r.forecast_high)}",
                       fmt.pct(r.iv_minus_forecast, signed=True), fmt.verdict(r.verdict))

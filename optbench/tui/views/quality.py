@@ -3,7 +3,7 @@ from __future__ import annotations
 
 from rich.table import Table
 from textual.app import ComposeResult
-from textual.containers import Vertical
+from textual.containers import VerticalScroll
 from textual.widgets import Static
 
 from optbench.tui.widgets.table import SortableTable
@@ -34,7 +34,7 @@ def quality_summary(quality: dict, source: str) -> Table:
     return t
 
 
-class QualityView(Deferred, Vertical):
+class QualityView(Deferred, VerticalScroll):
     def compose(self) -> ComposeResult:
         yield Static("Loading…", id="dq-summary")
         yield Static("Rejected rows (line numbers are the input file's):", classes="section-title")

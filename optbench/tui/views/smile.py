@@ -11,6 +11,7 @@ from textual.widgets import Label, Select, Static
 from optbench.tui import fmt
 from optbench.tui.widgets.plot import CellPlot, PlotSpec, Series
 from optbench.tui.views.base import Deferred
+from optbench.tui.views.hedge import expiry_options
 
 def fitted_curve(row) -> tuple[np.ndarray, np.ndarray] | None:
     """The expiry's fitted smile as the comparison computed it: (strikes, vols)."""
@@ -76,8 +77,7 @@ class SmileView(Deferred, Vertical):
     def draw(self, comparison) -> None:
         self._comparison = comparison
         select = self.query_one("#smile-expiry", Select)
-        options = [(f"{fmt.date(r.expiry)}  {fmt.tenor(r.calendar_days)}", r.expiry.isoformat())
-                   for r in comparison.expiries]
+        options = expiry_options(comparison)
         keep = select.value if isinstance(select.value, str) else None
         select.set_options(options)
         values = [v for _, v in options]

@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 from textual.app import ComposeResult
-from textual.containers import Vertical
+from textual.containers import VerticalScroll
+from textual.widgets import Static
 
 from optbench.tui import fmt
 from optbench.tui.widgets.plot import CellPlot, PlotSpec, Series
@@ -28,8 +29,7 @@ def term_plot(comparison) -> PlotSpec:
     lo, hi = comparison.band
     return PlotSpec(
         title=(f"{comparison.underlying} vol term structure, % a year, by calendar days to "
-               f"expiry (band: {lo:.0%}–{hi:.0%} of simulated realized vol). Table: vols in "
-               "%, IV−fc in vol points, MF = model-free"),
+               f"expiry (band: {lo:.0%}–{hi:.0%} of simulated realized vol)"),
         series=(
             Series("forecast band", days, col("forecast_low"), kind="band",
                    y2=col("forecast_high"), color="grey27"),
@@ -37,6 +37,7 @@ def term_plot(comparison) -> PlotSpec:
             Series("ATM implied", days, col("atm_iv"), color="bright_red"),
             Series("ATM implied", days, col("atm_iv"), kind="points", color="bright_red",
                    marker="●"),
+
             Series("model-free implied", days, col("model_free_iv"), kind="points",
                    color="magenta", marker="◆"),
             Series("realized (trailing, same length)", days, col("realized_vol"),
@@ -62,9 +63,11 @@ def term_rows(comparison):
     return raw, shown
 
 
-class TermView(Deferred, Vertical):
+class TermView(Deferred, VerticalScroll):
     def compose(self) -> ComposeResult:
         yield CellPlot(id="term-plot")
+        yield Static("Table: vols in %, IV−fc in vol points, MF = model-free, Tr.days = "
+                     "trading days", id="term-caption", classes="note")
         yield SortableTable(id="term-table")
 
     def draw(self, comparison) -> None:
