@@ -9,7 +9,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from optbench.commands.common import parse_float, whole_number
+from optbench.commands.common import share, whole_number
 from optbench.commands.compare import add_chain_arguments
 from optbench.errors import InputError
 
@@ -22,9 +22,9 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                      "opens the bundled demo scenario. Every key is listed on the help "
                      "screen (?)."))
     add_chain_arguments(parser)
-    parser.add_argument("--max-spread", dest="max_spread", type=parse_float, default=None,
+    parser.add_argument("--max-spread", dest="max_spread", type=share, default=None,
                         help="quote filter: widest bid/ask spread kept, as a fraction of "
-                             "mid (0.5 = 50%%; default: the loader's)")
+                             "mid (0.5, 50%% or 50; default: the loader's)")
     parser.add_argument("--universe", metavar="FOLDER", default=None,
                         help="a folder of scenario folders: the workbench opens on its "
                              "screen (key u), and Enter on a row opens that underlying")

@@ -6,7 +6,7 @@ import argparse
 import sys
 
 from optbench.commands.common import (add_model_options, add_output_options, day_list,
-                                      parse_float, whole_number, write_output)
+                                      fraction, parse_float, whole_number, write_output)
 from optbench.errors import InputError
 from optbench.screening.rows import DEFAULT_MODEL
 
@@ -26,7 +26,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     parser.add_argument("--tenors", type=day_list("30,91,182"), default=(30, 91, 182),
                         metavar="DAYS,...", help="target tenors in calendar days "
                                                  "(default: 30,91,182)")
-    parser.add_argument("--floor", type=parse_float, default=0.90,
+    parser.add_argument("--floor", type=fraction, default=0.90,
                         help="protection floor as a fraction of spot (default: 0.90)")
     parser.add_argument("--sort", choices=COLUMNS, default="iv_minus_forecast",
                         metavar="COLUMN", help="rank by this column (default: "

@@ -356,9 +356,10 @@ class Workbench(App):
     def action_settings(self) -> None:
         from optbench.tui.dialogs.settings import SettingsDialog
         c = self.comparison
-        used = ({"rate": c.rate, "div_yield": c.div_yield, "spot": c.spot, "asof": c.asof}
-                if c is not None else {})
-        self.push_screen(SettingsDialog(self.inputs.settings, used), self._settled)
+        used = ({"rate": c.rate, "div_yield": c.div_yield, "spot": c.spot, "asof": c.asof,
+                 "style": c.style, "multiplier": c.multiplier} if c is not None else {})
+        sources = dict(getattr(c, "sources", None) or {}) if c is not None else {}
+        self.push_screen(SettingsDialog(self.inputs.settings, used, sources), self._settled)
 
     def _settled(self, settings: Settings | None) -> None:
         if settings is None or settings == self.inputs.settings:

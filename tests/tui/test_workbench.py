@@ -140,10 +140,30 @@ async def _test_hedge_planner_equals_the_hedge_command():
         await _fill(pilot, app, "#hedge-beta", "abc")
         await pilot.pause(0.3)
         error = text_of(app.screen.query_one("#hedge-error", Static))
-        assert "beta" in error and "not a number" in error
+        # the message names the field as the planner shows it and echoes the text
+        assert "Beta to the underlying: not a number: 'abc'" in error
         await _fill(pilot, app, "#hedge-portfolio", "")
         await pilot.pause(0.3)
-        assert "empty" in text_of(app.screen.query_one("#hedge-error", Static))
+        assert "Portfolio value: empty" in text_of(app.screen.query_one("#hedge-error", Static))
+        # a core check on the request names the planner's field, not a command-line flag
+        await _fill(pilot, app, "#hedge-beta", "1.3")
+        await _fill(pilot, app, "#hedge-portfolio", "1m")
+        app.screen.query_one("#hedge-structure", Select).value = "put_spread"
+        await _fill(pilot, app, "#hedge-lower", "95")
+        await pilot.pause(0.3)
+        await settle(app, pilot)
+        error = text_of(app.screen.query_one("#hedge-error", Static))
+        assert "Put spread: sold put, % of spot:" in error and "--" not in error
+        # typing into a filled field replaces what it held: focus selects the text
+        await _fill(pilot, app, "#hedge-lower", "")
+        field = app.screen.query_one("#hedge-portfolio", Input)
+        app.screen.set_focus(field)
+        await pilot.pause()
+        await pilot.press("2", "5", "m")
+        await pilot.pause(0.3)
+        await settle(app, pilot)
+        assert field.value == "25m"
+        assert app.view("hedge").estimate.request.portfolio_value == 25e6
         assert app.is_running
 
 
@@ -228,8 +248,16 @@ async def _test_changing_the_model_recomputes_and_drops_stale_work():
         app.screen.query_one("#set-rate", Input).value = "x"
         await pilot.press("ctrl+s")
         await pilot.pause()
-        assert "rate: not a number" in text_of(app.screen.query_one("#settings-error", Static))
-        app.screen.query_one("#set-rate", Input).value = "5"
+        assert "Rate: not a rate: 'x'" in text_of(app.screen.query_one("#settings-error", Static))
+        # the dialog shows what the run used and where it came from
+        assert "(from meta.toml)" in app.screen.query_one("#set-rate", Input).placeholder
+        assert "(from the chain file)" in app.screen.query_one("#set-spot", Input).placeholder
+        assert "100" in app.screen.query_one("#set-multiplier", Input).placeholder
+        app.screen.query_one("#set-rate", Input).value = "5%"
+        app.screen.query_one("#set-asof", Input).value = app.comparison.asof.strftime("%m/%d/%Y")
+        app.screen.query_one("#set-multiplier", Input).value = "10"
         await pilot.press("ctrl+s")
         await settle(app, pilot)
         assert app.comparison.rate == pytest.approx(0.05)
+        assert app.comparison.multiplier == 10 and app.comparison.sources["rate"] != "meta"
+        assert app.inputs.settings.asof == app.comparison.asof

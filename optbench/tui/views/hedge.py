@@ -6,7 +6,6 @@ simulation settings as ``optbench hedge`` (so the two agree for the same inputs)
 """
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 from rich.table import Table
@@ -18,6 +17,7 @@ from textual.message import Message
 from textual.widgets import Input, Label, Select, Static
 from textual.worker import get_current_worker
 
+from optbench import inputs
 from optbench.errors import InputError
 from optbench.tui import fmt, session
 from optbench.tui.views.base import Deferred
@@ -26,31 +26,24 @@ STRUCTURES = (("protective put", "put"), ("put spread", "put_spread"),
               ("collar (sell a call)", "collar"))
 
 
-def parse_number(name: str, text: str) -> float:
-    """'10,000,000', '10m', '2.5k', '1.2' -> float; otherwise a one-line InputError."""
-    t = text.strip().replace(",", "").replace("_", "").replace(" ", "").lower()
-    if not t:
-        raise InputError(name, "empty: give a number")
-    scale = 1.0
-    for suffix, factor in (("bn", 1e9), ("b", 1e9), ("m", 1e6), ("k", 1e3)):
-        if t.endswith(suffix):
-            t, scale = t[: -len(suffix)], factor
-            break
-    try:
-        value = float(t) * scale
-    except ValueError:
-        raise InputError(name, f"not a number: {text.strip()!r}") from None
-    if not math.isfinite(value):
-        raise InputError(name, f"not a finite number: {text.strip()!r}")
-    return value
+#: the planner's fields: widget id -> the label the user sees (messages name it)
+FIELDS = {"#hedge-portfolio": "Portfolio value", "#hedge-beta": "Beta to the underlying",
+          "#hedge-floor": "Floor, % of spot", "#hedge-lower": "Put spread: sold put, % of spot",
+          "#hedge-call": "Collar: sold call strike"}
+
+#: the hedge request's argument names -> the planner's labels
+_FLAG_LABELS = {"--portfolio": FIELDS["#hedge-portfolio"], "--beta": FIELDS["#hedge-beta"],
+                "--floor": FIELDS["#hedge-floor"], "--lower-floor": FIELDS["#hedge-lower"],
+                "--call-strike": FIELDS["#hedge-call"], "--expiry": "Expiry",
+                "--structure": "Structure"}
 
 
-def parse_fraction(name: str, text: str) -> float:
-    """A fraction of spot given as '90', '90%' or '0.90' -> 0.90."""
-    t = text.strip()
-    percent = t.endswith("%")
-    value = parse_number(name, t.rstrip("%"))
-    return value / 100.0 if (percent or value > 1.5) else value
+def field_message(error: str) -> str:
+    """A core message that names a command-line argument, with the planner's label."""
+    for flag, label in _FLAG_LABELS.items():
+        if error.startswith(f"{flag}:"):
+            return label + error[len(flag):]
+    return error
 
 
 def expiry_options(comparison) -> list[tuple[str, str]]:
@@ -205,16 +198,16 @@ class HedgeView(Deferred, ScrollableContainer):
             return self.query_one(wid, Input).value
 
         expiry = self.query_one("#hedge-expiry", Select).value
-        lower = text("#hedge-lower").strip()
-        call = text("#hedge-call").strip()
+        lower = text("#hedge-lower")
+        call = text("#hedge-call")
         return PlannerInputs(
-            portfolio_value=parse_number("portfolio value", text("#hedge-portfolio")),
-            beta=parse_number("beta", text("#hedge-beta")),
-            floor=parse_fraction("floor", text("#hedge-floor")),
+            portfolio_value=inputs.money(text("#hedge-portfolio"), FIELDS["#hedge-portfolio"]),
+            beta=inputs.positive(text("#hedge-beta"), FIELDS["#hedge-beta"]),
+            floor=inputs.fraction(text("#hedge-floor"), FIELDS["#hedge-floor"]),
             expiry=expiry if isinstance(expiry, str) else None,
             structure=str(self.query_one("#hedge-structure", Select).value),
-            lower_floor=parse_fraction("sold put", lower) if lower else None,
-            call_strike=parse_number("call strike", call) if call else None)
+            lower_floor=inputs.optional(inputs.fraction, lower, FIELDS["#hedge-lower"]),
+            call_strike=inputs.optional(inputs.positive, call, FIELDS["#hedge-call"]))
 
     @on(Input.Changed)
     @on(Select.Changed)
@@ -255,7 +248,7 @@ class HedgeView(Deferred, ScrollableContainer):
                                          seed=settings.seed, **inputs.kwargs())
         except InputError as err:
             if not worker.is_cancelled:
-                self.post_message(self.Failed(str(err)))
+                self.post_message(self.Failed(field_message(str(err))))
             return
         if not worker.is_cancelled:
             self.post_message(self.Ready(estimate, inputs))
