@@ -34,7 +34,8 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     parser.add_argument("--scheduler", metavar="ADDRESS", default=None,
                         help="address of a running Dask scheduler (tcp://host:8786): the "
                              "universe screen runs on that cluster")
-    parser.set_defaults(run=run)
+    # no --model/--dist/--mean: the workbench's saved choice (else auto / t / constant)
+    parser.set_defaults(run=run, model=None, dist=None, mean=None)
     return parser
 
 

@@ -127,7 +127,7 @@ def hedge_xlsx(estimate) -> bytes:
     wb = Workbook()
     wb.remove(wb.active)
     model_text = f"{estimate.model.get('name')} / {estimate.model.get('dist')}"
-    title = f"optbench hedge: {estimate.underlying} {estimate.structure}"
+    title = f"optbench hedge: {estimate.underlying} {estimate.structure_name}"
     summary = list(estimate.summary().items()) + [
         ("strikes", " ".join(f"{k:g}" for k in estimate.strikes)),
         ("roll_method", estimate.roll_method), ("collar_note", estimate.collar_note)]

@@ -19,9 +19,13 @@ from textual.widgets import ProgressBar, Static, TabbedContent, Tabs
 from textual.worker import get_current_worker
 
 from optbench.errors import InputError
-from optbench.tui import session
+from optbench.tui import prefs, session
 from optbench.tui.dialogs.requests import ExportRequest, OpenRequest, Settings
 from optbench.tui.screens.workbench import VIEWS, WorkbenchScreen
+from optbench.tui.views.hedge import HedgeView
+
+#: what the settings dialog hands back for "back to defaults"
+RESET = "reset"
 
 #: which table the export dialog proposes on each view
 _VIEW_TABLE = {"overview": "report", "term": "expiries", "smile": "strikes",
@@ -117,9 +121,14 @@ class Workbench(App):
     ]
 
     def __init__(self, inputs: session.Inputs, universe: Path | None = None,
-                 workers: int | None = None, scheduler: str | None = None) -> None:
+                 workers: int | None = None, scheduler: str | None = None,
+                 planner: prefs.PlannerState | None = None, notice: str | None = None) -> None:
         super().__init__()
         self.inputs = inputs
+        #: the hedge planner's inputs (saved; the overview's headline follows them)
+        self.planner = planner or prefs.PlannerState()
+        #: a one-line notice for the user at start (e.g. a settings file that was bad)
+        self.notice = notice
         #: a folder of scenario folders to screen (key u), and its last screen
         self.universe = Path(universe) if universe is not None else None
         self.universe_workers = workers
@@ -143,6 +152,8 @@ class Workbench(App):
 
     def on_mount(self) -> None:
         self.sub_title = self.inputs.label
+        if self.notice:
+            self.notify(self.notice, title="Settings", severity="warning", timeout=10)
         # the first run starts when the workbench screen has mounted its widgets
         if self.universe is not None:
             self.call_after_refresh(self.action_universe)
@@ -159,10 +170,11 @@ class Workbench(App):
         bar = self.screen_stack[0].query_one("#progress", ProgressBar)
         bar.update(total=STEPS, progress=0)
         self._status(f"opening {self.inputs.label} …")
-        self.compute(self.inputs, self._token)
+        self.compute(self.inputs, self._token, self.planner)
 
     @work(thread=True, exclusive=True, group="compute", exit_on_error=False)
-    def compute(self, inputs: session.Inputs, token: int) -> None:
+    def compute(self, inputs: session.Inputs, token: int,
+                planner: prefs.PlannerState | None = None) -> None:
         worker = get_current_worker()
         started = time.perf_counter()
         stage = "open"
@@ -185,7 +197,7 @@ class Workbench(App):
                 return
             self.post_message(Computed(token, comparison, None, time.perf_counter() - started))
             stage = "headline"
-            headline = session.headline_hedge(comparison, inputs.settings)
+            headline = session.headline_hedge(comparison, inputs.settings, planner)
             if worker.is_cancelled:
                 return
             self.post_message(Headline(token, headline))
@@ -260,6 +272,42 @@ class Workbench(App):
         self._status(f"ready · {self._facts(c)}")
         self.view("overview").show(c, self.headline, not self.headline_ready)
         self.view("model").show(c)
+
+    @on(HedgeView.Ready)
+    def _planned(self, msg: HedgeView.Ready) -> None:
+        """The planner priced new inputs: the headline follows them, and they are saved."""
+        # the same run (the model check replaces the comparison but keeps its fit)
+        if self.comparison is None or msg.comparison is None or \
+                msg.comparison.fit is not self.comparison.fit:
+            return
+        state = msg.inputs.state(msg.estimate.calendar_days)
+        if state != self.planner:
+            self.planner = state
+            self.save_settings()
+        self.headline, self.headline_ready = msg.estimate, True
+        self.view("overview").show(self.comparison, msg.estimate)
+
+    def save_settings(self) -> None:
+        """Write the planner's inputs and the model choice to the user's settings file."""
+        s = self.inputs.settings
+        problem = prefs.save(self.planner, prefs.ModelChoice(s.model, s.dist, s.mean))
+        if problem:
+            self.notify(problem, title="Settings", severity="warning", timeout=8)
+
+    def reset_settings(self) -> None:
+        """Back to defaults: the model, the planner and the overview's headline; the
+        settings file is removed. Market overrides (spot, dates) stay as set."""
+        from dataclasses import replace
+        problem = prefs.reset()
+        if problem:
+            self.notify(problem, title="Settings", severity="warning", timeout=8)
+        self.planner = prefs.PlannerState()
+        defaults = Settings()
+        self.inputs = self.inputs.with_settings(replace(
+            self.inputs.settings, model=defaults.model, dist=defaults.dist, mean=defaults.mean))
+        self.view("hedge").fill(self.planner)
+        self.notify("Model and planner back to their defaults.", title="Settings", timeout=4)
+        self.start_compute()
 
     @on(Failed)
     def _failed(self, msg: Failed) -> None:
@@ -361,10 +409,17 @@ class Workbench(App):
         sources = dict(getattr(c, "sources", None) or {}) if c is not None else {}
         self.push_screen(SettingsDialog(self.inputs.settings, used, sources), self._settled)
 
-    def _settled(self, settings: Settings | None) -> None:
+    def _settled(self, settings: Settings | str | None) -> None:
+        if settings == RESET:
+            self.reset_settings()
+            return
         if settings is None or settings == self.inputs.settings:
             return
+        model_changed = (settings.model, settings.dist, settings.mean) != (
+            self.inputs.settings.model, self.inputs.settings.dist, self.inputs.settings.mean)
         self.inputs = self.inputs.with_settings(settings)
+        if model_changed:
+            self.save_settings()
         self.start_compute()
 
     def action_export(self) -> None:
@@ -414,7 +469,7 @@ class Workbench(App):
 
 
 def make_app(scenario_path: str | Path | None = None, history: str | Path | None = None, *,
-             model: str = "auto", dist: str = "t", mean: str = "constant",
+             model: str | None = None, dist: str | None = None, mean: str | None = None,
              spot: float | None = None, asof=None, rate: float | None = None,
              div_yield: float | None = None, max_spread: float | None = None,
              hedge_paths: int | None = None, seed: int | None = 7,
@@ -426,7 +481,8 @@ def make_app(scenario_path: str | Path | None = None, history: str | Path | None
     ----------
     scenario_path : chain file or scenario folder; None opens ``chains/ZPHX``.
     history : price history file, when the chain's folder has no ``history.csv``.
-    model, dist, mean : the volatility model (as ``optbench compare``).
+    model, dist, mean : the volatility model (as ``optbench compare``); None takes the
+        saved choice (:mod:`optbench.tui.prefs`), else auto / t / constant.
     spot, asof, rate, div_yield : market overrides (decimals for rate and yield).
     max_spread : widest bid/ask spread kept, as a fraction of mid (loader filter).
     hedge_paths, seed : the simulation behind hedge estimates (default 20,000 paths,
@@ -438,8 +494,11 @@ def make_app(scenario_path: str | Path | None = None, history: str | Path | None
     """
     chain = Path(scenario_path) if scenario_path is not None else session.demo_scenario()
     source = OpenRequest(chain=chain, history=Path(history) if history is not None else None)
-    settings = Settings(model=model, dist=dist, mean=mean, spot=spot, asof=asof, rate=rate,
+    saved = prefs.load()
+    m = prefs.with_model(saved, model, dist, mean)
+    settings = Settings(model=m.model, dist=m.dist, mean=m.mean, spot=spot, asof=asof, rate=rate,
                         div_yield=div_yield, max_spread=max_spread,
                         hedge_paths=int(hedge_paths or session.N_PATHS), seed=seed)
     return Workbench(session.Inputs(source=source, settings=settings), universe=universe,
-                     workers=workers, scheduler=scheduler)
+                     workers=workers, scheduler=scheduler, planner=saved.planner,
+                     notice=saved.notice)

@@ -62,12 +62,13 @@ def used_hint(used: dict, sources: dict, key: str, kind: str = "") -> str:
     return f"{shown} ({where})"
 
 
-class SettingsDialog(ModalScreen[Settings | None]):
+class SettingsDialog(ModalScreen[Settings | str | None]):
     """Change the volatility model, the market inputs and the quote filters."""
 
     BINDINGS = [
         Binding("escape", "cancel", "Cancel", id="settings.cancel"),
         Binding("ctrl+s", "submit", "Apply", id="settings.submit"),
+        Binding("ctrl+d", "reset", "Back to defaults", id="settings.reset"),
     ]
 
     def __init__(self, settings: Settings, used: dict | None = None,
@@ -87,8 +88,9 @@ class SettingsDialog(ModalScreen[Settings | None]):
         with VerticalScroll(id="settings-dialog", classes="dialog"):
             yield Label("Model, market and filters — empty fields use the chain's own values",
                         classes="dialog-title")
-            yield Label("tab moves between fields · ctrl+s applies and recomputes · escape "
-                        "cancels", classes="dialog-hint")
+            yield Label("tab moves between fields · ctrl+s applies and recomputes · ctrl+d "
+                        "back to defaults (model and planner) · escape cancels",
+                        classes="dialog-hint")
             with Grid(id="settings-grid"):
                 yield Label("Volatility model")
                 yield Select(MODELS, value=s.model, allow_blank=False, id="set-model")
@@ -120,6 +122,7 @@ class SettingsDialog(ModalScreen[Settings | None]):
             with Horizontal(classes="dialog-buttons"):
                 yield Button("Apply and recompute", variant="primary", id="settings-ok")
                 yield Button("Cancel", id="settings-cancel")
+                yield Button("Back to defaults", variant="warning", id="settings-reset")
 
     def on_mount(self) -> None:
         self.query_one("#set-model", Select).focus()
@@ -157,3 +160,9 @@ class SettingsDialog(ModalScreen[Settings | None]):
     @on(Button.Pressed, "#settings-cancel")
     def action_cancel(self) -> None:
         self.dismiss(None)
+
+    @on(Button.Pressed, "#settings-reset")
+    def action_reset(self) -> None:
+        """The model and the hedge planner back to their defaults (the saved settings
+        file is removed)."""
+        self.dismiss("reset")

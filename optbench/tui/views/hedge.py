@@ -20,6 +20,7 @@ from textual.worker import get_current_worker
 from optbench import inputs
 from optbench.errors import InputError
 from optbench.tui import fmt, session
+from optbench.tui.prefs import PlannerState
 from optbench.tui.views.base import Deferred
 
 STRUCTURES = (("protective put", "put"), ("put spread", "put_spread"),
@@ -73,6 +74,19 @@ class PlannerInputs:
     structure: str
     lower_floor: float | None
     call_strike: float | None
+    #: the user chose the expiry (else it is the one nearest the default days)
+    expiry_picked: bool = False
+
+    def state(self, calendar_days: int) -> PlannerState:
+        """What to save and what the overview's headline follows: the expiry only when
+        the user picked it."""
+        default = PlannerState()
+        picked = self.expiry_picked and self.expiry is not None
+        return PlannerState(portfolio_value=self.portfolio_value, beta=self.beta,
+                            floor=self.floor, structure=self.structure,
+                            lower_floor=self.lower_floor, call_strike=self.call_strike,
+                            expiry=self.expiry if picked else None,
+                            days=int(calendar_days) if picked else default.days)
 
     def kwargs(self) -> dict:
         out = {"portfolio_value": self.portfolio_value, "beta": self.beta,
@@ -91,8 +105,7 @@ def summary_table(est) -> Table:
     t.add_column("what", style="bold", no_wrap=True)
     t.add_column("value", justify="right", no_wrap=True)
     t.add_column("note", style="dim")
-    strikes = " / ".join(f"{k:g}" for k in est.strikes)
-    t.add_row("Structure", est.structure.replace("_", " "), f"strikes {strikes}, {fmt.date(est.expiry)} "
+    t.add_row("Structure", est.structure_name, f"{est.strike_legs}, {fmt.date(est.expiry)} "
               f"({est.calendar_days} days)")
     t.add_row("Contracts", f"{est.contracts:,}", f"× {est.multiplier:g} on spot {fmt.num(est.spot)}")
     t.add_row("Premium paid", fmt.money(est.premium_paid), "ask for bought, bid for sold legs")
@@ -137,10 +150,14 @@ class HedgeView(Deferred, ScrollableContainer):
     """Form on the left, estimate on the right (stacked on a narrow terminal)."""
 
     class Ready(Message):
-        def __init__(self, estimate, inputs: PlannerInputs) -> None:
+        """An estimate for the planner's inputs (the app saves them and the overview's
+        headline follows them)."""
+
+        def __init__(self, estimate, inputs: PlannerInputs, comparison=None) -> None:
             super().__init__()
             self.estimate = estimate
             self.inputs = inputs
+            self.comparison = comparison
 
     class Failed(Message):
         def __init__(self, error: str) -> None:
@@ -152,25 +169,31 @@ class HedgeView(Deferred, ScrollableContainer):
         self._comparison = None
         self.estimate = None
         self._timer = None
+        #: None until the form is built; then whether the user chose the expiry
+        self._expiry_picked: bool | None = None
 
     def compose(self) -> ComposeResult:
+        p = getattr(self.app, "planner", None) or PlannerState()
+        self._expiry_picked = p.expiry is not None
         with VerticalScroll(id="hedge-form", can_focus=False):
             yield Label("Portfolio value")
-            yield Input("10,000,000", id="hedge-portfolio", compact=True)
+            yield Input(f"{p.portfolio_value:,.0f}", id="hedge-portfolio", compact=True)
             yield Label("Beta to the underlying")
-            yield Input("1.0", id="hedge-beta", compact=True)
+            yield Input(f"{p.beta:g}", id="hedge-beta", compact=True)
             yield Label("Floor, % of spot (put strike)")
-            yield Input("90", id="hedge-floor", compact=True)
+            yield Input(f"{p.floor * 100:g}", id="hedge-floor", compact=True)
             yield Label("Expiry")
             yield Select([], id="hedge-expiry", allow_blank=True, prompt="expiry",
                          compact=True)
             yield Label("Structure")
-            yield Select(STRUCTURES, value="put", allow_blank=False, id="hedge-structure",
-                         compact=True)
+            yield Select(STRUCTURES, value=p.structure, allow_blank=False,
+                         id="hedge-structure", compact=True)
             yield Label("Put spread: sold put, % of spot")
-            yield Input("", placeholder="floor − 10", id="hedge-lower", compact=True)
+            yield Input("" if p.lower_floor is None else f"{p.lower_floor * 100:g}",
+                        placeholder="floor − 10", id="hedge-lower", compact=True)
             yield Label("Collar: sold call strike")
-            yield Input("", placeholder="zero-cost call", id="hedge-call", compact=True)
+            yield Input("" if p.call_strike is None else f"{p.call_strike:g}",
+                        placeholder="zero-cost call", id="hedge-call", compact=True)
             yield Static("", id="hedge-error", classes="form-error")
         with VerticalScroll(id="hedge-result"):
             yield Static("Pricing …", id="hedge-summary")
@@ -189,8 +212,10 @@ class HedgeView(Deferred, ScrollableContainer):
             select.set_options(options)
             if keep in values:
                 select.value = keep
-            elif values:  # the headline's tenor until the user picks another
-                select.value = values[nearest_expiry(comparison, session.HEADLINE["days"])]
+            elif values:  # the saved expiry, else the one nearest the saved days
+                p = getattr(self.app, "planner", None) or PlannerState()
+                select.value = (p.expiry if p.expiry in values
+                                else values[nearest_expiry(comparison, p.days)])
         self.recalculate(now=True)
 
     def read_form(self) -> PlannerInputs:
@@ -207,12 +232,15 @@ class HedgeView(Deferred, ScrollableContainer):
             expiry=expiry if isinstance(expiry, str) else None,
             structure=str(self.query_one("#hedge-structure", Select).value),
             lower_floor=inputs.optional(inputs.fraction, lower, FIELDS["#hedge-lower"]),
-            call_strike=inputs.optional(inputs.positive, call, FIELDS["#hedge-call"]))
+            call_strike=inputs.optional(inputs.positive, call, FIELDS["#hedge-call"]),
+            expiry_picked=bool(self._expiry_picked))
 
     @on(Input.Changed)
     @on(Select.Changed)
     def _edited(self, event) -> None:
         event.stop()
+        if isinstance(event, Select.Changed) and event.select.id == "hedge-expiry":
+            self._expiry_picked = True
         self.recalculate()
 
     def recalculate(self, now: bool = False) -> None:
@@ -251,7 +279,27 @@ class HedgeView(Deferred, ScrollableContainer):
                 self.post_message(self.Failed(field_message(str(err))))
             return
         if not worker.is_cancelled:
-            self.post_message(self.Ready(estimate, inputs))
+            self.post_message(self.Ready(estimate, inputs, comparison))
+
+    def fill(self, p: PlannerState) -> None:
+        """Put ``p`` into the form (back to defaults) and price it."""
+        self._expiry_picked = p.expiry is not None
+        with self.prevent(Input.Changed, Select.Changed):
+            self.query_one("#hedge-portfolio", Input).value = f"{p.portfolio_value:,.0f}"
+            self.query_one("#hedge-beta", Input).value = f"{p.beta:g}"
+            self.query_one("#hedge-floor", Input).value = f"{p.floor * 100:g}"
+            self.query_one("#hedge-structure", Select).value = p.structure
+            self.query_one("#hedge-lower", Input).value = (
+                "" if p.lower_floor is None else f"{p.lower_floor * 100:g}")
+            self.query_one("#hedge-call", Input).value = (
+                "" if p.call_strike is None else f"{p.call_strike:g}")
+            if self._comparison is not None:
+                values = [v for _, v in expiry_options(self._comparison)]
+                if values:
+                    self.query_one("#hedge-expiry", Select).value = (
+                        p.expiry if p.expiry in values
+                        else values[nearest_expiry(self._comparison, p.days)])
+        self.recalculate(now=True)
 
     @on(Ready)
     def _ready(self, message: Ready) -> None:
