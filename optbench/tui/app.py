@@ -459,8 +459,12 @@ class Workbench(App):
     def action_help(self) -> None:
         from optbench.tui.screens.help import HelpScreen
         from optbench.tui.widgets.table import SortableTable
-        groups = [("everywhere", list(self.BINDINGS)),
-                  ("tables", list(SortableTable.BINDINGS)),
+        groups = [("everywhere", list(self.BINDINGS)
+                   + [Binding("f1", "", "Help (the same as ?)"),
+                      Binding("ctrl+p", "", "Command palette: find any command by name")]),
+                  ("tables", list(SortableTable.BINDINGS)
+                   + [Binding("enter", "", "Rich / cheap: show the expiry's strikes; "
+                                           "Universe: open the row's underlying")]),
                   ("dialogs", [Binding("escape", "", "Cancel the dialog"),
                                Binding("ctrl+s", "", "Apply / export"),
                                Binding("ctrl+o", "", "Open what the file picker shows"),

@@ -156,3 +156,39 @@ def test_universe_screen_runs_on_a_dask_cluster_from_the_workbench(tmp_path):
     reference = screen(universe, workers=1)
     assert [(r["code"], r["tenor_days"], r["atm_iv"]) for r in result.rows] == \
            [(r["code"], r["tenor_days"], r["atm_iv"]) for r in reference.rows]
+
+
+def _characters(root):
+    """Invented variants of the demo: calm, trending, turbulent and wild histories
+    (the demo's returns rescaled and shifted; the chain is the demo's)."""
+    import numpy as np
+    import pandas as pd
+    for code, scale, drift in (("CALM", 0.2, 0.0), ("TREN", 1.0, 0.004),
+                               ("TURB", 4.0, 0.0), ("WILD", 8.0, 0.0)):
+        folder = root / code
+        shutil.copytree(demo(), folder)
+        h = pd.read_csv(folder / "history.csv")
+        r = np.diff(np.log(h["close"].to_numpy()))
+        r = (r - r.mean()) * scale + drift
+        close = h["close"].iloc[-1] * np.exp(np.concatenate([[0.0], np.cumsum(r)]) - r.sum())
+        for col in ("close", "open", "high", "low"):
+            if col in h:
+                h[col] = close
+        h.to_csv(folder / "history.csv", index=False)
+        meta = (folder / "meta.toml").read_text()
+        (folder / "meta.toml").write_text(meta.replace('code = "ZPHX"', f'code = "{code}"'))
+    return root
+
+
+@pytest.mark.slow
+def test_screen_raises_no_numpy_warnings_on_extreme_histories(tmp_path):
+    # every numpy RuntimeWarning is an error here: an overflow or invalid value in the
+    # fit, the simulation or the hedge would turn its underlying into a failed row
+    import warnings
+    universe = _characters(tmp_path)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        for model in ("auto", "egarch"):
+            result = screen(universe, workers=1, model=model, n_paths=PATHS)
+            assert result.failures == (), result.failures
+            assert all(r.get("error") in (None, "") for r in result.rows)

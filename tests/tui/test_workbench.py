@@ -261,3 +261,25 @@ async def _test_changing_the_model_recomputes_and_drops_stale_work():
         assert app.comparison.rate == pytest.approx(0.05)
         assert app.comparison.multiplier == 10 and app.comparison.sources["rate"] != "meta"
         assert app.inputs.settings.asof == app.comparison.asof
+
+
+def test_data_quality_shows_the_rejected_side_first(tmp_path):
+    # a wide-layout chain (calls | strike | puts): line 3's put side is crossed, line 4's
+    # call side has no bid; each row shows the side that was rejected first
+    from optbench.data import load_chain
+    from optbench.tui.views.quality import side_first
+    path = tmp_path / "wide.csv"
+    path.write_text("expiry,call_bid,call_ask,strike,put_bid,put_ask\n"
+                    "2027-01-15,12.0,12.5,100,3.0,3.4\n"
+                    "2027-01-15,8.0,8.4,105,9.5,6.0\n"
+                    "2027-01-15,0,0.2,140,30.0,31.0\n")
+    chain = load_chain(path, spot=104.0, asof="2026-11-27")
+    table = side_first(chain.rejected)
+    assert list(table.columns[:4]) == ["line", "reason", "side", "detail"]
+    assert list(table.columns[4:6]) == ["bid", "ask"]
+    rows = {(int(r["line"]), r["side"]): r for _, r in table.iterrows()}
+    put_row, call_row = rows[(3, "put")], rows[(4, "call")]
+    assert put_row["side"] == "put" and float(put_row["bid"]) == 9.5 and \
+        float(put_row["other bid"]) == 8.0
+    assert call_row["side"] == "call" and float(call_row["bid"]) == 0 and \
+        float(call_row["other bid"]) == 30.0
