@@ -98,7 +98,7 @@ class SettingsDialog(ModalScreen[Settings | str | None]):
                 yield Select(DISTS, value=s.dist, allow_blank=False, id="set-dist")
                 yield Label("Mean of returns")
                 yield Select(MEANS, value=s.mean, allow_blank=False, id="set-mean")
-                yield Label("Rate, a year (4% or 0.04)")
+                yield Label("Rate (4% or 0.04)")
                 yield Input(_shown(s.rate, "percent"), placeholder=self._hint("rate", "percent"),
                             id="set-rate")
                 yield Label("Dividend yield (1.5%)")

@@ -120,7 +120,7 @@ class RichCheapView(Deferred, VerticalScroll):
         row = self._comparison.expiry_row(iso)
         table = self._comparison.strike_frame(iso)
         self.query_one("#rc-strike-title", Static).update(
-            f"Strikes for {iso} ({fmt.tenor(row.calendar_days)}): {len(table)} quotes, "
+            f"Strikes for {iso} ({row.calendar_days}d): {len(table)} quotes, "
             f"forecast {fmt.pct(row.forecast_vol)}%, multiplier "
             f"{fmt.num(self._comparison.multiplier, 0)}")
         raw, shown = strike_rows(table)

@@ -56,7 +56,7 @@ def smile_plot(comparison, row) -> PlotSpec:
     # draw the band first so everything sits on top of it
     series = [series[-1]] + series[:-1]
     return PlotSpec(
-        title=(f"Smile {fmt.date(row.expiry)} ({fmt.tenor(row.calendar_days)}), implied vol % "
+        title=(f"Smile {fmt.date(row.expiry)} ({row.calendar_days}d), implied vol % "
                f"by strike, out-of-the-money quotes; forward {fmt.num(row.forward)}"),
         series=tuple(series), x_format="{:.0f}",
         extra_legend=())
