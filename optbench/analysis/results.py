@@ -643,14 +643,12 @@ class HedgeEstimate:
     def summary(self) -> dict:
         """The headline numbers as ``{name: value}`` (for tables and sheets); the
         structure by its name and every leg's strike."""
-        keys = ("structure_name", "expiry", "calendar_days", "contracts", "multiplier",
+        keys = ("expiry", "calendar_days", "contracts", "multiplier",
                 "strike", "strike_legs", "premium_mid", "premium_paid", "premium_at_forecast",
                 "expected_payoff", "overpay", "cost_pct", "cost_pct_annual",
                 "prob_payoff", "breakeven", "breakeven_move", "annual_roll_cost",
                 "annual_roll_cost_pct")
-        out = {k: getattr(self, k) for k in keys}
-        out["structure"] = out.pop("structure_name")
-        return {"structure": out.pop("structure"), **out}
+        return {"structure": self.structure_name, **{k: getattr(self, k) for k in keys}}
 
     def to_dict(self) -> dict:
         out = {f.name: plain(getattr(self, f.name)) for f in fields(self)}
