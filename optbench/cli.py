@@ -67,10 +67,7 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: Sequence[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
     parser = build_parser()
-    try:
-        args = parser.parse_args(argv)
-    except SystemExit as done:  # a usage error (its one line printed) or --help
-        return int(done.code or 0)
+    args = parser.parse_args(argv)
     if args.command is None:
         commands = _available_commands()
         default = commands.get("open") or commands.get("compare")

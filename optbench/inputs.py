@@ -65,8 +65,11 @@ def positive(text: str, field: str) -> float:
     return value
 
 
-def money(text: str, field: str) -> float:
-    """An amount of money, positive: ``'25m'``, ``'2.5bn'``, ``'10,000,000'``."""
+def money(text: str, field: str, *, check: bool = True) -> float:
+    """An amount of money, positive: ``'25m'``, ``'2.5bn'``, ``'10,000,000'``.
+
+    ``check=False`` only reads the text (a caller that validates the value itself,
+    such as :class:`~optbench.analysis.results.HedgeRequest`, says what is wrong)."""
     t = str(text).strip().lower().replace(",", "").replace("_", "").replace(" ", "")
     if not t:
         raise InputError(field, "empty: give an amount such as 25m or 10,000,000")
@@ -82,7 +85,7 @@ def money(text: str, field: str) -> float:
         raise InputError(field, f"not an amount of money: {_echo(text)} (give e.g. 25m, "
                                 "2.5bn or 10,000,000)") from None
     _finite(field, text, value, "amount")
-    if value <= 0:
+    if check and value <= 0:
         raise InputError(field, f"must be positive, not {_echo(text)}")
     return value
 
@@ -92,8 +95,9 @@ def _percent_text(text: str) -> tuple[str, bool]:
     return (t[:-1].strip(), True) if t.endswith("%") else (t, False)
 
 
-def fraction(text: str, field: str) -> float:
-    """A fraction of spot, in (0, 1]: ``'90'``, ``'90%'`` and ``'0.90'`` -> 0.90."""
+def fraction(text: str, field: str, *, check: bool = True) -> float:
+    """A fraction of spot, in (0, 1]: ``'90'``, ``'90%'`` and ``'0.90'`` -> 0.90
+    (``check=False``: read only, the range is the caller's to check)."""
     t, percent = _percent_text(text)
     try:
         value = number(t, field)
@@ -102,7 +106,7 @@ def fraction(text: str, field: str) -> float:
                                 "90 or 0.90)") from None
     if percent or value > PERCENT_ABOVE:
         value /= 100.0
-    if not 0 < value <= 1:
+    if check and not 0 < value <= 1:
         raise InputError(field, f"must be a fraction of spot above 0 and at most 100%, "
                                 f"not {_echo(text)}")
     return value

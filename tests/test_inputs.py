@@ -76,7 +76,9 @@ def test_command_line_reads_the_same_values():
 
 def test_command_line_errors_echo_the_text(capsys):
     from optbench.cli import main
-    assert main(["hedge", "chains/ZPHX", "--portfolio", "25 apples"]) == 2
+    with pytest.raises(SystemExit) as done:
+        main(["hedge", "chains/ZPHX", "--portfolio", "25 apples"])
+    assert done.value.code == 2
     err = capsys.readouterr().err.strip()
     assert err.endswith("argument --portfolio: not an amount of money: '25 apples' "
                         "(give e.g. 25m, 2.5bn or 10,000,000)")

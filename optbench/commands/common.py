@@ -25,12 +25,12 @@ def add_output_options(parser: argparse.ArgumentParser,
                         help="write the output to FILE instead of the terminal")
 
 
-def typed(parser, label: str):
+def typed(parser, label: str, **options):
     """An argparse type from a parser of :mod:`optbench.inputs` (the workbench reads
     the same text the same way); its one-line problem becomes argparse's message."""
     def parse(text: str):
         try:
-            return parser(text, label)
+            return parser(text, label, **options)
         except InputError as err:
             raise argparse.ArgumentTypeError(err.problem) from None
     parse.__name__ = label
@@ -44,9 +44,11 @@ def parse_date(text: str) -> _dt.date:
 
 
 #: argparse types for money (``25m``), fractions of spot (``90``, ``90%``, ``0.90``),
-#: rates and yields (``4%``, ``0.04``) and positive shares such as spreads
-money = typed(inputs.money, "amount of money")
-fraction = typed(inputs.fraction, "fraction of spot")
+#: rates and yields (``4%``, ``0.04``) and positive shares such as spreads. Money and
+#: fractions are read here and checked by the request that uses them (its message
+#: names the argument and the allowed range).
+money = typed(inputs.money, "amount of money", check=False)
+fraction = typed(inputs.fraction, "fraction of spot", check=False)
 rate = typed(inputs.rate, "rate")
 share = typed(inputs.share, "share")
 
