@@ -696,14 +696,27 @@ class HedgeEstimate:
     def leg_frame(self) -> pd.DataFrame:
         return pd.DataFrame([leg.to_dict() for leg in self.legs])
 
+    @property
+    def structure_name(self) -> str:
+        """The structure as outputs write it: ``put``, ``put spread``, ``collar``."""
+        return self.structure.replace("_", " ")
+
+    @property
+    def strike_legs(self) -> str:
+        """Every leg's strike with its side and type: ``buy put 4700 / sell call 5500``."""
+        kind = {"P": "put", "C": "call"}
+        return " / ".join(f"{leg.side} {kind.get(leg.type, leg.type)} {leg.strike:g}"
+                          for leg in self.legs)
+
     def summary(self) -> dict:
-        """The headline numbers as ``{name: value}`` (for tables and sheets)."""
-        keys = ("structure", "expiry", "calendar_days", "contracts", "multiplier",
-                "strike", "premium_mid", "premium_paid", "premium_at_forecast",
+        """The headline numbers as ``{name: value}`` (for tables and sheets); the
+        structure by its name and every leg's strike."""
+        keys = ("expiry", "calendar_days", "contracts", "multiplier",
+                "strike", "strike_legs", "premium_mid", "premium_paid", "premium_at_forecast",
                 "expected_payoff", "overpay", "cost_pct", "cost_pct_annual",
                 "prob_payoff", "breakeven", "breakeven_move", "annual_roll_cost",
                 "annual_roll_cost_pct")
-        return {k: getattr(self, k) for k in keys}
+        return {"structure": self.structure_name, **{k: getattr(self, k) for k in keys}}
 
     def to_dict(self) -> dict:
         out = {f.name: plain(getattr(self, f.name)) for f in fields(self)}

@@ -15,6 +15,7 @@ import sys
 from collections.abc import Callable
 from pathlib import Path
 
+from optbench import inputs
 from optbench.errors import InputError
 
 TEXT_FORMATS = ("table", "json", "csv", "md", "html")
@@ -62,12 +63,32 @@ def add_output_options(parser: argparse.ArgumentParser,
     parser.set_defaults(outputs=None, format_given=False, output_formats=tuple(formats))
 
 
+def typed(parser, label: str, **options):
+    """An argparse type from a parser of :mod:`optbench.inputs` (the workbench reads
+    the same text the same way); its one-line problem becomes argparse's message."""
+    def parse(text: str):
+        try:
+            return parser(text, label, **options)
+        except InputError as err:
+            raise argparse.ArgumentTypeError(err.problem) from None
+    parse.__name__ = label
+    return parse
+
+
 def parse_date(text: str) -> _dt.date:
-    """argparse type for ISO dates, with a one-line error."""
-    try:
-        return _dt.date.fromisoformat(text.strip())
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not a date (YYYY-MM-DD): {text!r}") from None
+    """argparse type for dates: ISO, or the layouts the file loaders read
+    (``03/13/2026`` month first), with a one-line error."""
+    return typed(inputs.date, "date")(text)
+
+
+#: argparse types for money (``25m``), fractions of spot (``90``, ``90%``, ``0.90``),
+#: rates and yields (``4%``, ``0.04``) and positive shares such as spreads. Money and
+#: fractions are read here and checked by the request that uses them (its message
+#: names the argument and the allowed range).
+money = typed(inputs.money, "amount of money", check=False)
+fraction = typed(inputs.fraction, "fraction of spot", check=False)
+rate = typed(inputs.rate, "rate")
+share = typed(inputs.share, "share")
 
 
 def parse_float(text: str) -> float:
@@ -139,11 +160,12 @@ def day_list(example: str, maximum: int = MAX_DAYS):
 def add_market_overrides(parser: argparse.ArgumentParser) -> None:
     group = parser.add_argument_group("market overrides")
     group.add_argument("--spot", type=parse_float, help="underlying price at quote time")
-    group.add_argument("--asof", type=parse_date, help="quote date, YYYY-MM-DD")
-    group.add_argument("--rate", type=parse_float,
-                       help="risk-free rate, continuously compounded decimal (0.04 = 4%%)")
-    group.add_argument("--div-yield", dest="div_yield", type=parse_float,
-                       help="dividend yield, continuously compounded decimal")
+    group.add_argument("--asof", type=parse_date,
+                       help="quote date, YYYY-MM-DD (or MM/DD/YYYY)")
+    group.add_argument("--rate", type=rate,
+                       help="risk-free rate, continuously compounded (0.04, 4%% or 4)")
+    group.add_argument("--div-yield", dest="div_yield", type=rate,
+                       help="dividend yield, continuously compounded (0.015, 1.5%% or 1.5)")
     add_contract_options(group)
     group.add_argument("--max-strike-ratio", dest="max_strike_ratio", type=parse_float,
                        default=None, metavar="FACTOR",

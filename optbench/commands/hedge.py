@@ -10,8 +10,8 @@ from __future__ import annotations
 import argparse
 import sys
 
-from optbench.commands.common import (add_output_options, drift_options, market_overrides,
-                                      parse_date, whole_number,
+from optbench.commands.common import (add_output_options, drift_options, fraction,
+                                      market_overrides, money, parse_date, whole_number,
                                       write_outputs)
 from optbench.commands.compare import (FORMATS, add_chain_arguments, chain_source,
                                        check_file_formats, progress_printer)
@@ -35,16 +35,17 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                      "year. Estimates, not advice."))
     add_chain_arguments(parser)
     h = parser.add_argument_group("hedge")
-    h.add_argument("--portfolio", default=None, metavar="VALUE",
-                   help="portfolio value in money (e.g. 10000000); optional with "
-                        "--holdings by quantity or --portfolio-history")
+    h.add_argument("--portfolio", default=None, metavar="VALUE", type=money,
+                   help="portfolio value in money (10000000, 10,000,000, 10m, 2.5bn); "
+                        "optional with --holdings by quantity or --portfolio-history")
     h.add_argument("--beta", default=None, help="beta of the portfolio to the underlying "
                                                 "(default: 1.0, or estimated from "
                                                 "--holdings / --portfolio-history)")
     h.add_argument("--hedge-ratio", dest="hedge_ratio", default=None,
                    help="ratio to hedge in place of the beta")
-    h.add_argument("--floor", default="0.90",
-                   help="bought put strike as a fraction of spot (default: 0.90)")
+    h.add_argument("--floor", default="0.90", type=fraction,
+                   help="bought put strike as a fraction of spot: 0.90, 90 or 90%% "
+                        "(default: 0.90)")
     when = h.add_mutually_exclusive_group()
     when.add_argument("--expiry", type=parse_date, default=None, metavar="DATE",
                       help="expiry to use (a date in the chain)")
@@ -52,7 +53,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                       help="use the expiry nearest N calendar days (default: 91)")
     h.add_argument("--structure", choices=("put", "put-spread", "collar"), default="put",
                    help="protection structure (default: put)")
-    h.add_argument("--lower-floor", dest="lower_floor", default=None,
+    h.add_argument("--lower-floor", dest="lower_floor", default=None, type=fraction,
                    help="put spread: sold put strike as a fraction of spot "
                         "(default: floor - 0.10)")
     h.add_argument("--call-strike", dest="call_strike", default=None,

@@ -10,7 +10,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from optbench.commands.common import parse_float, whole_number
+from optbench.commands.common import share, whole_number
 from optbench.commands.compare import add_chain_arguments
 from optbench.errors import InputError
 
@@ -23,16 +23,20 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                      "opens the bundled demo scenario. Every key is listed on the help "
                      "screen (?)."))
     add_chain_arguments(parser)
-    parser.add_argument("--max-spread", dest="max_spread", type=parse_float, default=None,
+    parser.add_argument("--max-spread", dest="max_spread", type=share, default=None,
                         help="quote filter: widest bid/ask spread kept, as a fraction of "
-                             "mid (0.5 = 50%%; default: the loader's)")
+                             "mid (0.5, 50%% or 50; default: the loader's)")
     parser.add_argument("--universe", metavar="FOLDER", default=None,
                         help="a folder of scenario folders: the workbench opens on its "
                              "screen (key u), and Enter on a row opens that underlying")
     parser.add_argument("--workers", type=whole_number(1), default=None,
                         help="local worker processes for the universe screen "
                              "(default: the number of cores)")
-    parser.set_defaults(run=run)
+    parser.add_argument("--scheduler", metavar="ADDRESS", default=None,
+                        help="address of a running Dask scheduler (tcp://host:8786): the "
+                             "universe screen runs on that cluster")
+    # no --model/--dist/--mean: the workbench's saved choice (else auto / t / constant)
+    parser.set_defaults(run=run, model=None, dist=None, mean=None)
     return parser
 
 
@@ -61,6 +65,7 @@ def run(args: argparse.Namespace) -> int:
                    spot=args.spot, asof=args.asof, rate=args.rate, div_yield=args.div_yield,
                    max_spread=args.max_spread, hedge_paths=args.paths, seed=args.seed,
                    style=args.style, multiplier=args.multiplier,
-                   universe=universe, workers=args.workers)
+                   universe=universe, workers=args.workers,
+                   scheduler=args.scheduler)
     app.run()
     return 0

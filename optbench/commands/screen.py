@@ -7,7 +7,7 @@ import sys
 
 from optbench.commands.common import (add_contract_options, add_drift_options,
                                       add_model_options, add_output_options,
-                                      contract_overrides, day_list, drift_options,
+                                      contract_overrides, day_list, drift_options, fraction,
                                       output_plan, parse_float, whole_number,
                                       write_outputs)
 from optbench.errors import InputError
@@ -29,7 +29,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     parser.add_argument("--tenors", type=day_list("30,91,182"), default=(30, 91, 182),
                         metavar="DAYS,...", help="target tenors in calendar days "
                                                  "(default: 30,91,182)")
-    parser.add_argument("--floor", type=parse_float, default=0.90,
+    parser.add_argument("--floor", type=fraction, default=0.90,
                         help="protection floor as a fraction of spot (default: 0.90)")
     parser.add_argument("--sort", choices=COLUMNS, default="iv_minus_forecast",
                         metavar="COLUMN", help="rank by this column (default: "

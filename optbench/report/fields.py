@@ -116,6 +116,7 @@ HEDGE_FIELDS: tuple[tuple[str, str, str], ...] = (
     ("contracts", "Contracts", "int"),
     ("multiplier", "Multiplier", "num"),
     ("strike", "Put strike", "price"),
+    ("strike_legs", "Strikes, every leg", "text"),
     ("premium_mid", "Premium at mid", "money"),
     ("premium_paid", "Premium paid", "money"),
     ("premium_at_forecast", "Value at forecast vol", "money"),

@@ -8,8 +8,10 @@ in that task's slot (with the reason), and the other tasks go on.
 from __future__ import annotations
 
 import concurrent.futures as cf
+import contextlib
 import multiprocessing
 import os
+import sys
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -79,13 +81,81 @@ def run_tasks(fn: Callable[[Any], Any], items: Iterable[Any], *, workers: int | 
     return _run_in_processes(fn, items, min(n, len(items)), progress)
 
 
+def _real_fd(stream) -> int | None:
+    """The stream's file descriptor, or None when it has none (a terminal UI
+    replaces ``sys.stderr`` with a capture object whose ``fileno()`` is -1)."""
+    try:
+        fd = stream.fileno()
+    except (AttributeError, OSError, ValueError):
+        return None
+    if not isinstance(fd, int) or fd < 0:
+        return None
+    try:
+        os.fstat(fd)
+    except OSError:
+        return None
+    return fd
+
+
+class _NullFdStream:
+    """Stands in for a captured ``sys.stderr`` while a child process is launched:
+    writes go where they went before, ``fileno()`` is an open ``/dev/null``."""
+
+    def __init__(self, stream, fd: int) -> None:
+        self._stream, self._fd = stream, fd
+
+    def fileno(self) -> int:
+        return self._fd
+
+    def __getattr__(self, name: str):
+        return getattr(self._stream, name)
+
+
+@contextlib.contextmanager
+def _launchable_stderr():
+    """Make process launching work when ``sys.stderr`` has no file descriptor.
+
+    multiprocessing's resource tracker passes ``sys.stderr.fileno()`` to the process
+    it starts; under the workbench that is -1 and the launch fails with "bad value(s)
+    in fds_to_keep". Here the tracker starts with ``/dev/null`` as its stderr (the
+    terminal belongs to the UI), and the pool finds it running.
+    """
+    if _real_fd(sys.stderr) is not None:
+        yield False
+        return
+    from multiprocessing import resource_tracker
+    null = os.open(os.devnull, os.O_WRONLY)
+    captured = sys.stderr
+    try:
+        sys.stderr = _NullFdStream(captured, null)
+        try:
+            resource_tracker.ensure_running()
+        finally:
+            if isinstance(sys.stderr, _NullFdStream):
+                sys.stderr = captured
+    finally:
+        os.close(null)
+    yield True
+
+
+def _quiet_worker() -> None:
+    """Worker initializer when the parent's terminal belongs to a UI: the worker's
+    stdout and stderr go to ``/dev/null`` so nothing it prints lands on the screen."""
+    null = os.open(os.devnull, os.O_WRONLY)
+    os.dup2(null, 1)
+    os.dup2(null, 2)
+    os.close(null)
+
+
 def _run_in_processes(fn, items: Sequence[Any], n: int, progress: Progress | None) -> list:
     # "spawn" gives each worker a clean interpreter: safe when the caller has threads
     # (the workbench does), and the same on every platform.
     context = multiprocessing.get_context("spawn")
-    with cf.ProcessPoolExecutor(max_workers=n, mp_context=context) as pool:
-        futures = [pool.submit(call_safely, fn, item) for item in items]
-        return _gather(futures, cf.as_completed(futures), items, progress)
+    with _launchable_stderr() as under_ui:
+        with cf.ProcessPoolExecutor(max_workers=n, mp_context=context,
+                                    initializer=_quiet_worker if under_ui else None) as pool:
+            futures = [pool.submit(call_safely, fn, item) for item in items]
+            return _gather(futures, cf.as_completed(futures), items, progress)
 
 
 def _gather(futures, completed, items: Sequence[Any], progress: Progress | None) -> list:

@@ -19,9 +19,13 @@ from textual.widgets import ProgressBar, Static, TabbedContent, Tabs
 from textual.worker import get_current_worker
 
 from optbench.errors import InputError
-from optbench.tui import session
+from optbench.tui import prefs, session
 from optbench.tui.dialogs.requests import ExportRequest, OpenRequest, Settings
 from optbench.tui.screens.workbench import VIEWS, WorkbenchScreen
+from optbench.tui.views.hedge import HedgeView
+
+#: what the settings dialog hands back for "back to defaults"
+RESET = "reset"
 
 #: which table the export dialog proposes on each view
 _VIEW_TABLE = {"overview": "report", "term": "expiries", "smile": "strikes",
@@ -42,7 +46,7 @@ def _ready_text(comparison) -> str:
     if not n:
         return "ready"
     first = comparison.warnings[0]
-    return f"⚠ ready with {n} warning{'s' if n > 1 else ''} (overview): {first}"
+    return f"ready with {n} warning{'s' if n > 1 else ''} ⚠ (overview): {first}"
 
 
 class Progress(Message):
@@ -103,30 +107,44 @@ class Workbench(App):
 
     CSS_PATH = "app.tcss"
     TITLE = "optbench"
+    #: screen classes for the layout: below 100 columns views stack and labels
+    #: shorten; below 32 rows the header gives way and boxes lose their padding
+    HORIZONTAL_BREAKPOINTS = [(0, "-narrow"), (100, "-medium"), (160, "-wide")]
+    VERTICAL_BREAKPOINTS = [(0, "-short"), (32, "-tall")]
+
+    #: the key bar shows these in order (the most used first, so that a narrow
+    #: terminal still shows export, help and quit); the help screen lists them all
     BINDINGS = [
         *[Binding(key, f"view('{vid}')", title, id=f"view.{vid}", group=VIEW_KEYS) for vid, key, title in VIEWS],
+        Binding("o", "open", "Open", id="app.open"),
+        Binding("m", "settings", "Model & market", id="app.settings"),
+        Binding("e", "export", "Export", id="app.export"),
+        Binding("question_mark,f1", "help", "Help", key_display="?", id="app.help"),
+        Binding("q", "quit", "Quit", id="app.quit"),
+        Binding("u", "universe", "Universe", id="app.universe"),
+        Binding("r", "recompute", "Recompute", id="app.recompute"),
         Binding("left_square_bracket", "step_expiry(-1)", "Previous expiry", key_display="[",
                 id="app.prev_expiry", group=EXPIRY_KEYS),
         Binding("right_square_bracket", "step_expiry(1)", "Next expiry", key_display="]",
                 id="app.next_expiry", group=EXPIRY_KEYS),
-        Binding("o", "open", "Open", id="app.open"),
-        Binding("u", "universe", "Universe", id="app.universe"),
-        Binding("m", "settings", "Model & market", id="app.settings"),
-        Binding("r", "recompute", "Recompute", id="app.recompute"),
-        Binding("e", "export", "Export", id="app.export"),
         Binding("t", "track", "Track record", id="app.track"),
-        Binding("question_mark,f1", "help", "Help", key_display="?", id="app.help"),
         Binding("escape", "leave_field", "Leave field", show=False, id="app.leave"),
-        Binding("q", "quit", "Quit", id="app.quit"),
     ]
 
     def __init__(self, inputs: session.Inputs, universe: Path | None = None,
-                 workers: int | None = None) -> None:
+                 workers: int | None = None, scheduler: str | None = None,
+                 planner: prefs.PlannerState | None = None, notice: str | None = None) -> None:
         super().__init__()
         self.inputs = inputs
+        #: the hedge planner's inputs (saved; the overview's headline follows them)
+        self.planner = planner or prefs.PlannerState()
+        #: a one-line notice for the user at start (e.g. a settings file that was bad)
+        self.notice = notice
         #: a folder of scenario folders to screen (key u), and its last screen
         self.universe = Path(universe) if universe is not None else None
         self.universe_workers = workers
+        #: a running Dask scheduler's address: the universe screen runs there instead
+        self.universe_scheduler = scheduler
         self.universe_result = None
         self.comparison = None
         self.headline = None
@@ -145,6 +163,8 @@ class Workbench(App):
 
     def on_mount(self) -> None:
         self.sub_title = self.inputs.label
+        if self.notice:
+            self.notify(self.notice, title="Settings", severity="warning", timeout=10)
         # the first run starts when the workbench screen has mounted its widgets
         if self.universe is not None:
             self.call_after_refresh(self.action_universe)
@@ -161,10 +181,11 @@ class Workbench(App):
         bar = self.screen_stack[0].query_one("#progress", ProgressBar)
         bar.update(total=STEPS, progress=0)
         self._status(f"opening {self.inputs.label} …")
-        self.compute(self.inputs, self._token)
+        self.compute(self.inputs, self._token, self.planner)
 
     @work(thread=True, exclusive=True, group="compute", exit_on_error=False)
-    def compute(self, inputs: session.Inputs, token: int) -> None:
+    def compute(self, inputs: session.Inputs, token: int,
+                planner: prefs.PlannerState | None = None) -> None:
         worker = get_current_worker()
         started = time.perf_counter()
         stage = "open"
@@ -187,7 +208,7 @@ class Workbench(App):
                 return
             self.post_message(Computed(token, comparison, None, time.perf_counter() - started))
             stage = "headline"
-            headline = session.headline_hedge(comparison, inputs.settings)
+            headline = session.headline_hedge(comparison, inputs.settings, planner)
             if worker.is_cancelled:
                 return
             self.post_message(Headline(token, headline))
@@ -200,6 +221,12 @@ class Workbench(App):
         except Exception as err:  # shown to the user; the app keeps running
             if not worker.is_cancelled:
                 self.post_message(Failed(token, _describe(err), stage))
+
+    @staticmethod
+    def _facts(c) -> str:
+        """The comparison on screen in a few words (the status line leads with the state)."""
+        return (f"{c.underlying} {c.asof.isoformat()} · spot {c.spot:,.2f} · "
+                f"{len(c.expiries)} expiries · {c.model.name}/{c.model.dist}")
 
     def _status(self, text: str) -> None:
         self.screen_stack[0].query_one("#status-text", Static).update(text)
@@ -231,8 +258,7 @@ class Workbench(App):
         self.sub_title = f"{c.underlying} · {c.asof.isoformat()} · spot {c.spot:,.2f}"
         self.last_compute_seconds = msg.seconds
         self.checked = False
-        self._status(f"{c.underlying}: {len(c.expiries)} expiries, model {c.model.name}/"
-                     f"{c.model.dist} — checking the model out of sample …")
+        self._status(f"checking the model out of sample … · {self._facts(c)}")
         self.headline_ready = False
         self.view("overview").show(c, None, True)
         for vid in ("term", "smile", "richcheap", "model", "hedge"):
@@ -254,11 +280,45 @@ class Workbench(App):
         self.comparison = c = msg.comparison
         self.checked = True
         self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=STEPS)
-        self._status(f"{c.underlying}: {len(c.expiries)} expiries, model {c.model.name}/"
-                     f"{c.model.dist}, checked out of sample — "
-                     + _ready_text(c))
+        self._status(f"{_ready_text(c)} · {self._facts(c)}")
         self.view("overview").show(c, self.headline, not self.headline_ready)
         self.view("model").show(c)
+
+    @on(HedgeView.Ready)
+    def _planned(self, msg: HedgeView.Ready) -> None:
+        """The planner priced new inputs: the headline follows them, and they are saved."""
+        # the same run (the model check replaces the comparison but keeps its fit)
+        if self.comparison is None or msg.comparison is None or \
+                msg.comparison.fit is not self.comparison.fit:
+            return
+        state = msg.inputs.state(msg.estimate.calendar_days)
+        if state != self.planner:
+            self.planner = state
+            self.save_settings()
+        self.headline, self.headline_ready = msg.estimate, True
+        self.view("overview").show(self.comparison, msg.estimate)
+
+    def save_settings(self) -> None:
+        """Write the planner's inputs and the model choice to the user's settings file."""
+        s = self.inputs.settings
+        problem = prefs.save(self.planner, prefs.ModelChoice(s.model, s.dist, s.mean))
+        if problem:
+            self.notify(problem, title="Settings", severity="warning", timeout=8)
+
+    def reset_settings(self) -> None:
+        """Back to defaults: the model, the planner and the overview's headline; the
+        settings file is removed. Market overrides (spot, dates) stay as set."""
+        from dataclasses import replace
+        problem = prefs.reset()
+        if problem:
+            self.notify(problem, title="Settings", severity="warning", timeout=8)
+        self.planner = prefs.PlannerState()
+        defaults = Settings()
+        self.inputs = self.inputs.with_settings(replace(
+            self.inputs.settings, model=defaults.model, dist=defaults.dist, mean=defaults.mean))
+        self.view("hedge").fill(self.planner)
+        self.notify("Model and planner back to their defaults.", title="Settings", timeout=4)
+        self.start_compute()
 
     @on(Failed)
     def _failed(self, msg: Failed) -> None:
@@ -344,6 +404,7 @@ class Workbench(App):
             self.universe, self.universe_result = folder, None
         s = self.inputs.settings
         dialog = UniverseScreen(folder, self.universe_result, workers=self.universe_workers,
+                                scheduler=self.universe_scheduler,
                                 model=s.model, dist=s.dist, mean=s.mean)
 
         def chosen(request: OpenRequest | None) -> None:
@@ -354,14 +415,22 @@ class Workbench(App):
     def action_settings(self) -> None:
         from optbench.tui.dialogs.settings import SettingsDialog
         c = self.comparison
-        used = ({"rate": c.rate, "div_yield": c.div_yield, "spot": c.spot, "asof": c.asof}
-                if c is not None else {})
-        self.push_screen(SettingsDialog(self.inputs.settings, used), self._settled)
+        used = ({"rate": c.rate, "div_yield": c.div_yield, "spot": c.spot, "asof": c.asof,
+                 "style": c.style, "multiplier": c.multiplier} if c is not None else {})
+        sources = dict(getattr(c, "sources", None) or {}) if c is not None else {}
+        self.push_screen(SettingsDialog(self.inputs.settings, used, sources), self._settled)
 
-    def _settled(self, settings: Settings | None) -> None:
+    def _settled(self, settings: Settings | str | None) -> None:
+        if settings == RESET:
+            self.reset_settings()
+            return
         if settings is None or settings == self.inputs.settings:
             return
+        model_changed = (settings.model, settings.dist, settings.mean) != (
+            self.inputs.settings.model, self.inputs.settings.dist, self.inputs.settings.mean)
         self.inputs = self.inputs.with_settings(settings)
+        if model_changed:
+            self.save_settings()
         self.start_compute()
 
     def action_export(self) -> None:
@@ -405,8 +474,12 @@ class Workbench(App):
     def action_help(self) -> None:
         from optbench.tui.screens.help import HelpScreen
         from optbench.tui.widgets.table import SortableTable
-        groups = [("everywhere", list(self.BINDINGS)),
-                  ("tables", list(SortableTable.BINDINGS)),
+        groups = [("everywhere", list(self.BINDINGS)
+                   + [Binding("f1", "", "Help (the same as ?)"),
+                      Binding("ctrl+p", "", "Command palette: find any command by name")]),
+                  ("tables", list(SortableTable.BINDINGS)
+                   + [Binding("enter", "", "Rich / cheap: show the expiry's strikes; "
+                                           "Universe: open the row's underlying")]),
                   ("dialogs", [Binding("escape", "", "Cancel the dialog"),
                                Binding("ctrl+s", "", "Apply / export"),
                                Binding("ctrl+o", "", "Open what the file picker shows"),
@@ -415,19 +488,21 @@ class Workbench(App):
 
 
 def make_app(scenario_path: str | Path | None = None, history: str | Path | None = None, *,
-             model: str = "auto", dist: str = "t", mean: str = "constant",
+             model: str | None = None, dist: str | None = None, mean: str | None = None,
              spot: float | None = None, asof=None, rate: float | None = None,
              div_yield: float | None = None, max_spread: float | None = None,
              hedge_paths: int | None = None, seed: int | None = 7,
              universe: str | Path | None = None, workers: int | None = None,
-             style: str | None = None, multiplier: float | None = None) -> Workbench:
+             style: str | None = None, multiplier: float | None = None,
+             scheduler: str | None = None) -> Workbench:
     """The workbench on a chain file or scenario folder (default: the bundled demo).
 
     Parameters
     ----------
     scenario_path : chain file or scenario folder; None opens ``chains/ZPHX``.
     history : price history file, when the chain's folder has no ``history.csv``.
-    model, dist, mean : the volatility model (as ``optbench compare``).
+    model, dist, mean : the volatility model (as ``optbench compare``); None takes the
+        saved choice (:mod:`optbench.tui.prefs`), else auto / t / constant.
     spot, asof, rate, div_yield : market overrides (decimals for rate and yield).
     max_spread : widest bid/ask spread kept, as a fraction of mid (loader filter).
     hedge_paths, seed : the simulation behind hedge estimates (default 20,000 paths,
@@ -436,12 +511,17 @@ def make_app(scenario_path: str | Path | None = None, history: str | Path | None
         key u, opens on start) and its local worker processes (default: the cores).
     style, multiplier : exercise style and contract multiplier of every option
         (default: the chain file's columns, else meta.toml, else european and 100).
+    scheduler : address of a running Dask scheduler for the universe screen (in place
+        of local processes).
     """
     chain = Path(scenario_path) if scenario_path is not None else session.demo_scenario()
     source = OpenRequest(chain=chain, history=Path(history) if history is not None else None)
-    settings = Settings(model=model, dist=dist, mean=mean, spot=spot, asof=asof, rate=rate,
+    saved = prefs.load()
+    m = prefs.with_model(saved, model, dist, mean)
+    settings = Settings(model=m.model, dist=m.dist, mean=m.mean, spot=spot, asof=asof, rate=rate,
                         div_yield=div_yield, max_spread=max_spread,
                         hedge_paths=int(hedge_paths or session.N_PATHS), seed=seed,
                         style=style, multiplier=multiplier)
     return Workbench(session.Inputs(source=source, settings=settings), universe=universe,
-                     workers=workers)
+                     workers=workers, scheduler=scheduler, planner=saved.planner,
+                     notice=saved.notice)

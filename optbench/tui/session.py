@@ -18,7 +18,8 @@ from optbench.tui.dialogs.requests import OpenRequest, Settings
 N_PATHS = 20000
 SEED = 7
 
-#: the headline protection on the overview: a 3-month put struck at 90 % of spot
+#: the default headline protection on the overview (until the planner is changed):
+#: a put struck at 90 % of spot, the expiry nearest 91 days, on 10,000,000
 HEADLINE = {"days": 91, "floor": 0.90, "structure": "put", "portfolio_value": 10_000_000.0,
             "beta": 1.0}
 
@@ -104,11 +105,17 @@ def run_hedge(comparison, *, n_paths: int = N_PATHS, seed: int | None = SEED, **
     return hedge(None, comparison=comparison, n_paths=n_paths, seed=seed, **request)
 
 
-def headline_hedge(comparison, settings: Settings | None = None):
-    """The overview's headline protection, or None when the chain cannot give it."""
+def headline_hedge(comparison, settings: Settings | None = None, planner=None):
+    """The overview's headline protection on the hedge planner's inputs (a
+    :class:`~optbench.tui.prefs.PlannerState`; default: a put at 90 % of spot nearest
+    91 days on 10,000,000), or None when the chain cannot give it."""
+    from optbench.tui.prefs import PlannerState
     s = settings or Settings()
+    planner = planner or PlannerState()
+    listed = [r.expiry.isoformat() for r in comparison.expiries]
     try:
-        return run_hedge(comparison, n_paths=s.hedge_paths, seed=s.seed, **HEADLINE)
+        return run_hedge(comparison, n_paths=s.hedge_paths, seed=s.seed,
+                         **planner.hedge_kwargs(listed))
     except InputError:
         return None
 

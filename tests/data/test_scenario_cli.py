@@ -118,7 +118,7 @@ def _cli(*args):
     (lambda d: (d / "b.csv").write_bytes(b"\x00\x01\x02PK" * 50), ["b.csv"], "binary"),
     (lambda d: (d / "m.csv").write_text("expiry,strike,type,bid\n2027-01-15,1,C,1\n"),
      ["m.csv", "--spot", "100", "--asof", "2026-11-27"], "missing column 'ask'"),
-    (lambda d: (d / "ok.csv").write_text(CHAIN_OK), ["ok.csv", "--asof", "27.11.2026"],
+    (lambda d: (d / "ok.csv").write_text(CHAIN_OK), ["ok.csv", "--asof", "27.13.2026"],
      "not a date"),
 ])
 def test_cli_user_errors_are_one_line_exit_2(tmp_path, make, args, problem):

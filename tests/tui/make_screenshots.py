@@ -7,7 +7,12 @@ Not a test (pytest collects test_*.py only); run it after changing the screens.
 from __future__ import annotations
 
 import asyncio
+import os
+import tempfile
 from pathlib import Path
+
+# the screenshots show the defaults, whatever the user's saved settings say
+os.environ["OPTBENCH_CONFIG_DIR"] = tempfile.mkdtemp(prefix="optbench-screenshots-")
 
 from optbench.tui.app import make_app
 from optbench.tui.screens.workbench import VIEWS
@@ -30,7 +35,24 @@ async def main() -> None:
         await pilot.press("question_mark")
         await pilot.pause(0.2)
         print("Help:", Path(app.save_screenshot(filename="help.svg", path=str(OUT))).relative_to(ROOT))
+        await pilot.press("escape", "m")
+        await pilot.pause(0.2)
+        print("Model & market:", Path(app.save_screenshot(filename="settings.svg",
+                                                          path=str(OUT))).relative_to(ROOT))
+    await narrow_screenshots()
     await universe_screenshot()
+
+
+async def narrow_screenshots() -> None:
+    """The overview and the hedge planner on an 80 x 24 terminal."""
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(app, pilot)
+        for view_id, key in (("overview", "1"), ("hedge", "5")):
+            await pilot.press(key)
+            await pilot.pause(0.2)
+            path = app.save_screenshot(filename=f"{view_id}-80x24.svg", path=str(OUT))
+            print(f"{view_id} at 80x24: {Path(path).relative_to(ROOT)}")
 
 
 async def universe_screenshot() -> None:

@@ -18,7 +18,8 @@ from tui_helpers import DEMO, ROOT
     (["open", "no/such/chain.csv"], "no/such/chain.csv: no such file or folder"),
     (["open", str(DEMO), "--history", "no/such/history.csv"], "no such file"),
     (["open", "--max-spread", "-0.5"], "--max-spread: must be positive"),
-    (["open", "--rate", "abc"], "not a number"),
+    (["open", "--rate", "abc"], "--rate: not a rate: 'abc'"),
+    (["open", "--asof", "2026-13-45"], "--asof: not a date: '2026-13-45'"),
 ])
 def test_bad_input_is_one_line_and_exit_2(args, needle):
     out = subprocess.run([sys.executable, "-m", "optbench", *args], capture_output=True,

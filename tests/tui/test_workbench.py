@@ -140,10 +140,30 @@ async def _test_hedge_planner_equals_the_hedge_command():
         await _fill(pilot, app, "#hedge-beta", "abc")
         await pilot.pause(0.3)
         error = text_of(app.screen.query_one("#hedge-error", Static))
-        assert "beta" in error and "not a number" in error
+        # the message names the field as the planner shows it and echoes the text
+        assert "Beta to the underlying: not a number: 'abc'" in error
         await _fill(pilot, app, "#hedge-portfolio", "")
         await pilot.pause(0.3)
-        assert "empty" in text_of(app.screen.query_one("#hedge-error", Static))
+        assert "Portfolio value: empty" in text_of(app.screen.query_one("#hedge-error", Static))
+        # a core check on the request names the planner's field, not a command-line flag
+        await _fill(pilot, app, "#hedge-beta", "1.3")
+        await _fill(pilot, app, "#hedge-portfolio", "1m")
+        app.screen.query_one("#hedge-structure", Select).value = "put_spread"
+        await _fill(pilot, app, "#hedge-lower", "95")
+        await pilot.pause(0.3)
+        await settle(app, pilot)
+        error = text_of(app.screen.query_one("#hedge-error", Static))
+        assert "Put spread: sold put, % of spot:" in error and "--" not in error
+        # typing into a filled field replaces what it held: focus selects the text
+        await _fill(pilot, app, "#hedge-lower", "")
+        field = app.screen.query_one("#hedge-portfolio", Input)
+        app.screen.set_focus(field)
+        await pilot.pause()
+        await pilot.press("2", "5", "m")
+        await pilot.pause(0.3)
+        await settle(app, pilot)
+        assert field.value == "25m"
+        assert app.view("hedge").estimate.request.portfolio_value == 25e6
         assert app.is_running
 
 
@@ -229,11 +249,41 @@ async def _test_changing_the_model_recomputes_and_drops_stale_work():
         app.screen.query_one("#set-rate", Input).value = "x"
         await pilot.press("ctrl+s")
         await pilot.pause()
-        assert "rate: not a number" in text_of(app.screen.query_one("#settings-error", Static))
-        app.screen.query_one("#set-rate", Input).value = "5"
+        assert "Rate: not a rate: 'x'" in text_of(app.screen.query_one("#settings-error", Static))
+        # the dialog shows what the run used and where it came from
+        assert "(from meta.toml)" in app.screen.query_one("#set-rate", Input).placeholder
+        assert "(from the chain file)" in app.screen.query_one("#set-spot", Input).placeholder
+        assert "100" in app.screen.query_one("#set-multiplier", Input).placeholder
+        app.screen.query_one("#set-rate", Input).value = "5%"
+        app.screen.query_one("#set-asof", Input).value = app.comparison.asof.strftime("%m/%d/%Y")
+        app.screen.query_one("#set-multiplier", Input).value = "10"
         await pilot.press("ctrl+s")
         await settle(app, pilot)
         assert app.comparison.rate == pytest.approx(0.05)
+        assert app.comparison.multiplier == 10 and app.comparison.sources["rate"] != "meta"
+        assert app.inputs.settings.asof == app.comparison.asof
+
+
+def test_data_quality_shows_the_rejected_side_first(tmp_path):
+    # a wide-layout chain (calls | strike | puts): line 3's put side is crossed, line 4's
+    # call side has no bid; each row shows the side that was rejected first
+    from optbench.data import load_chain
+    from optbench.tui.views.quality import side_first
+    path = tmp_path / "wide.csv"
+    path.write_text("expiry,call_bid,call_ask,strike,put_bid,put_ask\n"
+                    "2027-01-15,12.0,12.5,100,3.0,3.4\n"
+                    "2027-01-15,8.0,8.4,105,9.5,6.0\n"
+                    "2027-01-15,0,0.2,140,30.0,31.0\n")
+    chain = load_chain(path, spot=104.0, asof="2026-11-27")
+    table = side_first(chain.rejected)
+    assert list(table.columns[:4]) == ["line", "reason", "side", "detail"]
+    assert list(table.columns[4:6]) == ["bid", "ask"]
+    rows = {(int(r["line"]), r["side"]): r for _, r in table.iterrows()}
+    put_row, call_row = rows[(3, "put")], rows[(4, "call")]
+    assert put_row["side"] == "put" and float(put_row["bid"]) == 9.5 and \
+        float(put_row["other bid"]) == 8.0
+    assert call_row["side"] == "call" and float(call_row["bid"]) == 0 and \
+        float(call_row["other bid"]) == 30.0
 
 
 @pytest.mark.slow
@@ -251,7 +301,7 @@ async def _test_the_model_dialog_sets_the_drift():
         app.screen.query_one("#set-excess", Input).value = "x"
         await pilot.press("ctrl+s")
         await pilot.pause()
-        assert "excess return: not a number" in text_of(
+        assert "Excess return: not a rate" in text_of(
             app.screen.query_one("#settings-error", Static))
         app.screen.query_one("#set-excess", Input).value = "3"
         await pilot.press("ctrl+s")

@@ -6,7 +6,7 @@ from pathlib import Path
 from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Horizontal, Vertical
+from textual.containers import Horizontal, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Button, Input, Label, Select, Static
 
@@ -34,7 +34,7 @@ class ExportDialog(ModalScreen[ExportRequest | None]):
     def compose(self) -> ComposeResult:
         choices = [(label, key) for key, (label, _) in self._tables.items()]
         formats = self._tables[self._current][1]
-        with Vertical(id="export-dialog", classes="dialog"):
+        with VerticalScroll(id="export-dialog", classes="dialog"):
             yield Label("Export", classes="dialog-title")
             yield Label("ctrl+s or Enter in the file name exports · escape cancels",
                         classes="dialog-hint")

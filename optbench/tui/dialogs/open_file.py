@@ -6,7 +6,7 @@ from pathlib import Path
 from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Horizontal, Vertical
+from textual.containers import Horizontal, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Button, DirectoryTree, Input, Label, Static
 
@@ -28,7 +28,7 @@ class OpenDialog(ModalScreen[OpenRequest | None]):
         self._start = Path(start or Path.cwd())
 
     def compose(self) -> ComposeResult:
-        with Vertical(id="open-dialog", classes="dialog"):
+        with VerticalScroll(id="open-dialog", classes="dialog"):
             yield Label("Open a chain file or a scenario folder", classes="dialog-title")
             yield Label("Enter on a file or folder picks it · type a path · ctrl+o opens · "
                         "escape cancels", classes="dialog-hint")

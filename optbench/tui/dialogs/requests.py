@@ -38,6 +38,8 @@ class Settings:
     asof: _dt.date | None = None
     rate: float | None = None
     div_yield: float | None = None
+    style: str | None = None
+    multiplier: float | None = None
     max_spread: float | None = None
     #: simulated paths behind the hedge's expected payoff (as ``optbench hedge --paths``)
     hedge_paths: int = 20000
@@ -52,5 +54,5 @@ class Settings:
 
     def overrides(self) -> dict:
         """Market overrides for the loaders (only those the user set)."""
-        keys = ("spot", "asof", "rate", "div_yield", "max_spread", "style", "multiplier")
+        keys = ("spot", "asof", "rate", "div_yield", "style", "multiplier", "max_spread")
         return {k: getattr(self, k) for k in keys if getattr(self, k) is not None}

@@ -2,16 +2,16 @@
 from __future__ import annotations
 
 import datetime as _dt
-import math
 from dataclasses import replace
 
 from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Grid, Horizontal, Vertical
+from textual.containers import Grid, Horizontal, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Button, Input, Label, Select, Static
 
+from optbench import inputs
 from optbench.errors import InputError
 from optbench.tui.dialogs.requests import Settings
 
@@ -22,55 +22,76 @@ MEANS = (("constant", "constant"), ("zero", "zero"))
 DRIFTS = (("risk-free rate less yield (+ excess)", "risk-free"), ("fitted mean", "fitted"))
 
 
-def parse_optional_float(name: str, text: str, *, percent: bool = False) -> float | None:
-    """'' -> None; '4.5' -> 0.045 when ``percent``; anything else -> InputError."""
-    text = text.strip().rstrip("%").strip()
-    if not text:
-        return None
-    try:
-        value = float(text)
-    except ValueError:
-        raise InputError(name, f"not a number: {text!r}") from None
-    if not math.isfinite(value):
-        raise InputError(name, f"not a finite number: {text!r}")
-    return value / 100.0 if percent else value
+STYLES = (("from the chain", ""), ("european", "european"), ("american", "american"))
+
+#: where a value came from, as the comparison records it -> words on screen
+SOURCE_WORDS = {"caller": "your setting", "option": "your setting", "file": "the chain file",
+                "meta": "meta.toml", "default": "the default"}
+
+#: the dialog's fields: widget id -> the label the user sees (messages name it)
+FIELDS = {"#set-rate": "Rate", "#set-yield": "Dividend yield", "#set-spot": "Spot",
+          "#set-asof": "Quote date", "#set-multiplier": "Multiplier",
+          "#set-spread": "Widest spread", "#set-excess": "Excess return"}
 
 
-def _shown(value: float | None, percent: bool = False) -> str:
+def _shown(value, kind: str = "") -> str:
+    """A setting as the user would type it back (percentages with their sign)."""
     if value is None:
         return ""
-    return f"{value * 100:g}" if percent else f"{value:g}"
+    if kind == "percent":
+        return f"{value * 100:g}%"
+    if isinstance(value, _dt.date):
+        return value.isoformat()
+    return f"{value:g}"
 
 
-class SettingsDialog(ModalScreen[Settings | None]):
+def used_hint(used: dict, sources: dict, key: str, kind: str = "") -> str:
+    """'4.00% (from meta.toml)': the value the comparison ran with and its source."""
+    value = used.get(key)
+    source = SOURCE_WORDS.get(str(sources.get(key)), None)
+    where = f"from {source}" if source else "from the chain or its default"
+    if value is None:
+        return where
+    if isinstance(value, _dt.date):
+        shown = value.isoformat()
+    elif isinstance(value, str):
+        shown = value
+    elif kind == "percent":
+        shown = f"{value * 100:.2f}%"
+    else:
+        shown = f"{value:,.2f}" if kind != "count" else f"{value:g}"
+    return f"{shown} ({where})"
+
+
+class SettingsDialog(ModalScreen[Settings | str | None]):
     """Change the volatility model, the market inputs and the quote filters."""
 
     BINDINGS = [
         Binding("escape", "cancel", "Cancel", id="settings.cancel"),
         Binding("ctrl+s", "submit", "Apply", id="settings.submit"),
+        Binding("ctrl+d", "reset", "Back to defaults", id="settings.reset"),
     ]
 
-    def __init__(self, settings: Settings, used: dict | None = None) -> None:
-        """``used``: the values the current comparison ran with (shown as hints)."""
+    def __init__(self, settings: Settings, used: dict | None = None,
+                 sources: dict | None = None) -> None:
+        """``used``: the values the current comparison ran with; ``sources``: where each
+        came from (both shown beside the fields)."""
         super().__init__()
         self._settings = settings
         self._used = used or {}
+        self._sources = sources or {}
 
-    def _hint(self, key: str, source: str, percent: bool = False) -> str:
-        value = self._used.get(key)
-        if value is None:
-            return f"from the {source}"
-        shown = value.isoformat() if hasattr(value, "isoformat") else (
-            f"{value * 100:.2f}" if percent else f"{value:,.2f}")
-        return f"{shown} (from the {source})"
+    def _hint(self, key: str, kind: str = "") -> str:
+        return used_hint(self._used, self._sources, key, kind)
 
     def compose(self) -> ComposeResult:
         s = self._settings
-        with Vertical(id="settings-dialog", classes="dialog"):
+        with VerticalScroll(id="settings-dialog", classes="dialog"):
             yield Label("Model, market and filters — empty fields use the chain's own values",
                         classes="dialog-title")
-            yield Label("tab moves between fields · ctrl+s applies and recomputes · escape "
-                        "cancels", classes="dialog-hint")
+            yield Label("tab moves between fields · ctrl+s applies and recomputes · ctrl+d "
+                        "back to defaults (model and planner) · escape cancels",
+                        classes="dialog-hint")
             with Grid(id="settings-grid"):
                 yield Label("Volatility model")
                 yield Select(MODELS, value=s.model, allow_blank=False, id="set-model")
@@ -80,63 +101,66 @@ class SettingsDialog(ModalScreen[Settings | None]):
                 yield Select(MEANS, value=s.mean, allow_blank=False, id="set-mean")
                 yield Label("Drift of simulated prices")
                 yield Select(DRIFTS, value=s.drift, allow_blank=False, id="set-drift")
-                yield Label("Expected excess return, % a year")
-                yield Input(_shown(s.excess_return, True),
+                yield Label("Excess return a year (2% or 0.02)")
+                yield Input(_shown(s.excess_return, "percent"),
                             placeholder="meta.toml's excess_return, else 0",
                             id="set-excess")
-                yield Label("Rate, % a year (cont.)")
-                yield Input(_shown(s.rate, True), placeholder=self._hint("rate", "scenario", True),
+                yield Label("Rate (4% or 0.04)")
+                yield Input(_shown(s.rate, "percent"), placeholder=self._hint("rate", "percent"),
                             id="set-rate")
-                yield Label("Dividend yield, %")
-                yield Input(_shown(s.div_yield, True),
-                            placeholder=self._hint("div_yield", "scenario", True), id="set-yield")
+                yield Label("Dividend yield (1.5%)")
+                yield Input(_shown(s.div_yield, "percent"),
+                            placeholder=self._hint("div_yield", "percent"), id="set-yield")
                 yield Label("Spot")
-                yield Input(_shown(s.spot), placeholder=self._hint("spot", "chain"), id="set-spot")
-                yield Label("Quote date (YYYY-MM-DD)")
-                yield Input("" if s.asof is None else s.asof.isoformat(),
-                            placeholder=self._hint("asof", "chain"), id="set-asof")
-                yield Label("Widest bid/ask spread, % of mid")
-                yield Input(_shown(s.max_spread, True), placeholder="loader default",
+                yield Input(_shown(s.spot), placeholder=self._hint("spot"), id="set-spot")
+                yield Label("Quote date")
+                yield Input(_shown(s.asof), placeholder=self._hint("asof"), id="set-asof")
+                yield Label("Exercise style")
+                yield Select(STYLES, value=s.style or "", allow_blank=False, id="set-style")
+                yield Label("Contract multiplier")
+                yield Input(_shown(s.multiplier), placeholder=self._hint("multiplier", "count"),
+                            id="set-multiplier")
+                yield Label("Widest spread, % of mid")
+                yield Input(_shown(s.max_spread, "percent"), placeholder="loader default",
                             id="set-spread")
+            yield Static(f"Style in use: {self._hint('style')}", id="settings-style-note",
+                         classes="note")
             yield Static("", id="settings-error", classes="dialog-error")
             with Horizontal(classes="dialog-buttons"):
                 yield Button("Apply and recompute", variant="primary", id="settings-ok")
                 yield Button("Cancel", id="settings-cancel")
+                yield Button("Back to defaults", variant="warning", id="settings-reset")
 
     def on_mount(self) -> None:
         self.query_one("#set-model", Select).focus()
 
     def read(self) -> Settings:
-        """The settings in the form; raises InputError naming the bad field."""
-        def value(widget_id: str) -> str:
-            return self.query_one(widget_id, Input).value
+        """The settings in the form; raises InputError naming the field as shown."""
+        def value(widget_id: str, parser):
+            return inputs.optional(parser, self.query_one(widget_id, Input).value,
+                                   FIELDS[widget_id])
 
-        asof_text = value("#set-asof").strip()
-        try:
-            asof = _dt.date.fromisoformat(asof_text) if asof_text else None
-        except ValueError:
-            raise InputError("quote date", f"not a date (YYYY-MM-DD): {asof_text!r}") from None
-        spot = parse_optional_float("spot", value("#set-spot"))
-        if spot is not None and spot <= 0:
-            raise InputError("spot", "must be positive")
+        style = self.query_one("#set-style", Select).value
         drift = str(self.query_one("#set-drift", Select).value)
-        excess = parse_optional_float("excess return", value("#set-excess"), percent=True)
+        excess = value("#set-excess", inputs.rate)
         if excess is not None and drift == "fitted":
-            raise InputError("excess return", "leave it empty with the fitted-mean drift "
-                                              "(the fitted mean is the drift)")
+            raise InputError(FIELDS["#set-excess"], "leave it empty with the fitted-mean drift "
+                                                    "(the fitted mean is the drift)")
         if excess is not None and abs(excess) >= 1:
-            raise InputError("excess return", "must lie between -100 and 100 % a year")
-        spread = parse_optional_float("spread", value("#set-spread"), percent=True)
-        if spread is not None and spread <= 0:
-            raise InputError("spread", "must be positive")
+            raise InputError(FIELDS["#set-excess"], "must lie between -100% and 100% a year")
         return replace(
             self._settings,
             model=str(self.query_one("#set-model", Select).value),
             dist=str(self.query_one("#set-dist", Select).value),
             mean=str(self.query_one("#set-mean", Select).value),
-            rate=parse_optional_float("rate", value("#set-rate"), percent=True),
-            div_yield=parse_optional_float("dividend yield", value("#set-yield"), percent=True),
-            spot=spot, asof=asof, max_spread=spread, drift=drift, excess_return=excess)
+            rate=value("#set-rate", inputs.rate),
+            div_yield=value("#set-yield", inputs.rate),
+            spot=value("#set-spot", inputs.positive),
+            asof=value("#set-asof", inputs.date),
+            style=str(style) if style else None,
+            multiplier=value("#set-multiplier", inputs.positive),
+            max_spread=value("#set-spread", inputs.share),
+            drift=drift, excess_return=excess)
 
     @on(Button.Pressed, "#settings-ok")
     @on(Input.Submitted)
@@ -151,3 +175,9 @@ class SettingsDialog(ModalScreen[Settings | None]):
     @on(Button.Pressed, "#settings-cancel")
     def action_cancel(self) -> None:
         self.dismiss(None)
+
+    @on(Button.Pressed, "#settings-reset")
+    def action_reset(self) -> None:
+        """The model and the hedge planner back to their defaults (the saved settings
+        file is removed)."""
+        self.dismiss("reset")

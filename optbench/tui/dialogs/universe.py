@@ -23,11 +23,12 @@ from optbench.tui.dialogs.requests import OpenRequest
 from optbench.tui.widgets.table import SortableTable
 
 #: (row key, column label, kind for formatting)
+#: the verdict and the gap come early, so a narrow terminal shows them
 COLUMNS = (
-    ("code", "Code", "text"), ("tenor_days", "Tenor d", "int"), ("expiry", "Expiry", "date"),
-    ("atm_iv", "ATM IV %", "vol"), ("forecast_low", "Fc low %", "vol"),
-    ("forecast_vol", "Fcst %", "vol"), ("forecast_high", "Fc high %", "vol"),
-    ("iv_minus_forecast", "IV−fc pts", "volpt"), ("verdict", "Verdict", "verdict"),
+    ("code", "Code", "text"), ("tenor_days", "Days", "int"), ("verdict", "Verdict", "verdict"),
+    ("iv_minus_forecast", "IV−fc", "volpt"), ("atm_iv", "ATM IV", "vol"),
+    ("forecast_vol", "Fcst", "vol"), ("forecast_low", "Fc low", "vol"),
+    ("forecast_high", "Fc high", "vol"), ("expiry", "Expiry", "date"),
     ("protection_cost", "90% put /1M", "money"),
     ("protection_expected_payoff", "Exp. payoff", "money"),
     ("protection_overpay", "Overpay", "money"), ("error", "Problem", "text"),
@@ -59,18 +60,19 @@ class UniverseScreen(ModalScreen[OpenRequest | None]):
     ]
 
     def __init__(self, folder: Path, result=None, *, workers: int | None = None,
-                 **screen_options) -> None:
+                 scheduler: str | None = None, **screen_options) -> None:
         super().__init__()
         self.folder = Path(folder)
         self.result = result
         self.n_workers = workers
+        self.scheduler = scheduler
         self.screen_options = screen_options
 
     def compose(self) -> ComposeResult:
         with Vertical(id="universe-dialog", classes="dialog"):
             yield Label(f"Screen of {self.folder}", classes="dialog-title")
-            yield Label("Enter opens the underlying of the row in every view · s sorts by "
-                        "the column · e exports the table · escape goes back",
+            yield Label("Enter opens the row's underlying · s sorts by the column · e exports "
+                        "the table · escape goes back · vols in %, IV−fc in vol points",
                         classes="dialog-hint")
             yield Static("screening …", id="universe-status")
             yield SortableTable(id="universe-table")
@@ -92,8 +94,8 @@ class UniverseScreen(ModalScreen[OpenRequest | None]):
                 self.app.call_from_thread(self._progress, done, total)
 
         try:
-            result = screen(self.folder, workers=self.n_workers, progress=progress,
-                            **self.screen_options)
+            result = screen(self.folder, workers=self.n_workers, scheduler=self.scheduler,
+                            progress=progress, **self.screen_options)
         except Exception as err:  # shown to the user; the app keeps running
             if not worker.is_cancelled:
                 self.app.call_from_thread(self._failed, str(err))

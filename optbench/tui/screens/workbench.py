@@ -26,6 +26,12 @@ VIEWS: tuple[tuple[str, str, str], ...] = (
     ("quality", "7", "Data quality"),
 )
 
+#: tab titles on a narrow terminal (below :data:`NARROW` columns); a view not listed
+#: keeps its title
+SHORT_TITLES = {"term": "Term", "richcheap": "Rich/cheap", "hedge": "Hedge",
+                "model": "Model", "quality": "Data"}
+NARROW = 100
+
 _VIEW_CLASSES = {"overview": OverviewView, "term": TermView, "smile": SmileView,
                  "richcheap": RichCheapView, "hedge": HedgeView, "model": ModelView,
                  "quality": QualityView}
@@ -59,3 +65,17 @@ class WorkbenchScreen(Screen):
         start = getattr(self.app, "start_compute", None)
         if start is not None:
             start()
+
+    def on_resize(self, event) -> None:
+        self.fit_tab_titles(event.size.width)
+
+    def fit_tab_titles(self, width: int) -> None:
+        """Short tab titles and a compact key bar below :data:`NARROW` columns, so every
+        tab and the main keys show at once."""
+        self.query_one(Footer).show_command_palette = width >= NARROW
+        tabs = self.query_one("#views", TabbedContent)
+        for view_id, key, title in VIEWS:
+            shown = SHORT_TITLES.get(view_id, title) if width < NARROW else title
+            tab = tabs.get_tab(view_id)
+            if str(tab.label) != f"{key} {shown}":
+                tab.label = f"{key} {shown}"

@@ -6,20 +6,21 @@ simulation settings as ``optbench hedge`` (so the two agree for the same inputs)
 """
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 from rich.table import Table
 from rich.text import Text
 from textual import on, work
 from textual.app import ComposeResult
-from textual.containers import Horizontal, VerticalScroll
+from textual.containers import ScrollableContainer, VerticalScroll
 from textual.message import Message
 from textual.widgets import Input, Label, Select, Static
 from textual.worker import get_current_worker
 
+from optbench import inputs
 from optbench.errors import InputError
 from optbench.tui import fmt
+from optbench.tui.prefs import PlannerState
 from optbench.tui.views import hedge_portfolio as hp
 from optbench.tui.views.base import Deferred
 
@@ -27,31 +28,40 @@ STRUCTURES = (("protective put", "put"), ("put spread", "put_spread"),
               ("collar (sell a call)", "collar"))
 
 
-def parse_number(name: str, text: str) -> float:
-    """'10,000,000', '10m', '2.5k', '1.2' -> float; otherwise a one-line InputError."""
-    t = text.strip().replace(",", "").replace("_", "").replace(" ", "").lower()
-    if not t:
-        raise InputError(name, "empty: give a number")
-    scale = 1.0
-    for suffix, factor in (("bn", 1e9), ("b", 1e9), ("m", 1e6), ("k", 1e3)):
-        if t.endswith(suffix):
-            t, scale = t[: -len(suffix)], factor
-            break
-    try:
-        value = float(t) * scale
-    except ValueError:
-        raise InputError(name, f"not a number: {text.strip()!r}") from None
-    if not math.isfinite(value):
-        raise InputError(name, f"not a finite number: {text.strip()!r}")
-    return value
+#: the planner's fields: widget id -> the label the user sees (messages name it)
+FIELDS = {"#hedge-portfolio": "Portfolio value", "#hedge-beta": "Beta to the underlying",
+          "#hedge-floor": "Floor, % of spot", "#hedge-lower": "Put spread: sold put, % of spot",
+          "#hedge-call": "Collar: sold call strike"}
+
+#: the hedge request's argument names -> the planner's labels
+_FLAG_LABELS = {"--portfolio": FIELDS["#hedge-portfolio"], "--beta": FIELDS["#hedge-beta"],
+                "--floor": FIELDS["#hedge-floor"], "--lower-floor": FIELDS["#hedge-lower"],
+                "--call-strike": FIELDS["#hedge-call"], "--expiry": "Expiry",
+                "--structure": "Structure"}
 
 
-def parse_fraction(name: str, text: str) -> float:
-    """A fraction of spot given as '90', '90%' or '0.90' -> 0.90."""
-    t = text.strip()
-    percent = t.endswith("%")
-    value = parse_number(name, t.rstrip("%"))
-    return value / 100.0 if (percent or value > 1.5) else value
+def field_message(error: str) -> str:
+    """A core message that names a command-line argument, with the planner's label."""
+    for flag, label in _FLAG_LABELS.items():
+        if error.startswith(f"{flag}:"):
+            return label + error[len(flag):]
+    return error
+
+
+def expiry_options(comparison) -> list[tuple[str, str]]:
+    """Every listed expiry, labelled with its date and calendar days: '2027-02-19 (84d)'."""
+    return [(f"{fmt.date(r.expiry)} ({r.calendar_days}d)", r.expiry.isoformat())
+            for r in comparison.expiries]
+
+
+def nearest_expiry(comparison, days: int) -> int:
+    """Index of the expiry nearest ``days`` calendar days, as the hedge picks it."""
+    import numpy as np
+
+    from optbench.analysis.hedge import nearest_index
+    if not comparison.expiries:
+        return 0
+    return nearest_index(np.array([r.calendar_days for r in comparison.expiries], float), days)
 
 
 @dataclass(frozen=True)
@@ -65,6 +75,19 @@ class PlannerInputs:
     structure: str
     lower_floor: float | None
     call_strike: float | None
+    #: the user chose the expiry (else it is the one nearest the default days)
+    expiry_picked: bool = False
+
+    def state(self, calendar_days: int) -> PlannerState:
+        """What to save and what the overview's headline follows: the expiry only when
+        the user picked it."""
+        default = PlannerState()
+        picked = self.expiry_picked and self.expiry is not None
+        return PlannerState(portfolio_value=self.portfolio_value, beta=self.beta,
+                            floor=self.floor, structure=self.structure,
+                            lower_floor=self.lower_floor, call_strike=self.call_strike,
+                            expiry=self.expiry if picked else None,
+                            days=int(calendar_days) if picked else default.days)
 
     def kwargs(self) -> dict:
         out = {"portfolio_value": self.portfolio_value, "beta": self.beta,
@@ -83,8 +106,7 @@ def summary_table(est) -> Table:
     t.add_column("what", style="bold", no_wrap=True)
     t.add_column("value", justify="right", no_wrap=True)
     t.add_column("note", style="dim")
-    strikes = " / ".join(f"{k:g}" for k in est.strikes)
-    t.add_row("Structure", est.structure.replace("_", " "), f"strikes {strikes}, {fmt.date(est.expiry)} "
+    t.add_row("Structure", est.structure_name, f"{est.strike_legs}, {fmt.date(est.expiry)} "
               f"({est.calendar_days} days)")
     t.add_row("Contracts", f"{est.contracts:,}", f"× {est.multiplier:g} on spot {fmt.num(est.spot)}")
     t.add_row("Premium paid", fmt.money(est.premium_paid), "ask for bought, bid for sold legs")
@@ -127,14 +149,20 @@ def scenario_table(est) -> Table:
     return t
 
 
-class HedgeView(Deferred, Horizontal):
-    """Form on the left, estimate on the right."""
+class HedgeView(Deferred, ScrollableContainer):
+    """Form on the left, estimate on the right (stacked on a narrow terminal)."""
 
     class Ready(Message):
-        def __init__(self, estimate, inputs: PlannerInputs, portfolio=None) -> None:
+        """An estimate for the planner's inputs (the app saves them and the overview's
+        headline follows them), with the portfolio's sections when a holdings file or
+        the menu is in use."""
+
+        def __init__(self, estimate, inputs: PlannerInputs, comparison=None,
+                     portfolio=None) -> None:
             super().__init__()
             self.estimate = estimate
             self.inputs = inputs
+            self.comparison = comparison
             self.portfolio = portfolio
 
     class Failed(Message):
@@ -147,25 +175,31 @@ class HedgeView(Deferred, Horizontal):
         self._comparison = None
         self.estimate = None
         self._timer = None
+        #: None until the form is built; then whether the user chose the expiry
+        self._expiry_picked: bool | None = None
 
     def compose(self) -> ComposeResult:
+        p = getattr(self.app, "planner", None) or PlannerState()
+        self._expiry_picked = p.expiry is not None
         with VerticalScroll(id="hedge-form", can_focus=False):
             yield Label("Portfolio value")
-            yield Input("10,000,000", id="hedge-portfolio", compact=True)
+            yield Input(f"{p.portfolio_value:,.0f}", id="hedge-portfolio", compact=True)
             yield Label("Beta to the underlying")
-            yield Input("1.0", id="hedge-beta", compact=True)
+            yield Input(f"{p.beta:g}", id="hedge-beta", compact=True)
             yield Label("Floor, % of spot (put strike)")
-            yield Input("90", id="hedge-floor", compact=True)
+            yield Input(f"{p.floor * 100:g}", id="hedge-floor", compact=True)
             yield Label("Expiry")
-            yield Select([], id="hedge-expiry", allow_blank=True, prompt="nearest 3 months",
+            yield Select([], id="hedge-expiry", allow_blank=True, prompt="expiry",
                          compact=True)
             yield Label("Structure")
-            yield Select(STRUCTURES, value="put", allow_blank=False, id="hedge-structure",
-                         compact=True)
+            yield Select(STRUCTURES, value=p.structure, allow_blank=False,
+                         id="hedge-structure", compact=True)
             yield Label("Put spread: sold put, % of spot")
-            yield Input("", placeholder="floor − 10", id="hedge-lower", compact=True)
+            yield Input("" if p.lower_floor is None else f"{p.lower_floor * 100:g}",
+                        placeholder="floor − 10", id="hedge-lower", compact=True)
             yield Label("Collar: sold call strike")
-            yield Input("", placeholder="zero-cost call", id="hedge-call", compact=True)
+            yield Input("" if p.call_strike is None else f"{p.call_strike:g}",
+                        placeholder="zero-cost call", id="hedge-call", compact=True)
             yield Label("Portfolio (beta from history)")
             yield Select(hp.SOURCES, value="typed", allow_blank=False, id="hedge-source",
                          compact=True)
@@ -187,12 +221,16 @@ class HedgeView(Deferred, Horizontal):
         self._comparison = comparison
         select = self.query_one("#hedge-expiry", Select)
         keep = select.value if isinstance(select.value, str) else None
-        options = [(f"{fmt.date(r.expiry)} ({fmt.tenor(r.calendar_days)})", r.expiry.isoformat())
-                   for r in comparison.expiries]
+        options = expiry_options(comparison)
+        values = [v for _, v in options]
         with self.prevent(Select.Changed):
             select.set_options(options)
-            if keep in [v for _, v in options]:
+            if keep in values:
                 select.value = keep
+            elif values:  # the saved expiry, else the one nearest the saved days
+                p = getattr(self.app, "planner", None) or PlannerState()
+                select.value = (p.expiry if p.expiry in values
+                                else values[nearest_expiry(comparison, p.days)])
         self.recalculate(now=True)
 
     def read_form(self) -> PlannerInputs:
@@ -200,21 +238,24 @@ class HedgeView(Deferred, Horizontal):
             return self.query_one(wid, Input).value
 
         expiry = self.query_one("#hedge-expiry", Select).value
-        lower = text("#hedge-lower").strip()
-        call = text("#hedge-call").strip()
+        lower = text("#hedge-lower")
+        call = text("#hedge-call")
         return PlannerInputs(
-            portfolio_value=parse_number("portfolio value", text("#hedge-portfolio")),
-            beta=parse_number("beta", text("#hedge-beta")),
-            floor=parse_fraction("floor", text("#hedge-floor")),
+            portfolio_value=inputs.money(text("#hedge-portfolio"), FIELDS["#hedge-portfolio"]),
+            beta=inputs.positive(text("#hedge-beta"), FIELDS["#hedge-beta"]),
+            floor=inputs.fraction(text("#hedge-floor"), FIELDS["#hedge-floor"]),
             expiry=expiry if isinstance(expiry, str) else None,
             structure=str(self.query_one("#hedge-structure", Select).value),
-            lower_floor=parse_fraction("sold put", lower) if lower else None,
-            call_strike=parse_number("call strike", call) if call else None)
+            lower_floor=inputs.optional(inputs.fraction, lower, FIELDS["#hedge-lower"]),
+            call_strike=inputs.optional(inputs.positive, call, FIELDS["#hedge-call"]),
+            expiry_picked=bool(self._expiry_picked))
 
     @on(Input.Changed)
     @on(Select.Changed)
     def _edited(self, event) -> None:
         event.stop()
+        if isinstance(event, Select.Changed) and event.select.id == "hedge-expiry":
+            self._expiry_picked = True
         self.recalculate()
 
     def recalculate(self, now: bool = False) -> None:
@@ -262,10 +303,30 @@ class HedgeView(Deferred, Horizontal):
             estimate = ph.estimate
         except InputError as err:
             if not worker.is_cancelled:
-                self.post_message(self.Failed(str(err)))
+                self.post_message(self.Failed(field_message(str(err))))
             return
         if not worker.is_cancelled:
-            self.post_message(self.Ready(estimate, inputs, ph))
+            self.post_message(self.Ready(estimate, inputs, comparison, ph))
+
+    def fill(self, p: PlannerState) -> None:
+        """Put ``p`` into the form (back to defaults) and price it."""
+        self._expiry_picked = p.expiry is not None
+        with self.prevent(Input.Changed, Select.Changed):
+            self.query_one("#hedge-portfolio", Input).value = f"{p.portfolio_value:,.0f}"
+            self.query_one("#hedge-beta", Input).value = f"{p.beta:g}"
+            self.query_one("#hedge-floor", Input).value = f"{p.floor * 100:g}"
+            self.query_one("#hedge-structure", Select).value = p.structure
+            self.query_one("#hedge-lower", Input).value = (
+                "" if p.lower_floor is None else f"{p.lower_floor * 100:g}")
+            self.query_one("#hedge-call", Input).value = (
+                "" if p.call_strike is None else f"{p.call_strike:g}")
+            if self._comparison is not None:
+                values = [v for _, v in expiry_options(self._comparison)]
+                if values:
+                    self.query_one("#hedge-expiry", Select).value = (
+                        p.expiry if p.expiry in values
+                        else values[nearest_expiry(self._comparison, p.days)])
+        self.recalculate(now=True)
 
     @on(Ready)
     def _ready(self, message: Ready) -> None:

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 from rich.table import Table
 from textual.app import ComposeResult
-from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.containers import ScrollableContainer, Vertical, VerticalScroll
 from textual.widgets import Static
 
 from optbench.tui import fmt
@@ -23,9 +23,10 @@ def params_table(model) -> Table:
         se = (model.std_errors or {}).get(name)
         t.add_row(name, f"{value:.4g}", "–" if se is None else f"{se:.2g}")
     t.add_row("log-likelihood", fmt.num(model.loglik, 1), "")
-    t.add_row("AIC / BIC", f"{fmt.num(model.aic, 1)} / {fmt.num(model.bic, 1)}", "")
+    t.add_row("AIC", fmt.num(model.aic, 1), "")
+    t.add_row("BIC", fmt.num(model.bic, 1), "")
     t.add_row("persistence", fmt.num(model.persistence, 4), "")
-    t.add_row("half-life, trading days", fmt.num(model.half_life_days, 1), "")
+    t.add_row("half-life, trading d", fmt.num(model.half_life_days, 1), "")
     t.add_row("long-run vol %", fmt.pct(model.long_run_vol), "")
     t.add_row("daily returns used", f"{model.n_obs:,}", "")
     return t
@@ -113,7 +114,9 @@ def price_plot(comparison) -> PlotSpec:
                     y_format="{:,.0f}")
 
 
-class ModelView(Deferred, Horizontal):
+class ModelView(Deferred, ScrollableContainer):
+    """Tables on the left, charts on the right (stacked on a narrow terminal)."""
+
     def compose(self) -> ComposeResult:
         with VerticalScroll(id="model-left"):
             yield Static("", id="model-params")

@@ -12,19 +12,20 @@ from optbench.tui.views.base import Deferred
 
 
 def headline_text(comparison, estimate) -> Text:
-    """'3-month 90 % protection costs 2.1 % of the portfolio ...' from the results."""
+    """'put 4700 nearest 91 days costs 0.95 % of the portfolio ...' from the results;
+    the protection is the hedge planner's (its inputs are named at the end)."""
     text = Text()
     if estimate is None:
-        text.append("No headline protection: the chain has no put near 90 % of spot "
-                    "around three months.", style="bold")
+        text.append("No headline protection: the chain has no put near the planner's floor "
+                    "around its expiry (see Hedge planner, key 5).", style="bold")
         return text
-    tenor = fmt.tenor(estimate.calendar_days)
-    floor = estimate.request.floor
-    text.append(f"{tenor} {floor:.0%} protection ", style="bold")
-    text.append(f"(put {estimate.strike:g}, {fmt.date(estimate.expiry)}) costs ")
+    req = estimate.request
+    text.append(f"{estimate.structure_name.capitalize()} ({estimate.strike_legs}), "
+                f"{fmt.date(estimate.expiry)} ({estimate.calendar_days}d), ", style="bold")
+    text.append("costs ")
     text.append(f"{fmt.pct_sign(estimate.cost_pct, 2)}", style="bold")
     text.append(" of the portfolio at the ask ")
-    text.append(f"({fmt.money(estimate.premium_paid)} on {fmt.money(estimate.request.portfolio_value)}); ")
+    text.append(f"({fmt.money(estimate.premium_paid)} on {fmt.money(req.portfolio_value)}); ")
     text.append("the forecast vol values it at ")
     text.append(fmt.money(estimate.premium_at_forecast), style="bold")
     text.append(" and the model expects it to pay back ")
@@ -33,13 +34,10 @@ def headline_text(comparison, estimate) -> Text:
                 "expected payoff.")
     if estimate.legs:
         leg = estimate.legs[0]
-        text.append(f" The put is quoted at {fmt.pct(leg.iv_mid)}% implied vol (mid) against "
-                    f"a forecast of {fmt.pct(leg.forecast_vol)}%.")
+        text.append(f" The bought put is quoted at {fmt.pct(leg.iv_mid)}% implied vol (mid) "
+                    f"against a forecast of {fmt.pct(leg.forecast_vol)}%.")
     text.append("\n")
-    row = None
-    for r in comparison.expiries:
-        if r.expiry == estimate.expiry:
-            row = r
+    row = next((r for r in comparison.expiries if r.expiry == estimate.expiry), None)
     if row is not None:
         text.append(f"At {fmt.date(row.expiry)} the market charges ")
         text.append(f"{fmt.pct(row.atm_iv)}%", style="bold")
@@ -48,18 +46,21 @@ def headline_text(comparison, estimate) -> Text:
         text.append(f" (band {fmt.pct(row.forecast_low)}–{fmt.pct(row.forecast_high)}): ")
         text.append_text(fmt.verdict(row.verdict))
         text.append(f", {fmt.pct(row.iv_minus_forecast, signed=True)} vol points.")
+    text.append(f"\nThe hedge planner's inputs (key 5): portfolio {fmt.money(req.portfolio_value)}, "
+                f"beta {req.beta:g}, floor {req.floor:.0%}.", style="dim")
     return text
 
 
 def verdict_table(comparison) -> Table:
-    table = Table(title="Implied against forecast, per expiry", title_justify="left",
-                  expand=True, header_style="bold")
-    for col, just in (("Expiry", "left"), ("Tenor", "right"), ("ATM IV %", "right"),
-                      ("Forecast %", "right"), ("Band %", "right"), ("IV − fc, pts", "right"),
+    table = Table(title="Implied against forecast, per expiry (vols in %, IV−fc in vol "
+                        "points; puts: ask against the model-expected payoff)",
+                  title_justify="left", expand=True, header_style="bold")
+    for col, just in (("Expiry", "left"), ("Days", "right"), ("ATM IV", "right"),
+                      ("Fcst", "right"), ("Band", "right"), ("IV−fc", "right"),
                       ("Verdict", "left"), ("25Δ put", "left"), ("Floor put", "left")):
         table.add_column(col, justify=just, no_wrap=True)
     for r in comparison.expiries:
-        table.add_row(fmt.date(r.expiry), fmt.tenor(r.calendar_days), fmt.pct(r.atm_iv),
+        table.add_row(fmt.date(r.expiry), str(r.calendar_days), fmt.pct(r.atm_iv),
                       fmt.pct(r.forecast_vol),
                       f"{fmt.pct(r.forecast_low)}–{fmt.pct(r.forecast_high)}",
                       fmt.pct(r.iv_minus_forecast, signed=True), fmt.verdict(r.verdict),
@@ -115,7 +116,7 @@ class OverviewView(Deferred, VerticalScroll):
     def draw(self, comparison, estimate, pending: bool = False) -> None:
         """``pending``: the headline hedge is still being priced."""
         self.query_one("#ov-headline", Static).update(
-            Text("Pricing the headline protection (a 3-month put at 90 % of spot) …")
+            Text("Pricing the headline protection (the hedge planner's inputs) …")
             if pending else headline_text(comparison, estimate))
         self.query_one("#ov-verdicts", Static).update(verdict_table(comparison))
         self.query_one("#ov-state", Static).update(state_text(comparison))

@@ -6,7 +6,7 @@ import math
 from rich.text import Text
 from textual import on
 from textual.app import ComposeResult
-from textual.containers import Vertical
+from textual.containers import VerticalScroll
 from textual.widgets import DataTable, Static
 from textual.widgets.data_table import RowDoesNotExist
 
@@ -14,18 +14,26 @@ from optbench.tui import fmt
 from optbench.tui.widgets.table import SortableTable
 from optbench.tui.views.base import Deferred
 
-EXPIRY_COLUMNS = (("expiry", "Expiry"), ("tenor", "Tenor"), ("verdict", "Verdict"),
-                  ("atm", "ATM IV %"), ("fc", "Forecast %"), ("band", "Band %"),
-                  ("diff", "IV−fc pts"), ("ratio", "IV/fc"), ("vrp", "Var prem"),
+EXPIRY_COLUMNS = (("expiry", "Expiry"), ("days", "Days"), ("verdict", "Verdict"),
+                  ("atm", "ATM IV"), ("fc", "Fcst"), ("band", "Band"),
+                  ("diff", "IV−fc"), ("ratio", "IV/fc"), ("vrp", "Var prem"),
                   ("rr", "25Δ RR"), ("prob", "P(RV>IV) %"), ("n", "Quotes"),
                   ("p25", "25Δ put"), ("p25e", "25Δ ask · E[payoff]"),
                   ("pfl", "Floor put"), ("pfle", "Floor ask · E[payoff]"))
 
 STRIKE_COLUMNS = (("type", "Type"), ("strike", "Strike"), ("money", "K/F"),
-                  ("edgev", "Edge vol pts"), ("edge", "Edge/contract"), ("bid", "Bid"),
+                  ("edgev", "Edge vol pts"), ("edgeg", "Edge/vega"), ("edge", "Edge/contract"),
+                  ("bid", "Bid"),
                   ("ask", "Ask"), ("ivb", "Bid IV"), ("ivm", "Mid IV"), ("iva", "Ask IV"),
                   ("fc", "Fcst"), ("pf", "Value at fc"), ("delta", "Delta"),
                   ("vega", "Vega/pt"), ("line", "Line"))
+
+
+#: what the three edge columns measure, and why two of them differ
+EDGE_NOTE = ("Edge vol pts = mid implied vol − forecast vol, exactly. Edge/vega = (mid − "
+             "value at forecast) ÷ vega per vol point: the same gap to first order; the two "
+             "part far from the money, where vega changes with the vol. Edge/contract = "
+             "(mid − value at forecast) × multiplier, in money. ▲ market above the forecast.")
 
 
 def _edge_mark(points: float) -> Text:
@@ -49,7 +57,7 @@ def expiry_rows(comparison):
                     r.prob_realized_above_iv, r.n_quotes,
                     _VERDICT_ORDER.get(r.put25_verdict, 9), r.put25_expected_payoff,
                     _VERDICT_ORDER.get(r.floor_put_verdict, 9), r.floor_put_expected_payoff))
-        shown.append((fmt.date(r.expiry), fmt.tenor(r.calendar_days), fmt.verdict(r.verdict),
+        shown.append((fmt.date(r.expiry), str(r.calendar_days), fmt.verdict(r.verdict),
                       fmt.pct(r.atm_iv), fmt.pct(r.forecast_vol),
                       f"{fmt.pct(r.forecast_low)}–{fmt.pct(r.forecast_high)}",
                       fmt.pct(r.iv_minus_forecast, signed=True), fmt.num(r.iv_forecast_ratio),
@@ -65,7 +73,8 @@ def expiry_rows(comparison):
 def strike_rows(table):
     """Raw values of every row (for sorting) and a function giving a row's cells."""
     cols = {c: table[c].to_numpy() for c in table.columns}
-    order = ("type", "strike", "moneyness", "edge_vol_points", "edge_per_contract", "bid",
+    order = ("type", "strike", "moneyness", "edge_vol_points", "edge_per_vega",
+             "edge_per_contract", "bid",
              "ask", "iv_bid", "iv_mid", "iv_ask", "forecast_vol", "price_at_forecast",
              "delta", "vega_per_vol_point", "line")
     numeric = [cols[c].astype(float) if c not in ("type", "line") else cols[c] for c in order]
@@ -74,7 +83,7 @@ def strike_rows(table):
     def shown(i: int) -> tuple:
         g = {c: cols[c][i] for c in order}
         return (str(g["type"]), fmt.num(g["strike"], 2), fmt.num(g["moneyness"], 3),
-                _edge_mark(float(g["edge_vol_points"])),
+                _edge_mark(float(g["edge_vol_points"])), fmt.num(g["edge_per_vega"], 2, True),
                 fmt.money(g["edge_per_contract"], True), fmt.num(g["bid"]),
                 fmt.num(g["ask"]), fmt.pct(g["iv_bid"]), fmt.pct(g["iv_mid"]),
                 fmt.pct(g["iv_ask"]), fmt.pct(g["forecast_vol"]),
@@ -83,7 +92,7 @@ def strike_rows(table):
     return raw, shown
 
 
-class RichCheapView(Deferred, Vertical):
+class RichCheapView(Deferred, VerticalScroll):
     """Expiries on top (move the cursor to pick one), that expiry's strikes below."""
 
     def __init__(self, **kwargs) -> None:
@@ -95,6 +104,7 @@ class RichCheapView(Deferred, Vertical):
         yield Static("", id="rc-rule", classes="note")
         yield SortableTable(id="rc-expiries")
         yield Static("", id="rc-strike-title", classes="section-title")
+        yield Static(EDGE_NOTE, id="rc-edge-note", classes="note")
         yield SortableTable(id="rc-strikes")
 
     def draw(self, comparison) -> None:
@@ -103,11 +113,10 @@ class RichCheapView(Deferred, Vertical):
         self.query_one("#rc-rule", Static).update(
             "▲ rich / = fair / ▼ cheap: ATM implied vol above / inside / below the forecast "
             f"band ({lo:.0%}–{hi:.0%} quantiles of the forecast over the model's parameter "
-            "uncertainty).  Puts (25Δ, floor "
+            "uncertainty). Puts (25Δ, floor "
             f"{comparison.floor:.0%}): the ask above / inside / below the band of the "
-            "model-expected payoff (▲ = expensive protection).  Edge ▲: market mid above the "
-            "option's value at the forecast vol.  s sorts by the cursor's column; Enter shows "
-            "an expiry's strikes.")
+            "model-expected payoff (▲ = expensive protection). Vols in %. s sorts by a "
+            "column; Enter shows an expiry's strikes.")
         raw, shown = expiry_rows(comparison)
         self.query_one("#rc-expiries", SortableTable).set_rows(
             EXPIRY_COLUMNS, raw, shown, keys=[r[0] for r in raw])
@@ -122,12 +131,12 @@ class RichCheapView(Deferred, Vertical):
         row = self._comparison.expiry_row(iso)
         table = self._comparison.strike_frame(iso)
         self.query_one("#rc-strike-title", Static).update(
-            f"Strikes for {iso} ({fmt.tenor(row.calendar_days)}): {len(table)} quotes, "
+            f"Strikes for {iso} ({row.calendar_days}d): {len(table)} quotes, "
             f"forecast {fmt.pct(row.forecast_vol)}%, multiplier "
             f"{fmt.num(self._comparison.multiplier, 0)}")
         raw, shown = strike_rows(table)
         self.query_one("#rc-strikes", SortableTable).set_rows(
-            STRIKE_COLUMNS, raw, shown, keys=[f"{r[0]}{r[1]}-{r[14]}" for r in raw])
+            STRIKE_COLUMNS, raw, shown, keys=[f"{r[0]}{r[1]}-{r[-1]}" for r in raw])
 
     def step_expiry(self, step: int) -> None:
         """Show the strikes of the previous / next expiry (and move the cursor there)."""

@@ -11,6 +11,7 @@ from textual.widgets import Label, Select, Static
 from optbench.tui import fmt
 from optbench.tui.widgets.plot import CellPlot, PlotSpec, Series
 from optbench.tui.views.base import Deferred
+from optbench.tui.views.hedge import expiry_options
 
 def fitted_curve(row) -> tuple[np.ndarray, np.ndarray] | None:
     """The expiry's fitted smile as the comparison computed it: (strikes, vols)."""
@@ -56,7 +57,7 @@ def smile_plot(comparison, row) -> PlotSpec:
     # draw the band first so everything sits on top of it
     series = [series[-1]] + series[:-1]
     return PlotSpec(
-        title=(f"Smile {fmt.date(row.expiry)} ({fmt.tenor(row.calendar_days)}), implied vol % "
+        title=(f"Smile {fmt.date(row.expiry)} ({row.calendar_days}d), implied vol % "
                f"by strike, out-of-the-money quotes; forward {fmt.num(row.forward)}"),
         series=tuple(series), x_format="{:.0f}",
         extra_legend=())
@@ -77,8 +78,7 @@ class SmileView(Deferred, Vertical):
     def draw(self, comparison) -> None:
         self._comparison = comparison
         select = self.query_one("#smile-expiry", Select)
-        options = [(f"{fmt.date(r.expiry)}  {fmt.tenor(r.calendar_days)}", r.expiry.isoformat())
-                   for r in comparison.expiries]
+        options = expiry_options(comparison)
         keep = select.value if isinstance(select.value, str) else None
         select.set_options(options)
         values = [v for _, v in options]

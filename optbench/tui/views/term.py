@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 from textual.app import ComposeResult
-from textual.containers import Vertical
+from textual.containers import VerticalScroll
+from textual.widgets import Static
 
 from optbench.tui import fmt
 from optbench.tui.widgets.plot import CellPlot, PlotSpec, Series
@@ -39,6 +40,7 @@ def term_plot(comparison) -> PlotSpec:
             Series("ATM implied", days, col("atm_iv"), color="bright_red"),
             Series("ATM implied", days, col("atm_iv"), kind="points", color="bright_red",
                    marker="●"),
+
             Series("model-free implied", days, col("model_free_iv"), kind="points",
                    color="magenta", marker="◆"),
             Series("realized (trailing, same length)", days, col("realized_vol"),
@@ -64,9 +66,11 @@ def term_rows(comparison):
     return raw, shown
 
 
-class TermView(Deferred, Vertical):
+class TermView(Deferred, VerticalScroll):
     def compose(self) -> ComposeResult:
         yield CellPlot(id="term-plot")
+        yield Static("Table: vols in %, IV−fc in vol points, MF = model-free, Tr.days = "
+                     "trading days", id="term-caption", classes="note")
         yield SortableTable(id="term-table")
 
     def draw(self, comparison) -> None:

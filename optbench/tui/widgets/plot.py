@@ -109,13 +109,14 @@ def render_plot(spec: PlotSpec, width: int, height: int) -> Text:
     xr = _finite_range([s.x for s in series], pad_share=0.0)
     yr = spec.y_range or _finite_range([s.y for s in series] + [s.y2 for s in series if s.y2 is not None])
     text = Text(no_wrap=True, overflow="crop")
-    if spec.title:
-        text.append(spec.title[:width] + "\n", style="bold")
+    title = wrap_lines(spec.title, width) if spec.title else []
+    for line in title:
+        text.append(line + "\n", style="bold")
     if xr is None or yr is None:
         text.append(spec.empty_text, style="dim italic")
         return text
-    legend_rows = 1
-    plot_h = height - (1 if spec.title else 0) - legend_rows - 2  # x axis line and labels
+    legend = legend_lines(series, spec.extra_legend, width)
+    plot_h = height - len(title) - len(legend) - 2  # x axis line and labels
     if plot_h < 2:
         plot_h = 2
     y_labels = [_clean(spec.y_format.format(v)) for v in np.linspace(yr[1], yr[0], plot_h)]
@@ -199,15 +200,39 @@ def render_plot(spec: PlotSpec, width: int, height: int) -> Text:
         if all(ch == " " for ch in axis[max(start - 1, 0):start + len(lab) + 1]):
             axis[start:start + len(lab)] = list(lab)
     text.append("".join(axis).rstrip() + "\n", style=axis_style)
-    legend = Text("  ")
+    for i, line in enumerate(legend):
+        text.append_text(line)
+        if i < len(legend) - 1:
+            text.append("\n")
+    return text
+
+
+def wrap_lines(text: str, width: int) -> list[str]:
+    """``text`` broken at spaces into lines of at most ``width`` cells."""
+    import textwrap
+    return textwrap.wrap(text, width=max(width, 10), break_long_words=True) or [""]
+
+
+def legend_lines(series, extra: tuple[tuple[str, str], ...], width: int) -> list[Text]:
+    """The legend's entries packed into as many lines as ``width`` needs; a label drawn
+    twice (a line and its points) is listed once with both marks."""
+    entries: dict[str, Text] = {}
     for s in series:
         mark = {"band": "█", "points": s.marker}.get(s.kind, "⠒")
-        legend.append(mark, style=s.color)
-        legend.append(f" {s.label}   ")
-    for mark, label in spec.extra_legend:
-        legend.append(f"{mark} {label}   ", style="dim")
-    text.append_text(legend)
-    return text
+        entry = entries.setdefault(s.label, Text())
+        entry.append(mark, style=s.color)
+    items = [entry + Text(f" {label}") for label, entry in entries.items()]
+    items += [Text(f"{mark} {label}", style="dim") for mark, label in extra]
+    lines: list[Text] = []
+    line = Text("  ")
+    for item in items:
+        if line.cell_len > 2 and line.cell_len + item.cell_len > width:
+            lines.append(line)
+            line = Text("  ")
+        line.append_text(item)
+        line.append("   ")
+    lines.append(line)
+    return lines
 
 
 class CellPlot(Widget):
@@ -239,12 +264,13 @@ def bar_chart(edges: np.ndarray, counts: np.ndarray, width: int, height: int, *,
     """Vertical bars of ``counts`` over bins ``edges``; ``expected`` as a mark per bin."""
     edges, counts = np.asarray(edges, float), np.asarray(counts, float)
     text = Text(no_wrap=True, overflow="crop")
-    if title:
-        text.append(title[:width] + "\n", style="bold")
+    title_lines = wrap_lines(title, width) if title else []
+    for line in title_lines:
+        text.append(line + "\n", style="bold")
     if counts.size == 0:
         text.append("nothing to plot yet", style="dim italic")
         return text
-    rows = max(height - (1 if title else 0) - 3, 3)
+    rows = max(height - len(title_lines) - 3, 3)
     top = float(max(counts.max(), 0 if expected is None else np.nanmax(expected), 1))
     margin = len(f"{top:.0f}") + 1
     bar_w = max(1, min(3, (width - margin - 1) // counts.size))

@@ -36,7 +36,8 @@ class SortableTable(DataTable):
     ]
 
     DEFAULT_CSS = """
-    SortableTable { height: 1fr; border-top: hkey $panel-lighten-2; }
+    SortableTable { height: 1fr; border-top: hkey $panel-lighten-2;
+                    scrollbar-size-horizontal: 0; }
     """
 
     def __init__(self, **kwargs) -> None:
