@@ -380,9 +380,37 @@ class _Problem:
                  "jac": lambda th: jac}]
 
     def starting_points(self, var):
+        return [x for _, x in self.regime_starts(var)]
+
+    def regime_starts(self, var):
+        """Starting points with their regime label (see
+        :meth:`optbench.volatility.specs.VolSpec.regime_starts`)."""
         mu0 = [float(np.mean(self.y))] if self.has_mu else []
         nu0 = self.dist.starting_values()
-        return [np.array(mu0 + v + nu0) for v in self.spec.starting_values(var)]
+        return [(r, np.array(mu0 + v + nu0)) for r, v in self.spec.regime_starts(var)]
+
+    def coordinate_map(self) -> np.ndarray:
+        """``theta = M u`` for the whole parameter vector (mean and distribution
+        coordinates unchanged; see :meth:`VolSpec.coordinate_map`)."""
+        m = np.eye(self.k)
+        i, nv = self.i_vol, self.n_vol
+        m[i:i + nv, i:i + nv] = self.spec.coordinate_map()
+        return m
+
+    def internal_bounds(self, var):
+        """Bounds of the optimiser's coordinates ``u``."""
+        sd = math.sqrt(var)
+        b = []
+        if self.has_mu:
+            m = float(np.mean(self.y))
+            b.append((m - 10 * sd, m + 10 * sd))
+        return b + self.spec.internal_bounds(var) + self.dist.bounds()
+
+    def scores(self, theta):
+        """Per-day log-likelihood and analytic scores (n, k) at ``theta``."""
+        if self.spec.linear:
+            return self.score_obs(theta)
+        return self.egarch_score_obs(theta)
 
     # robust covariance --------------------------------------------------------------
     def scores_and_hessian(self, theta):
@@ -482,7 +510,8 @@ class GarchFit:
         ``-2 LL + 2k`` and ``-2 LL + k ln n``.
     n_obs : int
     converged : bool
-        The optimiser reported success and the estimate is stationary.
+        The estimate is stationary and passed the first-order optimality check
+        recorded in ``optimality``.
     message : str
         The optimiser's message (or why no optimiser ran).
     fallback_reason : str or None
@@ -495,6 +524,12 @@ class GarchFit:
         ``(r_t - mu) / sigma_t``.
     candidates : dict
         For ``model="auto"``: BIC of each candidate (None if it failed).
+    optimality : dict or None
+        What was checked before calling the estimate converged: ``passed``,
+        ``checked`` (the test), ``predicted_gain`` (log-likelihood a Newton step on
+        the free coordinates still promises), ``projected_gradient`` (largest free
+        gradient entry of the log-likelihood, optimiser units), ``tolerance``,
+        ``active_bounds`` (coordinates held at a bound). None when no estimation ran.
     cov : ndarray
         Robust covariance of the parameters in ``param_names`` order (decimal units),
         computed on first use.
@@ -519,6 +554,7 @@ class GarchFit:
     param_names: tuple = ()
     backcast: float = float("nan")
     returns: np.ndarray = field(default=None, repr=False)
+    optimality: dict | None = field(default=None, repr=False)
 
     # -- derived values --------------------------------------------------------------
     @functools.cached_property
@@ -769,7 +805,20 @@ class GarchFit:
             "half_life_days": num(self.half_life_days),
             "long_run_vol": num(self.long_run_vol),
             "candidates": {k: num(v) for k, v in self.candidates.items()},
+            "optimality": _optimality_json(self.optimality),
         }
+
+
+def _optimality_json(opt):
+    if opt is None:
+        return None
+    out = {}
+    for k, v in opt.items():
+        if isinstance(v, float):
+            out[k] = v if math.isfinite(v) else None
+        else:
+            out[k] = v
+    return out
 
 
 # ---------------------------------------------------------------------------------
@@ -791,7 +840,7 @@ def _backcast_scaled(y_s, has_mu, backcast, scale):
 
 def _result(prob: _Problem, theta_s: np.ndarray, y: np.ndarray, scale: float, mean: str,
             converged: bool, message: str, fallback_reason, candidates, with_cov=False,
-            n_free: int | None = None) -> GarchFit:
+            n_free: int | None = None, optimality: dict | None = None) -> GarchFit:
     model = prob.spec.name
     names = tuple(prob.names)
     eps_s, s2_s = prob.variance(theta_s)
@@ -823,61 +872,219 @@ def _result(prob: _Problem, theta_s: np.ndarray, y: np.ndarray, scale: float, me
         fallback_reason=fallback_reason, last_variance=last,
         conditional_vol=np.sqrt(s2), std_resid=(y - mu) / np.sqrt(s2),
         candidates=dict(candidates or {}), covariance_source=cov_source, param_names=names,
-        backcast=prob.backcast / scale ** 2, returns=y)
+        backcast=prob.backcast / scale ** 2, returns=y, optimality=optimality)
 
 
-def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast):
-    """One maximum-likelihood fit. Returns (fit, problem text or None)."""
+#: largest log-likelihood gain still predicted at a point called an optimum: the
+#: score (Lagrange-multiplier) statistic on the free coordinates, halved
+OPTIMALITY_GAIN_TOL = 1e-7
+
+
+def _optimality(prob: _Problem, M: np.ndarray, u: np.ndarray, lo: np.ndarray,
+                hi: np.ndarray) -> dict:
+    """First-order (KKT) check of a bound-constrained maximum of the log-likelihood.
+
+    In the optimiser's coordinates ``u`` (``theta = M u``) with ``G`` the gradient of the
+    total log-likelihood and ``S`` the per-day scores: a coordinate at a bound is
+    *active* when ``G`` points out of the box there (its multiplier has the right
+    sign); on the other, *free*, coordinates the projected gradient must vanish. The
+    check asks the remaining gain that a Newton step on the free coordinates
+    predicts, ``G_f' (S_f' S_f)^{-1} G_f / 2`` (half the score statistic; the outer
+    product of the scores stands in for the information matrix, Berndt, Hall, Hall
+    & Hausman 1974), to be at most :data:`OPTIMALITY_GAIN_TOL` in log-likelihood
+    units, and records the largest free gradient entry beside it.
+    """
+    theta = M @ u
+    with np.errstate(all="ignore"):
+        ll, sc = prob.scores(theta)
+    names = prob.names
+    if ll is None or not np.all(np.isfinite(sc)) or not np.all(np.isfinite(ll)):
+        return {"passed": False, "checked": "scores not finite at the estimate",
+                "predicted_gain": None, "projected_gradient": None,
+                "tolerance": OPTIMALITY_GAIN_TOL, "active_bounds": []}
+    su = sc @ M
+    g = su.sum(axis=0)
+    span = np.maximum(hi - lo, 1e-12)
+    at_lo = u <= lo + 1e-10 * span
+    at_hi = u >= hi - 1e-10 * span
+    active = (at_lo & (g <= 0)) | (at_hi & (g >= 0))
+    free = ~active
+    gf = g[free]
+    gain = 0.0
+    if gf.size:
+        info = su[:, free].T @ su[:, free]
+        w, V = np.linalg.eigh(info)
+        w = np.maximum(w, 1e-12 * max(float(w.max()), 1e-300))
+        c = V.T @ gf
+        gain = 0.5 * float(np.sum(c * c / w))
+    pg = float(np.max(np.abs(gf))) if gf.size else 0.0
+    coord = _coordinate_names(prob)
+    return {"passed": bool(gain <= OPTIMALITY_GAIN_TOL),
+            "checked": "KKT: projected gradient of the log-likelihood on the free "
+                       "coordinates, as the Newton gain it still predicts",
+            "predicted_gain": gain, "projected_gradient": pg,
+            "tolerance": OPTIMALITY_GAIN_TOL,
+            "active_bounds": [coord[i] for i in np.flatnonzero(active)],
+            "coordinates": coord if coord != list(names) else None}
+
+
+def _coordinate_names(prob: _Problem) -> list:
+    names = list(prob.names)
+    if prob.spec.name == "gjr":
+        names[names.index("gamma")] = "alpha+gamma"
+    return names
+
+
+def _egarch_start_from(prob: _Problem, mu: float, s2: np.ndarray, nu) -> np.ndarray | None:
+    """An EGARCH start from another model's variance path (scaled units): least
+    squares of ``h_t = omega + alpha (|z_{t-1}| - sqrt(2/pi)) + gamma z_{t-1}
+    + beta h_{t-1}`` with ``h = ln s2`` and ``z`` the path's standardised residuals."""
+    h = np.log(s2)
+    z = (prob.y - mu) / np.sqrt(s2)
+    X = np.column_stack([np.ones(h.size - 1), np.abs(z[:-1]) - SQRT_2_OVER_PI, z[:-1],
+                         h[:-1]])
+    try:
+        coef = np.linalg.lstsq(X, h[1:], rcond=None)[0]
+    except np.linalg.LinAlgError:
+        return None
+    omega, alpha, gamma, beta = (float(c) for c in coef)
+    if not all(math.isfinite(c) for c in coef):
+        return None
+    beta = min(max(beta, 0.0), 0.995)
+    alpha = min(max(alpha, -0.5), 0.5)
+    gamma = min(max(gamma, -0.5), 0.5)
+    omega = float(np.mean(h[1:] - alpha * X[:, 1] - gamma * X[:, 2] - beta * h[:-1]))
+    vec = ([mu] if prob.has_mu else []) + [omega, alpha, gamma, beta]
+    if nu is not None:
+        vec.append(nu)
+    return np.array(vec)
+
+
+def _nested_start(prob: _Problem, nested: GarchFit | None, scale: float):
+    """The nested model's optimum as a start (scaled units): GARCH's estimate is GJR
+    with ``gamma = 0``; for EGARCH (which does not nest GARCH) a start fitted to
+    GARCH's variance path."""
+    if nested is None or nested.model != "garch" or nested.dist != prob.dist.name:
+        return None
+    p = nested.params
+    mu_s = p.get("mu", 0.0) * scale
+    nu = p.get("nu")
+    if prob.spec.name == "gjr":
+        vec = ([mu_s] if prob.has_mu else []) + [p["omega"] * scale ** 2, p["alpha"], 0.0,
+                                                 p["beta"]]
+        if nu is not None:
+            vec.append(nu)
+        return np.array(vec)
+    if prob.spec.name == "egarch":
+        return _egarch_start_from(prob, mu_s, (nested.conditional_vol * scale) ** 2, nu)
+    return None
+
+
+def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
+              nested: GarchFit | None = None):
+    """One maximum-likelihood fit. Returns (fit, problem text or None).
+
+    Climbs from the best start of each persistence regime and from the nested
+    model's optimum (``nested``, a GARCH fit with the same distribution), keeps the
+    highest stationary optimum, and calls it converged only if it passes the
+    first-order check (:func:`_optimality`); otherwise it restarts from that point
+    and from the remaining starts before reporting why it failed.
+    """
     scale = _scale_of(y)
     y_s = y * scale
     has_mu = mean == "constant"
     bc = _backcast_scaled(y_s, has_mu, backcast, scale)
     prob = _Problem(y_s, model, dist, has_mu, bc)
     var = float(np.var(y_s))
-    starts = prob.starting_points(var)
-    vals = [prob.objective(s) for s in starts]
-    bounds = prob.bounds(var)
+    M = prob.coordinate_map()
+    Minv = np.linalg.inv(M)
+    bounds = prob.internal_bounds(var)
     lo = np.array([b[0] for b in bounds])
     hi = np.array([b[1] for b in bounds])
 
-    def run(x0):
-        x0 = np.clip(x0, lo, hi)
+    def fun_grad(u):
+        f, g = prob.objective_grad(M @ u)
+        return f, M.T @ g
+
+    def feasible(u):
+        return prob.feasible(M @ u)
+
+    cap = prob.max_step()
+
+    def run(u0):
+        u0 = np.clip(u0, lo, hi)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
-            hess0, fg0 = prob.start_curvature(x0)
-            res = minimize_box(prob.objective_grad, x0, lo, hi, feasible=prob.feasible,
-                               hess0=hess0, fg0=fg0, max_step=prob.max_step())
-        theta = np.asarray(res.x, dtype=float)
-        if not res.success:
-            return res, theta, f"{model} did not converge ({res.message})"
-        _, vol, _ = prob.unpack(theta)
+            hess, (f0, g0) = prob.start_curvature(M @ u0)
+            res = minimize_box(fun_grad, u0, lo, hi, feasible=feasible,
+                               hess0=M.T @ hess @ M, fg0=(f0, M.T @ g0), max_step=cap)
+        u = np.asarray(res.x, dtype=float)
+        _, vol, _ = prob.unpack(M @ u)
         pers = prob.spec.persistence(vol)
-        if not pers < 1.0 - STATIONARITY_MARGIN:
-            return res, theta, f"{model} estimate is not stationary (persistence {pers:.6f})"
-        return res, theta, None
+        stationary = pers < 1.0 - STATIONARITY_MARGIN
+        return {"res": res, "u": u, "f": float(res.fun), "pers": pers,
+                "stationary": bool(stationary and math.isfinite(res.fun)), "opt": None}
 
-    order = list(np.argsort(vals))
-    res, theta, problem = run(starts[order[0]])
-    if problem is None and not prob.spec.linear:
-        # EGARCH's likelihood can have several local optima when the dynamics are weak
-        # (persistence far from one): also climb from the best start of the other
-        # persistence regime and keep the higher optimum
-        beta_of = [prob.unpack(x)[1]["beta"] for x in starts]
-        first = beta_of[order[0]]
-        other = [i for i in order[1:] if abs(beta_of[i] - first) > 0.1]
-        if other:
-            r2, t2, p2 = run(starts[other[0]])
-            if p2 is None and r2.fun < res.fun - 1e-12:
-                res, theta = r2, t2
-    if problem is not None:
-        # a boundary or failed solution from the best start: try the other starts and
-        # keep the best stationary, converged one
-        for i in order[1:]:
-            r2, t2, p2 = run(starts[i])
-            if p2 is None and (problem is not None or r2.fun < res.fun):
-                res, theta, problem = r2, t2, None
+    def verified(r):
+        if r["opt"] is None:
+            r["opt"] = _optimality(prob, M, r["u"], lo, hi)
+        return r["opt"]["passed"]
+
+    def better(a, b):   # is run a preferred to run b?
+        if b is None:
+            return True
+        if a["stationary"] != b["stationary"]:
+            return a["stationary"]
+        return a["f"] < b["f"] - 1e-13
+
+    labelled = prob.regime_starts(var)
+    ns = _nested_start(prob, nested, scale)
+    if ns is not None:
+        labelled.insert(0, ("nested", ns))
+    cands = []
+    for label, th in labelled:
+        u0 = np.clip(Minv @ th, lo, hi)
+        if not feasible(u0):
+            continue
+        with np.errstate(all="ignore"):
+            f0 = prob.objective(M @ u0)
+        cands.append((label, f0, u0))
+    first = {}
+    for label, f0, u0 in cands:   # the best start of each regime, the nested start
+        if label not in first or f0 < first[label][0]:
+            first[label] = (f0, u0)
+    order = sorted(first.items(), key=lambda kv: (kv[0] != "nested", kv[1][0]))
+    best = None
+    for _, (_, u0) in order:
+        r = run(u0)
+        if better(r, best):
+            best = r
+    tried = [u0 for _, (_, u0) in order]
+    if best["stationary"] and not verified(best):
+        # stopped short of an optimum: climb again from there with fresh curvature,
+        # then from the other starts, and keep the best verified point
+        more = [best["u"]] + [u0 for _, _, u0 in sorted(cands, key=lambda c: c[1])
+                              if not any(u0 is t for t in tried)][:3]
+        for u0 in more:
+            r = run(u0)
+            if r["stationary"] and (better(r, best) or not verified(best)) and verified(r):
+                best = r
+            if verified(best):
+                break
+    res, u = best["res"], best["u"]
+    theta = M @ u
+    opt = _optimality(prob, M, u, lo, hi) if best["opt"] is None else best["opt"]
+    problem = None
+    if not best["stationary"]:
+        problem = f"{model} estimate is not stationary (persistence {best['pers']:.6f})"
+    elif not opt["passed"]:
+        gain = opt["predicted_gain"]
+        problem = (f"{model} stopped short of an optimum (first-order check: a further "
+                   f"gain of {gain:.2g} in log-likelihood predicted, tolerance "
+                   f"{OPTIMALITY_GAIN_TOL:g}; optimiser: {res.message})"
+                   if gain is not None else f"{model} did not converge ({opt['checked']})")
     fit = _result(prob, theta, y, scale, mean, problem is None, str(res.message),
-                  None, None, with_cov=problem is None)
+                  None, None, with_cov=problem is None, optimality=opt)
     return fit, problem
 
 
@@ -937,10 +1144,26 @@ def fit_garch(returns, model: str = "gjr", dist: str = "t", mean: str = "constan
     _check_choice("model", model, MODELS + ("auto",))
     _check_choice("dist", dist, ("normal", "t"))
     _check_choice("mean", mean, ("constant", "zero"))
+    nested_fit = {}
+
+    def estimate(m):
+        # GARCH first: its optimum starts GJR (which nests it) and EGARCH
+        if m != "garch" and "garch" not in nested_fit:
+            g, gp = _estimate(y, "garch", dist, mean, backcast)
+            nested_fit["garch"] = (g, gp)
+        if m == "garch" and "garch" in nested_fit:
+            return nested_fit["garch"]
+        nest = nested_fit.get("garch")
+        f, prob = _estimate(y, m, dist, mean, backcast,
+                            nested=nest[0] if nest and nest[1] is None else None)
+        if m == "garch":
+            nested_fit["garch"] = (f, prob)
+        return f, prob
+
     if model == "auto":
         fits, bics, problems = {}, {}, []
         for m in MODELS:
-            f, prob = _estimate(y, m, dist, mean, backcast)
+            f, prob = estimate(m)
             if prob is None:
                 fits[m], bics[m] = f, f.bic
             else:
@@ -955,7 +1178,7 @@ def fit_garch(returns, model: str = "gjr", dist: str = "t", mean: str = "constan
     reasons = []
     m = model
     while m != "ewma":
-        f, prob = _estimate(y, m, dist, mean, backcast)
+        f, prob = estimate(m)
         if prob is None:
             if reasons:
                 return _replace(f, fallback_reason="; ".join(reasons)
