@@ -630,13 +630,14 @@ class GarchFit:
             raise InputError("horizon", "must be at least one trading day")
         p = self.params
         if self.model in ("garch", "gjr"):
+            # omega sum_{j<k-1} p^j + p^{k-1} sigma^2_{T+1}: stable up to p = 1 (and
+            # valid beyond, for held non-stationary parameters)
             pers = self.persistence
-            if pers < 1:
-                return fc.linear_forecast_variance(self.last_variance,
-                                                   p["omega"] / (1.0 - pers), pers, horizon)
-            # held non-stationary parameters: omega sum_{j<k-1} p^j + p^{k-1} sigma^2_{T+1}
+            if pers <= 1:
+                return fc.linear_forecast_variance_from_omega(self.last_variance,
+                                                              p["omega"], pers, horizon)
             k = np.arange(horizon)
-            geo = k if pers == 1 else (pers ** k - 1.0) / (pers - 1.0)
+            geo = (pers ** k - 1.0) / (pers - 1.0)
             return p["omega"] * geo + pers ** k * self.last_variance
         if self.model == "egarch":
             return fc.egarch_forecast_variance(self.last_variance, p["omega"], p["alpha"],
@@ -651,10 +652,9 @@ class GarchFit:
         T = np.asarray(trading_days)
         scalar = T.ndim == 0
         T = np.maximum(np.atleast_1d(T).astype(int), 1)
-        if self.model in ("garch", "gjr") and self.persistence < 1:
-            pers = self.persistence
-            avg = fc.linear_average_variance(self.last_variance,
-                                             self.params["omega"] / (1 - pers), pers, T)
+        if self.model in ("garch", "gjr") and 0 < self.persistence <= 1:
+            avg = fc.linear_average_variance_from_omega(
+                self.last_variance, self.params["omega"], self.persistence, T)
         else:
             v = self.forecast_variance(int(T.max()))
             avg = np.cumsum(v)[T - 1] / T
@@ -729,8 +729,8 @@ class GarchFit:
         if self.model in ("garch", "gjr"):
             g = P.get("gamma", 0.0)
             pers = P["alpha"] + 0.5 * g + P["beta"]
-            vl = P["omega"] / (1 - pers)
-            avg = fc.linear_average_variance(s2[:, None], vl[:, None], pers[:, None], T)
+            avg = fc.linear_average_variance_from_omega(s2[:, None], P["omega"][:, None],
+                                                        pers[:, None], T)
         else:
             # EGARCH: exact recursion per draw, vectorised over draws; the t
             # expectation uses a 256-point quantile grid at the fitted nu (the
