@@ -64,6 +64,49 @@ def _check_returns(returns) -> np.ndarray:
     return y
 
 
+#: fewest non-zero returns a fit needs (half of MIN_RETURNS; optbench's own choice)
+MIN_MOVING_RETURNS = 125
+#: a run of this many exactly-zero returns in a row is read as prices that did not
+#: update (a live listed underlying practically never closes unchanged 20 trading
+#: days in a row; optbench's own threshold, not a published one)
+MAX_ZERO_RUN = 20
+#: largest forecast daily variance accepted, as a multiple of the sample variance
+#: (a forecast vol 100 times the history's is read as a broken fit; optbench's own
+#: threshold)
+MAX_FORECAST_VARIANCE_RATIO = 1e4
+
+
+def _check_usable(y: np.ndarray) -> None:
+    moving = int(np.count_nonzero(y))
+    if moving < MIN_MOVING_RETURNS:
+        raise InputError("returns", f"only {moving} of {y.shape[0]} returns are non-zero; "
+                                    f"a volatility model needs at least "
+                                    f"{MIN_MOVING_RETURNS} days on which the price moved")
+
+
+def _longest_zero_run(y: np.ndarray) -> tuple[int, int]:
+    """(length, start index) of the longest run of exactly-zero returns."""
+    z = np.concatenate([[0], (y == 0).astype(np.int8), [0]])
+    edges = np.flatnonzero(np.diff(z))
+    if edges.size == 0:
+        return 0, -1
+    starts, ends = edges[::2], edges[1::2]
+    i = int(np.argmax(ends - starts))
+    return int(ends[i] - starts[i]), int(starts[i])
+
+
+def _stale_reason(y: np.ndarray) -> str | None:
+    """Why no GARCH-family model is fitted to these returns (None if nothing)."""
+    run, start = _longest_zero_run(y)
+    if run < MAX_ZERO_RUN:
+        return None
+    where = (f"the last {run}" if start + run == y.shape[0]
+             else f"positions {start}-{start + run - 1}")
+    return (f"{run} returns in a row are exactly zero ({where} of {y.shape[0]}): the "
+            "price did not change, which a GARCH-family likelihood reads as a variance "
+            "going to zero; check the price history for stale closes")
+
+
 def _check_choice(name: str, value: str, allowed) -> None:
     if value not in allowed:
         raise InputError(name, f"{value!r} is not one of {', '.join(allowed)}")
@@ -1085,7 +1128,30 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
                    if gain is not None else f"{model} did not converge ({opt['checked']})")
     fit = _result(prob, theta, y, scale, mean, problem is None, str(res.message),
                   None, None, with_cov=problem is None, optimality=opt)
+    if problem is None:
+        problem = _implausible_forecast(fit, float(np.var(y)))
+        if problem is not None:
+            fit = _replace(fit, converged=False)
     return fit, problem
+
+
+def _implausible_forecast(fit: GarchFit, sample_variance: float) -> str | None:
+    """A reason when the fit's one-year forecast is not finite or exceeds
+    :data:`MAX_FORECAST_VARIANCE_RATIO` times the sample variance (EGARCH is checked
+    with its normal-innovation forecast, a cheap closed form)."""
+    p = fit.params
+    with np.errstate(all="ignore"):
+        if fit.model == "egarch":
+            v = fc.egarch_forecast_variance(fit.last_variance, p["omega"], p["alpha"],
+                                            p["gamma"], p["beta"], 252, "normal", None)
+        else:
+            v = fit.forecast_variance(252)
+    worst = float(np.max(v)) if np.all(np.isfinite(v)) else math.inf
+    if worst <= MAX_FORECAST_VARIANCE_RATIO * sample_variance:
+        return None
+    ratio = math.sqrt(worst / sample_variance) if math.isfinite(worst) else math.inf
+    return (f"{fit.model} forecast is not plausible (a one-year forecast vol "
+            f"{ratio:.3g} times the history's)")
 
 
 def _ewma(y: np.ndarray, mean: str, backcast, reason: str) -> GarchFit:
@@ -1144,6 +1210,11 @@ def fit_garch(returns, model: str = "gjr", dist: str = "t", mean: str = "constan
     _check_choice("model", model, MODELS + ("auto",))
     _check_choice("dist", dist, ("normal", "t"))
     _check_choice("mean", mean, ("constant", "zero"))
+    _check_usable(y)
+    stale = _stale_reason(y)
+    if stale is not None:
+        return _ewma(y, mean, backcast, f"EWMA lambda=0.94 used: {stale} "
+                                        "(normal innovations)")
     nested_fit = {}
 
     def estimate(m):
