@@ -1053,7 +1053,11 @@ def _nested_start(prob: _Problem, nested: GarchFit | None, scale: float):
             vec.append(nu)
         return np.array(vec)
     if prob.spec.name == "egarch":
-        return _egarch_start_from(prob, mu_s, (nested.conditional_vol * scale) ** 2, nu)
+        # the mean starts at the sample mean: EGARCH's likelihood has a kink wherever
+        # a residual crosses zero (|z|), so nearby starts in mu can end in
+        # neighbouring local optima
+        return _egarch_start_from(prob, float(np.mean(prob.y)),
+                                  (nested.conditional_vol * scale) ** 2, nu)
     return None
 
 
@@ -1118,6 +1122,12 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
     ns = _nested_start(prob, nested, scale)
     if ns is not None:
         labelled.insert(0, ("nested", ns))
+        if model == "egarch":
+            # the start fitted to GARCH's variance path replaces the high-persistence
+            # grid (each grid point costs a full EGARCH path); GARCH's log-variance
+            # path also starts the path solver near the EGARCH path
+            labelled = [c for c in labelled if c[0] != "high"]
+            prob._h_guess = 2.0 * np.log(nested.conditional_vol * scale)
     cands = []
     for label, th in labelled:
         u0 = np.clip(Minv @ th, lo, hi)
@@ -1126,17 +1136,28 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
         with np.errstate(all="ignore"):
             f0 = prob.objective(M @ u0)
         cands.append((label, f0, u0))
-    first = {}
-    for label, f0, u0 in cands:   # the best start of each regime, the nested start
-        if label not in first or f0 < first[label][0]:
-            first[label] = (f0, u0)
-    order = sorted(first.items(), key=lambda kv: (kv[0] != "nested", kv[1][0]))
+    # climb from the best of the nested and high-persistence starts; then from the
+    # best weak-dynamics start, unless even that start is far below the optimum
+    # found (then the data's dynamics are strong and no low-persistence optimum
+    # competes; measured on arch's datasets and simulated series, the gap is
+    # 500-800 log-likelihood units on long real series, under 50 with weak dynamics)
+    main = [c for c in cands if c[0] != "low"]
+    low = [c for c in cands if c[0] == "low"]
+    order = []
     best = None
-    for _, (_, u0) in order:
-        r = run(u0)
-        if better(r, best):
-            best = r
-    tried = [u0 for _, (_, u0) in order]
+    if main:
+        _, f0, u0 = min(main, key=lambda c: c[1])
+        order.append(u0)
+        best = run(u0)
+    if low:
+        _, f0, u0 = min(low, key=lambda c: c[1])
+        gap = (f0 - best["f"]) * prob.n if best is not None else 0.0
+        if best is None or not best["stationary"] or gap <= max(60.0, 0.02 * prob.n):
+            order.append(u0)
+            r = run(u0)
+            if better(r, best):
+                best = r
+    tried = order
     if best["stationary"] and not verified(best):
         # stopped short of an optimum: climb again from there with fresh curvature,
         # then from the other starts, and keep the best verified point
