@@ -33,7 +33,10 @@ at/above the upper bound (:math:`S` for calls, :math:`K` for puts).
 """
 from __future__ import annotations
 
+import functools
+
 import numpy as np
+from scipy.special import ndtr
 
 from optbench.pricing.bsm import as_flag_array, as_float_array, black_price
 
@@ -46,7 +49,9 @@ def _arrays(*values):
 
 
 def _tree(S, K, t, r, q, sigma, is_call, n):
-    """BBSR tree value with n steps for 1-d arrays of live options (sigma*sqrt(t) > 0)."""
+    """Early-exercise premium of the BBSR tree with n steps for 1-d arrays of live
+    options (sigma*sqrt(t) > 0): the American tree value less the European value of
+    the same tree (same nodes, same smoothed last step, no exercise)."""
     dt = t / n
     sq = sigma * np.sqrt(dt)
     u = np.exp(sq)
@@ -62,6 +67,7 @@ def _tree(S, K, t, r, q, sigma, is_call, n):
     nodes = np.ascontiguousarray(nodes)
     cont = black_price(nodes * growth[:, None], Kc, dt[:, None], disc[:, None],
                        sigma[:, None], is_call[:, None])
+    E = cont
     V = np.maximum(cont, sign * (nodes - Kc))
     pu = (disc * p)[:, None]
     pd_ = (disc * (1 - p))[:, None]
@@ -73,14 +79,119 @@ def _tree(S, K, t, r, q, sigma, is_call, n):
         nodes *= uc
         cont = V[:, 1:] * pu
         cont += pd_ * V[:, :-1]
+        eu = E[:, 1:] * pu
+        eu += pd_ * E[:, :-1]
+        E = eu
         e = ex[:, :m]
         np.subtract(nodes, Kc, out=e)
         e *= sign
         V = np.maximum(cont, e, out=cont)
-    return V[:, 0]
+    return V[:, 0] - E[:, 0]
 
 
-def american_price(S, K, t, r, q, sigma, is_call, steps: int = DEFAULT_STEPS) -> np.ndarray:
+#: collocation nodes of the early-exercise boundary, Gauss-Legendre points of its
+#: integrals, fixed-point rounds and Gauss-Legendre points of the price integral
+BOUNDARY_NODES, BOUNDARY_QUAD, BOUNDARY_ROUNDS, PRICE_QUAD = 8, 16, 10, 48
+
+
+@functools.lru_cache(maxsize=8)
+def _boundary_grid(n: int, l: int, lp: int):
+    """Chebyshev-Lobatto nodes ``z_j`` in ``sqrt(tau / T)`` with barycentric weights,
+    Gauss-Legendre points, and the interpolation matrices from the nodes to the
+    quadrature points of the boundary integrals and of the price integral (these
+    depend on no option parameter)."""
+    j = np.arange(n + 1)
+    z = 0.5 * (1.0 - np.cos(np.pi * j / n))
+    w = (-1.0) ** j
+    w[0] *= 0.5
+    w[-1] *= 0.5
+    x, wl = np.polynomial.legendre.leggauss(l)
+    frac = 0.5 * (x + 1.0)
+    # u = tau_i - s^2 with s = sqrt(tau_i) frac: sqrt(u / T) = z_i sqrt(1 - frac^2)
+    W_int = _barycentric(z, w, z[1:, None] * np.sqrt(1.0 - frac ** 2))
+    xp, wp = np.polynomial.legendre.leggauss(lp)
+    fp = 0.5 * (xp + 1.0)
+    W_price = _barycentric(z, w, np.sqrt(1.0 - fp ** 2))
+    return z, frac, 0.5 * wl, W_int, fp, 0.5 * wp, W_price
+
+
+def _barycentric(z, w, y):
+    """Matrix of barycentric interpolation weights from nodes ``z`` to points ``y``
+    (last axis: the nodes)."""
+    diff = y[..., None] - z
+    exact = diff == 0.0
+    c = w / np.where(exact, 1.0, diff)
+    c = np.where(exact.any(-1, keepdims=True), exact.astype(float), c)
+    return c / c.sum(-1, keepdims=True)
+
+
+def _boundary_put(S, K, T, r, q, sigma):
+    """American put by the early-exercise boundary's fixed point, for ``r > 0``.
+
+    Notes
+    -----
+    The exercise boundary ``B(tau)`` (``tau`` time to expiry) solves Kim's (1990)
+    integral equation, written as the fixed point ``B = K e^{-(r-q) tau} N / D`` with
+    ``N = Phi(d_-(tau, B/K)) + r int_0^tau e^{ru} Phi(d_-(tau-u, B(tau)/B(u))) du`` and
+    ``D`` the same with ``q`` and ``d_+`` (Andersen, Lake & Offengeim 2016, "High
+    performance American option pricing", *J. Comput. Finance* 20(1), their
+    FP-A iteration), ``d_pm(tau, z) = [ln z + (r - q pm sigma^2/2) tau] /
+    (sigma sqrt tau)``. ``ln(B/X)^2``, ``X = K min(1, r/q)``, is interpolated in
+    ``sqrt(tau)`` on Chebyshev-Lobatto nodes; the integrals use ``s = sqrt(tau - u)``
+    (no singularity) and Gauss-Legendre points. The price is the European value
+    plus the early-exercise premium ``int_0^T [r K e^{-r(T-u)} Phi(-d_-(T-u, S/B(u)))
+    - q S e^{-q(T-u)} Phi(-d_+(T-u, S/B(u)))] du`` (Kim 1990).
+    """
+    n, l, lp = BOUNDARY_NODES, BOUNDARY_QUAD, PRICE_QUAD
+    z, frac, half_w, W_int, fp, half_wp, W_price = _boundary_grid(n, l, lp)
+    X = K * np.where(q > r, r / np.where(q > 0, q, 1.0), 1.0)
+    sT = np.sqrt(T)
+    zi = z[1:]
+    sk = (sT[:, None] * zi)[:, :, None] * frac                 # (m, n, l)
+    u = (T[:, None] * zi ** 2)[:, :, None] - sk * sk
+    wk2 = 2.0 * sk * (sT[:, None] * zi)[:, :, None] * half_w
+    wr = wk2 * np.exp(r[:, None, None] * u)
+    wq = wk2 * np.exp(q[:, None, None] * u)
+    ss = sigma[:, None, None]
+    drift = (r - q - 0.5 * sigma ** 2)[:, None, None] * sk / ss
+    inv_ssk = 1.0 / (ss * sk)
+    vol_sk = ss * sk
+    t1 = T[:, None] * z[1:] ** 2
+    sq = sigma[:, None] * np.sqrt(t1)
+    ln_kx = np.log(X / K)[:, None]
+    drift0 = (r - q - 0.5 * sigma ** 2)[:, None] * t1 / sq
+    pref = np.exp(-(r - q)[:, None] * t1) * (K / X)[:, None]
+    rc, qc = r[:, None], q[:, None]
+    H = (sigma[:, None] * sT[:, None] * z) ** 2                # start: B = X e^{-sigma sqrt(tau)}
+    for _ in range(BOUNDARY_ROUNDS):
+        ln_bx = -np.sqrt(H)
+        ln_bu = -np.sqrt(np.maximum(np.einsum("nlj,mj->mnl", W_int, H), 0.0))
+        dm = (ln_bx[:, 1:, None] - ln_bu) * inv_ssk + drift
+        i_r = (wr * ndtr(dm)).sum(-1)
+        i_q = (wq * ndtr(dm + vol_sk)).sum(-1)
+        d_m = (ln_bx[:, 1:] + ln_kx) / sq + drift0
+        ratio = pref * (ndtr(d_m) + rc * i_r) / (ndtr(d_m + sq) + qc * i_q)
+        H_new = np.minimum(np.log(ratio), 0.0) ** 2
+        step = np.max(np.abs(H_new - H[:, 1:]), initial=0.0)
+        H[:, 1:] = H_new
+        if step < 1e-13:
+            break
+    # the price integral over the boundary, s = sqrt(T - u)
+    b_u = X[:, None] * np.exp(-np.sqrt(np.maximum(H @ W_price.T, 0.0)))
+    s2 = sT[:, None] * fp
+    wk = 2.0 * s2 * sT[:, None] * half_wp
+    sg = sigma[:, None]
+    dm = np.log(S[:, None] / b_u) / (sg * s2) + (r - q - 0.5 * sigma ** 2)[:, None] * s2 / sg
+    integrand = ((r * K)[:, None] * np.exp(-r[:, None] * s2 * s2) * ndtr(-dm)
+                 - (q * S)[:, None] * np.exp(-q[:, None] * s2 * s2) * ndtr(-(dm + sg * s2)))
+    premium = np.maximum((wk * integrand).sum(-1), 0.0)
+    euro = black_price(S * np.exp((r - q) * T), K, T, np.exp(-r * T), sigma, False)
+    at_expiry_boundary = X * np.exp(-np.sqrt(H[:, -1]))
+    return np.where(S <= at_expiry_boundary, K - S, euro + premium)
+
+
+def american_price(S, K, t, r, q, sigma, is_call, steps: int = DEFAULT_STEPS,
+                   method: str = "boundary") -> np.ndarray:
     """Price of American options; broadcasts over every argument.
 
     Parameters
@@ -127,17 +238,35 @@ def american_price(S, K, t, r, q, sigma, is_call, steps: int = DEFAULT_STEPS) ->
         euro = live & is_call & (q <= 0)
         if euro.any():
             out[euro] = black_price(F[euro], K[euro], t[euro], D[euro], sigma[euro], True)
-        tree = live & ~euro
+        # put form (a call is the put with spot and strike, rate and yield swapped;
+        # McDonald & Schroder 1998): the boundary method needs a positive rate there
+        r_put = np.where(is_call, q, r)
+        q_put = np.where(is_call, r, q)
+        boundary = live & ~euro & (r_put > 0)
+        if method == "boundary" and boundary.any():
+            i = np.flatnonzero(boundary)
+            c = is_call[i]
+            out[i] = np.maximum(_boundary_put(np.where(c, K[i], S[i]), np.where(c, S[i], K[i]),
+                                              t[i], r_put[i], q_put[i], sigma[i]),
+                                immediate[i])
+        # a put with a rate at or below zero and a yield at or above it is never
+        # exercised early (nor the call with the roles swapped)
+        no_early = live & ~euro & ~boundary & (q_put >= r_put)
+        if method == "boundary" and no_early.any():
+            out[no_early] = black_price(F[no_early], K[no_early], t[no_early], D[no_early],
+                                        sigma[no_early], is_call[no_early])
+        tree = live & ~euro & (~(boundary | no_early) if method == "boundary" else True)
         if tree.any():
             i = np.flatnonzero(tree)
             args = (S[i], K[i], t[i], r[i], q[i], sigma[i], is_call[i])
             fine = _tree(*args, steps)
             coarse = _tree(*args, steps // 2)
-            val = 2.0 * fine - coarse
-            # no-arbitrage floors: immediate exercise, and the European value (which
-            # also repairs the tree's relative error on far out-of-the-money options)
+            # control variate: the exact European price plus the tree's early-exercise
+            # premium (American less European on the same tree), extrapolated over
+            # the two tree sizes; the premium is never negative
+            premium = np.maximum(2.0 * fine - coarse, 0.0)
             euro_i = black_price(F[i], K[i], t[i], D[i], sigma[i], is_call[i])
-            out[i] = np.maximum(np.maximum(val, immediate[i]), euro_i)
+            out[i] = np.maximum(euro_i + premium, immediate[i])
     return out.reshape(shape)
 
 
