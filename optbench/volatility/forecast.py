@@ -56,7 +56,7 @@ def linear_average_variance(last_variance, long_run_variance, persistence,
 
 
 def _geometric_sums(persistence, T):
-    """``S = sum_{k<T} p^k`` and ``D = sum_{k<T} sum_{j<k} p^j`` for ``0 < p <= 1``,
+    """``S = sum_{k<T} p^k`` and ``D = sum_{k<T} sum_{j<k} p^j`` for ``0 <= p <= 1``,
     accurate to rounding for ``p`` anywhere up to and including one.
 
     Notes
@@ -87,6 +87,13 @@ def _geometric_sums(persistence, T):
             acc = acc + (a - T * b)
         series = acc / (d * d)
         D = np.where(d == 0.0, 0.5 * T * (T - 1.0), np.where(small, series, direct))
+        # far from one (including p = 0, where ln p = -inf) the plain forms are exact
+        far = d >= 0.5
+        if np.any(far):
+            pT = p ** T
+            S_plain = (1.0 - pT) / d
+            S = np.where(far, S_plain, S)
+            D = np.where(far, (T - S_plain) / d, D)
     return S, D
 
 
@@ -121,6 +128,10 @@ def linear_forecast_variance_from_omega(last_variance, omega, persistence,
         lg = np.log1p(-np.minimum(d, 1.0))
         geo = np.where(d == 0.0, k, -np.expm1(k * lg) / d)
         pk = np.exp(k * lg)
+        far = d >= 0.5   # plain forms (also p = 0, where ln p = -inf)
+        if np.any(far):
+            pk = np.where(far, p ** k, pk)
+            geo = np.where(far, (1.0 - p ** k) / d, geo)
     return (np.asarray(omega, dtype=float)[..., None] * geo
             + pk * np.asarray(last_variance, dtype=float)[..., None])
 

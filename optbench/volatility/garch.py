@@ -722,7 +722,7 @@ class GarchFit:
         T = np.asarray(trading_days)
         scalar = T.ndim == 0
         T = np.maximum(np.atleast_1d(T).astype(int), 1)
-        if self.model in ("garch", "gjr") and 0 < self.persistence <= 1:
+        if self.model in ("garch", "gjr") and 0 <= self.persistence <= 1:
             avg = fc.linear_average_variance_from_omega(
                 self.last_variance, self.params["omega"], self.persistence, T)
         else:

@@ -183,7 +183,7 @@ def _exact_average_variance(s1: float, omega: float, p: float, T: int):
     return total / T
 
 
-@pytest.mark.parametrize("gap", [0.5, 1e-3, 1e-6, 1e-9, 1e-10, 1e-11, 1e-13, 1e-15, 0.0])
+@pytest.mark.parametrize("gap", [0.9, 0.5, 1e-3, 1e-6, 1e-9, 1e-10, 1e-11, 1e-13, 1e-15, 0.0])
 def test_forecast_vol_near_unit_persistence_matches_the_direct_sum(pct_returns, gap):
     """forecast_vol stays exact (1e-12 relative) as the persistence approaches one,
     and at exactly one, against the exact direct sum of the daily forecasts."""
