@@ -1121,12 +1121,11 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
     labelled = prob.regime_starts(var)
     ns = _nested_start(prob, nested, scale)
     if ns is not None:
-        labelled.insert(0, ("nested", ns))
+        # the nested model's optimum replaces the high-persistence grid (it is the
+        # better start on every series tried); for EGARCH, GARCH's log-variance path
+        # also starts the path solver near the EGARCH path
+        labelled = [("nested", ns)] + [c for c in labelled if c[0] != "high"]
         if model == "egarch":
-            # the start fitted to GARCH's variance path replaces the high-persistence
-            # grid (each grid point costs a full EGARCH path); GARCH's log-variance
-            # path also starts the path solver near the EGARCH path
-            labelled = [c for c in labelled if c[0] != "high"]
             prob._h_guess = 2.0 * np.log(nested.conditional_vol * scale)
     cands = []
     for label, th in labelled:
