@@ -1251,7 +1251,14 @@ def fit_garch(returns, model: str = "gjr", dist: str = "t", mean: str = "constan
     -----
     Maximises ``sum_t l(e_t; sigma^2_t, nu)`` by a projected quasi-Newton method
     (:func:`optbench.volatility.optimize.minimize_box`) within positivity bounds and
-    the stationarity constraint (persistence <= 1). For GARCH and GJR the
+    the stationarity constraint (persistence <= 1); GJR in the coordinates
+    ``(omega, alpha, alpha + gamma, beta)`` so that both positivity constraints are
+    bounds. GJR and EGARCH start from GARCH's optimum (GJR nests it at gamma = 0),
+    a second climb starts from weak dynamics when that regime is within reach, and
+    ``converged`` is set only after the first-order (KKT) check recorded in
+    ``fit.optimality``. Degenerate histories (20 or more unchanged closes in a row,
+    fewer than 125 moving days, an implausible forecast) fall back or raise with the
+    reason. For GARCH and GJR the
     variance and its derivatives come from one blocked linear filter, giving an
     analytic gradient; EGARCH runs a loop over days with an adjoint (reverse-mode)
     gradient. If the
