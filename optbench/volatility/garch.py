@@ -954,7 +954,7 @@ OPTIMALITY_GAIN_REL = 1e-11
 
 
 def _optimality(prob: _Problem, M: np.ndarray, u: np.ndarray, lo: np.ndarray,
-                hi: np.ndarray) -> dict:
+                hi: np.ndarray, res=None) -> dict:
     """First-order (KKT) check of a bound-constrained maximum of the log-likelihood.
 
     In the optimiser's coordinates ``u`` (``theta = M u``) with ``G`` the gradient of the
@@ -962,23 +962,37 @@ def _optimality(prob: _Problem, M: np.ndarray, u: np.ndarray, lo: np.ndarray,
     *active* when ``G`` points out of the box there (its multiplier has the right
     sign); on the other, *free*, coordinates the projected gradient must vanish. The
     check asks the remaining gain that a Newton step on the free coordinates
-    predicts, ``G_f' (S_f' S_f)^{-1} G_f / 2`` (half the score statistic; the outer
-    product of the scores stands in for the information matrix, Berndt, Hall, Hall
-    & Hausman 1974), to be at most ``max(OPTIMALITY_GAIN_TOL, OPTIMALITY_GAIN_REL
+    predicts, ``G_f' H_f^{-1} G_f / 2`` (half the score statistic), to be at most ``max(OPTIMALITY_GAIN_TOL, OPTIMALITY_GAIN_REL
     (n + |log L|))`` in log-likelihood units (1e-7 up to about 4,000 returns), and
-    records the largest free gradient entry beside it.
+    records the largest free gradient entry beside it. ``H`` is the optimiser's
+    quasi-Newton Hessian with its final analytic gradient when ``res`` (its result at
+    ``u``) carries them, otherwise the outer product of the per-day scores ``S'S``
+    (Berndt, Hall, Hall & Hausman 1974).
     """
-    theta = M @ u
-    with np.errstate(all="ignore"):
-        ll, sc = prob.scores(theta)
     names = prob.names
-    if ll is None or not np.all(np.isfinite(sc)) or not np.all(np.isfinite(ll)):
-        return {"passed": False, "checked": "scores not finite at the estimate",
-                "predicted_gain": None, "projected_gradient": None,
-                "tolerance": OPTIMALITY_GAIN_TOL, "active_bounds": []}
-    step = _BLAS_CHUNK // 8
-    su = np.concatenate([sc[i:i + step] @ M for i in range(0, sc.shape[0], step)])
-    g = su.sum(axis=0)
+    n = prob.n
+    quasi = (res is not None and res.grad is not None and res.hess is not None
+             and np.array_equal(np.asarray(res.x), u) and np.all(np.isfinite(res.grad))
+             and np.all(np.isfinite(res.hess)))
+    if quasi:
+        # the optimiser's own gradient at u and its quasi-Newton Hessian (both of
+        # minus the mean log-likelihood): no further likelihood evaluation
+        g = -n * np.asarray(res.grad, dtype=float)
+        total_ll = -n * float(res.fun)
+        curvature = "quasi-Newton Hessian"
+    else:
+        theta = M @ u
+        with np.errstate(all="ignore"):
+            ll, sc = prob.scores(theta)
+        if ll is None or not np.all(np.isfinite(sc)) or not np.all(np.isfinite(ll)):
+            return {"passed": False, "checked": "scores not finite at the estimate",
+                    "predicted_gain": None, "projected_gradient": None,
+                    "tolerance": OPTIMALITY_GAIN_TOL, "active_bounds": []}
+        step = _BLAS_CHUNK // 8
+        su = np.concatenate([sc[i:i + step] @ M for i in range(0, sc.shape[0], step)])
+        g = su.sum(axis=0)
+        total_ll = float(np.sum(ll))
+        curvature = "outer product of the per-day scores"
     span = np.maximum(hi - lo, 1e-12)
     at_lo = u <= lo + 1e-10 * span
     at_hi = u >= hi - 1e-10 * span
@@ -987,18 +1001,20 @@ def _optimality(prob: _Problem, M: np.ndarray, u: np.ndarray, lo: np.ndarray,
     gf = g[free]
     gain = 0.0
     if gf.size:
-        info = _gram(su[:, free])
+        info = (n * np.asarray(res.hess, dtype=float)[np.ix_(free, free)] if quasi
+                else _gram(su[:, free]))
+        info = 0.5 * (info + info.T)
         w, V = np.linalg.eigh(info)
         w = np.maximum(w, 1e-12 * max(float(w.max()), 1e-300))
         c = V.T @ gf
         gain = 0.5 * float(np.sum(c * c / w))
     pg = float(np.max(np.abs(gf))) if gf.size else 0.0
     coord = _coordinate_names(prob)
-    tol = max(OPTIMALITY_GAIN_TOL,
-              OPTIMALITY_GAIN_REL * (prob.n + abs(float(np.sum(ll)))))
+    tol = max(OPTIMALITY_GAIN_TOL, OPTIMALITY_GAIN_REL * (n + abs(total_ll)))
     return {"passed": bool(gain <= tol),
             "checked": "KKT: projected gradient of the log-likelihood on the free "
-                       "coordinates, as the Newton gain it still predicts",
+                       "coordinates, as the Newton gain it still predicts "
+                       f"(curvature: {curvature})",
             "predicted_gain": gain, "projected_gradient": pg,
             "tolerance": tol,
             "active_bounds": [coord[i] for i in np.flatnonzero(active)],
@@ -1108,7 +1124,7 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
 
     def verified(r):
         if r["opt"] is None:
-            r["opt"] = _optimality(prob, M, r["u"], lo, hi)
+            r["opt"] = _optimality(prob, M, r["u"], lo, hi, r["res"])
         return r["opt"]["passed"]
 
     def better(a, b):   # is run a preferred to run b?
@@ -1170,7 +1186,7 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
                 break
     res, u = best["res"], best["u"]
     theta = M @ u
-    opt = _optimality(prob, M, u, lo, hi) if best["opt"] is None else best["opt"]
+    opt = _optimality(prob, M, u, lo, hi, res) if best["opt"] is None else best["opt"]
     problem = None
     if not best["stationary"]:
         problem = f"{model} estimate is not stationary (persistence {best['pers']:.6f})"

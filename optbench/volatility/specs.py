@@ -52,7 +52,7 @@ class VolSpec:
         estimator climbs from the best start of each and keeps the higher optimum."""
         if self.name == "garch":
             grid = (("high", 0.05, 0.90), ("high", 0.08, 0.97), ("high", 0.12, 0.99),
-                    ("low", 0.10, 0.50), ("low", 0.30, 0.40))
+                    ("high", 0.02, 0.97), ("low", 0.10, 0.50))
             return [(r, [var * (1 - p), a, p - a]) for r, a, p in grid]
         if self.name == "gjr":
             grid = (("high", 0.03, 0.10, 0.95), ("high", 0.01, 0.15, 0.98),

@@ -189,7 +189,8 @@ def test_fallback_is_reported(pct_returns, monkeypatch):
         if len(x0) == 6:  # mu, omega, alpha, alpha+gamma, beta, nu: stop at the start
             x = np.clip(x0, args[0], args[1])
             res = dataclasses.replace(res, x=x, fun=fun(x)[0], success=False,
-                                      message="iteration limit reached")
+                                      message="iteration limit reached", grad=None,
+                                      hess=None)
         return res
 
     monkeypatch.setattr(garch_mod, "minimize_box", failing_for_gjr)
@@ -209,7 +210,8 @@ def test_everything_failing_falls_back_to_ewma(pct_returns, monkeypatch):
         res = real(fun, x0, *args, **kw)
         x = np.clip(x0, args[0], args[1])
         return dataclasses.replace(res, x=x, fun=fun(x)[0], success=False,
-                                   message="line search found no decrease")
+                                   message="line search found no decrease", grad=None,
+                                   hess=None)
 
     monkeypatch.setattr(garch_mod, "minimize_box", always_fails)
     fit = fit_garch(y, "egarch", "t")
