@@ -55,6 +55,87 @@ def linear_average_variance(last_variance, long_run_variance, persistence,
     return vl + (s1 - vl) * factor
 
 
+def _geometric_sums(persistence, T):
+    """``S = sum_{k<T} p^k`` and ``D = sum_{k<T} sum_{j<k} p^j`` for ``0 <= p <= 1``,
+    accurate to rounding for ``p`` anywhere up to and including one.
+
+    Notes
+    -----
+    With ``d = 1 - p`` and ``l = ln p = log1p(-d)``: ``S = -expm1(T l) / d`` and
+    ``D = (T - S) / d = [expm1(T l) - T expm1(l)] / d^2``. The bracket cancels
+    when ``|T l|`` is small; there it is summed as its series
+    ``sum_{m>=2} (T^m - T) l^m / m!`` (the two exponential series subtracted term by
+    term), which has no cancellation. At ``p = 1`` exactly, ``S = T`` and
+    ``D = T (T - 1) / 2``.
+    """
+    p = np.asarray(persistence, dtype=float)
+    T = np.asarray(T, dtype=float)
+    d = 1.0 - p
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        lg = np.log1p(-np.minimum(d, 1.0))
+        x = T * lg
+        S = np.where(d == 0.0, T, -np.expm1(x) / d)
+        direct = (np.expm1(x) - T * np.expm1(lg)) / (d * d)
+        # series of the bracket for |T l| < 0.5: 40 terms reach rounding
+        small = np.abs(x) < 0.5
+        a = x.copy()              # (T l)^m / m!
+        b = lg * np.ones_like(x)  # l^m / m!
+        acc = np.zeros(np.broadcast(x, T).shape)
+        for m in range(2, 42):
+            a = a * x / m
+            b = b * lg / m
+            acc = acc + (a - T * b)
+        series = acc / (d * d)
+        D = np.where(d == 0.0, 0.5 * T * (T - 1.0), np.where(small, series, direct))
+        # far from one (including p = 0, where ln p = -inf) the plain forms are exact
+        far = d >= 0.5
+        if np.any(far):
+            pT = p ** T
+            S_plain = (1.0 - pT) / d
+            S = np.where(far, S_plain, S)
+            D = np.where(far, (T - S_plain) / d, D)
+    return S, D
+
+
+def linear_average_variance_from_omega(last_variance, omega, persistence,
+                                       trading_days) -> np.ndarray:
+    """Average expected daily variance over days 1..T, GARCH or GJR, written with
+    ``omega`` instead of the long-run variance so that it holds (and stays exact)
+    for persistence up to and including one.
+
+    Notes
+    -----
+    ``E_T[sigma^2_{T+k}] = omega sum_{j<k-1} p^j + p^{k-1} sigma^2_{T+1}``, so
+    ``(1/T) sum_{k=1..T} E_T[sigma^2_{T+k}] = (sigma^2_{T+1} S + omega D) / T`` with
+    the geometric sums ``S`` and ``D`` of :func:`_geometric_sums` (stable as
+    ``p -> 1``; equals :func:`linear_average_variance` for ``p < 1``).
+    """
+    T = np.maximum(np.asarray(trading_days, dtype=float), 1.0)
+    S, D = _geometric_sums(persistence, T)
+    return (np.asarray(last_variance, dtype=float) * S
+            + np.asarray(omega, dtype=float) * D) / T
+
+
+def linear_forecast_variance_from_omega(last_variance, omega, persistence,
+                                        horizon: int) -> np.ndarray:
+    """Expected daily variances for steps 1..horizon, ``omega sum_{j<k-1} p^j +
+    p^{k-1} sigma^2_{T+1}``, stable for persistence up to and including one
+    (``sum_{j<k} p^j = -expm1(k ln p) / (1 - p)``, ``k`` at ``p = 1``)."""
+    k = np.arange(horizon, dtype=float)
+    p = np.asarray(persistence, dtype=float)[..., None]
+    d = 1.0 - p
+    with np.errstate(divide="ignore", invalid="ignore"):
+        lg = np.log1p(-np.minimum(d, 1.0))
+        geo = np.where(d == 0.0, k, -np.expm1(k * lg) / d)
+        pk = np.exp(k * lg)
+        far = d >= 0.5   # plain forms (also p = 0, where ln p = -inf)
+        if np.any(far):
+            pk = np.where(far, p ** k, pk)
+            geo = np.where(far, (1.0 - p ** k) / d, geo)
+    return (np.asarray(omega, dtype=float)[..., None] * geo
+            + pk * np.asarray(last_variance, dtype=float)[..., None])
+
+
 def hull_term_structure(trading_days, omega: float, alpha: float, beta: float,
                         current_variance: float) -> np.ndarray:
     """Hull's continuous approximation of the GARCH(1,1) volatility term structure.

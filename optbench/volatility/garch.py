@@ -64,10 +64,80 @@ def _check_returns(returns) -> np.ndarray:
     return y
 
 
+#: fewest non-zero returns a fit needs (half of MIN_RETURNS; optbench's own choice)
+MIN_MOVING_RETURNS = 125
+#: a run of this many exactly-zero returns in a row is read as prices that did not
+#: update (a live listed underlying practically never closes unchanged 20 trading
+#: days in a row; optbench's own threshold, not a published one)
+MAX_ZERO_RUN = 20
+#: largest forecast daily variance accepted, as a multiple of the sample variance
+#: (a forecast vol 100 times the history's is read as a broken fit; optbench's own
+#: threshold)
+MAX_FORECAST_VARIANCE_RATIO = 1e4
+
+
+def _check_usable(y: np.ndarray) -> None:
+    moving = int(np.count_nonzero(y))
+    if moving < MIN_MOVING_RETURNS:
+        raise InputError("returns", f"only {moving} of {y.shape[0]} returns are non-zero; "
+                                    f"a volatility model needs at least "
+                                    f"{MIN_MOVING_RETURNS} days on which the price moved")
+
+
+def _longest_zero_run(y: np.ndarray) -> tuple[int, int]:
+    """(length, start index) of the longest run of exactly-zero returns."""
+    z = np.concatenate([[0], (y == 0).astype(np.int8), [0]])
+    edges = np.flatnonzero(np.diff(z))
+    if edges.size == 0:
+        return 0, -1
+    starts, ends = edges[::2], edges[1::2]
+    i = int(np.argmax(ends - starts))
+    return int(ends[i] - starts[i]), int(starts[i])
+
+
+def _stale_reason(y: np.ndarray) -> str | None:
+    """Why no GARCH-family model is fitted to these returns (None if nothing)."""
+    run, start = _longest_zero_run(y)
+    if run < MAX_ZERO_RUN:
+        return None
+    where = (f"the last {run}" if start + run == y.shape[0]
+             else f"positions {start}-{start + run - 1}")
+    return (f"{run} returns in a row are exactly zero ({where} of {y.shape[0]}): the "
+            "price did not change, which a GARCH-family likelihood reads as a variance "
+            "going to zero; check the price history for stale closes")
+
+
 def _check_choice(name: str, value: str, allowed) -> None:
     if value not in allowed:
         raise InputError(name, f"{value!r} is not one of {', '.join(allowed)}")
 
+
+
+#: elements per BLAS call on the hot path: OpenBLAS runs smaller products on one
+#: thread, which keeps fits fast when other processes load the machine (threaded
+#: products then wait for busy cores)
+_BLAS_CHUNK = 8192
+
+
+def _dot(a: np.ndarray, b: np.ndarray) -> float:
+    """``a . b`` for long 1-D arrays, in single-threaded pieces."""
+    n = a.shape[0]
+    if n <= _BLAS_CHUNK:
+        return float(np.dot(a, b))
+    return float(sum(np.dot(a[i:i + _BLAS_CHUNK], b[i:i + _BLAS_CHUNK])
+                     for i in range(0, n, _BLAS_CHUNK)))
+
+
+def _gram(S: np.ndarray, T: np.ndarray | None = None) -> np.ndarray:
+    """``S' T`` (``T = S`` by default) for tall (n, k) arrays, in single-threaded
+    row blocks."""
+    T = S if T is None else T
+    n = S.shape[0]
+    step = max(1, 262_144 // max(1, S.shape[1] * T.shape[1]))
+    out = S[:step].T @ T[:step]
+    for i in range(step, n, step):
+        out += S[i:i + step].T @ T[i:i + step]
+    return out
 
 # ---------------------------------------------------------------------------------
 # the likelihood problem (scaled units)
@@ -221,9 +291,9 @@ class _Problem:
         grad = []
         if self.has_mu:
             dz = -(p["alpha"] * np.sign(zl) + p["gamma"]) * inv_s[:-1]
-            grad.append(-d_e.sum() + np.dot(l1, dz))
-        grad += [lam.sum(), np.dot(l1, np.abs(zl) - SQRT_2_OVER_PI), np.dot(l1, zl),
-                 lam[0] * hb + np.dot(l1, h[:-1])]
+            grad.append(-d_e.sum() + _dot(l1, dz))
+        grad += [lam.sum(), _dot(l1, np.abs(zl) - SQRT_2_OVER_PI), _dot(l1, zl),
+                 lam[0] * hb + _dot(l1, h[:-1])]
         if d_nu is not None:
             grad.append(d_nu.sum())
         return -total / self.n, -np.array(grad) / self.n
@@ -268,7 +338,7 @@ class _Problem:
             r *= inv
             r *= 0.5
             d_s2 = r
-            sum_d_e = -float(np.dot(eps, inv))
+            sum_d_e = -_dot(eps, inv)
             d_nu = None
         else:
             ll, d_s2, d_e, d_nu = std_t_loglik(eps, s2, nu, grad=True)
@@ -281,12 +351,12 @@ class _Problem:
         grad = []
         if self.has_mu:
             coef = alpha + gamma * neg[:-1] if g is not None else alpha
-            grad.append(-2.0 * np.dot(lam[1:], eps[:-1] * coef) - sum_d_e)
+            grad.append(-2.0 * _dot(lam[1:], eps[:-1] * coef) - sum_d_e)
         grad.append(lam.sum())
-        grad.append(np.dot(lam, a))
+        grad.append(_dot(lam, a))
         if g is not None:
-            grad.append(np.dot(lam, g))
-        grad.append(np.dot(lam, s2_lag))
+            grad.append(_dot(lam, g))
+        grad.append(_dot(lam, s2_lag))
         if d_nu is not None:
             grad.append(d_nu.sum())
         if not math.isfinite(total):
@@ -328,11 +398,11 @@ class _Problem:
             eps, (s2, d) = self.variance(theta, grad=True)
             if np.all(s2 > 0) and np.all(np.isfinite(s2)):
                 ll, d_s2, d_e = normal_loglik(eps, s2, grad=True)
-                g0 = -(d @ d_s2)
+                g0 = -_gram(d.T, d_s2[:, None])[:, 0]
                 if self.has_mu:
                     g0[0] += d_e.sum()
                 w = d / s2
-                info = 0.5 * (w @ w.T)
+                info = 0.5 * _gram(w.T)
                 if self.has_mu:
                     info[0, 0] += float(np.sum(1.0 / s2))
                 f0 = -float(ll.sum()) / self.n
@@ -343,7 +413,7 @@ class _Problem:
                       else self.score_obs(theta))
             if ll is not None and np.all(np.isfinite(ll)) and np.all(np.isfinite(sc)):
                 g0 = -sc.sum(axis=0) / self.n
-                return sc.T @ sc / self.n, (-float(ll.sum()) / self.n, g0)
+                return _gram(sc) / self.n, (-float(ll.sum()) / self.n, g0)
         k = self.k
         f0, g0 = self.objective_grad(theta)
         h = 1e-6 * np.maximum(np.abs(theta), 1e-2)
@@ -380,9 +450,37 @@ class _Problem:
                  "jac": lambda th: jac}]
 
     def starting_points(self, var):
+        return [x for _, x in self.regime_starts(var)]
+
+    def regime_starts(self, var):
+        """Starting points with their regime label (see
+        :meth:`optbench.volatility.specs.VolSpec.regime_starts`)."""
         mu0 = [float(np.mean(self.y))] if self.has_mu else []
         nu0 = self.dist.starting_values()
-        return [np.array(mu0 + v + nu0) for v in self.spec.starting_values(var)]
+        return [(r, np.array(mu0 + v + nu0)) for r, v in self.spec.regime_starts(var)]
+
+    def coordinate_map(self) -> np.ndarray:
+        """``theta = M u`` for the whole parameter vector (mean and distribution
+        coordinates unchanged; see :meth:`VolSpec.coordinate_map`)."""
+        m = np.eye(self.k)
+        i, nv = self.i_vol, self.n_vol
+        m[i:i + nv, i:i + nv] = self.spec.coordinate_map()
+        return m
+
+    def internal_bounds(self, var):
+        """Bounds of the optimiser's coordinates ``u``."""
+        sd = math.sqrt(var)
+        b = []
+        if self.has_mu:
+            m = float(np.mean(self.y))
+            b.append((m - 10 * sd, m + 10 * sd))
+        return b + self.spec.internal_bounds(var) + self.dist.bounds()
+
+    def scores(self, theta):
+        """Per-day log-likelihood and analytic scores (n, k) at ``theta``."""
+        if self.spec.linear:
+            return self.score_obs(theta)
+        return self.egarch_score_obs(theta)
 
     # robust covariance --------------------------------------------------------------
     def scores_and_hessian(self, theta):
@@ -405,7 +503,7 @@ class _Problem:
         try:
             sc, H = self.scores_and_hessian(theta)
             Hinv = np.linalg.inv(H)
-            cov = Hinv @ (sc.T @ sc) @ Hinv
+            cov = Hinv @ _gram(sc) @ Hinv
         except (np.linalg.LinAlgError, TypeError, ValueError):
             return np.full((self.k, self.k), np.nan)
         if not np.all(np.isfinite(cov)):
@@ -482,7 +580,8 @@ class GarchFit:
         ``-2 LL + 2k`` and ``-2 LL + k ln n``.
     n_obs : int
     converged : bool
-        The optimiser reported success and the estimate is stationary.
+        The estimate is stationary and passed the first-order optimality check
+        recorded in ``optimality``.
     message : str
         The optimiser's message (or why no optimiser ran).
     fallback_reason : str or None
@@ -495,6 +594,12 @@ class GarchFit:
         ``(r_t - mu) / sigma_t``.
     candidates : dict
         For ``model="auto"``: BIC of each candidate (None if it failed).
+    optimality : dict or None
+        What was checked before calling the estimate converged: ``passed``,
+        ``checked`` (the test), ``predicted_gain`` (log-likelihood a Newton step on
+        the free coordinates still promises), ``projected_gradient`` (largest free
+        gradient entry of the log-likelihood, optimiser units), ``tolerance``,
+        ``active_bounds`` (coordinates held at a bound). None when no estimation ran.
     cov : ndarray
         Robust covariance of the parameters in ``param_names`` order (decimal units),
         computed on first use.
@@ -519,6 +624,7 @@ class GarchFit:
     param_names: tuple = ()
     backcast: float = float("nan")
     returns: np.ndarray = field(default=None, repr=False)
+    optimality: dict | None = field(default=None, repr=False)
 
     # -- derived values --------------------------------------------------------------
     @functools.cached_property
@@ -594,13 +700,14 @@ class GarchFit:
             raise InputError("horizon", "must be at least one trading day")
         p = self.params
         if self.model in ("garch", "gjr"):
+            # omega sum_{j<k-1} p^j + p^{k-1} sigma^2_{T+1}: stable up to p = 1 (and
+            # valid beyond, for held non-stationary parameters)
             pers = self.persistence
-            if pers < 1:
-                return fc.linear_forecast_variance(self.last_variance,
-                                                   p["omega"] / (1.0 - pers), pers, horizon)
-            # held non-stationary parameters: omega sum_{j<k-1} p^j + p^{k-1} sigma^2_{T+1}
+            if pers <= 1:
+                return fc.linear_forecast_variance_from_omega(self.last_variance,
+                                                              p["omega"], pers, horizon)
             k = np.arange(horizon)
-            geo = k if pers == 1 else (pers ** k - 1.0) / (pers - 1.0)
+            geo = (pers ** k - 1.0) / (pers - 1.0)
             return p["omega"] * geo + pers ** k * self.last_variance
         if self.model == "egarch":
             return fc.egarch_forecast_variance(self.last_variance, p["omega"], p["alpha"],
@@ -615,10 +722,9 @@ class GarchFit:
         T = np.asarray(trading_days)
         scalar = T.ndim == 0
         T = np.maximum(np.atleast_1d(T).astype(int), 1)
-        if self.model in ("garch", "gjr") and self.persistence < 1:
-            pers = self.persistence
-            avg = fc.linear_average_variance(self.last_variance,
-                                             self.params["omega"] / (1 - pers), pers, T)
+        if self.model in ("garch", "gjr") and 0 <= self.persistence <= 1:
+            avg = fc.linear_average_variance_from_omega(
+                self.last_variance, self.params["omega"], self.persistence, T)
         else:
             v = self.forecast_variance(int(T.max()))
             avg = np.cumsum(v)[T - 1] / T
@@ -693,8 +799,8 @@ class GarchFit:
         if self.model in ("garch", "gjr"):
             g = P.get("gamma", 0.0)
             pers = P["alpha"] + 0.5 * g + P["beta"]
-            vl = P["omega"] / (1 - pers)
-            avg = fc.linear_average_variance(s2[:, None], vl[:, None], pers[:, None], T)
+            avg = fc.linear_average_variance_from_omega(s2[:, None], P["omega"][:, None],
+                                                        pers[:, None], T)
         else:
             # EGARCH: exact recursion per draw, vectorised over draws; the t
             # expectation uses a 256-point quantile grid at the fitted nu (the
@@ -769,7 +875,20 @@ class GarchFit:
             "half_life_days": num(self.half_life_days),
             "long_run_vol": num(self.long_run_vol),
             "candidates": {k: num(v) for k, v in self.candidates.items()},
+            "optimality": _optimality_json(self.optimality),
         }
+
+
+def _optimality_json(opt):
+    if opt is None:
+        return None
+    out = {}
+    for k, v in opt.items():
+        if isinstance(v, float):
+            out[k] = v if math.isfinite(v) else None
+        else:
+            out[k] = v
+    return out
 
 
 # ---------------------------------------------------------------------------------
@@ -791,7 +910,7 @@ def _backcast_scaled(y_s, has_mu, backcast, scale):
 
 def _result(prob: _Problem, theta_s: np.ndarray, y: np.ndarray, scale: float, mean: str,
             converged: bool, message: str, fallback_reason, candidates, with_cov=False,
-            n_free: int | None = None) -> GarchFit:
+            n_free: int | None = None, optimality: dict | None = None) -> GarchFit:
     model = prob.spec.name
     names = tuple(prob.names)
     eps_s, s2_s = prob.variance(theta_s)
@@ -823,62 +942,286 @@ def _result(prob: _Problem, theta_s: np.ndarray, y: np.ndarray, scale: float, me
         fallback_reason=fallback_reason, last_variance=last,
         conditional_vol=np.sqrt(s2), std_resid=(y - mu) / np.sqrt(s2),
         candidates=dict(candidates or {}), covariance_source=cov_source, param_names=names,
-        backcast=prob.backcast / scale ** 2, returns=y)
+        backcast=prob.backcast / scale ** 2, returns=y, optimality=optimality)
 
 
-def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast):
-    """One maximum-likelihood fit. Returns (fit, problem text or None)."""
+#: largest log-likelihood gain still predicted at a point called an optimum (the
+#: score statistic on the free coordinates, halved), at least this much ...
+OPTIMALITY_GAIN_TOL = 1e-7
+#: ... and at most this fraction of ``n + |log-likelihood|`` (estimator units): the
+#: tolerance grows with the size of the likelihood, whose rounding grows with it
+OPTIMALITY_GAIN_REL = 1e-11
+
+
+def _optimality(prob: _Problem, M: np.ndarray, u: np.ndarray, lo: np.ndarray,
+                hi: np.ndarray, res=None) -> dict:
+    """First-order (KKT) check of a bound-constrained maximum of the log-likelihood.
+
+    In the optimiser's coordinates ``u`` (``theta = M u``) with ``G`` the gradient of the
+    total log-likelihood and ``S`` the per-day scores: a coordinate at a bound is
+    *active* when ``G`` points out of the box there (its multiplier has the right
+    sign); on the other, *free*, coordinates the projected gradient must vanish. The
+    check asks the remaining gain that a Newton step on the free coordinates
+    predicts, ``G_f' H_f^{-1} G_f / 2`` (half the score statistic), to be at most ``max(OPTIMALITY_GAIN_TOL, OPTIMALITY_GAIN_REL
+    (n + |log L|))`` in log-likelihood units (1e-7 up to about 4,000 returns), and
+    records the largest free gradient entry beside it. ``H`` is the optimiser's
+    quasi-Newton Hessian with its final analytic gradient when ``res`` (its result at
+    ``u``) carries them, otherwise the outer product of the per-day scores ``S'S``
+    (Berndt, Hall, Hall & Hausman 1974).
+    """
+    names = prob.names
+    n = prob.n
+    quasi = (res is not None and res.grad is not None and res.hess is not None
+             and np.array_equal(np.asarray(res.x), u) and np.all(np.isfinite(res.grad))
+             and np.all(np.isfinite(res.hess)))
+    if quasi:
+        # the optimiser's own gradient at u and its quasi-Newton Hessian (both of
+        # minus the mean log-likelihood): no further likelihood evaluation
+        g = -n * np.asarray(res.grad, dtype=float)
+        total_ll = -n * float(res.fun)
+        curvature = "quasi-Newton Hessian"
+    else:
+        theta = M @ u
+        with np.errstate(all="ignore"):
+            ll, sc = prob.scores(theta)
+        if ll is None or not np.all(np.isfinite(sc)) or not np.all(np.isfinite(ll)):
+            return {"passed": False, "checked": "scores not finite at the estimate",
+                    "predicted_gain": None, "projected_gradient": None,
+                    "tolerance": OPTIMALITY_GAIN_TOL, "active_bounds": []}
+        step = _BLAS_CHUNK // 8
+        su = np.concatenate([sc[i:i + step] @ M for i in range(0, sc.shape[0], step)])
+        g = su.sum(axis=0)
+        total_ll = float(np.sum(ll))
+        curvature = "outer product of the per-day scores"
+    span = np.maximum(hi - lo, 1e-12)
+    at_lo = u <= lo + 1e-10 * span
+    at_hi = u >= hi - 1e-10 * span
+    active = (at_lo & (g <= 0)) | (at_hi & (g >= 0))
+    free = ~active
+    gf = g[free]
+    gain = 0.0
+    if gf.size:
+        info = (n * np.asarray(res.hess, dtype=float)[np.ix_(free, free)] if quasi
+                else _gram(su[:, free]))
+        info = 0.5 * (info + info.T)
+        w, V = np.linalg.eigh(info)
+        w = np.maximum(w, 1e-12 * max(float(w.max()), 1e-300))
+        c = V.T @ gf
+        gain = 0.5 * float(np.sum(c * c / w))
+    pg = float(np.max(np.abs(gf))) if gf.size else 0.0
+    coord = _coordinate_names(prob)
+    tol = max(OPTIMALITY_GAIN_TOL, OPTIMALITY_GAIN_REL * (n + abs(total_ll)))
+    return {"passed": bool(gain <= tol),
+            "checked": "KKT: projected gradient of the log-likelihood on the free "
+                       "coordinates, as the Newton gain it still predicts "
+                       f"(curvature: {curvature})",
+            "predicted_gain": gain, "projected_gradient": pg,
+            "tolerance": tol,
+            "active_bounds": [coord[i] for i in np.flatnonzero(active)],
+            "coordinates": coord if coord != list(names) else None}
+
+
+def _coordinate_names(prob: _Problem) -> list:
+    names = list(prob.names)
+    if prob.spec.name == "gjr":
+        names[names.index("gamma")] = "alpha+gamma"
+    return names
+
+
+def _egarch_start_from(prob: _Problem, mu: float, s2: np.ndarray, nu) -> np.ndarray | None:
+    """An EGARCH start from another model's variance path (scaled units): least
+    squares of ``h_t = omega + alpha (|z_{t-1}| - sqrt(2/pi)) + gamma z_{t-1}
+    + beta h_{t-1}`` with ``h = ln s2`` and ``z`` the path's standardised residuals."""
+    h = np.log(s2)
+    z = (prob.y - mu) / np.sqrt(s2)
+    X = np.column_stack([np.ones(h.size - 1), np.abs(z[:-1]) - SQRT_2_OVER_PI, z[:-1],
+                         h[:-1]])
+    try:
+        coef = np.linalg.lstsq(X, h[1:], rcond=None)[0]
+    except np.linalg.LinAlgError:
+        return None
+    omega, alpha, gamma, beta = (float(c) for c in coef)
+    if not all(math.isfinite(c) for c in coef):
+        return None
+    beta = min(max(beta, 0.0), 0.995)
+    alpha = min(max(alpha, -0.5), 0.5)
+    gamma = min(max(gamma, -0.5), 0.5)
+    omega = float(np.mean(h[1:] - alpha * X[:, 1] - gamma * X[:, 2] - beta * h[:-1]))
+    vec = ([mu] if prob.has_mu else []) + [omega, alpha, gamma, beta]
+    if nu is not None:
+        vec.append(nu)
+    return np.array(vec)
+
+
+def _nested_start(prob: _Problem, nested: GarchFit | None, scale: float):
+    """The nested model's optimum as a start (scaled units): GARCH's estimate is GJR
+    with ``gamma = 0``; for EGARCH (which does not nest GARCH) a start fitted to
+    GARCH's variance path."""
+    if nested is None or nested.model != "garch" or nested.dist != prob.dist.name:
+        return None
+    p = nested.params
+    mu_s = p.get("mu", 0.0) * scale
+    nu = p.get("nu")
+    if prob.spec.name == "gjr":
+        vec = ([mu_s] if prob.has_mu else []) + [p["omega"] * scale ** 2, p["alpha"], 0.0,
+                                                 p["beta"]]
+        if nu is not None:
+            vec.append(nu)
+        return np.array(vec)
+    if prob.spec.name == "egarch":
+        # the mean starts at the sample mean: EGARCH's likelihood has a kink wherever
+        # a residual crosses zero (|z|), so nearby starts in mu can end in
+        # neighbouring local optima
+        return _egarch_start_from(prob, float(np.mean(prob.y)),
+                                  (nested.conditional_vol * scale) ** 2, nu)
+    return None
+
+
+def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
+              nested: GarchFit | None = None):
+    """One maximum-likelihood fit. Returns (fit, problem text or None).
+
+    Climbs from the best start of each persistence regime and from the nested
+    model's optimum (``nested``, a GARCH fit with the same distribution), keeps the
+    highest stationary optimum, and calls it converged only if it passes the
+    first-order check (:func:`_optimality`); otherwise it restarts from that point
+    and from the remaining starts before reporting why it failed.
+    """
     scale = _scale_of(y)
     y_s = y * scale
     has_mu = mean == "constant"
     bc = _backcast_scaled(y_s, has_mu, backcast, scale)
     prob = _Problem(y_s, model, dist, has_mu, bc)
     var = float(np.var(y_s))
-    starts = prob.starting_points(var)
-    vals = [prob.objective(s) for s in starts]
-    bounds = prob.bounds(var)
+    M = prob.coordinate_map()
+    Minv = np.linalg.inv(M)
+    bounds = prob.internal_bounds(var)
     lo = np.array([b[0] for b in bounds])
     hi = np.array([b[1] for b in bounds])
 
-    def run(x0):
-        x0 = np.clip(x0, lo, hi)
+    def fun_grad(u):
+        f, g = prob.objective_grad(M @ u)
+        return f, M.T @ g
+
+    def feasible(u):
+        return prob.feasible(M @ u)
+
+    cap = prob.max_step()
+
+    def run(u0):
+        u0 = np.clip(u0, lo, hi)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
-            hess0, fg0 = prob.start_curvature(x0)
-            res = minimize_box(prob.objective_grad, x0, lo, hi, feasible=prob.feasible,
-                               hess0=hess0, fg0=fg0, max_step=prob.max_step())
-        theta = np.asarray(res.x, dtype=float)
-        if not res.success:
-            return res, theta, f"{model} did not converge ({res.message})"
-        _, vol, _ = prob.unpack(theta)
+            hess, (f0, g0) = prob.start_curvature(M @ u0)
+            res = minimize_box(fun_grad, u0, lo, hi, feasible=feasible,
+                               hess0=M.T @ hess @ M, fg0=(f0, M.T @ g0), max_step=cap)
+        u = np.asarray(res.x, dtype=float)
+        _, vol, _ = prob.unpack(M @ u)
         pers = prob.spec.persistence(vol)
-        if not pers < 1.0 - STATIONARITY_MARGIN:
-            return res, theta, f"{model} estimate is not stationary (persistence {pers:.6f})"
-        return res, theta, None
+        stationary = pers < 1.0 - STATIONARITY_MARGIN
+        return {"res": res, "u": u, "f": float(res.fun), "pers": pers,
+                "stationary": bool(stationary and math.isfinite(res.fun)), "opt": None}
 
-    order = list(np.argsort(vals))
-    res, theta, problem = run(starts[order[0]])
-    if problem is None and not prob.spec.linear:
-        # EGARCH's likelihood can have several local optima when the dynamics are weak
-        # (persistence far from one): also climb from the best start of the other
-        # persistence regime and keep the higher optimum
-        beta_of = [prob.unpack(x)[1]["beta"] for x in starts]
-        first = beta_of[order[0]]
-        other = [i for i in order[1:] if abs(beta_of[i] - first) > 0.1]
-        if other:
-            r2, t2, p2 = run(starts[other[0]])
-            if p2 is None and r2.fun < res.fun - 1e-12:
-                res, theta = r2, t2
-    if problem is not None:
-        # a boundary or failed solution from the best start: try the other starts and
-        # keep the best stationary, converged one
-        for i in order[1:]:
-            r2, t2, p2 = run(starts[i])
-            if p2 is None and (problem is not None or r2.fun < res.fun):
-                res, theta, problem = r2, t2, None
+    def verified(r):
+        if r["opt"] is None:
+            r["opt"] = _optimality(prob, M, r["u"], lo, hi, r["res"])
+        return r["opt"]["passed"]
+
+    def better(a, b):   # is run a preferred to run b?
+        if b is None:
+            return True
+        if a["stationary"] != b["stationary"]:
+            return a["stationary"]
+        return a["f"] < b["f"] - 1e-13
+
+    labelled = prob.regime_starts(var)
+    ns = _nested_start(prob, nested, scale)
+    if ns is not None:
+        # the nested model's optimum replaces the high-persistence grid (it is the
+        # better start on every series tried); for EGARCH, GARCH's log-variance path
+        # also starts the path solver near the EGARCH path
+        labelled = [("nested", ns)] + [c for c in labelled if c[0] != "high"]
+        if model == "egarch":
+            prob._h_guess = 2.0 * np.log(nested.conditional_vol * scale)
+    cands = []
+    for label, th in labelled:
+        u0 = np.clip(Minv @ th, lo, hi)
+        if not feasible(u0):
+            continue
+        with np.errstate(all="ignore"):
+            f0 = prob.objective(M @ u0)
+        cands.append((label, f0, u0))
+    # climb from the best of the nested and high-persistence starts; then from the
+    # best weak-dynamics start, unless even that start is far below the optimum
+    # found (then the data's dynamics are strong and no low-persistence optimum
+    # competes; measured on arch's datasets and simulated series, the gap is
+    # 500-800 log-likelihood units on long real series, under 50 with weak dynamics)
+    main = [c for c in cands if c[0] != "low"]
+    low = [c for c in cands if c[0] == "low"]
+    order = []
+    best = None
+    if main:
+        _, f0, u0 = min(main, key=lambda c: c[1])
+        order.append(u0)
+        best = run(u0)
+    if low:
+        _, f0, u0 = min(low, key=lambda c: c[1])
+        gap = (f0 - best["f"]) * prob.n if best is not None else 0.0
+        if best is None or not best["stationary"] or gap <= max(60.0, 0.02 * prob.n):
+            order.append(u0)
+            r = run(u0)
+            if better(r, best):
+                best = r
+    tried = order
+    if best["stationary"] and not verified(best):
+        # stopped short of an optimum: climb again from there with fresh curvature,
+        # then from the other starts, and keep the best verified point
+        more = [best["u"]] + [u0 for _, _, u0 in sorted(cands, key=lambda c: c[1])
+                              if not any(u0 is t for t in tried)][:3]
+        for u0 in more:
+            r = run(u0)
+            if r["stationary"] and (better(r, best) or not verified(best)) and verified(r):
+                best = r
+            if verified(best):
+                break
+    res, u = best["res"], best["u"]
+    theta = M @ u
+    opt = _optimality(prob, M, u, lo, hi, res) if best["opt"] is None else best["opt"]
+    problem = None
+    if not best["stationary"]:
+        problem = f"{model} estimate is not stationary (persistence {best['pers']:.6f})"
+    elif not opt["passed"]:
+        gain = opt["predicted_gain"]
+        problem = (f"{model} stopped short of an optimum (first-order check: a further "
+                   f"gain of {gain:.2g} in log-likelihood predicted, tolerance "
+                   f"{opt['tolerance']:.2g}; optimiser: {res.message})"
+                   if gain is not None else f"{model} did not converge ({opt['checked']})")
     fit = _result(prob, theta, y, scale, mean, problem is None, str(res.message),
-                  None, None, with_cov=problem is None)
+                  None, None, with_cov=problem is None, optimality=opt)
+    if problem is None:
+        problem = _implausible_forecast(fit, float(np.var(y)))
+        if problem is not None:
+            fit = _replace(fit, converged=False)
     return fit, problem
+
+
+def _implausible_forecast(fit: GarchFit, sample_variance: float) -> str | None:
+    """A reason when the fit's one-year forecast is not finite or exceeds
+    :data:`MAX_FORECAST_VARIANCE_RATIO` times the sample variance (EGARCH is checked
+    with its normal-innovation forecast, a cheap closed form)."""
+    p = fit.params
+    with np.errstate(all="ignore"):
+        if fit.model == "egarch":
+            v = fc.egarch_forecast_variance(fit.last_variance, p["omega"], p["alpha"],
+                                            p["gamma"], p["beta"], 252, "normal", None)
+        else:
+            v = fit.forecast_variance(252)
+    worst = float(np.max(v)) if np.all(np.isfinite(v)) else math.inf
+    if worst <= MAX_FORECAST_VARIANCE_RATIO * sample_variance:
+        return None
+    ratio = math.sqrt(worst / sample_variance) if math.isfinite(worst) else math.inf
+    return (f"{fit.model} forecast is not plausible (a one-year forecast vol "
+            f"{ratio:.3g} times the history's)")
 
 
 def _ewma(y: np.ndarray, mean: str, backcast, reason: str) -> GarchFit:
@@ -924,7 +1267,14 @@ def fit_garch(returns, model: str = "gjr", dist: str = "t", mean: str = "constan
     -----
     Maximises ``sum_t l(e_t; sigma^2_t, nu)`` by a projected quasi-Newton method
     (:func:`optbench.volatility.optimize.minimize_box`) within positivity bounds and
-    the stationarity constraint (persistence <= 1). For GARCH and GJR the
+    the stationarity constraint (persistence <= 1); GJR in the coordinates
+    ``(omega, alpha, alpha + gamma, beta)`` so that both positivity constraints are
+    bounds. GJR and EGARCH start from GARCH's optimum (GJR nests it at gamma = 0),
+    a second climb starts from weak dynamics when that regime is within reach, and
+    ``converged`` is set only after the first-order (KKT) check recorded in
+    ``fit.optimality``. Degenerate histories (20 or more unchanged closes in a row,
+    fewer than 125 moving days, an implausible forecast) fall back or raise with the
+    reason. For GARCH and GJR the
     variance and its derivatives come from one blocked linear filter, giving an
     analytic gradient; EGARCH runs a loop over days with an adjoint (reverse-mode)
     gradient. If the
@@ -937,10 +1287,31 @@ def fit_garch(returns, model: str = "gjr", dist: str = "t", mean: str = "constan
     _check_choice("model", model, MODELS + ("auto",))
     _check_choice("dist", dist, ("normal", "t"))
     _check_choice("mean", mean, ("constant", "zero"))
+    _check_usable(y)
+    stale = _stale_reason(y)
+    if stale is not None:
+        return _ewma(y, mean, backcast, f"EWMA lambda=0.94 used: {stale} "
+                                        "(normal innovations)")
+    nested_fit = {}
+
+    def estimate(m):
+        # GARCH first: its optimum starts GJR (which nests it) and EGARCH
+        if m != "garch" and "garch" not in nested_fit:
+            g, gp = _estimate(y, "garch", dist, mean, backcast)
+            nested_fit["garch"] = (g, gp)
+        if m == "garch" and "garch" in nested_fit:
+            return nested_fit["garch"]
+        nest = nested_fit.get("garch")
+        f, prob = _estimate(y, m, dist, mean, backcast,
+                            nested=nest[0] if nest and nest[1] is None else None)
+        if m == "garch":
+            nested_fit["garch"] = (f, prob)
+        return f, prob
+
     if model == "auto":
         fits, bics, problems = {}, {}, []
         for m in MODELS:
-            f, prob = _estimate(y, m, dist, mean, backcast)
+            f, prob = estimate(m)
             if prob is None:
                 fits[m], bics[m] = f, f.bic
             else:
@@ -955,7 +1326,7 @@ def fit_garch(returns, model: str = "gjr", dist: str = "t", mean: str = "constan
     reasons = []
     m = model
     while m != "ewma":
-        f, prob = _estimate(y, m, dist, mean, backcast)
+        f, prob = estimate(m)
         if prob is None:
             if reasons:
                 return _replace(f, fallback_reason="; ".join(reasons)

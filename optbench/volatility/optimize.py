@@ -18,6 +18,8 @@ class MinimizeResult:
     message: str
     nit: int
     nfev: int
+    grad: np.ndarray | None = None   # gradient at x
+    hess: np.ndarray | None = None   # the quasi-Newton Hessian estimate at x
 
 
 def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
@@ -95,7 +97,8 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
             free = ~active
             pg = np.where(active, 0.0, g)
         if np.max(np.abs(pg)) < gtol:
-            return MinimizeResult(x, f, True, "projected gradient below tolerance", it, nfev)
+            return MinimizeResult(x, f, True, "projected gradient below tolerance", it, nfev,
+                                  g, B)
         d = np.zeros(k)
         if interior:   # nothing on a bound: the plain quasi-Newton step
             d = -(Hinv @ g)
@@ -125,7 +128,7 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
             # the full quasi-Newton step predicts a decrease far below what the
             # objective can resolve: nothing is left to gain
             return MinimizeResult(x, f, True, "predicted decrease below tolerance", it,
-                                  nfev)
+                                  nfev, g, B)
         step = 1.0
         if max_step is not None:
             big = np.abs(d) * step > cap_step
@@ -145,7 +148,8 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
             step *= 0.5
         if not accepted:
             ok = np.max(np.abs(pg)) < 1e3 * gtol
-            return MinimizeResult(x, f, bool(ok), "line search found no decrease", it, nfev)
+            return MinimizeResult(x, f, bool(ok), "line search found no decrease", it, nfev,
+                                  g, B)
         s = xn - x
         y = gn - g
         df = f - fn
@@ -160,5 +164,6 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
             Hinv = Ms @ Hinv @ Ms.T + np.outer(s, s) / sy
         if df < ftol * (1.0 + abs(f)):
             return MinimizeResult(x, f, True, "relative change in the objective below "
-                                              "tolerance", it, nfev)
-    return MinimizeResult(x, f, False, f"iteration limit ({max_iter}) reached", max_iter, nfev)
+                                              "tolerance", it, nfev, g, B)
+    return MinimizeResult(x, f, False, f"iteration limit ({max_iter}) reached", max_iter, nfev,
+                          g, B)

@@ -41,20 +41,54 @@ class VolSpec:
 
     # -- estimation ---------------------------------------------------------------
     def starting_values(self, var: float) -> list[list[float]]:
-        """Candidate starting points (a small grid; the estimator keeps the best)."""
+        """Candidate starting points (a small grid; the estimator keeps the best start
+        of each persistence regime, see :meth:`regime_of`)."""
+        return [v for _, v in self.regime_starts(var)]
+
+    def regime_starts(self, var: float) -> list[tuple[str, list[float]]]:
+        """Starting points labelled by regime: ``high`` persistence (>= 0.9) and
+        ``low`` persistence (weak dynamics), symmetric and asymmetric. Separate local
+        optima can sit in the two regimes when the clustering is weak, so the
+        estimator climbs from the best start of each and keeps the higher optimum."""
         if self.name == "garch":
-            grid = ((0.05, 0.90), (0.08, 0.97), (0.12, 0.99))
-            return [[var * (1 - p), a, p - a] for a, p in grid]
+            grid = (("high", 0.05, 0.90), ("high", 0.08, 0.97), ("high", 0.12, 0.99),
+                    ("high", 0.02, 0.97), ("low", 0.10, 0.50))
+            return [(r, [var * (1 - p), a, p - a]) for r, a, p in grid]
         if self.name == "gjr":
-            grid = ((0.03, 0.10, 0.95), (0.01, 0.15, 0.98), (0.06, 0.06, 0.90))
-            return [[var * (1 - p), a, g, p - a - g / 2] for a, g, p in grid]
+            grid = (("high", 0.03, 0.10, 0.95), ("high", 0.01, 0.15, 0.98),
+                    ("high", 0.06, 0.06, 0.90), ("high", 0.05, 0.0, 0.97),
+                    ("high", 0.20, -0.15, 0.95),
+                    ("low", 0.10, 0.10, 0.50), ("low", 0.30, -0.25, 0.50))
+            return [(r, [var * (1 - p), a, g, p - a - g / 2]) for r, a, g, p in grid]
         if self.name == "egarch":
-            # high-persistence starts, and one of weak dynamics (a separate optimum
-            # can sit there; the estimator climbs from both regimes)
-            grid = ((0.10, -0.05, 0.97), (0.15, -0.10, 0.95), (0.05, 0.0, 0.99),
-                    (0.10, -0.05, 0.70))
-            return [[math.log(var) * (1 - b), a, g, b] for a, g, b in grid]
-        return [[]]
+            grid = (("high", 0.10, -0.05, 0.97), ("high", 0.15, -0.10, 0.95),
+                    ("high", 0.05, 0.0, 0.99), ("high", 0.15, 0.10, 0.95),
+                    ("low", 0.10, -0.05, 0.70), ("low", 0.20, 0.0, 0.30))
+            return [(r, [math.log(var) * (1 - b), a, g, b]) for r, a, g, b in grid]
+        return [("high", [])]
+
+    def coordinate_map(self) -> np.ndarray:
+        """Matrix ``M`` with ``theta = M u``: the optimiser's coordinates ``u`` in
+        which the linear positivity constraints become bounds.
+
+        GJR: ``u = (omega, alpha, alpha + gamma, beta)``, so ``alpha >= 0`` and
+        ``alpha + gamma >= 0`` are the bounds ``u_1 >= 0``, ``u_2 >= 0`` and the
+        optimiser can move along either edge (with ``gamma`` itself as a coordinate
+        the edge ``alpha + gamma = 0`` is a slanted constraint that a box method stops
+        at). Identity for the other models.
+        """
+        k = len(self.param_names)
+        m = np.eye(k)
+        if self.name == "gjr":
+            m[2, 1] = -1.0   # gamma = (alpha + gamma) - alpha
+        return m
+
+    def internal_bounds(self, var: float) -> list[tuple[float, float]]:
+        """Bounds of the optimiser's coordinates (see :meth:`coordinate_map`)."""
+        b = self.bounds(var)
+        if self.name == "gjr":
+            b = [b[0], (0.0, 1.0), (0.0, 2.0), (0.0, 1.0)]
+        return b
 
     def bounds(self, var: float) -> list[tuple[float, float]]:
         if self.name == "garch":

@@ -1,33 +1,58 @@
-"""Speed of optbench's GARCH-family fits against the arch library, same data, same run.
+"""Speed and optimum of optbench's GARCH-family fits against the arch library, same
+data, same run.
 
-Prints the median wall time of each fit on 5,000 daily returns of arch's bundled
-S&P 500 sample (arch.data.sp500), alone and with its robust standard errors read,
-and the ratios arch / optbench. The two libraries are timed alternately, repeat by
-repeat, so that a change in the machine's load affects both alike. Targets: optbench at
-least 5x faster for GARCH-normal and GJR-t, and at least as fast for EGARCH-normal.
-Run: .venv/bin/python tests/benchmarks/bench_garch_fit.py
+Data: arch's bundled datasets (the arch library's ``arch.data``): ``sp500`` (last
+5,000 daily returns), ``nasdaq``, ``wti`` and ``vix``; daily log returns of the
+adjusted close (sp500, nasdaq) or the close column (wti, vix), missing prices dropped.
+Models: GARCH-normal, GJR-t and EGARCH-t with a constant mean. The two libraries are
+timed alternately, round by round, in one process, so that a change in the machine's
+load affects both alike; each figure is a median over the rounds.
+
+Printed per dataset: optbench's and arch's median time, the ratio arch / optbench and
+the log-likelihood difference optbench - arch (arch's percent-return likelihood
+converted to decimal returns by ``+ n ln 100``); then per model the median ratio over
+the four datasets. Targets: median ratio >= 4 for GARCH and GJR, >= 3 for EGARCH, and
+no fit below arch's log-likelihood by more than 1e-6.
+Run: .venv/bin/python tests/benchmarks/bench_garch_fit.py [rounds]
 """
 from __future__ import annotations
 
+import math
 import statistics
+import sys
 import time
 import warnings
 
 import numpy as np
 from arch import arch_model
-from arch.data import sp500
 
 from optbench.volatility.garch import fit_garch
 
-REPEATS = 21
+ROUNDS = 15
+CASES = [("garch", "normal", dict(vol="GARCH", p=1, q=1, dist="normal")),
+         ("gjr", "t", dict(vol="GARCH", p=1, o=1, q=1, dist="studentst")),
+         ("egarch", "t", dict(vol="EGARCH", p=1, o=1, q=1, dist="studentst"))]
+TARGET = {"garch": 4.0, "gjr": 4.0, "egarch": 3.0}
 
 
-def median_times(fns, repeats=REPEATS):
-    """Median wall time of each function, the functions run in turn every repeat."""
+def dataset_returns() -> dict:
+    from arch.data import nasdaq, sp500, vix, wti
+
+    out = {}
+    for name, mod in (("sp500", sp500), ("nasdaq", nasdaq), ("wti", wti), ("vix", vix)):
+        d = mod.load()
+        col = "Adj Close" if "Adj Close" in d.columns else d.columns[0]
+        y = np.diff(np.log(d[col].dropna().to_numpy(dtype=float)))
+        out[name] = y[-5000:] if name == "sp500" else y
+    return out
+
+
+def alternate(fns, rounds):
+    """Median wall time of each function, the functions run in turn every round."""
     for fn in fns:
         fn()  # warm-up
     times = [[] for _ in fns]
-    for _ in range(repeats):
+    for _ in range(rounds):
         for fn, ts in zip(fns, times):
             t0 = time.perf_counter()
             fn()
@@ -35,28 +60,35 @@ def median_times(fns, repeats=REPEATS):
     return [statistics.median(ts) for ts in times]
 
 
-def main() -> None:
-    prices = sp500.load()["Adj Close"]
-    y = np.diff(np.log(prices.to_numpy()))[-5000:]     # decimal log returns
-    y_pct = 100.0 * y                                    # arch's customary units
-    cases = [("garch", "normal", dict(vol="GARCH", p=1, q=1, dist="normal")),
-             ("gjr", "t", dict(vol="GARCH", p=1, o=1, q=1, dist="studentst")),
-             ("egarch", "normal", dict(vol="EGARCH", p=1, o=1, q=1, dist="normal"))]
-    print("Both libraries compute the robust covariance on first use, so each is timed")
-    print("for the fit alone and for the fit plus reading its standard errors.")
-    print(f"{'model':<14}{'optbench':>10}{'arch':>9}{'ratio':>7}{'optbench+se':>13}"
-          f"{'arch+se':>9}{'ratio':>7}   (ms)")
-    for model, dist, kw in cases:
-        am = arch_model(y_pct, mean="Constant", rescale=False, **kw)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            ours, ref = median_times([lambda: fit_garch(y, model, dist),
-                                      lambda: am.fit(disp="off")])
-            ours_se, ref_se = median_times([lambda: fit_garch(y, model, dist).std_errors,
-                                            lambda: am.fit(disp="off").std_err])
-        print(f"{model + '-' + dist:<14}{ours * 1e3:>10.2f}{ref * 1e3:>9.2f}{ref / ours:>7.2f}"
-              f"{ours_se * 1e3:>13.2f}{ref_se * 1e3:>9.2f}{ref_se / ours_se:>7.2f}")
+def main(rounds: int = ROUNDS) -> None:
+    data = dataset_returns()
+    print(f"median of {rounds} alternating rounds per cell; ratio = arch / optbench")
+    print(f"{'model':<10}{'dataset':<8}{'n':>6}{'optbench ms':>13}{'arch ms':>9}"
+          f"{'ratio':>7}{'loglik - arch':>15}")
+    worst_ll = math.inf
+    for model, dist, kw in CASES:
+        ratios = []
+        for name, y in data.items():
+            am = arch_model(100.0 * y, mean="Constant", rescale=False, **kw)
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                ref = am.fit(disp="off")
+                ours = fit_garch(y, model, dist)
+                t_ours, t_ref = alternate([lambda: fit_garch(y, model, dist),
+                                           lambda: am.fit(disp="off")], rounds)
+            dll = ours.loglik - (ref.loglikelihood + y.size * math.log(100.0))
+            worst_ll = min(worst_ll, dll)
+            ratios.append(t_ref / t_ours)
+            print(f"{model + '-' + dist:<10}{name:<8}{y.size:>6}{t_ours * 1e3:>13.2f}"
+                  f"{t_ref * 1e3:>9.2f}{t_ref / t_ours:>7.2f}{dll:>15.2e}"
+                  + ("" if ours.converged and ours.model == model else
+                     f"  ({ours.model}, {ours.fallback_reason})"))
+        med = statistics.median(ratios)
+        print(f"{model + '-' + dist:<10}median ratio {med:.2f} (target >= "
+              f"{TARGET[model]:g})\n")
+    print(f"worst log-likelihood difference optbench - arch: {worst_ll:.2e} "
+          "(target >= -1e-6)")
 
 
 if __name__ == "__main__":
-    main()
+    main(int(sys.argv[1]) if len(sys.argv) > 1 else ROUNDS)

@@ -166,3 +166,39 @@ def test_egarch_band_brackets_the_forecast(pct_returns, dist):
     lo, hi = fit.forecast_band([5, 21, 126], seed=3)
     mid = fit.forecast_vol([5, 21, 126])
     assert np.all(lo < mid) and np.all(mid < hi)
+
+
+def _exact_average_variance(s1: float, omega: float, p: float, T: int):
+    """The direct sum ``(1/T) sum_{k<T} [omega sum_{j<k} p^j + p^k s1]`` in exact
+    rational arithmetic (Python's fractions) at the given doubles: the definition of
+    the GARCH(1,1) multi-step forecast (Bollerslev 1986) summed term by term."""
+    from fractions import Fraction
+
+    s1, omega, p = Fraction(s1), Fraction(omega), Fraction(p)
+    total, geo, pk = Fraction(0), Fraction(0), Fraction(1)
+    for _ in range(T):
+        total += omega * geo + pk * s1
+        geo += pk
+        pk *= p
+    return total / T
+
+
+@pytest.mark.parametrize("gap", [0.9, 0.5, 1e-3, 1e-6, 1e-9, 1e-10, 1e-11, 1e-13, 1e-15, 0.0])
+def test_forecast_vol_near_unit_persistence_matches_the_direct_sum(pct_returns, gap):
+    """forecast_vol stays exact (1e-12 relative) as the persistence approaches one,
+    and at exactly one, against the exact direct sum of the daily forecasts."""
+    y = pct_returns.to_numpy()[-1000:] / 100
+    beta = 0.9 - gap
+    fit = fix_garch(y, {"mu": 0.0, "omega": 2e-6, "alpha": 0.1, "beta": beta},
+                    "garch", "normal")
+    p = fit.persistence
+    days = np.array([1, 2, 5, 21, 63, 252])
+    got = fit.forecast_vol(days)
+    for T, v in zip(days, got):
+        ref = math.sqrt(252 * float(_exact_average_variance(fit.last_variance, 2e-6, p,
+                                                            int(T))))
+        assert abs(v / ref - 1) < 1e-12, (gap, T, v, ref)
+    daily = fit.forecast_variance(252)
+    ref_last = 252 * _exact_average_variance(fit.last_variance, 2e-6, p, 252) \
+        - 251 * _exact_average_variance(fit.last_variance, 2e-6, p, 251)
+    assert abs(daily[-1] / float(ref_last) - 1) < 1e-12

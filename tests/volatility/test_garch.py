@@ -179,20 +179,25 @@ def test_result_fields_and_json(pct_returns):
 
 
 def test_fallback_is_reported(pct_returns, monkeypatch):
-    """A GJR fit that fails falls back to GARCH, and says so."""
+    """A GJR fit that stops away from an optimum fails the first-order check, is
+    not called converged, falls back to GARCH, and says so."""
     y = pct_returns.to_numpy()[-1500:] / 100
     real = garch_mod.minimize_box
 
     def failing_for_gjr(fun, x0, *args, **kw):
         res = real(fun, x0, *args, **kw)
-        if len(x0) == 6:  # mu, omega, alpha, gamma, beta, nu
-            res = dataclasses.replace(res, success=False, message="iteration limit reached")
+        if len(x0) == 6:  # mu, omega, alpha, alpha+gamma, beta, nu: stop at the start
+            x = np.clip(x0, args[0], args[1])
+            res = dataclasses.replace(res, x=x, fun=fun(x)[0], success=False,
+                                      message="iteration limit reached", grad=None,
+                                      hess=None)
         return res
 
     monkeypatch.setattr(garch_mod, "minimize_box", failing_for_gjr)
     fit = fit_garch(y, "gjr", "t")
     assert fit.model == "garch" and fit.converged
-    assert fit.fallback_reason.startswith("gjr did not converge")
+    assert fit.optimality["passed"]
+    assert fit.fallback_reason.startswith("gjr stopped short of an optimum")
     assert "fell back to garch" in fit.fallback_reason
     assert fit.to_dict()["fallback_reason"] == fit.fallback_reason
 
@@ -201,15 +206,19 @@ def test_everything_failing_falls_back_to_ewma(pct_returns, monkeypatch):
     y = pct_returns.to_numpy()[-1500:] / 100
     real = garch_mod.minimize_box
 
-    def always_fails(fun, x0, *args, **kw):
+    def always_fails(fun, x0, *args, **kw):   # every fit stops at its start
         res = real(fun, x0, *args, **kw)
-        return dataclasses.replace(res, success=False, message="line search found no decrease")
+        x = np.clip(x0, args[0], args[1])
+        return dataclasses.replace(res, x=x, fun=fun(x)[0], success=False,
+                                   message="line search found no decrease", grad=None,
+                                   hess=None)
 
     monkeypatch.setattr(garch_mod, "minimize_box", always_fails)
     fit = fit_garch(y, "egarch", "t")
     assert fit.model == "ewma"
     assert fit.fallback_reason.startswith("EWMA lambda=0.94 used:")
-    assert "egarch did not converge" in fit.fallback_reason
+    assert "egarch stopped short of an optimum" in fit.fallback_reason
+    assert "garch stopped short of an optimum" in fit.fallback_reason
     assert np.all(np.isfinite(fit.forecast_vol([5, 21, 63])))
 
 
