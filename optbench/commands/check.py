@@ -49,11 +49,14 @@ def _load(args):
     from optbench.data.scenario import read_meta
     path = Path(args.chain)
     kwargs = market_overrides(args)
+    dividends = kwargs.pop("dividends", None)
     kwargs["max_spread"] = None if args.any_spread else (
         args.max_spread if args.max_spread is not None else DEFAULT_MAX_SPREAD)
     folder = path if path.is_dir() else path.parent
     meta = read_meta(folder) if (folder / "meta.toml").is_file() else {}
-    return load_chain(path, meta=meta, holidays=meta.get("holidays", ()), **kwargs)
+    chain = load_chain(path, meta=meta, holidays=meta.get("holidays", ()), **kwargs)
+    from optbench.data.dividends import attach_dividends
+    return attach_dividends(chain, dividends, meta, folder / "meta.toml")
 
 
 def _cell(value) -> object:

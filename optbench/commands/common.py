@@ -90,6 +90,9 @@ def add_market_overrides(parser: argparse.ArgumentParser) -> None:
                        help="risk-free rate, continuously compounded decimal (0.04 = 4%%)")
     group.add_argument("--div-yield", dest="div_yield", type=parse_float,
                        help="dividend yield, continuously compounded decimal")
+    group.add_argument("--dividends", metavar="FILE", default=None,
+                       help="cash dividends of the underlying: a CSV file with ex_date "
+                            "and amount columns (default: meta.toml's [[dividends]])")
     add_contract_options(group)
 
 
@@ -112,7 +115,7 @@ def contract_overrides(args: argparse.Namespace) -> dict:
 def market_overrides(args: argparse.Namespace) -> dict:
     """The overrides the user gave (market inputs, style and multiplier), as keyword
     arguments for the loaders."""
-    keys = ("spot", "asof", "rate", "div_yield")
+    keys = ("spot", "asof", "rate", "div_yield", "dividends")
     return ({k: getattr(args, k) for k in keys if getattr(args, k, None) is not None}
             | contract_overrides(args))
 

@@ -97,6 +97,9 @@ class OptionChain:
         ``long`` or ``wide``.
     notes : tuple of str
         Decisions the loader took that the user should know about.
+    dividends : DividendSchedule or None
+        Known cash dividends (:mod:`optbench.data.dividends`), attached by the scenario
+        loader or :func:`optbench.data.dividends.attach_dividends`.
     """
 
     source: str
@@ -117,6 +120,7 @@ class OptionChain:
     style_source: str = "default"
     multiplier_source: str = "default"
     notes: tuple = field(default_factory=tuple)
+    dividends: object = None
 
     @property
     def expiries(self) -> list[_dt.date]:
