@@ -273,6 +273,9 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
                                    ("div_yield", div_yield), ("style", style),
                                    ("multiplier", multiplier)) if v is not None}
     say("loading the chain and the history")
+    if dividends is not None and isinstance(chain, (str, Path)):
+        overrides["dividends"] = dividends       # the loader's price bounds allow for them
+        dividends = None
     ch, hist, holidays, source = _load(chain, history, overrides)
     if dividends is not None:
         from optbench.data.dividends import attach_dividends

@@ -54,9 +54,9 @@ def _load(args):
         args.max_spread if args.max_spread is not None else DEFAULT_MAX_SPREAD)
     folder = path if path.is_dir() else path.parent
     meta = read_meta(folder) if (folder / "meta.toml").is_file() else {}
-    chain = load_chain(path, meta=meta, holidays=meta.get("holidays", ()), **kwargs)
-    from optbench.data.dividends import attach_dividends
-    return attach_dividends(chain, dividends, meta, folder / "meta.toml")
+    from optbench.data.dividends import resolve_dividends
+    kwargs["dividends"] = resolve_dividends(dividends, meta, folder / "meta.toml")
+    return load_chain(path, meta=meta, holidays=meta.get("holidays", ()), **kwargs)
 
 
 def _cell(value) -> object:

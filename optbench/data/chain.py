@@ -265,7 +265,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
                multiplier: float | None = None,
                max_spread: float | None = DEFAULT_MAX_SPREAD,
                holidays: Iterable = (), tiny_price: float = DEFAULT_TINY_PRICE,
-               meta: Mapping | None = None) -> OptionChain:
+               meta: Mapping | None = None, dividends=None) -> OptionChain:
     """Load and validate an option chain.
 
     Parameters
@@ -297,6 +297,9 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         Mids below this many price units are flagged ``tiny_price``.
     meta : mapping, optional
         A scenario's ``meta.toml`` values, used where neither caller nor file gives one.
+    dividends : DividendSchedule or path of a dividend CSV, optional
+        Known cash dividends (:mod:`optbench.data.dividends`): the price bounds allow
+        for them and the chain carries them (``dividends``) with a note.
 
     Returns
     -------
@@ -548,8 +551,12 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     if max_spread is not None and (not np.isfinite(max_spread) or max_spread <= 0):
         raise InputError("--max-spread", f"must be a positive number, not {max_spread}")
 
+    if dividends is not None:
+        from optbench.data.dividends import resolve_dividends
+        dividends = resolve_dividends(dividends, None, None)
     reason, detail = assign_reasons(p, spot=spot_v, rate=rate_v, div_yield=q_v,
-                                    max_spread=max_spread)
+                                    max_spread=max_spread,
+                                    dividends=dividends.arrays(asof_d) if dividends else None)
     kept = reason == ""
 
     # ---- optional fields
@@ -630,5 +637,8 @@ def load_chain(path: str | Path, *, spot: float | None = None,
                        quotes=quotes, rejected=rejected, quality=quality, holidays=hol,
                        spot_source=spot_source, asof_source=asof_source,
                        rate_source=rate_source, div_yield_source=q_source,
-                       layout="wide" if wide else "long", notes=tuple(notes),
-                       style_source=style_source, multiplier_source=multiplier_source)
+                       layout="wide" if wide else "long",
+                       style_source=style_source, multiplier_source=multiplier_source,
+                       dividends=dividends,
+                       notes=tuple(notes) + ((dividends.describe(asof_d),) if dividends
+                                             else ()))

@@ -140,9 +140,10 @@ def load_scenario(path: str | Path, **overrides) -> Scenario:
     meta = read_meta(meta_path) if meta_path else {}
     holidays = overrides.pop("holidays", None)
     holidays = tuple(holidays) if holidays else meta.get("holidays", ())
-    chain = load_chain(chain_path, meta=meta, holidays=holidays, **overrides)
-    from optbench.data.dividends import attach_dividends
-    chain = attach_dividends(chain, dividends_override, meta, meta_path)
+    from optbench.data.dividends import resolve_dividends
+    dividends = resolve_dividends(dividends_override, meta, meta_path)
+    chain = load_chain(chain_path, meta=meta, holidays=holidays, dividends=dividends,
+                       **overrides)
     history = load_history(history_path)
     code = str(meta.get("code") or chain.underlying or chain_path.parent.name)
     name = str(meta.get("name") or code)

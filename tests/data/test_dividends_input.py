@@ -134,3 +134,27 @@ def test_schedule_is_frozen():
     s = DividendSchedule((_dt.date(2027, 1, 1),), (1.0,), "x")
     with pytest.raises(AttributeError):
         s.source = "y"
+
+
+def test_price_bounds_allow_for_dividends(tmp_path):
+    # a deep in-the-money European call of an underlying paying 5 before expiry is worth
+    # about (S - PV) - K e^{-rt} (Hull ch. 11, lower bound with dividends): below the
+    # dividend-free bound S - K e^{-rt}, yet a fair quote
+    from optbench.data.chain import load_chain
+    from optbench.pricing.cash_dividends import escrowed_european_price
+    t = 181 / 365
+    fair = float(escrowed_european_price(100, 50, t, 0.04, 0.0, 0.3, True, [49 / 365], [5.0]))
+    chain = tmp_path / "chain.csv"
+    chain.write_text("quote_date,underlying_price,expiry,strike,type,bid,ask\n"
+                     f"2026-11-27,100,2027-05-27,50,C,{fair - 0.05:.2f},{fair + 0.05:.2f}\n")
+    divs = tmp_path / "d.csv"
+    divs.write_text("ex_date,amount\n2027-01-15,5\n")
+    plain = load_chain(chain, rate=0.04)
+    assert plain.quality.rejected == {"below_intrinsic": 1}
+    with_divs = load_chain(chain, rate=0.04, dividends=divs)
+    assert with_divs.quality.rows_used == 1 and with_divs.dividends.amounts == (5.0,)
+    out = _run("check", str(chain), "--rate", "0.04", "--dividends", str(divs),
+               "--format", "json")
+    doc = json.loads(out.stdout)
+    assert doc["quality"]["rows_used"] == 1
+    assert any(n.startswith("dividend schedule from") for n in doc["notes"])
