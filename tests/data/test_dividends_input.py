@@ -158,3 +158,12 @@ def test_price_bounds_allow_for_dividends(tmp_path):
     doc = json.loads(out.stdout)
     assert doc["quality"]["rows_used"] == 1
     assert any(n.startswith("dividend schedule from") for n in doc["notes"])
+
+
+def test_exports_name_the_dividend_schedule(scenario):
+    out = _run("compare", str(scenario), "--paths", "200", "--format", "csv")
+    assert out.returncode == 0, out.stderr
+    assert "cash dividends (" in out.stdout.splitlines()[0]     # the provenance line
+    from optbench.report.provenance import sources_text
+    assert sources_text({"spot": "file", "dividends": "/x/meta.toml"}) == \
+        "spot file, cash dividends meta.toml"
