@@ -161,9 +161,10 @@ def test_price_bounds_allow_for_dividends(tmp_path):
 
 
 def test_exports_name_the_dividend_schedule(scenario):
-    out = _run("compare", str(scenario), "--paths", "200", "--format", "csv")
+    out = _run("compare", str(scenario), "--paths", "200", "--format", "md")
     assert out.returncode == 0, out.stderr
-    assert "cash dividends (" in out.stdout.splitlines()[0]     # the provenance line
+    inputs = [line for line in out.stdout.splitlines() if "Inputs:" in line]
+    assert inputs and "cash dividends (" in inputs[0]          # the provenance line
     from optbench.report.provenance import sources_text
     assert sources_text({"spot": "file", "dividends": "/x/meta.toml"}) == \
         "spot file, cash dividends meta.toml"
