@@ -167,12 +167,13 @@ def _history(history):
 
 
 # ------------------------------------------------------------------- per-quote vols
-def _quote_vols(q: pd.DataFrame, fwd: pd.DataFrame, spot: float):
+def _quote_vols(q: pd.DataFrame, fwd: pd.DataFrame, spot: float, dividends=None):
     """Per-quote forward, discount, rate, carry and bid/mid/ask implied vols
-    (:func:`optbench.pricing.quotes.quote_implied_vols`; American quotes by the tree)."""
+    (:func:`optbench.pricing.quotes.quote_implied_vols`; American quotes by the tree,
+    with the cash ``dividends`` (times, amounts) at their dates when given)."""
     from optbench.pricing.quotes import quote_implied_vols
 
-    iv = quote_implied_vols(q, fwd, spot)
+    iv = quote_implied_vols(q, fwd, spot, dividends=dividends)
     idx = pd.Index(fwd["expiry"]).get_indexer(q["expiry"])
     r = fwd["rate"].to_numpy(float)[idx]
     carry = fwd["carry"].to_numpy(float)[idx]
@@ -227,7 +228,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
             progress: Callable[[str], None] | None = None, drift: str = "risk-free",
             excess_return: float | None = None,
             floor: float = DEFAULT_FLOOR,
-            max_strike_ratio: float | None = None) -> Comparison:
+            max_strike_ratio: float | None = None, dividends=None) -> Comparison:
     """Compare the chain's implied vols with the fitted model's forecast.
 
     Parameters
@@ -258,6 +259,10 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     floor : the protection floor as a fraction of spot, in (0, 1] (default 0.90).
     max_strike_ratio : the loader's plausible-strike factor (default 10; see
         :func:`optbench.data.chain.load_chain`).
+    dividends : cash dividends (a CSV path or a
+        :class:`~optbench.data.dividends.DividendSchedule`) in place of the
+        scenario's ``meta.toml`` ones; forwards, implied vols and American prices then
+        use them (escrowed-dividend model, :mod:`optbench.pricing.cash_dividends`).
 
     Returns
     -------
@@ -287,7 +292,13 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
                                    ("multiplier", multiplier),
                                    ("max_strike_ratio", max_strike_ratio)) if v is not None}
     say("loading the chain and the history")
+    if dividends is not None and isinstance(chain, (str, Path)):
+        overrides["dividends"] = dividends       # the loader's price bounds allow for them
+        dividends = None
     ch, hist, holidays, source = _load(chain, history, overrides)
+    if dividends is not None:
+        from optbench.data.dividends import attach_dividends
+        ch = attach_dividends(ch, dividends)
     warnings: list[str] = list(getattr(ch, "notes", ()))
     for name, flag in (("rate", "--rate"), ("div_yield", "--div-yield")):
         if getattr(ch, f"{name}_source", "") == "default":
@@ -311,8 +322,13 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
 
     # --- forwards and implied vols (vectorised over every quote)
     say("implied forwards and vols")
-    fwd = implied_forwards(q, S, r0, q0)
-    F, D, r_q, carry_q, vols, american = _quote_vols(q, fwd, S)
+    schedule = getattr(ch, "dividends", None)
+    divs = schedule.arrays(ch.asof) if schedule is not None else None
+    fwd = implied_forwards(q, S, r0, q0, dividends=divs)
+    if divs is not None:
+        from optbench.pricing.forwards import forward_disagreements
+        warnings.extend(forward_disagreements(fwd))
+    F, D, r_q, carry_q, vols, american = _quote_vols(q, fwd, S, divs)
     iv_bid, iv_mid, iv_ask = vols
     K = q["strike"].to_numpy(float)
     t_q = q["t"].to_numpy(float)
@@ -373,8 +389,15 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         price_fc = black_price(F, K, t_q, D, fc_q, is_call)
         if american.any():          # American quotes: the tree, on spot, rate and carry
             am = np.flatnonzero(american)
-            price_fc[am] = bsm_price(S, K[am], t_q[am], r_q[am], carry_q[am], fc_q[am],
-                                     is_call[am], style="american")
+            if divs is not None:    # cash dividends at their ex-dates
+                from optbench.pricing.american_dividends import american_dividend_price
+                cash_q = fwd["cash_carry"].to_numpy(float)[expiry_codes]
+                price_fc[am] = american_dividend_price(S, K[am], t_q[am], r_q[am],
+                                                       cash_q[am], fc_q[am], is_call[am],
+                                                       *divs)
+            else:
+                price_fc[am] = bsm_price(S, K[am], t_q[am], r_q[am], carry_q[am], fc_q[am],
+                                         is_call[am], style="american")
         vega_vol = np.where(np.isfinite(iv_mid), iv_mid, fc_q)
         g = bsm_greeks(S, K, t_q, r_q, carry_q, vega_vol, is_call)
     mid = q["mid"].to_numpy(float)
@@ -507,7 +530,8 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         warnings=tuple(warnings), caution=CAUTION, fit=fit,
         sources={name: getattr(ch, f"{name}_source", "file")
                  for name in ("spot", "asof", "rate", "div_yield", "style",
-                              "multiplier")},
+                              "multiplier")}
+        | ({"dividends": schedule.source} if schedule is not None else {}),
         drift=drift_choice, floor=floor,
         protection_rule=PROTECTION_RULE.format(floor=floor, low=lo_level, high=hi_level,
                                                drift=drift_choice.text))

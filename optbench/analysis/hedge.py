@@ -44,7 +44,9 @@ at the forward ATM implied volatility of the term structure between those times,
 is interpolated linearly in :math:`t` between the listed expiries and extended at
 the last expiry's forward variance, plus each leg's skew offset (its implied vol
 minus the ATM vol today), and the same half-spread per unit of spot as quoted today.
-The price is scaled to today's spot (no drift assumed). Total variance interpolation:
+The price is scaled to today's spot (no drift assumed); with a cash dividend schedule
+the carry of every roll is the chosen expiry's (its dividends as a yield). Total
+variance interpolation:
 Gatheral, *The Volatility Surface* (2006), ch. 3.
 """
 from __future__ import annotations
@@ -381,8 +383,11 @@ def hedge_from_comparison(comparison, request: HedgeRequest, *, n_paths: int = 2
         w_of = total_variance_curve([r.t for r in comparison.expiries],
                                     [r.atm_iv for r in comparison.expiries])
         atm_now = row.atm_iv if math.isfinite(row.atm_iv) else float(np.sqrt(w_of(tau) / tau))
+        # with cash dividends the roll's carry is the expiry's (dividends included)
+        q_roll = row.carry if ("dividends" in (getattr(comparison, "sources", None) or {})
+                               and math.isfinite(row.carry)) else q
         roll_unit = annual_roll_cost(
-            spot=spot, rate=rate, div_yield=q, tau=tau, calendar_days=row.calendar_days,
+            spot=spot, rate=rate, div_yield=q_roll, tau=tau, calendar_days=row.calendar_days,
             w_of=w_of, atm_iv_now=atm_now, leg_moneyness=k / spot, leg_is_call=c,
             leg_signs=s, leg_iv=np.array([leg.iv_mid for leg in legs]),
             leg_half_spread=half_spread)

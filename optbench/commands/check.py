@@ -49,10 +49,13 @@ def _load(args):
     from optbench.data.scenario import read_meta
     path = Path(args.chain)
     kwargs = market_overrides(args)
+    dividends = kwargs.pop("dividends", None)
     kwargs["max_spread"] = None if args.any_spread else (
         args.max_spread if args.max_spread is not None else DEFAULT_MAX_SPREAD)
     folder = path if path.is_dir() else path.parent
     meta = read_meta(folder) if (folder / "meta.toml").is_file() else {}
+    from optbench.data.dividends import resolve_dividends
+    kwargs["dividends"] = resolve_dividends(dividends, meta, folder / "meta.toml")
     return load_chain(path, meta=meta, holidays=meta.get("holidays", ()), **kwargs)
 
 

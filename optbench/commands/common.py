@@ -166,6 +166,9 @@ def add_market_overrides(parser: argparse.ArgumentParser) -> None:
                        help="risk-free rate, continuously compounded (0.04, 4%% or 4)")
     group.add_argument("--div-yield", dest="div_yield", type=rate,
                        help="dividend yield, continuously compounded (0.015, 1.5%% or 1.5)")
+    group.add_argument("--dividends", metavar="FILE", default=None,
+                       help="cash dividends of the underlying: a CSV file with ex_date "
+                            "and amount columns (default: meta.toml's [[dividends]])")
     add_contract_options(group)
     group.add_argument("--max-strike-ratio", dest="max_strike_ratio", type=parse_float,
                        default=None, metavar="FACTOR",
@@ -192,7 +195,7 @@ def contract_overrides(args: argparse.Namespace) -> dict:
 def market_overrides(args: argparse.Namespace) -> dict:
     """The overrides the user gave (market inputs, style and multiplier), as keyword
     arguments for the loaders."""
-    keys = ("spot", "asof", "rate", "div_yield", "max_strike_ratio")
+    keys = ("spot", "asof", "rate", "div_yield", "max_strike_ratio", "dividends")
     return ({k: getattr(args, k) for k in keys if getattr(args, k, None) is not None}
             | contract_overrides(args))
 

@@ -58,6 +58,13 @@ def run(args: argparse.Namespace) -> int:
     history = Path(args.history) if args.history else None
     if history is not None and not history.is_file():
         raise InputError(history, "no such file")
+    # the workbench's settings have no field for these yet: say so rather than ignore them
+    for flag, value, where in (("--dividends", getattr(args, "dividends", None),
+                                "a [[dividends]] table or dividends = FILE in meta.toml"),
+                               ("--max-strike-ratio", getattr(args, "max_strike_ratio", None),
+                                "optbench check / compare")):
+        if value is not None:
+            raise InputError(flag, f"not available in the workbench yet; use {where}")
     if args.max_spread is not None and args.max_spread <= 0:
         raise InputError("--max-spread", f"must be positive, not {args.max_spread:g}")
     from optbench.tui.app import make_app

@@ -13,6 +13,7 @@ _NAMES = {
     "load_history": "history", "PriceHistory": "history",
     "load_scenario": "scenario", "Scenario": "scenario", "read_meta": "scenario",
     "parse_occ": "occ", "format_occ": "occ",
+    "DividendSchedule": "dividends", "read_dividends": "dividends",
     "REASONS": "validate", "WARNINGS": "validate", "no_arbitrage_bounds": "validate",
 }
 

@@ -106,6 +106,9 @@ class OptionChain:
     spot_reference, spot_reference_source : float, str
         With a caller's spot: the spot the file (or meta.toml) gives, and which of
         them gave it; NaN and "" when there is none or the spot is not overridden.
+    dividends : DividendSchedule or None
+        Known cash dividends (:mod:`optbench.data.dividends`), attached by the scenario
+        loader or :func:`optbench.data.dividends.attach_dividends`.
     """
 
     source: str
@@ -130,6 +133,7 @@ class OptionChain:
     #: where it came from, for the consistency checks (NaN and "" otherwise)
     spot_reference: float = float("nan")
     spot_reference_source: str = ""
+    dividends: object = None
 
     @property
     def expiries(self) -> list[_dt.date]:
@@ -305,7 +309,8 @@ def load_chain(path: str | Path, *, spot: float | None = None,
                max_spread: float | None = DEFAULT_MAX_SPREAD,
                holidays: Iterable = (), tiny_price: float = DEFAULT_TINY_PRICE,
                meta: Mapping | None = None,
-               max_strike_ratio: float | None = DEFAULT_MAX_STRIKE_RATIO) -> OptionChain:
+               max_strike_ratio: float | None = DEFAULT_MAX_STRIKE_RATIO,
+               dividends=None) -> OptionChain:
     """Load and validate an option chain.
 
     Parameters
@@ -341,6 +346,9 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         Strikes above ``spot * max_strike_ratio`` or below ``spot / max_strike_ratio``
         are rejected as ``implausible_strike`` (default
         :data:`DEFAULT_MAX_STRIKE_RATIO`); ``None`` switches the rule off.
+    dividends : DividendSchedule or path of a dividend CSV, optional
+        Known cash dividends (:mod:`optbench.data.dividends`): the price bounds allow
+        for them and the chain carries them (``dividends``) with a note.
 
     Returns
     -------
@@ -624,8 +632,12 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         raise InputError("--max-strike-ratio", f"must be a number above 1, not "
                                                f"{max_strike_ratio}")
 
+    if dividends is not None:
+        from optbench.data.dividends import resolve_dividends
+        dividends = resolve_dividends(dividends, None, None)
     reason, detail = assign_reasons(p, spot=spot_v, rate=rate_v, div_yield=q_v,
-                                    max_spread=max_spread, max_strike_ratio=max_strike_ratio)
+                                    max_spread=max_spread, max_strike_ratio=max_strike_ratio,
+                                    dividends=dividends.arrays(asof_d) if dividends else None)
     kept = reason == ""
 
     # ---- optional fields
@@ -704,6 +716,9 @@ def load_chain(path: str | Path, *, spot: float | None = None,
                        quotes=quotes, rejected=rejected, quality=quality, holidays=hol,
                        spot_source=spot_source, asof_source=asof_source,
                        rate_source=rate_source, div_yield_source=q_source,
-                       layout="wide" if wide else "long", notes=tuple(notes),
+                       layout="wide" if wide else "long",
                        style_source=style_source, multiplier_source=multiplier_source,
-                       spot_reference=spot_ref, spot_reference_source=spot_ref_source)
+                       spot_reference=spot_ref, spot_reference_source=spot_ref_source,
+                       dividends=dividends,
+                       notes=tuple(notes) + ((dividends.describe(asof_d),) if dividends
+                                             else ()))

@@ -2,8 +2,10 @@
 
 A scenario is a folder holding ``chain.csv`` (or ``chain.parquet``),
 ``history.csv`` and optionally ``meta.toml`` (``name``, ``code``, ``spot``,
-``asof``, ``rate``, ``div_yield``, ``style``, ``multiplier``, ``holidays``). A chain
-file whose folder holds ``history.csv`` works too.
+``asof``, ``rate``, ``div_yield``, ``style``, ``multiplier``, ``holidays``,
+``dividends``). A chain file whose folder holds ``history.csv`` works too.
+``dividends`` are ``[[dividends]]`` tables with ``ex_date`` and ``amount`` (or the
+name of a dividend CSV file beside meta.toml): :mod:`optbench.data.dividends`.
 
 Precedence for each market input: the caller's override, then the chain file's
 own column (the quote-time truth), then ``meta.toml``, then the default.
@@ -41,6 +43,8 @@ class Scenario:
         meta.toml as read (empty without one).
     holidays : tuple of datetime.date
         Exchange holidays for the trading-day calendar.
+    dividends : DividendSchedule or None
+        Known cash dividends (also on ``chain.dividends``), with their source.
     """
 
     path: Path
@@ -50,6 +54,7 @@ class Scenario:
     history: PriceHistory
     meta: dict = field(default_factory=dict)
     holidays: tuple = ()
+    dividends: object = None
 
 
 def read_meta(path: str | Path) -> dict:
@@ -112,13 +117,16 @@ def load_scenario(path: str | Path, **overrides) -> Scenario:
         Any keyword of :func:`optbench.data.chain.load_chain` (``spot``, ``asof``,
         ``rate``, ``div_yield``, ``style``, ``multiplier``, ``max_spread``,
         ``holidays``); they beat the file's columns, which beat meta.toml.
-        ``history=PATH`` reads the history from another file.
+        ``history=PATH`` reads the history from another file; ``dividends=PATH`` (or
+        a :class:`~optbench.data.dividends.DividendSchedule`) gives the cash dividends
+        in place of meta.toml's.
 
     Returns
     -------
     Scenario
     """
     history_override = overrides.pop("history", None)
+    dividends_override = overrides.pop("dividends", None)
     if history_override is not None:
         path = Path(path)
         chain_path = chain_file_in(path) if path.is_dir() else path
@@ -132,12 +140,16 @@ def load_scenario(path: str | Path, **overrides) -> Scenario:
     meta = read_meta(meta_path) if meta_path else {}
     holidays = overrides.pop("holidays", None)
     holidays = tuple(holidays) if holidays else meta.get("holidays", ())
-    chain = load_chain(chain_path, meta=meta, holidays=holidays, **overrides)
+    from optbench.data.dividends import resolve_dividends
+    dividends = resolve_dividends(dividends_override, meta, meta_path)
+    chain = load_chain(chain_path, meta=meta, holidays=holidays, dividends=dividends,
+                       **overrides)
     history = load_history(history_path)
     code = str(meta.get("code") or chain.underlying or chain_path.parent.name)
     name = str(meta.get("name") or code)
     return Scenario(path=chain_path.parent, name=name, code=code, chain=chain,
-                    history=history, meta=meta, holidays=chain.holidays)
+                    history=history, meta=meta, holidays=chain.holidays,
+                    dividends=chain.dividends)
 
 
 # ---------------------------------------------------------------- the bundled demo

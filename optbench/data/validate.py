@@ -74,7 +74,8 @@ class _Assigner:
 
 def no_arbitrage_bounds(spot: float, strike: np.ndarray, t: np.ndarray, rate: float,
                         div_yield: float, is_call: np.ndarray,
-                        american: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+                        american: np.ndarray,
+                        pv_dividends=0.0) -> tuple[np.ndarray, np.ndarray]:
     """Static lower and upper bounds of an option's price.
 
     Notes
@@ -85,12 +86,15 @@ def no_arbitrage_bounds(spot: float, strike: np.ndarray, t: np.ndarray, rate: fl
     American options are worth at least their undiscounted intrinsic value
     (max(0, S − K) for calls, max(0, K − S) for puts) and an American put at most K.
     Hull, *Options, Futures, and Other Derivatives*, ch. 11 (properties of stock
-    options); Merton (1973), "Theory of rational option pricing".
+    options); Merton (1973), "Theory of rational option pricing". With cash dividends
+    of present value ``pv_dividends`` before each expiry the European bounds use
+    S − PV in place of S (Hull ch. 11, "effect of dividends").
     """
     disc = np.exp(-rate * t)
     qf = np.exp(-div_yield * t)
-    eu_call = np.maximum(0.0, spot * qf - strike * disc)
-    eu_put = np.maximum(0.0, strike * disc - spot * qf)
+    s_ex = spot - np.asarray(pv_dividends, dtype=float)
+    eu_call = np.maximum(0.0, s_ex * qf - strike * disc)
+    eu_put = np.maximum(0.0, strike * disc - s_ex * qf)
     lower = np.where(is_call, eu_call, eu_put)
     intrinsic = np.where(is_call, np.maximum(0.0, spot - strike),
                          np.maximum(0.0, strike - spot))
@@ -101,7 +105,8 @@ def no_arbitrage_bounds(spot: float, strike: np.ndarray, t: np.ndarray, rate: fl
 
 def assign_reasons(p, *, spot: float, rate: float, div_yield: float,
                    max_spread: float | None,
-                   max_strike_ratio: float | None = None) -> tuple[np.ndarray, np.ndarray]:
+                   max_strike_ratio: float | None = None,
+                   dividends=None) -> tuple[np.ndarray, np.ndarray]:
     """The rejection reason ('' for a kept row) and its detail for every row.
 
     Parameters
@@ -122,6 +127,8 @@ def assign_reasons(p, *, spot: float, rate: float, div_yield: float,
     max_strike_ratio : float or None
         Strikes outside ``[spot / ratio, spot * ratio]`` are ``implausible_strike``;
         None switches the rule off.
+    dividends : optional ``(times, amounts)`` of cash dividends (years from the quote
+        date); the European price bounds then allow for them.
     """
     n = len(p["line"])
     a = _Assigner(n)
@@ -180,8 +187,13 @@ def assign_reasons(p, *, spot: float, rate: float, div_yield: float,
     live = a.open.copy()
     mid = 0.5 * (bid + ask)
     t = np.where(live, days, 0.0) / 365.0
+    pv = 0.0
+    if dividends is not None:
+        from optbench.pricing.cash_dividends import pv_dividends
+        pv = pv_dividends(t, rate, *dividends)
     lower, upper = no_arbitrage_bounds(spot, np.where(live, strike, 0.0), t, rate,
-                                       div_yield, is_call, np.asarray(p["american"], dtype=bool))
+                                       div_yield, is_call, np.asarray(p["american"], dtype=bool),
+                                       pv_dividends=pv)
     tol_lo = BOUND_TOL_ABS + BOUND_TOL_REL * lower
     tol_hi = BOUND_TOL_ABS + BOUND_TOL_REL * upper
     a.apply("below_intrinsic", live & (mid < lower - tol_lo),

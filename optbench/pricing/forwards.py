@@ -22,6 +22,18 @@ is :math:`q = r - \ln(F/S)/t`. With fewer than ``min_pairs`` usable pairs, or a
 forward outside half to twice spot, the expiry falls back to the given rate and
 yield, :math:`F = S e^{(r-q)t}`, and says so in ``source``.
 
+**Cash dividends.** Given a dividend schedule (``dividends=(times, amounts)``), the
+carry forward is the escrowed-dividend forward
+:math:`F = (S - PV(t))\,e^{(r-q)t}` (:mod:`optbench.pricing.cash_dividends`; Hull
+ch. 15), used for every expiry that falls back to the given inputs. Where parity
+gives the forward, the dividend forward is kept beside it (``dividend_forward``) and
+:func:`forward_disagreements` names the expiries where the two differ by more than
+``DIVIDEND_FORWARD_TOLERANCE`` (0.5 % of the forward, a chosen threshold: about one
+missing or misdated dividend of a typical size). ``cash_carry``
+:math:`= r - \ln(F/(S - PV))/t` is the continuous carry left beside the cash dividends
+(the tree of :mod:`optbench.pricing.american_dividends` takes it as its yield); it is
+the implied ``carry`` when no schedule is given.
+
 Parity is exact for European exercise only; for American chains the fitted forward
 is an approximation (the early-exercise premia of the call and the put differ), so
 ``implied_forwards`` uses the given rate and yield for expiries whose quotes are
@@ -33,7 +45,12 @@ import numpy as np
 import pandas as pd
 
 FORWARD_COLUMNS = ["expiry", "t", "forward", "discount", "rate", "carry", "source",
-                   "discount_source", "n_pairs"]
+                   "discount_source", "n_pairs", "pv_dividends", "dividend_forward",
+                   "cash_carry"]
+
+#: largest relative gap between the parity forward and the dividend forward
+#: before :func:`forward_disagreements` names the expiry (a chosen threshold)
+DIVIDEND_FORWARD_TOLERANCE = 0.005
 
 
 def _weighted_median(values: np.ndarray, weights: np.ndarray) -> float:
@@ -86,7 +103,7 @@ def parity_pairs(quotes: pd.DataFrame) -> pd.DataFrame:
 
 def implied_forwards(quotes: pd.DataFrame, spot: float, rate: float, div_yield: float,
                      *, n_near: int = 10, min_pairs: int = 3,
-                     american: str = "given") -> pd.DataFrame:
+                     american: str = "given", dividends=None) -> pd.DataFrame:
     """Implied forward, discount, rate and carry for every expiry of a chain.
 
     Parameters
@@ -99,13 +116,19 @@ def implied_forwards(quotes: pd.DataFrame, spot: float, rate: float, div_yield: 
     min_pairs : fewer usable pairs than this -> the given rate and yield.
     american : ``"given"`` (default: all-American expiries use the given rate and
         yield) or ``"parity"`` (fit them anyway, as an approximation).
+    dividends : optional ``(times, amounts)``, ex-dividend times in years from the
+        quote date and cash amounts; the carry forward becomes the escrowed-dividend
+        forward.
 
     Returns
     -------
     DataFrame, one row per expiry sorted by ``t``: ``expiry, t, forward, discount,
     rate`` (decimal, -ln(D)/t), ``carry`` (implied yield + borrow, decimal),
     ``source`` (``"parity"`` or ``"given"``), ``discount_source`` (``"parity"`` or
-    ``"given"``), ``n_pairs`` (pairs kept in the fit).
+    ``"given"``), ``n_pairs`` (pairs kept in the fit), ``pv_dividends`` (present
+    value of the cash dividends before the expiry, 0 without a schedule),
+    ``dividend_forward`` (the carry forward from spot, the given rate and yield and the
+    dividends), ``cash_carry`` (carry beside the cash dividends, see Notes).
     """
     for col in ("expiry", "strike", "is_call", "bid", "ask", "t"):
         if col not in quotes.columns:
@@ -123,25 +146,69 @@ def implied_forwards(quotes: pd.DataFrame, spot: float, rate: float, div_yield: 
         all_american = pd.Series(False, index=expiries.index)
     pairs = parity_pairs(quotes)
     grouped = dict(tuple(pairs.groupby("expiry"))) if len(pairs) else {}
+    times, amounts = dividends if dividends is not None else ((), ())
     rows = []
     for expiry, t in expiries.items():  # one fit per expiry (a handful), not per quote
         t = float(t)
-        row = _given(expiry, t, spot, rate, div_yield)
+        pv = _pv(t, rate, times, amounts)
+        row = _given(expiry, t, spot, rate, div_yield, pv)
         g = grouped.get(expiry)
         use_parity = t > 0 and not (all_american.get(expiry, False) and american != "parity")
         if use_parity and g is not None and len(g) >= min_pairs:
             fit = _fit_expiry(g, t, spot, rate, n_near, min_pairs)
             if fit is not None:
-                row = {"expiry": expiry, "t": t, **fit}
+                row = {"expiry": expiry, "t": t, **fit, "pv_dividends": pv,
+                       "dividend_forward": row["dividend_forward"],
+                       "cash_carry": _cash_carry(fit, spot, pv, t)}
         rows.append(row)
     out = pd.DataFrame(rows, columns=FORWARD_COLUMNS)
     return out.sort_values("t", kind="stable").reset_index(drop=True)
 
 
-def _given(expiry, t, spot, rate, div_yield):
-    return {"expiry": expiry, "t": t, "forward": spot * np.exp((rate - div_yield) * t),
-            "discount": np.exp(-rate * t), "rate": rate, "carry": div_yield,
-            "source": "given", "discount_source": "given", "n_pairs": 0}
+def _pv(t, rate, times, amounts) -> float:
+    """Present value of the dividends going ex in (0, t] (0.0 without any)."""
+    if len(times) == 0:
+        return 0.0
+    from optbench.pricing.cash_dividends import pv_dividends
+    return float(pv_dividends(t, rate, times, amounts))
+
+
+def _cash_carry(fit: dict, spot: float, pv: float, t: float) -> float:
+    """Carry beside the cash dividends implied by a parity forward (NaN when the
+    dividends' present value reaches spot)."""
+    if pv == 0.0:
+        return fit["carry"]
+    base = spot - pv
+    return float(fit["rate"] - np.log(fit["forward"] / base) / t) if base > 0 else np.nan
+
+
+def _given(expiry, t, spot, rate, div_yield, pv=0.0):
+    forward = (spot - pv) * np.exp((rate - div_yield) * t)
+    carry = div_yield if pv == 0.0 else (
+        rate - np.log(forward / spot) / t if forward > 0 and t > 0 else np.nan)
+    return {"expiry": expiry, "t": t, "forward": forward,
+            "discount": np.exp(-rate * t), "rate": rate, "carry": carry,
+            "source": "given", "discount_source": "given", "n_pairs": 0,
+            "pv_dividends": pv, "dividend_forward": forward, "cash_carry": div_yield}
+
+
+def forward_disagreements(forwards: pd.DataFrame,
+                          tolerance: float = DIVIDEND_FORWARD_TOLERANCE) -> list[str]:
+    """One line per parity-forward expiry whose forward differs from the dividend
+    forward by more than ``tolerance`` (relative); meant for runs with a dividend
+    schedule, where the gap says the schedule and the quotes disagree."""
+    out = []
+    for row in forwards.itertuples(index=False):   # one row per expiry
+        if row.source != "parity" or not np.isfinite(row.dividend_forward):
+            continue
+        gap = row.forward / row.dividend_forward - 1.0
+        if abs(gap) > tolerance:
+            day = pd.Timestamp(row.expiry).date().isoformat()
+            out.append(f"{day}: the put-call parity forward {row.forward:.4g} differs from "
+                       f"the dividend-schedule forward {row.dividend_forward:.4g} by "
+                       f"{100 * gap:+.2f}% (the parity forward is used; check the "
+                       "dividends, rate and spot)")
+    return out
 
 
 def _fit_expiry(g: pd.DataFrame, t: float, spot: float, rate: float, n_near: int,

@@ -7,7 +7,9 @@ Each quote is priced on its own expiry's forward :math:`F` and discount :math:`D
 Black-76 inversion :math:`\sigma(P; F, K, t, D)` (Black 1976; Jäckel 2015), American
 quotes with the tree-based inversion of :mod:`optbench.pricing.american` on spot with
 that expiry's rate :math:`r = -\ln D/t` and carry :math:`q = r - \ln(F/S)/t`.
-A bid of zero has no implied volatility (status ``below_intrinsic``).
+A bid of zero has no implied volatility (status ``below_intrinsic``). With a cash
+dividend schedule, American quotes use the escrowed-dividend tree of
+:mod:`optbench.pricing.american_dividends` with the expiry's ``cash_carry`` as yield.
 
 The smile is built from out-of-the-money quotes (:func:`otm_quotes`): puts struck
 below the forward and calls at or above it, the side where quotes carry time value
@@ -24,7 +26,7 @@ _NAMES = np.array([STATUS_NAMES[i] for i in range(len(STATUS_NAMES))], dtype=obj
 
 
 def quote_implied_vols(quotes: pd.DataFrame, forwards: pd.DataFrame,
-                       spot: float | None = None) -> pd.DataFrame:
+                       spot: float | None = None, dividends=None) -> pd.DataFrame:
     """Per-quote implied volatilities on each expiry's forward and discount.
 
     Parameters
@@ -34,6 +36,8 @@ def quote_implied_vols(quotes: pd.DataFrame, forwards: pd.DataFrame,
     forwards : frame from :func:`~optbench.pricing.forwards.implied_forwards`
         (``expiry, forward, discount, rate, carry``).
     spot : underlying price; needed only for American-style quotes.
+    dividends : optional ``(times, amounts)`` of cash dividends (years from the quote
+        date); American quotes are then inverted with the dividends at their dates.
 
     Returns
     -------
@@ -72,13 +76,20 @@ def quote_implied_vols(quotes: pd.DataFrame, forwards: pd.DataFrame,
         if am.any():
             if spot is None:
                 raise ValueError("spot is needed for American-style quotes")
-            from optbench.pricing.american import american_implied_vol_with_status
             r = fw["rate"].reindex(out["expiry"]).to_numpy(float)
-            q = fw["carry"].reindex(out["expiry"]).to_numpy(float)
             i = np.flatnonzero(np.tile(am, 3))
             j = i % n
-            va, sa = american_implied_vol_with_status(prices[i], float(spot), K[j], t[j],
-                                                      r[j], q[j], c[j])
+            if dividends is not None and len(dividends[0]):
+                from optbench.pricing.american_dividends import (
+                    american_dividend_implied_vol_with_status)
+                q = fw["cash_carry"].reindex(out["expiry"]).to_numpy(float)
+                va, sa = american_dividend_implied_vol_with_status(
+                    prices[i], float(spot), K[j], t[j], r[j], q[j], c[j], *dividends)
+            else:
+                from optbench.pricing.american import american_implied_vol_with_status
+                q = fw["carry"].reindex(out["expiry"]).to_numpy(float)
+                va, sa = american_implied_vol_with_status(prices[i], float(spot), K[j],
+                                                          t[j], r[j], q[j], c[j])
             vol[i] = va
             st[i] = sa
     out["iv_bid"] = vol[:n]

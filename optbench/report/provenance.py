@@ -22,7 +22,11 @@ def source_word(code: str | None) -> str:
 
 def sources_text(sources: dict) -> str:
     """``spot file, asof file, style meta.toml, ...`` (for a table cell or CSV column)."""
-    return ", ".join(f"{k} {source_word(sources.get(k))}" for k in INPUTS if k in sources)
+    text = ", ".join(f"{k} {source_word(sources.get(k))}" for k in INPUTS if k in sources)
+    if sources.get("dividends"):   # a cash dividend schedule was used: name its file
+        from pathlib import Path
+        text += f", cash dividends {Path(str(sources['dividends'])).name}"
+    return text
 
 
 def inputs_line(result) -> str:
@@ -37,4 +41,6 @@ def inputs_line(result) -> str:
              f"{style} ({source_word(src.get('style'))})"]
     if mult is not None:
         parts.append(f"multiplier {float(mult):g} ({source_word(src.get('multiplier'))})")
+    if src.get("dividends"):
+        parts.append(f"cash dividends ({src['dividends']})")
     return "Inputs: " + " · ".join(parts)
