@@ -20,8 +20,11 @@ Jäckel's reference implied-volatility code are built from:
   the asymptotic series :math:`\\psi(x) = \\ln x - 1/(2x) - \\sum B_{2k}/(2k x^{2k})`
   after the recurrence :math:`\\psi(x) = \\psi(x+1) - 1/x` lifts x above 10
   (Abramowitz & Stegun 6.3.5 and 6.3.18).
-- ``stdtrit`` (Student-t quantile) is needed rarely (forecast bands with t
-  innovations): it defers to :func:`scipy.special.stdtrit`, imported inside the call.
+- ``stdtrit`` (Student-t quantile, for t-innovation simulations and bands):
+  safeguarded Newton steps on the distribution function written as the regularised
+  incomplete beta function (Abramowitz & Stegun 26.7.1, 26.5.27; continued fraction
+  DLMF 8.17.22 by the modified Lentz method), bracketed by the normal quantile and the
+  t's power-law tail bound.
 
 tests/pricing/test_special.py checks every function against :mod:`scipy.special` on
 wide grids.
@@ -352,7 +355,129 @@ def digamma(x):
     return np.vectorize(_digamma_scalar, otypes=[float])(arr)
 
 
+def _betacf(a, b, x):
+    """Continued fraction of the regularised incomplete beta function (DLMF 8.17.22,
+    evaluated by the modified Lentz method), vectorised; converges for
+    x < (a + 1) / (a + b + 2). Elements leave the loop as they converge."""
+    tiny = 1e-300
+    out = np.empty_like(x)
+    idx = np.arange(x.size)
+    qab, qap, qam = a + b, a + 1.0, a - 1.0
+    c = np.ones_like(x)
+    d = 1.0 - qab * x / qap
+    d = 1.0 / np.where(np.abs(d) < tiny, tiny, d)
+    h = d.copy()
+    for m in range(1, 1000):
+        m2 = 2.0 * m
+        for aa in (m * (b - m) * x / ((qam + m2) * (a + m2)),
+                   -(a + m) * (qab + m) * x / ((a + m2) * (qap + m2))):
+            d = 1.0 + aa * d
+            d = 1.0 / np.where(np.abs(d) < tiny, tiny, d)
+            c = 1.0 + aa / c
+            c = np.where(np.abs(c) < tiny, tiny, c)
+            step = d * c
+            h = h * step
+        done = np.abs(step - 1.0) < 2e-16
+        if done.any():
+            out[idx[done]] = h[done]
+            keep = ~done
+            if not keep.any():
+                return out
+            idx, a, b, x, c, d, h = idx[keep], a[keep], b[keep], x[keep], c[keep], d[keep], h[keep]
+            qab, qap, qam = a + b, a + 1.0, a - 1.0
+    out[idx] = h
+    return out
+
+
+def _t_lower_cdf(t, nu, log_beta):
+    """Student-t distribution function F(t) for t <= 0, and 1/2 - F(t):
+    F = I_x(nu/2, 1/2) / 2 with x = nu/(nu + t^2) (A&S 26.7.1, 26.5.27), and
+    1/2 - F = I_{1-x}(1/2, nu/2) / 2 by the symmetry of I."""
+    t2 = t * t
+    x = nu / (nu + t2)
+    y = t2 / (nu + t2)
+    a = 0.5 * nu
+    b = np.full_like(x, 0.5)
+    with np.errstate(divide="ignore"):
+        front = np.exp(a * np.log(x) + b * np.log(y) - log_beta)
+    direct = x < (a + 1.0) / (a + b + 2.0)
+    F = np.empty_like(x)
+    D = np.empty_like(x)      # 1/2 - F, kept separately: accurate where t is small
+    if direct.any():
+        ad, bd = a[direct], b[direct]
+        F[direct] = 0.5 * front[direct] * _betacf(ad, bd, x[direct]) / ad
+        D[direct] = 0.5 - F[direct]
+    flip = ~direct
+    if flip.any():
+        af, bf = a[flip], b[flip]
+        D[flip] = 0.5 * front[flip] * _betacf(bf, af, y[flip]) / bf
+        F[flip] = 0.5 - D[flip]
+    return F, D
+
+
+def _t_log_density(t, nu, log_c):
+    return log_c - 0.5 * (nu + 1.0) * np.log1p(t * t / nu)
+
+
 def stdtrit(df, p):
-    """Student-t quantile; rarely needed, so scipy.special is imported only here."""
-    from scipy.special import stdtrit as _stdtrit
-    return _stdtrit(df, p)
+    """Student-t quantile F^{-1}(p) with df > 0 degrees of freedom (the function
+    scipy.special.stdtrit computes), by safeguarded Newton steps on log F.
+
+    For p < 1/2 the root lies in [t_tail, Phi^{-1}(p)]: the t quantile is further
+    out than the normal one, and t_tail = -(c nu^{(nu-1)/2} / p)^{1/nu} (from
+    (1 + s^2/nu)^{-(nu+1)/2} <= (s^2/nu)^{-(nu+1)/2}, c the density's constant)
+    bounds it from below. F is the incomplete-beta form above; p > 1/2 by symmetry
+    (1 - p is exact there). Accurate to a few ulps (tests/pricing/test_special.py)."""
+    nu_in = np.asarray(df, dtype=float)
+    p_in = np.asarray(p, dtype=float)
+    nu, pp = np.broadcast_arrays(nu_in, p_in)
+    shape = nu.shape
+    nu = nu.ravel().astype(float)
+    pp = pp.ravel().astype(float)
+    upper = pp > 0.5
+    q = np.where(upper, 1.0 - pp, pp)
+    out = np.full_like(q, np.nan)
+    work = (q > 0.0) & (q < 0.5) & (nu > 0.0)
+    out[(q == 0.5) & (nu > 0.0)] = 0.0
+    out[(q == 0.0) & (nu > 0.0)] = -np.inf
+    if work.any():
+        n, qq = nu[work], q[work]
+        lg = gammaln
+        log_beta = lg(0.5 * n) + lg(0.5) - lg(0.5 * n + 0.5)
+        log_c = -log_beta - 0.5 * np.log(n)          # density constant 1/(sqrt(nu) B)
+        hi = np.minimum(ndtri(qq), -1e-300)
+        lo = -np.exp((log_c + 0.5 * (n - 1.0) * np.log(n) - np.log(qq)) / n)
+        lo = np.minimum(lo, hi)
+        t = 0.5 * (lo + hi)
+        z = ndtri(qq)   # Cornish-Fisher start (A&S 26.7.5), clipped to the bracket
+        cf = z + (z ** 3 + z) / (4.0 * n) + (5 * z ** 5 + 16 * z ** 3 + 3 * z) / (96.0 * n * n)
+        t = np.where((cf > lo) & (cf < hi), cf, t)
+        log_q = np.log(qq)
+        d_target = 0.5 - qq                 # exact for q >= 1/4
+        central = qq > 0.25
+        res = np.empty_like(t)
+        idx = np.arange(t.size)
+        for _ in range(100):
+            F, D = _t_lower_cdf(t, n, log_beta)
+            # Newton on log F in the tail, on 1/2 - F near the centre
+            g = np.where(central, d_target - D, np.log(F) - log_q)
+            lo = np.where(g < 0.0, t, lo)
+            hi = np.where(g > 0.0, t, hi)
+            step = np.where(central, g, g * F) / np.exp(_t_log_density(t, n, log_c))
+            new = t - step
+            bad = ~((new > lo) & (new < hi)) | ~np.isfinite(new)
+            new = np.where(bad, 0.5 * (lo + hi), new)
+            done = (np.abs(new - t) <= 4e-16 * np.abs(t)) | (g == 0.0) | (hi - lo <= 4e-16 * np.abs(lo))
+            res[idx[done]] = new[done]
+            keep = ~done
+            if not keep.any():
+                break
+            idx, t, n, log_beta, log_c, lo, hi, log_q, d_target, central = (
+                idx[keep], new[keep], n[keep], log_beta[keep], log_c[keep], lo[keep],
+                hi[keep], log_q[keep], d_target[keep], central[keep])
+        else:
+            res[idx] = t
+        out[work] = res
+    out = np.where(upper, -out, out)
+    out = out.reshape(shape)
+    return out[()] if out.ndim == 0 else out

@@ -86,18 +86,39 @@ def test_gamma_functions_match_scipy():
     assert np.isnan(special.digamma(0.0)) and special.gammaln(0.0) == np.inf
 
 
-def test_student_t_quantile_is_scipys():
-    assert special.stdtrit(5.0, 0.975) == sc.stdtrit(5.0, 0.975)
+def test_student_t_quantile_matches_scipy():
+    p = np.concatenate([np.geomspace(1e-16, 0.5, 400), 1.0 - np.geomspace(1e-12, 0.5, 100),
+                        np.linspace(0.01, 0.99, 99)])
+    for nu in (2.05, 2.5, 3.0, 4.0, 5.7, 8.0, 12.3, 30.0, 100.0, 1000.0):
+        ours, ref = special.stdtrit(nu, p), sc.stdtrit(nu, p)
+        assert np.allclose(ours, ref, rtol=1e-12, atol=1e-300), f"scipy.special.stdtrit nu={nu}"
+    # nu = 2 has the closed form t = (2p - 1) / sqrt(2 p (1 - p)) (well known; e.g.
+    # Hill 1970, Comm. ACM 13, Algorithm 396)
+    q = np.linspace(0.001, 0.999, 999)
+    assert np.allclose(special.stdtrit(2.0, q), (2 * q - 1) / np.sqrt(2 * q * (1 - q)),
+                       rtol=1e-13, atol=1e-15)
+    # textbook table value: t_{0.975, 5} = 2.571 (any Student-t table)
+    assert round(float(special.stdtrit(5.0, 0.975)), 3) == 2.571
+    grid = special.stdtrit(np.array([3.0, 4.0])[:, None], np.array([0.1, 0.5, 0.9]))
+    assert grid.shape == (2, 3) and np.all(grid[:, 1] == 0.0)
+    assert np.allclose(grid[:, 0], -grid[:, 2], rtol=1e-14, atol=0)
+    assert special.stdtrit(5.0, 0.0) == -np.inf and special.stdtrit(5.0, 1.0) == np.inf
+    # the normal-to-t table of the simulation (float32): identical to scipy's
+    x = np.linspace(-8.0, 0.0, 4097)
+    for nu in (2.3, 6.3, 60.0):
+        assert np.array_equal(special.stdtrit(nu, special.ndtr(x)).astype(np.float32),
+                              sc.stdtrit(nu, sc.ndtr(x)).astype(np.float32)), nu
 
 
 _SWAP = """
 import sys, scipy.special as sc
 import optbench.pricing.bsm, optbench.pricing.greeks, optbench.pricing.lets_be_rational
 import optbench.analysis.smile, optbench.volatility.distributions, optbench.volatility.forecast
-for mod in (optbench.pricing.bsm, optbench.pricing.greeks, optbench.pricing.lets_be_rational,
+import optbench.pricing.special
+for mod in (optbench.pricing.special, optbench.pricing.bsm, optbench.pricing.greeks, optbench.pricing.lets_be_rational,
             optbench.analysis.smile, optbench.volatility.distributions,
             optbench.volatility.forecast):
-    for name in ("ndtr", "ndtri", "erfcx", "gammaln", "digamma"):
+    for name in ("ndtr", "ndtri", "erfcx", "gammaln", "digamma", "stdtrit"):
         if hasattr(mod, name):
             setattr(mod, name, getattr(sc, name))
 from optbench.cli import main
