@@ -55,6 +55,7 @@ _Q = (2.56852019228982242e00, 1.87295284992346725e00, 5.27905102951428412e-1,
 _THRESH = 0.46875
 _SQRPI = 5.6418958354775628695e-1          # 1/sqrt(pi)
 _MAXLOG = 7.09782712893383996843e2         # log of the largest double
+_SQRT_MAXLOG = 26.64174755704631            # sqrt(_MAXLOG): exp(-y^2) underflows beyond
 
 # --- Wichura (1988), AS 241 PPND16 coefficients ----------------------------------
 _PA = (3.3871328727963666080e0, 1.3314166789178437745e2, 1.9715909503065514427e3,
@@ -139,7 +140,9 @@ def _exp_minus_square(y):
         r *= d
     # flush to zero where exp(-y^2) leaves the normal range, as scipy's erfc and ndtr
     # do (y^2 > MAXLOG = 709.78): a subnormal price is no price to the solver
-    r[y * y > _MAXLOG] = 0.0
+    big = y > _SQRT_MAXLOG
+    if big.any():
+        r[big] = 0.0
     return r
 
 
@@ -255,10 +258,12 @@ def ndtr(x):
     z = np.atleast_1d(x) * _SQRT1_2
     y = np.abs(z)
     near = y <= _THRESH
-    with np.errstate(over="ignore", invalid="ignore"):
-        centre = _near(z)
-    centre *= 0.5
-    centre += 0.5
+    any_near = near.any()
+    if any_near:
+        with np.errstate(over="ignore", invalid="ignore"):
+            centre = _near(z)
+        centre *= 0.5
+        centre += 0.5
     far = y > 4.0
     any_far = far.any()
     ym = np.minimum(y, 4.0) if any_far else y
@@ -269,11 +274,10 @@ def ndtr(x):
     half *= 0.5
     pos = z > 0.0
     np.subtract(1.0, half, out=half, where=pos)
-    np.copyto(half, centre, where=near)
-    out = half
-    if np.isnan(z).any():
-        out[np.isnan(z)] = np.nan
-    return _finish(out.reshape(x.shape), scalar)
+    if any_near:
+        np.copyto(half, centre, where=near)
+    # nan arguments stay nan through every step above
+    return _finish(half.reshape(x.shape), scalar)
 
 
 def _ratio(r, num, den):
