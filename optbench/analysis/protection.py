@@ -145,7 +145,7 @@ def judge_puts(table: pd.DataFrame, rows: tuple[int, ...], draws, column: int, *
     """Judge the puts at positions ``rows`` of ``table`` (one expiry) against the
     terminal draws of that expiry (``draws``: :class:`~optbench.analysis.drift.
     TerminalDraws`, ``column`` its expiry). See the module Notes."""
-    from scipy.special import ndtri
+    from optbench.pricing.special import ndtri
 
     picked = [i for i in rows if i >= 0]
     out = {i: PutJudgement() for i in rows}

@@ -44,7 +44,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.special import ndtr, ndtri
+from optbench.pricing.special import ndtr, ndtri
 
 from optbench.errors import InputError
 

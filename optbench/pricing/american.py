@@ -49,7 +49,7 @@ from __future__ import annotations
 import functools
 
 import numpy as np
-from scipy.special import ndtr
+from optbench.pricing.special import ndtr
 
 from optbench.pricing.bsm import as_flag_array, as_float_array, black_price
 

@@ -18,7 +18,7 @@ Black-Scholes with cost of carry b = r - q).
 from __future__ import annotations
 
 import numpy as np
-from scipy.special import ndtr
+from optbench.pricing.special import ndtr
 
 ArrayLike = np.ndarray | float | int
 

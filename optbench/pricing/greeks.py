@@ -23,7 +23,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.special import ndtr
+from optbench.pricing.special import ndtr
 
 from optbench.pricing.bsm import as_flag_array, as_float_array, black_price
 

@@ -40,7 +40,7 @@ chunks (:data:`CHUNK`) so the temporaries stay in cache.
 from __future__ import annotations
 
 import numpy as np
-from scipy.special import erfcx, ndtr, ndtri
+from optbench.pricing.special import erfcx, ndtr, ndtri
 
 DBL_EPSILON = np.finfo(float).eps
 DBL_MIN = np.finfo(float).tiny

@@ -12,7 +12,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.special import digamma, gammaln, ndtr, stdtrit
+from optbench.pricing.special import digamma, gammaln, ndtr, stdtrit
 
 LOG_2PI = math.log(2.0 * math.pi)
 NU_MIN = 2.05   # smallest degrees of freedom allowed (variance must exist)

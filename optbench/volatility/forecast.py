@@ -10,7 +10,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy.special import ndtr, stdtrit
+from optbench.pricing.special import ndtr, stdtrit
 
 from optbench.volatility.recursions import SQRT_2_OVER_PI
 

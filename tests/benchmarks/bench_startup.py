@@ -1,0 +1,93 @@
+"""Start-up a user feels: whole-process wall and CPU time of ``optbench compare`` and
+``optbench hedge`` on the bundled demo, against the floor every Python tool here pays
+(``python -c "import numpy, pandas"``), timed in alternating rounds in the same run.
+
+Two cases, both printed: optbench's own modules with bytecode (what a plain install
+has; the script compiles them first) and without (an editable checkout on a machine
+that sets PYTHONDONTWRITEBYTECODE=1 recompiles them at every start). Targets: compare
+and hedge <= 1.4x the floor, the HTML report <= 3x (with bytecode). Medians of wall
+and CPU (user+sys).
+
+Run: .venv/bin/python tests/benchmarks/bench_startup.py [--repeats N] [--quick]
+"""
+from __future__ import annotations
+
+import argparse
+import compileall
+import resource
+import shutil
+import statistics
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+from timing import figure  # noqa: E402  (tests/benchmarks)
+
+ROOT = Path(__file__).resolve().parents[2]
+DEMO = str(ROOT / "chains" / "ZPHX")
+PY = sys.executable
+CASES = {
+    "floor: import numpy, pandas": [PY, "-c", "import numpy, pandas"],
+    "optbench compare (demo)": [PY, "-m", "optbench", "compare", DEMO, "--format", "json"],
+    "optbench hedge (demo)": [PY, "-m", "optbench", "hedge", DEMO, "--portfolio", "1000000",
+                              "--days", "91", "--format", "json"],
+    "optbench compare, HTML report": [PY, "-m", "optbench", "compare", DEMO, "--format",
+                                      "html", "-o", "/dev/null"],
+}
+TARGETS = {"optbench compare (demo)": 1.4, "optbench hedge (demo)": 1.4,
+           "optbench compare, HTML report": 3.0}
+
+
+def one(cmd):
+    r0 = resource.getrusage(resource.RUSAGE_CHILDREN)
+    t0 = time.perf_counter()
+    subprocess.run(cmd, check=True, stdout=subprocess.DEVNULL, cwd=ROOT)
+    wall = time.perf_counter() - t0
+    r1 = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return wall, r1.ru_utime + r1.ru_stime - r0.ru_utime - r0.ru_stime
+
+
+def measure(repeats):
+    got = {k: ([], []) for k in CASES}
+    for _ in range(repeats):
+        for k, cmd in CASES.items():
+            w, c = one(cmd)
+            got[k][0].append(w)
+            got[k][1].append(c)
+    return {k: (statistics.median(w), statistics.median(c)) for k, (w, c) in got.items()}
+
+
+def report(label, res, with_figures):
+    fw, fc = res["floor: import numpy, pandas"]
+    print(f"{label}")
+    for k, (w, c) in res.items():
+        print(f"  {k:30s} wall {w:6.2f} s ({w / fw:4.2f}x floor)   CPU {c:6.2f} s "
+              f"({c / fc:4.2f}x floor)")
+        if with_figures and not k.startswith("floor"):
+            figure(f"{k} / floor, wall", w / fw, "x", TARGETS[k],
+                   reference="import numpy, pandas")
+            figure(f"{k} / floor, CPU", c / fc, "x", TARGETS[k],
+                   reference="import numpy, pandas")
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--repeats", type=int, default=7)
+    ap.add_argument("--quick", action="store_true")
+    a = ap.parse_args()
+    repeats = 3 if a.quick else a.repeats
+    pkg = ROOT / "optbench"
+    compileall.compile_dir(pkg, quiet=1)
+    report("optbench with bytecode (a plain install)", measure(repeats), True)
+    for cache in pkg.rglob("__pycache__"):
+        shutil.rmtree(cache)
+    import os
+    os.environ["PYTHONDONTWRITEBYTECODE"] = "1"
+    report("optbench without bytecode (editable checkout, PYTHONDONTWRITEBYTECODE=1)",
+           measure(repeats), False)
+    compileall.compile_dir(pkg, quiet=1)
+
+
+if __name__ == "__main__":
+    main()
