@@ -249,10 +249,12 @@ def strike_arbitrage(expiry, strike, price, is_call, *, forward, discount,
         a = np.arange(m - 2)
         b, d = a + 1, a + 2
         trip = (gs[a] == gs[d]) & (Ks[b] > Ks[a]) & (Ks[d] > Ks[b])
-        with np.errstate(divide="ignore", invalid="ignore"):
+        # outside a triple (other expiry, repeated strike) lam is not finite; those
+        # elements are masked by ``trip``, so their NaN arithmetic is expected
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             lam = (Ks[d] - Ks[b]) / (Ks[d] - Ks[a])
-        v_fly = cs[b] - lam * cs[a] - (1 - lam) * cs[d]
-        tol3 = hs[b] + lam * hs[a] + (1 - lam) * hs[d] + abs_tol
+            v_fly = cs[b] - lam * cs[a] - (1 - lam) * cs[d]
+            tol3 = hs[b] + lam * hs[a] + (1 - lam) * hs[d] + abs_tol
         add("butterfly", trip & (v_fly > tol3), a, b, d, v_fly, tol3)
 
     if not kinds:

@@ -460,14 +460,17 @@ def backtest(history, split, model: str = "auto", dist: str = "t",
     accuracy = _accuracy(model_sums, r, rdates, ewma_s2, n_in, horizons)
 
     # --- chart: price with +-k sigma bands around the previous close
-    if close is not None:
-        band_low = prev_close * np.exp(mu_path - k * sigma)
-        band_high = prev_close * np.exp(mu_path + k * sigma)
-        chart_close = close
-    else:
-        band_low = np.exp(mu_path - k * sigma) - 1.0
-        band_high = np.exp(mu_path + k * sigma) - 1.0
-        chart_close = np.full(n, np.nan)
+    # a day whose conditional vol is absurd (a degenerate history, flagged by the sanity
+    # checks) has no upper band: exp overflows to inf, which the charts leave open
+    with np.errstate(over="ignore", invalid="ignore"):
+        if close is not None:
+            band_low = prev_close * np.exp(mu_path - k * sigma)
+            band_high = prev_close * np.exp(mu_path + k * sigma)
+            chart_close = close
+        else:
+            band_low = np.exp(mu_path - k * sigma) - 1.0
+            band_high = np.exp(mu_path + k * sigma) - 1.0
+            chart_close = np.full(n, np.nan)
 
     model_dict = fit0.to_dict() if hasattr(fit0, "to_dict") else {
         "name": fit0.model, "dist": dist_name, "params": dict(fit0.params)}
