@@ -128,6 +128,8 @@ class Workbench(App):
         Binding("right_square_bracket", "step_expiry(1)", "Next expiry", key_display="]",
                 id="app.next_expiry", group=EXPIRY_KEYS),
         Binding("t", "track", "Track record", id="app.track"),
+        Binding("ctrl+r", "record", "Record this comparison in the record store (read by "
+                "optbench track --store)", show=False, id="app.record"),
         Binding("escape", "leave_field", "Leave field", show=False, id="app.leave"),
     ]
 
@@ -466,6 +468,29 @@ class Workbench(App):
             value = self.view("smile").query_one("#smile-expiry").value
             return value if isinstance(value, str) else None
         return self.view("richcheap").expiry
+
+    def action_record(self) -> None:
+        """Append the comparison on screen to the record store (each expiry's row), as
+        ``optbench compare --record`` does."""
+        if self.comparison is None:
+            self.notify("Nothing to record yet: the comparison has not finished.",
+                        severity="warning")
+            return
+        self._record(self.comparison, session.record_store_path())
+
+    @work(thread=True, exclusive=True, group="record")
+    def _record(self, comparison, path: Path) -> None:
+        from optbench.track.store import record_comparison
+        try:
+            path.parent.mkdir(parents=True, exist_ok=True)
+            record_comparison(path, comparison)
+        except (InputError, OSError) as err:
+            self.call_from_thread(self.notify, f"Not recorded: {err}", severity="error")
+            return
+        self.call_from_thread(
+            self.notify, f"Recorded {len(comparison.expiries)} expiries of "
+                         f"{comparison.underlying} {comparison.asof.isoformat()} in {path} "
+                         f"(optbench track --store {path})")
 
     def action_track(self) -> None:
         from optbench.tui.views.track import TrackScreen

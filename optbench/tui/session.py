@@ -130,6 +130,18 @@ def quality_dict(quality) -> dict:
     return dict(quality)
 
 
+def record_store_path() -> Path:
+    """The record store the workbench appends to (ctrl+r): ``$OPTBENCH_RECORD_STORE``,
+    else ``records.sqlite`` in optbench's folder of the user's data directory — the
+    file ``optbench track --store`` reads."""
+    import os
+    given = os.environ.get("OPTBENCH_RECORD_STORE")
+    if given:
+        return Path(given).expanduser()
+    from optbench.data.scenario import user_data_folder
+    return user_data_folder() / "records.sqlite"
+
+
 def export_stem(comparison) -> str:
     asof = comparison.asof.isoformat() if isinstance(comparison.asof, _dt.date) else "asof"
     return f"optbench-{comparison.underlying}-{asof}"

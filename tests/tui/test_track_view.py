@@ -41,3 +41,30 @@ async def _track_screen():
         await pilot.press("escape")
         await pilot.pause()
         assert not isinstance(app.screen, TrackScreen)
+
+
+def test_ctrl_r_records_the_comparison_on_screen(tmp_path, monkeypatch):
+    """The workbench's record action appends the same rows as ``compare --record``:
+    the store round-trips each expiry's verdict and ATM vol."""
+    store = tmp_path / "records.sqlite"
+    monkeypatch.setenv("OPTBENCH_RECORD_STORE", str(store))
+    run(_record(store))
+
+
+async def _record(store):
+    from optbench.track.store import read_records
+
+    app = make_app(demo(), hedge_paths=2000)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(app, pilot)
+        await pilot.press("ctrl+r")
+        await app.workers.wait_for_complete()
+        await pilot.pause()
+        heads, rows = read_records(store)
+        c = app.comparison
+        assert len(heads) == 1 and heads.loc[0, "underlying"] == c.underlying
+        assert len(rows) == len(c.expiries)
+        assert list(rows["verdict"]) == [e.verdict for e in sorted(c.expiries,
+                                                                   key=lambda e: e.expiry)]
+        assert rows["atm_iv"].tolist() == [e.atm_iv for e in sorted(c.expiries,
+                                                                    key=lambda e: e.expiry)]
