@@ -302,6 +302,39 @@ def _price(S, K, t, r, q, sigma, is_call, steps, method, H=None):
     return out, H_out
 
 
+def triage_quotes(price, S, K, t, r, q, is_call, extra_bad=None):
+    """The quotes an American implied-vol solver can work on (flat arrays in).
+
+    Returns ``(vol, status, todo)``: NaN vols, the status codes of
+    :mod:`optbench.pricing.implied` for what is settled without a solve (bad input,
+    expired, at or below immediate exercise, at or above the upper bound :math:`S`
+    for calls and :math:`K` for puts; Hull ch. 11), and the indices left to solve.
+    ``extra_bad`` marks further inputs as bad (e.g. spot not above the present value
+    of known dividends)."""
+    from optbench.pricing import implied as iv
+
+    n = price.size
+    vol = np.full(n, np.nan)
+    status = np.full(n, iv.OK, dtype=np.int8)
+    finite = np.isfinite(price) & np.isfinite(S) & np.isfinite(K) & np.isfinite(t) \
+        & np.isfinite(r) & np.isfinite(q)
+    bad = ~finite | (S <= 0) | (K <= 0) | (price < 0)
+    if extra_bad is not None:
+        bad |= extra_bad
+    status[bad] = iv.BAD_INPUT
+    expired = ~bad & (t <= 0)
+    status[expired] = iv.EXPIRED
+    live = ~bad & ~expired
+    immediate = np.maximum(np.where(is_call, S - K, K - S), 0.0)
+    upper = np.where(is_call, S, K)
+    # at (or within a rounding error of) the exercise value no volatility is identified
+    below = live & (price <= immediate + 1e-9 * np.maximum(S, K))
+    above = live & ~below & (price >= upper)
+    status[below] = iv.BELOW_INTRINSIC
+    status[above] = iv.ABOVE_MAX
+    return vol, status, np.flatnonzero(live & ~below & ~above)
+
+
 def american_implied_vol_with_status(price, S, K, t, r, q, is_call,
                                      steps: int = DEFAULT_STEPS, max_iter: int = 12,
                                      method: str = "boundary"):
@@ -323,24 +356,7 @@ def american_implied_vol_with_status(price, S, K, t, r, q, is_call,
     price, S, K, t, r, q, is_call = np.broadcast_arrays(price, S, K, t, r, q, is_call)
     shape = price.shape
     price, S, K, t, r, q, is_call = (a.ravel() for a in (price, S, K, t, r, q, is_call))
-    n = price.size
-    vol = np.full(n, np.nan)
-    status = np.full(n, iv.OK, dtype=np.int8)
-    finite = np.isfinite(price) & np.isfinite(S) & np.isfinite(K) & np.isfinite(t) \
-        & np.isfinite(r) & np.isfinite(q)
-    bad = ~finite | (S <= 0) | (K <= 0) | (price < 0)
-    status[bad] = iv.BAD_INPUT
-    expired = ~bad & (t <= 0)
-    status[expired] = iv.EXPIRED
-    live = ~bad & ~expired
-    immediate = np.maximum(np.where(is_call, S - K, K - S), 0.0)
-    upper = np.where(is_call, S, K)
-    # at (or within a rounding error of) the exercise value no volatility is identified
-    below = live & (price <= immediate + 1e-9 * np.maximum(S, K))
-    above = live & ~below & (price >= upper)
-    status[below] = iv.BELOW_INTRINSIC
-    status[above] = iv.ABOVE_MAX
-    todo = np.flatnonzero(live & ~below & ~above)
+    vol, status, todo = triage_quotes(price, S, K, t, r, q, is_call)
     if todo.size:
         # the lower bound is the value at (nearly) zero volatility, which for American
         # options can exceed immediate exercise: at or below it no volatility is

@@ -212,29 +212,16 @@ def american_dividend_implied_vol_with_status(price, S, K, t, r, q, is_call, tim
     dividends, and a status code per element (codes of
     :mod:`optbench.pricing.implied`). Accuracy is the tree's (see the module Notes)."""
     from optbench.pricing import implied as iv
+    from optbench.pricing.american import triage_quotes
 
     shape, (price, S, K, t, r, q, is_call) = _prepare((price, S, K, t, r, q, is_call))
     times = np.asarray(times, dtype=float).ravel()
     amounts = np.asarray(amounts, dtype=float).ravel()
-    n = price.size
-    vol = np.full(n, np.nan)
-    status = np.full(n, iv.OK, dtype=np.int8)
     with np.errstate(invalid="ignore", over="ignore"):
         pv = pv_dividends(np.maximum(t, 0.0), r, times, amounts)
-    finite = np.isfinite(price) & np.isfinite(S) & np.isfinite(K) & np.isfinite(t) \
-        & np.isfinite(r) & np.isfinite(q)
-    bad = ~finite | (S <= 0) | (K <= 0) | (price < 0) | ~(S - pv > 0)
-    status[bad] = iv.BAD_INPUT
-    expired = ~bad & (t <= 0)
-    status[expired] = iv.EXPIRED
-    live = ~bad & ~expired
-    immediate = np.maximum(np.where(is_call, S - K, K - S), 0.0)
-    upper = np.where(is_call, S, K)
-    below = live & (price <= immediate + 1e-9 * np.maximum(S, K))
-    above = live & ~below & (price >= upper)
-    status[below] = iv.BELOW_INTRINSIC
-    status[above] = iv.ABOVE_MAX
-    todo = np.flatnonzero(live & ~below & ~above)
+    # spot must stay above the present value of the dividends (escrowed model)
+    vol, status, todo = triage_quotes(price, S, K, t, r, q, is_call,
+                                      extra_bad=~(S - pv > 0))
 
     def A(idx, sigma):
         return american_dividend_price(S[idx], K[idx], t[idx], r[idx], q[idx], sigma,

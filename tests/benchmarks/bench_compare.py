@@ -29,7 +29,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
-from timing import figure  # noqa: E402  (tests/benchmarks)
+from timing import figure, process_time  # noqa: E402  (tests/benchmarks)
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "chains" / "ZPHX"
@@ -41,17 +41,9 @@ CPU: dict[str, float] = {}
 
 def wall(cmd: list[str], repeats: int) -> float:
     """Median wall seconds of a fresh process; its median CPU seconds go to CPU."""
-    import resource
-    times, cpu = [], []
-    for _ in range(repeats):
-        r0 = resource.getrusage(resource.RUSAGE_CHILDREN)
-        t0 = time.perf_counter()
-        subprocess.run(cmd, check=True, stdout=subprocess.DEVNULL)
-        times.append(time.perf_counter() - t0)
-        r1 = resource.getrusage(resource.RUSAGE_CHILDREN)
-        cpu.append(r1.ru_utime + r1.ru_stime - r0.ru_utime - r0.ru_stime)
-    CPU[" ".join(cmd)] = statistics.median(cpu)
-    return statistics.median(times)
+    w, c = process_time(cmd, repeats)
+    CPU[" ".join(cmd)] = c
+    return w
 
 
 def big_chain(folder: Path, n_expiries: int = 20, n_strikes: int = 620) -> Path:

@@ -29,7 +29,7 @@ from pathlib import Path
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from timing import median_time  # noqa: E402
+from timing import median_time, process_time  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "chains" / "ZPHX"
@@ -40,19 +40,10 @@ CPU: dict[str, float] = {}
 
 
 def wall(cmd: list[str], repeats: int) -> float:
-    """Median wall seconds of a fresh process; its median CPU seconds go to CPU (the
-    steadier figure on a shared machine)."""
-    import resource
-    times, cpu = [], []
-    for _ in range(repeats):
-        r0 = resource.getrusage(resource.RUSAGE_CHILDREN)
-        t0 = time.perf_counter()
-        subprocess.run(cmd, check=True, stdout=subprocess.DEVNULL)
-        times.append(time.perf_counter() - t0)
-        r1 = resource.getrusage(resource.RUSAGE_CHILDREN)
-        cpu.append(r1.ru_utime + r1.ru_stime - r0.ru_utime - r0.ru_stime)
-    CPU[" ".join(cmd)] = statistics.median(cpu)
-    return statistics.median(times)
+    """Median wall seconds of a fresh process; its median CPU seconds go to CPU."""
+    w, c = process_time(cmd, repeats)
+    CPU[" ".join(cmd)] = c
+    return w
 
 
 def main() -> None:

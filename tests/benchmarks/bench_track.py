@@ -32,7 +32,7 @@ from pathlib import Path
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from timing import median_time  # noqa: E402
+from timing import median_time, process_time  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "chains" / "ZPHX"
@@ -41,16 +41,7 @@ PY = sys.executable
 
 def wall(cmd: list[str], repeats: int) -> tuple[float, float]:
     """Median wall and CPU seconds of a fresh process."""
-    import resource
-    times, cpu = [], []
-    for _ in range(repeats):
-        r0 = resource.getrusage(resource.RUSAGE_CHILDREN)
-        t0 = time.perf_counter()
-        subprocess.run(cmd, check=True, stdout=subprocess.DEVNULL)
-        times.append(time.perf_counter() - t0)
-        r1 = resource.getrusage(resource.RUSAGE_CHILDREN)
-        cpu.append(r1.ru_utime + r1.ru_stime - r0.ru_utime - r0.ru_stime)
-    return statistics.median(times), statistics.median(cpu)
+    return process_time(cmd, repeats)
 
 
 def main() -> None:

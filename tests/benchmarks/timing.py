@@ -18,6 +18,22 @@ def median_time(fn, repeats: int = 7, warm_up: bool = True) -> float:
     return statistics.median(times)
 
 
+def process_time(cmd: list[str], repeats: int) -> tuple[float, float]:
+    """Median wall and median CPU seconds of ``cmd`` run as a fresh process
+    ``repeats`` times (CPU is the steadier figure on a shared machine)."""
+    import resource
+    import subprocess
+    times, cpu = [], []
+    for _ in range(repeats):
+        r0 = resource.getrusage(resource.RUSAGE_CHILDREN)
+        t0 = time.perf_counter()
+        subprocess.run(cmd, check=True, stdout=subprocess.DEVNULL)
+        times.append(time.perf_counter() - t0)
+        r1 = resource.getrusage(resource.RUSAGE_CHILDREN)
+        cpu.append(r1.ru_utime + r1.ru_stime - r0.ru_utime - r0.ru_stime)
+    return statistics.median(times), statistics.median(cpu)
+
+
 def figure(name: str, value: float, unit: str, target: float | None = None,
            better: str = "lower", reference: str = "") -> None:
     """Print one benchmark figure as a machine-readable line for ``run_all.py``.
