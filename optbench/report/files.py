@@ -9,6 +9,7 @@ an older file of that name intact. A CSV that carries notes
 from __future__ import annotations
 
 import os
+import stat
 import tempfile
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -39,7 +40,20 @@ def sidecar_path(path: str | Path) -> Path:
     return path.with_name(path.name + SIDECAR_SUFFIX)
 
 
+def _special(path: Path) -> bool:
+    """True for an existing target that is not a regular file (``/dev/null``, a pipe,
+    a terminal): it is written into as it is, never replaced."""
+    try:
+        return not stat.S_ISREG(path.stat().st_mode)
+    except OSError:
+        return False
+
+
 def _atomic(path: Path, fill: Callable[[IO[bytes]], object]) -> None:
+    if _special(path):
+        with open(path, "wb") as handle:
+            fill(handle)
+        return
     folder = path.parent if str(path.parent) else Path(".")
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=folder)
     try:
@@ -74,7 +88,7 @@ def write_payload(path: str | Path, payload) -> Path:
             data = str(payload).encode("utf-8")
             _atomic(path, lambda f: f.write(data))
             notes = getattr(payload, "notes", None)
-            if notes:
+            if notes and not _special(path):      # no sidecar beside /dev/null or a pipe
                 from optbench.report.notes import sidecar_json
                 text = sidecar_json(notes, getattr(payload, "columns", None)).encode("utf-8")
                 _atomic(sidecar_path(path), lambda f: f.write(text))

@@ -158,3 +158,23 @@ def test_cli_bad_input_is_one_line_exit_2(argv, needle, capsys):
     assert main(argv) == 2
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and needle in err and "Traceback" not in err
+
+
+def test_an_output_that_is_not_a_regular_file_is_written_into_not_replaced(tmp_path):
+    """``-o`` naming a pipe (like ``/dev/null`` or a terminal) writes into it: the
+    atomic replace is for regular files only, and no sidecar is written beside it."""
+    import os
+    import threading
+
+    from optbench.report.csv import write_rows
+    from optbench.report.files import write_payload
+    fifo = tmp_path / "pipe"
+    os.mkfifo(fifo)
+    got = []
+    reader = threading.Thread(target=lambda: got.append(fifo.read_bytes()))
+    reader.start()
+    write_payload(fifo, write_rows(["a", "b"], [(1, 2)], {"table": "t"}))
+    reader.join(timeout=10)
+    assert got and got[0].decode().splitlines() == ["a,b", "1,2"]
+    assert fifo.exists() and not fifo.is_file()            # still the pipe
+    assert not (tmp_path / "pipe.meta.json").exists()
