@@ -29,7 +29,8 @@ class ExportDialog(ModalScreen[ExportRequest | None]):
         self._tables = tables
         self._current = current if current in tables else "report"
         self._stem = stem
-        self._folder = Path(folder or Path.cwd())
+        #: None: the file name alone, written in the folder the workbench started in
+        self._folder = Path(folder) if folder is not None else None
 
     def compose(self) -> ComposeResult:
         choices = [(label, key) for key, (label, _) in self._tables.items()]
@@ -55,7 +56,8 @@ class ExportDialog(ModalScreen[ExportRequest | None]):
         self.query_one("#export-what", Select).focus()
 
     def _default_path(self, what: str, fmt: str) -> Path:
-        return self._folder / f"{self._stem}-{what}.{fmt}"
+        name = f"{self._stem}-{what}.{fmt}"
+        return self._folder / name if self._folder is not None else Path(name)
 
     @on(Select.Changed, "#export-what")
     def _what(self, event: Select.Changed) -> None:

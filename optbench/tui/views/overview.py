@@ -1,6 +1,7 @@
 """Overview: the headline answer, the verdict per expiry, the state of data and model."""
 from __future__ import annotations
 
+from rich import box
 from rich.table import Table
 from rich.text import Text
 from textual.app import ComposeResult
@@ -52,13 +53,18 @@ def headline_text(comparison, estimate) -> Text:
 
 
 def verdict_table(comparison) -> Table:
-    table = Table(title="Implied against forecast, per expiry (vols in %, IV−fc in vol "
-                        "points; puts: ask against the model-expected payoff)",
-                  title_justify="left", expand=True, header_style="bold")
-    for col, just in (("Expiry", "left"), ("Days", "right"), ("ATM IV", "right"),
-                      ("Fcst", "right"), ("Band", "right"), ("IV−fc", "right"),
-                      ("Verdict", "left"), ("25Δ put", "left"), ("Floor put", "left")):
-        table.add_column(col, justify=just, no_wrap=True)
+    # no vertical rules: nine columns fit an 80-column terminal
+    table = Table(title="Implied against forecast, per expiry: ATM implied vol (IV), "
+                        "forecast and band in %, IV−fc in vol points; verdicts for the ATM "
+                        "vol and for the 25Δ and floor puts (ask against the model-expected "
+                        "payoff)", title_justify="left", expand=True, header_style="bold",
+                  box=box.SIMPLE_HEAD, pad_edge=False, collapse_padding=True)
+    for col, just, width in (("Expiry", "left", 10), ("Days", "right", 4),
+                             ("IV", "right", 4), ("Fcst", "right", 4),
+                             ("Band", "right", 9), ("IV−fc", "right", 5),
+                             ("ATM", "left", 7), ("25Δ put", "left", 7),
+                             ("Floor", "left", 7)):
+        table.add_column(col, justify=just, no_wrap=True, min_width=width)
     for r in comparison.expiries:
         table.add_row(fmt.date(r.expiry), str(r.calendar_days), fmt.pct(r.atm_iv),
                       fmt.pct(r.forecast_vol),
