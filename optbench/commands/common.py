@@ -314,7 +314,7 @@ def _write_one(path: Path | None, payload) -> None:
     if path is not None:
         written = write_payload(path, payload)
         print(f"optbench: wrote {written}", file=sys.stderr)
-        if getattr(payload, "notes", None):
+        if getattr(payload, "notes", None) and sidecar_path(written).is_file():
             print(f"optbench: wrote {sidecar_path(written)} (the table's notes)",
                   file=sys.stderr)
         return
