@@ -61,15 +61,22 @@ def _arrays(*values):
     return [as_float_array(v) for v in values]
 
 
-def _tree(S, K, t, r, q, sigma, is_call, n):
-    """BBSR tree value with n steps for 1-d arrays of live options (sigma*sqrt(t) > 0)."""
+def lattice(t, r, q, sigma, n):
+    """Cox-Ross-Rubinstein step of an n-step tree (Hull ch. 13): ``(dt, sq, u, growth,
+    p, disc)`` with :math:`u = e^{\sigma\sqrt{dt}}`, growth :math:`e^{(r-q)dt}`,
+    up-probability :math:`p = (growth - 1/u)/(u - 1/u)` and discount :math:`e^{-r dt}`."""
     dt = t / n
     sq = sigma * np.sqrt(dt)
     u = np.exp(sq)
     d = 1.0 / u
     growth = np.exp((r - q) * dt)
     p = (growth - d) / (u - d)
-    disc = np.exp(-r * dt)
+    return dt, sq, u, growth, p, np.exp(-r * dt)
+
+
+def _tree(S, K, t, r, q, sigma, is_call, n):
+    """BBSR tree value with n steps for 1-d arrays of live options (sigma*sqrt(t) > 0)."""
+    dt, sq, u, growth, p, disc = lattice(t, r, q, sigma, n)
     sign = np.where(is_call, 1.0, -1.0)[:, None]
     Kc = K[:, None]
     # node prices at step n-1: S u^(2j-(n-1)), j = 0..n-1

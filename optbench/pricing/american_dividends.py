@@ -47,6 +47,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from optbench.pricing.american import _low_vol, lattice
 from optbench.pricing.bsm import as_flag_array, as_float_array, black_price
 from optbench.pricing.cash_dividends import escrowed_forward, pv_dividends
 
@@ -67,13 +68,7 @@ def _remaining_pv(t, r, n, times, amounts):
 
 def _tree(Sx, K, t, r, q, sigma, is_call, n, times, amounts):
     """Escrowed tree value with n steps for 1-d arrays of live options."""
-    dt = t / n
-    sq = sigma * np.sqrt(dt)
-    u = np.exp(sq)
-    d = 1.0 / u
-    growth = np.exp((r - q) * dt)
-    p = (growth - d) / (u - d)
-    disc = np.exp(-r * dt)
+    dt, sq, u, growth, p, disc = lattice(t, r, q, sigma, n)
     sign = np.where(is_call, 1.0, -1.0)[:, None]
     Kc = K[:, None]
     rem = _remaining_pv(t, r, n, times, amounts)
@@ -247,11 +242,6 @@ def american_dividend_implied_vol(price, S, K, t, r, q, is_call, times, amounts,
     no volatility fits)."""
     return american_dividend_implied_vol_with_status(price, S, K, t, r, q, is_call, times,
                                                      amounts, steps)[0]
-
-
-def _low_vol(r, q, t, steps):
-    """Smallest volatility keeping the tree's probabilities inside (0, 1)."""
-    return np.maximum(0.005, 2.0 * np.abs(r - q) * np.sqrt(t / (steps // 2)))
 
 
 def _solve(A, idx, P, S, K, t, r, q, c, times, amounts, steps, max_iter):

@@ -29,21 +29,11 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
-from timing import figure, process_time  # noqa: E402  (tests/benchmarks)
+from timing import CPU, figure, wall  # noqa: E402  (tests/benchmarks)
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "chains" / "ZPHX"
 PY = sys.executable
-
-
-CPU: dict[str, float] = {}
-
-
-def wall(cmd: list[str], repeats: int) -> float:
-    """Median wall seconds of a fresh process; its median CPU seconds go to CPU."""
-    w, c = process_time(cmd, repeats)
-    CPU[" ".join(cmd)] = c
-    return w
 
 
 def big_chain(folder: Path, n_expiries: int = 20, n_strikes: int = 620) -> Path:

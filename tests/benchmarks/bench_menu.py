@@ -29,21 +29,11 @@ from pathlib import Path
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from timing import median_time, process_time  # noqa: E402
+from timing import CPU, median_time, wall  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "chains" / "ZPHX"
 PY = sys.executable
-
-
-CPU: dict[str, float] = {}
-
-
-def wall(cmd: list[str], repeats: int) -> float:
-    """Median wall seconds of a fresh process; its median CPU seconds go to CPU."""
-    w, c = process_time(cmd, repeats)
-    CPU[" ".join(cmd)] = c
-    return w
 
 
 def main() -> None:

@@ -39,10 +39,6 @@ DEMO = ROOT / "chains" / "ZPHX"
 PY = sys.executable
 
 
-def wall(cmd: list[str], repeats: int) -> tuple[float, float]:
-    """Median wall and CPU seconds of a fresh process."""
-    return process_time(cmd, repeats)
-
 
 def main() -> None:
     ap = argparse.ArgumentParser()
@@ -51,9 +47,9 @@ def main() -> None:
     n = args.repeats
 
     print("optbench track on the demo (target: <= 5 s wall including start-up)")
-    floor, _ = wall([PY, "-c", "pass"], n)
-    imports, _ = wall([PY, "-c", "import numpy, pandas, scipy.optimize"], n)
-    track_wall, track_cpu = wall([PY, "-m", "optbench", "track", str(DEMO), "-f", "json"], n)
+    floor, _ = process_time([PY, "-c", "pass"], n)
+    imports, _ = process_time([PY, "-c", "import numpy, pandas, scipy.optimize"], n)
+    track_wall, track_cpu = process_time([PY, "-m", "optbench", "track", str(DEMO), "-f", "json"], n)
     print(f"  python -c pass                         {floor:7.3f} s")
     print(f"  import numpy, pandas, scipy.optimize   {imports:7.3f} s")
     print(f"  optbench track -f json (demo)          {track_wall:7.3f} s wall, "

@@ -34,6 +34,18 @@ def process_time(cmd: list[str], repeats: int) -> tuple[float, float]:
     return statistics.median(times), statistics.median(cpu)
 
 
+#: median CPU seconds of each command timed by :func:`wall`, keyed by the command line
+CPU: dict[str, float] = {}
+
+
+def wall(cmd: list[str], repeats: int) -> float:
+    """Median wall seconds of ``cmd`` as a fresh process; its median CPU seconds go to
+    :data:`CPU`."""
+    w, c = process_time(cmd, repeats)
+    CPU[" ".join(cmd)] = c
+    return w
+
+
 def figure(name: str, value: float, unit: str, target: float | None = None,
            better: str = "lower", reference: str = "") -> None:
     """Print one benchmark figure as a machine-readable line for ``run_all.py``.
