@@ -1,7 +1,10 @@
-"""A self-contained HTML report with figures (matplotlib, Agg backend).
+"""A self-contained HTML report with figures.
 
-Figures are embedded as PNG data URIs, so the report is one file. matplotlib is
-imported only inside the figure functions (it costs start-up time).
+Figures are drawn once, directly as SVG (:mod:`optbench.report.svg`), and embedded as
+SVG data URIs, so the report is one file and needs no plotting library: drawing them
+takes milliseconds, where importing and drawing with matplotlib took seconds.
+(:func:`_plt` and :func:`_png` remain for the figures other reports still draw with
+matplotlib, Agg backend.)
 
 Figures of a comparison:
 
@@ -29,6 +32,7 @@ from optbench.report.fields import (EXPIRY_BRIEF, HEDGE_FIELDS, KINDS, LABELS, L
                                     PROTECTION_BRIEF,
                                     SCENARIO_FIELDS, fmt)
 from optbench.report.provenance import inputs_line
+from optbench.report.svg import PALETTE, Figure
 
 _CSS = """
 body{font-family:system-ui,sans-serif;margin:2em;max-width:1200px;color:#1d2330}
@@ -56,39 +60,43 @@ def _png(fig) -> str:
 
 
 def figure_term_structure(comparison) -> str:
-    """ATM IV by calendar days against the forecast band and realized vol (PNG data URI)."""
-    plt = _plt()
+    """ATM IV by calendar days against the forecast band and realized vol (SVG data URI)."""
     rows = comparison.expiries
     d = np.array([r.calendar_days for r in rows], float)
-    fig, ax = plt.subplots(figsize=(8, 4))
+    fig = Figure(760, 380)
+    ax = fig.panel(0, xscale="log", legend="upper right",
+                   title=f"{comparison.underlying} term structure, "
+                         f"{comparison.asof.isoformat()}",
+                   xlabel="calendar days to expiry", ylabel="vol, % a year")
     lo = np.array([r.forecast_low for r in rows]) * 100
     hi = np.array([r.forecast_high for r in rows]) * 100
-    ax.fill_between(d, lo, hi, alpha=0.25, label=f"forecast band {comparison.band[0]:.0%}–"
-                                                  f"{comparison.band[1]:.0%} (parameter "
-                                                  "uncertainty)")
-    ax.plot(d, np.array([r.forecast_vol for r in rows]) * 100, "-", label="forecast")
-    ax.plot(d, np.array([r.atm_iv for r in rows]) * 100, "o-", label="ATM implied")
-    ax.plot(d, np.array([r.model_free_iv for r in rows]) * 100, "s--", ms=4,
-            label="model-free implied")
-    ax.plot(d, np.array([r.realized_vol for r in rows]) * 100, "^:", label="trailing realized")
-    ax.set_xscale("log")
-    ax.set_xlabel("calendar days to expiry")
-    ax.set_ylabel("vol, % a year")
-    ax.set_title(f"{comparison.underlying} term structure, {comparison.asof.isoformat()}")
-    ax.legend(fontsize=8)
-    ax.grid(alpha=0.3)
-    return _png(fig)
+    ax.band(d, lo, hi, label=f"forecast band {comparison.band[0]:.0%}–"
+                             f"{comparison.band[1]:.0%} (parameter uncertainty)")
+    ax.line(d, np.array([r.forecast_vol for r in rows]) * 100, label="forecast")
+    ax.line(d, np.array([r.atm_iv for r in rows]) * 100, marker="o", label="ATM implied")
+    ax.line(d, np.array([r.model_free_iv for r in rows]) * 100, dash="--", marker="s",
+            size=2.5, label="model-free implied")
+    ax.line(d, np.array([r.realized_vol for r in rows]) * 100, dash=":", marker="^",
+            label="trailing realized")
+    return fig.data_uri()
 
 
 def figure_smiles(comparison) -> str:
-    """Each expiry's smile against its forecast level and band (PNG data URI)."""
-    plt = _plt()
+    """Each expiry's smile against its forecast level and band (SVG data URI)."""
     rows = comparison.expiries
     n = max(len(rows), 1)
     ncol = min(3, n)
     nrow = math.ceil(n / ncol)
-    fig, axes = plt.subplots(nrow, ncol, figsize=(4 * ncol, 2.8 * nrow), squeeze=False)
-    for ax, row in zip(axes.flat, rows):
+    fig = Figure(380 * ncol, 260 * nrow, nrow, ncol)
+    for i, row in enumerate(rows):
+        ax = fig.panel(i, font_size=10, legend="upper right" if i == 0 else None,
+                       title=f"{row.expiry.isoformat()} ({row.calendar_days} d) · "
+                             f"{row.verdict}",
+                       xlabel="strike / forward",
+                       ylabel="implied vol, %" if i % ncol == 0 else "")
+        ax.hspan(row.forecast_low * 100, row.forecast_high * 100, colour=PALETTE[2],
+                 opacity=0.2, label="forecast band")
+        ax.hline(row.forecast_vol * 100, colour=PALETTE[2], label="forecast")
         f = comparison.strikes.get(row.expiry)
         if f is not None and len(f):
             m = f["moneyness"].to_numpy(float)
@@ -96,86 +104,73 @@ def figure_smiles(comparison) -> str:
             lo = f["iv_bid"].to_numpy(float) * 100
             hi = f["iv_ask"].to_numpy(float) * 100
             calls = f["is_call"].to_numpy(bool)
-            for sel, mk, lab in ((~calls, "v", "puts"), (calls, "^", "calls")):
-                err = np.vstack([np.nan_to_num(mid[sel] - lo[sel]),
-                                 np.nan_to_num(hi[sel] - mid[sel])])
-                ax.errorbar(m[sel], mid[sel], yerr=np.clip(err, 0, None), fmt=mk, ms=3,
-                            lw=0.6, label=lab)
-        ax.axhspan(row.forecast_low * 100, row.forecast_high * 100, alpha=0.2)
-        ax.axhline(row.forecast_vol * 100, lw=1)
-        ax.set_title(f"{row.expiry.isoformat()} ({row.calendar_days} d) · {row.verdict}",
-                     fontsize=9)
-        ax.set_xlabel("strike / forward", fontsize=8)
-        ax.tick_params(labelsize=7)
-        ax.grid(alpha=0.3)
-    for ax in list(axes.flat)[len(rows):]:
-        ax.set_visible(False)
-    axes.flat[0].set_ylabel("implied vol, %")
-    fig.tight_layout()
-    return _png(fig)
+            for sel, mk, lab, colour in ((~calls, "v", "puts (bid–ask)", PALETTE[0]),
+                                         (calls, "^", "calls (bid–ask)", PALETTE[1])):
+                ax.error_bars(m[sel], mid[sel], np.where(np.isfinite(lo[sel]), lo[sel],
+                                                         mid[sel]),
+                              np.where(np.isfinite(hi[sel]), hi[sel], mid[sel]),
+                              marker=mk, colour=colour, label=lab)
+    return fig.data_uri()
 
 
 def figure_history(comparison) -> str | None:
-    """Closes with ±3-sigma one-day bands, and returns with surprises (PNG data URI)."""
+    """Closes with ±3-sigma one-day bands, and returns with surprises (SVG data URI)."""
     h = comparison.history
     if h is None or not len(h):
         return None
-    plt = _plt()
     dates = np.asarray(h["date"].to_numpy(), dtype="datetime64[D]")
     close = h["close"].to_numpy(float)
     ret = h["ret"].to_numpy(float)
     sigma = h["sigma"].to_numpy(float)
     mu = float(comparison.model.params.get("mu", 0.0) or 0.0)
-    fig, (a1, a2) = plt.subplots(2, 1, figsize=(9, 6), sharex=True,
-                                 gridspec_kw={"height_ratios": [3, 2]})
-    a1.plot(dates, close, lw=0.8, label="close")
-    a1.fill_between(dates, h["band_low"].to_numpy(float), h["band_high"].to_numpy(float),
-                    alpha=0.3, label="±3σ one-day band")
-    a1.set_ylabel("close")
-    a1.legend(fontsize=8)
-    a1.set_title(f"{comparison.underlying} closes and the {comparison.model.name} bands")
-    a2.plot(dates, ret * 100, lw=0.5, label="daily log return")
-    a2.plot(dates, (mu + 3 * sigma) * 100, lw=0.6, color="0.4")
-    a2.plot(dates, (mu - 3 * sigma) * 100, lw=0.6, color="0.4", label="±3σ")
+    fig = Figure(860, 560, 2, 1, height_ratios=[3, 2])
+    a1 = fig.panel(0, xscale="date", legend="upper left", ylabel="close",
+                   title=f"{comparison.underlying} closes and the {comparison.model.name} "
+                         "bands")
+    a1.band(dates, h["band_low"].to_numpy(float), h["band_high"].to_numpy(float),
+            colour=PALETTE[1], opacity=0.3, label="±3σ one-day band")
+    a1.line(dates, close, width=0.8, colour=PALETTE[0], label="close")
+    a2 = fig.panel(1, xscale="date", legend="upper left", legend_columns=4,
+                   ylabel="% a day")
+    a2.line(dates, ret * 100, width=0.5, colour=PALETTE[0], label="daily log return")
+    a2.line(dates, (mu + 3 * sigma) * 100, width=0.6, colour="#666666", label="±3σ")
+    a2.line(dates, (mu - 3 * sigma) * 100, width=0.6, colour="#666666")
     outside = np.abs(ret - mu) > 3 * sigma
-    a2.plot(dates[outside], ret[outside] * 100, "o", ms=3, label="outside ±3σ")
+    a2.markers(dates[outside], ret[outside] * 100, size=2.5, colour=PALETTE[1],
+               label="outside ±3σ")
     bt = comparison.backtest or {}
     surprises = bt.get("surprises") or []
     if surprises:
         sd = np.array([np.datetime64(s["date"], "D") for s in surprises])
         idx = np.searchsorted(dates, sd)
         idx = idx[(idx < len(dates))]
-        a2.plot(dates[idx], ret[idx] * 100, "x", ms=6, label="largest out-of-sample surprises")
+        a2.markers(dates[idx], ret[idx] * 100, marker="x", size=4, colour=PALETTE[3],
+                   label="largest out-of-sample surprises")
     if bt.get("split"):
         for ax in (a1, a2):
-            ax.axvline(np.datetime64(bt["split"], "D"), ls="--", lw=0.8, color="0.3")
-    a2.set_ylabel("% a day")
-    a2.legend(fontsize=7, ncol=4)
-    for ax in (a1, a2):
-        ax.grid(alpha=0.3)
-    fig.tight_layout()
-    return _png(fig)
+            ax.vline(np.datetime64(bt["split"], "D"))
+    lim = (float(dates[0].astype("int64")), float(dates[-1].astype("int64")))
+    span = lim[1] - lim[0]
+    a1.xlim = a2.xlim = (lim[0] - 0.02 * span, lim[1] + 0.02 * span)   # shared x axis
+    return fig.data_uri()
 
 
 def figure_hedge(estimate) -> str:
-    """Portfolio P&L at expiry with and without the hedge, by underlying move (PNG)."""
-    plt = _plt()
+    """Portfolio P&L at expiry with and without the hedge, by underlying move (SVG)."""
     moves = np.linspace(-0.35, 0.15, 201)
     unhedged, hedged = estimate.pnl_at(moves)
-    fig, ax = plt.subplots(figsize=(7, 4))
-    ax.plot(moves * 100, unhedged, label="unhedged")
-    ax.plot(moves * 100, hedged, label="hedged")
+    fig = Figure(700, 400)
+    ax = fig.panel(0, legend="upper left",
+                   title=f"{estimate.underlying} {estimate.structure.replace('_', ' ')}, "
+                         f"expiry {estimate.expiry.isoformat()}",
+                   xlabel="underlying move to expiry, %", ylabel="portfolio P&L")
+    ax.hline(0.0)
+    ax.line(moves * 100, unhedged, label="unhedged")
+    ax.line(moves * 100, hedged, label="hedged")
     sc = estimate.scenarios
-    ax.plot([s["move"] * 100 for s in sc], [s["hedged"] for s in sc], "o", ms=4,
-            label="scenario table")
-    ax.axhline(0, lw=0.6, color="0.4")
-    ax.set_xlabel("underlying move to expiry, %")
-    ax.set_ylabel("portfolio P&L")
-    ax.set_title(f"{estimate.underlying} {estimate.structure.replace('_', ' ')}, "
-                 f"expiry {estimate.expiry.isoformat()}")
-    ax.grid(alpha=0.3)
-    ax.legend(fontsize=8)
-    return _png(fig)
+    ax.markers([s["move"] * 100 for s in sc], [s["hedged"] for s in sc], size=3.5,
+               colour=PALETTE[1], label="scenario table")
+    return fig.data_uri()
 
 
 def _table(records, columns) -> str:

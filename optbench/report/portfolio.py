@@ -217,23 +217,23 @@ def portfolio_markdown(ph) -> str:
 
 def figure_loss(ph) -> str:
     """The loss distribution's histogram, unhedged and hedged, with the 99% VaR marked
-    (PNG data URI; the counts and edges are the result's, nothing recomputed)."""
-    from optbench.report.html import _plt, _png
-    plt = _plt()
+    (SVG data URI, :mod:`optbench.report.svg`; the counts and edges are the result's,
+    nothing recomputed)."""
+    import numpy as np
+
+    from optbench.report.svg import Figure
     h, L = ph.loss.histogram, ph.loss
-    edges = h["edges"]
+    edges = np.asarray(h["edges"], float)
     width = edges[1] - edges[0]
-    fig, ax = plt.subplots(figsize=(7, 4))
-    ax.bar(edges[:-1], h["unhedged"], width=width, align="edge", alpha=0.5, label="unhedged")
-    ax.bar(edges[:-1], h["hedged"], width=width, align="edge", alpha=0.5, label="hedged")
+    fig = Figure(700, 400)
+    ax = fig.panel(0, legend="upper left", title=f"{L.n_paths:,} joint paths to {L.expiry}",
+                   xlabel="portfolio P&L at expiry (lines: 99% VaR, unhedged dashed, "
+                          "hedged dotted)", ylabel="paths")
+    ax.bars(edges[:-1], h["unhedged"], width, opacity=0.5, label="unhedged")
+    ax.bars(edges[:-1], h["hedged"], width, opacity=0.5, label="hedged")
     for side, style in ((L.unhedged, "--"), (L.hedged, ":")):
-        ax.axvline(-side["var_99"], ls=style, lw=1, color="0.2")
-    ax.set_xlabel("portfolio P&L at expiry (lines: 99% VaR, unhedged dashed, hedged dotted)")
-    ax.set_ylabel("paths")
-    ax.set_title(f"{L.n_paths:,} joint paths to {L.expiry}")
-    ax.grid(alpha=0.3)
-    ax.legend(fontsize=8)
-    return _png(fig)
+        ax.vline(-side["var_99"], dash=style, width=1.0, colour="#333333")
+    return fig.data_uri()
 
 
 def portfolio_html(ph, *, figures: bool = True) -> str:

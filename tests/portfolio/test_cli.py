@@ -67,7 +67,7 @@ def test_markdown_html_xlsx_carry_the_sections(capsys, tmp_path):
     _run(capsys, "--format", "html", "-o", str(tmp_path / "h.html"))
     page = (tmp_path / "h.html").read_text(encoding="utf-8")
     assert "Greeks of the hedge" in page and page.rstrip().endswith("</html>")
-    assert "distribution of P&amp;L at expiry\" src=\"data:image/png" in page
+    assert "distribution of P&amp;L at expiry\" src=\"data:image/svg+xml" in page
     _run(capsys, "--menu", "--format", "xlsx", "-o", str(tmp_path / "h.xlsx"))
     from openpyxl import load_workbook
     book = load_workbook(tmp_path / "h.xlsx")

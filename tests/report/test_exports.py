@@ -126,7 +126,8 @@ def test_markdown_and_html_carry_the_caution_and_figures(comparison, estimate):
     assert CAUTION in md and "| Expiry |" in md
     assert CAUTION in hedge_markdown(estimate)
     page = comparison_html(comparison)
-    assert page.count("data:image/png;base64,") == 3
+    # figures are SVG drawn by optbench.report.svg (no plotting library): three of them
+    assert page.count("data:image/svg+xml;base64,") == 3
     assert CAUTION in page and CAUTION in hedge_html(estimate)
 
 
