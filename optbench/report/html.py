@@ -3,8 +3,6 @@
 Figures are drawn once, directly as SVG (:mod:`optbench.report.svg`), and embedded as
 SVG data URIs, so the report is one file and needs no plotting library: drawing them
 takes milliseconds, where importing and drawing with matplotlib took seconds.
-(:func:`_plt` and :func:`_png` remain for the figures other reports still draw with
-matplotlib, Agg backend.)
 
 Figures of a comparison:
 
@@ -21,9 +19,7 @@ hedge across underlying moves, with the scenario table's points.
 """
 from __future__ import annotations
 
-import base64
 import html as _html
-import io
 import math
 
 import numpy as np
@@ -43,20 +39,6 @@ th{background:#eef1f6}td.t,th.t{text-align:left}
 .caution{border-left:4px solid #c69214;padding:0.5em 1em;background:#fbf6e8}
 img{max-width:100%}
 """
-
-
-def _plt():
-    import matplotlib
-    matplotlib.use("Agg", force=True)
-    import matplotlib.pyplot as plt
-    return plt
-
-
-def _png(fig) -> str:
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=96, bbox_inches="tight")
-    _plt().close(fig)
-    return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
 
 
 def figure_term_structure(comparison) -> str:
