@@ -159,6 +159,9 @@ class TerminalDraws:
     convexity : 1.0 when the convexity term is applied (risk-free, excess), else 0.0.
     realized_vol : annualised realized vol of each path to each expiry,
         :math:`\\sqrt{252/h\\sum_{i\\le h} r_i^2}` (the simulated daily returns).
+    horizons : shape ``(n_expiries, 4)``: each column's trading days, calendar years,
+        rate and carry, as simulated (None when not recorded); :meth:`column_for`
+        finds a horizon in them so one simulation serves every reader.
     """
 
     log_drift: np.ndarray
@@ -166,12 +169,61 @@ class TerminalDraws:
     variance: np.ndarray
     convexity: float
     realized_vol: np.ndarray
+    horizons: np.ndarray | None = None
 
     def log_return(self, scale: float = 1.0, column: int | slice = slice(None)) -> np.ndarray:
         """Terminal log returns with every daily vol scaled by ``scale`` (1 = as fitted)."""
         s = float(scale)
         return (self.log_drift[column] + s * self.shock[:, column]
                 - self.convexity * 0.5 * s * s * self.variance[:, column])
+
+    @property
+    def trading_days(self) -> np.ndarray | None:
+        """Each column's horizon in trading days (None when not recorded)."""
+        return None if self.horizons is None else self.horizons[:, 0].astype(int)
+
+    def column_for(self, trading_days: int, tau: float, rate: float,
+                   carry: float) -> int | None:
+        """The column simulated for exactly this horizon, calendar time, rate and carry
+        (its terminal log returns are then those of a simulation of that expiry
+        alone with the same paths, seed and drift), or None."""
+        if self.horizons is None:
+            return None
+        want = np.array([max(int(trading_days), 1), tau, rate, carry], float)
+        hit = np.flatnonzero((self.horizons == want).all(axis=1))
+        return int(hit[0]) if hit.size else None
+
+
+def _sums_at_horizons(r: np.ndarray, v: np.ndarray, a: float, convexity: float,
+                      h: np.ndarray):
+    """Per path, the sums over the first ``h`` days (each ``h`` in the array) of
+    :math:`r_i - a + c\\,v_i/2` (the shocks :math:`\\sigma_i z_i`), of :math:`v_i` and
+    of :math:`r_i^2`; ``r``, ``v`` laid out (days, paths).
+
+    The same additions in the same order as a cumulative sum along the days read at
+    each horizon, so the figures are those of ``np.cumsum(...)[:, h - 1]`` to the last
+    bit, without holding every day's running sum (paths x days) in memory.
+    Returns three arrays of shape ``(paths, len(h))``.
+    """
+    want = np.unique(h)
+    where = np.searchsorted(want, h)
+    n = r.shape[1]
+    out = np.empty((3, want.size, n))
+    acc = np.zeros((3, n))
+    tmp = np.empty(n)
+    k = 0
+    for day in range(int(want[-1])):
+        np.subtract(r[day], a, out=tmp)
+        if convexity:
+            tmp += 0.5 * v[day]
+        acc[0] += tmp
+        acc[1] += v[day]
+        np.multiply(r[day], r[day], out=tmp)
+        acc[2] += tmp
+        if day + 1 == want[k]:
+            out[:, k] = acc
+            k += 1
+    return out[0, where].T, out[1, where].T, out[2, where].T
 
 
 def simulate_terminal(fit, choice: DriftChoice, trading_days, taus, rates, carries, *,
@@ -181,6 +233,9 @@ def simulate_terminal(fit, choice: DriftChoice, trading_days, taus, rates, carri
 
     ``trading_days``, ``taus`` (calendar years), ``rates`` and ``carries`` (the
     expiries' continuously compounded rate and carry) are arrays over expiries.
+    The paths of a horizon do not depend on the other horizons simulated with it (the
+    random numbers of a day are drawn in the same order whatever the longest
+    horizon), so a column is the same as a simulation of its expiry alone.
     """
     from optbench.volatility.simulate import simulate_paths
 
@@ -192,20 +247,16 @@ def simulate_terminal(fit, choice: DriftChoice, trading_days, taus, rates, carri
     daily = None if fitted else choice.annual / TRADING_DAYS_PER_YEAR
     sim = simulate_paths(fit.model, fit.params, fit.dist, fit.last_variance,
                          int(h.max()), int(n_paths), seed, drift=daily)
-    r, v = sim.returns, sim.variances
-    cols = h - 1
     a = float(fit.params.get("mu", 0.0) or 0.0) if fitted else daily
     c = 0.0 if fitted else 1.0
-    shock = r - a
-    if c:
-        shock += 0.5 * v
-    shock = np.cumsum(shock, axis=1)[:, cols]
-    var = np.cumsum(v, axis=1)[:, cols]
-    sq = np.square(r, out=r)
-    rv = np.sqrt(TRADING_DAYS_PER_YEAR / h * np.cumsum(sq, axis=1)[:, cols])
+    # the simulation's own (days, paths) layout: each day is one contiguous row
+    shock, var, sq = _sums_at_horizons(sim.returns.T, sim.variances.T, a, c, h)
+    rv = np.sqrt(TRADING_DAYS_PER_YEAR / h * sq)
     if fitted:
         log_drift = h * a - carries * taus
     else:
         log_drift = (rates - carries + choice.excess_return) * taus
+    horizons = np.column_stack([h.astype(float), np.broadcast_to(taus, h.shape), rates,
+                                carries])
     return TerminalDraws(log_drift=np.asarray(log_drift, float), shock=shock, variance=var,
-                         convexity=c, realized_vol=rv)
+                         convexity=c, realized_vol=rv, horizons=horizons)

@@ -58,7 +58,8 @@ from collections.abc import Sequence
 import numpy as np
 import pandas as pd
 
-from optbench.analysis.drift import DriftChoice, choose_drift, simulate_terminal
+from optbench.analysis.drift import (DriftChoice, TerminalDraws, choose_drift,
+                                     simulate_terminal)
 from optbench.analysis.results import (CAUTION, HedgeEstimate, HedgeLeg, HedgeRequest)
 from optbench.errors import InputError
 
@@ -319,13 +320,30 @@ def _choose_legs(request: HedgeRequest, table: pd.DataFrame, spot: float,
     return buys, sells, note
 
 
+def hedge_expiry(comparison, request: HedgeRequest):
+    """The comparison's :class:`~optbench.analysis.results.ExpiryRow` the request's
+    hedge uses (``--expiry``, or the listed expiry nearest ``--days``); raises
+    :class:`~optbench.errors.InputError` as :func:`hedge_from_comparison` does."""
+    i = _pick_expiry(request, [row.expiry for row in comparison.expiries],
+                     [row.calendar_days for row in comparison.expiries])
+    return comparison.expiries[i]
+
+
 def hedge_from_comparison(comparison, request: HedgeRequest, *, n_paths: int = 20000,
-                          seed: int | None = 7) -> HedgeEstimate:
+                          seed: int | None = 7, draws: TerminalDraws | None = None
+                          ) -> HedgeEstimate:
     """Hedge-cost estimates from a finished :class:`~optbench.analysis.results.Comparison`.
 
     Uses the comparison's per-strike table (quotes, implied and forecast vols, prices
     at the forecast vol), its ATM term structure (for the roll cost) and its fitted
     model (for the simulated payoff). See the module Notes for every formula.
+
+    ``draws``: terminal draws already simulated with these ``n_paths`` and ``seed``
+    under the comparison's drift (:func:`optbench.analysis.drift.simulate_terminal`,
+    e.g. to every horizon a portfolio's loss distribution and menu need); the hedge
+    reads its expiry's column instead of simulating again — the same paths and
+    figures as its own simulation. Without a column for its expiry (trading days,
+    calendar time, rate and carry), it simulates.
     """
     spot, rate, q = float(comparison.spot), float(comparison.rate), float(comparison.div_yield)
     expiries = [row.expiry for row in comparison.expiries]
@@ -357,9 +375,12 @@ def hedge_from_comparison(comparison, request: HedgeRequest, *, n_paths: int = 2
     if fit is not None and row.trading_days > 0:
         r_e = row.rate if math.isfinite(row.rate) else rate
         q_e = row.carry if math.isfinite(row.carry) else q
-        draws = simulate_terminal(fit, choice, [row.trading_days], [tau], [r_e], [q_e],
-                                  n_paths=n_paths, seed=seed)
-        s_t = spot * np.exp(draws.log_return(1.0, 0))
+        col = draws.column_for(row.trading_days, tau, r_e, q_e) \
+            if draws is not None and draws.shock.shape[0] == int(n_paths) else None
+        if col is None:
+            draws, col = simulate_terminal(fit, choice, [row.trading_days], [tau], [r_e],
+                                           [q_e], n_paths=n_paths, seed=seed), 0
+        s_t = spot * np.exp(draws.log_return(1.0, col))
         pay = leg_payoff(s_t, k, c, s) * units
         expected = float(math.exp(-r_e * tau) * pay.mean())
         prob = float((pay > 1e-12).mean())
@@ -422,6 +443,19 @@ def hedge_from_comparison(comparison, request: HedgeRequest, *, n_paths: int = 2
         style=str(getattr(comparison, "style", "european")),
         sources=dict(getattr(comparison, "sources", {}) or {})
         | ({"multiplier": "caller"} if request.multiplier else {}))
+
+
+def simulate_hedge_paths(comparison, trading_days, taus, rates, carries, *,
+                         n_paths: int = 20000, seed: int | None = 7) -> TerminalDraws | None:
+    """The comparison's fitted model simulated once to every horizon under its drift
+    (:func:`optbench.analysis.drift.simulate_terminal`): the draws a hedge estimate
+    (``draws=`` of :func:`hedge_from_comparison`), its loss distribution and its
+    protection menu share. None without a fitted model."""
+    fit = getattr(comparison, "fit", None)
+    if fit is None:
+        return None
+    return simulate_terminal(fit, _drift_of(comparison), trading_days, taus, rates, carries,
+                             n_paths=int(n_paths), seed=seed)
 
 
 def _drift_of(comparison) -> DriftChoice:

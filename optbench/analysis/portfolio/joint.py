@@ -106,7 +106,8 @@ def horizon_sums(daily: np.ndarray, trading_days: np.ndarray) -> np.ndarray:
 
 def simulate_joint(fit, residuals, beta: float, trading_days, t, *, rates, carries,
                    drift: float | str | None = "carry", excess_return: float = 0.0,
-                   n_paths: int = 20000, seed: int | None = 7) -> JointPaths:
+                   n_paths: int = 20000, seed: int | None = 7,
+                   underlying=None) -> JointPaths:
     """Simulate the underlying and the portfolio to every horizon (see module Notes).
 
     Parameters
@@ -120,6 +121,12 @@ def simulate_joint(fit, residuals, beta: float, trading_days, t, *, rates, carri
     drift : ``"carry"`` — each horizon's ``r - q`` plus ``excess_return`` (the
         default); a number — that annual drift for every horizon; None — the fitted
         mean of the daily log returns less the carry.
+    underlying : the underlying's paths already simulated with ``fit``, ``n_paths``
+        and ``seed`` to exactly these ``trading_days``
+        (:class:`~optbench.analysis.drift.TerminalDraws`, as the hedge estimate uses):
+        their summed shocks :math:`\\sum\\sigma_i z_i` and variances
+        :math:`\\sum\\sigma_i^2` are read instead of simulating again (the same paths:
+        the drift never enters the volatility recursion).
     """
     td = np.asarray(trading_days, int)
     tt = np.asarray(t, float)
@@ -128,9 +135,17 @@ def simulate_joint(fit, residuals, beta: float, trading_days, t, *, rates, carri
     if td.size == 0 or (td < 1).any():
         raise ValueError("horizons must be positive trading days")
     h_max = int(td.max())
-    sim = fit.simulate(h_max, n_paths=int(n_paths), seed=seed)
     mu = float(fit.params.get("mu", 0.0) or 0.0)
-    cum = horizon_sums(sim.returns.T, td)   # the simulation's (days, paths) memory
+    if underlying is not None:
+        got = underlying.trading_days
+        if got is None or not np.array_equal(got, td) or underlying.shock.shape[0] != n_paths:
+            raise ValueError("the underlying's draws were simulated to other horizons or "
+                             "with another number of paths")
+        shock, var = underlying.shock, underlying.variance
+        cum = shock + mu * td[None, :]
+    else:
+        sim = fit.simulate(h_max, n_paths=int(n_paths), seed=seed)
+        cum = horizon_sums(sim.returns.T, td)   # the simulation's (days, paths) memory
     if drift is None:
         index = cum - (qq * tt)[None, :]
         rule = "fitted mean of the model's daily log returns, less the carry"
@@ -146,8 +161,9 @@ def simulate_joint(fit, residuals, beta: float, trading_days, t, *, rates, carri
             annual = np.full(td.shape, float(drift))
             rule = f"{float(drift):+.2%} a year"
         # sum of sigma_i z_i, less half the summed variance: E[S_T/S] = exp(annual tau)
-        shock = cum - mu * td[None, :]
-        var = horizon_sums(sim.variances.T, td)
+        if underlying is None:
+            shock = cum - mu * td[None, :]
+            var = horizon_sums(sim.variances.T, td)
         index = (annual * tt)[None, :] + shock - 0.5 * var
     e = np.asarray(residuals if residuals is not None else [], float)
     e = e[np.isfinite(e)]

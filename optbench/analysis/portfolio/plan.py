@@ -78,6 +78,15 @@ class PortfolioHedge:
         return out
 
 
+def _horizons(comparison, trading_days: int, menu: bool, menu_days) -> np.ndarray:
+    """The simulation's horizons (trading days, sorted): the hedge's expiry and, with
+    the menu, every menu expiry."""
+    wanted = {int(trading_days)}
+    if menu:
+        wanted |= {r.trading_days for r in menu_expiries(comparison, *menu_days)}
+    return np.array(sorted(wanted))
+
+
 def horizon_market(comparison, trading_days, estimate):
     """Calendar years, rate and carry of each horizon (trading days) from the
     comparison's expiries (the chain's rate and yield where an expiry has none)."""
@@ -121,9 +130,21 @@ def portfolio_hedge(comparison, request: HedgeRequest, *, portfolio: PortfolioFi
             hedge_ratio=(portfolio.hedge_ratio if portfolio.ratio_source == "user override"
                          else None))
         warnings.extend(portfolio.warnings)
+    fit = getattr(comparison, "fit", None)
+    shared = None
     if estimate is None:
-        from optbench.analysis.hedge import hedge_from_comparison
-        estimate = hedge_from_comparison(comparison, request, n_paths=n_paths, seed=seed)
+        # one simulation of the underlying to every horizon serves the hedge estimate,
+        # the loss distribution and the menu (the same paths each would simulate)
+        from optbench.analysis.hedge import (hedge_expiry, hedge_from_comparison,
+                                             simulate_hedge_paths)
+        row = hedge_expiry(comparison, request)
+        if fit is not None and row.trading_days >= 1:
+            td = _horizons(comparison, row.trading_days, menu, menu_days)
+            shared = (td, *horizon_market(comparison, td, row))
+            draws = simulate_hedge_paths(comparison, *shared, n_paths=n_paths, seed=seed)
+            shared = shared + (draws,)
+        estimate = hedge_from_comparison(comparison, request, n_paths=n_paths, seed=seed,
+                                         draws=shared[-1] if shared else None)
     warnings = list(estimate.warnings) + warnings
     excess = 0.0
     if drift == CARRY:
@@ -136,22 +157,20 @@ def portfolio_hedge(comparison, request: HedgeRequest, *, portfolio: PortfolioFi
         elif rule is not None:
             x = float(getattr(choice, "excess_return", 0.0) or 0.0)
             excess = x if x == x else 0.0
-    fit = getattr(comparison, "fit", None)
     loss = table = None
     joint = None
     if fit is None or estimate.trading_days < 1:
         warnings.append("no fitted model: loss distribution and menu not computed")
     else:
-        wanted = {estimate.trading_days}
-        if menu:
-            wanted |= {r.trading_days for r in menu_expiries(comparison, *menu_days)}
-        td = np.array(sorted(wanted))
+        td = _horizons(comparison, estimate.trading_days, menu, menu_days)
         t, rates, carries = horizon_market(comparison, td, estimate)
         from optbench.analysis.portfolio.joint import simulate_joint
         resid = portfolio.beta.residuals if portfolio is not None else None
         beta = portfolio.beta.beta if portfolio is not None else request.beta
+        underlying = shared[-1] if shared and np.array_equal(shared[0], td) else None
         joint = simulate_joint(fit, resid, beta, td, t, rates=rates, carries=carries,
-                               drift=drift, excess_return=excess, n_paths=n_paths, seed=seed)
+                               drift=drift, excess_return=excess, n_paths=n_paths, seed=seed,
+                               underlying=underlying)
         loss = dataclasses.replace(loss_distribution(joint, estimate, loss_level=loss_level),
                                    seed=seed)
         if menu:
