@@ -45,6 +45,7 @@ import multiprocessing
 import os
 import signal
 import sys
+import time
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -404,6 +405,10 @@ def _run_alone(fn, items, i: int, context, initializer, ledger: _Ledger) -> None
 #: why an attempt on Dask was lost: the worker that had the task (running it or
 #: next in its queue) died or left
 DASK_LOST = "a Dask worker was lost while this task was on it"
+#: seconds between questions to the scheduler about lost workers, and the longest
+#: wait for its answer
+LOSS_QUERY_INTERVAL = 0.5
+LOSS_QUERY_TIMEOUT = "20s"
 #: the reason of a task that the Dask scheduler gave up on after losing workers
 KILLED_WORKER = ("Dask workers died while running it {n} times (the scheduler's "
                  "limit, distributed.scheduler.allowed-failures)")
@@ -416,9 +421,34 @@ def _worker_losses(client, keys: list) -> dict:
         tasks = dask_scheduler.tasks
         return {k: tasks[k].suspicious for k in keys if k in tasks}
     try:
-        return client.run_on_scheduler(read)
-    except Exception:  # an older or remote scheduler that cannot run it: count nothing
+        return client.run_on_scheduler(read, callback_timeout=LOSS_QUERY_TIMEOUT)
+    except Exception:  # a scheduler that cannot run it or does not answer: count nothing
         return {}
+
+
+def _take_dask_result(client, fn, items, ledger: _Ledger, index: dict, pending, future,
+                      value, losses: int, killed_worker: type) -> None:
+    """Record one finished Dask future (its result fetched as ``value``) that the
+    scheduler moved ``losses`` times off a lost worker; resubmit it when its failure
+    is transient and retries remain; release it."""
+    i = index.pop(future.key)
+    if future.status == "error":    # (type, exception, traceback)
+        value = value[1]
+    ledger.attempts[i] += losses
+    ledger.lost[i].extend([DASK_LOST] * losses)
+    if isinstance(value, killed_worker):
+        value = TaskFailure(item=items[i], reason=KILLED_WORKER.format(n=losses or "several"))
+        if losses:     # the last loss is the final reason, not a retry
+            ledger.attempts[i] -= 1
+            ledger.lost[i].pop()
+    elif future.status != "finished":  # lost to the cluster another way
+        value = TaskFailure(item=items[i], reason=_describe(value), transient=True)
+    if not ledger.record(i, value):
+        ledger.attempts[i] += 1
+        again = client.submit(call_safely, fn, items[i], pure=False)
+        index[again.key] = i
+        pending.add(again)
+    future.release()
 
 
 def _run_on_dask(fn, items: Sequence[Any], address: str, progress: Progress | None,
@@ -445,31 +475,19 @@ def _run_on_dask(fn, items: Sequence[Any], address: str, progress: Progress | No
         # (a result lost before the client fetched it would be computed again)
         pending = as_completed(futures, with_results=True, raise_errors=False)
         del futures
+        held: list = []
+        last = time.monotonic()
         for batch in pending.batches():
-            moved = _worker_losses(client, [f.key for f, _ in batch])
-            for future, value in batch:
-                i = index.pop(future.key)
-                if future.status == "error":    # (type, exception, traceback)
-                    value = value[1]
-                losses = int(moved.get(future.key, 0))
-                ledger.attempts[i] += losses
-                ledger.lost[i].extend([DASK_LOST] * losses)
-                if isinstance(value, KilledWorker):
-                    value = TaskFailure(item=items[i], reason=KILLED_WORKER.format(
-                        n=losses or "several"))
-                    if losses:     # the last loss is the final reason, not a retry
-                        ledger.attempts[i] -= 1
-                        ledger.lost[i].pop()
-                elif future.status != "finished":  # lost to the cluster another way
-                    value = TaskFailure(item=items[i], reason=_describe(value),
-                                        transient=True)
-                if not ledger.record(i, value):
-                    ledger.attempts[i] += 1
-                    again = client.submit(call_safely, fn, items[i], pure=False)
-                    index[again.key] = i
-                    pending.add(again)
-                future.release()
-            del batch
+            held.extend(batch)
+            # one question to the scheduler per interval, not per finished task
+            if pending.count() and time.monotonic() - last < LOSS_QUERY_INTERVAL:
+                continue
+            moved = _worker_losses(client, [f.key for f, _ in held])
+            last = time.monotonic()
+            for future, value in held:
+                _take_dask_result(client, fn, items, ledger, index, pending, future, value,
+                                  int(moved.get(future.key, 0)), KilledWorker)
+            held = []
         return ledger.outcomes
     finally:
         client.close()
