@@ -363,7 +363,9 @@ def _pool_pass(fn, items, todo: list[int], n: int, context, initializer,
     return [], []
 
 
-def _child(conn, fn, item) -> None:
+def _child(conn, fn, item, initializer) -> None:
+    if initializer is not None:
+        initializer()
     try:
         conn.send(call_safely(fn, item))
     finally:
@@ -386,7 +388,8 @@ def _run_alone(fn, items, i: int, context, initializer, ledger: _Ledger) -> None
     while True:
         ledger.attempts[i] += 1
         reader, writer = context.Pipe(duplex=False)
-        proc = context.Process(target=_child, args=(writer, fn, items[i]), daemon=True)
+        proc = context.Process(target=_child, args=(writer, fn, items[i], initializer),
+                               daemon=True)
         proc.start()
         writer.close()
         try:

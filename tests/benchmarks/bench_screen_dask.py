@@ -42,7 +42,7 @@ The model is checked against the runs it was fitted on (predicted beside measure
 for the worker counts this machine has cores for).
 
 Run: .venv/bin/python tests/benchmarks/bench_screen_dask.py [--n 60] [--quick]
-     [--workers 1,2,4] [--simulate 8,16,64] [--simulate-n 5000] [--storage-mb-s 100]
+     [--workers 1,2,4] [--simulate 8,16,64,128] [--simulate-n 5000] [--storage-mb-s 100]
 """
 from __future__ import annotations
 
@@ -134,7 +134,7 @@ def main() -> None:
     ap.add_argument("--quotes", type=int, default=2000)
     ap.add_argument("--days", type=int, default=2500)
     ap.add_argument("--workers", default="1,2,4")
-    ap.add_argument("--simulate", default="8,16,64", help="simulated cluster sizes")
+    ap.add_argument("--simulate", default="8,16,64,128", help="simulated cluster sizes")
     ap.add_argument("--simulate-n", type=int, default=5000)
     ap.add_argument("--storage-mb-s", type=float, default=100.0,
                     help="assumed shared-storage bandwidth, MB/s (default 100)")
