@@ -151,3 +151,22 @@ def test_command_line_retries_option(universe, tmp_path):
                           "--retries", "-1"], capture_output=True, text=True)
     assert bad.returncode == 2 and "--retries" in bad.stderr
     assert len(bad.stderr.strip().splitlines()) == 1
+
+
+def test_views_say_how_many_attempts(here):
+    import dataclasses
+
+    from optbench.report.notes import screen_notes
+    from optbench.report.screen import screen_markdown, screen_table
+    failure = dict(here.failures[0], attempts=3, transient=True,
+                   retry_reasons=[POOL_LOST, POOL_LOST])
+    rows = tuple(dict(r, attempts=2, retry_reasons=DASK_LOST) if r["code"] == "ZPA2"
+                 else r for r in here.rows)
+    retried = dataclasses.replace(here, failures=(failure,), rows=rows)
+    text = screen_table(retried, width=200)
+    assert f"(after 3 attempts: {POOL_LOST}; {POOL_LOST})" in " ".join(text.split())
+    assert f"Screened after a retry: ZPA2 (2 attempts: {DASK_LOST})." in " ".join(
+        text.split())
+    assert "after 3 attempts" in screen_markdown(retried)
+    assert screen_notes(retried, "t")["failures"][0].startswith("BRKN: ")
+    assert "after 3 attempts" in screen_notes(retried, "t")["failures"][0]
