@@ -40,6 +40,10 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                         help="local worker processes (default: the number of cores)")
     parser.add_argument("--scheduler", metavar="ADDRESS", default=None,
                         help="run on this Dask distributed scheduler (tcp://host:8786)")
+    parser.add_argument("--retries", type=whole_number(0), default=None, metavar="N",
+                        help="try an underlying again up to N times when its worker is "
+                             "lost or it meets a transient error (default: 2); a "
+                             "deterministic error (a broken file) is not retried")
     parser.add_argument("--paths", type=whole_number(100), default=2000,
                         help="simulated paths per underlying (default: 2000)")
     add_model_options(parser, default_model=DEFAULT_MODEL)
@@ -79,7 +83,8 @@ def run(args: argparse.Namespace) -> int:
                         dist=args.dist, mean=args.mean, sort=args.sort,
                         descending=not args.ascending, workers=args.workers,
                         scheduler=args.scheduler, n_paths=args.paths, progress=update,
-                         overrides=contract_overrides(args), **drift_options(args))
+                         overrides=contract_overrides(args), **drift_options(args),
+                        **({} if args.retries is None else {"retries": args.retries}))
     finally:
         if bar is not None:
             bar.stop()

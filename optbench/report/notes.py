@@ -76,6 +76,11 @@ def hedge_notes(e, table: str) -> dict:
     }
 
 
+def _attempts(failure: dict) -> str:
+    from optbench.report.screen import attempts_note
+    return attempts_note(failure)
+
+
 def screen_notes(result, table: str) -> dict:
     """Notes of a screen's table (:class:`~optbench.screening.screen.ScreenResult`)."""
     return {
@@ -87,7 +92,7 @@ def screen_notes(result, table: str) -> dict:
         "verdict_rule": "rich above the forecast band, cheap below, fair inside",
         "protection": (f"put at {result.floor:.0%} of spot per {result.notional:,.0f} "
                        "notional, paid at the ask"),
-        "failures": [f"{f['code']}: {f['reason']}" for f in result.failures],
+        "failures": [f"{f['code']}: {f['reason']}{_attempts(f)}" for f in result.failures],
         "warnings": list(getattr(result, "warnings", ()) or ()),
         "units": UNITS, "neutralised": NEUTRALISED, "caution": result.caution,
     }

@@ -40,6 +40,7 @@ SCREEN_KINDS = {
     "floor_put_verdict": "text", "put25_verdict": "text", "drift_rule": "text",
     "drift_annual": "pct",
     "warnings": "text",
+    "attempts": "int", "retry_reasons": "text",
 }
 
 SCREEN_LABELS = {
@@ -60,6 +61,27 @@ SCREEN_BRIEF = ("code", "tenor_days", "expiry", "calendar_days", "atm_iv", "fore
 
 #: verdicts readable without colour, marked as in the workbench
 VERDICT_MARK = {"rich": "▲ rich", "cheap": "▼ cheap", "fair": "= fair"}
+
+
+def attempts_note(failure: dict) -> str:
+    """`` (after 3 attempts: …)`` for a failure that was retried, else ''."""
+    n = failure.get("attempts") or 1
+    if n <= 1:
+        return ""
+    earlier = "; ".join(failure.get("retry_reasons") or ())
+    return f" (after {n} attempts{': ' + earlier if earlier else ''})"
+
+
+def retried_note(rows) -> str:
+    """One line naming the underlyings screened only after a retry, or ''."""
+    seen: dict[str, tuple] = {}
+    for r in rows:
+        if (r.get("attempts") or 1) > 1 and r.get("atm_iv") is not None:
+            seen.setdefault(r["code"], (r["attempts"], r.get("retry_reasons") or ""))
+    if not seen:
+        return ""
+    return "Screened after a retry: " + "; ".join(
+        f"{code} ({n} attempts: {why})" for code, (n, why) in seen.items()) + "."
 
 
 def screen_json(result) -> str:
@@ -117,7 +139,8 @@ def screen_markdown(result) -> str:
     lines = [f"# {_esc(_title(result))}", "", _esc(_lede(result)), "", head, align, *body, ""]
     if result.failures:
         lines += ["## Could not screen", ""]
-        lines += [f"- {_esc(f['code'])}: {_esc(f['reason'])}" for f in result.failures]
+        lines += [f"- {_esc(f['code'])}: {_esc(f['reason'] + attempts_note(f))}"
+                  for f in result.failures]
         lines.append("")
     warnings = list(getattr(result, "warnings", ()) or ())
     if warnings:
@@ -148,7 +171,8 @@ def screen_html(result) -> str:
              f"<table><tr>{head}</tr>{''.join(body)}</table>"]
     if result.failures:
         parts.append("<h2>Could not screen</h2><ul>" + "".join(
-            f"<li>{e(str(f['code']))}: {e(str(f['reason']))}</li>" for f in result.failures)
+            f"<li>{e(str(f['code']))}: {e(str(f['reason']) + attempts_note(f))}</li>"
+            for f in result.failures)
             + "</ul>")
     warnings = list(getattr(result, "warnings", ()) or ())
     if warnings:
@@ -201,7 +225,10 @@ def screen_table(result, *, width: int | None = None, color: bool = False) -> st
             f"{rule} {fmt(annual, 'pct')} a year" for rule, annual in drifts)
             + " (risk-free = r - q, no expected excess return).")
     for f in result.failures:
-        notes.append(f"Could not screen {f['code']}: {f['reason']}")
+        notes.append(f"Could not screen {f['code']}: {f['reason']}{attempts_note(f)}")
+    retried = retried_note(result.rows)
+    if retried:
+        notes.append(retried)
     warned = {}
     for r in result.rows:
         if r.get("warnings"):

@@ -125,8 +125,9 @@ def screen_xlsx(result, out=None) -> bytes | None:
         frame = pd.DataFrame([[r.get(c) for c in cols] for r in result.rows], columns=cols,
                              dtype=object)
         wb.add_table("Screen", cols, frame, formats_for(cols, SCREEN_KINDS))
-        wb.add_rows("Failures", ["code", "folder", "reason"],
-                    [[f["code"], f["folder"], f["reason"]] for f in result.failures])
+        wb.add_rows("Failures", ["code", "folder", "reason", "attempts", "retry_reasons"],
+                    [[f["code"], f["folder"], f["reason"], f.get("attempts", 1),
+                      "; ".join(f.get("retry_reasons") or ())] for f in result.failures])
         _notes(wb, screen_notes(result, "optbench screen"))
     return _result(h)
 

@@ -32,10 +32,15 @@ COLUMNS = (
     "model", "fallback_reason", "rows_in", "rows_used", "spot", "asof", "style",
     "multiplier", "sources", "error", "folder",
     "floor_put_verdict", "put25_verdict", "drift_rule", "drift_annual", "warnings",
+    "attempts", "retry_reasons",
 )
 #: ``warnings`` holds the comparison's and the hedge's warnings (input disagreements,
 #: dropped history rows, ATM or forecast flags) joined with "; " ('' when none)
 WARNING_SEPARATOR = "; "
+#: ``attempts``: how many times the underlying was started (1 = first time; more
+#: after a lost worker or a transient error); ``retry_reasons``: why the earlier
+#: attempts were lost, joined with "; " ('' when none) — both set by the screen
+#: from the runner's outcome (optbench.screening.runner)
 
 
 @dataclass(frozen=True)

@@ -15,10 +15,13 @@ from optbench.analysis.results import CAUTION
 from optbench.errors import InputError
 from optbench.screening.rows import (COLUMNS, DEFAULT_MODEL, DEFAULT_TENORS, NOTIONAL,
                                      ScreenTask, failed_rows, screen_one)
-from optbench.screening.runner import TaskFailure, run_tasks
+from optbench.screening.runner import DEFAULT_RETRIES, run_outcomes
+from optbench.screening.tasks import screen_task
 from optbench.screening.universe import find_scenarios
 
 DEFAULT_SORT = "iv_minus_forecast"
+#: joins the reasons of an underlying's lost attempts in the ``retry_reasons`` column
+RETRY_SEPARATOR = "; "
 
 
 @dataclass(frozen=True, eq=False)
@@ -34,7 +37,9 @@ class ScreenResult:
     sort, descending : the ranking.
     rows : one dict per (underlying, tenor), keys :data:`COLUMNS`; vols decimals,
         money per ``notional``.
-    failures : ``{"code", "folder", "reason"}`` for each underlying that failed.
+    failures : ``{"code", "folder", "reason", "attempts", "transient",
+        "retry_reasons"}`` for each underlying that failed (``transient``: the last
+        failure was of a retried kind and the retries ran out).
     workers, scheduler : how it ran.
     caution : the caution every hedge output carries.
     drift : the drift asked for (``{"rule", "excess_return"}``; None = each
@@ -108,7 +113,8 @@ def screen(folder: str | Path, *, tenors: Sequence[int] = DEFAULT_TENORS,
            workers: int | None = None, scheduler: str | None = None,
            n_paths: int = 2000, seed: int = 7, overrides: dict | None = None,
            progress: Callable[[int, int], None] | None = None, drift: str = "risk-free",
-           excess_return: float | None = None) -> ScreenResult:
+           excess_return: float | None = None,
+           retries: int = DEFAULT_RETRIES) -> ScreenResult:
     """Screen every scenario folder under ``folder`` and rank the rows.
 
     Parameters
@@ -128,6 +134,9 @@ def screen(folder: str | Path, *, tenors: Sequence[int] = DEFAULT_TENORS,
     drift, excess_return : the drift of the simulated prices, as in ``compare``
         (each underlying's ``meta.toml`` may set its own ``excess_return``; the rows'
         ``drift_rule`` and ``drift_annual`` say what each used).
+    retries : how many times an underlying whose worker was lost, or that met a
+        transient error, is tried again (:mod:`optbench.screening.runner`); each row
+        says its ``attempts`` and why earlier ones were lost (``retry_reasons``).
     """
     tenors = tuple(int(t) for t in tenors)
     if not tenors or min(tenors) <= 0:
@@ -144,17 +153,22 @@ def screen(folder: str | Path, *, tenors: Sequence[int] = DEFAULT_TENORS,
                         dist=dist, mean=mean, n_paths=n_paths, seed=seed,
                         overrides=dict(overrides or {}), drift=drift,
                         excess_return=excess_return) for f in folders]
-    results = run_tasks(screen_one, tasks, workers=workers, scheduler=scheduler,
-                        progress=progress)
+    outcomes = run_outcomes(screen_task, tasks, workers=workers, scheduler=scheduler,
+                            progress=progress, retries=retries)
     rows: list[dict] = []
     failures: list[dict] = []
-    for task, result in zip(tasks, results):
-        if isinstance(result, TaskFailure):
+    for task, outcome in zip(tasks, outcomes):
+        tries = {"attempts": outcome.attempts,
+                 "retry_reasons": RETRY_SEPARATOR.join(outcome.retry_reasons)}
+        if outcome.failed:
+            failure = outcome.value
             failures.append({"code": Path(task.folder).name, "folder": task.folder,
-                             "reason": result.reason})
-            rows.extend(failed_rows(task, result.reason))
+                             "reason": failure.reason, "attempts": failure.attempts,
+                             "transient": failure.transient,
+                             "retry_reasons": list(failure.retry_reasons)})
+            rows.extend(r | tries for r in failed_rows(task, failure.reason))
         else:
-            rows.extend(result)
+            rows.extend(r | tries for r in outcome.value)
     return ScreenResult(universe=str(folder), tenors=tenors, floor=float(floor),
                         notional=NOTIONAL, sort=sort, descending=descending,
                         rows=tuple(rank_rows(rows, sort, descending)),
