@@ -19,9 +19,11 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from optbench.errors import InputError
+from optbench.pricing.special import digamma, gammaln
 from optbench.volatility import forecast as fc
 from optbench.volatility.distributions import (LOG_2PI, NU_MIN, get_distribution,
-                                               normal_loglik, std_t_loglik)
+                                               normal_loglik, std_t_loglik,
+                                               std_t_loglik_sums)
 from optbench.volatility.recursions import (LN_VARIANCE_CAP, SQRT_2_OVER_PI,
                                             affine_filter, backcast_value,
                                             egarch_jacobian,
@@ -277,26 +279,62 @@ class _Problem:
 
     def _egarch_objective_grad(self, theta):
         """Minus the mean log-likelihood of EGARCH and its gradient by the adjoint
-        recursion (:func:`optbench.volatility.recursions.egarch_adjoint`)."""
-        p, eps, h, s2, ll, d_s2, d_e, d_nu = self._egarch_loglik(theta)
+        recursion (:func:`optbench.volatility.recursions.egarch_adjoint`).
+
+        The density is written in ``h = ln sigma^2`` and ``z = e / sigma`` (no
+        ``exp(h)`` needed): normal ``l_t = -(ln 2 pi + h_t + z_t^2)/2``, ``dl/dh =
+        (z^2 - 1)/2``; Student-t with ``v_t = nu - 2 + z_t^2``: ``l_t = c(nu) - h_t/2 -
+        (nu+1)/2 ln(v_t/(nu-2))``, ``dl/dh = ((nu+1) z^2/v - 1)/2``, ``dl/de = -(nu+1)
+        z / (sigma v)`` (the formulas of :func:`std_t_loglik`, Bollerslev 1987).
+        """
+        mu, p, nu = self.unpack(theta)
+        eps = self.y - mu
+        h = self._egarch_path(eps, p)
+        n = self.n
         hb = math.log(self.backcast)
-        total = float(ll.sum())
-        if not math.isfinite(total):
-            return 1e6, np.zeros(self.k)
         inv_s = np.exp(-0.5 * h)
         z = eps * inv_s
-        lam = egarch_adjoint(z, d_s2 * s2, p["alpha"], p["gamma"], p["beta"])
+        z2 = z * z
+        sum_h = float(h.sum())
+        d_nu = None
+        if nu is None:
+            total = -0.5 * (n * LOG_2PI + sum_h + float(z2.sum()))
+            a = 0.5 * (z2 - 1.0)
+            zs = z * inv_s
+            sum_d_e = -float(zs.sum())
+        else:
+            nm2 = nu - 2.0
+            v = z2 + nm2
+            sum_lq = float(np.log(v).sum()) - n * math.log(nm2)
+            inv_v = 1.0 / v
+            w = z2 * inv_v
+            sum_w = float(w.sum())
+            const = (gammaln(0.5 * (nu + 1.0)) - gammaln(0.5 * nu)
+                     - 0.5 * math.log(math.pi * nm2))
+            total = n * const - 0.5 * sum_h - 0.5 * (nu + 1.0) * sum_lq
+            w *= nu + 1.0
+            w -= 1.0
+            w *= 0.5
+            a = w
+            inv_v *= z
+            inv_v *= inv_s
+            sum_d_e = -(nu + 1.0) * float(inv_v.sum())
+            d_nu = 0.5 * (n * (digamma(0.5 * (nu + 1.0)) - digamma(0.5 * nu) - 1.0 / nm2)
+                          - sum_lq + (nu + 1.0) * sum_w / nm2)
+        if not math.isfinite(total):
+            return 1e6, np.zeros(self.k)
+        lam = egarch_adjoint(z, a, p["alpha"], p["gamma"], p["beta"])
         zl = z[:-1]
         l1 = lam[1:]
         grad = []
         if self.has_mu:
             dz = -(p["alpha"] * np.sign(zl) + p["gamma"]) * inv_s[:-1]
-            grad.append(-d_e.sum() + _dot(l1, dz))
+            grad.append(-sum_d_e + _dot(l1, dz))
         grad += [lam.sum(), _dot(l1, np.abs(zl) - SQRT_2_OVER_PI), _dot(l1, zl),
                  lam[0] * hb + _dot(l1, h[:-1])]
         if d_nu is not None:
-            grad.append(d_nu.sum())
-        return -total / self.n, -np.array(grad) / self.n
+            grad.append(d_nu)
+        return -total / n, -np.array(grad) / n
 
     def objective_grad(self, theta):
         """Minus the mean log-likelihood and its analytic gradient (GARCH, GJR).
@@ -341,9 +379,7 @@ class _Problem:
             sum_d_e = -_dot(eps, inv)
             d_nu = None
         else:
-            ll, d_s2, d_e, d_nu = std_t_loglik(eps, s2, nu, grad=True)
-            total = float(ll.sum())
-            sum_d_e = float(d_e.sum())
+            total, d_s2, sum_d_e, d_nu = std_t_loglik_sums(eps, e2, s2, nu)
         lam = reverse_filter(d_s2, beta)
         s2_lag = np.empty(self.n)
         s2_lag[0] = bc
@@ -358,7 +394,7 @@ class _Problem:
             grad.append(_dot(lam, g))
         grad.append(_dot(lam, s2_lag))
         if d_nu is not None:
-            grad.append(d_nu.sum())
+            grad.append(d_nu)
         if not math.isfinite(total):
             return 1e6, np.zeros(self.k)
         return -total / self.n, -np.array(grad) / self.n
