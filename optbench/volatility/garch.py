@@ -475,6 +475,22 @@ class _Problem:
         lim = self.EGARCH_MAX_STEP
         return np.array([(lim.get(n, np.inf)) for n in self.names])
 
+    def stationarity_row(self):
+        """``(a, b)`` with the stationarity limit ``a . theta <= b`` for GARCH and GJR
+        (``alpha + beta`` and ``alpha + gamma/2 + beta <= 1 - STATIONARITY_MARGIN``;
+        ``gamma/2 = E[1(z<0) z^2] gamma`` for any symmetric unit-variance
+        innovation, normal or Student-t), None otherwise (EGARCH's ``beta`` limit is
+        a bound)."""
+        if self.spec.name not in ("garch", "gjr"):
+            return None
+        a = np.zeros(self.k)
+        i = self.i_vol
+        a[i + 1] = 1.0                              # alpha
+        if self.spec.name == "gjr":
+            a[i + 2] = 0.5                          # gamma (kappa = 1/2)
+        a[i + self.n_vol - 1] = 1.0                 # beta
+        return a, 1.0 - STATIONARITY_MARGIN
+
     def constraint(self):
         spec, i, nv = self.spec, self.i_vol, self.n_vol
         jac_vol = spec.constraint_jacobian()
@@ -504,13 +520,17 @@ class _Problem:
         return m
 
     def internal_bounds(self, var):
-        """Bounds of the optimiser's coordinates ``u``."""
+        """Bounds of the optimiser's coordinates ``u`` (EGARCH's ``beta`` at most
+        ``1 - STATIONARITY_MARGIN``: its stationarity limit)."""
         sd = math.sqrt(var)
         b = []
         if self.has_mu:
             m = float(np.mean(self.y))
             b.append((m - 10 * sd, m + 10 * sd))
-        return b + self.spec.internal_bounds(var) + self.dist.bounds()
+        vol = list(self.spec.internal_bounds(var))
+        if self.spec.name == "egarch":
+            vol[-1] = (vol[-1][0], min(vol[-1][1], 1.0 - STATIONARITY_MARGIN))
+        return b + vol + self.dist.bounds()
 
     def scores(self, theta):
         """Per-day log-likelihood and analytic scores (n, k) at ``theta``."""
@@ -635,10 +655,16 @@ class GarchFit:
         ``checked`` (the test), ``predicted_gain`` (log-likelihood a Newton step on
         the free coordinates still promises), ``projected_gradient`` (largest free
         gradient entry of the log-likelihood, optimiser units), ``tolerance``,
-        ``active_bounds`` (coordinates held at a bound). None when no estimation ran.
+        ``active_bounds`` (coordinates held at a bound; ``stationarity limit`` when
+        the persistence is held at ``1 - STATIONARITY_MARGIN``), ``limit_multiplier``
+        (d log L / d persistence held back there, else None). None when no estimation
+        ran.
     cov : ndarray
         Robust covariance of the parameters in ``param_names`` order (decimal units),
         computed on first use.
+    warnings : tuple of str
+        Caveats of a converged estimate (e.g. persistence held at the stationarity
+        limit); they travel with every number taken from the fit.
     """
 
     model: str
@@ -661,6 +687,7 @@ class GarchFit:
     backcast: float = float("nan")
     returns: np.ndarray = field(default=None, repr=False)
     optimality: dict | None = field(default=None, repr=False)
+    warnings: tuple = ()
 
     # -- derived values --------------------------------------------------------------
     @functools.cached_property
@@ -698,8 +725,12 @@ class GarchFit:
     @property
     def long_run_variance(self) -> float | None:
         """Daily unconditional variance: ``omega / (1 - p)`` (GARCH, GJR); the limit of
-        the EGARCH forecast; None for EWMA (no mean reversion)."""
+        the EGARCH forecast; None for EWMA (no mean reversion) and at the
+        stationarity limit (see :func:`at_stationarity_limit`: the level is not
+        identified there)."""
         p = self.persistence
+        if self.model != "ewma" and at_stationarity_limit(p):
+            return None
         if self.model in ("garch", "gjr"):
             return self.params["omega"] / (1.0 - p) if p < 1 else None
         if self.model == "egarch":
@@ -912,6 +943,7 @@ class GarchFit:
             "long_run_vol": num(self.long_run_vol),
             "candidates": {k: num(v) for k, v in self.candidates.items()},
             "optimality": _optimality_json(self.optimality),
+            "warnings": list(self.warnings),
         }
 
 
@@ -990,8 +1022,8 @@ OPTIMALITY_GAIN_REL = 1e-11
 
 
 def _optimality(prob: _Problem, M: np.ndarray, u: np.ndarray, lo: np.ndarray,
-                hi: np.ndarray, res=None) -> dict:
-    """First-order (KKT) check of a bound-constrained maximum of the log-likelihood.
+                hi: np.ndarray, res=None, A_ub=None, b_ub=None) -> dict:
+    """First-order (KKT) check of a constrained maximum of the log-likelihood.
 
     In the optimiser's coordinates ``u`` (``theta = M u``) with ``G`` the gradient of the
     total log-likelihood and ``S`` the per-day scores: a coordinate at a bound is
@@ -1004,6 +1036,12 @@ def _optimality(prob: _Problem, M: np.ndarray, u: np.ndarray, lo: np.ndarray,
     quasi-Newton Hessian with its final analytic gradient when ``res`` (its result at
     ``u``) carries them, otherwise the outer product of the per-day scores ``S'S``
     (Berndt, Hall, Hall & Hausman 1974).
+
+    A linear inequality ``A_ub u <= b_ub`` (the stationarity limit) at its limit is
+    active when its multiplier ``nu = (A H^-1 A')^-1 A H^-1 G`` is positive (the
+    likelihood rises across it); the gain is then that of the Newton step along it,
+    ``(G - A' nu)' H^-1 (G - A' nu) / 2`` on the free coordinates (Nocedal & Wright,
+    *Numerical Optimization*, 2nd ed., §12.3 and §16.5).
     """
     names = prob.names
     n = prob.n
@@ -1036,14 +1074,32 @@ def _optimality(prob: _Problem, M: np.ndarray, u: np.ndarray, lo: np.ndarray,
     free = ~active
     gf = g[free]
     gain = 0.0
+    rows_active = []
+    limit_mult = None
     if gf.size:
         info = (n * np.asarray(res.hess, dtype=float)[np.ix_(free, free)] if quasi
                 else _gram(su[:, free]))
         info = 0.5 * (info + info.T)
         w, V = np.linalg.eigh(info)
         w = np.maximum(w, 1e-12 * max(float(w.max()), 1e-300))
-        c = V.T @ gf
-        gain = 0.5 * float(np.sum(c * c / w))
+        Hinv = (V / w) @ V.T
+        if A_ub is not None:
+            slack = b_ub - A_ub @ u
+            rows_active = [i for i in range(A_ub.shape[0])
+                           if slack[i] <= 1e-10 * (1.0 + abs(b_ub[i]))]
+        while rows_active:
+            A = A_ub[np.ix_(rows_active, np.flatnonzero(free))]
+            AH = A @ Hinv
+            try:
+                mult = np.linalg.solve(AH @ A.T, AH @ gf)
+            except np.linalg.LinAlgError:
+                mult = np.linalg.lstsq(AH @ A.T, AH @ gf, rcond=None)[0]
+            if float(mult.min()) >= 0.0:
+                gf = gf - A.T @ mult
+                limit_mult = float(mult[0])
+                break
+            rows_active.pop(int(np.argmin(mult)))   # not binding: the gain counts it
+        gain = 0.5 * float(gf @ Hinv @ gf)
     pg = float(np.max(np.abs(gf))) if gf.size else 0.0
     coord = _coordinate_names(prob)
     tol = max(OPTIMALITY_GAIN_TOL, OPTIMALITY_GAIN_REL * (n + abs(total_ll)))
@@ -1053,7 +1109,11 @@ def _optimality(prob: _Problem, M: np.ndarray, u: np.ndarray, lo: np.ndarray,
                        f"(curvature: {curvature})",
             "predicted_gain": gain, "projected_gradient": pg,
             "tolerance": tol,
-            "active_bounds": [coord[i] for i in np.flatnonzero(active)],
+            "active_bounds": ([coord[i] for i in np.flatnonzero(active)]
+                              + ["stationarity limit"] * bool(rows_active)),
+            # d(log L)/d(persistence) held back by the limit: moving the limit from
+            # 1 - margin to 1 would gain about this times the margin
+            "limit_multiplier": limit_mult,
             "coordinates": coord if coord != list(names) else None}
 
 
@@ -1139,7 +1199,15 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
         f, g = prob.objective_grad(M @ u)
         return f, M.T @ g
 
+    # the stationarity limit as a linear inequality in the optimiser's coordinates
+    # (GARCH, GJR; EGARCH's is the bound on beta): held by the optimiser's active set
+    srow = prob.stationarity_row()
+    A_ub = None if srow is None else (srow[0] @ M)[None, :]
+    b_ub = None if srow is None else np.array([srow[1]])
+
     def feasible(u):
+        if A_ub is not None and not float(A_ub[0] @ u) <= b_ub[0] + 1e-12:
+            return False
         return prob.feasible(M @ u)
 
     cap = prob.max_step()
@@ -1149,18 +1217,18 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
             hess, (f0, g0) = prob.start_curvature(M @ u0)
-            res = minimize_box(fun_grad, u0, lo, hi, feasible=feasible,
-                               hess0=M.T @ hess @ M, fg0=(f0, M.T @ g0), max_step=cap)
+            res = minimize_box(fun_grad, u0, lo, hi, hess0=M.T @ hess @ M,
+                               fg0=(f0, M.T @ g0), max_step=cap, A_ub=A_ub, b_ub=b_ub)
         u = np.asarray(res.x, dtype=float)
         _, vol, _ = prob.unpack(M @ u)
         pers = prob.spec.persistence(vol)
-        stationary = pers < 1.0 - STATIONARITY_MARGIN
+        stationary = pers <= 1.0 - STATIONARITY_MARGIN + 1e-12
         return {"res": res, "u": u, "f": float(res.fun), "pers": pers,
                 "stationary": bool(stationary and math.isfinite(res.fun)), "opt": None}
 
     def verified(r):
         if r["opt"] is None:
-            r["opt"] = _optimality(prob, M, r["u"], lo, hi, r["res"])
+            r["opt"] = _optimality(prob, M, r["u"], lo, hi, r["res"], A_ub, b_ub)
         return r["opt"]["passed"]
 
     def better(a, b):   # is run a preferred to run b?
@@ -1222,7 +1290,8 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
                 break
     res, u = best["res"], best["u"]
     theta = M @ u
-    opt = _optimality(prob, M, u, lo, hi, res) if best["opt"] is None else best["opt"]
+    opt = (_optimality(prob, M, u, lo, hi, res, A_ub, b_ub) if best["opt"] is None
+           else best["opt"])
     problem = None
     if not best["stationary"]:
         problem = f"{model} estimate is not stationary (persistence {best['pers']:.6f})"
@@ -1234,11 +1303,27 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
                    if gain is not None else f"{model} did not converge ({opt['checked']})")
     fit = _result(prob, theta, y, scale, mean, problem is None, str(res.message),
                   None, None, with_cov=problem is None, optimality=opt)
+    if problem is None and at_stationarity_limit(best["pers"]):
+        fit = _replace(fit, warnings=(stationarity_limit_warning(model, best["pers"]),))
     if problem is None:
         problem = _implausible_forecast(fit, float(np.var(y)))
         if problem is not None:
             fit = _replace(fit, converged=False)
     return fit, problem
+
+
+def at_stationarity_limit(persistence: float) -> bool:
+    """True when a persistence sits at the estimator's stationarity limit
+    ``1 - STATIONARITY_MARGIN`` (within a thousandth of the margin) or beyond."""
+    return persistence >= 1.0 - 1.001 * STATIONARITY_MARGIN
+
+
+def stationarity_limit_warning(model: str, persistence: float) -> str:
+    return (f"{model} persistence is at the stationarity limit ({persistence:.7f} = "
+            f"1 - {STATIONARITY_MARGIN:g}): the likelihood rises towards an integrated "
+            "model, so the estimate is held at the limit; shocks barely decay over any "
+            "option horizon (the forecast stays near today's variance) and the "
+            "long-run level is not identified")
 
 
 def _implausible_forecast(fit: GarchFit, sample_variance: float) -> str | None:

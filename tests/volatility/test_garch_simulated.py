@@ -119,3 +119,37 @@ def test_weak_clustering_second_optimum_is_found():
     fit = fit_garch(y, "garch", "normal")
     assert fit.converged and fit.loglik >= ref - 1e-6, fit.loglik - ref   # arch library
     assert fit.persistence > 0.95
+
+
+@pytest.mark.parametrize("model,dist", [("garch", "normal"), ("gjr", "t")])
+def test_integrated_series_is_fitted_at_the_stationarity_limit(model, dist):
+    """An integrated GARCH (alpha + beta = 1, simulated here) on 3,000 days, seeds 0
+    and 1: the likelihood rises up to persistence 1, where the arch library's fit
+    (reference, constraint alpha + gamma/2 + beta <= 1) also ends. optbench holds the
+    persistence at 1 - STATIONARITY_MARGIN, reports the fit converged with the limit
+    active and a warning, and is below arch only by what the margin costs (the
+    limit's multiplier times the margin, a first-order bound)."""
+    from optbench.volatility.garch import STATIONARITY_MARGIN
+
+    for seed in (0, 1):
+        rng = np.random.default_rng(seed)
+        z = rng.standard_normal(3500)
+        r, s2 = np.empty(3500), 1.0           # percent units, started at 1 %^2
+        for t in range(3500):
+            r[t] = math.sqrt(s2) * z[t]
+            s2 = 0.002 + 0.07 * r[t] ** 2 + 0.93 * s2
+        y = r[500:] / 100
+        ref, ref_params = arch_fit(y, model, dist)
+        arch_pers = (ref_params["alpha[1]"] + ref_params.get("gamma[1]", 0.0) / 2
+                     + ref_params["beta[1]"])
+        assert arch_pers == pytest.approx(1.0, abs=1e-6)          # arch library
+        fit = fit_garch(y, model, dist)
+        assert fit.model == model and fit.converged and fit.fallback_reason is None
+        assert fit.persistence == pytest.approx(1.0 - STATIONARITY_MARGIN, abs=1e-12)
+        assert "stationarity limit" in fit.optimality["active_bounds"]
+        assert any("stationarity limit" in w for w in fit.warnings)
+        nu = fit.optimality["limit_multiplier"]
+        assert 0 < nu < 1e4
+        assert fit.loglik >= ref - 1.1 * nu * STATIONARITY_MARGIN - 1e-6, (seed, fit.loglik - ref)
+        # the forecast of an integrated fit stays near today's variance
+        assert fit.forecast_vol(252) == pytest.approx(fit.forecast_vol(1), rel=0.05)
