@@ -37,6 +37,10 @@ MIN_RETURNS = 250
 MODELS = ("garch", "gjr", "egarch")
 FALLBACK = {"egarch": "gjr", "gjr": "garch", "garch": "ewma"}
 STATIONARITY_MARGIN = 1e-6
+#: the optimiser stops when its next quasi-Newton step predicts a log-likelihood gain
+#: below this: 50 times below the first-order check's tolerance
+#: (OPTIMALITY_GAIN_TOL), far below the 1e-6 at which fits are compared
+STOP_GAIN = 2e-9
 
 
 # ---------------------------------------------------------------------------------
@@ -1218,7 +1222,8 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
             warnings.simplefilter("ignore", RuntimeWarning)
             hess, (f0, g0) = prob.start_curvature(M @ u0)
             res = minimize_box(fun_grad, u0, lo, hi, hess0=M.T @ hess @ M,
-                               fg0=(f0, M.T @ g0), max_step=cap, A_ub=A_ub, b_ub=b_ub)
+                               fg0=(f0, M.T @ g0), max_step=cap, A_ub=A_ub, b_ub=b_ub,
+                               gain_tol=STOP_GAIN / prob.n)
         u = np.asarray(res.x, dtype=float)
         _, vol, _ = prob.unpack(M @ u)
         pers = prob.spec.persistence(vol)

