@@ -5,6 +5,7 @@ optbench targets, more than a whole fit, so the estimator uses this instead.
 """
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -99,29 +100,38 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
                                                + np.asarray(hess0, dtype=float).T)
     w, V = np.linalg.eigh(B)
     floor = 1e-8 * max(1.0, float(np.abs(w).max()))
-    B = (V * np.maximum(np.abs(w), floor)) @ V.T            # positive definite start
+    wp = np.maximum(np.abs(w), floor)
+    H = (V / wp) @ V.T            # inverse of the positive definite start
     eye = np.eye(k)
     span = np.maximum(hi - lo, 1e-12)
     cap_step = None if max_step is None else np.asarray(max_step, dtype=float)
     lo_tol = lo + 1e-12 * span
     hi_tol = hi - 1e-12 * span
-    work = np.zeros(0, dtype=int)
+    work = []
+
+    def done(success, message, it):
+        try:
+            Bh = np.linalg.inv(H)
+        except np.linalg.LinAlgError:
+            Bh = None
+        return MinimizeResult(x, f, bool(success), message, it, nfev, g, Bh, tuple(work))
+
     for it in range(1, max_iter + 1):
         at_lo = x <= lo_tol
         at_hi = x >= hi_tol
         free = ~((at_lo & (g > 0)) | (at_hi & (g < 0)))
-        near = (np.flatnonzero(cb - C @ x <= ctol) if C is not None
-                else np.zeros(0, dtype=int))
-        # working rows: those at the limit that the steepest-descent direction on the
-        # free coordinates would cross (refined below by the multipliers' signs)
-        work = [int(i) for i in near if float(C[i, free] @ g[free]) < 0.0]
-        d = np.zeros(k)
-        r = g
-        nu = None
+        if C is not None:
+            near = [int(i) for i in (cb - C @ x <= ctol).nonzero()[0]]
+            # working rows: those at the limit that the steepest-descent direction on
+            # the free coordinates would cross (refined below by the multipliers' signs)
+            work = [i for i in near if float(C[i, free] @ g[free]) < 0.0]
+        else:
+            near = work = []
+        Hg = H @ g
         for _ in range(2 * k + 4):
-            d, nu = _step(B, g, free, C, work)
-            if nu is not None and nu.size and float(nu.min()) < 0.0:
-                work.pop(int(np.argmin(nu)))      # the row does not hold the step back
+            d, nu = _step(H, Hg, free, C, work)
+            if nu is not None and float(nu.min()) < 0.0:
+                work.pop(int(nu.argmin()))      # the row does not hold the step back
                 continue
             # a free coordinate on a bound that the step would cross is held
             out = free & ((at_lo & (d < 0)) | (at_hi & (d > 0)))
@@ -129,99 +139,91 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
                 free &= ~out
                 continue
             # a row at its limit that the step would cross joins the working set
-            cross = [int(i) for i in near if int(i) not in work and float(C[i] @ d) > 0.0]
+            cross = [i for i in near if i not in work and float(C[i] @ d) > 0.0]
             if cross:
                 work.append(cross[0])
                 continue
             break
-        if nu is not None and nu.size:
-            r = g + C[work].T @ nu
-        pg = np.where(free, r, 0.0)
-        if not np.any(free) or np.max(np.abs(pg)) < gtol:
-            return MinimizeResult(x, f, True, "projected gradient below tolerance", it, nfev,
-                                  g, B, tuple(work))
-        if not np.dot(d, g) < 0:
-            c = max(1.0, float(np.abs(np.diag(B)).max()))
-            B = eye * c
-            d = -pg / c
-            if C is not None and work:
-                d, _ = _step(B, g, free, C, work)
-        elif -0.5 * float(np.dot(d, g)) < max(0.1 * ftol * (1.0 + abs(f)), gain_tol):
+        r = g if nu is None else g + C[work].T @ nu
+        pg = r * free
+        if not free.any() or float(np.abs(pg).max()) < gtol:
+            return done(True, "projected gradient below tolerance", it)
+        dg = float(d @ g)
+        if not dg < 0:
+            c = max(1.0, 1.0 / max(float(np.diag(H).min()), 1e-300))
+            H = eye / c
+            d, _ = _step(H, H @ g, free, C, work)
+        elif -0.5 * dg < max(0.1 * ftol * (1.0 + abs(f)), gain_tol):
             # the full quasi-Newton step predicts a decrease far below what the
             # objective can resolve: nothing is left to gain
-            return MinimizeResult(x, f, True, "predicted decrease below tolerance", it,
-                                  nfev, g, B, tuple(work))
+            return done(True, "predicted decrease below tolerance", it)
         step = 1.0
-        if max_step is not None:
-            big = np.abs(d) * step > cap_step
+        if cap_step is not None:
+            big = np.abs(d) > cap_step
             if big.any():
-                step = float(np.min(cap_step[big] / np.abs(d[big])))
+                step = float((cap_step[big] / np.abs(d[big])).min())
         if C is not None:
             # ratio test: stop where the step would cross a row not in the working set
             Cd = C @ d
             slack = cb - C @ x
-            for i in np.flatnonzero(Cd > 0):
+            for i in (Cd > 0).nonzero()[0]:
                 if int(i) not in work:
                     step = min(step, max(float(slack[i]) / float(Cd[i]), 0.0))
         accepted = False
+        rel = float((np.abs(d) / (1.0 + np.abs(x))).max())
         for _ in range(50):
-            if step * np.max(np.abs(d) / (1.0 + np.abs(x))) < 1e-15:
+            if step * rel < 1e-15:
                 break   # the step no longer moves x: at the precision of f
             xn = np.minimum(np.maximum(x + step * d, lo), hi)
-            if ((C is None or np.all(C @ xn <= cb + cviol))
+            if ((C is None or bool((C @ xn <= cb + cviol).all()))
                     and (feasible is None or feasible(xn))):
                 fn, gn = fun_grad(xn)
                 nfev += 1
-                if np.isfinite(fn) and fn <= f + 1e-4 * np.dot(g, xn - x):
+                if math.isfinite(fn) and fn <= f + 1e-4 * float(g @ (xn - x)):
                     accepted = True
                     break
             step *= 0.5
         if not accepted:
-            ok = np.max(np.abs(pg)) < 1e3 * gtol
-            return MinimizeResult(x, f, bool(ok), "line search found no decrease", it, nfev,
-                                  g, B, tuple(work))
+            return done(float(np.abs(pg).max()) < 1e3 * gtol, "line search found no decrease",
+                        it)
         s = xn - x
         y = gn - g
         df = f - fn
         x, f, g = xn, fn, gn
-        sy = float(np.dot(s, y))
-        Bs = B @ s
-        sBs = float(np.dot(s, Bs))
-        if sy > 1e-12 * np.sqrt(np.dot(s, s) * np.dot(y, y)) and sBs > 0:
-            B = B + np.outer(y, y) / sy - np.outer(Bs, Bs) / sBs   # BFGS (direct form)
+        sy = float(s @ y)
+        if sy > 1e-12 * math.sqrt(float(s @ s) * float(y @ y)):
+            # BFGS update of the inverse Hessian (Nocedal & Wright, eq. 6.17)
+            Hy = H @ y
+            H = (H + ((sy + float(y @ Hy)) / (sy * sy)) * (s[:, None] * s)
+                 - (Hy[:, None] * s + s[:, None] * Hy) / sy)
         if df < ftol * (1.0 + abs(f)):
-            return MinimizeResult(x, f, True, "relative change in the objective below "
-                                              "tolerance", it, nfev, g, B, tuple(work))
-    return MinimizeResult(x, f, False, f"iteration limit ({max_iter}) reached", max_iter, nfev,
-                          g, B, tuple(work))
+            return done(True, "relative change in the objective below tolerance", it)
+    return done(False, f"iteration limit ({max_iter}) reached", max_iter)
 
 
-def _step(B, g, free, C, work):
-    """Quasi-Newton step on the free coordinates with the working rows held as
-    equalities: solves ``[B_ff A_f'; A_f 0] [d_f; nu] = [-g_f; 0]``. Returns the full
-    step (zero on held coordinates) and the rows' multipliers (None without rows)."""
-    k = g.shape[0]
-    d = np.zeros(k)
-    idx = np.flatnonzero(free)
-    m = len(work)
-    if idx.size == 0:
-        return d, (np.zeros(m) if m else None)
-    Bf = B if idx.size == k else B[np.ix_(idx, idx)]
-    gf = g[idx]
+def _step(H, Hg, free, C, work):
+    """Quasi-Newton step with the held coordinates and the working rows as
+    equalities, from the inverse Hessian ``H`` (range-space form): with ``E`` the
+    held coordinates' unit vectors and the rows, ``d = -H (g + E lam)`` and
+    ``E' d = 0``, so ``(E' H E) lam = -E' H g``. Returns the step and the rows'
+    multipliers (None without rows); the same step as solving
+    ``[B_ff A_f'; A_f 0] [d_f; nu] = [-g_f; 0]`` with ``B = H^-1``."""
+    held = (~free).nonzero()[0]
+    nh, m = held.size, len(work)
+    if nh == 0 and m == 0:
+        return -Hg, None
+    k = Hg.shape[0]
+    E = np.zeros((k, nh + m))
+    E[held, np.arange(nh)] = 1.0
+    if m:
+        E[:, nh:] = C[work].T
+    HE = H @ E
+    S = E.T @ HE
+    rhs = -(E.T @ Hg)
     try:
-        if not m:
-            d[idx] = -np.linalg.solve(Bf, gf)
-            return d, None
-        A = C[np.ix_(work, idx)]
-        nf = idx.size
-        K = np.zeros((nf + m, nf + m))
-        K[:nf, :nf] = Bf
-        K[:nf, nf:] = A.T
-        K[nf:, :nf] = A
-        rhs = np.concatenate([-gf, np.zeros(m)])
-        sol = np.linalg.lstsq(K, rhs, rcond=None)[0] if nf < m else np.linalg.solve(K, rhs)
-        d[idx] = sol[:nf]
-        return d, sol[nf:]
+        lam = rhs / S[0, 0] if nh + m == 1 else np.linalg.solve(S, rhs)
     except np.linalg.LinAlgError:
-        d[idx] = -gf
-        return d, (np.zeros(m) if m else None)
+        lam = np.linalg.lstsq(S, rhs, rcond=None)[0]
+    d = -(Hg + HE @ lam)
+    d[held] = 0.0
+    return d, (lam[nh:] if m else None)
