@@ -1257,8 +1257,11 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
         u0 = np.clip(Minv @ th, lo, hi)
         if not feasible(u0):
             continue
-        with np.errstate(all="ignore"):
-            f0 = prob.objective(M @ u0)
+        if label == "nested" and not any(c[0] == "high" for c in labelled):
+            f0 = -math.inf    # the only main start: no need to rank it
+        else:
+            with np.errstate(all="ignore"):
+                f0 = prob.objective(M @ u0)
         cands.append((label, f0, u0))
     # climb from the best of the nested and high-persistence starts; then from the
     # best weak-dynamics start, unless even that start is far below the optimum
