@@ -1178,8 +1178,14 @@ def _nested_start(prob: _Problem, nested: GarchFit | None, scale: float):
 
 
 def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
-              nested: GarchFit | None = None):
+              nested: GarchFit | None = None, regimes: dict | None = None):
     """One maximum-likelihood fit. Returns (fit, problem text or None).
+
+    ``regimes`` (a dict) shares what the GARCH fit learnt about the weak-dynamics
+    regime with the fits it starts: GARCH records the gap between its best
+    weak-dynamics start and its optimum (``low_gap``); GJR and EGARCH, given the
+    same dict, skip their weak-dynamics starts when that gap was more than twice
+    the climbing threshold (strong clustering in the data, seen by the nested model).
 
     Climbs from the best start of each persistence regime and from the nested
     model's optimum (``nested``, a GARCH fit with the same distribution), keeps the
@@ -1253,6 +1259,10 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
         if model == "egarch":
             prob._h_guess = 2.0 * np.log(nested.conditional_vol * scale)
     cands = []
+    if (ns is not None and regimes is not None and regimes.get("low_gap") is not None
+            and regimes["low_gap"] > 2.0 * max(60.0, 0.02 * prob.n)):
+        # the nested GARCH fit found the weak-dynamics regime far below its optimum
+        labelled = [c for c in labelled if c[0] != "low"]
     for label, th in labelled:
         u0 = np.clip(Minv @ th, lo, hi)
         if not feasible(u0):
@@ -1270,6 +1280,7 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
     # 500-800 log-likelihood units on long real series, under 50 with weak dynamics)
     main = [c for c in cands if c[0] != "low"]
     low = [c for c in cands if c[0] == "low"]
+    threshold = max(60.0, 0.02 * prob.n)
     order = []
     best = None
     if main:
@@ -1279,7 +1290,9 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
     if low:
         _, f0, u0 = min(low, key=lambda c: c[1])
         gap = (f0 - best["f"]) * prob.n if best is not None else 0.0
-        if best is None or not best["stationary"] or gap <= max(60.0, 0.02 * prob.n):
+        if regimes is not None and model == "garch":
+            regimes["low_gap"] = gap if best is not None and best["stationary"] else None
+        if best is None or not best["stationary"] or gap <= threshold:
             order.append(u0)
             r = run(u0)
             if better(r, best):
@@ -1422,16 +1435,17 @@ def fit_garch(returns, model: str = "gjr", dist: str = "t", mean: str = "constan
         return _ewma(y, mean, backcast, f"EWMA lambda=0.94 used: {stale} "
                                         "(normal innovations)")
     nested_fit = {}
+    regimes = {}
 
     def estimate(m):
         # GARCH first: its optimum starts GJR (which nests it) and EGARCH
         if m != "garch" and "garch" not in nested_fit:
-            g, gp = _estimate(y, "garch", dist, mean, backcast)
+            g, gp = _estimate(y, "garch", dist, mean, backcast, regimes=regimes)
             nested_fit["garch"] = (g, gp)
         if m == "garch" and "garch" in nested_fit:
             return nested_fit["garch"]
         nest = nested_fit.get("garch")
-        f, prob = _estimate(y, m, dist, mean, backcast,
+        f, prob = _estimate(y, m, dist, mean, backcast, regimes=regimes,
                             nested=nest[0] if nest and nest[1] is None else None)
         if m == "garch":
             nested_fit["garch"] = (f, prob)
