@@ -41,6 +41,11 @@ STATIONARITY_MARGIN = 1e-6
 #: below this: 50 times below the first-order check's tolerance
 #: (OPTIMALITY_GAIN_TOL), far below the 1e-6 at which fits are compared
 STOP_GAIN = 2e-9
+#: ... and for GARCH climbed only as the start of GJR or EGARCH: within about this of
+#: its optimum is as good a start; a GJR fit from it must end at least QUICK_MARGIN
+#: above it, else GARCH is fitted fully and GJR climbs again from its optimum
+QUICK_STOP_GAIN = 1e-3
+QUICK_MARGIN = 1.0
 
 
 # ---------------------------------------------------------------------------------
@@ -1178,8 +1183,14 @@ def _nested_start(prob: _Problem, nested: GarchFit | None, scale: float):
 
 
 def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
-              nested: GarchFit | None = None, regimes: dict | None = None):
+              nested: GarchFit | None = None, regimes: dict | None = None,
+              quick: bool = False):
     """One maximum-likelihood fit. Returns (fit, problem text or None).
+
+    ``quick`` (GARCH as the start of a model that nests or follows it): one climb
+    stopped once a step predicts less than QUICK_STOP_GAIN, no check, unless the
+    weak-dynamics regime has to be climbed too (then the full fit);
+    ``regimes["quick"]`` says which was done.
 
     ``regimes`` (a dict) shares what the GARCH fit learnt about the weak-dynamics
     regime with the fits it starts: GARCH records the gap between its best
@@ -1222,14 +1233,14 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
 
     cap = prob.max_step()
 
-    def run(u0):
+    def run(u0, stop=STOP_GAIN):
         u0 = np.clip(u0, lo, hi)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
             hess, (f0, g0) = prob.start_curvature(M @ u0)
             res = minimize_box(fun_grad, u0, lo, hi, hess0=M.T @ hess @ M,
                                fg0=(f0, M.T @ g0), max_step=cap, A_ub=A_ub, b_ub=b_ub,
-                               gain_tol=STOP_GAIN / prob.n)
+                               gain_tol=stop / prob.n)
         u = np.asarray(res.x, dtype=float)
         _, vol, _ = prob.unpack(M @ u)
         pers = prob.spec.persistence(vol)
@@ -1283,20 +1294,30 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
     threshold = max(60.0, 0.02 * prob.n)
     order = []
     best = None
+    if regimes is not None and model == "garch":
+        regimes["quick"] = False
     if main:
         _, f0, u0 = min(main, key=lambda c: c[1])
         order.append(u0)
-        best = run(u0)
+        best = run(u0, QUICK_STOP_GAIN if quick else STOP_GAIN)
     if low:
         _, f0, u0 = min(low, key=lambda c: c[1])
         gap = (f0 - best["f"]) * prob.n if best is not None else 0.0
         if regimes is not None and model == "garch":
             regimes["low_gap"] = gap if best is not None and best["stationary"] else None
         if best is None or not best["stationary"] or gap <= threshold:
+            if quick and best is not None:
+                best = run(best["u"])     # the full climb after all
+                quick = False
             order.append(u0)
             r = run(u0)
             if better(r, best):
                 best = r
+    if quick and best is not None and best["stationary"] and math.isfinite(best["f"]):
+        if regimes is not None:
+            regimes["quick"] = True
+        return _result(prob, M @ best["u"], y, scale, mean, False,
+                       "quick climb (a start for the nested model)", None, None), None
     tried = order
     if best["stationary"] and not verified(best):
         # stopped short of an optimum: climb again from there with fresh curvature,
@@ -1439,6 +1460,19 @@ def fit_garch(returns, model: str = "gjr", dist: str = "t", mean: str = "constan
 
     def estimate(m):
         # GARCH first: its optimum starts GJR (which nests it) and EGARCH
+        if m != "garch" and "garch" not in nested_fit and model == m:
+            # only the asked-for model is reported: GARCH is climbed quickly as its
+            # start, and fully only if GJR does not end clearly above it
+            g, gp = _estimate(y, "garch", dist, mean, backcast, regimes=regimes,
+                              quick=True)
+            if regimes.get("quick"):
+                f, prob = _estimate(y, m, dist, mean, backcast, regimes=regimes,
+                                    nested=g)
+                if m == "egarch" or (prob is None
+                                     and f.loglik >= g.loglik + QUICK_MARGIN):
+                    return f, prob
+            else:
+                nested_fit["garch"] = (g, gp)
         if m != "garch" and "garch" not in nested_fit:
             g, gp = _estimate(y, "garch", dist, mean, backcast, regimes=regimes)
             nested_fit["garch"] = (g, gp)
