@@ -1430,18 +1430,23 @@ def fit_garch(returns, model: str = "gjr", dist: str = "t", mean: str = "constan
     -----
     Maximises ``sum_t l(e_t; sigma^2_t, nu)`` by a projected quasi-Newton method
     (:func:`optbench.volatility.optimize.minimize_box`) within positivity bounds and
-    the stationarity constraint (persistence <= 1); GJR in the coordinates
+    the stationarity limit ``persistence <= 1 - STATIONARITY_MARGIN`` (a linear
+    inequality held by the optimiser's active set for GARCH and GJR, the bound on
+    beta for EGARCH); GJR in the coordinates
     ``(omega, alpha, alpha + gamma, beta)`` so that both positivity constraints are
-    bounds. GJR and EGARCH start from GARCH's optimum (GJR nests it at gamma = 0),
+    bounds. GJR and EGARCH start from GARCH's optimum (GJR nests it at gamma = 0;
+    when one of them alone is asked for, from a quick GARCH climb, GJR then checked
+    to end a log-likelihood unit above it or climbed again from GARCH's optimum),
     a second climb starts from weak dynamics when that regime is within reach, and
     ``converged`` is set only after the first-order (KKT) check recorded in
-    ``fit.optimality``. Degenerate histories (20 or more unchanged closes in a row,
-    fewer than 125 moving days, an implausible forecast) fall back or raise with the
-    reason. For GARCH and GJR the
+    ``fit.optimality``. An optimum at the stationarity limit is reported converged
+    with a warning in ``fit.warnings``. Degenerate histories (20 or more unchanged
+    closes in a row, fewer than 125 moving days, an implausible forecast) fall back
+    or raise with the reason. For GARCH and GJR the
     variance and its derivatives come from one blocked linear filter, giving an
-    analytic gradient; EGARCH runs a loop over days with an adjoint (reverse-mode)
-    gradient. If the
-    fit fails or is not stationary, a simpler model is tried (EGARCH -> GJR ->
+    analytic gradient; EGARCH's path is solved by Newton rounds over the whole path
+    with an adjoint (reverse-mode) gradient. If the
+    fit fails, a simpler model is tried (EGARCH -> GJR ->
     GARCH -> EWMA with lambda = 0.94, RiskMetrics 1996) and ``fallback_reason``
     says why. Standard errors are the robust sandwich of Bollerslev & Wooldridge
     (1992).
