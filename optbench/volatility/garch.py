@@ -813,7 +813,9 @@ class GarchFit:
 
         Parameter vectors are drawn from N(theta_hat, robust covariance) in the
         estimator's units, draws that break a constraint (positivity, stationarity,
-        nu > 2.05) are dropped, each draw re-filters the last ``window`` returns
+        nu > 2.05) are dropped (for an estimate held at the stationarity limit, draws
+        beyond it are first moved onto it: the projected normal of a boundary
+        estimate, Andrews 1999), each draw re-filters the last ``window`` returns
         from the fitted state to get its own sigma^2_{T+1}, and its term structure
         is computed in closed form (GARCH, GJR) or by the exact recursion (EGARCH).
         The band is the ``level`` quantiles across draws. EWMA has no estimated
@@ -847,6 +849,17 @@ class GarchFit:
         draws = theta / sc + rng.standard_normal((m, len(names))) @ chol.T
         draws *= sc
         P = {n: draws[:, i] for i, n in enumerate(names)}
+        if at_stationarity_limit(self.persistence) and self.model != "ewma":
+            # an estimate held at the stationarity limit: its sampling distribution is
+            # the normal projected onto the feasible set (Andrews 1999, Econometrica
+            # 67), so draws beyond the limit are moved onto it (along beta) instead of
+            # dropped, which would leave only lower persistence in the band
+            limit = 1.0 - STATIONARITY_MARGIN
+            if self.model in ("garch", "gjr"):
+                pers = P["alpha"] + 0.5 * P.get("gamma", 0.0) + P["beta"]
+                P["beta"] = P["beta"] - np.maximum(pers - limit, 0.0)
+            else:
+                P["beta"] = np.minimum(P["beta"], limit)
         ok = np.ones(m, dtype=bool)
         if self.model in ("garch", "gjr"):
             g = P.get("gamma", np.zeros(m))

@@ -153,6 +153,12 @@ def test_integrated_series_is_fitted_at_the_stationarity_limit(model, dist):
         assert fit.loglik >= ref - 1.1 * nu * STATIONARITY_MARGIN - 1e-6, (seed, fit.loglik - ref)
         # the forecast of an integrated fit stays near today's variance
         assert fit.forecast_vol(252) == pytest.approx(fit.forecast_vol(1), rel=0.05)
+        # the parameter band of a boundary estimate (draws projected onto the limit)
+        # holds the point forecast at every horizon
+        days = np.array([5, 21, 63, 126, 252])
+        low, high = fit.forecast_band(days)
+        point = fit.forecast_vol(days)
+        assert np.all(low <= point + 1e-12) and np.all(point <= high + 1e-12), (low, point, high)
 
 
 def test_gjr_alone_never_ends_below_garch_on_symmetric_data():
