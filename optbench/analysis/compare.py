@@ -352,6 +352,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
                                 f"returns, the history has {len(hist.returns)}")
     if fit.fallback_reason:
         warnings.append(f"volatility model: {fit.fallback_reason}")
+    warnings += [f"volatility model: {w}" for w in getattr(fit, "warnings", ())]
     exp_dates = [pd.Timestamp(e).date() for e in fwd["expiry"]]
     last_day = pd.Timestamp(hist.dates[-1]).date()
     if last_day != ch.asof and (ch.asof - last_day).days <= sanity.STALE_DAYS:

@@ -54,6 +54,7 @@ def fit_report(history, model: str, dist: str, mean: str, horizons) -> dict:
     low, high = fit.forecast_band(list(horizons))
     if fit.fallback_reason:
         warnings.append(f"volatility model: {fit.fallback_reason}")
+    warnings += [f"volatility model: {w}" for w in getattr(fit, "warnings", ())]
     for h, v in zip(horizons, vols):
         if sanity.implausible_forecast(v):
             warnings.append(f"{int(h)} trading days: forecast vol {100 * float(v):,.4g}% is "

@@ -62,6 +62,42 @@ def std_t_loglik(e: np.ndarray, s2: np.ndarray, nu: float, *, grad: bool = False
     return ll, d_s2, d_e, d_nu
 
 
+def std_t_loglik_sums(e: np.ndarray, e2: np.ndarray, s2: np.ndarray, nu: float):
+    """The sums of :func:`std_t_loglik` that an objective and its gradient need.
+
+    Returns ``(sum l_t, dl/ds2 per day, sum dl/de, sum dl/dnu)``: the same values as
+    summing :func:`std_t_loglik`'s arrays, with fewer passes over the data.
+
+    Notes
+    -----
+    With ``v_t = (nu - 2) s2_t + e_t^2``: ``q/(1+q) = e^2/v``, ``ln(1+q) = ln v - ln s2
+    - ln(nu-2)`` and ``1/(s2 (1+q)) = (nu-2)/v`` (the formulas of
+    :func:`std_t_loglik`, Bollerslev 1987, rearranged), so two logarithms and one
+    reciprocal per day give every sum.
+    """
+    n = s2.shape[0]
+    nm2 = nu - 2.0
+    v = s2 * nm2
+    v += e2
+    inv_v = 1.0 / v
+    sum_ln_s2 = float(np.log(s2).sum())
+    sum_lq = float(np.log(v).sum()) - sum_ln_s2 - n * math.log(nm2)
+    w = e2 * inv_v                      # q / (1 + q)
+    sum_w = float(w.sum())
+    const = gammaln(0.5 * (nu + 1.0)) - gammaln(0.5 * nu) - 0.5 * math.log(math.pi * nm2)
+    total = n * const - 0.5 * sum_ln_s2 - 0.5 * (nu + 1.0) * sum_lq
+    w *= nu + 1.0
+    w -= 1.0
+    w *= 0.5
+    d_s2 = w
+    d_s2 /= s2
+    inv_v *= e     # (single-threaded: no BLAS call on long vectors)
+    sum_d_e = -(nu + 1.0) * float(inv_v.sum())
+    sum_d_nu = 0.5 * (n * (digamma(0.5 * (nu + 1.0)) - digamma(0.5 * nu) - 1.0 / nm2)
+                      - sum_lq + (nu + 1.0) * sum_w / nm2)
+    return total, d_s2, sum_d_e, sum_d_nu
+
+
 def std_t_draws(rng: np.random.Generator, nu: float, size, dtype=np.float64) -> np.ndarray:
     """Draws of a unit-variance Student-t: ``z = N * sqrt((nu - 2) / (2 G))``,
     ``G ~ Gamma(nu/2, 1)`` (the normal / chi-square mixture, ``chi2_nu = 2 G``)."""

@@ -19,9 +19,11 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from optbench.errors import InputError
+from optbench.pricing.special import digamma, gammaln
 from optbench.volatility import forecast as fc
 from optbench.volatility.distributions import (LOG_2PI, NU_MIN, get_distribution,
-                                               normal_loglik, std_t_loglik)
+                                               normal_loglik, std_t_loglik,
+                                               std_t_loglik_sums)
 from optbench.volatility.recursions import (LN_VARIANCE_CAP, SQRT_2_OVER_PI,
                                             affine_filter, backcast_value,
                                             egarch_jacobian,
@@ -35,6 +37,15 @@ MIN_RETURNS = 250
 MODELS = ("garch", "gjr", "egarch")
 FALLBACK = {"egarch": "gjr", "gjr": "garch", "garch": "ewma"}
 STATIONARITY_MARGIN = 1e-6
+#: the optimiser stops when its next quasi-Newton step predicts a log-likelihood gain
+#: below this: 50 times below the first-order check's tolerance
+#: (OPTIMALITY_GAIN_TOL), far below the 1e-6 at which fits are compared
+STOP_GAIN = 2e-9
+#: ... and for GARCH climbed only as the start of GJR or EGARCH: within about this of
+#: its optimum is as good a start; a GJR fit from it must end at least QUICK_MARGIN
+#: above it, else GARCH is fitted fully and GJR climbs again from its optimum
+QUICK_STOP_GAIN = 1e-3
+QUICK_MARGIN = 1.0
 
 
 # ---------------------------------------------------------------------------------
@@ -277,26 +288,62 @@ class _Problem:
 
     def _egarch_objective_grad(self, theta):
         """Minus the mean log-likelihood of EGARCH and its gradient by the adjoint
-        recursion (:func:`optbench.volatility.recursions.egarch_adjoint`)."""
-        p, eps, h, s2, ll, d_s2, d_e, d_nu = self._egarch_loglik(theta)
+        recursion (:func:`optbench.volatility.recursions.egarch_adjoint`).
+
+        The density is written in ``h = ln sigma^2`` and ``z = e / sigma`` (no
+        ``exp(h)`` needed): normal ``l_t = -(ln 2 pi + h_t + z_t^2)/2``, ``dl/dh =
+        (z^2 - 1)/2``; Student-t with ``v_t = nu - 2 + z_t^2``: ``l_t = c(nu) - h_t/2 -
+        (nu+1)/2 ln(v_t/(nu-2))``, ``dl/dh = ((nu+1) z^2/v - 1)/2``, ``dl/de = -(nu+1)
+        z / (sigma v)`` (the formulas of :func:`std_t_loglik`, Bollerslev 1987).
+        """
+        mu, p, nu = self.unpack(theta)
+        eps = self.y - mu
+        h = self._egarch_path(eps, p)
+        n = self.n
         hb = math.log(self.backcast)
-        total = float(ll.sum())
-        if not math.isfinite(total):
-            return 1e6, np.zeros(self.k)
         inv_s = np.exp(-0.5 * h)
         z = eps * inv_s
-        lam = egarch_adjoint(z, d_s2 * s2, p["alpha"], p["gamma"], p["beta"])
+        z2 = z * z
+        sum_h = float(h.sum())
+        d_nu = None
+        if nu is None:
+            total = -0.5 * (n * LOG_2PI + sum_h + float(z2.sum()))
+            a = 0.5 * (z2 - 1.0)
+            zs = z * inv_s
+            sum_d_e = -float(zs.sum())
+        else:
+            nm2 = nu - 2.0
+            v = z2 + nm2
+            sum_lq = float(np.log(v).sum()) - n * math.log(nm2)
+            inv_v = 1.0 / v
+            w = z2 * inv_v
+            sum_w = float(w.sum())
+            const = (gammaln(0.5 * (nu + 1.0)) - gammaln(0.5 * nu)
+                     - 0.5 * math.log(math.pi * nm2))
+            total = n * const - 0.5 * sum_h - 0.5 * (nu + 1.0) * sum_lq
+            w *= nu + 1.0
+            w -= 1.0
+            w *= 0.5
+            a = w
+            inv_v *= z
+            inv_v *= inv_s
+            sum_d_e = -(nu + 1.0) * float(inv_v.sum())
+            d_nu = 0.5 * (n * (digamma(0.5 * (nu + 1.0)) - digamma(0.5 * nu) - 1.0 / nm2)
+                          - sum_lq + (nu + 1.0) * sum_w / nm2)
+        if not math.isfinite(total):
+            return 1e6, np.zeros(self.k)
+        lam = egarch_adjoint(z, a, p["alpha"], p["gamma"], p["beta"])
         zl = z[:-1]
         l1 = lam[1:]
         grad = []
         if self.has_mu:
             dz = -(p["alpha"] * np.sign(zl) + p["gamma"]) * inv_s[:-1]
-            grad.append(-d_e.sum() + _dot(l1, dz))
+            grad.append(-sum_d_e + _dot(l1, dz))
         grad += [lam.sum(), _dot(l1, np.abs(zl) - SQRT_2_OVER_PI), _dot(l1, zl),
                  lam[0] * hb + _dot(l1, h[:-1])]
         if d_nu is not None:
-            grad.append(d_nu.sum())
-        return -total / self.n, -np.array(grad) / self.n
+            grad.append(d_nu)
+        return -total / n, -np.array(grad) / n
 
     def objective_grad(self, theta):
         """Minus the mean log-likelihood and its analytic gradient (GARCH, GJR).
@@ -341,9 +388,7 @@ class _Problem:
             sum_d_e = -_dot(eps, inv)
             d_nu = None
         else:
-            ll, d_s2, d_e, d_nu = std_t_loglik(eps, s2, nu, grad=True)
-            total = float(ll.sum())
-            sum_d_e = float(d_e.sum())
+            total, d_s2, sum_d_e, d_nu = std_t_loglik_sums(eps, e2, s2, nu)
         lam = reverse_filter(d_s2, beta)
         s2_lag = np.empty(self.n)
         s2_lag[0] = bc
@@ -358,7 +403,7 @@ class _Problem:
             grad.append(_dot(lam, g))
         grad.append(_dot(lam, s2_lag))
         if d_nu is not None:
-            grad.append(d_nu.sum())
+            grad.append(d_nu)
         if not math.isfinite(total):
             return 1e6, np.zeros(self.k)
         return -total / self.n, -np.array(grad) / self.n
@@ -439,6 +484,22 @@ class _Problem:
         lim = self.EGARCH_MAX_STEP
         return np.array([(lim.get(n, np.inf)) for n in self.names])
 
+    def stationarity_row(self):
+        """``(a, b)`` with the stationarity limit ``a . theta <= b`` for GARCH and GJR
+        (``alpha + beta`` and ``alpha + gamma/2 + beta <= 1 - STATIONARITY_MARGIN``;
+        ``gamma/2 = E[1(z<0) z^2] gamma`` for any symmetric unit-variance
+        innovation, normal or Student-t), None otherwise (EGARCH's ``beta`` limit is
+        a bound)."""
+        if self.spec.name not in ("garch", "gjr"):
+            return None
+        a = np.zeros(self.k)
+        i = self.i_vol
+        a[i + 1] = 1.0                              # alpha
+        if self.spec.name == "gjr":
+            a[i + 2] = 0.5                          # gamma (kappa = 1/2)
+        a[i + self.n_vol - 1] = 1.0                 # beta
+        return a, 1.0 - STATIONARITY_MARGIN
+
     def constraint(self):
         spec, i, nv = self.spec, self.i_vol, self.n_vol
         jac_vol = spec.constraint_jacobian()
@@ -468,13 +529,17 @@ class _Problem:
         return m
 
     def internal_bounds(self, var):
-        """Bounds of the optimiser's coordinates ``u``."""
+        """Bounds of the optimiser's coordinates ``u`` (EGARCH's ``beta`` at most
+        ``1 - STATIONARITY_MARGIN``: its stationarity limit)."""
         sd = math.sqrt(var)
         b = []
         if self.has_mu:
             m = float(np.mean(self.y))
             b.append((m - 10 * sd, m + 10 * sd))
-        return b + self.spec.internal_bounds(var) + self.dist.bounds()
+        vol = list(self.spec.internal_bounds(var))
+        if self.spec.name == "egarch":
+            vol[-1] = (vol[-1][0], min(vol[-1][1], 1.0 - STATIONARITY_MARGIN))
+        return b + vol + self.dist.bounds()
 
     def scores(self, theta):
         """Per-day log-likelihood and analytic scores (n, k) at ``theta``."""
@@ -599,10 +664,16 @@ class GarchFit:
         ``checked`` (the test), ``predicted_gain`` (log-likelihood a Newton step on
         the free coordinates still promises), ``projected_gradient`` (largest free
         gradient entry of the log-likelihood, optimiser units), ``tolerance``,
-        ``active_bounds`` (coordinates held at a bound). None when no estimation ran.
+        ``active_bounds`` (coordinates held at a bound; ``stationarity limit`` when
+        the persistence is held at ``1 - STATIONARITY_MARGIN``), ``limit_multiplier``
+        (d log L / d persistence held back there, else None). None when no estimation
+        ran.
     cov : ndarray
         Robust covariance of the parameters in ``param_names`` order (decimal units),
         computed on first use.
+    warnings : tuple of str
+        Caveats of a converged estimate (e.g. persistence held at the stationarity
+        limit); they travel with every number taken from the fit.
     """
 
     model: str
@@ -625,6 +696,7 @@ class GarchFit:
     backcast: float = float("nan")
     returns: np.ndarray = field(default=None, repr=False)
     optimality: dict | None = field(default=None, repr=False)
+    warnings: tuple = ()
 
     # -- derived values --------------------------------------------------------------
     @functools.cached_property
@@ -662,8 +734,12 @@ class GarchFit:
     @property
     def long_run_variance(self) -> float | None:
         """Daily unconditional variance: ``omega / (1 - p)`` (GARCH, GJR); the limit of
-        the EGARCH forecast; None for EWMA (no mean reversion)."""
+        the EGARCH forecast; None for EWMA (no mean reversion) and at the
+        stationarity limit (see :func:`at_stationarity_limit`: the level is not
+        identified there)."""
         p = self.persistence
+        if self.model != "ewma" and at_stationarity_limit(p):
+            return None
         if self.model in ("garch", "gjr"):
             return self.params["omega"] / (1.0 - p) if p < 1 else None
         if self.model == "egarch":
@@ -737,7 +813,9 @@ class GarchFit:
 
         Parameter vectors are drawn from N(theta_hat, robust covariance) in the
         estimator's units, draws that break a constraint (positivity, stationarity,
-        nu > 2.05) are dropped, each draw re-filters the last ``window`` returns
+        nu > 2.05) are dropped (for an estimate held at the stationarity limit, draws
+        beyond it are first moved onto it: the projected normal of a boundary
+        estimate, Andrews 1999), each draw re-filters the last ``window`` returns
         from the fitted state to get its own sigma^2_{T+1}, and its term structure
         is computed in closed form (GARCH, GJR) or by the exact recursion (EGARCH).
         The band is the ``level`` quantiles across draws. EWMA has no estimated
@@ -771,6 +849,17 @@ class GarchFit:
         draws = theta / sc + rng.standard_normal((m, len(names))) @ chol.T
         draws *= sc
         P = {n: draws[:, i] for i, n in enumerate(names)}
+        if at_stationarity_limit(self.persistence) and self.model != "ewma":
+            # an estimate held at the stationarity limit: its sampling distribution is
+            # the normal projected onto the feasible set (Andrews 1999, Econometrica
+            # 67), so draws beyond the limit are moved onto it (along beta) instead of
+            # dropped, which would leave only lower persistence in the band
+            limit = 1.0 - STATIONARITY_MARGIN
+            if self.model in ("garch", "gjr"):
+                pers = P["alpha"] + 0.5 * P.get("gamma", 0.0) + P["beta"]
+                P["beta"] = P["beta"] - np.maximum(pers - limit, 0.0)
+            else:
+                P["beta"] = np.minimum(P["beta"], limit)
         ok = np.ones(m, dtype=bool)
         if self.model in ("garch", "gjr"):
             g = P.get("gamma", np.zeros(m))
@@ -876,6 +965,7 @@ class GarchFit:
             "long_run_vol": num(self.long_run_vol),
             "candidates": {k: num(v) for k, v in self.candidates.items()},
             "optimality": _optimality_json(self.optimality),
+            "warnings": list(self.warnings),
         }
 
 
@@ -954,8 +1044,8 @@ OPTIMALITY_GAIN_REL = 1e-11
 
 
 def _optimality(prob: _Problem, M: np.ndarray, u: np.ndarray, lo: np.ndarray,
-                hi: np.ndarray, res=None) -> dict:
-    """First-order (KKT) check of a bound-constrained maximum of the log-likelihood.
+                hi: np.ndarray, res=None, A_ub=None, b_ub=None) -> dict:
+    """First-order (KKT) check of a constrained maximum of the log-likelihood.
 
     In the optimiser's coordinates ``u`` (``theta = M u``) with ``G`` the gradient of the
     total log-likelihood and ``S`` the per-day scores: a coordinate at a bound is
@@ -968,6 +1058,12 @@ def _optimality(prob: _Problem, M: np.ndarray, u: np.ndarray, lo: np.ndarray,
     quasi-Newton Hessian with its final analytic gradient when ``res`` (its result at
     ``u``) carries them, otherwise the outer product of the per-day scores ``S'S``
     (Berndt, Hall, Hall & Hausman 1974).
+
+    A linear inequality ``A_ub u <= b_ub`` (the stationarity limit) at its limit is
+    active when its multiplier ``nu = (A H^-1 A')^-1 A H^-1 G`` is positive (the
+    likelihood rises across it); the gain is then that of the Newton step along it,
+    ``(G - A' nu)' H^-1 (G - A' nu) / 2`` on the free coordinates (Nocedal & Wright,
+    *Numerical Optimization*, 2nd ed., §12.3 and §16.5).
     """
     names = prob.names
     n = prob.n
@@ -1000,14 +1096,32 @@ def _optimality(prob: _Problem, M: np.ndarray, u: np.ndarray, lo: np.ndarray,
     free = ~active
     gf = g[free]
     gain = 0.0
+    rows_active = []
+    limit_mult = None
     if gf.size:
         info = (n * np.asarray(res.hess, dtype=float)[np.ix_(free, free)] if quasi
                 else _gram(su[:, free]))
         info = 0.5 * (info + info.T)
         w, V = np.linalg.eigh(info)
         w = np.maximum(w, 1e-12 * max(float(w.max()), 1e-300))
-        c = V.T @ gf
-        gain = 0.5 * float(np.sum(c * c / w))
+        Hinv = (V / w) @ V.T
+        if A_ub is not None:
+            slack = b_ub - A_ub @ u
+            rows_active = [i for i in range(A_ub.shape[0])
+                           if slack[i] <= 1e-10 * (1.0 + abs(b_ub[i]))]
+        while rows_active:
+            A = A_ub[np.ix_(rows_active, np.flatnonzero(free))]
+            AH = A @ Hinv
+            try:
+                mult = np.linalg.solve(AH @ A.T, AH @ gf)
+            except np.linalg.LinAlgError:
+                mult = np.linalg.lstsq(AH @ A.T, AH @ gf, rcond=None)[0]
+            if float(mult.min()) >= 0.0:
+                gf = gf - A.T @ mult
+                limit_mult = float(mult[0])
+                break
+            rows_active.pop(int(np.argmin(mult)))   # not binding: the gain counts it
+        gain = 0.5 * float(gf @ Hinv @ gf)
     pg = float(np.max(np.abs(gf))) if gf.size else 0.0
     coord = _coordinate_names(prob)
     tol = max(OPTIMALITY_GAIN_TOL, OPTIMALITY_GAIN_REL * (n + abs(total_ll)))
@@ -1017,7 +1131,11 @@ def _optimality(prob: _Problem, M: np.ndarray, u: np.ndarray, lo: np.ndarray,
                        f"(curvature: {curvature})",
             "predicted_gain": gain, "projected_gradient": pg,
             "tolerance": tol,
-            "active_bounds": [coord[i] for i in np.flatnonzero(active)],
+            "active_bounds": ([coord[i] for i in np.flatnonzero(active)]
+                              + ["stationarity limit"] * bool(rows_active)),
+            # d(log L)/d(persistence) held back by the limit: moving the limit from
+            # 1 - margin to 1 would gain about this times the margin
+            "limit_multiplier": limit_mult,
             "coordinates": coord if coord != list(names) else None}
 
 
@@ -1078,8 +1196,20 @@ def _nested_start(prob: _Problem, nested: GarchFit | None, scale: float):
 
 
 def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
-              nested: GarchFit | None = None):
+              nested: GarchFit | None = None, regimes: dict | None = None,
+              quick: bool = False):
     """One maximum-likelihood fit. Returns (fit, problem text or None).
+
+    ``quick`` (GARCH as the start of a model that nests or follows it): one climb
+    stopped once a step predicts less than QUICK_STOP_GAIN, no check, unless the
+    weak-dynamics regime has to be climbed too (then the full fit);
+    ``regimes["quick"]`` says which was done.
+
+    ``regimes`` (a dict) shares what the GARCH fit learnt about the weak-dynamics
+    regime with the fits it starts: GARCH records the gap between its best
+    weak-dynamics start and its optimum (``low_gap``); GJR and EGARCH, given the
+    same dict, skip their weak-dynamics starts when that gap was more than twice
+    the climbing threshold (strong clustering in the data, seen by the nested model).
 
     Climbs from the best start of each persistence regime and from the nested
     model's optimum (``nested``, a GARCH fit with the same distribution), keeps the
@@ -1103,28 +1233,37 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
         f, g = prob.objective_grad(M @ u)
         return f, M.T @ g
 
+    # the stationarity limit as a linear inequality in the optimiser's coordinates
+    # (GARCH, GJR; EGARCH's is the bound on beta): held by the optimiser's active set
+    srow = prob.stationarity_row()
+    A_ub = None if srow is None else (srow[0] @ M)[None, :]
+    b_ub = None if srow is None else np.array([srow[1]])
+
     def feasible(u):
+        if A_ub is not None and not float(A_ub[0] @ u) <= b_ub[0] + 1e-12:
+            return False
         return prob.feasible(M @ u)
 
     cap = prob.max_step()
 
-    def run(u0):
+    def run(u0, stop=STOP_GAIN):
         u0 = np.clip(u0, lo, hi)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
             hess, (f0, g0) = prob.start_curvature(M @ u0)
-            res = minimize_box(fun_grad, u0, lo, hi, feasible=feasible,
-                               hess0=M.T @ hess @ M, fg0=(f0, M.T @ g0), max_step=cap)
+            res = minimize_box(fun_grad, u0, lo, hi, hess0=M.T @ hess @ M,
+                               fg0=(f0, M.T @ g0), max_step=cap, A_ub=A_ub, b_ub=b_ub,
+                               gain_tol=stop / prob.n)
         u = np.asarray(res.x, dtype=float)
         _, vol, _ = prob.unpack(M @ u)
         pers = prob.spec.persistence(vol)
-        stationary = pers < 1.0 - STATIONARITY_MARGIN
+        stationary = pers <= 1.0 - STATIONARITY_MARGIN + 1e-12
         return {"res": res, "u": u, "f": float(res.fun), "pers": pers,
                 "stationary": bool(stationary and math.isfinite(res.fun)), "opt": None}
 
     def verified(r):
         if r["opt"] is None:
-            r["opt"] = _optimality(prob, M, r["u"], lo, hi, r["res"])
+            r["opt"] = _optimality(prob, M, r["u"], lo, hi, r["res"], A_ub, b_ub)
         return r["opt"]["passed"]
 
     def better(a, b):   # is run a preferred to run b?
@@ -1144,12 +1283,19 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
         if model == "egarch":
             prob._h_guess = 2.0 * np.log(nested.conditional_vol * scale)
     cands = []
+    if (ns is not None and regimes is not None and regimes.get("low_gap") is not None
+            and regimes["low_gap"] > 2.0 * max(60.0, 0.02 * prob.n)):
+        # the nested GARCH fit found the weak-dynamics regime far below its optimum
+        labelled = [c for c in labelled if c[0] != "low"]
     for label, th in labelled:
         u0 = np.clip(Minv @ th, lo, hi)
         if not feasible(u0):
             continue
-        with np.errstate(all="ignore"):
-            f0 = prob.objective(M @ u0)
+        if label == "nested" and not any(c[0] == "high" for c in labelled):
+            f0 = -math.inf    # the only main start: no need to rank it
+        else:
+            with np.errstate(all="ignore"):
+                f0 = prob.objective(M @ u0)
         cands.append((label, f0, u0))
     # climb from the best of the nested and high-persistence starts; then from the
     # best weak-dynamics start, unless even that start is far below the optimum
@@ -1158,20 +1304,33 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
     # 500-800 log-likelihood units on long real series, under 50 with weak dynamics)
     main = [c for c in cands if c[0] != "low"]
     low = [c for c in cands if c[0] == "low"]
+    threshold = max(60.0, 0.02 * prob.n)
     order = []
     best = None
+    if regimes is not None and model == "garch":
+        regimes["quick"] = False
     if main:
         _, f0, u0 = min(main, key=lambda c: c[1])
         order.append(u0)
-        best = run(u0)
+        best = run(u0, QUICK_STOP_GAIN if quick else STOP_GAIN)
     if low:
         _, f0, u0 = min(low, key=lambda c: c[1])
         gap = (f0 - best["f"]) * prob.n if best is not None else 0.0
-        if best is None or not best["stationary"] or gap <= max(60.0, 0.02 * prob.n):
+        if regimes is not None and model == "garch":
+            regimes["low_gap"] = gap if best is not None and best["stationary"] else None
+        if best is None or not best["stationary"] or gap <= threshold:
+            if quick and best is not None:
+                best = run(best["u"])     # the full climb after all
+                quick = False
             order.append(u0)
             r = run(u0)
             if better(r, best):
                 best = r
+    if quick and best is not None and best["stationary"] and math.isfinite(best["f"]):
+        if regimes is not None:
+            regimes["quick"] = True
+        return _result(prob, M @ best["u"], y, scale, mean, False,
+                       "quick climb (a start for the nested model)", None, None), None
     tried = order
     if best["stationary"] and not verified(best):
         # stopped short of an optimum: climb again from there with fresh curvature,
@@ -1186,7 +1345,8 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
                 break
     res, u = best["res"], best["u"]
     theta = M @ u
-    opt = _optimality(prob, M, u, lo, hi, res) if best["opt"] is None else best["opt"]
+    opt = (_optimality(prob, M, u, lo, hi, res, A_ub, b_ub) if best["opt"] is None
+           else best["opt"])
     problem = None
     if not best["stationary"]:
         problem = f"{model} estimate is not stationary (persistence {best['pers']:.6f})"
@@ -1198,11 +1358,27 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
                    if gain is not None else f"{model} did not converge ({opt['checked']})")
     fit = _result(prob, theta, y, scale, mean, problem is None, str(res.message),
                   None, None, with_cov=problem is None, optimality=opt)
+    if problem is None and at_stationarity_limit(best["pers"]):
+        fit = _replace(fit, warnings=(stationarity_limit_warning(model, best["pers"]),))
     if problem is None:
         problem = _implausible_forecast(fit, float(np.var(y)))
         if problem is not None:
             fit = _replace(fit, converged=False)
     return fit, problem
+
+
+def at_stationarity_limit(persistence: float) -> bool:
+    """True when a persistence sits at the estimator's stationarity limit
+    ``1 - STATIONARITY_MARGIN`` (within a thousandth of the margin) or beyond."""
+    return persistence >= 1.0 - 1.001 * STATIONARITY_MARGIN
+
+
+def stationarity_limit_warning(model: str, persistence: float) -> str:
+    return (f"{model} persistence is at the stationarity limit ({persistence:.7f} = "
+            f"1 - {STATIONARITY_MARGIN:g}): the likelihood rises towards an integrated "
+            "model, so the estimate is held at the limit; shocks barely decay over any "
+            "option horizon (the forecast stays near today's variance) and the "
+            "long-run level is not identified")
 
 
 def _implausible_forecast(fit: GarchFit, sample_variance: float) -> str | None:
@@ -1267,18 +1443,23 @@ def fit_garch(returns, model: str = "gjr", dist: str = "t", mean: str = "constan
     -----
     Maximises ``sum_t l(e_t; sigma^2_t, nu)`` by a projected quasi-Newton method
     (:func:`optbench.volatility.optimize.minimize_box`) within positivity bounds and
-    the stationarity constraint (persistence <= 1); GJR in the coordinates
+    the stationarity limit ``persistence <= 1 - STATIONARITY_MARGIN`` (a linear
+    inequality held by the optimiser's active set for GARCH and GJR, the bound on
+    beta for EGARCH); GJR in the coordinates
     ``(omega, alpha, alpha + gamma, beta)`` so that both positivity constraints are
-    bounds. GJR and EGARCH start from GARCH's optimum (GJR nests it at gamma = 0),
+    bounds. GJR and EGARCH start from GARCH's optimum (GJR nests it at gamma = 0;
+    when one of them alone is asked for, from a quick GARCH climb, GJR then checked
+    to end a log-likelihood unit above it or climbed again from GARCH's optimum),
     a second climb starts from weak dynamics when that regime is within reach, and
     ``converged`` is set only after the first-order (KKT) check recorded in
-    ``fit.optimality``. Degenerate histories (20 or more unchanged closes in a row,
-    fewer than 125 moving days, an implausible forecast) fall back or raise with the
-    reason. For GARCH and GJR the
+    ``fit.optimality``. An optimum at the stationarity limit is reported converged
+    with a warning in ``fit.warnings``. Degenerate histories (20 or more unchanged
+    closes in a row, fewer than 125 moving days, an implausible forecast) fall back
+    or raise with the reason. For GARCH and GJR the
     variance and its derivatives come from one blocked linear filter, giving an
-    analytic gradient; EGARCH runs a loop over days with an adjoint (reverse-mode)
-    gradient. If the
-    fit fails or is not stationary, a simpler model is tried (EGARCH -> GJR ->
+    analytic gradient; EGARCH's path is solved by Newton rounds over the whole path
+    with an adjoint (reverse-mode) gradient. If the
+    fit fails, a simpler model is tried (EGARCH -> GJR ->
     GARCH -> EWMA with lambda = 0.94, RiskMetrics 1996) and ``fallback_reason``
     says why. Standard errors are the robust sandwich of Bollerslev & Wooldridge
     (1992).
@@ -1293,16 +1474,30 @@ def fit_garch(returns, model: str = "gjr", dist: str = "t", mean: str = "constan
         return _ewma(y, mean, backcast, f"EWMA lambda=0.94 used: {stale} "
                                         "(normal innovations)")
     nested_fit = {}
+    regimes = {}
 
     def estimate(m):
         # GARCH first: its optimum starts GJR (which nests it) and EGARCH
+        if m != "garch" and "garch" not in nested_fit and model == m:
+            # only the asked-for model is reported: GARCH is climbed quickly as its
+            # start, and fully only if GJR does not end clearly above it
+            g, gp = _estimate(y, "garch", dist, mean, backcast, regimes=regimes,
+                              quick=True)
+            if regimes.get("quick"):
+                f, prob = _estimate(y, m, dist, mean, backcast, regimes=regimes,
+                                    nested=g)
+                if m == "egarch" or (prob is None
+                                     and f.loglik >= g.loglik + QUICK_MARGIN):
+                    return f, prob
+            else:
+                nested_fit["garch"] = (g, gp)
         if m != "garch" and "garch" not in nested_fit:
-            g, gp = _estimate(y, "garch", dist, mean, backcast)
+            g, gp = _estimate(y, "garch", dist, mean, backcast, regimes=regimes)
             nested_fit["garch"] = (g, gp)
         if m == "garch" and "garch" in nested_fit:
             return nested_fit["garch"]
         nest = nested_fit.get("garch")
-        f, prob = _estimate(y, m, dist, mean, backcast,
+        f, prob = _estimate(y, m, dist, mean, backcast, regimes=regimes,
                             nested=nest[0] if nest and nest[1] is None else None)
         if m == "garch":
             nested_fit["garch"] = (f, prob)

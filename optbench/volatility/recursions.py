@@ -76,6 +76,8 @@ def linear_filter(u: np.ndarray, b: float, x0: np.ndarray | float = 0.0) -> np.n
         starts = np.broadcast_to(np.asarray(x0, dtype=float), lead)
         return np.stack([_scaled_cumsum_filter(row, float(b), float(s0))
                          for row, s0 in zip(u, starts)])
+    if abs(b) < 0.6 and u.ndim <= 2 and (u.ndim == 1 or u.shape[0] <= 16):
+        return _doubling_filter(u, float(b), x0)
     L = _block_length(n)
     nb = -(-n // L)
     pad = nb * L - n
@@ -111,6 +113,28 @@ def reverse_filter(w: np.ndarray, b: float) -> np.ndarray:
     filtered variances into one backward filter plus dot products.
     """
     return linear_filter(np.asarray(w)[..., ::-1], b)[..., ::-1]
+
+
+def _doubling_filter(u: np.ndarray, b: float, x0) -> np.ndarray:
+    """:func:`linear_filter` for ``|b| < 0.6`` by doubling.
+
+    After the rounds with lags 1, 2, 4, ..., 2^(r-1) (each ``x_t += b^s x_{t-s}``,
+    ``b^s`` squared every round) ``x_t = sum_{j < 2^r} b^j u_{t-j}``: the exact sum
+    once ``2^r > t``, and otherwise short only of terms below ``b^(2^r) <= 1e-20``
+    times the inputs (Hillis-Steele scan with a constant coefficient). At most
+    seven rounds for ``|b| < 0.6``; about three times faster than the Toeplitz blocks
+    on one channel.
+    """
+    x = np.array(u, dtype=float)
+    n = x.shape[-1]
+    x[..., 0] += b * np.asarray(x0, dtype=float)
+    c = b
+    s = 1
+    while s < n and abs(c) > 1e-20:
+        x[..., s:] += c * x[..., :-s]
+        c *= c
+        s *= 2
+    return x
 
 
 def _scaled_cumsum_filter(u: np.ndarray, b: float, x0: float) -> np.ndarray:
@@ -277,6 +301,30 @@ def affine_filter_loop(a, b, x0=0.0) -> np.ndarray:
     return x
 
 
+def affine_scan_levels(a: np.ndarray) -> list:
+    """The coefficient products of :func:`affine_filter`'s doubling rounds for the
+    coefficients ``a``, kept so that several right-hand sides can be filtered with
+    the same coefficients at half the cost (:func:`affine_scan_apply`)."""
+    A = np.array(a, dtype=float)
+    n = A.shape[0]
+    levels = []
+    s = 1
+    while s < n:
+        levels.append((s, A[s:].copy()))
+        A[s:] *= A[:-s].copy()
+        s *= 2
+    return levels
+
+
+def affine_scan_apply(levels: list, b: np.ndarray) -> np.ndarray:
+    """``x_t = a_t x_{t-1} + b_t`` with ``x_{-1} = 0`` for the coefficients whose
+    :func:`affine_scan_levels` are given (the same rounds as :func:`affine_filter`)."""
+    B = np.array(b, dtype=float)
+    for s, As in levels:
+        B[..., s:] += As * B[..., :-s]
+    return B
+
+
 NEWTON_TOL = 1e-13      # largest residual of the EGARCH recursion accepted (log-variance)
 NEWTON_MAX_ITER = 40
 
@@ -333,17 +381,24 @@ def egarch_log_variance(eps: np.ndarray, omega: float, alpha: float, gamma: floa
             a[1:] = e[:-1] * e[:-1]
             h = np.log(linear_filter(0.06 * a, 0.94, v0) + 1e-300)
         h[0] = h0
+        levels = None
+        m_prev = math.inf
         for _ in range(NEWTON_MAX_ITER):
             w = k * np.exp(-0.5 * h[:-1])
             r = h[1:] - (const + w + beta * h[:-1])
-            m = float(np.max(np.abs(r)))
+            m = float(np.abs(r).max())
             if m <= NEWTON_TOL:
-                if float(np.max(np.abs(h))) <= cap:
+                if float(np.abs(h).max()) <= cap:
                     return h
                 break
             if not math.isfinite(m):
                 break
-            h[1:] -= affine_filter(beta - 0.5 * w, r, 0.0)
+            if levels is None or m > 1e-3 * m_prev:
+                # Newton: the Jacobian at the current path (its scan kept for the
+                # next rounds while they converge fast: the chord method)
+                levels = affine_scan_levels(beta - 0.5 * w)
+            h[1:] -= affine_scan_apply(levels, r)
+            m_prev = m
     return egarch_log_variance_loop(e, omega, alpha, gamma, beta, ln_backcast)
 
 

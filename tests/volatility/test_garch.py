@@ -266,11 +266,14 @@ def test_held_integrated_parameters_forecast_linearly(pct_returns):
     assert fixed.forecast_vol(10) == pytest.approx(math.sqrt(252 * v.mean()))
 
 
-def test_non_stationary_estimate_falls_back(pct_returns):
+def test_estimate_at_the_stationarity_limit_is_reported(pct_returns):
     """With one -22% day added to the sample, the GARCH-normal maximum sits on the
-    stationarity boundary — arch's own fit ends at alpha + beta = 1 too — so optbench
-    reports it and falls back to EWMA."""
-    y = pct_returns.to_numpy() / 100
+    stationarity limit — arch's own fit (reference library) ends at alpha + beta = 1
+    too. optbench holds the persistence at 1 - STATIONARITY_MARGIN, calls the fit
+    converged (the KKT check with the limit active) and says so in ``warnings``."""
+    from optbench.volatility.garch import STATIONARITY_MARGIN
+
+    y = pct_returns.to_numpy().copy() / 100
     y[3000] = -0.22
     fit = fit_garch(y, "garch", "normal")
     am = arch_model(100 * y, mean="Constant", rescale=False, vol="GARCH", p=1, q=1)
@@ -278,8 +281,19 @@ def test_non_stationary_estimate_falls_back(pct_returns):
         warnings.simplefilter("ignore")
         res = am.fit(disp="off")
     assert res.params["alpha[1]"] + res.params["beta[1]"] == pytest.approx(1.0, abs=1e-4)
-    assert fit.model == "ewma"
-    assert "garch estimate is not stationary" in fit.fallback_reason
+    assert fit.model == "garch" and fit.converged and fit.fallback_reason is None
+    assert fit.persistence == pytest.approx(1.0 - STATIONARITY_MARGIN, abs=1e-12)
+    assert "stationarity limit" in fit.optimality["active_bounds"]
+    assert len(fit.warnings) == 1 and "stationarity limit" in fit.warnings[0]
+    assert fit.to_dict()["warnings"] == list(fit.warnings)
+    assert fit.long_run_vol is None
+    # arch's optimum at persistence 1 is higher only by what the margin costs:
+    # about the limit's multiplier (d log L / d persistence) times the margin
+    nu = fit.optimality["limit_multiplier"]
+    assert nu > 0
+    arch_ll = res.loglikelihood + y.size * math.log(100)   # percent -> decimal returns
+    assert fit.loglik >= arch_ll - 1.1 * nu * STATIONARITY_MARGIN - 1e-6
+    assert fit.params["alpha"] == pytest.approx(res.params["alpha[1]"], abs=1e-4)
 
 
 def test_fitting_stays_off_slow_scipy_imports():

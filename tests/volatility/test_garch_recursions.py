@@ -7,7 +7,8 @@ import math
 import numpy as np
 import pytest
 
-from optbench.volatility.distributions import normal_loglik, std_t_loglik
+from optbench.volatility.distributions import (normal_loglik, std_t_loglik,
+                                               std_t_loglik_sums)
 from optbench.volatility.garch import _Problem
 from optbench.volatility.recursions import (garch_variance, garch_variance_loop,
                                             linear_filter, linear_filter_loop,
@@ -87,6 +88,25 @@ def test_densities_against_scipy():
     fd_s2 = (std_t_loglik(e, s2 * (1 + h), nu) - std_t_loglik(e, s2 * (1 - h), nu)) / (2 * h * s2)
     np.testing.assert_allclose(d_s2, fd_s2, rtol=1e-5)
     assert math.isfinite(float(d_e.sum()))
+
+
+def test_t_density_sums_equal_summed_arrays():
+    """The fused sums used by the objective against scipy's Student-t log-density
+    (scipy.stats.t, unit-variance scaling of Bollerslev 1987) and the per-day arrays."""
+    from scipy import stats
+
+    rng = np.random.default_rng(7)
+    e = rng.standard_t(5, 3000) * 0.015
+    s2 = rng.uniform(1e-4, 9e-4, 3000)
+    for nu in (2.3, 6.0, 80.0):
+        total, d_s2, sum_d_e, sum_d_nu = std_t_loglik_sums(e, e * e, s2.copy(), nu)
+        scale = np.sqrt(s2 * (nu - 2) / nu)
+        ref = float(stats.t.logpdf(e, nu, scale=scale).sum())   # scipy reference
+        assert total == pytest.approx(ref, rel=1e-13, abs=1e-9)
+        _, a_s2, a_e, a_nu = std_t_loglik(e, s2, nu, grad=True)
+        np.testing.assert_allclose(d_s2, a_s2, rtol=1e-12, atol=1e-12 * np.abs(a_s2).max())
+        assert sum_d_e == pytest.approx(float(a_e.sum()), rel=1e-10, abs=1e-8)
+        assert sum_d_nu == pytest.approx(float(a_nu.sum()), rel=1e-9, abs=1e-9)
 
 
 @pytest.mark.parametrize("b", [0.0, 0.3, 0.6, 0.75, 0.94, 0.999])

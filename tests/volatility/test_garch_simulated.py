@@ -119,3 +119,59 @@ def test_weak_clustering_second_optimum_is_found():
     fit = fit_garch(y, "garch", "normal")
     assert fit.converged and fit.loglik >= ref - 1e-6, fit.loglik - ref   # arch library
     assert fit.persistence > 0.95
+
+
+@pytest.mark.parametrize("model,dist", [("garch", "normal"), ("gjr", "t")])
+def test_integrated_series_is_fitted_at_the_stationarity_limit(model, dist):
+    """An integrated GARCH (alpha + beta = 1, simulated here) on 3,000 days, seeds 0
+    and 1: the likelihood rises up to persistence 1, where the arch library's fit
+    (reference, constraint alpha + gamma/2 + beta <= 1) also ends. optbench holds the
+    persistence at 1 - STATIONARITY_MARGIN, reports the fit converged with the limit
+    active and a warning, and is below arch only by what the margin costs (the
+    limit's multiplier times the margin, a first-order bound)."""
+    from optbench.volatility.garch import STATIONARITY_MARGIN
+
+    for seed in (0, 1):
+        rng = np.random.default_rng(seed)
+        z = rng.standard_normal(3500)
+        r, s2 = np.empty(3500), 1.0           # percent units, started at 1 %^2
+        for t in range(3500):
+            r[t] = math.sqrt(s2) * z[t]
+            s2 = 0.002 + 0.07 * r[t] ** 2 + 0.93 * s2
+        y = r[500:] / 100
+        ref, ref_params = arch_fit(y, model, dist)
+        arch_pers = (ref_params["alpha[1]"] + ref_params.get("gamma[1]", 0.0) / 2
+                     + ref_params["beta[1]"])
+        assert arch_pers == pytest.approx(1.0, abs=1e-6)          # arch library
+        fit = fit_garch(y, model, dist)
+        assert fit.model == model and fit.converged and fit.fallback_reason is None
+        assert fit.persistence == pytest.approx(1.0 - STATIONARITY_MARGIN, abs=1e-12)
+        assert "stationarity limit" in fit.optimality["active_bounds"]
+        assert any("stationarity limit" in w for w in fit.warnings)
+        nu = fit.optimality["limit_multiplier"]
+        assert 0 < nu < 1e4
+        assert fit.loglik >= ref - 1.1 * nu * STATIONARITY_MARGIN - 1e-6, (seed, fit.loglik - ref)
+        # the forecast of an integrated fit stays near today's variance
+        assert fit.forecast_vol(252) == pytest.approx(fit.forecast_vol(1), rel=0.05)
+        # the parameter band of a boundary estimate (draws projected onto the limit)
+        # holds the point forecast at every horizon
+        days = np.array([5, 21, 63, 126, 252])
+        low, high = fit.forecast_band(days)
+        point = fit.forecast_vol(days)
+        assert np.all(low <= point + 1e-12) and np.all(point <= high + 1e-12), (low, point, high)
+
+
+def test_gjr_alone_never_ends_below_garch_on_symmetric_data():
+    """A symmetric GARCH(1,1) series (gamma = 0, simulated here), 2,000 days, seeds
+    0-2: GJR asked for alone climbs from a quickly climbed GARCH start; where it does
+    not end clearly above that start it must fit GARCH fully and climb again, so GJR
+    (which nests GARCH) is never below GARCH's optimum, and both reach the arch
+    library's optimum (reference)."""
+    for seed in range(3):
+        y = simulate("garch", [0.03, 0.02, 0.08, 0.90], 2000, seed)
+        garch = fit_garch(y, "garch", "normal")
+        gjr = fit_garch(y, "gjr", "normal")
+        assert gjr.model == "gjr" and gjr.converged
+        assert gjr.loglik >= garch.loglik - 1e-9, (seed, gjr.loglik - garch.loglik)
+        ref, _ = arch_fit(y, "gjr", "normal")
+        assert gjr.loglik >= ref - 1e-6, (seed, gjr.loglik - ref)          # arch library
