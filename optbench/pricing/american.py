@@ -218,14 +218,27 @@ def _boundary_value(S, K, T, r, q, sigma, H):
         BOUNDARY_NODES, BOUNDARY_QUAD, PRICE_QUAD)
     X = K * np.where(q > r, r / np.where(q > 0, q, 1.0), 1.0)
     sT = np.sqrt(T)
-    b_u = X[:, None] * np.exp(-np.sqrt(np.maximum(H @ W_price.T, 0.0)))
     s2 = sT[:, None] * fp
     wk = 2.0 * s2 * sT[:, None] * half_wp
     sg = sigma[:, None]
-    dm = np.log(S[:, None] / b_u) / (sg * s2) + (r - q - 0.5 * sigma ** 2)[:, None] * s2 / sg
-    integrand = ((r * K)[:, None] * np.exp(-r[:, None] * s2 * s2) * ndtr(-dm)
-                 - (q * S)[:, None] * np.exp(-q[:, None] * s2 * s2) * ndtr(-(dm + sg * s2)))
-    premium = np.maximum((wk * integrand).sum(-1), 0.0)
+    vs = sg * s2
+    # -d_-(T-u, S/B(u)) with ln(S/B(u)) = ln(S/X) - ln(B(u)/X) = ln(S/X) + sqrt(H(u))
+    ndm = np.sqrt(np.maximum(H @ W_price.T, 0.0))
+    ndm += np.log(S / X)[:, None]
+    ndm /= vs
+    ndm += (r - q - 0.5 * sigma ** 2)[:, None] * s2 / sg
+    np.negative(ndm, out=ndm)
+    tau = T[:, None] * (fp * fp)
+    integrand = ndtr(ndm)
+    integrand *= np.exp(-r[:, None] * tau)
+    integrand *= (r * K)[:, None]
+    ndm -= vs
+    second = ndtr(ndm)
+    second *= np.exp(-q[:, None] * tau)
+    second *= (q * S)[:, None]
+    integrand -= second
+    integrand *= wk
+    premium = np.maximum(integrand.sum(-1), 0.0)
     euro = black_price(S * np.exp((r - q) * T), K, T, np.exp(-r * T), sigma, False)
     at_expiry_boundary = X * np.exp(-np.sqrt(H[:, -1]))
     return np.where(S <= at_expiry_boundary, K - S, euro + premium)
@@ -545,6 +558,9 @@ def _inversion_table(S, K, t, r, q, c, s_low, s_top):
 #: near the exercise region, where the price leaves immediate exercise with a kink
 #: in volatility, may need them)
 BISECTIONS = 40
+#: secant steps taken on the European implied vol of the American price (then on
+#: the price itself, which is smooth enough near the root)
+G_STEPS = 3
 
 
 def _solve(P, S, K, t, r, q, c, steps, max_iter, method, a_lo):
@@ -614,7 +630,7 @@ def _solve(P, S, K, t, r, q, c, steps, max_iter, method, a_lo):
         if act.size == 0:
             break
         f1 = f(act, x1)
-        g1 = g(act, f1)
+        g1 = g(act, f1) if it < G_STEPS else np.full(act.size, np.nan)
         below = f1 < 0
         # Illinois: an end kept twice in a row has its value halved
         fa = np.where(~below & (side == 1), 0.5 * fa, fa)
