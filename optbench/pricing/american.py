@@ -246,8 +246,10 @@ def _boundary_value(S, K, T, r, q, sigma, H):
 
 #: an expiry (same t, r, q) with at least this many distinct volatilities takes its
 #: boundaries from a table in volatility; the table's nodes (Chebyshev-Lobatto in
-#: ln sigma) and the fixed-point rounds spent on each node
-TABLE_MIN_VOLS, TABLE_NODES, TABLE_ROUNDS = 24, 24, 40
+#: ln sigma: TABLE_NODES_PER_E per factor e of the range, between the bounds) and
+#: the fixed-point rounds spent on each node
+TABLE_MIN_VOLS, TABLE_ROUNDS = 24, 40
+TABLE_NODES_PER_E, TABLE_NODES_MIN, TABLE_NODES_MAX = 8, 12, 24
 
 
 def _table_nodes(m: int):
@@ -261,12 +263,14 @@ def _table_nodes(m: int):
 
 def boundary_table(T, r, q, sig_lo, sig_hi):
     """Boundaries of each expiry ``(T, r, q)`` (1-d arrays, one per expiry) at
-    TABLE_NODES volatilities spanning ``[sig_lo, sig_hi]``: ``(ln_lo, ln_hi, g)`` with
-    ``g`` (expiries, nodes, collocation nodes) the table of ``sqrt(H) / sigma``."""
-    x, _ = _table_nodes(TABLE_NODES)
+    volatilities spanning ``[sig_lo, sig_hi]`` (Chebyshev-Lobatto nodes in
+    ``ln sigma``, more for wider ranges): ``(ln_lo, ln_hi, g)`` with ``g`` (expiries,
+    nodes, collocation nodes) the table of ``sqrt(H) / sigma``."""
     ln_lo, ln_hi = np.log(sig_lo), np.log(sig_hi)
+    rep = int(np.clip(np.ceil(TABLE_NODES_PER_E * np.max(ln_hi - ln_lo)), TABLE_NODES_MIN,
+                      TABLE_NODES_MAX))
+    x, _ = _table_nodes(rep)
     sig = np.exp(ln_lo[:, None] + x * (ln_hi - ln_lo)[:, None])
-    rep = TABLE_NODES
     H = _boundary_solve(np.repeat(T, rep), np.repeat(r, rep), np.repeat(q, rep), sig.ravel(),
                         rounds=TABLE_ROUNDS)
     g = np.sqrt(H).reshape(T.shape[0], rep, -1) / sig[:, :, None]
@@ -278,7 +282,7 @@ def table_boundary(table, group, sigma):
     volatilities ``sigma`` inside the table's range: barycentric interpolation in
     ``ln sigma`` of ``sqrt(H) / sigma``."""
     ln_lo, ln_hi, g = table
-    x_nodes, w = _table_nodes(TABLE_NODES)
+    x_nodes, w = _table_nodes(g.shape[1])
     span = ln_hi[group] - ln_lo[group]
     x = np.where(span > 0, (np.log(sigma) - ln_lo[group]) / np.where(span > 0, span, 1.0), 0.0)
     W = _barycentric(x_nodes, w, x)
