@@ -435,8 +435,10 @@ def _price(S, K, t, r, q, sigma, is_call, steps, method, H=None, table=None, gro
         # with r T <= 1e-10
         no_early = live & ~euro & ~boundary & ((q_put >= r_put) | (r_put * t <= 1e-10))
         if method == "boundary" and no_early.any():
-            out[no_early] = black_price(F[no_early], K[no_early], t[no_early], D[no_early],
-                                        sigma[no_early], is_call[no_early])
+            # (floored at immediate exercise against the European value's rounding)
+            out[no_early] = np.maximum(black_price(F[no_early], K[no_early], t[no_early],
+                                                   D[no_early], sigma[no_early],
+                                                   is_call[no_early]), immediate[no_early])
         tree = live & ~euro & (~(boundary | no_early) if method == "boundary" else True)
         if tree.any():
             i = np.flatnonzero(tree)
