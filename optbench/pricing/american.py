@@ -569,40 +569,29 @@ BISECTIONS = 40
 G_STEPS = 3
 
 
-def _solve(P, S, K, t, r, q, c, steps, max_iter, method, a_lo):
-    """Early-exercise-premium step from the European implied vol, then secant steps
-    on A(sigma) - P kept inside a bracket (false position with the Illinois
-    modification, or bisection, where a secant step leaves the bracket or the bracket
-    shrinks too slowly); bisection for whatever is left.
+def bracketed_solve(f, P, F, K, t, D, c, lo_vol, a_lo, v0, tol, max_iter):
+    """Volatilities with ``f(idx, sigma) = A(sigma) - P`` zero for the elements
+    ``idx``, ``A`` an American price that rises with ``sigma`` (any pricing method);
+    ``F, K, t, D, c`` the European view (forward, strike, years, discount, calls) for
+    the European implied vols, ``lo_vol`` the low end with ``A(lo_vol) = a_lo < P``,
+    ``v0`` the European implied vol of ``P`` (NaN where none). Returns the
+    volatilities and the converged flags (``|f| <= tol``, or the bracket or the step
+    below 1e-10 of sigma).
 
-    The bracket starts at ``[low vol, sigma_E(P)]``: ``A(low vol) = a_lo < P`` and
-    ``A >= E`` makes the European implied vol of ``P`` an upper bound."""
+    Notes
+    -----
+    Premium step from the European implied vol, :math:`\sigma_1 = \sigma_E(P - [A(\sigma_0)
+    - E(\sigma_0)])`, then secant steps kept inside a bracket: on
+    :math:`g(\sigma) = \sigma_E(A(\sigma)) - \sigma_E(P)` for the first G_STEPS steps
+    (nearly linear where :math:`A` bends, deep in the money), then on ``f``; false
+    position with the Illinois modification where a secant step leaves the bracket
+    or does not halve ``|g|`` (``|f|``); bisection once ``max_iter`` steps are spent,
+    for at most BISECTIONS more. The bracket starts at ``[lo_vol, sigma_E(P)]``
+    (``A >= E`` makes the European implied vol of ``P`` an upper bound)."""
     from optbench.pricing import implied as iv
 
-    F = S * np.exp((r - q) * t)
-    D = np.exp(-r * t)
-    lo_vol = _low_vol(r, q, t, steps)
-    v0, _ = iv.black_implied_vol_with_status(P, F, K, t, D, c)
-    top = np.where(np.isfinite(v0), np.maximum(v0, lo_vol), 5.0)
-    table, group = (None, None)
-    if method == "boundary":
-        table, group = _inversion_table(S, K, t, r, q, c, lo_vol,
-                                        np.where(np.isfinite(v0), top, np.nan))
-    H = None
-
-    def f(idx, sig):
-        nonlocal H
-        val, Hn = _price(S[idx], K[idx], t[idx], r[idx], q[idx], sig, c[idx], steps, method,
-                         None if H is None else H[idx], table,
-                         None if group is None else group[idx])
-        if H is None:
-            H = np.full((P.shape[0], Hn.shape[1]), np.nan)
-        H[idx] = Hn
-        return val - P[idx]
-
-    tol = 1e-13 * np.maximum(S, K)
     a, fa = lo_vol.copy(), a_lo - P
-    b, fb = top.copy(), np.full(P.shape, np.inf)      # f(b) >= 0, value unknown
+    b, fb = np.where(np.isfinite(v0), np.maximum(v0, lo_vol), 5.0), np.full(P.shape, np.inf)      # f(b) >= 0, value unknown
     every = np.arange(P.shape[0])
     x0 = np.clip(np.where(np.isfinite(v0), v0, 0.25), lo_vol, 4.0)
     f0 = f(every, x0)
@@ -667,6 +656,38 @@ def _solve(P, S, K, t, r, q, c, steps, max_iter, method, a_lo):
         act = act[keep]
         x0, f0, g0, x1 = x1[keep], f1[keep], g1[keep], x_new[keep]
         a, fa, b, fb, side = a[keep], fa[keep], b[keep], fb[keep], side[keep]
+    return sig, done
+
+
+def _solve(P, S, K, t, r, q, c, steps, max_iter, method, a_lo):
+    """:func:`bracketed_solve` on the pricing method's own function (the boundary
+    method with one table in volatility per expiry, :func:`_inversion_table`);
+    bisection from scratch for whatever is left."""
+    from optbench.pricing import implied as iv
+
+    F = S * np.exp((r - q) * t)
+    D = np.exp(-r * t)
+    lo_vol = _low_vol(r, q, t, steps)
+    v0, _ = iv.black_implied_vol_with_status(P, F, K, t, D, c)
+    top = np.where(np.isfinite(v0), np.maximum(v0, lo_vol), 5.0)
+    table, group = (None, None)
+    if method == "boundary":
+        table, group = _inversion_table(S, K, t, r, q, c, lo_vol,
+                                        np.where(np.isfinite(v0), top, np.nan))
+    H = None
+
+    def f(idx, sig):
+        nonlocal H
+        val, Hn = _price(S[idx], K[idx], t[idx], r[idx], q[idx], sig, c[idx], steps, method,
+                         None if H is None else H[idx], table,
+                         None if group is None else group[idx])
+        if H is None:
+            H = np.full((P.shape[0], Hn.shape[1]), np.nan)
+        H[idx] = Hn
+        return val - P[idx]
+
+    sig, done = bracketed_solve(f, P, F, K, t, D, c, lo_vol, a_lo, v0,
+                                1e-13 * np.maximum(S, K), max_iter)
     status = np.where(done, iv.OK, iv.NOT_CONVERGED).astype(np.int8)
     rest = np.flatnonzero(~done)
     if rest.size:
