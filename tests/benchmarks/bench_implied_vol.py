@@ -47,6 +47,7 @@ def main(n: int = 100_000, runs: int = 7, vollib_sample: int = 3_000) -> None:
              flags[i]) for i in idx]
     ref_vol = np.full(vollib_sample, np.nan)
     ours, ref_runs, with_scipy = [], [], []
+    cpu = {"ours": [], "scipy": [], "ref": []}   # CPU seconds: steadier under load
     import scipy.special  # noqa: F401  (optbench hands over to its ufuncs once imported)
 
     from optbench.pricing import special
@@ -55,26 +56,31 @@ def main(n: int = 100_000, runs: int = 7, vollib_sample: int = 3_000) -> None:
         # scipy.special); then the same solve handing over to scipy.special's ufuncs
         special.PREFER_COMPILED = False
         try:
-            t0 = time.perf_counter()
+            t0, c0 = time.perf_counter(), time.process_time()
             vol, status = implied_vol_with_status(price, S, K, t, r, q, call)
             ours.append((time.perf_counter() - t0) / n)
+            cpu["ours"].append((time.process_time() - c0) / n)
         finally:
             special.PREFER_COMPILED = True
-        t0 = time.perf_counter()
+        t0, c0 = time.perf_counter(), time.process_time()
         vol_sc, _ = implied_vol_with_status(price, S, K, t, r, q, call)
         with_scipy.append((time.perf_counter() - t0) / n)
-        t0 = time.perf_counter()
+        cpu["scipy"].append((time.process_time() - c0) / n)
+        t0, c0 = time.perf_counter(), time.process_time()
         for j, a in enumerate(args):
             try:
                 ref_vol[j] = vollib_iv(*a)
             except Exception:
                 ref_vol[j] = np.nan
         ref_runs.append((time.perf_counter() - t0) / vollib_sample)
+        cpu["ref"].append((time.process_time() - c0) / vollib_sample)
     ours_ns = statistics.median(ours) * 1e9
     ref_ns = statistics.median(ref_runs) * 1e9
     scipy_ns = statistics.median(with_scipy) * 1e9
     ratios = sorted(r_ / o_ for r_, o_ in zip(ref_runs, ours))
     ratios_sc = sorted(r_ / o_ for r_, o_ in zip(ref_runs, with_scipy))
+    cpu_ratio = statistics.median(cpu["ref"]) / statistics.median(cpu["ours"])
+    cpu_ratio_sc = statistics.median(cpu["ref"]) / statistics.median(cpu["scipy"])
 
     well = status == 0
     print(f"implied vol of {n:,} options (strikes 0.5-2x forward, 1 day-3 years, "
@@ -89,6 +95,10 @@ def main(n: int = 100_000, runs: int = 7, vollib_sample: int = 3_000) -> None:
           f"per round {ratios[0]:.1f}-{ratios[-1]:.1f} x")
     print(f"  ratio, scipy imported      {ref_ns / scipy_ns:10.1f} x   (target >= 50 x); "
           f"per round {ratios_sc[0]:.1f}-{ratios_sc[-1]:.1f} x")
+    print(f"  CPU-time ratios            {cpu_ratio:10.1f} x numpy special, {cpu_ratio_sc:.1f} x "
+          f"scipy imported (medians of CPU seconds, steadier on a loaded machine)")
+    figure("implied vols vs vollib, CPU time", cpu_ratio, "x", 50, better="higher",
+           reference="vollib implied_volatility, same options; numpy special functions")
     figure("implied vols vs vollib", ref_ns / ours_ns, "x", 50, better="higher",
            reference="vollib implied_volatility, same options; numpy special functions")
     figure("implied vols vs vollib, scipy.special imported", ref_ns / scipy_ns, "x", 50,
