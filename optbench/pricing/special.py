@@ -26,10 +26,10 @@ Jäckel's reference implied-volatility code are built from:
   DLMF 8.17.22 by the modified Lentz method), bracketed by the normal quantile and the
   t's power-law tail bound.
 
-``erfcx``, ``ndtr`` and ``ndtri`` hand over to scipy.special's compiled ufuncs when
-the process has already imported scipy.special (no start-up cost then; see
-:data:`PREFER_COMPILED`); their numpy versions stay callable as ``erfcx_numpy``,
-``ndtr_numpy`` and ``ndtri_numpy``.
+With :data:`PREFER_COMPILED` set (off by default), ``erfcx``, ``ndtr`` and ``ndtri``
+hand over to scipy.special's compiled ufuncs when the process has already imported
+scipy.special; their numpy versions stay callable as ``erfcx_numpy``, ``ndtr_numpy``
+and ``ndtri_numpy``.
 
 tests/pricing/test_special.py checks every numpy function against :mod:`scipy.special`
 on wide grids.
@@ -337,10 +337,11 @@ def ndtri_numpy(p):
     return _finish(out.reshape(p.shape), scalar)
 
 
-#: ``erfcx``, ``ndtr`` and ``ndtri`` use scipy.special's compiled ufuncs when a
-#: process has already imported scipy.special (it then costs no start-up), else the
-#: numpy versions above; False keeps the numpy versions always
-PREFER_COMPILED = True
+#: True: ``erfcx``, ``ndtr`` and ``ndtri`` use scipy.special's compiled ufuncs when
+#: the process has already imported scipy.special (no start-up cost then; a library
+#: user's opt-in). Off by default: the numbers must not depend on what else a process
+#: imported (a screen's rows are the same in this process and in its workers).
+PREFER_COMPILED = False
 
 
 def _compiled(name: str):
@@ -352,21 +353,21 @@ def _compiled(name: str):
 
 
 def erfcx(x):
-    """exp(x^2) erfc(x): scipy.special.erfcx if scipy.special is already imported,
+    """exp(x^2) erfc(x): scipy.special.erfcx if PREFER_COMPILED and scipy.special is imported,
     else :func:`erfcx_numpy` (Cody 1969); the two agree to about 1e-15 relative."""
     f = _compiled("erfcx")
     return erfcx_numpy(x) if f is None else f(x)
 
 
 def ndtr(x):
-    """Phi(x): scipy.special.ndtr if scipy.special is already imported, else
+    """Phi(x): scipy.special.ndtr if PREFER_COMPILED and scipy.special is imported, else
     :func:`ndtr_numpy` (Cody 1969); the two agree to about 1e-15 relative."""
     f = _compiled("ndtr")
     return ndtr_numpy(x) if f is None else f(x)
 
 
 def ndtri(p):
-    """Phi^{-1}(p): scipy.special.ndtri if scipy.special is already imported, else
+    """Phi^{-1}(p): scipy.special.ndtri if PREFER_COMPILED and scipy.special is imported, else
     :func:`ndtri_numpy` (Wichura 1988); the two agree to about 1e-15 relative."""
     f = _compiled("ndtri")
     return ndtri_numpy(p) if f is None else f(p)

@@ -1,6 +1,6 @@
-"""Pricing tests run on optbench's numpy special functions (the path a command-line
-run takes: it never imports scipy.special), although the test process has imported
-scipy.special (the reference library of tests/pricing/test_special.py)."""
+"""Pricing tests run on optbench's numpy special functions (the default, and the path
+a command-line run takes), although the test process has imported scipy.special (the
+reference library of tests/pricing/test_special.py), whatever a test before set."""
 from __future__ import annotations
 
 import pytest

@@ -37,8 +37,8 @@ def _rel(ours, ref):
 
 @pytest.mark.parametrize("name", ["erf", "erfc", "erfcx_numpy", "ndtr_numpy"])
 def test_error_functions_match_scipy(name):
-    # the numpy versions themselves (erfcx and ndtr hand over to scipy.special's
-    # ufuncs once scipy.special is imported, as it is in this test process)
+    # the numpy versions themselves (erfcx and ndtr can hand over to scipy.special's
+    # ufuncs, special.PREFER_COMPILED)
     ours, ref = getattr(special, name), getattr(sc, name.removesuffix("_numpy"))
     # |x| <= 2: within 2e-15 relative of scipy.special (Cody 1969 claims ~1e-16)
     assert _rel(ours(X_CORE), ref(X_CORE)).max() < 2e-15, "scipy.special." + name
@@ -64,9 +64,10 @@ def test_shapes_and_scalars():
     assert special.erfcx_numpy(np.empty(0)).shape == (0,)
 
 
-def test_compiled_functions_used_once_scipy_special_is_imported(monkeypatch):
-    """With scipy.special imported (as here) erfcx, ndtr and ndtri are its ufuncs;
-    with PREFER_COMPILED off, or without scipy.special, the numpy versions."""
+def test_compiled_functions_used_when_preferred_and_imported(monkeypatch):
+    """With PREFER_COMPILED and scipy.special imported (as here) erfcx, ndtr and ndtri
+    are its ufuncs; with PREFER_COMPILED off (the default), or without scipy.special,
+    the numpy versions."""
     monkeypatch.setattr(special, "PREFER_COMPILED", True)
     x = np.linspace(-9.0, 9.0, 101)
     for name in ("erfcx", "ndtr"):
@@ -144,6 +145,17 @@ for mod in (optbench.pricing.special, optbench.pricing.bsm, optbench.pricing.gre
 from optbench.cli import main
 sys.exit(main(sys.argv[1:]))
 """
+
+
+def test_numpy_versions_by_default_even_with_scipy_imported():
+    """A process's numbers must not depend on what else it imported: with scipy.special
+    imported and nothing set, ndtr is the numpy version (bit for bit)."""
+    code = ("import numpy as np, scipy.special as sc; from optbench.pricing import special; "
+            "x = np.linspace(-9, 9, 10001); "
+            "print(special.PREFER_COMPILED, np.array_equal(special.ndtr(x), special.ndtr_numpy(x)))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True, cwd=ROOT)
+    assert out.stdout.split() == ["False", "True"]
 
 
 def _run(args, swap):
