@@ -237,15 +237,15 @@ def erfcx_numpy(x):
     array (the hot path of the implied-vol solver); the near (|x| <= 0.46875), far
     (|x| > 4) and negative elements are picked out by index."""
     x, scalar = _as_array(x)
-    x1 = np.atleast_1d(x)
+    x1 = x.ravel()   # flat: elements are picked by flat index
     y = np.abs(x1)
     far = y > 4.0
     any_far = far.any()
     out = _mid_scaled(np.minimum(y, 4.0) if any_far else y)
     if any_far:
         out[far] = _far_scaled(y[far])
-    neg = x1 < -_THRESH
-    if neg.any():
+    neg = np.flatnonzero(x1 < -_THRESH)
+    if neg.size:
         xneg = x1[neg]
         r = np.trunc(xneg * 16.0) / 16.0
         with np.errstate(over="ignore", invalid="ignore"):
@@ -253,8 +253,8 @@ def erfcx_numpy(x):
             vals = (e2 + e2) - out[neg]
         vals[np.isneginf(xneg)] = np.inf
         out[neg] = vals
-    near = y <= _THRESH
-    if near.any():
+    near = np.flatnonzero(y <= _THRESH)
+    if near.size:
         xn = x1[near]
         centre = 1.0 - _near(xn)
         centre *= np.exp(xn * xn)
@@ -273,31 +273,35 @@ def ndtr_numpy(x):
 
     Written for speed on the implied-vol hot path: Cody's middle interval is
     evaluated on the whole array, exp(-x^2/2) with one exponential
-    (:func:`_exp_minus_square_fast`); the near (|x/sqrt2| <= 0.46875) and far
-    (|x/sqrt2| > 4) arguments are picked out by index."""
+    (:func:`_exp_minus_square_fast`); the near (|x/sqrt2| <= 0.46875), far
+    (|x/sqrt2| > 4) and positive arguments are picked out by index (faster than
+    boolean masks)."""
     x, scalar = _as_array(x)
-    z = np.atleast_1d(x) * _SQRT1_2
-    y = np.abs(z)
+    x1 = x.ravel()   # flat: elements are picked by flat index
+    y = np.abs(x1)
+    y *= _SQRT1_2
     far = y > 4.0
     any_far = far.any()
-    ym = np.minimum(y, 4.0) if any_far else y
-    half = _mid_scaled(ym)
     if any_far:
-        half[far] = _far_scaled(y[far])
+        half = _mid_scaled(np.minimum(y, 4.0))
+        i = np.flatnonzero(far)
+        half[i] = _far_scaled(y[i])
+    else:
+        half = _mid_scaled(y)
     with np.errstate(under="ignore"):
         half *= _exp_minus_square_fast(y)
     if any_far:
         # beyond exp(-709.78) flush to zero, as scipy's ndtr does
         np.copyto(half, 0.0, where=y > _SQRT_MAXLOG)
     half *= 0.5
-    pos = z > 0.0
-    np.subtract(1.0, half, out=half, where=pos)
-    near = y <= _THRESH
-    if near.any():
-        centre = _near(z[near])
+    i = np.flatnonzero(x1 > 0.0)
+    half[i] = 1.0 - half[i]
+    i = np.flatnonzero(y <= _THRESH)
+    if i.size:
+        centre = _near(x1[i] * _SQRT1_2)
         centre *= 0.5
         centre += 0.5
-        half[near] = centre
+        half[i] = centre
     # nan arguments stay nan through every step above
     return _finish(half.reshape(x.shape), scalar)
 
