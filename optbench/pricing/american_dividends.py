@@ -38,10 +38,9 @@ eight dividends, 400 x 400 reference) the median gap is 0.01 % and the largest 0
 (a two-year out-of-the-money put at 15 % vol, the tree's own discretisation: 0.02 %
 with 800 steps; 0.07 % for the whole sample with 400 steps). Implied volatility
 (:func:`american_dividend_implied_vol_with_status`) solves :math:`A(\sigma) = P` by
-the early-exercise-premium step from the escrowed European implied vol, safeguarded
-secant steps and bisection for what is left, as
-:func:`optbench.pricing.american.american_implied_vol_with_status` does without
-dividends; its accuracy is the tree's.
+the early-exercise-premium step from the escrowed European implied vol and bracketed
+secant steps (:func:`optbench.pricing.american.bracketed_solve`), bisection for what
+is left; its accuracy is the tree's.
 """
 from __future__ import annotations
 
@@ -224,13 +223,14 @@ def american_dividend_implied_vol_with_status(price, S, K, t, r, q, is_call, tim
 
     if todo.size:
         lo = _low_vol(r[todo], q[todo], t[todo], steps)
-        flat = price[todo] <= A(todo, lo) + 1e-9 * np.maximum(S[todo], K[todo])
+        a_lo = A(todo, lo)
+        flat = price[todo] <= a_lo + 1e-9 * np.maximum(S[todo], K[todo])
         status[todo[flat]] = iv.BELOW_INTRINSIC
-        todo = todo[~flat]
+        todo, a_lo = todo[~flat], a_lo[~flat]
     if todo.size:
         vol[todo], status[todo] = _solve(A, todo, price[todo], S[todo], K[todo], t[todo],
                                          r[todo], q[todo], is_call[todo], times, amounts,
-                                         steps, max_iter)
+                                         steps, max_iter, a_lo)
     if len(shape) == 0:
         return float(vol[0]), int(status[0])
     return vol.reshape(shape), status.reshape(shape)
@@ -244,43 +244,19 @@ def american_dividend_implied_vol(price, S, K, t, r, q, is_call, times, amounts,
                                                      amounts, steps)[0]
 
 
-def _solve(A, idx, P, S, K, t, r, q, c, times, amounts, steps, max_iter):
-    """Premium step from the escrowed European implied vol, safeguarded secant steps
-    on A(sigma) - P, bisection for the rest (A rises with sigma)."""
+def _solve(A, idx, P, S, K, t, r, q, c, times, amounts, steps, max_iter, a_lo):
+    """:func:`optbench.pricing.american.bracketed_solve` on the tree (premium step
+    from the escrowed European implied vol, bracketed secant steps); bisection for
+    the rest (A rises with sigma)."""
     from optbench.pricing import implied as iv
+    from optbench.pricing.american import bracketed_solve
 
     F = escrowed_forward(S, t, r, q, times, amounts)
     D = np.exp(-r * t)
     lo_vol = _low_vol(r, q, t, steps)
     v0, _ = iv.black_implied_vol_with_status(P, F, K, t, D, c)
-    s0 = np.clip(np.where(np.isfinite(v0), v0, 0.25), lo_vol, 4.0)
-    a0 = A(idx, s0)
-    f0 = a0 - P
-    v1, _ = iv.black_implied_vol_with_status(P - (a0 - black_price(F, K, t, D, s0, c)),
-                                             F, K, t, D, c)
-    s1 = np.clip(np.where(np.isfinite(v1), v1, np.where(f0 > 0, 0.8 * s0, 1.25 * s0)),
-                 lo_vol, 5.0)
-    tol = 1e-13 * np.maximum(S, K)
-    done = np.abs(f0) <= tol
-    s1 = np.where(done, s0, s1)
-    sig = s1.copy()
-    act = np.flatnonzero(~done)
-    for _ in range(max_iter):
-        if act.size == 0:
-            break
-        f1 = A(idx[act], s1[act]) - P[act]
-        conv = (np.abs(f1) <= tol[act]) | (np.abs(s1[act] - s0[act]) <= 1e-9 * s1[act])
-        with np.errstate(divide="ignore", invalid="ignore"):
-            slope = (f1 - f0[act]) / (s1[act] - s0[act])
-            step = -f1 / slope
-        s_new = np.where(np.isfinite(step) & (slope > 0), s1[act] + step,
-                         np.where(f1 > 0, 0.8 * s1[act], 1.25 * s1[act]))
-        s_new = np.clip(s_new, np.maximum(0.5 * s1[act], lo_vol[act]), 2.0 * s1[act])
-        sig[act] = s1[act]
-        done[act[conv]] = True
-        s0[act], f0[act] = s1[act], f1
-        s1[act] = np.where(conv, s1[act], s_new)
-        act = act[~conv]
+    sig, done = bracketed_solve(lambda j, sigma: A(idx[j], sigma) - P[j], P, F, K, t, D, c,
+                                lo_vol, a_lo, v0, 1e-13 * np.maximum(S, K), max_iter)
     status = np.where(done, iv.OK, iv.NOT_CONVERGED).astype(np.int8)
     rest = np.flatnonzero(~done)
     if rest.size:

@@ -218,3 +218,60 @@ def test_tree_method_stays_available():
     # Hull's binomial-tree chapter example again, by the tree (method="tree")
     assert float(american_price(50, 50, 5 / 12, 0.10, 0.0, 0.40, False, steps=400,
                                 method="tree")) == pytest.approx(4.28, abs=0.006)
+
+
+def _desk_chain(S=100.0, n_strikes=60):
+    """Invented chain: 8 expiries, strikes 50-150 % of spot, calls and puts, a smile."""
+    days = np.array([7, 14, 30, 60, 91, 182, 365, 730])
+    D, K, C = (a.ravel() for a in np.meshgrid(days, np.linspace(0.5 * S, 1.5 * S, n_strikes),
+                                              [True, False], indexing="ij"))
+    t = D / 365.0
+    k = np.log(K / S)
+    return D, K, t, 0.22 - 0.15 * k + 0.25 * k * k + 0.05 / np.sqrt(12.0 * t), C
+
+
+@pytest.mark.parametrize("r,q", [(0.045, 0.02), (0.02, 0.06), (0.08, 0.0)])
+def test_strikes_sharing_a_boundary_table_price_as_alone(r, q, monkeypatch):
+    """Strikes of one expiry take their boundaries from one table in volatility; the
+    prices agree with each quote priced alone (its own boundary, solved to
+    convergence) to 1e-7 relative (optbench's own reference: the same equations)."""
+    from optbench.pricing import american as am
+    _, K, t, v, c = _desk_chain()
+    shared = american_price(100.0, K, t, r, q, v, c)
+    monkeypatch.setattr(am, "BOUNDARY_ROUNDS", 200)
+    alone = np.empty_like(shared)
+    for i in range(K.size):   # one quote per call: nothing shared
+        alone[i] = am.american_price(100.0, K[i], t[i], r, q, v[i], c[i])
+    big = alone > 1e-3
+    assert np.max(np.abs(shared[big] / alone[big] - 1)) < 1e-7
+    # the table is only for expiries with many volatilities
+    assert am.TABLE_MIN_VOLS > 1
+
+
+@pytest.mark.slow
+def test_desk_chain_within_1e4_of_quantlib_high_precision():
+    """A sample of a desk chain (shared boundaries): within 1e-4 relative of QuantLib's
+    QdFpAmericanEngine, high-precision scheme, where the price is >= 1e-3 of spot."""
+    days, K, t, v, c = _desk_chain()
+    mine = american_price(100.0, K, t, 0.045, 0.02, v, c)
+    idx = np.random.default_rng(11).choice(K.size, 60, replace=False)
+    ref = np.array([_quantlib_qdfp(100.0, float(K[i]), int(days[i]), 0.045, 0.02,
+                                   float(v[i]), bool(c[i])) for i in idx])
+    big = ref >= 0.1
+    assert big.sum() > 30
+    assert np.max(np.abs(mine[idx][big] / ref[big] - 1)) <= 1e-4
+
+
+@pytest.mark.parametrize("r,q", [(0.045, 0.02), (0.02, 0.06)])
+def test_desk_chain_implied_vol_round_trip(r, q):
+    """Prices of a whole chain invert to the vols that made them (1e-6 where the price
+    moves with the volatility: falls by 1e-4 for 1 % less), and every quote carries a
+    status (deep in the money the price names no volatility)."""
+    _, K, t, v, c = _desk_chain()
+    p = american_price(100.0, K, t, r, q, v, c)
+    vol, status = american_implied_vol_with_status(p, 100.0, K, t, r, q, c)
+    posed = p - american_price(100.0, K, t, r, q, 0.99 * v, c) > 1e-4
+    assert np.all(status[posed] == OK)
+    assert np.max(np.abs(vol[posed] - v[posed])) < 1e-6
+    assert set(np.unique(status)) <= {OK, BELOW_INTRINSIC}
+    assert np.all(np.isnan(vol[status != OK]))

@@ -38,6 +38,21 @@ def test_grid_accuracy_out_of_the_money():
     assert np.max(np.abs(vol[live] - V[live])) <= 1e-12
 
 
+def test_grid_accuracy_with_scipy_special_ufuncs(monkeypatch):
+    # the same grid with scipy.special's compiled ndtr/erfcx/ndtri (used once a
+    # process has imported scipy.special): vols exact to 1e-12 as well
+    from optbench.pricing import special
+    monkeypatch.setattr(special, "PREFER_COMPILED", True)
+    import scipy.special  # noqa: F401  (the reference library, imported here)
+    F, K, T, V = _grid()
+    call = K >= F
+    p = black_price(F, K, T, 0.97, V, call)
+    vol, status = black_implied_vol_with_status(p, F, K, T, 0.97, call)
+    live = p > 0
+    assert np.all(status[live] == OK)
+    assert np.max(np.abs(vol[live] - V[live])) <= 1e-12
+
+
 def test_grid_accuracy_in_the_money_where_well_posed():
     # in the money the time value is price - intrinsic; it is well posed where the
     # rounding of the price (eps * price) moves the vol by less than 1e-13

@@ -35,9 +35,11 @@ def _rel(ours, ref):
     return np.abs(ours[ok] - ref[ok]) / np.abs(ref[ok])
 
 
-@pytest.mark.parametrize("name", ["erf", "erfc", "erfcx", "ndtr"])
+@pytest.mark.parametrize("name", ["erf", "erfc", "erfcx_numpy", "ndtr_numpy"])
 def test_error_functions_match_scipy(name):
-    ours, ref = getattr(special, name), getattr(sc, name)
+    # the numpy versions themselves (erfcx and ndtr can hand over to scipy.special's
+    # ufuncs, special.PREFER_COMPILED)
+    ours, ref = getattr(special, name), getattr(sc, name.removesuffix("_numpy"))
     # |x| <= 2: within 2e-15 relative of scipy.special (Cody 1969 claims ~1e-16)
     assert _rel(ours(X_CORE), ref(X_CORE)).max() < 2e-15, "scipy.special." + name
     # wider: the two differ by the rounding of x^2 inside exp(-x^2), ~ eps x^2
@@ -55,23 +57,42 @@ def test_error_functions_match_scipy(name):
 
 def test_shapes_and_scalars():
     a = np.linspace(-3, 3, 12).reshape(3, 4)
-    assert special.ndtr(a).shape == (3, 4)
-    assert isinstance(special.ndtr(0.3), np.floating)
-    assert special.ndtr(0.3) == pytest.approx(sc.ndtr(0.3), rel=1e-15)
-    assert special.ndtri(np.empty(0)).shape == (0,)
+    assert special.ndtr_numpy(a).shape == (3, 4)
+    assert isinstance(special.ndtr_numpy(0.3), np.floating)
+    assert special.ndtr_numpy(0.3) == pytest.approx(sc.ndtr(0.3), rel=1e-15)
+    assert special.ndtri_numpy(np.empty(0)).shape == (0,)
+    assert special.erfcx_numpy(np.empty(0)).shape == (0,)
+
+
+def test_compiled_functions_used_when_preferred_and_imported(monkeypatch):
+    """With PREFER_COMPILED and scipy.special imported (as here) erfcx, ndtr and ndtri
+    are its ufuncs; with PREFER_COMPILED off (the default), or without scipy.special,
+    the numpy versions."""
+    monkeypatch.setattr(special, "PREFER_COMPILED", True)
+    x = np.linspace(-9.0, 9.0, 101)
+    for name in ("erfcx", "ndtr"):
+        assert np.array_equal(getattr(special, name)(x), getattr(sc, name)(x)), name
+    p = np.linspace(0.0, 1.0, 101)
+    assert np.array_equal(special.ndtri(p), sc.ndtri(p))
+    monkeypatch.setattr(special, "PREFER_COMPILED", False)
+    assert np.array_equal(special.ndtr(x), special.ndtr_numpy(x))
+    assert np.array_equal(special.ndtri(p), special.ndtri_numpy(p))
+    monkeypatch.setattr(special, "PREFER_COMPILED", True)
+    monkeypatch.delitem(sys.modules, "scipy.special")
+    assert np.array_equal(special.erfcx(x), special.erfcx_numpy(x))
 
 
 def test_normal_quantile_matches_scipy():
     p = np.concatenate([np.linspace(0.0, 1.0, 200_001), np.geomspace(1e-300, 0.5, 20_001),
                         1.0 - np.geomspace(1e-16, 0.5, 2_001)])
-    ours, ref = special.ndtri(p), sc.ndtri(p)
+    ours, ref = special.ndtri_numpy(p), sc.ndtri(p)
     # Wichura (1988) AS 241 PPND16: about 1e-16 relative
     assert _rel(ours, ref).max() < 2e-15, "scipy.special.ndtri"
-    assert special.ndtri(0.0) == -np.inf and special.ndtri(1.0) == np.inf
-    assert np.isnan(special.ndtri(np.array([-0.1, 1.1, np.nan]))).all()
+    assert special.ndtri_numpy(0.0) == -np.inf and special.ndtri_numpy(1.0) == np.inf
+    assert np.isnan(special.ndtri_numpy(np.array([-0.1, 1.1, np.nan]))).all()
     # round trip through optbench's own ndtr (lower half: above 0, Phi rounds to 1)
     q = np.linspace(-30, 0, 1001)
-    assert np.allclose(special.ndtri(special.ndtr(q)), q, rtol=1e-12, atol=1e-12)
+    assert np.allclose(special.ndtri_numpy(special.ndtr_numpy(q)), q, rtol=1e-12, atol=1e-12)
 
 
 def test_gamma_functions_match_scipy():
@@ -124,6 +145,17 @@ for mod in (optbench.pricing.special, optbench.pricing.bsm, optbench.pricing.gre
 from optbench.cli import main
 sys.exit(main(sys.argv[1:]))
 """
+
+
+def test_numpy_versions_by_default_even_with_scipy_imported():
+    """A process's numbers must not depend on what else it imported: with scipy.special
+    imported and nothing set, ndtr is the numpy version (bit for bit)."""
+    code = ("import numpy as np, scipy.special as sc; from optbench.pricing import special; "
+            "x = np.linspace(-9, 9, 10001); "
+            "print(special.PREFER_COMPILED, np.array_equal(special.ndtr(x), special.ndtr_numpy(x)))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True, cwd=ROOT)
+    assert out.stdout.split() == ["False", "True"]
 
 
 def _run(args, swap):
