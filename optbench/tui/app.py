@@ -2,9 +2,12 @@
 
 The app owns the inputs (files, model, market overrides) and runs the core in
 textual thread workers: loading the chain, then the comparison (fit, forecast,
-simulated bands, out-of-sample check), then the headline hedge. A change of inputs
-starts a new run; the previous one is cancelled (exclusive workers) and its late
-results are dropped. Views only format the result objects they are given.
+simulated bands), then the headline hedge — the overview's numbers, after which the
+status says "ready" — then the out-of-sample check. A change of inputs starts a new
+run; the previous one is cancelled (exclusive workers) and its late results are
+dropped. Views only format the result objects they are given; the views other than
+the overview are built and mounted once the overview is ready (or when opened), so
+the first screen does not wait for them.
 """
 from __future__ import annotations
 
@@ -22,7 +25,6 @@ from optbench.errors import InputError
 from optbench.tui import prefs, session
 from optbench.tui.dialogs.requests import ExportRequest, OpenRequest, Settings
 from optbench.tui.screens.workbench import VIEWS, WorkbenchScreen
-from optbench.tui.views.hedge import HedgeView
 
 #: what the settings dialog hands back for "back to defaults"
 RESET = "reset"
@@ -158,6 +160,8 @@ class Workbench(App):
         #: the current run has ended: comparison shown and its model check done (or failed)
         self.checked = False
         self.headline_ready = False
+        #: the overview's numbers of the current run are on screen (status "ready")
+        self.ready = False
 
     # ----------------------------------------------------------------- set-up
     def get_default_screen(self) -> WorkbenchScreen:
@@ -173,13 +177,14 @@ class Workbench(App):
 
     def view(self, view_id: str):
         """The view widget (it may still be waiting to mount; it draws when it does)."""
-        return self.screen_stack[0].views[view_id]
+        return self.screen_stack[0].view(view_id)
 
     # ------------------------------------------------------------------ work
     def start_compute(self) -> None:
         self._token += 1
         self.error = None
         self.checked = False
+        self.ready = False
         bar = self.screen_stack[0].query_one("#progress", ProgressBar)
         bar.update(total=STEPS, progress=0)
         self._status(f"opening {self.inputs.label} …")
@@ -247,8 +252,9 @@ class Workbench(App):
         if msg.token != self._token:
             return
         self.chain = msg.chain
-        self.view("quality").show(session.quality_dict(msg.chain.quality), msg.chain.rejected,
-                                  str(msg.chain.source))
+        if "quality" in self.screen_stack[0].views:   # else it shows the comparison's
+            self.view("quality").show(session.quality_dict(msg.chain.quality),
+                                      msg.chain.rejected, str(msg.chain.source))
 
     @on(Computed)
     def _computed(self, msg: Computed) -> None:
@@ -260,20 +266,31 @@ class Workbench(App):
         self.sub_title = f"{c.underlying} · {c.asof.isoformat()} · spot {c.spot:,.2f}"
         self.last_compute_seconds = msg.seconds
         self.checked = False
-        self._status(f"checking the model out of sample … · {self._facts(c)}")
+        self.ready = False
+        self._status(f"pricing the headline protection … · {self._facts(c)}")
         self.headline_ready = False
-        self.view("overview").show(c, None, True)
+        self.view("overview").show(c, None, True, True)
+
+    def _show_views(self, c) -> None:
+        """Give the comparison to the views other than the overview, and mount them
+        after the next refresh (the overview's numbers are painted first)."""
         for vid in ("term", "smile", "richcheap", "model", "hedge"):
             self.view(vid).show(c)
         self.view("quality").show(c.quality, c.rejected, c.source)
+        self.call_after_refresh(self.screen_stack[0].mount_views)
 
     @on(Headline)
     def _headline(self, msg: Headline) -> None:
         if msg.token != self._token:
             return
         self.headline, self.headline_ready = msg.estimate, True
+        self.ready = True
+        c = self.comparison
         self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=STEPS - 1)
-        self.view("overview").show(self.comparison, msg.estimate)
+        self._status(f"{_ready_text(c)} · checking the model out of sample … · "
+                     f"{self._facts(c)}")
+        self.view("overview").show(c, msg.estimate, False, True)
+        self._show_views(c)
 
     @on(Checked)
     def _checked(self, msg: Checked) -> None:
@@ -286,8 +303,7 @@ class Workbench(App):
         self.view("overview").show(c, self.headline, not self.headline_ready)
         self.view("model").show(c)
 
-    @on(HedgeView.Ready)
-    def _planned(self, msg: HedgeView.Ready) -> None:
+    def on_hedge_view_ready(self, msg) -> None:
         """The planner priced new inputs: the headline follows them, and they are saved."""
         # the same run (the model check replaces the comparison but keeps its fit)
         if self.comparison is None or msg.comparison is None or \
@@ -298,7 +314,7 @@ class Workbench(App):
             self.planner = state
             self.save_settings()
         self.headline, self.headline_ready = msg.estimate, True
-        self.view("overview").show(self.comparison, msg.estimate)
+        self.view("overview").show(self.comparison, msg.estimate, False, not self.checked)
 
     def save_settings(self) -> None:
         """Write the planner's inputs and the model choice to the user's settings file."""
@@ -331,6 +347,11 @@ class Workbench(App):
             what = "Headline hedge" if msg.stage == "headline" else "Out-of-sample check"
             self.notify(msg.error, title=f"{what} failed", severity="warning")
             self._status(f"{what.lower()} failed: {msg.error}")
+            if msg.stage == "headline":
+                self._show_views(self.comparison)
+            else:
+                self.view("overview").show(self.comparison, self.headline,
+                                           not self.headline_ready)
             return
         self.error = msg.error
         self._status(f"✗ {msg.error}")

@@ -142,8 +142,9 @@ def dense_chain(folder: Path, step: float = 1.0) -> int:
     return len(chain)
 
 
-#: an overview row: expiry date, tenor, then the ATM implied vol as a number
-_OVERVIEW_ROW = re.compile(r"\d{4}-\d{2}-\d{2}\s+│\s+\d+[dmy]\s+│\s+\d+\.\d")
+#: an overview row: expiry date, calendar days, then the ATM implied vol and the
+#: forecast as numbers (the verdict table has no vertical rules)
+_OVERVIEW_ROW = re.compile(r"\d{4}-\d{2}-\d{2}\s+\d+\s+\d+\.\d\s+\d+\.\d")
 
 
 def terminal_ready_seconds(timeout: float = 60.0) -> tuple[float, float]:
