@@ -11,7 +11,6 @@ the first screen does not wait for them.
 """
 from __future__ import annotations
 
-import time
 from pathlib import Path
 
 from textual import on, work
@@ -34,9 +33,7 @@ _VIEW_TABLE = {"overview": "report", "term": "expiries", "smile": "strikes",
                "richcheap": "expiries", "hedge": "hedge", "model": "report",
                "quality": "rejected"}
 
-#: progress steps: loading, the comparison's own steps (forwards and vols, fit,
-#: simulation, smiles, out-of-sample check, ...), the headline hedge
-STEPS = 8
+STEPS = session.STEPS
 VIEW_KEYS = Binding.Group(description="views", compact=True)
 EXPIRY_KEYS = Binding.Group(description="expiry", compact=True)
 
@@ -94,14 +91,13 @@ class Failed(Message):
         self.token, self.error, self.stage = token, error, stage
 
 
-class _Cancelled(Exception):
-    """Raised inside the core's progress callback to stop a stale run early."""
+#: the message for each kind of event of a run (:func:`optbench.tui.session.run_steps`)
+_MESSAGES = {"progress": Progress, "loaded": Loaded, "headline": Headline, "checked": Checked,
+             "computed": lambda token, comparison, seconds: Computed(token, comparison, None,
+                                                                     seconds),
+             "failed": lambda token, stage, error: Failed(token, error, stage)}
 
-
-def _describe(err: BaseException) -> str:
-    if isinstance(err, InputError):
-        return str(err)
-    return f"{type(err).__name__}: {err}"
+_describe = session.describe
 
 
 class Workbench(App):
@@ -137,9 +133,12 @@ class Workbench(App):
 
     def __init__(self, inputs: session.Inputs, universe: Path | None = None,
                  workers: int | None = None, scheduler: str | None = None,
-                 planner: prefs.PlannerState | None = None, notice: str | None = None) -> None:
+                 planner: prefs.PlannerState | None = None, notice: str | None = None,
+                 first_run=None) -> None:
         super().__init__()
         self.inputs = inputs
+        #: the first run, started before the app (``optbench open``), or None
+        self.first_run = first_run
         #: the hedge planner's inputs (saved; the overview's headline follows them)
         self.planner = planner or prefs.PlannerState()
         #: a one-line notice for the user at start (e.g. a settings file that was bad)
@@ -193,41 +192,23 @@ class Workbench(App):
     @work(thread=True, exclusive=True, group="compute", exit_on_error=False)
     def compute(self, inputs: session.Inputs, token: int,
                 planner: prefs.PlannerState | None = None) -> None:
+        """One run (:func:`optbench.tui.session.run_steps`), each step's result posted
+        as a message; the first run relays the one ``optbench open`` started before
+        the screen was built (:mod:`optbench.tui.firstrun`) when it has the same
+        inputs."""
         worker = get_current_worker()
-        started = time.perf_counter()
-        stage = "open"
-        try:
-            self.post_message(Progress(token, 0, "loading and validating the chain"))
-            scenario = session.load(inputs)
-            if worker.is_cancelled:
-                return
-            self.post_message(Loaded(token, scenario.chain))
-            step = [1]
+        first, self.first_run = self.first_run, None
 
-            def progress(text: str) -> None:
-                if worker.is_cancelled:
-                    raise _Cancelled()
-                step[0] += 1
-                self.post_message(Progress(token, min(step[0], STEPS - 3), text))
+        def emit(event: tuple) -> None:
+            kind, *rest = event
+            self.post_message(_MESSAGES[kind](token, *rest))
 
-            comparison = session.run_compare(inputs, scenario, progress)
-            if worker.is_cancelled:
-                return
-            self.post_message(Computed(token, comparison, None, time.perf_counter() - started))
-            stage = "headline"
-            headline = session.headline_hedge(comparison, inputs.settings, planner)
-            if worker.is_cancelled:
-                return
-            self.post_message(Headline(token, headline))
-            stage = "check"
-            checked = session.run_backtest(scenario, comparison)
-            if not worker.is_cancelled:
-                self.post_message(Checked(token, checked))
-        except _Cancelled:
+        if first is not None and first.inputs == inputs and first.planner == planner:
+            first.relay(emit, lambda: worker.is_cancelled)
             return
-        except Exception as err:  # shown to the user; the app keeps running
-            if not worker.is_cancelled:
-                self.post_message(Failed(token, _describe(err), stage))
+        if first is not None:
+            first.cancel()
+        session.run_steps(inputs, planner, emit, lambda: worker.is_cancelled)
 
     @staticmethod
     def _facts(c) -> str:
@@ -272,12 +253,17 @@ class Workbench(App):
         self.view("overview").show(c, None, True, True)
 
     def _show_views(self, c) -> None:
-        """Give the comparison to the views other than the overview, and mount them
-        after the next refresh (the overview's numbers are painted first)."""
-        for vid in ("term", "smile", "richcheap", "model", "hedge"):
-            self.view(vid).show(c)
-        self.view("quality").show(c.quality, c.rejected, c.source)
-        self.call_after_refresh(self.screen_stack[0].mount_views)
+        """After the next refresh (the overview's numbers are painted first): give the
+        comparison to the views other than the overview, and mount them."""
+        def show() -> None:
+            if self.comparison is None or c.fit is not self.comparison.fit:
+                return   # a newer run has replaced it (the check keeps the fit)
+            c_now = self.comparison   # with its check, if that has come meanwhile
+            for vid in ("term", "smile", "richcheap", "model", "hedge"):
+                self.view(vid).show(c_now)
+            self.view("quality").show(c_now.quality, c_now.rejected, c_now.source)
+            self.screen_stack[0].mount_views()
+        self.call_after_refresh(show)
 
     @on(Headline)
     def _headline(self, msg: Headline) -> None:
@@ -540,7 +526,7 @@ def make_app(scenario_path: str | Path | None = None, history: str | Path | None
              hedge_paths: int | None = None, seed: int | None = 7,
              universe: str | Path | None = None, workers: int | None = None,
              style: str | None = None, multiplier: float | None = None,
-             scheduler: str | None = None) -> Workbench:
+             scheduler: str | None = None, first_run=None) -> Workbench:
     """The workbench on a chain file or scenario folder (default: the bundled demo).
 
     Parameters
@@ -559,15 +545,13 @@ def make_app(scenario_path: str | Path | None = None, history: str | Path | None
         (default: the chain file's columns, else meta.toml, else european and 100).
     scheduler : address of a running Dask scheduler for the universe screen (in place
         of local processes).
+    first_run : the first run already started on these inputs
+        (:func:`optbench.tui.firstrun.start`); the app shows its results instead of
+        computing them again (a run on other inputs is cancelled).
     """
-    chain = Path(scenario_path) if scenario_path is not None else session.demo_scenario()
-    source = OpenRequest(chain=chain, history=Path(history) if history is not None else None)
-    saved = prefs.load()
-    m = prefs.with_model(saved, model, dist, mean)
-    settings = Settings(model=m.model, dist=m.dist, mean=m.mean, spot=spot, asof=asof, rate=rate,
-                        div_yield=div_yield, max_spread=max_spread,
-                        hedge_paths=int(hedge_paths or session.N_PATHS), seed=seed,
-                        style=style, multiplier=multiplier)
-    return Workbench(session.Inputs(source=source, settings=settings), universe=universe,
-                     workers=workers, scheduler=scheduler, planner=saved.planner,
-                     notice=saved.notice)
+    inputs, saved = session.build_inputs(
+        scenario_path, history, model=model, dist=dist, mean=mean, spot=spot, asof=asof,
+        rate=rate, div_yield=div_yield, max_spread=max_spread, hedge_paths=hedge_paths,
+        seed=seed, style=style, multiplier=multiplier)
+    return Workbench(inputs, universe=universe, workers=workers, scheduler=scheduler,
+                     planner=saved.planner, notice=saved.notice, first_run=first_run)

@@ -135,6 +135,12 @@ class OverviewView(Deferred, VerticalScroll):
         self.query_one("#ov-state", Static).update(state_text(comparison, checking))
         self.query_one("#ov-caution", Static).update(f"⚠ {comparison.caution}")
 
+    def show(self, *args) -> None:
+        """Draw now (the first screen: its numbers are painted with the next frame)."""
+        self._pending = args
+        if self._ready:
+            self.draw(*args)
+
     def show_loading(self, message: str) -> None:
         if self._ready:
             self.query_one("#ov-headline", Static).update(message)
