@@ -256,7 +256,8 @@ class Workbench(App):
         """After the next refresh (the overview's numbers are painted first): give the
         comparison to the views other than the overview, and mount them."""
         def show() -> None:
-            if self.comparison is None or c.fit is not self.comparison.fit:
+            if not self.screen_stack or self.comparison is None or \
+                    c.fit is not self.comparison.fit:
                 return   # a newer run has replaced it (the check keeps the fit)
             c_now = self.comparison   # with its check, if that has come meanwhile
             for vid in ("term", "smile", "richcheap", "model", "hedge"):
@@ -291,8 +292,9 @@ class Workbench(App):
 
     def on_hedge_view_ready(self, msg) -> None:
         """The planner priced new inputs: the headline follows them, and they are saved."""
-        # the same run (the model check replaces the comparison but keeps its fit)
-        if self.comparison is None or msg.comparison is None or \
+        # the same run (the model check replaces the comparison but keeps its fit),
+        # and the app not shutting down (a late estimate finds no screen)
+        if not self.screen_stack or self.comparison is None or msg.comparison is None or \
                 msg.comparison.fit is not self.comparison.fit:
             return
         state = msg.inputs.state(msg.estimate.calendar_days)

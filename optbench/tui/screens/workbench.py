@@ -9,6 +9,7 @@ from textual.screen import Screen
 from textual.widgets import Footer, Header, ProgressBar, Static, TabbedContent, TabPane
 
 from optbench.tui.views.overview import OverviewView
+from optbench.tui.widgets.keybar import KeyBar
 
 #: (tab id, key, title) in the order of the tabs
 VIEWS: tuple[tuple[str, str, str], ...] = (
@@ -71,7 +72,7 @@ class WorkbenchScreen(Screen):
                 with TabPane(f"{key} {title}", id=view_id):
                     if view_id == "overview":
                         yield self.views[view_id]
-        yield Footer()
+        yield KeyBar()
 
     def mount_views(self, *view_ids: str) -> None:
         """Mount these views (default: all) into their tabs, if not mounted yet."""
