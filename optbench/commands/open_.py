@@ -67,12 +67,20 @@ def run(args: argparse.Namespace) -> int:
             raise InputError(flag, f"not available in the workbench yet; use {where}")
     if args.max_spread is not None and args.max_spread <= 0:
         raise InputError("--max-spread", f"must be positive, not {args.max_spread:g}")
-    from optbench.tui.app import make_app
-    app = make_app(chain, history, model=args.model, dist=args.dist, mean=args.mean,
-                   spot=args.spot, asof=args.asof, rate=args.rate, div_yield=args.div_yield,
+    # the first run starts before textual is imported and the screen is built
+    # (optbench.tui.firstrun): the numbers are computed while the screen comes up
+    from optbench.tui import firstrun, session
+    options = dict(model=args.model, dist=args.dist, mean=args.mean, spot=args.spot,
+                   asof=args.asof, rate=args.rate, div_yield=args.div_yield,
                    max_spread=args.max_spread, hedge_paths=args.paths, seed=args.seed,
-                   style=args.style, multiplier=args.multiplier,
-                   universe=universe, workers=args.workers,
-                   scheduler=args.scheduler)
-    app.run()
+                   style=args.style, multiplier=args.multiplier)
+    inputs, saved = session.build_inputs(chain, history, **options)
+    first = firstrun.start(inputs, saved.planner)
+    try:
+        from optbench.tui.app import make_app
+        app = make_app(chain, history, **options, universe=universe, workers=args.workers,
+                       scheduler=args.scheduler, first_run=first)
+        app.run()
+    finally:
+        first.cancel()
     return 0

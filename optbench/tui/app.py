@@ -2,13 +2,15 @@
 
 The app owns the inputs (files, model, market overrides) and runs the core in
 textual thread workers: loading the chain, then the comparison (fit, forecast,
-simulated bands, out-of-sample check), then the headline hedge. A change of inputs
-starts a new run; the previous one is cancelled (exclusive workers) and its late
-results are dropped. Views only format the result objects they are given.
+simulated bands), then the headline hedge — the overview's numbers, after which the
+status says "ready" — then the out-of-sample check. A change of inputs starts a new
+run; the previous one is cancelled (exclusive workers) and its late results are
+dropped. Views only format the result objects they are given; the views other than
+the overview are built and mounted once the overview is ready (or when opened), so
+the first screen does not wait for them.
 """
 from __future__ import annotations
 
-import time
 from pathlib import Path
 
 from textual import on, work
@@ -22,7 +24,6 @@ from optbench.errors import InputError
 from optbench.tui import prefs, session
 from optbench.tui.dialogs.requests import ExportRequest, OpenRequest, Settings
 from optbench.tui.screens.workbench import VIEWS, WorkbenchScreen
-from optbench.tui.views.hedge import HedgeView
 
 #: what the settings dialog hands back for "back to defaults"
 RESET = "reset"
@@ -32,9 +33,7 @@ _VIEW_TABLE = {"overview": "report", "term": "expiries", "smile": "strikes",
                "richcheap": "expiries", "hedge": "hedge", "model": "report",
                "quality": "rejected"}
 
-#: progress steps: loading, the comparison's own steps (forwards and vols, fit,
-#: simulation, smiles, out-of-sample check, ...), the headline hedge
-STEPS = 8
+STEPS = session.STEPS
 VIEW_KEYS = Binding.Group(description="views", compact=True)
 EXPIRY_KEYS = Binding.Group(description="expiry", compact=True)
 
@@ -92,14 +91,13 @@ class Failed(Message):
         self.token, self.error, self.stage = token, error, stage
 
 
-class _Cancelled(Exception):
-    """Raised inside the core's progress callback to stop a stale run early."""
+#: the message for each kind of event of a run (:func:`optbench.tui.session.run_steps`)
+_MESSAGES = {"progress": Progress, "loaded": Loaded, "headline": Headline, "checked": Checked,
+             "computed": lambda token, comparison, seconds: Computed(token, comparison, None,
+                                                                     seconds),
+             "failed": lambda token, stage, error: Failed(token, error, stage)}
 
-
-def _describe(err: BaseException) -> str:
-    if isinstance(err, InputError):
-        return str(err)
-    return f"{type(err).__name__}: {err}"
+_describe = session.describe
 
 
 class Workbench(App):
@@ -135,9 +133,12 @@ class Workbench(App):
 
     def __init__(self, inputs: session.Inputs, universe: Path | None = None,
                  workers: int | None = None, scheduler: str | None = None,
-                 planner: prefs.PlannerState | None = None, notice: str | None = None) -> None:
+                 planner: prefs.PlannerState | None = None, notice: str | None = None,
+                 first_run=None) -> None:
         super().__init__()
         self.inputs = inputs
+        #: the first run, started before the app (``optbench open``), or None
+        self.first_run = first_run
         #: the hedge planner's inputs (saved; the overview's headline follows them)
         self.planner = planner or prefs.PlannerState()
         #: a one-line notice for the user at start (e.g. a settings file that was bad)
@@ -158,6 +159,8 @@ class Workbench(App):
         #: the current run has ended: comparison shown and its model check done (or failed)
         self.checked = False
         self.headline_ready = False
+        #: the overview's numbers of the current run are on screen (status "ready")
+        self.ready = False
 
     # ----------------------------------------------------------------- set-up
     def get_default_screen(self) -> WorkbenchScreen:
@@ -173,13 +176,14 @@ class Workbench(App):
 
     def view(self, view_id: str):
         """The view widget (it may still be waiting to mount; it draws when it does)."""
-        return self.screen_stack[0].views[view_id]
+        return self.screen_stack[0].view(view_id)
 
     # ------------------------------------------------------------------ work
     def start_compute(self) -> None:
         self._token += 1
         self.error = None
         self.checked = False
+        self.ready = False
         bar = self.screen_stack[0].query_one("#progress", ProgressBar)
         bar.update(total=STEPS, progress=0)
         self._status(f"opening {self.inputs.label} …")
@@ -188,41 +192,23 @@ class Workbench(App):
     @work(thread=True, exclusive=True, group="compute", exit_on_error=False)
     def compute(self, inputs: session.Inputs, token: int,
                 planner: prefs.PlannerState | None = None) -> None:
+        """One run (:func:`optbench.tui.session.run_steps`), each step's result posted
+        as a message; the first run relays the one ``optbench open`` started before
+        the screen was built (:mod:`optbench.tui.firstrun`) when it has the same
+        inputs."""
         worker = get_current_worker()
-        started = time.perf_counter()
-        stage = "open"
-        try:
-            self.post_message(Progress(token, 0, "loading and validating the chain"))
-            scenario = session.load(inputs)
-            if worker.is_cancelled:
-                return
-            self.post_message(Loaded(token, scenario.chain))
-            step = [1]
+        first, self.first_run = self.first_run, None
 
-            def progress(text: str) -> None:
-                if worker.is_cancelled:
-                    raise _Cancelled()
-                step[0] += 1
-                self.post_message(Progress(token, min(step[0], STEPS - 3), text))
+        def emit(event: tuple) -> None:
+            kind, *rest = event
+            self.post_message(_MESSAGES[kind](token, *rest))
 
-            comparison = session.run_compare(inputs, scenario, progress)
-            if worker.is_cancelled:
-                return
-            self.post_message(Computed(token, comparison, None, time.perf_counter() - started))
-            stage = "headline"
-            headline = session.headline_hedge(comparison, inputs.settings, planner)
-            if worker.is_cancelled:
-                return
-            self.post_message(Headline(token, headline))
-            stage = "check"
-            checked = session.run_backtest(scenario, comparison)
-            if not worker.is_cancelled:
-                self.post_message(Checked(token, checked))
-        except _Cancelled:
+        if first is not None and first.inputs == inputs and first.planner == planner:
+            first.relay(emit, lambda: worker.is_cancelled)
             return
-        except Exception as err:  # shown to the user; the app keeps running
-            if not worker.is_cancelled:
-                self.post_message(Failed(token, _describe(err), stage))
+        if first is not None:
+            first.cancel()
+        session.run_steps(inputs, planner, emit, lambda: worker.is_cancelled)
 
     @staticmethod
     def _facts(c) -> str:
@@ -247,8 +233,9 @@ class Workbench(App):
         if msg.token != self._token:
             return
         self.chain = msg.chain
-        self.view("quality").show(session.quality_dict(msg.chain.quality), msg.chain.rejected,
-                                  str(msg.chain.source))
+        if "quality" in self.screen_stack[0].views:   # else it shows the comparison's
+            self.view("quality").show(session.quality_dict(msg.chain.quality),
+                                      msg.chain.rejected, str(msg.chain.source))
 
     @on(Computed)
     def _computed(self, msg: Computed) -> None:
@@ -260,20 +247,37 @@ class Workbench(App):
         self.sub_title = f"{c.underlying} · {c.asof.isoformat()} · spot {c.spot:,.2f}"
         self.last_compute_seconds = msg.seconds
         self.checked = False
-        self._status(f"checking the model out of sample … · {self._facts(c)}")
+        self.ready = False
+        self._status(f"pricing the headline protection … · {self._facts(c)}")
         self.headline_ready = False
-        self.view("overview").show(c, None, True)
-        for vid in ("term", "smile", "richcheap", "model", "hedge"):
-            self.view(vid).show(c)
-        self.view("quality").show(c.quality, c.rejected, c.source)
+        self.view("overview").show(c, None, True, True)
+
+    def _show_views(self, c) -> None:
+        """After the next refresh (the overview's numbers are painted first): give the
+        comparison to the views other than the overview, and mount them."""
+        def show() -> None:
+            if not self.screen_stack or self.comparison is None or \
+                    c.fit is not self.comparison.fit:
+                return   # a newer run has replaced it (the check keeps the fit)
+            c_now = self.comparison   # with its check, if that has come meanwhile
+            for vid in ("term", "smile", "richcheap", "model", "hedge"):
+                self.view(vid).show(c_now)
+            self.view("quality").show(c_now.quality, c_now.rejected, c_now.source)
+            self.screen_stack[0].mount_views()
+        self.call_after_refresh(show)
 
     @on(Headline)
     def _headline(self, msg: Headline) -> None:
         if msg.token != self._token:
             return
         self.headline, self.headline_ready = msg.estimate, True
+        self.ready = True
+        c = self.comparison
         self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=STEPS - 1)
-        self.view("overview").show(self.comparison, msg.estimate)
+        self._status(f"{_ready_text(c)} · checking the model out of sample … · "
+                     f"{self._facts(c)}")
+        self.view("overview").show(c, msg.estimate, False, True)
+        self._show_views(c)
 
     @on(Checked)
     def _checked(self, msg: Checked) -> None:
@@ -286,11 +290,11 @@ class Workbench(App):
         self.view("overview").show(c, self.headline, not self.headline_ready)
         self.view("model").show(c)
 
-    @on(HedgeView.Ready)
-    def _planned(self, msg: HedgeView.Ready) -> None:
+    def on_hedge_view_ready(self, msg) -> None:
         """The planner priced new inputs: the headline follows them, and they are saved."""
-        # the same run (the model check replaces the comparison but keeps its fit)
-        if self.comparison is None or msg.comparison is None or \
+        # the same run (the model check replaces the comparison but keeps its fit),
+        # and the app not shutting down (a late estimate finds no screen)
+        if not self.screen_stack or self.comparison is None or msg.comparison is None or \
                 msg.comparison.fit is not self.comparison.fit:
             return
         state = msg.inputs.state(msg.estimate.calendar_days)
@@ -298,7 +302,7 @@ class Workbench(App):
             self.planner = state
             self.save_settings()
         self.headline, self.headline_ready = msg.estimate, True
-        self.view("overview").show(self.comparison, msg.estimate)
+        self.view("overview").show(self.comparison, msg.estimate, False, not self.checked)
 
     def save_settings(self) -> None:
         """Write the planner's inputs and the model choice to the user's settings file."""
@@ -331,6 +335,11 @@ class Workbench(App):
             what = "Headline hedge" if msg.stage == "headline" else "Out-of-sample check"
             self.notify(msg.error, title=f"{what} failed", severity="warning")
             self._status(f"{what.lower()} failed: {msg.error}")
+            if msg.stage == "headline":
+                self._show_views(self.comparison)
+            else:
+                self.view("overview").show(self.comparison, self.headline,
+                                           not self.headline_ready)
             return
         self.error = msg.error
         self._status(f"✗ {msg.error}")
@@ -519,7 +528,7 @@ def make_app(scenario_path: str | Path | None = None, history: str | Path | None
              hedge_paths: int | None = None, seed: int | None = 7,
              universe: str | Path | None = None, workers: int | None = None,
              style: str | None = None, multiplier: float | None = None,
-             scheduler: str | None = None) -> Workbench:
+             scheduler: str | None = None, first_run=None) -> Workbench:
     """The workbench on a chain file or scenario folder (default: the bundled demo).
 
     Parameters
@@ -538,15 +547,13 @@ def make_app(scenario_path: str | Path | None = None, history: str | Path | None
         (default: the chain file's columns, else meta.toml, else european and 100).
     scheduler : address of a running Dask scheduler for the universe screen (in place
         of local processes).
+    first_run : the first run already started on these inputs
+        (:func:`optbench.tui.firstrun.start`); the app shows its results instead of
+        computing them again (a run on other inputs is cancelled).
     """
-    chain = Path(scenario_path) if scenario_path is not None else session.demo_scenario()
-    source = OpenRequest(chain=chain, history=Path(history) if history is not None else None)
-    saved = prefs.load()
-    m = prefs.with_model(saved, model, dist, mean)
-    settings = Settings(model=m.model, dist=m.dist, mean=m.mean, spot=spot, asof=asof, rate=rate,
-                        div_yield=div_yield, max_spread=max_spread,
-                        hedge_paths=int(hedge_paths or session.N_PATHS), seed=seed,
-                        style=style, multiplier=multiplier)
-    return Workbench(session.Inputs(source=source, settings=settings), universe=universe,
-                     workers=workers, scheduler=scheduler, planner=saved.planner,
-                     notice=saved.notice)
+    inputs, saved = session.build_inputs(
+        scenario_path, history, model=model, dist=dist, mean=mean, spot=spot, asof=asof,
+        rate=rate, div_yield=div_yield, max_spread=max_spread, hedge_paths=hedge_paths,
+        seed=seed, style=style, multiplier=multiplier)
+    return Workbench(inputs, universe=universe, workers=workers, scheduler=scheduler,
+                     planner=saved.planner, notice=saved.notice, first_run=first_run)

@@ -120,6 +120,88 @@ def headline_hedge(comparison, settings: Settings | None = None, planner=None):
         return None
 
 
+#: progress steps of one run: loading, the comparison's own steps (forwards and vols,
+#: fit, simulation, smiles, ...), the headline hedge, the out-of-sample check
+STEPS = 8
+
+
+class Cancelled(Exception):
+    """Raised inside the core's progress callback to stop a stale run early."""
+
+
+def describe(err: BaseException) -> str:
+    """An error in one line: a user error as it is, anything else with its type."""
+    if isinstance(err, InputError):
+        return str(err)
+    return f"{type(err).__name__}: {err}"
+
+
+def run_steps(inputs: Inputs, planner, emit, cancelled=lambda: False) -> None:
+    """One run of the workbench, step by step, each result handed to ``emit`` as soon
+    as it exists, in the order the screen needs them (the overview's numbers first):
+
+    ``("progress", step, text)``, ``("loaded", chain)``,
+    ``("computed", comparison, seconds)``, ``("headline", estimate or None)``,
+    ``("checked", comparison with its backtest)``; on an error
+    ``("failed", stage, message)`` (stage ``open``, ``headline`` or ``check``) ends
+    the run. ``cancelled()`` is asked between steps (and inside the comparison's
+    progress callback); a cancelled run stops without a word.
+    """
+    import time
+    started = time.perf_counter()
+    stage = "open"
+    try:
+        emit(("progress", 0, "loading and validating the chain"))
+        scenario = load(inputs)
+        if cancelled():
+            return
+        emit(("loaded", scenario.chain))
+        step = [1]
+
+        def progress(text: str) -> None:
+            if cancelled():
+                raise Cancelled()
+            step[0] += 1
+            emit(("progress", min(step[0], STEPS - 3), text))
+
+        comparison = run_compare(inputs, scenario, progress)
+        if cancelled():
+            return
+        emit(("computed", comparison, time.perf_counter() - started))
+        stage = "headline"
+        headline = headline_hedge(comparison, inputs.settings, planner)
+        if cancelled():
+            return
+        emit(("headline", headline))
+        stage = "check"
+        checked = run_backtest(scenario, comparison)
+        if not cancelled():
+            emit(("checked", checked))
+    except Cancelled:
+        return
+    except Exception as err:  # shown to the user; the app keeps running
+        if not cancelled():
+            emit(("failed", stage, describe(err)))
+
+
+def build_inputs(scenario_path=None, history=None, *, model=None, dist=None, mean=None,
+                 spot=None, asof=None, rate=None, div_yield=None, max_spread=None,
+                 hedge_paths=None, seed=7, style=None, multiplier=None):
+    """The workbench's :class:`Inputs` and the user's saved settings
+    (:class:`optbench.tui.prefs.Saved`) for :func:`optbench.tui.app.make_app`'s
+    arguments (see there); None for ``scenario_path`` is the bundled demo."""
+    from optbench.tui import prefs
+    chain = Path(scenario_path) if scenario_path is not None else demo_scenario()
+    source = OpenRequest(chain=chain, history=Path(history) if history is not None else None)
+    saved = prefs.load()
+    m = prefs.with_model(saved, model, dist, mean)
+    settings = Settings(model=m.model, dist=m.dist, mean=m.mean, spot=spot, asof=asof, rate=rate,
+                        div_yield=div_yield, max_spread=max_spread,
+                        hedge_paths=int(hedge_paths or N_PATHS), seed=seed,
+                        style=style, multiplier=multiplier)
+    return Inputs(source=source, settings=settings), saved
+
+
 def quality_dict(quality) -> dict:
     """The loader's Quality (a frozen dataclass) as the comparison's quality dict."""
     if isinstance(quality, dict):

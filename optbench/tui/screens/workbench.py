@@ -1,19 +1,15 @@
 """The workbench screen: a status line with progress, one tab per view, the footer."""
 from __future__ import annotations
 
+import importlib
+
 from textual.app import ComposeResult
-from textual.lazy import Lazy
 from textual.containers import Horizontal
 from textual.screen import Screen
 from textual.widgets import Footer, Header, ProgressBar, Static, TabbedContent, TabPane
 
-from optbench.tui.views.hedge import HedgeView
-from optbench.tui.views.model import ModelView
 from optbench.tui.views.overview import OverviewView
-from optbench.tui.views.quality import QualityView
-from optbench.tui.views.richcheap import RichCheapView
-from optbench.tui.views.smile import SmileView
-from optbench.tui.views.term import TermView
+from optbench.tui.widgets.keybar import KeyBar
 
 #: (tab id, key, title) in the order of the tabs
 VIEWS: tuple[tuple[str, str, str], ...] = (
@@ -32,22 +28,39 @@ SHORT_TITLES = {"term": "Term", "richcheap": "Rich/cheap", "hedge": "Hedge",
                 "model": "Model", "quality": "Data"}
 NARROW = 100
 
-_VIEW_CLASSES = {"overview": OverviewView, "term": TermView, "smile": SmileView,
-                 "richcheap": RichCheapView, "hedge": HedgeView, "model": ModelView,
-                 "quality": QualityView}
+#: where each view's class lives: the overview is imported with this module (it is the
+#: first screen); the others, and the textual widgets they use (tables, plots, form
+#: fields), only when the view is first needed
+_VIEW_CLASSES = {"term": ("optbench.tui.views.term", "TermView"),
+                 "smile": ("optbench.tui.views.smile", "SmileView"),
+                 "richcheap": ("optbench.tui.views.richcheap", "RichCheapView"),
+                 "hedge": ("optbench.tui.views.hedge", "HedgeView"),
+                 "model": ("optbench.tui.views.model", "ModelView"),
+                 "quality": ("optbench.tui.views.quality", "QualityView")}
 
 
 class WorkbenchScreen(Screen):
-    """Holds the views; the app feeds them results (``views[id].show(...)``).
+    """Holds the views; the app feeds them results (``view(id).show(...)``).
 
-    Only the overview mounts before the first paint; the other views mount right
-    after it (they draw whatever results they were given meanwhile).
+    Only the overview is composed with the screen. The other views are built on
+    first use (:meth:`view`) and mounted into their tabs by :meth:`mount_views` —
+    which the app calls once the overview's numbers are on screen — or when their
+    tab is opened first; a view draws whatever results it was given meanwhile.
     """
 
     def __init__(self) -> None:
         super().__init__()
-        self.views = {view_id: _VIEW_CLASSES[view_id](id=f"view-{view_id}")
-                      for view_id, _, _ in VIEWS}
+        self.views = {"overview": OverviewView(id="view-overview")}
+        self._mounted = {"overview"}
+
+    def view(self, view_id: str):
+        """The view widget, built (not yet mounted) on first use."""
+        found = self.views.get(view_id)
+        if found is None:
+            module, name = _VIEW_CLASSES[view_id]
+            cls = getattr(importlib.import_module(module), name)
+            found = self.views[view_id] = cls(id=f"view-{view_id}")
+        return found
 
     def compose(self) -> ComposeResult:
         yield Header(show_clock=False)
@@ -57,9 +70,21 @@ class WorkbenchScreen(Screen):
         with TabbedContent(id="views", initial="overview"):
             for view_id, key, title in VIEWS:
                 with TabPane(f"{key} {title}", id=view_id):
-                    view = self.views[view_id]
-                    yield view if view_id == "overview" else Lazy(view)
-        yield Footer()
+                    if view_id == "overview":
+                        yield self.views[view_id]
+        yield KeyBar()
+
+    def mount_views(self, *view_ids: str) -> None:
+        """Mount these views (default: all) into their tabs, if not mounted yet."""
+        tabs = self.query_one("#views", TabbedContent)
+        for view_id in view_ids or [v for v, _, _ in VIEWS]:
+            if view_id not in self._mounted:
+                self._mounted.add(view_id)
+                tabs.get_pane(view_id).mount(self.view(view_id))
+
+    def on_tabbed_content_tab_activated(self, event: TabbedContent.TabActivated) -> None:
+        if event.pane.id:
+            self.mount_views(event.pane.id)
 
     def on_mount(self) -> None:
         start = getattr(self.app, "start_compute", None)

@@ -74,7 +74,9 @@ def verdict_table(comparison) -> Table:
     return table
 
 
-def state_text(comparison) -> Text:
+def state_text(comparison, checking: bool = False) -> Text:
+    """Data, model, drift and out-of-sample check in a few lines; ``checking``: the
+    check is still running (the line says so until its numbers come)."""
     q = comparison.quality
     m = comparison.model
     text = Text()
@@ -105,6 +107,9 @@ def state_text(comparison) -> Text:
                     f"of {bt.get('n_out', '?')} days outside ±{bt.get('band_k', 3)}σ, "
                     f"{fmt.num(bt.get('expected_model'), 1)} expected by the model "
                     f"({fmt.num(bt.get('expected_normal'), 1)} if normal). See Model check.")
+    elif checking:
+        text.append("\nCheck ", style="bold")
+        text.append("checking the model out of sample … (see Model check)", style="dim")
     for w in comparison.warnings:
         text.append(f"\n! {w}", style="yellow")
     return text
@@ -119,14 +124,22 @@ class OverviewView(Deferred, VerticalScroll):
         yield Static("", id="ov-state")
         yield Static("", id="ov-caution", classes="caution")
 
-    def draw(self, comparison, estimate, pending: bool = False) -> None:
-        """``pending``: the headline hedge is still being priced."""
+    def draw(self, comparison, estimate, pending: bool = False,
+             checking: bool = False) -> None:
+        """``pending``: the headline hedge is still being priced; ``checking``: the
+        out-of-sample check is still running."""
         self.query_one("#ov-headline", Static).update(
             Text("Pricing the headline protection (the hedge planner's inputs) …")
             if pending else headline_text(comparison, estimate))
         self.query_one("#ov-verdicts", Static).update(verdict_table(comparison))
-        self.query_one("#ov-state", Static).update(state_text(comparison))
+        self.query_one("#ov-state", Static).update(state_text(comparison, checking))
         self.query_one("#ov-caution", Static).update(f"⚠ {comparison.caution}")
+
+    def show(self, *args) -> None:
+        """Draw now (the first screen: its numbers are painted with the next frame)."""
+        self._pending = args
+        if self._ready:
+            self.draw(*args)
 
     def show_loading(self, message: str) -> None:
         if self._ready:
