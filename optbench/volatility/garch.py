@@ -1146,6 +1146,35 @@ def _coordinate_names(prob: _Problem) -> list:
     return names
 
 
+#: the slope below is scaled by this: measured on arch's sp500, nasdaq, wti and vix,
+#: 0.4-0.6 all give the fewest EGARCH evaluations (0.3 and 0.75 one to three more)
+ASYMMETRY_START_SHRINK = 0.5
+
+
+def _asymmetry_start(z: np.ndarray) -> float | None:
+    """A start for EGARCH's asymmetry ``gamma`` from a symmetric model's standardised
+    residuals ``z`` (e.g. GARCH's): half the least-squares slope of ``ln z_t^2`` on
+    ``z_{t-1}``.
+
+    If the log-variance responds to the sign of a shock as EGARCH's
+    ``gamma z_{t-1}`` term says, a symmetric variance path misses that term, and it
+    reappears in the next day's ``ln z_t^2 = ln z*_t^2 + (h_t - h^sym_t)`` (``z*`` the
+    true innovation, independent of the past), so the slope estimates ``gamma``
+    (the log squared residual as a linear, noisy measurement of the log-variance:
+    Harvey, Ruiz & Shephard 1994, *Rev. Econ. Stud.* 61, cited from memory). The slope is shrunk (:data:`ASYMMETRY_START_SHRINK`): it is a start for the
+    climb, not an estimate. A least-squares fit of GARCH's own path gives
+    ``gamma`` near 0 by construction, and the trial steps are capped, so a start far
+    from the data's asymmetry costs several capped steps.
+    """
+    zl = z[:-1] - float(np.mean(z[:-1]))
+    den = float(zl @ zl)
+    if not den > 0:
+        return None
+    u = np.log(np.maximum(z[1:] * z[1:], 1e-8))     # floor: a zero residual
+    g = ASYMMETRY_START_SHRINK * float(zl @ (u - float(np.mean(u)))) / den
+    return g if math.isfinite(g) else None
+
+
 def _egarch_start_from(prob: _Problem, mu: float, s2: np.ndarray, nu) -> np.ndarray | None:
     """An EGARCH start from another model's variance path (scaled units): least
     squares of ``h_t = omega + alpha (|z_{t-1}| - sqrt(2/pi)) + gamma z_{t-1}
@@ -1161,6 +1190,9 @@ def _egarch_start_from(prob: _Problem, mu: float, s2: np.ndarray, nu) -> np.ndar
     omega, alpha, gamma, beta = (float(c) for c in coef)
     if not all(math.isfinite(c) for c in coef):
         return None
+    g_hat = _asymmetry_start(z)       # the path is symmetric: gamma from its residuals
+    if g_hat is not None:
+        gamma = g_hat
     beta = min(max(beta, 0.0), 0.995)
     alpha = min(max(alpha, -0.5), 0.5)
     gamma = min(max(gamma, -0.5), 0.5)

@@ -282,12 +282,23 @@ def affine_filter(a: np.ndarray, b: np.ndarray, x0: np.ndarray | float = 0.0) ->
     if n == 0:
         return B
     B[..., 0] += A[0] * np.asarray(x0, dtype=float)
+    An = np.empty_like(A)
     s = 1
     while s < n:
         B[..., s:] += A[s:] * B[..., :-s]
-        A[s:] *= A[:-s].copy()
+        _next_products(A, An, s)
+        A, An = An, A
         s *= 2
     return B
+
+
+def _next_products(A: np.ndarray, out: np.ndarray, s: int) -> None:
+    """One doubling round of the coefficient products, ``out_t = A_t A_{t-s}`` for
+    ``t >= s`` and ``out_t = A_t`` before, written into a second buffer: the same
+    products as the in-place update ``A[s:] *= A[:-s]`` without the copy of the
+    overlapping operand that the in-place form needs."""
+    out[:s] = A[:s]
+    np.multiply(A[s:], A[:-s], out=out[s:])
 
 
 def affine_filter_loop(a, b, x0=0.0) -> np.ndarray:
@@ -310,8 +321,12 @@ def affine_scan_levels(a: np.ndarray) -> list:
     levels = []
     s = 1
     while s < n:
-        levels.append((s, A[s:].copy()))
-        A[s:] *= A[:-s].copy()
+        # each round's products go to a new array, so the previous one is kept as
+        # the level without a copy
+        levels.append((s, A[s:]))
+        An = np.empty_like(A)
+        _next_products(A, An, s)
+        A = An
         s *= 2
     return levels
 
