@@ -82,15 +82,8 @@ def _tree(Sx, K, t, r, q, sigma, is_call, n, times, amounts):
     ex = np.empty_like(V)
     # calls: the tree date just before each ex-date that falls strictly between two
     # tree dates (a put is never exercised just before an ex-date: waiting for the
-    # drop is worth more)
-    times = np.asarray(times, dtype=float)
-    amounts = np.asarray(amounts, dtype=float)
-    between = {}
-    for jd, tau in enumerate(times):
-        k = np.floor(tau / dt).astype(int)
-        inside = is_call & (tau <= t) & (tau > 0) & (tau - k * dt > 1e-12 * t) & (k <= n - 2)
-        for step in np.unique(k[inside]):
-            between.setdefault(int(step), []).append((jd, np.flatnonzero(inside & (k == step))))
+    # drop is worth more); every such floor is valued in one pass before the loop
+    between = _ex_date_floors(Sx, K, t, r, q, sigma, is_call, n, dt, sq, times, amounts)
     for step in range(n - 2, -1, -1):
         m = step + 1
         nodes = nodes[:, :m]
@@ -102,34 +95,69 @@ def _tree(Sx, K, t, r, q, sigma, is_call, n, times, amounts):
         e -= Kc
         e *= sign
         V = np.maximum(cont, e, out=cont)
-        for jd, rows in between.get(step, ()):
-            V[rows] = np.maximum(V[rows], _exercise_at_ex_date(
-                nodes[rows], K[rows], t[rows], r[rows], q[rows], sigma[rows],
-                is_call[rows], step * dt[rows], jd, times, amounts))
+        for rows, floor in between.get(step, ()):
+            V[rows] = np.maximum(V[rows], floor)
     return V[:, 0]
 
 
-def _exercise_at_ex_date(nodes, K, t, r, q, sigma, is_call, s, jd, times, amounts):
-    """Value at tree date ``s`` of the policy "exercise just before the ex-date
-    ``times[jd]`` if in the money": Black (1976) over h = tau - s on the escrowed part,
-    strike less the dividend and the later dividends' PV at tau (the stock just
+def _ex_date_floors(Sx, K, t, r, q, sigma, is_call, n, dt, sq, times, amounts):
+    """``{step: [(rows, values), ...]}``: at the tree date ``s = step*dt`` just before
+    an ex-date ``tau`` that falls strictly between two tree dates, the value at that
+    date's nodes (``Sx u^(2j - step)``, j = 0..step) of the policy "exercise just
+    before the ex-date if in the money": Black (1976) over h = tau - s on the escrowed
+    part, strike less the dividend and the later dividends' PV at tau (the stock just
     before the ex-date is S*(tau) + D + PV_later(tau)). A lower bound of the
-    continuation that restores the exercise date the tree's grid misses."""
-    tau = times[jd]
-    h = tau - s
-    later = np.zeros(t.shape)
+    continuation that restores the exercise date the tree's grid misses. All
+    (option, ex-date) pairs are valued in one vectorised call, grouped by step."""
+    times = np.asarray(times, dtype=float)
+    amounts = np.asarray(amounts, dtype=float)
+    pair_rows, pair_div, pair_step = [], [], []
+    for jd, tau in enumerate(times):   # a handful of dividends
+        k = np.floor(tau / dt).astype(int)
+        inside = is_call & (tau <= t) & (tau > 0) & (tau - k * dt > 1e-12 * t) & (k <= n - 2)
+        rows = np.flatnonzero(inside)
+        pair_rows.append(rows)
+        pair_div.append(np.full(rows.size, jd))
+        pair_step.append(k[rows])
+    rows = np.concatenate(pair_rows)
+    if rows.size == 0:
+        return {}
+    div = np.concatenate(pair_div)
+    step = np.concatenate(pair_step)
+    order = np.lexsort((div, -step))
+    rows, div, step = rows[order], div[order], step[order]
+    tau = times[div]
+    # the later dividends' PV at tau, for each pair
+    later = np.zeros(rows.size)
     for tau2, amount in zip(times, amounts):
-        if tau2 > tau:
-            later = later + np.where(tau2 <= t, amount * np.exp(-r * (tau2 - tau)), 0.0)
-    k_eff = (K - amounts[jd] - later)[:, None]
-    disc = np.exp(-r * h)[:, None]
-    fwd = nodes * np.exp((r - q) * h)[:, None]
-    sign = np.where(is_call, 1.0, -1.0)[:, None]
-    positive = k_eff > 0
-    safe_k = np.where(positive, k_eff, 1.0)
-    value = black_price(fwd, safe_k, h[:, None], disc, sigma[:, None], is_call[:, None])
+        later += np.where((tau2 > tau) & (tau2 <= t[rows]),
+                          amount * np.exp(-r[rows] * (tau2 - tau)), 0.0)
+    h = tau - step * dt[rows]
+    k_eff = K[rows] - amounts[div] - later
+    # flat layout: pair i holds step_i + 1 nodes
+    width = step + 1
+    pair = np.repeat(np.arange(rows.size), width)
+    start = np.cumsum(width) - width
+    j = np.arange(pair.size) - start[pair]
+    o = rows[pair]
+    nodes = Sx[o] * np.exp(sq[o] * (2 * j - step[pair]))
+    disc = np.exp(-r[o] * h[pair])
+    fwd = nodes * np.exp((r[o] - q[o]) * h[pair])
+    ke = k_eff[pair]
+    positive = ke > 0
+    value = black_price(fwd, np.where(positive, ke, 1.0), h[pair], disc, sigma[o],
+                        is_call[o])
+    sign = np.where(is_call[o], 1.0, -1.0)
     # a non-positive effective strike: the call is a forward, the put worthless
-    return np.where(positive, value, np.maximum(sign * disc * (fwd - k_eff), 0.0))
+    value = np.where(positive, value, np.maximum(sign * disc * (fwd - ke), 0.0))
+    out = {}
+    key = step * times.size + div
+    cuts = np.flatnonzero(np.diff(key)) + 1
+    for lo, hi in zip(np.concatenate(([0], cuts)), np.concatenate((cuts, [rows.size]))):
+        st = int(step[lo])
+        block = value[start[lo]:start[lo] + (hi - lo) * (st + 1)].reshape(hi - lo, st + 1)
+        out.setdefault(st, []).append((rows[lo:hi], block))
+    return out
 
 
 def _prepare(values):
