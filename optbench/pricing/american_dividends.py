@@ -23,7 +23,7 @@ before the ex-date is :math:`S^*(\tau_j) + D_j + PV_{later}(\tau_j)`). As in :mo
 Black-Scholes-Merton value over one step (no dividend remains after expiry) and two
 tree sizes are combined, :math:`2P_N - P_{N/2}` (Broadie & Detemple 1996). The result
 is floored at immediate exercise and at the escrowed European value. The arrays are
-(options x nodes); the Python loop runs over time steps only, and over dividends
+(nodes x options); the Python loop runs over time steps only, and over dividends
 (a handful) when the remaining present values are tabulated.
 
 :math:`\sigma` is the volatility of :math:`S^*` (the escrowed model's caveat: Haug,
@@ -56,52 +56,76 @@ DEFAULT_STEPS = 200
 
 def _remaining_pv(t, r, n, times, amounts):
     """(options, n+1): PV at each step time of the dividends going ex after it and by
-    expiry."""
+    expiry, :math:`e^{r s_k} \sum_j D_j e^{-r\tau_j}` over the live dividends."""
     s = (t / n)[:, None] * np.arange(n + 1)[None, :]
     out = np.zeros(s.shape)
     for tau, amount in zip(times, amounts):   # a handful of dividends
         live = (tau > s) & (tau <= t[:, None])
-        out += np.where(live, amount * np.exp(-r[:, None] * (tau - s)), 0.0)
+        out += live * (amount * np.exp(-r * tau))[:, None]
+    out *= np.exp(r[:, None] * s)
+    return out
+
+
+#: beyond this many standard deviations sigma*sqrt(h) from the strike, the Black
+#: value equals the discounted intrinsic value to double precision (the normal tail
+#: at 20 is below 1e-88)
+_FAR = 20.0
+
+
+def _black_near_strike(F, K, h, D, sigma, is_call):
+    """:func:`black_price` on arrays of one shape, evaluated only where
+    :math:`|\ln(F/K)| \le 20\sigma\sqrt h + \sigma^2 h` and the discounted
+    intrinsic value elsewhere (equal to double precision there). Over one tree step
+    only a few nodes lie that close to the strike."""
+    F, K, h, D, sigma, is_call = np.broadcast_arrays(F, K, h, D, sigma, is_call)
+    sd = sigma * np.sqrt(h)
+    out = D * np.maximum(np.where(is_call, F - K, K - F), 0.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        near = ~(np.abs(np.log(F / K)) > _FAR * sd + sd * sd)
+    if near.any():
+        out[near] = black_price(F[near], K[near], h[near], D[near], sigma[near],
+                                is_call[near])
     return out
 
 
 def _tree(Sx, K, t, r, q, sigma, is_call, n, times, amounts):
-    """Escrowed tree value with n steps for 1-d arrays of live options."""
+    """Escrowed tree value with n steps for 1-d arrays of live options. The arrays
+    are (nodes x options): each step reads and writes contiguous blocks."""
     dt, sq, u, growth, p, disc = lattice(t, r, q, sigma, n)
-    sign = np.where(is_call, 1.0, -1.0)[:, None]
-    Kc = K[:, None]
-    rem = _remaining_pv(t, r, n, times, amounts)
-    j = np.arange(n)
-    nodes = np.ascontiguousarray(Sx[:, None] * np.exp(sq[:, None] * (2 * j - (n - 1))))
-    cont = black_price(nodes * growth[:, None], Kc, dt[:, None], disc[:, None],
-                       sigma[:, None], is_call[:, None])
-    V = np.maximum(cont, sign * (nodes + rem[:, n - 1:n] - Kc))
-    pu = (disc * p)[:, None]
-    pd_ = (disc * (1 - p))[:, None]
-    uc = u[:, None]
+    sign = np.where(is_call, 1.0, -1.0)
+    rem = _remaining_pv(t, r, n, times, amounts).T
+    j = np.arange(n)[:, None]
+    nodes = np.ascontiguousarray(Sx * np.exp(sq * (2 * j - (n - 1))))
+    cont = _black_near_strike(nodes * growth, K, dt, disc, sigma, is_call)
+    V = np.maximum(cont, sign * (nodes + rem[n - 1] - K))
+    pu = disc * p
+    pd_ = disc * (1 - p)
+    # signed node prices and signed (remaining PV - strike): the exercise value at a
+    # step is their sum
+    nodes *= sign
+    shift = sign * (rem - K)
     ex = np.empty_like(V)
+    down = np.empty_like(V)
+    buffers = (np.empty_like(V), np.empty_like(V))
     # calls: the tree date just before each ex-date that falls strictly between two
     # tree dates (a put is never exercised just before an ex-date: waiting for the
     # drop is worth more); every such floor is valued in one pass before the loop
     between = _ex_date_floors(Sx, K, t, r, q, sigma, is_call, n, dt, sq, times, amounts)
     for step in range(n - 2, -1, -1):
         m = step + 1
-        nodes = nodes[:, :m]
-        nodes *= uc
-        cont = V[:, 1:] * pu
-        cont += pd_ * V[:, :-1]
-        e = ex[:, :m]
-        np.add(nodes, rem[:, step:step + 1], out=e)
-        e -= Kc
-        e *= sign
+        nodes = nodes[:m]
+        nodes *= u
+        cont = np.multiply(V[1:], pu, out=buffers[step % 2][:m])
+        cont += np.multiply(V[:-1], pd_, out=down[:m])
+        e = np.add(nodes, shift[step], out=ex[:m])
         V = np.maximum(cont, e, out=cont)
-        for rows, floor in between.get(step, ()):
-            V[rows] = np.maximum(V[rows], floor)
-    return V[:, 0]
+        for cols, floor in between.get(step, ()):
+            V[:, cols] = np.maximum(V[:, cols], floor)
+    return V[0]
 
 
 def _ex_date_floors(Sx, K, t, r, q, sigma, is_call, n, dt, sq, times, amounts):
-    """``{step: [(rows, values), ...]}``: at the tree date ``s = step*dt`` just before
+    """``{step: [(columns, values), ...]}`` (values: nodes x options): at the tree date ``s = step*dt`` just before
     an ex-date ``tau`` that falls strictly between two tree dates, the value at that
     date's nodes (``Sx u^(2j - step)``, j = 0..step) of the policy "exercise just
     before the ex-date if in the money": Black (1976) over h = tau - s on the escrowed
@@ -145,8 +169,8 @@ def _ex_date_floors(Sx, K, t, r, q, sigma, is_call, n, dt, sq, times, amounts):
     fwd = nodes * np.exp((r[o] - q[o]) * h[pair])
     ke = k_eff[pair]
     positive = ke > 0
-    value = black_price(fwd, np.where(positive, ke, 1.0), h[pair], disc, sigma[o],
-                        is_call[o])
+    value = _black_near_strike(fwd, np.where(positive, ke, 1.0), h[pair], disc, sigma[o],
+                               is_call[o])
     sign = np.where(is_call[o], 1.0, -1.0)
     # a non-positive effective strike: the call is a forward, the put worthless
     value = np.where(positive, value, np.maximum(sign * disc * (fwd - ke), 0.0))
@@ -156,7 +180,7 @@ def _ex_date_floors(Sx, K, t, r, q, sigma, is_call, n, dt, sq, times, amounts):
     for lo, hi in zip(np.concatenate(([0], cuts)), np.concatenate((cuts, [rows.size]))):
         st = int(step[lo])
         block = value[start[lo]:start[lo] + (hi - lo) * (st + 1)].reshape(hi - lo, st + 1)
-        out.setdefault(st, []).append((rows[lo:hi], block))
+        out.setdefault(st, []).append((rows[lo:hi], block.T))
     return out
 
 
