@@ -55,7 +55,7 @@ DEFAULT_STEPS = 200
 
 
 def _remaining_pv(t, r, n, times, amounts):
-    """(options, n+1): PV at each step time of the dividends going ex after it and by
+    r"""(options, n+1): PV at each step time of the dividends going ex after it and by
     expiry, :math:`e^{r s_k} \sum_j D_j e^{-r\tau_j}` over the live dividends."""
     s = (t / n)[:, None] * np.arange(n + 1)[None, :]
     out = np.zeros(s.shape)
@@ -73,7 +73,7 @@ _FAR = 20.0
 
 
 def _black_near_strike(F, K, h, D, sigma, is_call):
-    """:func:`black_price` on arrays of one shape, evaluated only where
+    r""":func:`black_price` on arrays of one shape, evaluated only where
     :math:`|\ln(F/K)| \le 20\sigma\sqrt h + \sigma^2 h` and the discounted
     intrinsic value elsewhere (equal to double precision there). Over one tree step
     only a few nodes lie that close to the strike."""
