@@ -23,8 +23,12 @@ before the ex-date is :math:`S^*(\tau_j) + D_j + PV_{later}(\tau_j)`). As in :mo
 Black-Scholes-Merton value over one step (no dividend remains after expiry) and two
 tree sizes are combined, :math:`2P_N - P_{N/2}` (Broadie & Detemple 1996). The result
 is floored at immediate exercise and at the escrowed European value. The arrays are
-(nodes x options); the Python loop runs over time steps only, and over dividends
-(a handful) when the remaining present values are tabulated.
+(nodes x options), in blocks of ``TREE_BLOCK`` options; the Python loop runs over
+time steps only, and over dividends (a handful) when the remaining present values
+are tabulated. The ex-date floors of every (option, ex-date) pair are valued in one
+vectorised call before the loop; the one-step Black values (last step and floors)
+are evaluated only within 20 standard deviations :math:`\sigma\sqrt h` of the
+strike, the discounted intrinsic value beyond (the same number to double precision).
 
 :math:`\sigma` is the volatility of :math:`S^*` (the escrowed model's caveat: Haug,
 Haug & Lewis 2003, see :mod:`optbench.pricing.cash_dividends`).
@@ -142,7 +146,8 @@ def _chunked_tree(args, n, times, amounts):
 
 
 def _ex_date_floors(Sx, K, t, r, q, sigma, is_call, n, dt, sq, times, amounts):
-    """``{step: [(columns, values), ...]}`` (values: nodes x options): at the tree date ``s = step*dt`` just before
+    """``{step: [(columns, values), ...]}`` (values: nodes x options): at the tree
+    date ``s = step*dt`` just before
     an ex-date ``tau`` that falls strictly between two tree dates, the value at that
     date's nodes (``Sx u^(2j - step)``, j = 0..step) of the policy "exercise just
     before the ex-date if in the money": Black (1976) over h = tau - s on the escrowed
