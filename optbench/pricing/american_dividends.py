@@ -123,8 +123,8 @@ def _tree(Sx, K, t, r, q, sigma, is_call, n, times, amounts):
         cont += np.multiply(V[:-1], pd_, out=down[:m])
         e = np.add(nodes, shift[step], out=ex[:m])
         V = np.maximum(cont, e, out=cont)
-        for cols, floor in between.get(step, ()):
-            V[:, cols] = np.maximum(V[:, cols], floor)
+        for j0, cols, floor in between.get(step, ()):
+            V[j0:, cols] = np.maximum(V[j0:, cols], floor)
     return V[0]
 
 
@@ -146,8 +146,8 @@ def _chunked_tree(args, n, times, amounts):
 
 
 def _ex_date_floors(Sx, K, t, r, q, sigma, is_call, n, dt, sq, times, amounts):
-    """``{step: [(columns, values), ...]}`` (values: nodes x options): at the tree
-    date ``s = step*dt`` just before
+    """``{step: [(first node, columns, values), ...]}`` (values: nodes x options): at
+    the tree date ``s = step*dt`` just before
     an ex-date ``tau`` that falls strictly between two tree dates, the value at that
     date's nodes (``Sx u^(2j - step)``, j = 0..step) of the policy "exercise just
     before the ex-date if in the money": Black (1976) over h = tau - s on the escrowed
@@ -180,11 +180,26 @@ def _ex_date_floors(Sx, K, t, r, q, sigma, is_call, n, dt, sq, times, amounts):
                           amount * np.exp(-r[rows] * (tau2 - tau)), 0.0)
     h = tau - step * dt[rows]
     k_eff = K[rows] - amounts[div] - later
-    # flat layout: pair i holds step_i + 1 nodes
-    width = step + 1
+    # a call's floor is 0 at nodes more than 20 standard deviations below its
+    # effective strike (and V >= 0 there): each (step, ex-date) group starts at the
+    # lowest node any of its pairs needs
+    o = rows
+    sd = sigma[o] * np.sqrt(h)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        reach = np.log(Sx[o] / k_eff) + (r[o] - q[o]) * h + _FAR * sd + sd * sd
+        first = np.floor(0.5 * (step - reach / sq[o])) - 1
+    first = np.where(is_call[o] & (k_eff > 0) & np.isfinite(first),
+                     np.clip(first, 0, step + 1), 0).astype(int)
+    key = step * times.size + div
+    cuts = np.flatnonzero(np.diff(key)) + 1
+    bounds = np.concatenate(([0], cuts, [rows.size]))
+    group_first = np.minimum.reduceat(first, bounds[:-1])
+    first = np.repeat(group_first, np.diff(bounds))
+    # flat layout: pair i holds nodes first_i .. step_i
+    width = step + 1 - first
     pair = np.repeat(np.arange(rows.size), width)
     start = np.cumsum(width) - width
-    j = np.arange(pair.size) - start[pair]
+    j = first[pair] + np.arange(pair.size) - start[pair]
     o = rows[pair]
     nodes = Sx[o] * np.exp(sq[o] * (2 * j - step[pair]))
     disc = np.exp(-r[o] * h[pair])
@@ -197,12 +212,12 @@ def _ex_date_floors(Sx, K, t, r, q, sigma, is_call, n, dt, sq, times, amounts):
     # a non-positive effective strike: the call is a forward, the put worthless
     value = np.where(positive, value, np.maximum(sign * disc * (fwd - ke), 0.0))
     out = {}
-    key = step * times.size + div
-    cuts = np.flatnonzero(np.diff(key)) + 1
-    for lo, hi in zip(np.concatenate(([0], cuts)), np.concatenate((cuts, [rows.size]))):
-        st = int(step[lo])
-        block = value[start[lo]:start[lo] + (hi - lo) * (st + 1)].reshape(hi - lo, st + 1)
-        out.setdefault(st, []).append((rows[lo:hi], block.T))
+    for g, (lo, hi) in enumerate(zip(bounds[:-1], bounds[1:])):
+        st, j0 = int(step[lo]), int(group_first[g])
+        if j0 > st:
+            continue
+        block = value[start[lo]:start[lo] + (hi - lo) * (st + 1 - j0)]
+        out.setdefault(st, []).append((j0, rows[lo:hi], block.reshape(hi - lo, -1).T))
     return out
 
 
