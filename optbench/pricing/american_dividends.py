@@ -23,8 +23,12 @@ before the ex-date is :math:`S^*(\tau_j) + D_j + PV_{later}(\tau_j)`). As in :mo
 Black-Scholes-Merton value over one step (no dividend remains after expiry) and two
 tree sizes are combined, :math:`2P_N - P_{N/2}` (Broadie & Detemple 1996). The result
 is floored at immediate exercise and at the escrowed European value. The arrays are
-(options x nodes); the Python loop runs over time steps only, and over dividends
-(a handful) when the remaining present values are tabulated.
+(nodes x options), in blocks of ``TREE_BLOCK`` options; the Python loop runs over
+time steps only, and over dividends (a handful) when the remaining present values
+are tabulated. The ex-date floors of every (option, ex-date) pair are valued in one
+vectorised call before the loop; the one-step Black values (last step and floors)
+are evaluated only within 20 standard deviations :math:`\sigma\sqrt h` of the
+strike, the discounted intrinsic value beyond (the same number to double precision).
 
 :math:`\sigma` is the volatility of :math:`S^*` (the escrowed model's caveat: Haug,
 Haug & Lewis 2003, see :mod:`optbench.pricing.cash_dividends`).
@@ -55,81 +59,166 @@ DEFAULT_STEPS = 200
 
 
 def _remaining_pv(t, r, n, times, amounts):
-    """(options, n+1): PV at each step time of the dividends going ex after it and by
-    expiry."""
+    r"""(options, n+1): PV at each step time of the dividends going ex after it and by
+    expiry, :math:`e^{r s_k} \sum_j D_j e^{-r\tau_j}` over the live dividends."""
     s = (t / n)[:, None] * np.arange(n + 1)[None, :]
     out = np.zeros(s.shape)
     for tau, amount in zip(times, amounts):   # a handful of dividends
         live = (tau > s) & (tau <= t[:, None])
-        out += np.where(live, amount * np.exp(-r[:, None] * (tau - s)), 0.0)
+        out += live * (amount * np.exp(-r * tau))[:, None]
+    out *= np.exp(r[:, None] * s)
+    return out
+
+
+#: beyond this many standard deviations sigma*sqrt(h) from the strike, the Black
+#: value equals the discounted intrinsic value to double precision (the normal tail
+#: at 20 is below 1e-88)
+_FAR = 20.0
+
+
+def _black_near_strike(F, K, h, D, sigma, is_call):
+    r""":func:`black_price` on arrays of one shape, evaluated only where
+    :math:`|\ln(F/K)| \le 20\sigma\sqrt h + \sigma^2 h` and the discounted
+    intrinsic value elsewhere (equal to double precision there). Over one tree step
+    only a few nodes lie that close to the strike."""
+    F, K, h, D, sigma, is_call = np.broadcast_arrays(F, K, h, D, sigma, is_call)
+    sd = sigma * np.sqrt(h)
+    out = D * np.maximum(np.where(is_call, F - K, K - F), 0.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        near = ~(np.abs(np.log(F / K)) > _FAR * sd + sd * sd)
+    if near.any():
+        out[near] = black_price(F[near], K[near], h[near], D[near], sigma[near],
+                                is_call[near])
     return out
 
 
 def _tree(Sx, K, t, r, q, sigma, is_call, n, times, amounts):
-    """Escrowed tree value with n steps for 1-d arrays of live options."""
+    """Escrowed tree value with n steps for 1-d arrays of live options. The arrays
+    are (nodes x options): each step reads and writes contiguous blocks."""
     dt, sq, u, growth, p, disc = lattice(t, r, q, sigma, n)
-    sign = np.where(is_call, 1.0, -1.0)[:, None]
-    Kc = K[:, None]
-    rem = _remaining_pv(t, r, n, times, amounts)
-    j = np.arange(n)
-    nodes = np.ascontiguousarray(Sx[:, None] * np.exp(sq[:, None] * (2 * j - (n - 1))))
-    cont = black_price(nodes * growth[:, None], Kc, dt[:, None], disc[:, None],
-                       sigma[:, None], is_call[:, None])
-    V = np.maximum(cont, sign * (nodes + rem[:, n - 1:n] - Kc))
-    pu = (disc * p)[:, None]
-    pd_ = (disc * (1 - p))[:, None]
-    uc = u[:, None]
+    sign = np.where(is_call, 1.0, -1.0)
+    rem = _remaining_pv(t, r, n, times, amounts).T
+    j = np.arange(n)[:, None]
+    nodes = np.ascontiguousarray(Sx * np.exp(sq * (2 * j - (n - 1))))
+    cont = _black_near_strike(nodes * growth, K, dt, disc, sigma, is_call)
+    V = np.maximum(cont, sign * (nodes + rem[n - 1] - K))
+    pu = disc * p
+    pd_ = disc * (1 - p)
+    # signed node prices and signed (remaining PV - strike): the exercise value at a
+    # step is their sum
+    nodes *= sign
+    shift = sign * (rem - K)
     ex = np.empty_like(V)
+    down = np.empty_like(V)
+    buffers = (np.empty_like(V), np.empty_like(V))
     # calls: the tree date just before each ex-date that falls strictly between two
     # tree dates (a put is never exercised just before an ex-date: waiting for the
-    # drop is worth more)
-    times = np.asarray(times, dtype=float)
-    amounts = np.asarray(amounts, dtype=float)
-    between = {}
-    for jd, tau in enumerate(times):
-        k = np.floor(tau / dt).astype(int)
-        inside = is_call & (tau <= t) & (tau > 0) & (tau - k * dt > 1e-12 * t) & (k <= n - 2)
-        for step in np.unique(k[inside]):
-            between.setdefault(int(step), []).append((jd, np.flatnonzero(inside & (k == step))))
+    # drop is worth more); every such floor is valued in one pass before the loop
+    between = _ex_date_floors(Sx, K, t, r, q, sigma, is_call, n, dt, sq, times, amounts)
     for step in range(n - 2, -1, -1):
         m = step + 1
-        nodes = nodes[:, :m]
-        nodes *= uc
-        cont = V[:, 1:] * pu
-        cont += pd_ * V[:, :-1]
-        e = ex[:, :m]
-        np.add(nodes, rem[:, step:step + 1], out=e)
-        e -= Kc
-        e *= sign
+        nodes = nodes[:m]
+        nodes *= u
+        cont = np.multiply(V[1:], pu, out=buffers[step % 2][:m])
+        cont += np.multiply(V[:-1], pd_, out=down[:m])
+        e = np.add(nodes, shift[step], out=ex[:m])
         V = np.maximum(cont, e, out=cont)
-        for jd, rows in between.get(step, ()):
-            V[rows] = np.maximum(V[rows], _exercise_at_ex_date(
-                nodes[rows], K[rows], t[rows], r[rows], q[rows], sigma[rows],
-                is_call[rows], step * dt[rows], jd, times, amounts))
-    return V[:, 0]
+        for j0, cols, floor in between.get(step, ()):
+            V[j0:, cols] = np.maximum(V[j0:, cols], floor)
+    return V[0]
 
 
-def _exercise_at_ex_date(nodes, K, t, r, q, sigma, is_call, s, jd, times, amounts):
-    """Value at tree date ``s`` of the policy "exercise just before the ex-date
-    ``times[jd]`` if in the money": Black (1976) over h = tau - s on the escrowed part,
-    strike less the dividend and the later dividends' PV at tau (the stock just
+#: options per tree pass: the (nodes x options) arrays of a block stay in cache
+TREE_BLOCK = 512
+
+
+def _chunked_tree(args, n, times, amounts):
+    """:func:`_tree` over blocks of TREE_BLOCK options (same values, faster on long
+    chains: the working arrays of a block fit in the processor's cache)."""
+    size = args[0].shape[0]
+    if size <= TREE_BLOCK:
+        return _tree(*args, n, times, amounts)
+    out = np.empty(size)
+    for lo in range(0, size, TREE_BLOCK):
+        part = slice(lo, lo + TREE_BLOCK)
+        out[part] = _tree(*(a[part] for a in args), n, times, amounts)
+    return out
+
+
+def _ex_date_floors(Sx, K, t, r, q, sigma, is_call, n, dt, sq, times, amounts):
+    """``{step: [(first node, columns, values), ...]}`` (values: nodes x options): at
+    the tree date ``s = step*dt`` just before
+    an ex-date ``tau`` that falls strictly between two tree dates, the value at that
+    date's nodes (``Sx u^(2j - step)``, j = 0..step) of the policy "exercise just
+    before the ex-date if in the money": Black (1976) over h = tau - s on the escrowed
+    part, strike less the dividend and the later dividends' PV at tau (the stock just
     before the ex-date is S*(tau) + D + PV_later(tau)). A lower bound of the
-    continuation that restores the exercise date the tree's grid misses."""
-    tau = times[jd]
-    h = tau - s
-    later = np.zeros(t.shape)
+    continuation that restores the exercise date the tree's grid misses. All
+    (option, ex-date) pairs are valued in one vectorised call, grouped by step."""
+    times = np.asarray(times, dtype=float)
+    amounts = np.asarray(amounts, dtype=float)
+    pair_rows, pair_div, pair_step = [], [], []
+    for jd, tau in enumerate(times):   # a handful of dividends
+        k = np.floor(tau / dt).astype(int)
+        inside = is_call & (tau <= t) & (tau > 0) & (tau - k * dt > 1e-12 * t) & (k <= n - 2)
+        rows = np.flatnonzero(inside)
+        pair_rows.append(rows)
+        pair_div.append(np.full(rows.size, jd))
+        pair_step.append(k[rows])
+    rows = np.concatenate(pair_rows)
+    if rows.size == 0:
+        return {}
+    div = np.concatenate(pair_div)
+    step = np.concatenate(pair_step)
+    order = np.lexsort((div, -step))
+    rows, div, step = rows[order], div[order], step[order]
+    tau = times[div]
+    # the later dividends' PV at tau, for each pair
+    later = np.zeros(rows.size)
     for tau2, amount in zip(times, amounts):
-        if tau2 > tau:
-            later = later + np.where(tau2 <= t, amount * np.exp(-r * (tau2 - tau)), 0.0)
-    k_eff = (K - amounts[jd] - later)[:, None]
-    disc = np.exp(-r * h)[:, None]
-    fwd = nodes * np.exp((r - q) * h)[:, None]
-    sign = np.where(is_call, 1.0, -1.0)[:, None]
-    positive = k_eff > 0
-    safe_k = np.where(positive, k_eff, 1.0)
-    value = black_price(fwd, safe_k, h[:, None], disc, sigma[:, None], is_call[:, None])
+        later += np.where((tau2 > tau) & (tau2 <= t[rows]),
+                          amount * np.exp(-r[rows] * (tau2 - tau)), 0.0)
+    h = tau - step * dt[rows]
+    k_eff = K[rows] - amounts[div] - later
+    # a call's floor is 0 at nodes more than 20 standard deviations below its
+    # effective strike (and V >= 0 there): each (step, ex-date) group starts at the
+    # lowest node any of its pairs needs
+    o = rows
+    sd = sigma[o] * np.sqrt(h)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        reach = np.log(Sx[o] / k_eff) + (r[o] - q[o]) * h + _FAR * sd + sd * sd
+        first = np.floor(0.5 * (step - reach / sq[o])) - 1
+    first = np.where(is_call[o] & (k_eff > 0) & np.isfinite(first),
+                     np.clip(first, 0, step + 1), 0).astype(int)
+    key = step * times.size + div
+    cuts = np.flatnonzero(np.diff(key)) + 1
+    bounds = np.concatenate(([0], cuts, [rows.size]))
+    group_first = np.minimum.reduceat(first, bounds[:-1])
+    first = np.repeat(group_first, np.diff(bounds))
+    # flat layout: pair i holds nodes first_i .. step_i
+    width = step + 1 - first
+    pair = np.repeat(np.arange(rows.size), width)
+    start = np.cumsum(width) - width
+    j = first[pair] + np.arange(pair.size) - start[pair]
+    o = rows[pair]
+    nodes = Sx[o] * np.exp(sq[o] * (2 * j - step[pair]))
+    disc = np.exp(-r[o] * h[pair])
+    fwd = nodes * np.exp((r[o] - q[o]) * h[pair])
+    ke = k_eff[pair]
+    positive = ke > 0
+    value = _black_near_strike(fwd, np.where(positive, ke, 1.0), h[pair], disc, sigma[o],
+                               is_call[o])
+    sign = np.where(is_call[o], 1.0, -1.0)
     # a non-positive effective strike: the call is a forward, the put worthless
-    return np.where(positive, value, np.maximum(sign * disc * (fwd - k_eff), 0.0))
+    value = np.where(positive, value, np.maximum(sign * disc * (fwd - ke), 0.0))
+    out = {}
+    for g, (lo, hi) in enumerate(zip(bounds[:-1], bounds[1:])):
+        st, j0 = int(step[lo]), int(group_first[g])
+        if j0 > st:
+            continue
+        block = value[start[lo]:start[lo] + (hi - lo) * (st + 1 - j0)]
+        out.setdefault(st, []).append((j0, rows[lo:hi], block.reshape(hi - lo, -1).T))
+    return out
 
 
 def _prepare(values):
@@ -192,8 +281,8 @@ def american_dividend_price(S, K, t, r, q, sigma, is_call, times, amounts,
         if tree.any():
             i = np.flatnonzero(tree)
             args = (Sx[i], K[i], t[i], r[i], q[i], sigma[i], is_call[i])
-            val = 2.0 * _tree(*args, steps, times, amounts) \
-                - _tree(*args, steps // 2, times, amounts)
+            val = 2.0 * _chunked_tree(args, steps, times, amounts) \
+                - _chunked_tree(args, steps // 2, times, amounts)
             euro_i = black_price(F[i], K[i], t[i], D[i], sigma[i], is_call[i])
             out[i] = np.maximum(np.maximum(val, immediate[i]), euro_i)
     return out.reshape(shape)
