@@ -106,6 +106,7 @@ def _read(path: Path) -> dict | None:
 def _write(path: Path, entry: dict) -> None:
     """Write atomically (a temporary file renamed over the entry), so a reader in
     another worker sees the old entry or the new one, never half of one."""
+    path.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=".fit-", suffix=".tmp")
     try:
         with os.fdopen(fd, "w") as f:

@@ -86,3 +86,35 @@ def test_lean_row_runs_the_hedge_only_where_it_would_add_a_note(universe, monkey
     assert len(calls) == 6
     assert_same_rows(far, full)
     assert all(r["error"] and r["error"].startswith("hedge: ") for r in far)
+
+
+def test_parity_pairs_match_a_pandas_merge(universe):
+    """The vectorised pairing of calls and puts against pandas' own merge of the
+    two sides on (expiry, strike), tightest quote of each side kept (reference:
+    pandas.DataFrame.merge), duplicates added to check the tightest is used."""
+    import numpy as np
+    import pandas as pd
+
+    from optbench.data.scenario import load_scenario
+    from optbench.pricing.forwards import parity_pairs
+
+    q = load_scenario(universe / "ZPHX").chain.quotes
+    q = pd.concat([q, q.iloc[::5].assign(ask=lambda d: d["ask"] + 0.4)],
+                  ignore_index=True)
+    got = parity_pairs(q)
+    ok = (q["bid"] > 0) & (q["ask"] >= q["bid"]) & np.isfinite(q["ask"])
+    side = q[ok].assign(mid=lambda d: (d["bid"] + d["ask"]) / 2,
+                        spread=lambda d: d["ask"] - d["bid"])
+    side = side.sort_values("spread", kind="stable").drop_duplicates(
+        ["expiry", "strike", "is_call"])
+    calls = side[side["is_call"]][["expiry", "t", "strike", "mid", "spread"]]
+    puts = side[~side["is_call"]][["expiry", "strike", "mid", "spread"]]
+    want = calls.merge(puts, on=["expiry", "strike"], suffixes=("_c", "_p"))
+    key = ["expiry", "strike"]
+    got = got.sort_values(key).reset_index(drop=True)
+    want = want.sort_values(key).reset_index(drop=True)
+    assert len(got) == len(want) > 50
+    for a, b in (("c_mid", "mid_c"), ("p_mid", "mid_p"), ("c_spread", "spread_c"),
+                 ("p_spread", "spread_p"), ("strike", "strike"), ("t", "t")):
+        np.testing.assert_allclose(got[a].to_numpy(), want[b].to_numpy(), rtol=1e-15)
+    assert (got["expiry"].to_numpy() == want["expiry"].to_numpy()).all()
