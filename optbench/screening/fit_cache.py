@@ -11,9 +11,9 @@ What "filter instead of refit" means
     start-up variance, kept in the entry (:func:`optbench.volatility.garch.fix_garch`),
     so the conditional variances of the fitted days are the fit's own. The forecast
     therefore starts from the newest day's conditional variance; the parameters, and
-    so the long-run level and the persistence, are those of the fit's date. The
-    forecast band's parameter covariance is the robust sandwich evaluated at the held
-    parameters on the longer history.
+    so the long-run level and the persistence, are those of the fit's date, and so is
+    the forecast band's parameter covariance (the fit's robust covariance, kept in
+    the entry). On the same history the rows equal the fitted rows.
 
 When the cache is used
     Entry per underlying code and model choice (``model``, ``dist``, ``mean``). It is
@@ -139,8 +139,8 @@ def fit_with_cache(returns, dates, *, folder, code: str, model: str, dist: str,
             why = (f"{new} returns since the cached fit of {entry['fit_date']} (more than "
                    f"{int(max_filter_days)}): refitted")
         else:
-            fit = fix_garch(y, entry["params"], model=entry["model"], dist=dist, mean=mean,
-                            backcast=float(entry["backcast"]))
+            fit = _held(fix_garch(y, entry["params"], model=entry["model"], dist=dist,
+                                  mean=mean, backcast=float(entry["backcast"])), entry)
             if new == 0:
                 return fit, FitOrigin("cached", entry["fit_date"], 0, (
                     f"volatility model: the cached fit of {entry['fit_date']} (fit cache, "
@@ -159,9 +159,21 @@ def fit_with_cache(returns, dates, *, folder, code: str, model: str, dist: str,
                       "params": {k: float(v) for k, v in fit.params.items()},
                       "n_obs": int(len(y)), "fingerprint": fingerprint(y),
                       "backcast": _backcast(y, mean),
+                      "param_names": list(fit.param_names),
+                      "cov": None if fit.cov is None else np.asarray(fit.cov).tolist(),
                       "first_date": _iso(days[0]), "fit_date": fit_date})
     return fit, FitOrigin("fitted", fit_date, 0,
                           f"volatility model: {why} (fit cache)" if why else "")
+
+
+def _held(fit, entry: dict):
+    """The filtered fit with the cached fit's parameter covariance (the band's
+    uncertainty is the fit's own, as estimated on its date)."""
+    import dataclasses
+    cov = entry.get("cov")
+    if cov is None or list(entry.get("param_names") or ()) != list(fit.param_names):
+        return fit                     # the sandwich at the held parameters instead
+    return dataclasses.replace(fit, covariance_source=np.asarray(cov, float))
 
 
 def _backcast(y: np.ndarray, mean: str) -> float:
