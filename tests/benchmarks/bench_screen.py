@@ -130,19 +130,22 @@ def _numbers_differ(lean: list[dict], full: list[dict]) -> tuple[float, list[str
 
 
 def reference_run(folder: Path, n_reference: int) -> dict:
-    """Full-cost and lean rows of the first ``n_reference`` underlyings, in this
-    process (one worker), alternating so that load changes hit both alike."""
+    """Full-cost rows, lean rows and lean rows with a warm fit cache (same history:
+    the cached parameters held) of the first ``n_reference`` underlyings, in this
+    process (one worker), alternating so that load changes hit all alike."""
     subset = Path(tempfile.mkdtemp(prefix="optbench-screen-ref-"))
     try:
         for p in sorted(q for q in folder.iterdir() if q.is_dir())[:n_reference]:
             (subset / p.name).symlink_to(p, target_is_directory=True)
-        screen(subset, workers=1, tenors=(30,))            # warm imports and caches
-        times = {"full": [], "lean": []}
+        cache = subset / ".fit-cache"
+        screen(subset, workers=1, tenors=(30,), fit_cache=cache)   # warm imports; cache
+        times = {"full": [], "lean": [], "cached": []}
+        options = {"full": {"full": True}, "lean": {}, "cached": {"fit_cache": cache}}
         rows = {}
         for i in range(2):
-            for mode in (("full", "lean") if i == 0 else ("lean", "full")):
+            for mode in (("full", "lean", "cached") if i == 0 else ("cached", "lean", "full")):
                 w0, c0 = time.perf_counter(), time.process_time()
-                result = screen(subset, workers=1, full=(mode == "full"))
+                result = screen(subset, workers=1, **options[mode])
                 times[mode].append((time.perf_counter() - w0, time.process_time() - c0))
                 rows[mode] = list(result.rows)
         worst, texts = _numbers_differ(rows["lean"], rows["full"])
@@ -206,9 +209,10 @@ def main() -> None:
 
     ref = reference_run(folder, min(a.n_reference, a.n))
     print(f"reference, {ref['n']} underlyings in process (1 worker), median of 2:")
-    for mode in ("full", "lean"):
+    for mode, label in (("full", "full-cost row"), ("lean", "lean row"),
+                        ("cached", "lean row, warm fit cache")):
         w, c = ref[mode]
-        print(f"  {mode:4s}-cost row: {1e3 * w:6.0f} ms wall, {1e3 * c:6.0f} ms CPU per "
+        print(f"  {label:25s}: {1e3 * w:6.0f} ms wall, {1e3 * c:6.0f} ms CPU per "
               "underlying")
     print(f"  lean against full: largest relative difference of any number "
           f"{ref['worst']:.1e} (tolerance 1e-9); text columns differing: "
