@@ -46,6 +46,14 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                              "deterministic error (a broken file) is not retried")
     parser.add_argument("--paths", type=whole_number(100), default=2000,
                         help="simulated paths per underlying (default: 2000)")
+    parser.add_argument("--fit-cache", metavar="DIR", default=None,
+                        help="keep each underlying's fitted model in DIR; a later screen "
+                             "whose history only grew filters from the cached parameters "
+                             "instead of refitting (rows say fit_source and fit_date)")
+    parser.add_argument("--refit-after", type=whole_number(0), default=None,
+                        metavar="DAYS", help="with --fit-cache: refit once more than DAYS "
+                                             "returns were added since the cached fit "
+                                             "(default: 21)")
     add_model_options(parser, default_model=DEFAULT_MODEL)
     add_drift_options(parser)
     add_contract_options(parser.add_argument_group("every underlying's options"))
@@ -84,6 +92,7 @@ def run(args: argparse.Namespace) -> int:
                         descending=not args.ascending, workers=args.workers,
                         scheduler=args.scheduler, n_paths=args.paths, progress=update,
                          overrides=contract_overrides(args), **drift_options(args),
+                        fit_cache=args.fit_cache, max_filter_days=args.refit_after,
                         **({} if args.retries is None else {"retries": args.retries}))
     finally:
         if bar is not None:

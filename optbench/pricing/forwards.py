@@ -83,22 +83,41 @@ def _wls_line(k, y, w):
 def parity_pairs(quotes: pd.DataFrame) -> pd.DataFrame:
     """Strikes of each expiry where the call and the put are both quoted two-sided.
 
-    Returns a frame with ``expiry, t, strike, c_mid, p_mid, c_spread, p_spread``.
+    Returns a frame with ``expiry, t, strike, c_mid, p_mid, c_spread, p_spread``, one
+    row per pair in the order of the calls' spreads (tightest first). Where a side is
+    quoted twice, its tightest quote is used. Vectorised over the quotes (no
+    per-expiry frames): the pairs are matched by an integer id of (expiry, strike).
     """
-    q = quotes
-    good = (q["bid"] > 0) & (q["ask"] >= q["bid"]) & np.isfinite(q["bid"]) & np.isfinite(q["ask"])
-    q = q.loc[good, ["expiry", "t", "strike", "is_call", "bid", "ask"]].copy()
-    q["mid_"] = 0.5 * (q["bid"] + q["ask"])
-    q["spread_"] = q["ask"] - q["bid"]
-    # one quote per (expiry, strike, side): the tightest, if duplicates slipped through
-    q = q.sort_values("spread_").drop_duplicates(["expiry", "strike", "is_call"])
-    calls = q[q["is_call"]].set_index(["expiry", "strike"])
-    puts = q[~q["is_call"]].set_index(["expiry", "strike"])
-    calls = calls[["t", "mid_", "spread_"]].rename(
-        columns={"mid_": "c_mid", "spread_": "c_spread"})
-    puts = puts[["mid_", "spread_"]].rename(columns={"mid_": "p_mid", "spread_": "p_spread"})
-    both = calls.join(puts, how="inner").reset_index()
-    return both[["expiry", "t", "strike", "c_mid", "p_mid", "c_spread", "p_spread"]]
+    bid = quotes["bid"].to_numpy(float)
+    ask = quotes["ask"].to_numpy(float)
+    with np.errstate(invalid="ignore"):
+        good = (bid > 0) & (ask >= bid) & np.isfinite(bid) & np.isfinite(ask)
+    idx = np.flatnonzero(good)
+    # tightest first (the sort pandas' sort_values uses), then one quote per
+    # (expiry, strike, side): the first, i.e. the tightest
+    idx = idx[np.argsort((ask - bid)[idx], kind="quicksort")]
+    expiry = quotes["expiry"].to_numpy()[idx]
+    strike = quotes["strike"].to_numpy(float)[idx]
+    is_call = quotes["is_call"].to_numpy(bool)[idx]
+    key = np.empty(idx.size, dtype=[("e", expiry.dtype), ("k", "f8"), ("c", "?")])
+    key["e"], key["k"], key["c"] = expiry, strike, is_call
+    _, first = np.unique(key, return_index=True)
+    keep = np.sort(first)
+    idx, key = idx[keep], key[keep]
+    _, pair_id = np.unique(key[["e", "k"]], return_inverse=True)
+    pair_id = pair_id.ravel()
+    call_at = np.flatnonzero(key["c"])
+    put_of = np.full(pair_id.max() + 1 if pair_id.size else 0, -1)
+    put_at = np.flatnonzero(~key["c"])
+    put_of[pair_id[put_at]] = put_at
+    match = put_of[pair_id[call_at]] if call_at.size else call_at
+    calls, puts = idx[call_at[match >= 0]], idx[match[match >= 0]]
+    mid = 0.5 * (bid + ask)
+    spread = ask - bid
+    return pd.DataFrame({
+        "expiry": quotes["expiry"].to_numpy()[calls], "t": quotes["t"].to_numpy()[calls],
+        "strike": quotes["strike"].to_numpy(float)[calls], "c_mid": mid[calls],
+        "p_mid": mid[puts], "c_spread": spread[calls], "p_spread": spread[puts]})
 
 
 def implied_forwards(quotes: pd.DataFrame, spot: float, rate: float, div_yield: float,
@@ -140,8 +159,8 @@ def implied_forwards(quotes: pd.DataFrame, spot: float, rate: float, div_yield: 
         raise ValueError(f"spot must be a positive number, got {spot}")
     expiries = quotes.groupby("expiry", sort=True)["t"].first()
     if "style" in quotes.columns:
-        all_american = quotes.groupby("expiry")["style"].agg(
-            lambda s: bool((s.astype(str).str.lower() == "american").all()))
+        american_quote = quotes["style"].astype(str).str.lower() == "american"
+        all_american = american_quote.groupby(quotes["expiry"]).all()
     else:
         all_american = pd.Series(False, index=expiries.index)
     pairs = parity_pairs(quotes)

@@ -26,6 +26,26 @@ def inputs_note(rows) -> str:
     return "Inputs: " + "; ".join(f"{', '.join(codes)}: {key}"
                                   for key, codes in groups.items()) + "."
 
+def fits_note(rows) -> str:
+    """One line saying which underlyings' models came from the fit cache and from
+    which fit date ('' when every model was fitted in this screen)."""
+    reused: dict[tuple, list[str]] = {}
+    for r in rows:
+        if r.get("fit_source") in ("cached", "filtered"):
+            codes = reused.setdefault((r["fit_source"], r.get("fit_date")), [])
+            if r["code"] not in codes:
+                codes.append(r["code"])
+    if not reused:
+        return ""
+    parts = [f"{len(codes)} {'filtered from' if source == 'filtered' else 'held from'} "
+             f"the cached fit of {day} ({', '.join(codes[:5])}"
+             f"{', …' if len(codes) > 5 else ''})"
+             for (source, day), codes in sorted(reused.items(), key=str)]
+    return ("Fit cache: models not refitted — " + "; ".join(parts)
+            + ". Parameters held as estimated on that date; the variance recursion runs "
+              "over the days since.")
+
+
 #: kind of each screen column, for formatting (see optbench.report.fields)
 SCREEN_KINDS = {
     "code": "text", "name": "text", "tenor_days": "int", "expiry": "date",
@@ -41,6 +61,7 @@ SCREEN_KINDS = {
     "drift_annual": "pct",
     "warnings": "text",
     "attempts": "int", "retry_reasons": "text",
+    "fit_source": "text", "fit_date": "date",
 }
 
 SCREEN_LABELS = {
@@ -236,6 +257,8 @@ def screen_table(result, *, width: int | None = None, color: bool = False) -> st
     for code, text in warned.items():
         notes.append(f"Warnings for {code}: {text}")
     notes.append(inputs_note(result.rows))
+    if fits_note(result.rows):
+        notes.append(fits_note(result.rows))
     notes.append(result.caution)
     return _render([table, *notes], width=width, color=color)
 

@@ -10,6 +10,22 @@ Cost of protection per 1,000,000 of notional
     per unit of underlying scaled to the notional, free of contract rounding. Its
     expected payoff is the mean discounted payoff over the fitted model's simulated
     paths (the model's physical distribution), scaled the same way.
+
+What a row does not recompute (the lean row, the default)
+    The comparison already judges the put nearest the floor on every expiry it
+    covers (:mod:`optbench.analysis.protection`): the same strike rule as the hedge
+    (the listed put with an ask nearest ``floor`` × spot), its ask, and its
+    model-expected discounted payoff over the comparison's simulated paths. Those
+    paths are simulated once to the longest expiry from the same seed, so each
+    expiry's terminal draws are the ones :func:`~optbench.analysis.hedge.
+    hedge_from_comparison` would simulate again for that expiry alone. The lean row
+    reads the protection figures from the comparison's floor put instead of running
+    the hedge per tenor; the tolerance against the full-cost row (``full=True``, the
+    hedge run per tenor) is 1e-9 relative on every number, with identical text
+    columns (``tests/screening/test_lean_rows.py``). Where the hedge would add a
+    note or refuse — no put with an ask, or the nearest put more than
+    :data:`~optbench.analysis.hedge.STRIKE_WARN` of spot from the floor — the row
+    runs the hedge itself, so its note or error is the hedge's own.
 """
 from __future__ import annotations
 
@@ -33,7 +49,11 @@ COLUMNS = (
     "multiplier", "sources", "error", "folder",
     "floor_put_verdict", "put25_verdict", "drift_rule", "drift_annual", "warnings",
     "attempts", "retry_reasons",
+    "fit_source", "fit_date",
 )
+#: ``fit_source``: ``fitted`` (estimated in this screen), ``cached`` or ``filtered``
+#: (the fit cache's parameters, :mod:`optbench.screening.fit_cache`); ``fit_date``:
+#: the last history date the model's parameters were estimated on
 #: ``warnings`` holds the comparison's and the hedge's warnings (input disagreements,
 #: dropped history rows, ATM or forecast flags) joined with "; " ('' when none)
 WARNING_SEPARATOR = "; "
@@ -58,6 +78,13 @@ class ScreenTask:
     overrides: dict = field(default_factory=dict)
     drift: str = "risk-free"
     excess_return: float | None = None
+    #: True: the full-cost row (the hedge simulated again per tenor), the reference
+    #: the lean row is checked against
+    full: bool = False
+    #: folder of the opt-in fit cache (:mod:`optbench.screening.fit_cache`), or None
+    fit_cache: str | None = None
+    #: most new returns a cached fit is filtered over before it is refitted
+    max_filter_days: int = 21
 
 
 def failed_rows(task: ScreenTask, reason: str) -> list[dict]:
@@ -91,43 +118,96 @@ def nearest_expiries(quotes, tenors) -> dict:
     return out
 
 
+def protection_figures(comparison, row, task: ScreenTask):
+    """``((cost, expected payoff, overpay, cost % a year, strike), notes)`` of the put
+    at the floor on ``row``'s expiry, per :data:`NOTIONAL` (module Notes).
+
+    The lean row reads them from the comparison's floor put; the full row
+    (``task.full``), and any expiry where the hedge would add a note or refuse, runs
+    :func:`~optbench.analysis.hedge.hedge_from_comparison`. Raises what the hedge
+    raises.
+    """
+    from optbench.analysis.hedge import STRIKE_WARN, contracts_for, hedge_from_comparison
+    from optbench.analysis.results import HedgeRequest
+
+    # a large notional keeps contract rounding out of the per-unit figures
+    request = HedgeRequest(portfolio_value=1e3 * NOTIONAL, hedge_ratio=1.0,
+                           floor=task.floor, expiry=row.expiry, structure="put")
+    spot = float(comparison.spot)
+    strike = float(row.floor_put_strike)
+    lean = (not task.full and getattr(comparison, "fit", None) is not None
+            and row.trading_days > 0 and math.isfinite(strike)
+            and math.isfinite(float(row.floor_put_premium))
+            and abs(strike - task.floor * spot) / spot <= STRIKE_WARN)
+    if not lean:
+        est = hedge_from_comparison(comparison, request, n_paths=task.n_paths,
+                                    seed=task.seed)
+        scale = NOTIONAL / (est.contracts * est.multiplier * spot)
+        return ((est.premium_paid * scale, est.expected_payoff * scale,
+                 est.overpay * scale, est.cost_pct_annual, est.strike), est.warnings)
+    multiplier = float(comparison.multiplier or 100.0)
+    contracts = contracts_for(request.portfolio_value, request.exposure_ratio,
+                              multiplier, spot)
+    units = contracts * multiplier
+    premium_paid = float(row.floor_put_premium) * units          # the ask, as the hedge
+    expected = float(row.floor_put_expected_payoff) * units
+    scale = NOTIONAL / (units * spot)
+    cost_pct = premium_paid / request.portfolio_value
+    return ((premium_paid * scale, expected * scale, (premium_paid - expected) * scale,
+             cost_pct * 365.0 / row.calendar_days, strike), ())
+
+
+def _cached_fit(scenario, task: ScreenTask):
+    """``(fit, FitOrigin)`` from the fit cache when the task names one, else
+    ``(None, None)`` (the comparison fits). The cache sees the returns the
+    comparison uses: the history up to the quote date."""
+    if not task.fit_cache:
+        return None, None
+    from optbench.analysis.compare import _history_upto
+    from optbench.screening.fit_cache import fit_with_cache
+
+    hist = _history_upto(scenario.history, scenario.chain.asof, [])
+    return fit_with_cache(hist.returns, hist.dates[1:], folder=task.fit_cache,
+                          code=scenario.code, model=task.model, dist=task.dist,
+                          mean=task.mean, max_filter_days=task.max_filter_days)
+
+
+def _fit_date(comparison) -> str | None:
+    """The last history date of the comparison's fit (its last return's date)."""
+    history = getattr(comparison, "history", None)
+    if history is None or not len(history):
+        return None
+    return history["date"].iloc[-1].date().isoformat()
+
+
 def screen_one(task: ScreenTask) -> list[dict]:
     """Rows for one scenario folder, one per tenor. Raises on a broken underlying
     (the runner turns that into :func:`failed_rows`)."""
     from optbench.analysis.compare import compare
-    from optbench.analysis.hedge import hedge_from_comparison
-    from optbench.analysis.results import HedgeRequest
     from optbench.data.scenario import load_scenario
     from optbench.report.provenance import sources_text
 
     scenario = load_scenario(task.folder, **task.overrides)
     listed = nearest_expiries(scenario.chain.quotes, task.tenors)
+    fit, origin = _cached_fit(scenario, task)
     # only the expiries the rows show are compared: the same numbers, less work
     comparison = compare(scenario, model=task.model, dist=task.dist, mean=task.mean,
                          n_paths=task.n_paths, seed=task.seed,
                          expiries=sorted(set(listed.values())), floor=task.floor,
-                         drift=task.drift, excess_return=task.excess_return)
+                         drift=task.drift, excess_return=task.excess_return, fit=fit)
     by_expiry = {e.expiry: e for e in comparison.expiries}
     model = comparison.model
+    first_notes = [origin.note] if origin is not None and origin.note else []
     rows = []
     for tenor in task.tenors:
         row = by_expiry[listed[tenor]]
         cost = payoff = overpay = annual = strike = None
         error = None
-        notes = list(comparison.warnings)
+        notes = first_notes + list(comparison.warnings)
         try:
-            # a large notional keeps contract rounding out of the per-unit figures
-            request = HedgeRequest(portfolio_value=1e3 * NOTIONAL, hedge_ratio=1.0,
-                                   floor=task.floor, expiry=row.expiry, structure="put")
-            est = hedge_from_comparison(comparison, request, n_paths=task.n_paths,
-                                        seed=task.seed)
-            scale = NOTIONAL / (est.contracts * est.multiplier * comparison.spot)
-            cost = _num(est.premium_paid * scale)
-            payoff = _num(est.expected_payoff * scale)
-            overpay = _num(est.overpay * scale)
-            annual = _num(est.cost_pct_annual)
-            strike = _num(est.strike)
-            notes += [w for w in est.warnings if w not in notes]
+            figures, hedge_notes = protection_figures(comparison, row, task)
+            cost, payoff, overpay, annual, strike = (_num(x) for x in figures)
+            notes += [w for w in hedge_notes if w not in notes]
         except Exception as err:  # the comparison row still stands without a hedge
             error = f"hedge: {err}"
         rows.append({
@@ -152,5 +232,8 @@ def screen_one(task: ScreenTask) -> list[dict]:
             "drift_rule": comparison.drift.rule,
             "drift_annual": _num(comparison.drift.annual),
             "warnings": WARNING_SEPARATOR.join(notes),
+            "fit_source": origin.source if origin is not None else "fitted",
+            "fit_date": origin.fit_date if origin is not None
+            else _fit_date(comparison),
         })
     return rows

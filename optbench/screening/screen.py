@@ -113,7 +113,8 @@ def screen(folder: str | Path, *, tenors: Sequence[int] = DEFAULT_TENORS,
            workers: int | None = None, scheduler: str | None = None,
            n_paths: int = 2000, seed: int = 7, overrides: dict | None = None,
            progress: Callable[[int, int], None] | None = None, drift: str = "risk-free",
-           excess_return: float | None = None,
+           excess_return: float | None = None, fit_cache: str | Path | None = None,
+           max_filter_days: int | None = None, full: bool = False,
            retries: int = DEFAULT_RETRIES) -> ScreenResult:
     """Screen every scenario folder under ``folder`` and rank the rows.
 
@@ -134,6 +135,14 @@ def screen(folder: str | Path, *, tenors: Sequence[int] = DEFAULT_TENORS,
     drift, excess_return : the drift of the simulated prices, as in ``compare``
         (each underlying's ``meta.toml`` may set its own ``excess_return``; the rows'
         ``drift_rule`` and ``drift_annual`` say what each used).
+    fit_cache : a folder for the opt-in fit cache (:mod:`optbench.screening.fit_cache`):
+        each underlying's fit is kept there, and a later screen whose history only
+        grew by at most ``max_filter_days`` returns (default 21) filters from the
+        cached parameters instead of refitting; each row's ``fit_source`` and
+        ``fit_date`` say which.
+    full : True runs the full-cost row (the hedge simulated again per tenor), the
+        reference the default lean row matches within 1e-9 relative
+        (:func:`optbench.screening.rows.protection_figures`).
     retries : how many times an underlying whose worker was lost, or that met a
         transient error, is tried again (:mod:`optbench.screening.runner`); each row
         says its ``attempts`` and why earlier ones were lost (``retry_reasons``).
@@ -149,10 +158,21 @@ def screen(folder: str | Path, *, tenors: Sequence[int] = DEFAULT_TENORS,
     from optbench.analysis.drift import choose_drift
     choose_drift(drift, excess_return, rate=0.0, div_yield=0.0)   # a bad value fails here
     folders = find_scenarios(folder)
+    cache = {}
+    if fit_cache is None and max_filter_days is not None:
+        raise InputError("--refit-after", "applies only with --fit-cache DIR")
+    if fit_cache is not None:
+        from optbench.screening.fit_cache import DEFAULT_MAX_FILTER_DAYS, check_folder
+        days = DEFAULT_MAX_FILTER_DAYS if max_filter_days is None else int(max_filter_days)
+        if days < 0:
+            raise InputError("--refit-after", f"must be 0 or more days, not {days}")
+        cache = {"fit_cache": str(check_folder(fit_cache).resolve()),
+                 "max_filter_days": days}
     tasks = [ScreenTask(folder=str(f), tenors=tenors, floor=float(floor), model=model,
                         dist=dist, mean=mean, n_paths=n_paths, seed=seed,
                         overrides=dict(overrides or {}), drift=drift,
-                        excess_return=excess_return) for f in folders]
+                        excess_return=excess_return, full=bool(full), **cache)
+             for f in folders]
     outcomes = run_outcomes(screen_task, tasks, workers=workers, scheduler=scheduler,
                             progress=progress, retries=retries)
     rows: list[dict] = []
