@@ -85,48 +85,40 @@ _PF = (1.0, 5.99832206555887937690e-1, 1.36929880922735805310e-1, 1.487536129085
        2.04426310338993978564e-15)
 
 
-def _near(y):
-    """Cody's first interval, |x| <= 0.46875: erf(x) = x R(x^2)."""
-    ysq = y * y
-    xnum = _A[4] * ysq
-    xden = ysq.copy()
-    for i in range(3):
-        xnum += _A[i]
-        xnum *= ysq
-        xden += _B[i]
-        xden *= ysq
-    xnum += _A[3]
-    xden += _B[3]
-    xnum *= y
+def _cody_ratio(x, num, den, degree):
+    """Cody's rational function in Horner form, in place on fresh arrays:
+    (num[degree+1] x^(degree+1) + num[0] x^degree + ... + num[degree]) /
+    (x^(degree+1) + den[0] x^degree + ... + den[degree])."""
+    xnum = num[degree + 1] * x
+    xden = x.copy()
+    for i in range(degree):
+        xnum += num[i]
+        xnum *= x
+        xden += den[i]
+        xden *= x
+    xnum += num[degree]
+    xden += den[degree]
     xnum /= xden
     return xnum
+
+
+def _near(y):
+    """Cody's first interval, |x| <= 0.46875: erf(x) = x R(x^2)."""
+    out = _cody_ratio(y * y, _A, _B, 3)
+    out *= y
+    return out
 
 
 def _mid_scaled(y):
     """Cody's second interval, 0.46875 < y <= 4: erfcx(y) = R(y)."""
-    xnum = _C[8] * y
-    xden = y.copy()
-    for i in range(7):
-        xnum += _C[i]
-        xnum *= y
-        xden += _D[i]
-        xden *= y
-    xnum += _C[7]
-    xden += _D[7]
-    xnum /= xden
-    return xnum
+    return _cody_ratio(y, _C, _D, 7)
 
 
 def _far_scaled(y):
     """Cody's third interval, y > 4: erfcx(y) = (1/sqrt(pi) - R(1/y^2)/y^2) / y."""
     with np.errstate(over="ignore", under="ignore"):
         ysq = 1.0 / (y * y)
-        xnum = _P[5] * ysq
-        xden = ysq
-        for i in range(4):
-            xnum = (xnum + _P[i]) * ysq
-            xden = (xden + _Q[i]) * ysq
-        res = ysq * (xnum + _P[4]) / (xden + _Q[4])
+        res = ysq * _cody_ratio(ysq, _P, _Q, 4)
         return (_SQRPI - res) / y
 
 

@@ -14,7 +14,7 @@ from pathlib import Path
 from optbench.analysis.results import CAUTION
 from optbench.errors import InputError
 from optbench.screening.rows import (COLUMNS, DEFAULT_MODEL, DEFAULT_TENORS, NOTIONAL,
-                                     ScreenTask, failed_rows, screen_one)
+                                     ScreenTask, failed_rows)
 from optbench.screening.runner import DEFAULT_RETRIES, run_outcomes
 from optbench.screening.tasks import screen_task
 from optbench.screening.universe import find_scenarios
