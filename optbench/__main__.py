@@ -1,4 +1,4 @@
 """``python -m optbench`` is the same as the ``optbench`` command."""
-from optbench.cli import main
+from optbench.cli import entry
 
-raise SystemExit(main())
+raise SystemExit(entry())
