@@ -252,12 +252,12 @@ def run(args: argparse.Namespace) -> int:
 
 def render(result, args: argparse.Namespace, fmt: str | None = None):
     """The hedge estimate's own view, followed by the portfolio sections."""
-    from optbench.report import portfolio as pv
     estimate = result.estimate
     fmt = fmt or args.format
     if fmt == "json":
         from optbench.report.jsonout import dumps
         return dumps(result, kind="hedge")
+    from optbench.report import portfolio as pv
     if fmt == "csv":
         if args.table in CSV_TABLES:
             return pv.portfolio_csv(result, args.table)

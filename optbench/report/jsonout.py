@@ -78,6 +78,57 @@ def frame_records(frame) -> list[dict]:
     return [dict(zip(names, row)) for row in zip(*columns)]
 
 
+def _column_texts(col) -> list[str]:
+    """Each value of a DataFrame column as the JSON text :func:`frame_records` and
+    ``json.dumps`` give it: floats by ``float.__repr__`` (what the encoder writes) with
+    ``null`` for NaN and infinities, dates as quoted ISO strings, numpy booleans and
+    integers by their Python value; anything else value by value through the encoder."""
+    import pandas as pd
+    dtype = col.dtype
+    if pd.api.types.is_datetime64_any_dtype(col):
+        iso = np.asarray(col.to_numpy(), dtype="datetime64[D]").astype(str)
+        return ["null" if v == "NaT" else f'"{v}"' for v in iso.tolist()]
+    if isinstance(dtype, np.dtype) and dtype.kind == "f":
+        arr = col.to_numpy(float)
+        texts = list(map(float.__repr__, arr.tolist()))
+        for i in np.flatnonzero(~np.isfinite(arr)).tolist():
+            texts[i] = "null"
+        return texts
+    if isinstance(dtype, np.dtype) and dtype.kind == "b":
+        return ["true" if v else "false" for v in col.to_numpy().tolist()]
+    if isinstance(dtype, np.dtype) and dtype.kind in "iu":
+        return list(map(int.__repr__, col.to_numpy().tolist()))
+    encode = json.JSONEncoder(allow_nan=False, ensure_ascii=False).encode
+    cache: dict = {}
+    texts = []
+    for v in frame_records(col.to_frame()):
+        v = next(iter(v.values()))
+        key = (type(v), v) if isinstance(v, (str, bool, int, type(None))) else None
+        if key is None:
+            texts.append(encode(v))
+            continue
+        text = cache.get(key)
+        if text is None:
+            text = cache[key] = encode(v)
+        texts.append(text)
+    return texts
+
+
+def records_text(frame, sep: str = ", ") -> str:
+    """The JSON text of ``json.dumps(frame_records(frame))[1:-1]`` with ``sep`` between
+    records, built column by column: each column's values are written to text once
+    (numbers by their ``repr``, as the encoder does) and the records are filled into
+    one template, instead of encoding every key and value of every record."""
+    names = [str(c) for c in frame.columns]
+    if len(set(names)) != len(names) or not len(frame):
+        body = json.dumps(frame_records(frame), allow_nan=False, ensure_ascii=False)[1:-1]
+        return body.replace("}, {", "}" + sep + "{")
+    keys = [json.dumps(n, ensure_ascii=False).replace("%", "%%") for n in names]
+    template = "{" + ", ".join(f"{k}: %s" for k in keys) + "}"
+    columns = [_column_texts(frame.iloc[:, i]) for i in range(len(names))]
+    return sep.join([template % row for row in zip(*columns)])
+
+
 def dumps(obj: Any, *, kind: str | None = None, indent: int | None = 2) -> str:
     """JSON text of a result object (anything with ``to_dict()``) or plain data.
 
@@ -87,7 +138,7 @@ def dumps(obj: Any, *, kind: str | None = None, indent: int | None = 2) -> str:
     if hasattr(obj, "strike_frame") and hasattr(obj, "to_dict"):
         # the per-strike table can be large: serialise it column-wise
         data = clean(obj.to_dict(strikes=False))
-        strikes = frame_records(obj.strike_frame())
+        strikes = obj.strike_frame()
     else:
         data = obj.to_dict() if hasattr(obj, "to_dict") else obj
         data = clean(data)
@@ -95,14 +146,11 @@ def dumps(obj: Any, *, kind: str | None = None, indent: int | None = 2) -> str:
         data = {"schema": f"optbench.{kind}/{SCHEMA_VERSION}", **data}
     text = json.dumps(data, indent=indent, allow_nan=False, ensure_ascii=False)
     if strikes is not None:
-        # one record per line, written by the C encoder (an indented dump of a large
+        # one record per line, written column by column (an indented dump of a large
         # table would go through the slow pure-Python encoder)
         pad = " " * (indent or 0)
         sep = ",\n" + pad * 2 if indent else ","
-        # one C-encoder call for the whole list; records hold numbers, dates, "C"/"P"
-        # and booleans only, so "}, {" occurs only between records
-        body = json.dumps(strikes, allow_nan=False, ensure_ascii=False)[1:-1]
-        body = body.replace("}, {", "}" + sep + "{")
+        body = records_text(strikes, sep)
         head = f",\n{pad}\"strikes\": [\n{pad * 2}" if indent else ',"strikes":['
         tail = f"\n{pad}]\n}}" if indent else "]}"
         text = text[:text.rstrip().rfind("}")].rstrip() + head + body + tail
