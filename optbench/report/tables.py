@@ -71,16 +71,17 @@ def comparison_table(comparison, *, strikes_for=None, width: int | None = None,
     """The comparison as terminal text: header, per-expiry table, rule, quality, caution."""
     c = comparison
     m = c.model
+    rows = [r.to_dict() for r in c.expiries]      # one conversion for the three tables
     parts = [f"{c.underlying}  as of {c.asof.isoformat()}  spot {c.spot:,.2f}  "
              f"rate {100 * c.rate:.2f}%  div {100 * c.div_yield:.2f}%  {c.style}",
              inputs_line(c),
              f"model {m.name}/{m.dist} (mean {m.mean}), persistence {m.persistence:.4f}, "
              f"long-run vol {100 * m.long_run_vol:.2f}%, {c.n_paths:,} simulated paths",
              _table("Implied against forecast (vols and probabilities in %, differences in vol points)",
-                    [r.to_dict() for r in c.expiries], EXPIRY_BRIEF),
+                    rows, EXPIRY_BRIEF),
              f"Verdict rule: {c.verdict_rule}.",
              *[_table(f"Protection: the {name} judged on its own (prices per unit of the "
-                      "underlying)", [r.to_dict() for r in c.expiries],
+                      "underlying)", rows,
                       [f for f in PROTECTION_BRIEF if not f.startswith(other)],
                       {"verdict": "ATM\nverdict"})
                for name, other in (("put nearest 25 delta", "floor_put_"),
