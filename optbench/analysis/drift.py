@@ -195,18 +195,51 @@ class TerminalDraws:
 
 
 def _sums_at_horizons(r: np.ndarray, v: np.ndarray, a: float, convexity: float,
-                      h: np.ndarray):
+                      h: np.ndarray, *, half_v: np.ndarray | None = None,
+                      overwrite: bool = False):
     """Per path, the sums over the first ``h`` days (each ``h`` in the array) of
     :math:`r_i - a + c\\,v_i/2` (the shocks :math:`\\sigma_i z_i`), of :math:`v_i` and
-    of :math:`r_i^2`; ``r``, ``v`` laid out (days, paths).
+    of :math:`r_i^2`; ``r``, ``v`` laid out (days, paths). ``half_v``, when given, is
+    ``v / 2`` already formed (the simulation's own); ``overwrite`` lets the function
+    use ``r`` and ``v`` as scratch space.
 
     The same additions in the same order as a cumulative sum along the days read at
     each horizon, so the figures are those of ``np.cumsum(...)[:, h - 1]`` to the last
-    bit, without holding every day's running sum (paths x days) in memory.
+    bit, without holding every day's running sum (paths x days) in memory: the days
+    between two horizons are summed by one reduction along the days (row after row,
+    in day order), whose first row has the running sum so far added to it.
     Returns three arrays of shape ``(paths, len(h))``.
     """
     want = np.unique(h)
     where = np.searchsorted(want, h)
+    n_days, n = r.shape
+    if n < 16:
+        # a reduction over a short row may be summed pairwise along the days:
+        # add day by day instead (few paths, little work)
+        return _sums_day_by_day(r, v, a, convexity, want, where)
+    last = int(want[-1])
+    shock = np.subtract(r[:last], a)
+    if convexity:
+        if half_v is None:
+            half_v = np.multiply(v[:last], 0.5)
+        shock += half_v[:last]
+    del half_v
+    sq = np.multiply(r[:last], r[:last], out=r[:last] if overwrite else None)
+    var = v[:last] if overwrite else v[:last].copy()
+    out = np.empty((3, want.size, n))
+    start = 0
+    for k, stop in enumerate(want):
+        stop = int(stop)
+        for j, x in enumerate((shock, var, sq)):
+            if start:
+                x[start] += out[j, k - 1]       # the running sum so far, then day order
+            np.add.reduce(x[start:stop], axis=0, out=out[j, k])
+        start = stop
+    return out[0, where].T, out[1, where].T, out[2, where].T
+
+
+def _sums_day_by_day(r, v, a, convexity, want, where):
+    """:func:`_sums_at_horizons` adding one day at a time (its reference)."""
     n = r.shape[1]
     out = np.empty((3, want.size, n))
     acc = np.zeros((3, n))
@@ -237,7 +270,7 @@ def simulate_terminal(fit, choice: DriftChoice, trading_days, taus, rates, carri
     random numbers of a day are drawn in the same order whatever the longest
     horizon), so a column is the same as a simulation of its expiry alone.
     """
-    from optbench.volatility.simulate import simulate_paths
+    from optbench.volatility.simulate import simulate_days
 
     h = np.maximum(np.atleast_1d(np.asarray(trading_days, int)), 1)
     taus = np.atleast_1d(np.asarray(taus, float))
@@ -245,12 +278,14 @@ def simulate_terminal(fit, choice: DriftChoice, trading_days, taus, rates, carri
     carries = np.broadcast_to(np.asarray(carries, float), h.shape)
     fitted = choice.rule == "fitted"
     daily = None if fitted else choice.annual / TRADING_DAYS_PER_YEAR
-    sim = simulate_paths(fit.model, fit.params, fit.dist, fit.last_variance,
-                         int(h.max()), int(n_paths), seed, drift=daily)
+    r, v, half_v = simulate_days(fit.model, fit.params, fit.dist, fit.last_variance,
+                                 int(h.max()), int(n_paths), seed, drift=daily,
+                                 keep_half_variance=True)
     a = float(fit.params.get("mu", 0.0) or 0.0) if fitted else daily
     c = 0.0 if fitted else 1.0
     # the simulation's own (days, paths) layout: each day is one contiguous row
-    shock, var, sq = _sums_at_horizons(sim.returns.T, sim.variances.T, a, c, h)
+    shock, var, sq = _sums_at_horizons(r, v, a, c, h, half_v=half_v, overwrite=True)
+    del r, v, half_v
     rv = np.sqrt(TRADING_DAYS_PER_YEAR / h * sq)
     if fitted:
         log_drift = h * a - carries * taus

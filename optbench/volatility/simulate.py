@@ -89,51 +89,84 @@ def simulate_paths(model: str, params: dict, dist: str, last_variance: float,
     transform of normals, :func:`optbench.volatility.distributions.std_t_draws_fast`);
     the recursion runs in float64.
     """
+    r, v, _ = simulate_days(model, params, dist, last_variance, horizon, n_paths, seed,
+                            drift)
+    return SimulatedPaths(returns=r.T, variances=v.T)
+
+
+def _draws(rng: np.random.Generator, dist: str, params: dict, size) -> np.ndarray:
+    """Unit-variance innovations, float32, laid out (days, paths)."""
+    if dist == "t":
+        return std_t_draws_fast(rng, float(params["nu"]), size)
+    return rng.standard_normal(size, dtype=np.float32)
+
+
+def simulate_days(model: str, params: dict, dist: str, last_variance: float,
+                  horizon: int, n_paths: int, seed=None, drift: float | None = None,
+                  *, keep_half_variance: bool = False):
+    """The arrays behind :func:`simulate_paths`, laid out (days, paths) (each day one
+    contiguous row), freshly allocated so the caller may overwrite them.
+
+    Returns ``(r, v, half_v)``: daily log returns, conditional daily variances and,
+    when ``keep_half_variance`` is set and the convexity term was applied (``drift``
+    given), the array ``v / 2`` that was subtracted from the returns (else None).
+    The numbers are those of :func:`simulate_paths` (see there), to the last bit.
+
+    Notes
+    -----
+    For GARCH and GJR the per-day loop is only the variance recursion, written into
+    its rows of ``v`` (a multiply and an add per day); ``sigma_t z_t`` is then formed
+    for all days at once as ``sqrt(v) * z``, the same products as day by day.
+    """
     if horizon < 1 or n_paths < 1:
         raise ValueError("horizon and n_paths must be positive")
     spec = get_spec(model)
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
     size = (horizon, n_paths)
-    if dist == "t":
-        z = std_t_draws_fast(rng, float(params["nu"]), size)
-    else:
-        z = rng.standard_normal(size, dtype=np.float32)
+    z = _draws(rng, dist, params, size)
     mu = float(params.get("mu", 0.0))
-    r = np.empty(size)
     v = np.empty(size)
-    s2 = np.full(n_paths, float(last_variance))
+    v[0] = float(last_variance)
     if model in ("garch", "gjr"):
         # e_t^2 = sigma_t^2 z_t^2 and 1[e_t < 0] = 1[z_t < 0], so
         # sigma^2_{t+1} = omega + sigma^2_t * (beta + z_t^2 (alpha + gamma 1[z_t < 0])):
-        # the multiplier is built for all days at once, the loop is a multiply-add
+        # the multiplier is built for all days at once (float32), the loop is a
+        # multiply-add
         omega, alpha, beta = (float(params[k]) for k in ("omega", "alpha", "beta"))
         gamma = float(params.get("gamma", 0.0))
-        mult = z * z
-        mult *= np.float32(alpha)
+        mult = z[:-1] * z[:-1]
         if gamma:
-            neg = np.minimum(z, np.float32(0.0))
+            neg = np.minimum(z[:-1], np.float32(0.0))
             neg *= neg
             neg *= np.float32(gamma)
+        mult *= np.float32(alpha)
+        if gamma:
             mult += neg
+            del neg
         mult += np.float32(beta)
-        for t in range(horizon):   # loop over days only; vectorised over paths
-            v[t] = s2
-            np.sqrt(s2, out=r[t])
-            r[t] *= z[t]
-            if t + 1 < horizon:
-                s2 = s2 * mult[t]
-                s2 += omega
+        for t in range(horizon - 1):   # loop over days only; vectorised over paths
+            nxt = v[t + 1]
+            np.multiply(v[t], mult[t], out=nxt)
+            nxt += omega
+        del mult
+        r = np.sqrt(v)
+        r *= z
     else:
+        r = np.empty(size)
+        s2 = v[0]
         for t in range(horizon):
-            v[t] = s2
             e = r[t]
             np.sqrt(s2, out=e)
             e *= z[t]
             if t + 1 < horizon:
                 s2 = spec.next_variance(e, s2, params)
+                v[t + 1] = s2
+    del z
+    half_v = None
     if drift is not None:
         r += float(drift)
-        r -= 0.5 * v
+        half_v = np.multiply(v, 0.5)
+        r -= half_v
     elif mu:
         r += mu
-    return SimulatedPaths(returns=r.T, variances=v.T)
+    return r, v, (half_v if keep_half_variance else None)
