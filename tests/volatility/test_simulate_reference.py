@@ -114,3 +114,21 @@ def test_terminal_draws_are_the_day_by_day_sums(rule):
     draws = simulate_terminal(_Fit, choice, h, taus, 0.04, 0.01, n_paths=700, seed=7)
     assert np.array_equal(draws.shock, shock) and np.array_equal(draws.variance, var)
     assert np.array_equal(draws.realized_vol, np.sqrt(252.0 / h * sq))
+
+
+@pytest.mark.parametrize("nu,size", [(5.7, (70, 2000)), (2.3, 40_000), (30.0, (3, 7)),
+                                     (4.1, 1), (8.0, (2, 16385))])
+def test_fast_t_draws_are_the_whole_array_transform(nu, size):
+    """The chunked in-place transform against the same formula over the whole array."""
+    from optbench.volatility.distributions import (_GRID_HALF_WIDTH, _GRID_STEPS,
+                                                   _normal_to_t_table)
+    vals, slope = _normal_to_t_table(nu)
+    x = np.random.default_rng(9).standard_normal(size, dtype=np.float32)
+    pos = (x + np.float32(_GRID_HALF_WIDTH)) * np.float32(_GRID_STEPS / (2 * _GRID_HALF_WIDTH))
+    pos = np.clip(pos, np.float32(0.0), np.float32(_GRID_STEPS - 1e-3))
+    i = pos.astype(np.int32)
+    frac = (pos - i).astype(np.float32)
+    ref = slope[i] * frac + vals[i]
+    got = std_t_draws_fast(np.random.default_rng(9), nu, size)
+    assert got.dtype == np.float32 and got.shape == np.shape(ref)
+    assert np.array_equal(got, ref)
