@@ -12,7 +12,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from optbench.pricing.special import digamma, gammaln, ndtr, stdtrit
+from optbench.pricing.special import digamma, gammaln, ndtr, stdtrit_one_df
 
 LOG_2PI = math.log(2.0 * math.pi)
 NU_MIN = 2.05   # smallest degrees of freedom allowed (variance must exist)
@@ -115,7 +115,7 @@ _GRID_STEPS = 8192
 def _normal_to_t_table(nu: float):
     """Nodes of the map x -> F_t^{-1}(Phi(x)) * sqrt((nu-2)/nu) on [-8, 8]."""
     x = np.linspace(-_GRID_HALF_WIDTH, 0.0, _GRID_STEPS // 2 + 1)
-    left = stdtrit(nu, ndtr(x)) * math.sqrt((nu - 2.0) / nu)   # lower half, by symmetry
+    left = stdtrit_one_df(nu, ndtr(x)) * math.sqrt((nu - 2.0) / nu)   # lower half, by symmetry
     vals = np.concatenate([left, -left[-2::-1]])
     vals[_GRID_STEPS // 2] = 0.0
     slope = np.diff(vals)

@@ -132,3 +132,34 @@ def test_fast_t_draws_are_the_whole_array_transform(nu, size):
     got = std_t_draws_fast(np.random.default_rng(9), nu, size)
     assert got.dtype == np.float32 and got.shape == np.shape(ref)
     assert np.array_equal(got, ref)
+
+
+def test_quantile_table_is_the_general_solvers_table_to_the_float32_bit():
+    """The table from stdtrit_one_df (one df, Halley steps) against the same table from
+    optbench's general stdtrit (bracketed Newton), the route the table took before:
+    the two solvers agree to a few 1e-15, so the float32 nodes are identical and a
+    slope can differ only where that difference straddles a float32 rounding
+    boundary (measured: a few per cent of degrees of freedom have one such cell, or
+    its mirror image), by one float32 unit; a draw in such a cell moves by at most
+    one unit of its last place, and only when the product lands on a boundary too."""
+    import math
+
+    from optbench.pricing.special import ndtr, stdtrit
+    from optbench.volatility.distributions import _GRID_STEPS, _normal_to_t_table
+
+    x = np.linspace(-8.0, 0.0, _GRID_STEPS // 2 + 1)
+    same = 0
+    nus = np.concatenate([np.linspace(2.05, 12.0, 23), [15.5, 23.0, 41.7, 60.0]])
+    for nu in nus:
+        nu = float(nu)
+        left = stdtrit(nu, ndtr(x)) * math.sqrt((nu - 2.0) / nu)
+        vals = np.concatenate([left, -left[-2::-1]])
+        vals[_GRID_STEPS // 2] = 0.0
+        ref_vals, ref_slope = vals[:-1].astype(np.float32), np.diff(vals).astype(np.float32)
+        got_vals, got_slope = _normal_to_t_table(nu)
+        assert np.array_equal(got_vals, ref_vals), nu
+        off = np.flatnonzero(got_slope != ref_slope)
+        assert off.size <= 2, nu
+        assert np.all(np.abs(got_slope[off] - ref_slope[off]) <= np.spacing(ref_slope[off])), nu
+        same += off.size == 0
+    assert same >= len(nus) - 3
