@@ -501,7 +501,9 @@ def stdtrit(df, p):
     if work.any():
         n, qq = nu[work], q[work]
         lg = gammaln
-        log_beta = lg(0.5 * n) + lg(0.5) - lg(0.5 * n + 0.5)
+        # ln B(nu/2, 1/2) once per distinct nu (math.lgamma element by element)
+        nus, which = np.unique(n, return_inverse=True)
+        log_beta = (lg(0.5 * nus) + lg(0.5) - lg(0.5 * nus + 0.5))[which.ravel()]
         log_c = -log_beta - 0.5 * np.log(n)          # density constant 1/(sqrt(nu) B)
         hi = np.minimum(ndtri(qq), -1e-300)
         lo = -np.exp((log_c + 0.5 * (n - 1.0) * np.log(n) - np.log(qq)) / n)
