@@ -76,17 +76,27 @@ def _geometric_sums(persistence, T):
         x = T * lg
         S = np.where(d == 0.0, T, -np.expm1(x) / d)
         direct = (np.expm1(x) - T * np.expm1(lg)) / (d * d)
-        # series of the bracket for |T l| < 0.5: 40 terms reach rounding
+        # series of the bracket for |T l| < 0.5: 40 terms reach rounding (summed for
+        # those elements only: each element's terms are its own)
         small = np.abs(x) < 0.5
-        a = x.copy()              # (T l)^m / m!
-        b = lg * np.ones_like(x)  # l^m / m!
-        acc = np.zeros(np.broadcast(x, T).shape)
-        for m in range(2, 42):
-            a = a * x / m
-            b = b * lg / m
-            acc = acc + (a - T * b)
-        series = acc / (d * d)
-        D = np.where(d == 0.0, 0.5 * T * (T - 1.0), np.where(small, series, direct))
+        D = direct
+        if np.any(small):
+            shape = np.broadcast(x, T, d).shape
+            i = np.broadcast_to(small, shape)
+            xs = np.broadcast_to(x, shape)[i]
+            ls = np.broadcast_to(lg, shape)[i]
+            Ts = np.broadcast_to(T, shape)[i]
+            ds = np.broadcast_to(d, shape)[i]
+            a = xs.copy()             # (T l)^m / m!
+            b = ls.copy()             # l^m / m!
+            acc = np.zeros_like(xs)
+            for m in range(2, 42):
+                a = a * xs / m
+                b = b * ls / m
+                acc = acc + (a - Ts * b)
+            D = np.array(np.broadcast_to(direct, shape))
+            D[i] = acc / (ds * ds)
+        D = np.where(d == 0.0, 0.5 * T * (T - 1.0), D)
         # far from one (including p = 0, where ln p = -inf) the plain forms are exact
         far = d >= 0.5
         if np.any(far):
@@ -278,3 +288,4 @@ def egarch_forecast_variance(last_variance: float, omega: float, alpha: float,
 def annualise(avg_daily_variance) -> np.ndarray:
     """``sqrt(252 * average daily variance)``: annualised decimal volatility."""
     return np.sqrt(TRADING_DAYS_PER_YEAR * np.asarray(avg_daily_variance, dtype=float))
+
