@@ -546,11 +546,15 @@ def stdtrit(df, p):
 def _betacf_one(a: float, b: float, x: np.ndarray) -> np.ndarray:
     """The continued fraction of :func:`_betacf` for one pair ``(a, b)``: the same
     fraction (DLMF 8.17.22, modified Lentz), with each coefficient's ``(a, b, m)``
-    part computed once as a Python float and the whole array stepped in place until
-    every element has converged. Elements whose Lentz denominators come near zero
-    (not expected where the fraction is used) are recomputed by :func:`_betacf`."""
-    tiny = 1e-300
+    part computed once as a Python float and the arrays stepped in place; elements
+    leave once their last factor is within two units in the last place of one (when
+    half of those still running have). Elements whose Lentz denominators come near
+    zero (a non-finite or zero result; not expected where the fraction is used) are
+    recomputed by :func:`_betacf`, which guards them.""" 
     qab, qap, qam = a + b, a + 1.0, a - 1.0
+    x0 = x
+    out = np.empty_like(x)
+    idx = None                     # positions in ``out`` of the running elements
     c = np.ones_like(x)
     d = x * (-qab / qap)
     d += 1.0
@@ -572,12 +576,26 @@ def _betacf_one(a: float, b: float, x: np.ndarray) -> np.ndarray:
             h *= step
         step -= 1.0
         np.abs(step, out=step)
-        if step.max() <= 4.5e-16:         # two units in the last place of 1
+        done = step <= 4.5e-16            # two units in the last place of 1
+        n_done = np.count_nonzero(done)
+        if n_done == done.size:
             break
-    bad = ~np.isfinite(h) | (np.abs(d) > 1.0 / tiny) | (np.abs(c) < tiny)
+        if 2 * n_done >= done.size:
+            if idx is None:
+                idx = np.arange(x.size)
+            out[idx[done]] = h[done]
+            keep = ~done
+            idx, x, c, d, h = idx[keep], x[keep], c[keep], d[keep], h[keep]
+            aa, step = aa[:x.size], step[:x.size]
+    if idx is None:
+        out = h
+    else:
+        out[idx] = h
+    bad = ~np.isfinite(out) | (out == 0.0)
     if bad.any():
-        h[bad] = _betacf(np.full(int(bad.sum()), a), np.full(int(bad.sum()), b), x[bad])
-    return h
+        k = int(bad.sum())
+        out[bad] = _betacf(np.full(k, a), np.full(k, b), x0[bad])
+    return out
 
 
 def _t_lower_cdf_one(t, nu: float, log_beta: float):
