@@ -159,8 +159,7 @@ def std_t_draws_fast(rng: np.random.Generator, nu: float, size) -> np.ndarray:
         np.add(out, shift, out=p)
         p *= scale
         np.clip(p, lo, hi, out=p)
-        np.trunc(p, out=c)
-        p -= c                          # exact: p and its whole part share an exponent
+        np.modf(p, out=(p, c))          # p - trunc(p), exact, and trunc(p)
         np.copyto(i, c, casting="unsafe")
         np.take(slope, i, out=out)
         out *= p
