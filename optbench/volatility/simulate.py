@@ -134,6 +134,7 @@ def day_blocks(model: str, params: dict, dist: str, last_variance: float, horizo
     days = max(1, min(horizon, BLOCK_ELEMENTS // n_paths))
     shape = (days, n_paths)
     mult = np.empty(shape, np.float32) if linear else None
+    mult64 = np.empty(shape) if linear else None
     neg = np.empty(shape, np.float32) if linear and gamma else None
     rb = np.empty(shape) if r_out is None else None
     vb = np.empty(shape) if v_out is None else None
@@ -161,12 +162,14 @@ def day_blocks(model: str, params: dict, dist: str, last_variance: float, horizo
                 g *= np.float32(gamma)
                 m += g
             m += np.float32(beta)
+            m64 = mult64[:n]
+            np.copyto(m64, m)          # exact; the day's multiply then runs in one type
             for k in range(n - 1):   # loop over days only; vectorised over paths
                 nxt = v[k + 1]
-                np.multiply(v[k], m[k], out=nxt)
+                np.multiply(v[k], m64[k], out=nxt)
                 nxt += omega
             if t1 < horizon:
-                np.multiply(v[n - 1], m[n - 1], out=carry)
+                np.multiply(v[n - 1], m64[n - 1], out=carry)
                 carry += omega
             np.sqrt(v, out=r)
             r *= zb
