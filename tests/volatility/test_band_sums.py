@@ -63,3 +63,34 @@ def test_geometric_sums_against_the_definitions(p, T):
     got_S, got_D = _geometric_sums(p, float(T))
     assert float(got_S) == pytest.approx(S, rel=1e-13, abs=1e-300)
     assert float(got_D) == pytest.approx(D, rel=1e-12, abs=1e-300)
+
+
+@pytest.mark.parametrize("model", ["garch", "gjr", "egarch"])
+@pytest.mark.parametrize("with_mu", [True, False])
+@pytest.mark.parametrize("days", [1, 7, 8, 9, 500])
+def test_refilter_is_next_variance_day_by_day(model, with_mu, days):
+    """The band's re-filter of recent returns with every parameter draw against the
+    recursion stepped one day at a time by VolSpec.next_variance (Bollerslev 1986
+    GARCH, Glosten-Jagannathan-Runkle 1993 GJR, Nelson 1991 EGARCH): the same floats."""
+    from optbench.volatility.forecast import refilter_variance
+    from optbench.volatility.specs import get_spec
+
+    g = np.random.default_rng(days)
+    n = 300
+    if model == "egarch":
+        P = dict(omega=g.uniform(-0.3, -0.1, n), alpha=g.uniform(0.05, 0.2, n),
+                 gamma=g.uniform(-0.1, 0.0, n), beta=g.uniform(0.95, 0.99, n))
+    else:
+        P = dict(omega=g.uniform(1e-6, 3e-6, n), alpha=g.uniform(0.0, 0.08, n),
+                 beta=g.uniform(0.85, 0.9, n))
+        if model == "gjr":
+            P["gamma"] = g.uniform(-0.02, 0.15, n)      # a negative gamma or two
+    if with_mu:
+        P["mu"] = g.normal(3e-4, 1e-4, n)
+    y = g.standard_t(5, days) * 0.01
+    s0 = np.full(n, 1.1e-4)
+    spec, s2, mu = get_spec(model), s0, P.get("mu", 0.0)
+    for t in range(days):
+        s2 = spec.next_variance(y[t] - mu, s2, P)
+    got = refilter_variance(model, y, P, s0)
+    assert np.array_equal(got, s2) and np.all(s0 == 1.1e-4)    # input left alone
