@@ -194,19 +194,93 @@ class TerminalDraws:
         return int(hit[0]) if hit.size else None
 
 
-def _sums_at_horizons(r: np.ndarray, v: np.ndarray, a: float, convexity: float,
-                      h: np.ndarray):
-    """Per path, the sums over the first ``h`` days (each ``h`` in the array) of
-    :math:`r_i - a + c\\,v_i/2` (the shocks :math:`\\sigma_i z_i`), of :math:`v_i` and
-    of :math:`r_i^2`; ``r``, ``v`` laid out (days, paths).
+#: below this many paths a reduction along the days may be summed pairwise (numpy
+#: sums a short row's column as one contiguous run): add day by day instead
+_MIN_PATHS_TO_REDUCE = 16
 
-    The same additions in the same order as a cumulative sum along the days read at
-    each horizon, so the figures are those of ``np.cumsum(...)[:, h - 1]`` to the last
-    bit, without holding every day's running sum (paths x days) in memory.
-    Returns three arrays of shape ``(paths, len(h))``.
+
+class _RunningSums:
+    """Per path, the running sums over the days of :math:`r_i - a + c\\,v_i/2` (the
+    shocks :math:`\\sigma_i z_i`), of :math:`v_i` and of :math:`r_i^2`, read at each
+    horizon in ``h``; fed a block of consecutive days at a time (laid out (days,
+    paths)), which it uses as scratch space.
+
+    The additions are those of a cumulative sum along the days, in day order, so the
+    figures are those of ``np.cumsum(...)[h - 1]`` to the last bit, without holding
+    every day's running sum (paths x days) in memory: the days between two horizons
+    (or block edges) are summed by one reduction along the days, row after row,
+    whose first row has the running sum so far added to it.
     """
-    want = np.unique(h)
-    where = np.searchsorted(want, h)
+
+    def __init__(self, n_paths: int, h: np.ndarray, a: float, convexity: float):
+        self.want = np.unique(h)
+        self.where = np.searchsorted(self.want, h)
+        self.a, self.convexity = a, convexity
+        self.out = np.empty((3, self.want.size, n_paths))
+        self.acc = np.zeros((3, n_paths))
+        self.k = 0
+        self.started = False
+        self.shock = None
+
+    def add(self, t0: int, r: np.ndarray, v: np.ndarray, half_v: np.ndarray | None):
+        """Take in days ``t0 ..`` (``r`` and ``v`` are overwritten; ``half_v`` is
+        ``v / 2`` when already formed)."""
+        last = int(self.want[-1])
+        n = min(r.shape[0], last - t0)
+        if n <= 0:
+            return
+        r, v = r[:n], v[:n]
+        if self.shock is None or self.shock.shape[0] < n:
+            self.shock = np.empty(r.shape)
+        shock = np.subtract(r, self.a, out=self.shock[:n])
+        if self.convexity:
+            shock += np.multiply(v, 0.5) if half_v is None else half_v[:n]
+        sq = np.multiply(r, r, out=r)
+        s = 0
+        while s < n:
+            e = min(n, int(self.want[self.k]) - t0)
+            for j, x in enumerate((shock, v, sq)):
+                self._sum_rows(x[s:e], self.acc[j])
+            self.started = True
+            if t0 + e == self.want[self.k]:
+                self.out[:, self.k] = self.acc
+                self.k += 1
+            s = e
+
+    def _sum_rows(self, x: np.ndarray, acc: np.ndarray):
+        if x.shape[1] < _MIN_PATHS_TO_REDUCE:
+            for row in x:
+                acc += row
+            return
+        if self.started:
+            x[0] += acc                      # the running sum so far, then day order
+        np.add.reduce(x, axis=0, out=acc)
+
+    def result(self):
+        """``(shock, variance, squares)`` sums, each of shape ``(paths, len(h))``."""
+        o, w = self.out, self.where
+        return o[0, w].T, o[1, w].T, o[2, w].T
+
+
+def _sums_at_horizons(r: np.ndarray, v: np.ndarray, a: float, convexity: float,
+                      h: np.ndarray, *, half_v: np.ndarray | None = None,
+                      overwrite: bool = False):
+    """Per path, the sums over the first ``h`` days (each ``h`` in the array) of
+    :math:`r_i - a + c\\,v_i/2`, of :math:`v_i` and of :math:`r_i^2`, for ``r``, ``v``
+    laid out (days, paths) (:class:`_RunningSums` fed all days at once; ``half_v`` is
+    ``v / 2`` when already formed, ``overwrite`` lets it use ``r`` and ``v`` as scratch).
+    The figures of ``np.cumsum(...)[h - 1]`` to the last bit. Returns three arrays of
+    shape ``(paths, len(h))``.
+    """
+    if not overwrite:
+        r, v = r.copy(), v.copy()
+    sums = _RunningSums(r.shape[1], h, a, convexity)
+    sums.add(0, r, v, half_v)
+    return sums.result()
+
+
+def _sums_day_by_day(r, v, a, convexity, want, where):
+    """The sums of :func:`_sums_at_horizons` added one day at a time (its reference)."""
     n = r.shape[1]
     out = np.empty((3, want.size, n))
     acc = np.zeros((3, n))
@@ -237,7 +311,7 @@ def simulate_terminal(fit, choice: DriftChoice, trading_days, taus, rates, carri
     random numbers of a day are drawn in the same order whatever the longest
     horizon), so a column is the same as a simulation of its expiry alone.
     """
-    from optbench.volatility.simulate import simulate_paths
+    from optbench.volatility.simulate import day_blocks
 
     h = np.maximum(np.atleast_1d(np.asarray(trading_days, int)), 1)
     taus = np.atleast_1d(np.asarray(taus, float))
@@ -245,12 +319,15 @@ def simulate_terminal(fit, choice: DriftChoice, trading_days, taus, rates, carri
     carries = np.broadcast_to(np.asarray(carries, float), h.shape)
     fitted = choice.rule == "fitted"
     daily = None if fitted else choice.annual / TRADING_DAYS_PER_YEAR
-    sim = simulate_paths(fit.model, fit.params, fit.dist, fit.last_variance,
-                         int(h.max()), int(n_paths), seed, drift=daily)
     a = float(fit.params.get("mu", 0.0) or 0.0) if fitted else daily
     c = 0.0 if fitted else 1.0
-    # the simulation's own (days, paths) layout: each day is one contiguous row
-    shock, var, sq = _sums_at_horizons(sim.returns.T, sim.variances.T, a, c, h)
+    # the simulation a block of days at a time, summed as it goes (each day one
+    # contiguous row of its block)
+    sums = _RunningSums(int(n_paths), h, a, c)
+    for t0, r, v, half_v in day_blocks(fit.model, fit.params, fit.dist, fit.last_variance,
+                                       int(h.max()), int(n_paths), seed, drift=daily):
+        sums.add(t0, r, v, half_v)
+    shock, var, sq = sums.result()
     rv = np.sqrt(TRADING_DAYS_PER_YEAR / h * sq)
     if fitted:
         log_drift = h * a - carries * taus

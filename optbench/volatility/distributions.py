@@ -12,7 +12,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from optbench.pricing.special import digamma, gammaln, ndtr, stdtrit
+from optbench.pricing.special import digamma, gammaln, ndtr, stdtrit_one_df
 
 LOG_2PI = math.log(2.0 * math.pi)
 NU_MIN = 2.05   # smallest degrees of freedom allowed (variance must exist)
@@ -115,11 +115,16 @@ _GRID_STEPS = 8192
 def _normal_to_t_table(nu: float):
     """Nodes of the map x -> F_t^{-1}(Phi(x)) * sqrt((nu-2)/nu) on [-8, 8]."""
     x = np.linspace(-_GRID_HALF_WIDTH, 0.0, _GRID_STEPS // 2 + 1)
-    left = stdtrit(nu, ndtr(x)) * math.sqrt((nu - 2.0) / nu)   # lower half, by symmetry
+    left = stdtrit_one_df(nu, ndtr(x)) * math.sqrt((nu - 2.0) / nu)   # lower half, by symmetry
     vals = np.concatenate([left, -left[-2::-1]])
     vals[_GRID_STEPS // 2] = 0.0
     slope = np.diff(vals)
     return vals[:-1].astype(np.float32), slope.astype(np.float32)
+
+
+#: draws transformed per chunk by :func:`std_t_draws_fast` (scratch arrays that stay
+#: in the processor's cache instead of array-sized temporaries)
+_CHUNK = 1 << 14
 
 
 def std_t_draws_fast(rng: np.random.Generator, nu: float, size) -> np.ndarray:
@@ -133,19 +138,34 @@ def std_t_draws_fast(rng: np.random.Generator, nu: float, size) -> np.ndarray:
     (relative error in z below 2e-5); normals beyond +-8 (probability 1e-15) are
     clipped.
     About twice as fast as the normal / chi-square mixture of :func:`std_t_draws`.
+    The normals are transformed in place, a chunk at a time, in float32:
+    ``p = clip((x + 8) * 512, 0, 8192 - 1e-3)``, ``i = trunc(p)``,
+    ``z = slope[i] (p - i) + value[i]``.
     """
     vals, slope = _normal_to_t_table(float(nu))
     x = rng.standard_normal(size, dtype=np.float32)
-    pos = x
-    pos += np.float32(_GRID_HALF_WIDTH)
-    pos *= np.float32(_GRID_STEPS / (2 * _GRID_HALF_WIDTH))
-    np.clip(pos, 0.0, np.float32(_GRID_STEPS - 1e-3), out=pos)
-    i = pos.astype(np.int32)
-    pos -= i
-    out = slope[i]
-    out *= pos
-    out += vals[i]
-    return out
+    flat = x.reshape(-1)          # a view: x is freshly allocated and contiguous
+    m = max(1, min(_CHUNK, flat.size))
+    pos = np.empty(m, np.float32)
+    cell = np.empty(m, np.float32)
+    idx = np.empty(m, np.intp)
+    term = np.empty(m, np.float32)
+    lo, hi = np.float32(0.0), np.float32(_GRID_STEPS - 1e-3)
+    shift, scale = np.float32(_GRID_HALF_WIDTH), np.float32(_GRID_STEPS / (2 * _GRID_HALF_WIDTH))
+    for s in range(0, flat.size, m):
+        out = flat[s:s + m]
+        k = out.size
+        p, c, i, t = pos[:k], cell[:k], idx[:k], term[:k]
+        np.add(out, shift, out=p)
+        p *= scale
+        np.clip(p, lo, hi, out=p)
+        np.modf(p, out=(p, c))          # p - trunc(p), exact, and trunc(p)
+        np.copyto(i, c, casting="unsafe")
+        np.take(slope, i, out=out)
+        out *= p
+        np.take(vals, i, out=t)
+        out += t
+    return x
 
 
 @dataclass(frozen=True)

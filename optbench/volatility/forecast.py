@@ -76,17 +76,27 @@ def _geometric_sums(persistence, T):
         x = T * lg
         S = np.where(d == 0.0, T, -np.expm1(x) / d)
         direct = (np.expm1(x) - T * np.expm1(lg)) / (d * d)
-        # series of the bracket for |T l| < 0.5: 40 terms reach rounding
+        # series of the bracket for |T l| < 0.5: 40 terms reach rounding (summed for
+        # those elements only: each element's terms are its own)
         small = np.abs(x) < 0.5
-        a = x.copy()              # (T l)^m / m!
-        b = lg * np.ones_like(x)  # l^m / m!
-        acc = np.zeros(np.broadcast(x, T).shape)
-        for m in range(2, 42):
-            a = a * x / m
-            b = b * lg / m
-            acc = acc + (a - T * b)
-        series = acc / (d * d)
-        D = np.where(d == 0.0, 0.5 * T * (T - 1.0), np.where(small, series, direct))
+        D = direct
+        if np.any(small):
+            shape = np.broadcast(x, T, d).shape
+            i = np.broadcast_to(small, shape)
+            xs = np.broadcast_to(x, shape)[i]
+            ls = np.broadcast_to(lg, shape)[i]
+            Ts = np.broadcast_to(T, shape)[i]
+            ds = np.broadcast_to(d, shape)[i]
+            a = xs.copy()             # (T l)^m / m!
+            b = ls.copy()             # l^m / m!
+            acc = np.zeros_like(xs)
+            for m in range(2, 42):
+                a = a * xs / m
+                b = b * ls / m
+                acc = acc + (a - Ts * b)
+            D = np.array(np.broadcast_to(direct, shape))
+            D[i] = acc / (ds * ds)
+        D = np.where(d == 0.0, 0.5 * T * (T - 1.0), D)
         # far from one (including p = 0, where ln p = -inf) the plain forms are exact
         far = d >= 0.5
         if np.any(far):
@@ -278,3 +288,62 @@ def egarch_forecast_variance(last_variance: float, omega: float, alpha: float,
 def annualise(avg_daily_variance) -> np.ndarray:
     """``sqrt(252 * average daily variance)``: annualised decimal volatility."""
     return np.sqrt(TRADING_DAYS_PER_YEAR * np.asarray(avg_daily_variance, dtype=float))
+
+
+
+#: days of one block of :func:`refilter_variance` (its scratch arrays, days x draws,
+#: stay in the processor's cache)
+_REFILTER_DAYS = 8
+
+
+def refilter_variance(model: str, returns, params: dict, s2) -> np.ndarray:
+    """sigma^2 for the day after ``returns``, filtered from ``s2`` (the variance of the
+    first return's day) with each parameter draw: ``params`` holds arrays over the
+    draws (``mu`` optional), ``s2`` one value per draw. The step of the forecast band
+    that re-filters the recent returns with every draw.
+
+    Notes
+    -----
+    GARCH and GJR: ``sigma^2_{t+1} = (omega + alpha e_t^2) + beta sigma^2_t
+    + gamma 1[e_t < 0] e_t^2`` with ``e_t = y_t - mu`` (Bollerslev 1986; Glosten,
+    Jagannathan and Runkle 1993), added in the order of
+    :meth:`optbench.volatility.specs.VolSpec.next_variance`, so the floats are that
+    function's; the terms without ``sigma^2_t`` are formed for a few days at a time,
+    leaving a multiply and two additions a day. EGARCH and EWMA step
+    ``next_variance`` day by day.
+    """
+    from optbench.volatility.specs import get_spec
+
+    y = np.asarray(returns, dtype=float)
+    mu = params.get("mu", 0.0)
+    if model not in ("garch", "gjr"):
+        spec = get_spec(model)
+        for t in range(y.shape[0]):
+            s2 = spec.next_variance(y[t] - mu, s2, params)
+        return s2
+    omega, alpha, beta = params["omega"], params["alpha"], params["beta"]
+    gamma = params["gamma"] if model == "gjr" else None
+    s2 = np.array(s2, dtype=float)
+    shape = (min(_REFILTER_DAYS, max(y.shape[0], 1)), s2.shape[0])
+    e, e2, base = np.empty(shape), np.empty(shape), np.empty(shape)
+    if gamma is not None:
+        lev, neg = np.empty(shape), np.empty(shape, dtype=bool)
+    for t0 in range(0, y.shape[0], shape[0]):
+        n = min(shape[0], y.shape[0] - t0)
+        E, E2, B = e[:n], e2[:n], base[:n]
+        np.subtract(y[t0:t0 + n, None], mu, out=E)
+        np.multiply(E, E, out=E2)
+        np.multiply(alpha, E2, out=B)
+        B += omega                              # omega + alpha e^2
+        if gamma is not None:
+            L, N = lev[:n], neg[:n]
+            np.less(E, 0.0, out=N)
+            L.fill(0.0)
+            np.copyto(L, E2, where=N)
+            L *= gamma                          # gamma 1[e < 0] e^2
+        for k in range(n):
+            np.multiply(beta, s2, out=s2)
+            s2 += B[k]
+            if gamma is not None:
+                s2 += L[k]
+    return s2

@@ -877,14 +877,11 @@ class GarchFit:
             lo = hi = point
             return (float(lo[0]), float(hi[0])) if scalar else (lo.copy(), hi.copy())
         P = {n: v[idx] for n, v in P.items()}
-        spec = get_spec(self.model)
         y = self.returns
         n = y.shape[0]
         K = min(window, n)
         s2 = np.full(idx.size, self.conditional_vol[n - K] ** 2)
-        mu = P.get("mu", 0.0)
-        for t in range(n - K, n):
-            s2 = spec.next_variance(y[t] - mu, s2, P)
+        s2 = fc.refilter_variance(self.model, y[n - K:], P, s2)
         if self.model in ("garch", "gjr"):
             g = P.get("gamma", 0.0)
             pers = P["alpha"] + 0.5 * g + P["beta"]

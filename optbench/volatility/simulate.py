@@ -89,51 +89,121 @@ def simulate_paths(model: str, params: dict, dist: str, last_variance: float,
     transform of normals, :func:`optbench.volatility.distributions.std_t_draws_fast`);
     the recursion runs in float64.
     """
+    r, v = simulate_days(model, params, dist, last_variance, horizon, n_paths, seed,
+                         drift)
+    return SimulatedPaths(returns=r.T, variances=v.T)
+
+
+def _draws(rng: np.random.Generator, dist: str, params: dict, size) -> np.ndarray:
+    """Unit-variance innovations, float32, laid out (days, paths)."""
+    if dist == "t":
+        return std_t_draws_fast(rng, float(params["nu"]), size)
+    return rng.standard_normal(size, dtype=np.float32)
+
+
+#: elements (days x paths) of one block of days worked through at a time: the scratch
+#: arrays of a block stay in the processor's cache, and no array of every day's
+#: temporaries is allocated (fresh memory costs more than the arithmetic on it)
+BLOCK_ELEMENTS = 1 << 15
+
+
+def day_blocks(model: str, params: dict, dist: str, last_variance: float, horizon: int,
+               n_paths: int, seed=None, drift: float | None = None, *,
+               r_out: np.ndarray | None = None, v_out: np.ndarray | None = None):
+    """The simulation of :func:`simulate_paths`, a block of consecutive days at a time.
+
+    Yields ``(t0, r, v, half_v)`` per block: the block's first day, its daily log
+    returns and conditional variances (laid out (days, paths)) and, when ``drift``
+    is given, the ``v / 2`` subtracted from the returns (else None). Without
+    ``r_out`` / ``v_out`` (arrays (horizon, paths)) the blocks are scratch arrays
+    reused for the next block, which the consumer may overwrite; with them, the
+    blocks are views into them. The numbers are those of the day-by-day simulation
+    to the last bit: the random numbers are drawn at once, in the same order, and
+    every day's operations are the same, only grouped over the days of a block.
+    """
     if horizon < 1 or n_paths < 1:
         raise ValueError("horizon and n_paths must be positive")
     spec = get_spec(model)
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
-    size = (horizon, n_paths)
-    if dist == "t":
-        z = std_t_draws_fast(rng, float(params["nu"]), size)
-    else:
-        z = rng.standard_normal(size, dtype=np.float32)
+    z = _draws(rng, dist, params, (horizon, n_paths))
     mu = float(params.get("mu", 0.0))
-    r = np.empty(size)
-    v = np.empty(size)
-    s2 = np.full(n_paths, float(last_variance))
-    if model in ("garch", "gjr"):
-        # e_t^2 = sigma_t^2 z_t^2 and 1[e_t < 0] = 1[z_t < 0], so
-        # sigma^2_{t+1} = omega + sigma^2_t * (beta + z_t^2 (alpha + gamma 1[z_t < 0])):
-        # the multiplier is built for all days at once, the loop is a multiply-add
+    linear = model in ("garch", "gjr")
+    if linear:
         omega, alpha, beta = (float(params[k]) for k in ("omega", "alpha", "beta"))
         gamma = float(params.get("gamma", 0.0))
-        mult = z * z
-        mult *= np.float32(alpha)
-        if gamma:
-            neg = np.minimum(z, np.float32(0.0))
-            neg *= neg
-            neg *= np.float32(gamma)
-            mult += neg
-        mult += np.float32(beta)
-        for t in range(horizon):   # loop over days only; vectorised over paths
-            v[t] = s2
-            np.sqrt(s2, out=r[t])
-            r[t] *= z[t]
-            if t + 1 < horizon:
-                s2 = s2 * mult[t]
-                s2 += omega
-    else:
-        for t in range(horizon):
-            v[t] = s2
-            e = r[t]
-            np.sqrt(s2, out=e)
-            e *= z[t]
-            if t + 1 < horizon:
-                s2 = spec.next_variance(e, s2, params)
-    if drift is not None:
-        r += float(drift)
-        r -= 0.5 * v
-    elif mu:
-        r += mu
-    return SimulatedPaths(returns=r.T, variances=v.T)
+    days = max(1, min(horizon, BLOCK_ELEMENTS // n_paths))
+    shape = (days, n_paths)
+    mult = np.empty(shape, np.float32) if linear else None
+    mult64 = np.empty(shape) if linear else None
+    neg = np.empty(shape, np.float32) if linear and gamma else None
+    rb = np.empty(shape) if r_out is None else None
+    vb = np.empty(shape) if v_out is None else None
+    hb = np.empty(shape) if drift is not None else None
+    carry = np.full(n_paths, float(last_variance))   # sigma^2 of the block's first day
+    for t0 in range(0, horizon, days):
+        t1 = min(t0 + days, horizon)
+        n = t1 - t0
+        zb = z[t0:t1]
+        r = rb[:n] if r_out is None else r_out[t0:t1]
+        v = vb[:n] if v_out is None else v_out[t0:t1]
+        v[0] = carry
+        if linear:
+            # e_t^2 = sigma_t^2 z_t^2 and 1[e_t < 0] = 1[z_t < 0], so
+            # sigma^2_{t+1} = omega + sigma^2_t * (beta + z_t^2 (alpha + gamma 1[z_t < 0])):
+            # the multiplier (float32) for the block's days at once, then a
+            # multiply-add a day
+            m = mult[:n]
+            np.multiply(zb, zb, out=m)
+            m *= np.float32(alpha)
+            if gamma:
+                g = neg[:n]
+                np.minimum(zb, np.float32(0.0), out=g)
+                g *= g
+                g *= np.float32(gamma)
+                m += g
+            m += np.float32(beta)
+            m64 = mult64[:n]
+            np.copyto(m64, m)          # exact; the day's multiply then runs in one type
+            for k in range(n - 1):   # loop over days only; vectorised over paths
+                nxt = v[k + 1]
+                np.multiply(v[k], m64[k], out=nxt)
+                nxt += omega
+            if t1 < horizon:
+                np.multiply(v[n - 1], m64[n - 1], out=carry)
+                carry += omega
+            np.sqrt(v, out=r)
+            r *= zb
+        else:
+            for k in range(n):
+                e = r[k]
+                np.sqrt(v[k], out=e)
+                e *= zb[k]
+                if t0 + k + 1 < horizon:
+                    s2 = spec.next_variance(e, v[k], params)
+                    if k + 1 < n:
+                        v[k + 1] = s2
+                    else:
+                        carry[:] = s2
+        h = None
+        if drift is not None:
+            r += float(drift)
+            h = hb[:n]
+            np.multiply(v, 0.5, out=h)
+            r -= h
+        elif mu:
+            r += mu
+        yield t0, r, v, h
+
+
+def simulate_days(model: str, params: dict, dist: str, last_variance: float,
+                  horizon: int, n_paths: int, seed=None, drift: float | None = None):
+    """The arrays behind :func:`simulate_paths`: daily log returns and conditional
+    daily variances laid out (days, paths) (each day one contiguous row), freshly
+    allocated; the numbers of the day-by-day simulation to the last bit (see
+    :func:`day_blocks`)."""
+    r = np.empty((horizon, n_paths)) if horizon >= 1 and n_paths >= 1 else None
+    v = np.empty_like(r) if r is not None else None
+    for _ in day_blocks(model, params, dist, last_variance, horizon, n_paths, seed,
+                        drift, r_out=r, v_out=v):
+        pass
+    return r, v

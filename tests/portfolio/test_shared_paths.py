@@ -90,13 +90,13 @@ def test_joint_paths_from_shared_draws(comparison, demo_fit, drift):
 def test_portfolio_hedge_simulates_the_underlying_once(comparison, demo_fit, monkeypatch):
     import optbench.volatility.simulate as simulate
     calls = []
-    real = simulate.simulate_paths
+    real = simulate.day_blocks    # behind simulate_paths and simulate_terminal alike
 
     def counted(*args, **kwargs):
         calls.append(args[4])                 # the horizon simulated
         return real(*args, **kwargs)
 
-    monkeypatch.setattr(simulate, "simulate_paths", counted)
+    monkeypatch.setattr(simulate, "day_blocks", counted)
     ph = portfolio_hedge(comparison, HedgeRequest(1.0, floor=0.9, days=90),
                          portfolio=demo_fit, menu=True, n_paths=3000, seed=4)
     assert len(calls) == 1 and calls[0] == max(ph.menu.frame["trading_days"].max(),

@@ -131,6 +131,39 @@ def test_student_t_quantile_matches_scipy():
                               sc.stdtrit(nu, sc.ndtr(x)).astype(np.float32)), nu
 
 
+def test_student_t_quantile_of_one_df_matches_scipy():
+    """stdtrit_one_df (Halley steps, one df for a whole array) against
+    scipy.special.stdtrit, and against optbench's own stdtrit (a separate solver)."""
+    p = np.concatenate([np.geomspace(1e-16, 0.5, 400), 1.0 - np.geomspace(1e-12, 0.5, 100),
+                        np.linspace(0.01, 0.99, 99), [0.5]])
+    for nu in (2.05, 2.3, 3.0, 4.0, 5.7, 8.0, 12.3, 30.0, 100.0, 500.0, 1000.0):
+        ours, ref = special.stdtrit_one_df(nu, p), sc.stdtrit(nu, p)
+        assert np.allclose(ours, ref, rtol=1e-12, atol=1e-300), f"scipy.special.stdtrit nu={nu}"
+        own = special.stdtrit(nu, p)
+        tol = 2e-14 if nu <= 100 else 2e-13
+        assert np.allclose(ours, own, rtol=tol, atol=0), f"optbench stdtrit nu={nu}"
+    # the simulation's table grid: t quantiles of normal probabilities on [-8, 0], within
+    # ~1e-13 of scipy.special.stdtrit(nu, scipy.special.ndtr(x)) (scipy's own error
+    # there is of that order: the two optbench solvers agree to 2e-14)
+    x = np.linspace(-8.0, 0.0, 4097)
+    for nu in (2.05, 2.3, 4.1, 5.7, 6.3, 8.0, 12.3, 30.0, 60.0, 100.0):
+        ours, ref = special.stdtrit_one_df(nu, special.ndtr(x)), sc.stdtrit(nu, sc.ndtr(x))
+        assert ours[-1] == 0.0 and ref[-1] == 0.0
+        assert np.allclose(ours[:-1], ref[:-1], rtol=2e-13, atol=0), f"scipy.special.stdtrit nu={nu}"
+        assert np.array_equal(ours.astype(np.float32), ref.astype(np.float32)), nu
+    # nu = 2 closed form t = (2p - 1) / sqrt(2 p (1 - p)) (as above), a textbook table
+    # value t_{0.975, 5} = 2.571 (any Student-t table), edges and scalars
+    q = np.linspace(0.001, 0.999, 999)
+    assert np.allclose(special.stdtrit_one_df(2.0, q), (2 * q - 1) / np.sqrt(2 * q * (1 - q)),
+                       rtol=1e-13, atol=1e-15)
+    assert round(float(special.stdtrit_one_df(5.0, 0.975)), 3) == 2.571
+    assert np.ndim(special.stdtrit_one_df(5.0, 0.975)) == 0
+    edges = special.stdtrit_one_df(5.0, np.array([0.0, 1.0, 0.5, -0.1, 1.1, np.nan]))
+    assert edges[0] == -np.inf and edges[1] == np.inf and edges[2] == 0.0
+    assert np.isnan(edges[3:]).all()
+    assert np.isnan(special.stdtrit_one_df(0.0, [0.2, 0.7])).all()
+
+
 _SWAP = """
 import sys, scipy.special as sc
 import optbench.pricing.bsm, optbench.pricing.greeks, optbench.pricing.lets_be_rational
@@ -142,6 +175,8 @@ for mod in (optbench.pricing.special, optbench.pricing.bsm, optbench.pricing.gre
     for name in ("ndtr", "ndtri", "erfcx", "gammaln", "digamma", "stdtrit"):
         if hasattr(mod, name):
             setattr(mod, name, getattr(sc, name))
+    if hasattr(mod, "stdtrit_one_df"):
+        setattr(mod, "stdtrit_one_df", sc.stdtrit)
 from optbench.cli import main
 sys.exit(main(sys.argv[1:]))
 """
