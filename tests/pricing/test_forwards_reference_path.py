@@ -80,3 +80,38 @@ def test_no_quotes_match_the_reference_path():
     assert_bit_identical(implied_forwards(q, SPOT, RATE, YIELD),
                          reference_implied_forwards(q, SPOT, RATE, YIELD))
     assert_bit_identical(parity_pairs(q), reference_parity_pairs(q))
+
+
+def _assert_same_arrays(got, want) -> None:
+    assert len(got) == len(want)
+    for g, w in zip(got, want):
+        g, w = np.ascontiguousarray(g), np.ascontiguousarray(w)
+        assert g.dtype == w.dtype and g.shape == w.shape
+        assert np.array_equal(g.view(np.uint8), w.view(np.uint8))
+
+
+@pytest.mark.parametrize("seed", [1, 2])
+def test_quote_vols_match_the_reference_path(seed):
+    """bid/mid/ask vols (American quotes by the tree, with and without cash
+    dividends) from the arrays equal the frame path's, bit for bit."""
+    from optbench.analysis.compare import _quote_vols
+    from optbench.pricing.quotes import quote_implied_vols
+
+    from .reference_quotes import (reference_compare_quote_vols,
+                                   reference_quote_implied_vols)
+
+    q = _awkward(seed)
+    q = q[q["expiry"].notna()].reset_index(drop=True)
+    q["t"] = q["t"].fillna(q["t"].max())
+    for divs in (None, (np.array([0.1, 0.6]), np.array([4.0, 5.0]))):
+        fw = implied_forwards(q, SPOT, RATE, YIELD, dividends=divs)
+        assert_bit_identical(quote_implied_vols(q, fw, SPOT, dividends=divs),
+                             reference_quote_implied_vols(q, fw, SPOT, dividends=divs))
+        _assert_same_arrays(_quote_vols(q, fw, SPOT, divs),
+                            reference_compare_quote_vols(q, fw, SPOT, divs))
+    european = q.drop(columns="style")
+    fw = implied_forwards(european, SPOT, RATE, YIELD)
+    assert_bit_identical(quote_implied_vols(european, fw),
+                         reference_quote_implied_vols(european, fw))
+    with pytest.raises(ValueError, match="no forward for expiry"):
+        quote_implied_vols(q, fw.iloc[1:], SPOT)
