@@ -22,7 +22,7 @@ from optbench.data.columns import SIDE_FIELDS, map_chain_columns, side_of
 from optbench.data.files import RawTable, drop_blank_rows, read_table
 from optbench.data.occ import parse_occ
 from optbench.data.parse import (DATE_MAX, DATE_MIN, call_codes, percent_or_decimal, present,
-                                 style_word, to_date, to_number, to_style)
+                                 date_array, style_word, to_date, to_number, to_style)
 from optbench.data.validate import REASONS, WARNINGS, assign_reasons, quote_warnings
 from optbench.errors import InputError
 
@@ -417,9 +417,8 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         else:
             notes.append("the symbol column is not in OCC form; it is kept but not read")
 
-    expiry_col = to_date(col("expiry")) if col("expiry") is not None else \
-        pd.Series(pd.NaT, index=range(n), dtype="datetime64[ns]")
-    expiry = expiry_col.to_numpy(dtype="datetime64[ns]")
+    expiry = date_array(col("expiry")) if col("expiry") is not None else \
+        np.full(n, np.datetime64("NaT"), dtype="datetime64[ns]")
     strike = to_number(col("strike"), decimal_comma=dc) if col("strike") is not None \
         else np.full(n, np.nan)
     # 1 call, 0 put, -1 empty or unreadable
@@ -532,7 +531,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
             underlying = str(occ["root"].dropna().mode().iloc[0])
 
     other_quote_date = np.zeros(n, bool)
-    qd = to_date(col("quote_date")).to_numpy(dtype="datetime64[ns]") \
+    qd = date_array(col("quote_date")) \
         if col("quote_date") is not None else None
     if asof is not None:
         asof_d, asof_source = _as_date(asof, "--asof"), "caller"

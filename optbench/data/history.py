@@ -22,7 +22,7 @@ import pandas as pd
 
 from optbench.data.columns import map_history_columns
 from optbench.data.files import drop_blank_rows, read_table
-from optbench.data.parse import to_date, to_number
+from optbench.data.parse import date_array, to_number
 from optbench.errors import InputError
 
 GAP_DAYS = 7
@@ -131,7 +131,7 @@ def load_history(path: str | Path) -> PriceHistory:
         raise InputError(path, "missing column 'close' (or an adjusted close)")
     issues: list[str] = []
     dc = raw.decimal_comma
-    dates = to_date(frame[cols["date"]]).to_numpy(dtype="datetime64[ns]")
+    dates = date_array(frame[cols["date"]])
     close = to_number(frame[cols[close_field]], decimal_comma=dc)
 
     bad_date = np.isnat(dates)

@@ -1,0 +1,67 @@
+"""The loaders' fast paths give what their straightforward paths give, cell for cell.
+
+Dates: plain ``YYYY-MM-DD`` cells are read from their code points
+(:func:`optbench.data.parse._plain_iso_dates`); the reference is the format search
+every other cell goes through (:func:`optbench.data.parse._parse_by_format`, which
+is ``pandas.to_datetime`` per format), run on *all* cells. The calendar check (month
+lengths, leap years) is also compared with Python's ``datetime.date``.
+"""
+from __future__ import annotations
+
+import datetime as _dt
+
+import numpy as np
+import pandas as pd
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from optbench.data.parse import (DATE_MAX, DATE_MIN, _parse_by_format, _parse_unique,
+                                 _plain_iso_dates, date_array, to_date)
+
+EDGE_CELLS = ["2026-12-18", "2024-02-29", "2023-02-29", "2026-02-30", "2026-04-31",
+              "2026-13-01", "2026-00-10", "2026-01-00", "1900-01-01", "1899-12-31",
+              "2200-12-31", "2201-01-01", "0000-01-01", "9999-12-31", "2026-1-05",
+              "2026-01-5 ", " 2026-01-05", "2026-01-05T10:30:00", "2026-01-05 16:00",
+              "2026/01/05", "20260105", "01/05/2026", "05-Jan-2026", "2026-01-05Z",
+              "2026_01_05", "２０２６-01-05", "2026-01-0x", "", " ", "nan", "2026-12-1八",
+              "2000-02-29", "1900-02-29", "2100-02-29", "2096-02-29"]
+
+
+def _reference(cells) -> np.ndarray:
+    return _parse_by_format(pd.Series(list(cells), dtype=object)).to_numpy()
+
+
+def test_edge_cells_match_the_format_search():
+    got = _parse_unique(np.array(EDGE_CELLS, dtype=object))
+    np.testing.assert_array_equal(got, _reference(EDGE_CELLS))
+    plain, _ = _plain_iso_dates(np.array(EDGE_CELLS, dtype=object))
+    assert plain.sum() == 6  # the fast path does take the plain, real, in-range ones
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.tuples(st.integers(1850, 2250), st.integers(0, 13),
+                          st.integers(0, 32)), min_size=1, max_size=40),
+       st.lists(st.sampled_from(EDGE_CELLS), max_size=5))
+def test_random_dates_match_the_format_search_and_the_calendar(ymd, extra):
+    ymd = list(dict.fromkeys(ymd))              # the loaders pass distinct cells
+    cells = [f"{y:04d}-{m:02d}-{d:02d}" for y, m, d in ymd]
+    cells += [c for c in dict.fromkeys(extra) if c not in cells]
+    got = _parse_unique(np.array(cells, dtype=object))
+    np.testing.assert_array_equal(got, _reference(cells))
+    for (y, m, d), value in zip(ymd, got):
+        try:
+            day = np.datetime64(_dt.date(y, m, d), "D")   # Python's calendar
+            want = day if DATE_MIN <= day <= DATE_MAX else np.datetime64("NaT")
+        except ValueError:
+            want = np.datetime64("NaT")
+        assert (np.isnat(value) and np.isnat(want)) or value == want
+
+
+def test_columns_of_every_kind_match_the_series_parser():
+    text = pd.Series(["2026-12-18", None, "12/18/2026", "2026-12-18", " ", "bad"])
+    for col in (text, text.astype(object), text.astype("string"),
+                pd.Series([20261218, np.nan, 20270115.0]),
+                pd.Series(pd.to_datetime(["2026-12-18", None]))):
+        np.testing.assert_array_equal(date_array(col), to_date(col).to_numpy())
+    want = _reference(["2026-12-18", "12/18/2026", " ", "bad"])
+    np.testing.assert_array_equal(date_array(text)[[0, 2, 4, 5]], want)
