@@ -697,12 +697,16 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     rejected = pd.concat([rejected, raw_rows], axis=1).sort_values(
         ["line"], kind="stable").reset_index(drop=True)
 
-    counts = pd.Series(reason[rej]).value_counts()
+    found, found_count = np.unique(reason[rej].astype(str), return_counts=True)
+    counts = dict(zip(found.tolist(), found_count.tolist()))
     rejected_counts = {code: int(counts[code]) for code in REASONS if code in counts}
-    per_combo = pd.Series(warn).value_counts()
+    # quotes per flag combination (each combination is one category of ``warn``)
+    per_combo = zip(warn.categories, np.bincount(np.asarray(warn.codes),
+                                                 minlength=len(warn.categories)))
+    per_combo = [(combo, c) for combo, c in per_combo]
     warning_counts = {}
     for f in WARNINGS:
-        count = sum(int(c) for combo, c in per_combo.items() if f in str(combo).split(","))
+        count = sum(int(c) for combo, c in per_combo if f in str(combo).split(","))
         if count:
             warning_counts[f] = count
     quality = Quality(rows_in=n, rows_used=int(kept.sum()), rejected=rejected_counts,

@@ -16,10 +16,30 @@ DATE_FORMATS = ("%Y-%m-%d", "%Y%m%d", "%m/%d/%Y", "%d/%m/%Y", "%d-%b-%Y", "%d %b
                 "%b %d %Y", "%b %d, %Y", "%Y/%m/%d", "%d.%m.%Y", "%d-%b-%y", "%m/%d/%y")
 
 
+def _arrow_strings(col: pd.Series):
+    """The pyarrow array behind a text column on pyarrow storage (pandas' default
+    for text from pandas 3), else None."""
+    dtype = col.dtype
+    if isinstance(dtype, pd.StringDtype) and str(getattr(dtype, "storage", "")).startswith(
+            "pyarrow") and hasattr(col.array, "__arrow_array__"):
+        import pyarrow as pa
+        arr = pa.array(col.array)
+        return arr.combine_chunks() if isinstance(arr, pa.ChunkedArray) else arr
+    return None
+
+
 def present(col: pd.Series) -> np.ndarray:
     """True where a cell holds something (not NaN and not only blanks)."""
     if col.dtype.kind in "biufcmM":
         return col.notna().to_numpy()
+    arrow = _arrow_strings(col)
+    if arrow is not None:
+        # what ``col.str.strip() != ""`` computes on pyarrow storage, without the
+        # Series around each step
+        import pyarrow.compute as pc
+        filled = pc.not_equal(pc.utf8_trim_whitespace(arrow), "")
+        return np.asarray(pc.fill_null(filled, False).to_numpy(zero_copy_only=False),
+                          dtype=bool)
     has = col.notna().to_numpy(dtype=bool)
     if isinstance(col.dtype, pd.StringDtype):
         text = col.str.strip()

@@ -103,6 +103,24 @@ def no_arbitrage_bounds(spot: float, strike: np.ndarray, t: np.ndarray, rate: fl
     return lower, upper
 
 
+def first_of_contract(*keys: np.ndarray) -> np.ndarray:
+    """For each row, the position of the first row with the same key (the row itself
+    when it is the first): keys compared column by column, missing values (NaN, NaT)
+    equal to each other, as ``pandas.DataFrame.duplicated`` compares rows.
+
+    Each column is coded by ``pandas.factorize``; the codes are combined two columns
+    at a time into one integer (re-coded after each step, so it never overflows) and
+    ``np.unique`` (a stable sort) finds each key's first row.
+    """
+    ids = np.zeros(len(keys[0]), dtype=np.int64)
+    for col in keys:
+        codes, uniq = pd.factorize(col, use_na_sentinel=False)
+        ids = ids * max(len(uniq), 1) + codes
+        ids = np.unique(ids, return_inverse=True)[1].ravel()
+    _, first, inverse = np.unique(ids, return_index=True, return_inverse=True)
+    return first[inverse.ravel()]
+
+
 def assign_reasons(p, *, spot: float, rate: float, div_yield: float,
                    max_spread: float | None,
                    max_strike_ratio: float | None = None,
@@ -170,13 +188,11 @@ def assign_reasons(p, *, spot: float, rate: float, div_yield: float,
     live = a.open.copy()
     is_call = np.asarray(p["is_call"], dtype=bool)
     if live.any():
-        keys = pd.DataFrame({"expiry": np.asarray(p["expiry"])[live], "strike": strike[live],
-                             "is_call": is_call[live], "multiplier": mult[live]})
-        dup = keys.duplicated(keep="first").to_numpy()
+        first = first_of_contract(np.asarray(p["expiry"])[live], strike[live],
+                                  is_call[live], mult[live])
+        dup = first != np.arange(first.size)
         if dup.any():
-            keys["line"] = np.asarray(p["line"])[live]
-            first_line = keys.groupby(["expiry", "strike", "is_call", "multiplier"],
-                                      sort=False)["line"].transform("first").to_numpy()
+            first_line = np.asarray(p["line"])[live][first]
             mask = np.zeros(n, dtype=bool)
             mask[np.flatnonzero(live)[dup]] = True
             lines = np.zeros(n, dtype=np.int64)

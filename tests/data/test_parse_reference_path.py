@@ -65,3 +65,44 @@ def test_columns_of_every_kind_match_the_series_parser():
         np.testing.assert_array_equal(date_array(col), to_date(col).to_numpy())
     want = _reference(["2026-12-18", "12/18/2026", " ", "bad"])
     np.testing.assert_array_equal(date_array(text)[[0, 2, 4, 5]], want)
+
+
+BLANKISH = ["a", " ", "", None, "\u00a0", "\t x", "\u2003", "nan", "\x0b", "\x1c", "\x85",
+            " C ", "\u3000"]
+
+
+def test_present_on_pyarrow_text_matches_the_series_strip():
+    """The pyarrow path of ``present`` against ``Series.str.strip() != ""`` (the
+    reference path), on every text storage."""
+    from optbench.data.parse import present
+
+    for dtype in ("str", "string[pyarrow]", "string[python]", object):
+        col = pd.Series(BLANKISH, dtype=dtype)
+        has = col.notna().to_numpy(dtype=bool)
+        text = col[has].astype(str).str.strip()
+        want = has.copy()
+        want[has] = (text != "").to_numpy(dtype=bool)
+        np.testing.assert_array_equal(present(col), want, err_msg=str(dtype))
+
+
+@settings(max_examples=80, deadline=None)
+@given(st.lists(st.tuples(st.sampled_from(["2026-01-16", "2026-02-20", "NaT"]),
+                          st.sampled_from([95.0, 100.0, 105.0, float("nan")]),
+                          st.booleans(), st.sampled_from([100.0, 10.0, float("nan")])),
+                min_size=1, max_size=60))
+def test_first_of_contract_matches_pandas_duplicated(rows):
+    """Duplicate contracts found by integer codes against
+    ``pandas.DataFrame.duplicated`` and ``groupby(...).transform("first")`` (the
+    reference path; missing values equal to each other)."""
+    from optbench.data.validate import first_of_contract
+
+    keys = pd.DataFrame(rows, columns=["expiry", "strike", "is_call", "multiplier"])
+    keys["expiry"] = pd.to_datetime(keys["expiry"]).astype("datetime64[ns]")
+    cols = [keys[c].to_numpy() for c in keys.columns]
+    first = first_of_contract(*cols)
+    dup = keys.duplicated(keep="first").to_numpy()
+    np.testing.assert_array_equal(first != np.arange(len(keys)), dup)
+    line = np.arange(len(keys)) + 2
+    want = keys.assign(line=line).groupby(list(keys.columns), sort=False, dropna=False)[
+        "line"].transform("first").to_numpy()
+    np.testing.assert_array_equal(line[first], want)
