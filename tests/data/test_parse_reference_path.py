@@ -12,6 +12,7 @@ import datetime as _dt
 
 import numpy as np
 import pandas as pd
+import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -106,3 +107,48 @@ def test_first_of_contract_matches_pandas_duplicated(rows):
     want = keys.assign(line=line).groupby(list(keys.columns), sort=False, dropna=False)[
         "line"].transform("first").to_numpy()
     np.testing.assert_array_equal(line[first], want)
+
+
+def _reference_history_rows(dates: np.ndarray, close: np.ndarray, lines: np.ndarray):
+    """The pandas path the history loader took for its kept rows (reference): a frame
+    sorted stably by date, ``duplicated(keep="last")``, the close's range per date by
+    ``groupby(...).transform``."""
+    df = pd.DataFrame({"date": dates, "close": close, "line": lines})
+    if not df["date"].is_monotonic_increasing:
+        df = df.sort_values("date", kind="stable")
+    dup = df["date"].duplicated(keep="last").to_numpy()
+    spread = df.groupby("date")["close"].transform(lambda c: c.max() - c.min())
+    conflict = dup & (spread.to_numpy() > 0)
+    df = df[~dup]
+    return (df["date"].to_numpy().astype("datetime64[D]"), df["close"].to_numpy(),
+            int((dup & ~conflict).sum()), int(conflict.sum()))
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_history_rows_match_the_frame_path(tmp_path, seed):
+    """Unsorted, repeated and conflicting dates: kept dates, closes and drop counts of
+    :func:`optbench.data.history.load_history` against the frame path."""
+    from optbench.data.history import load_history
+
+    rng = np.random.default_rng(seed)
+    n = 300
+    days = np.datetime64("2024-01-01") + rng.integers(0, 200, n)
+    close = np.round(rng.uniform(90, 110, n), 2)
+    repeat = rng.random(n) < 0.3                # some repeats copy an earlier close
+    prev = rng.integers(0, n, n)
+    days[repeat] = days[prev[repeat]]
+    same = repeat & (rng.random(n) < 0.5)
+    close[same] = close[prev[same]]
+    if seed % 2:
+        order = np.argsort(days, kind="stable")  # sorted files too
+        days, close = days[order], close[order]
+    pd.DataFrame({"date": days.astype(str), "close": close}).to_csv(tmp_path / "h.csv",
+                                                                  index=False)
+    hist = load_history(tmp_path / "h.csv")
+    want_d, want_c, n_same, n_conflict = _reference_history_rows(
+        days.astype("datetime64[ns]"), close, np.arange(n) + 2)
+    np.testing.assert_array_equal(hist.dates, want_d)
+    assert np.array_equal(hist.close.view(np.int64), want_c.view(np.int64))
+    assert hist.dropped.get("duplicate_date", 0) == n_same
+    assert hist.dropped.get("conflicting_date", 0) == n_conflict
+    assert n_same + n_conflict > 0
