@@ -21,8 +21,9 @@ import pandas as pd
 from optbench.data.columns import SIDE_FIELDS, map_chain_columns, side_of
 from optbench.data.files import RawTable, drop_blank_rows, read_table
 from optbench.data.occ import parse_occ
-from optbench.data.parse import (DATE_MAX, DATE_MIN, call_codes, percent_or_decimal, present,
-                                 date_array, style_word, to_date, to_number, to_style)
+from optbench.data.parse import (DATE_MAX, DATE_MIN, arrow_text, call_codes, date_array,
+                                 percent_or_decimal, present, style_word, to_date,
+                                 to_number, to_style)
 from optbench.data.validate import REASONS, WARNINGS, assign_reasons, quote_warnings
 from optbench.errors import InputError
 
@@ -302,6 +303,19 @@ def _column_source(column, in_meta: bool) -> str:
     return "file" if has.all() else f"file+{fallback}"
 
 
+def _single_underlying(column: pd.Series) -> str | None:
+    """The underlying of a text column on pyarrow storage whose non-blank cells all
+    name one underlying (stripped, upper case): what the counting in
+    :func:`load_chain` finds there, without counting. None otherwise."""
+    arrow = arrow_text(column)
+    if arrow is None:
+        return None
+    import pyarrow.compute as pc
+    norm = pc.utf8_upper(pc.utf8_trim_whitespace(arrow))
+    named = pc.unique(pc.filter(norm, pc.fill_null(pc.not_equal(norm, ""), False)))
+    return str(named[0].as_py()) if len(named) == 1 else None
+
+
 def load_chain(path: str | Path, *, spot: float | None = None,
                asof: _dt.date | str | None = None, rate: float | None = None,
                div_yield: float | None = None, style: str | None = None,
@@ -514,7 +528,11 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     # ---- underlying, quote date, spot, rate, yield
     other_underlying = np.zeros(n, bool)
     underlying = ""
-    if col("underlying") is not None:
+    single = _single_underlying(col("underlying")) if col("underlying") is not None \
+        else None
+    if single is not None:
+        underlying = single
+    elif col("underlying") is not None:
         und = col("underlying").astype("string").str.strip().str.upper()
         counts = und[und.notna() & (und != "")].value_counts()
         if len(counts):

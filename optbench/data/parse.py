@@ -16,7 +16,7 @@ DATE_FORMATS = ("%Y-%m-%d", "%Y%m%d", "%m/%d/%Y", "%d/%m/%Y", "%d-%b-%Y", "%d %b
                 "%b %d %Y", "%b %d, %Y", "%Y/%m/%d", "%d.%m.%Y", "%d-%b-%y", "%m/%d/%y")
 
 
-def _arrow_strings(col: pd.Series):
+def arrow_text(col: pd.Series):
     """The pyarrow array behind a text column on pyarrow storage (pandas' default
     for text from pandas 3), else None."""
     dtype = col.dtype
@@ -32,7 +32,7 @@ def present(col: pd.Series) -> np.ndarray:
     """True where a cell holds something (not NaN and not only blanks)."""
     if col.dtype.kind in "biufcmM":
         return col.notna().to_numpy()
-    arrow = _arrow_strings(col)
+    arrow = arrow_text(col)
     if arrow is not None:
         # what ``col.str.strip() != ""`` computes on pyarrow storage, without the
         # Series around each step
@@ -240,8 +240,17 @@ def _vocab(col: pd.Series, words: dict) -> pd.Series:
 
 def call_codes(col: pd.Series) -> np.ndarray:
     """Option type as int8 codes: 1 call, 0 put, -1 empty or unreadable."""
-    codes, uniques = pd.factorize(col, use_na_sentinel=True)
-    keys = pd.Series(uniques, dtype=object).astype("string").str.strip().str.lower()
+    arrow = arrow_text(col)
+    if arrow is not None:
+        # the distinct cells, stripped and lower-cased by the kernels pandas' ``.str``
+        # methods call on pyarrow storage
+        import pyarrow.compute as pc
+        enc = pc.dictionary_encode(arrow)
+        keys = pc.utf8_lower(pc.utf8_trim_whitespace(enc.dictionary)).to_pylist()
+        codes = pc.fill_null(enc.indices, -1).to_numpy(zero_copy_only=False)
+    else:
+        codes, uniques = pd.factorize(col, use_na_sentinel=True)
+        keys = pd.Series(uniques, dtype=object).astype("string").str.strip().str.lower()
     table = np.array([{True: 1, False: 0}.get(_TYPE_WORDS.get(k) if isinstance(k, str)
                                                else None, -1) for k in keys] + [-1],
                      dtype=np.int8)

@@ -152,3 +152,34 @@ def test_history_rows_match_the_frame_path(tmp_path, seed):
     assert hist.dropped.get("duplicate_date", 0) == n_same
     assert hist.dropped.get("conflicting_date", 0) == n_conflict
     assert n_same + n_conflict > 0
+
+
+TYPE_CELLS = ["C", "p", " Call", "PUT ", None, "", "x", "calls", "\u00a0c", "\u0130", "Puts"]
+
+
+def test_call_codes_on_pyarrow_text_match_the_object_path():
+    """Option types read from pyarrow storage by its kernels against the same column
+    as Python objects through pandas' ``.str`` methods (the reference path)."""
+    from optbench.data.parse import call_codes
+
+    want = call_codes(pd.Series(TYPE_CELLS, dtype=object))
+    np.testing.assert_array_equal(want, [1, 0, 1, 0, -1, -1, -1, 1, 1, -1, 0])
+    for dtype in ("str", "string[pyarrow]", "string[python]"):
+        np.testing.assert_array_equal(call_codes(pd.Series(TYPE_CELLS, dtype=dtype)), want)
+
+
+@pytest.mark.parametrize("cells", [["ZPHX", " zphx", None, "", "ZPHX "],
+                                   ["ZPHX", "QRTZ", "ZPHX"], [None, " "], ["qrtz"]])
+def test_single_underlying_matches_the_counting(cells):
+    """The one-underlying shortcut against ``value_counts`` of the stripped,
+    upper-cased cells (the reference path)."""
+    from optbench.data.chain import _single_underlying
+
+    col = pd.Series(cells, dtype="str")
+    und = col.astype("string").str.strip().str.upper()
+    counts = und[und.notna() & (und != "")].value_counts()
+    got = _single_underlying(col)
+    if len(counts) == 1:
+        assert got == str(counts.index[0])
+    else:
+        assert got is None                       # left to the counting
