@@ -704,16 +704,18 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         quotes["symbol"] = sym.iloc[order].reset_index(drop=True)
 
     rej = ~kept
-    rejected = pd.DataFrame({"line": line[rej].astype(np.int64),
-                             "reason": reason[rej].astype(object),
-                             "detail": detail[rej].astype(object)})
+    # the rejected rows in line order (stable: a wide line's call before its put)
+    rej_at = np.flatnonzero(rej)
+    rej_at = rej_at[np.argsort(line[rej_at], kind="stable")]
+    rejected = pd.DataFrame({"line": line[rej_at].astype(np.int64),
+                             "reason": reason[rej_at].astype(object),
+                             "detail": detail[rej_at].astype(object)})
     if side is not None:
-        rejected["side"] = side[rej]
-    raw_rows = frame.iloc[pos[rej]].reset_index(drop=True)
+        rejected["side"] = side[rej_at]
+    raw_rows = frame.iloc[pos[rej_at]].reset_index(drop=True)
     raw_rows.columns = [c if c not in rejected.columns else f"{c} (file)"
                         for c in raw_rows.columns]
-    rejected = pd.concat([rejected, raw_rows], axis=1).sort_values(
-        ["line"], kind="stable").reset_index(drop=True)
+    rejected = pd.concat([rejected, raw_rows], axis=1)
 
     found, found_count = np.unique(reason[rej].astype(str), return_counts=True)
     counts = dict(zip(found.tolist(), found_count.tolist()))
