@@ -20,7 +20,7 @@ import pandas as pd
 
 from optbench.data.columns import SIDE_FIELDS, map_chain_columns, side_of
 from optbench.data.files import RawTable, drop_blank_rows, read_table
-from optbench.data.occ import parse_occ
+from optbench.data.occ import occ_fields
 from optbench.data.parse import (DATE_MAX, DATE_MIN, arrow_text, call_codes, date_array,
                                  percent_or_decimal, present, style_word, to_date,
                                  to_number, to_style)
@@ -423,8 +423,8 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     mismatch_detail = np.full(n, "", dtype=object)
     if sym is not None:
         has_sym = present(sym)
-        parsed = parse_occ(sym.reset_index(drop=True))
-        ok = parsed["ok"].to_numpy()
+        parsed = occ_fields(sym.reset_index(drop=True))
+        ok = parsed["ok"]
         if has_sym.any() and ok[has_sym].mean() >= 0.5:
             occ = parsed
             bad_symbol = has_sym & ~ok
@@ -444,10 +444,10 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     known_type = call_code >= 0
     bad_type = ~miss["type"] & ~known_type
     if occ is not None:
-        ok = occ["ok"].to_numpy()
-        o_exp = occ["expiry"].to_numpy(dtype="datetime64[ns]")
-        o_k = occ["strike"].to_numpy(dtype=float)
-        o_c = occ["is_call"].to_numpy(dtype=bool)
+        ok = occ["ok"]
+        o_exp = occ["expiry"]
+        o_k = occ["strike"]
+        o_c = occ["is_call"]
         both = ok & ~miss["expiry"] & ~bad_date
         m_exp = both & (o_exp != expiry)
         both = ok & ~miss["strike"] & ~bad_strike
@@ -545,8 +545,8 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     if not underlying:
         if meta.get("code"):
             underlying = str(meta["code"])
-        elif occ is not None and occ["root"].notna().any():
-            underlying = str(occ["root"].dropna().mode().iloc[0])
+        elif occ is not None and pd.Series(occ["root"]).notna().any():
+            underlying = str(pd.Series(occ["root"]).dropna().mode().iloc[0])
 
     other_quote_date = np.zeros(n, bool)
     qd = date_array(col("quote_date")) \

@@ -183,3 +183,20 @@ def test_single_underlying_matches_the_counting(cells):
         assert got == str(counts.index[0])
     else:
         assert got is None                       # left to the counting
+
+
+def test_osi_dates_match_pandas_to_datetime():
+    """OCC symbol dates (Options Symbology Initiative: YYMMDD, years 20YY) read from
+    code points against ``pandas.to_datetime("20" + cell, format="%Y%m%d")`` (the
+    reference path), over every YYMMDD of three years and awkward cells."""
+    from optbench.data.occ import _osi_dates
+
+    days = [f"{y:02d}{m:02d}{d:02d}" for y in (0, 24, 99) for m in range(0, 14)
+            for d in range(0, 33)]
+    cells = np.array(days + ["2612", "26121", "2612188", "26-218", "٢٦١٢١٨", "2612 8",
+                             "abcdef"], dtype=object)
+    want = pd.to_datetime("20" + pd.Series(cells, dtype=object).astype(str),
+                          format="%Y%m%d", errors="coerce").to_numpy(dtype="datetime64[ns]")
+    got = _osi_dates(cells)
+    np.testing.assert_array_equal(got, want)
+    assert (~np.isnat(got[:len(days)])).sum() == 3 * 365 + 2   # 2000 and 2024 are leap years
