@@ -224,6 +224,10 @@ def implied_forwards(quotes: pd.DataFrame, spot: float, rate: float, div_yield: 
     order = np.argsort(np.array([r["t"] for r in rows], dtype=float), kind="stable")
     columns = {c: [rows[j][c] for j in order] for c in FORWARD_COLUMNS}
     columns["expiry"] = uniq[order]
+    for c in ("t", "forward", "discount", "rate", "carry", "pv_dividends",
+              "dividend_forward", "cash_carry"):
+        columns[c] = np.array(columns[c], dtype=float)
+    columns["n_pairs"] = np.array(columns["n_pairs"], dtype=np.int64)
     return pd.DataFrame(columns, columns=FORWARD_COLUMNS)
 
 
@@ -231,9 +235,16 @@ def _is_american(style: pd.Series) -> np.ndarray:
     """True where a ``style`` cell reads ``american`` (any case); a categorical
     column is read once per category."""
     if isinstance(style.dtype, pd.CategoricalDtype):
-        cats = pd.Series(style.cat.categories).astype(str).str.lower() == "american"
+        categories = list(style.cat.categories)
+        if all(isinstance(c, str) and c.isascii() for c in categories):
+            # plain ASCII words (the canonical european/american): lower case is the
+            # same by Python's rules and pyarrow's
+            cats = np.array([c.lower() == "american" for c in categories], dtype=bool)
+        else:
+            cats = (pd.Series(style.cat.categories).astype(str).str.lower()
+                    == "american").to_numpy(bool)
         codes = style.cat.codes.to_numpy()
-        table = np.append(cats.to_numpy(bool), str(np.nan).lower() == "american")
+        table = np.append(cats, str(np.nan).lower() == "american")
         return table[codes]
     return (style.astype(str).str.lower() == "american").to_numpy(bool)
 
