@@ -108,17 +108,27 @@ def first_of_contract(*keys: np.ndarray) -> np.ndarray:
     when it is the first): keys compared column by column, missing values (NaN, NaT)
     equal to each other, as ``pandas.DataFrame.duplicated`` compares rows.
 
-    Each column is coded by ``pandas.factorize``; the codes are combined two columns
-    at a time into one integer (re-coded after each step, so it never overflows) and
-    ``np.unique`` (a stable sort) finds each key's first row.
+    Each column is coded by ``pandas.factorize`` (hashing, no sort); the codes are
+    combined into one integer by place value (coded again whenever the product of the
+    columns' sizes could overflow) and coded once more. Those final codes number the
+    keys in order of first appearance, so a key's first row is where its code first
+    exceeds every code before it.
     """
     ids = np.zeros(len(keys[0]), dtype=np.int64)
+    size = 1
     for col in keys:
         codes, uniq = pd.factorize(col, use_na_sentinel=False)
+        if size * max(len(uniq), 1) >= 2 ** 62:
+            ids = pd.factorize(ids)[0].astype(np.int64)
+            size = int(ids.max()) + 1 if ids.size else 1
         ids = ids * max(len(uniq), 1) + codes
-        ids = np.unique(ids, return_inverse=True)[1].ravel()
-    _, first, inverse = np.unique(ids, return_index=True, return_inverse=True)
-    return first[inverse.ravel()]
+        size *= max(len(uniq), 1)
+    ids = pd.factorize(ids)[0].astype(np.int64)
+    if not ids.size:
+        return ids
+    seen_before = np.maximum.accumulate(np.r_[-1, ids[:-1]])
+    first_rows = np.flatnonzero(ids > seen_before)
+    return first_rows[ids]
 
 
 def assign_reasons(p, *, spot: float, rate: float, div_yield: float,

@@ -200,3 +200,20 @@ def test_osi_dates_match_pandas_to_datetime():
     got = _osi_dates(cells)
     np.testing.assert_array_equal(got, want)
     assert (~np.isnat(got[:len(days)])).sum() == 3 * 365 + 2   # 2000 and 2024 are leap years
+
+
+def test_first_of_contract_recodes_wide_keys_like_pandas():
+    """Six keys of 5,000 values each (more combinations than an int64 holds): the
+    re-coding branch against ``pandas.DataFrame.duplicated`` (the reference path)."""
+    from optbench.data.validate import first_of_contract
+
+    rng = np.random.default_rng(11)
+    cols = [rng.integers(0, 5000, 5000) for _ in range(6)]
+    cols[1][:2500] = cols[1][2500:]
+    for c in cols[2:]:
+        c[:2500] = c[2500:]
+    cols[0][:2500] = cols[0][2500:]
+    first = first_of_contract(*cols)
+    dup = pd.DataFrame(dict(enumerate(cols))).duplicated(keep="first").to_numpy()
+    np.testing.assert_array_equal(first != np.arange(5000), dup)
+    assert dup.sum() == 2500
