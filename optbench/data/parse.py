@@ -227,6 +227,17 @@ _STYLE_WORDS = {"european": "european", "e": "european", "eu": "european",
 
 
 def _vocab(col: pd.Series, words: dict) -> pd.Series:
+    arrow = arrow_text(col)
+    if arrow is not None:
+        # the distinct cells, stripped and lower-cased by the kernels pandas' ``.str``
+        # methods call on pyarrow storage (as in :func:`call_codes`)
+        import pyarrow.compute as pc
+        enc = pc.dictionary_encode(arrow)
+        keys = pc.utf8_lower(pc.utf8_trim_whitespace(enc.dictionary)).to_pylist()
+        mapped = np.array([words.get(k) if isinstance(k, str) else None for k in keys]
+                          + [None], dtype=object)
+        at = pc.fill_null(enc.indices, -1).to_numpy(zero_copy_only=False)
+        return pd.Series(mapped[at], index=col.index, dtype=object)
     codes, uniques = pd.factorize(col, use_na_sentinel=True)
     keys = pd.Series(uniques, dtype=object).astype("string").str.strip().str.lower()
     # loops over the distinct values only (a handful), never over rows

@@ -217,3 +217,21 @@ def test_first_of_contract_recodes_wide_keys_like_pandas():
     dup = pd.DataFrame(dict(enumerate(cols))).duplicated(keep="first").to_numpy()
     np.testing.assert_array_equal(first != np.arange(5000), dup)
     assert dup.sum() == 2500
+
+
+STYLE_CELLS = ["european", " American", "E", "am ", None, "", "weird", "EUR", "\u00a0a"]
+
+
+def test_styles_and_types_on_pyarrow_text_match_the_object_path():
+    """Exercise styles and option types read from pyarrow storage against the same
+    column as Python objects (the reference path)."""
+    from optbench.data.parse import to_is_call, to_style
+
+    for fn, cells in ((to_style, STYLE_CELLS), (to_is_call, TYPE_CELLS)):
+        want = fn(pd.Series(cells, dtype=object))
+        for dtype in ("str", "string[pyarrow]", "string[python]"):
+            got = fn(pd.Series(cells, dtype=dtype))
+            pd.testing.assert_series_equal(got, want)
+    assert list(to_style(pd.Series(STYLE_CELLS, dtype="str"))) == [
+        "european", "american", "european", "american", None, None, None, "european",
+        "american"]
