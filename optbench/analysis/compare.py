@@ -169,19 +169,12 @@ def _history(history):
 # ------------------------------------------------------------------- per-quote vols
 def _quote_vols(q: pd.DataFrame, fwd: pd.DataFrame, spot: float, dividends=None):
     """Per-quote forward, discount, rate, carry and bid/mid/ask implied vols
-    (:func:`optbench.pricing.quotes.quote_implied_vols`; American quotes by the tree,
+    (:func:`optbench.pricing.quotes.quote_vol_arrays`; American quotes by the tree,
     with the cash ``dividends`` (times, amounts) at their dates when given)."""
-    from optbench.pricing.quotes import quote_implied_vols
+    from optbench.pricing.quotes import quote_vol_arrays
 
-    iv = quote_implied_vols(q, fwd, spot, dividends=dividends)
-    idx = pd.Index(fwd["expiry"]).get_indexer(q["expiry"])
-    r = fwd["rate"].to_numpy(float)[idx]
-    carry = fwd["carry"].to_numpy(float)[idx]
-    american = (q["style"].astype(str).str.lower() == "american").to_numpy() \
-        if "style" in q.columns else np.zeros(len(q), bool)
-    vols = iv[["iv_bid", "iv_mid", "iv_ask"]].to_numpy(float).T
-    return (iv["forward"].to_numpy(float), iv["discount"].to_numpy(float), r, carry, vols,
-            american)
+    a = quote_vol_arrays(q, fwd, spot, dividends=dividends)
+    return a.forward, a.discount, a.rate, a.carry, a.vols, a.american
 
 
 def _only_expiries(q: pd.DataFrame, expiries, source) -> pd.DataFrame:

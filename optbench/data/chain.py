@@ -20,9 +20,10 @@ import pandas as pd
 
 from optbench.data.columns import SIDE_FIELDS, map_chain_columns, side_of
 from optbench.data.files import RawTable, drop_blank_rows, read_table
-from optbench.data.occ import parse_occ
-from optbench.data.parse import (DATE_MAX, DATE_MIN, call_codes, percent_or_decimal, present,
-                                 style_word, to_date, to_number, to_style)
+from optbench.data.occ import occ_fields
+from optbench.data.parse import (DATE_MAX, DATE_MIN, arrow_text, call_codes, date_array,
+                                 percent_or_decimal, present, style_word, to_date,
+                                 to_number, to_style)
 from optbench.data.validate import REASONS, WARNINGS, assign_reasons, quote_warnings
 from optbench.errors import InputError
 
@@ -302,6 +303,19 @@ def _column_source(column, in_meta: bool) -> str:
     return "file" if has.all() else f"file+{fallback}"
 
 
+def _single_underlying(column: pd.Series) -> str | None:
+    """The underlying of a text column on pyarrow storage whose non-blank cells all
+    name one underlying (stripped, upper case): what the counting in
+    :func:`load_chain` finds there, without counting. None otherwise."""
+    arrow = arrow_text(column)
+    if arrow is None:
+        return None
+    import pyarrow.compute as pc
+    norm = pc.utf8_upper(pc.utf8_trim_whitespace(arrow))
+    named = pc.unique(pc.filter(norm, pc.fill_null(pc.not_equal(norm, ""), False)))
+    return str(named[0].as_py()) if len(named) == 1 else None
+
+
 def load_chain(path: str | Path, *, spot: float | None = None,
                asof: _dt.date | str | None = None, rate: float | None = None,
                div_yield: float | None = None, style: str | None = None,
@@ -409,17 +423,16 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     mismatch_detail = np.full(n, "", dtype=object)
     if sym is not None:
         has_sym = present(sym)
-        parsed = parse_occ(sym.reset_index(drop=True))
-        ok = parsed["ok"].to_numpy()
+        parsed = occ_fields(sym.reset_index(drop=True))
+        ok = parsed["ok"]
         if has_sym.any() and ok[has_sym].mean() >= 0.5:
             occ = parsed
             bad_symbol = has_sym & ~ok
         else:
             notes.append("the symbol column is not in OCC form; it is kept but not read")
 
-    expiry_col = to_date(col("expiry")) if col("expiry") is not None else \
-        pd.Series(pd.NaT, index=range(n), dtype="datetime64[ns]")
-    expiry = expiry_col.to_numpy(dtype="datetime64[ns]")
+    expiry = date_array(col("expiry")) if col("expiry") is not None else \
+        np.full(n, np.datetime64("NaT"), dtype="datetime64[ns]")
     strike = to_number(col("strike"), decimal_comma=dc) if col("strike") is not None \
         else np.full(n, np.nan)
     # 1 call, 0 put, -1 empty or unreadable
@@ -431,10 +444,10 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     known_type = call_code >= 0
     bad_type = ~miss["type"] & ~known_type
     if occ is not None:
-        ok = occ["ok"].to_numpy()
-        o_exp = occ["expiry"].to_numpy(dtype="datetime64[ns]")
-        o_k = occ["strike"].to_numpy(dtype=float)
-        o_c = occ["is_call"].to_numpy(dtype=bool)
+        ok = occ["ok"]
+        o_exp = occ["expiry"]
+        o_k = occ["strike"]
+        o_c = occ["is_call"]
         both = ok & ~miss["expiry"] & ~bad_date
         m_exp = both & (o_exp != expiry)
         both = ok & ~miss["strike"] & ~bad_strike
@@ -515,7 +528,11 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     # ---- underlying, quote date, spot, rate, yield
     other_underlying = np.zeros(n, bool)
     underlying = ""
-    if col("underlying") is not None:
+    single = _single_underlying(col("underlying")) if col("underlying") is not None \
+        else None
+    if single is not None:
+        underlying = single
+    elif col("underlying") is not None:
         und = col("underlying").astype("string").str.strip().str.upper()
         counts = und[und.notna() & (und != "")].value_counts()
         if len(counts):
@@ -528,11 +545,11 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     if not underlying:
         if meta.get("code"):
             underlying = str(meta["code"])
-        elif occ is not None and occ["root"].notna().any():
-            underlying = str(occ["root"].dropna().mode().iloc[0])
+        elif occ is not None and pd.Series(occ["root"]).notna().any():
+            underlying = str(pd.Series(occ["root"]).dropna().mode().iloc[0])
 
     other_quote_date = np.zeros(n, bool)
-    qd = to_date(col("quote_date")).to_numpy(dtype="datetime64[ns]") \
+    qd = date_array(col("quote_date")) \
         if col("quote_date") is not None else None
     if asof is not None:
         asof_d, asof_source = _as_date(asof, "--asof"), "caller"
@@ -687,23 +704,29 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         quotes["symbol"] = sym.iloc[order].reset_index(drop=True)
 
     rej = ~kept
-    rejected = pd.DataFrame({"line": line[rej].astype(np.int64),
-                             "reason": reason[rej].astype(object),
-                             "detail": detail[rej].astype(object)})
+    # the rejected rows in line order (stable: a wide line's call before its put)
+    rej_at = np.flatnonzero(rej)
+    rej_at = rej_at[np.argsort(line[rej_at], kind="stable")]
+    rejected = pd.DataFrame({"line": line[rej_at].astype(np.int64),
+                             "reason": reason[rej_at].astype(object),
+                             "detail": detail[rej_at].astype(object)})
     if side is not None:
-        rejected["side"] = side[rej]
-    raw_rows = frame.iloc[pos[rej]].reset_index(drop=True)
+        rejected["side"] = side[rej_at]
+    raw_rows = frame.iloc[pos[rej_at]].reset_index(drop=True)
     raw_rows.columns = [c if c not in rejected.columns else f"{c} (file)"
                         for c in raw_rows.columns]
-    rejected = pd.concat([rejected, raw_rows], axis=1).sort_values(
-        ["line"], kind="stable").reset_index(drop=True)
+    rejected = pd.concat([rejected, raw_rows], axis=1)
 
-    counts = pd.Series(reason[rej]).value_counts()
+    found, found_count = np.unique(reason[rej].astype(str), return_counts=True)
+    counts = dict(zip(found.tolist(), found_count.tolist()))
     rejected_counts = {code: int(counts[code]) for code in REASONS if code in counts}
-    per_combo = pd.Series(warn).value_counts()
+    # quotes per flag combination (each combination is one category of ``warn``)
+    per_combo = zip(warn.categories, np.bincount(np.asarray(warn.codes),
+                                                 minlength=len(warn.categories)))
+    per_combo = [(combo, c) for combo, c in per_combo]
     warning_counts = {}
     for f in WARNINGS:
-        count = sum(int(c) for combo, c in per_combo.items() if f in str(combo).split(","))
+        count = sum(int(c) for combo, c in per_combo if f in str(combo).split(","))
         if count:
             warning_counts[f] = count
     quality = Quality(rows_in=n, rows_used=int(kept.sum()), rejected=rejected_counts,

@@ -138,7 +138,9 @@ def read_table(path: str | Path, *, header_test=None) -> RawTable:
         raise InputError(path, f"not a consistent table ({msg})") from None
     except (UnicodeError, ValueError, OSError) as err:
         raise InputError(path, f"cannot read as CSV ({err})") from None
-    frame.columns = [str(c).strip() for c in frame.columns]
+    names = [str(c).strip() for c in frame.columns]
+    if names != list(frame.columns):
+        frame.columns = names
     last_line = None
     if compression is None and encoding != "utf-16":
         # the number of the last non-blank line, to tell whether rows map to lines

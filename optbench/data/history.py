@@ -18,11 +18,10 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 
 from optbench.data.columns import map_history_columns
 from optbench.data.files import drop_blank_rows, read_table
-from optbench.data.parse import to_date, to_number
+from optbench.data.parse import date_array, to_number
 from optbench.errors import InputError
 
 GAP_DAYS = 7
@@ -131,7 +130,7 @@ def load_history(path: str | Path) -> PriceHistory:
         raise InputError(path, "missing column 'close' (or an adjusted close)")
     issues: list[str] = []
     dc = raw.decimal_comma
-    dates = to_date(frame[cols["date"]]).to_numpy(dtype="datetime64[ns]")
+    dates = date_array(frame[cols["date"]])
     close = to_number(frame[cols[close_field]], decimal_comma=dc)
 
     bad_date = np.isnat(dates)
@@ -165,21 +164,26 @@ def load_history(path: str | Path) -> PriceHistory:
             factor = np.where(raw_close > 0, close / raw_close, np.nan)
         ohlc = {f: (v * factor if v is not None else None) for f, v in ohlc.items()}
         issues.append(f"open/high/low scaled by '{cols[close_field]}' / '{cols['close']}'")
-    df = pd.DataFrame({"date": dates, "close": close, "line": lines})
-    for f, v in ohlc.items():
-        if v is not None:
-            df[f] = v
-    df = df[keep]
-    if not df["date"].is_monotonic_increasing:
+    # the kept rows as positions into the file's rows: sorted by date (stable), then
+    # the last row of each date
+    sel = np.flatnonzero(keep)
+    day = dates[sel]
+    if not (day[1:] >= day[:-1]).all():
         issues.append("dates were not in order; sorted")
-        df = df.sort_values("date", kind="stable")
-    dup = df["date"].duplicated(keep="last").to_numpy()
+        sel = sel[np.argsort(day, kind="stable")]
+        day = dates[sel]
+    dup = np.zeros(sel.size, bool)
+    dup[:-1] = day[1:] == day[:-1]          # a later row has the same date
     if dup.any():
         # a repeated date whose rows disagree on the close is a conflict, not a copy
-        spread = df.groupby("date")["close"].transform(lambda c: c.max() - c.min())
-        conflict = dup & (spread.to_numpy() > 0)
+        starts = np.flatnonzero(np.r_[True, day[1:] != day[:-1]])
+        group = np.cumsum(np.r_[False, day[1:] != day[:-1]])
+        kept_close = close[sel]
+        spread = (np.maximum.reduceat(kept_close, starts)
+                  - np.minimum.reduceat(kept_close, starts))[group]
+        conflict = dup & (spread > 0)
         same = dup & ~conflict
-        dl = df["line"].to_numpy()
+        dl = lines[sel]
         if same.any():
             dropped["duplicate_date"] = int(same.sum())
             issues.append(f"{int(same.sum())} rows repeat an earlier row's date and close; "
@@ -189,11 +193,11 @@ def load_history(path: str | Path) -> PriceHistory:
             issues.append(f"{int(conflict.sum())} rows give a date again with a different "
                           "close; the last row of each date is kept (conflicting_date; "
                           f"dropped lines {_lines(dl[conflict])})")
-        df = df[~dup]
-    if len(df) < 2:
-        raise InputError(path, f"only {len(df)} usable price(s); at least 2 are needed")
+        sel = sel[~dup]
+    if sel.size < 2:
+        raise InputError(path, f"only {sel.size} usable price(s); at least 2 are needed")
 
-    d = df["date"].to_numpy().astype("datetime64[D]")
+    d = dates[sel].astype("datetime64[D]")
     gaps = np.diff(d).astype(np.int64)
     long_gap = np.flatnonzero(gaps > GAP_DAYS)
     if long_gap.size:
@@ -201,8 +205,8 @@ def load_history(path: str | Path) -> PriceHistory:
         more = f" and {long_gap.size - _SHOW} more" if long_gap.size > _SHOW else ""
         issues.append(f"{long_gap.size} gaps longer than {GAP_DAYS} calendar days: "
                       f"{shown}{more} (the return across a gap counts as one day's)")
-    c = df["close"].to_numpy(dtype=float)
-    out = {f: (df[f].to_numpy(dtype=float).copy() if v is not None else None)
+    c = close[sel]
+    out = {f: (np.asarray(v, dtype=float)[sel] if v is not None else None)
            for f, v in ohlc.items()}
     if any(v is not None for v in out.values()):
         hi = out["high"] if out["high"] is not None else np.full(len(c), np.inf)
@@ -218,7 +222,7 @@ def load_history(path: str | Path) -> PriceHistory:
         if bad.any():
             issues.append(f"{int(bad.sum())} rows with open/high/low missing, non-positive "
                           "or inconsistent with the close: those values left empty (lines "
-                          f"{_lines(df['line'].to_numpy()[bad])})")
+                          f"{_lines(lines[sel][bad])})")
             for v in out.values():
                 if v is not None:
                     v[bad] = np.nan

@@ -38,6 +38,12 @@ def parse_occ(symbols: pd.Series | np.ndarray | list) -> pd.DataFrame:
     Corporation, *Options Symbology Initiative* (2010).
     """
     s = pd.Series(symbols) if not isinstance(symbols, pd.Series) else symbols
+    return pd.DataFrame(occ_fields(s), index=s.index)
+
+
+def occ_fields(s: pd.Series) -> dict:
+    """:func:`parse_occ`'s columns as arrays (``root``, ``expiry``, ``is_call``,
+    ``strike``, ``ok``), no frame built."""
     try:
         root, ymd, cp, strike_txt = _split_arrow(s)
     except ImportError:
@@ -45,19 +51,50 @@ def parse_occ(symbols: pd.Series | np.ndarray | list) -> pd.DataFrame:
     # OSI years are 20YY: strptime's %y would put 69-99 in the 1900s. Each distinct
     # date is parsed once.
     codes, uniq = pd.factorize(ymd, use_na_sentinel=True)
-    parsed = pd.to_datetime("20" + pd.Series(uniq, dtype=object).astype(str),
-                            format="%Y%m%d", errors="coerce").to_numpy(dtype="datetime64[ns]")
+    parsed = _osi_dates(np.asarray(uniq, dtype=object))
     exp = np.full(len(s), np.datetime64("NaT"), dtype="datetime64[ns]")
     exp[codes >= 0] = parsed[codes[codes >= 0]]
     strike = np.asarray(strike_txt, dtype=float) / 1000.0
     ok = ~np.isnat(exp) & np.isfinite(strike)
-    return pd.DataFrame({
+    return {
         "root": root,
         "expiry": np.where(ok, exp, np.datetime64("NaT", "ns")),
         "is_call": (np.asarray(cp, dtype=object) == "C") & ok,
         "strike": np.where(ok, strike, np.nan),
         "ok": ok,
-    }, index=s.index)
+    }
+
+
+def _osi_dates(ymd: np.ndarray) -> np.ndarray:
+    """``YYMMDD`` cells -> datetime64[ns] of 20YY-MM-DD, NaT where no such day.
+
+    Six ASCII digits are read from their code points in one numpy pass (the month's
+    length from the calendar); any other cell goes to ``pandas.to_datetime`` with
+    ``%Y%m%d`` after a "20" prefix, which reads the plain cells the same.
+    """
+    out = np.full(len(ymd), np.datetime64("NaT"), dtype="datetime64[ns]")
+    if not len(ymd):
+        return out
+    text = np.asarray(ymd, dtype=str)
+    six = np.flatnonzero(np.strings.str_len(text) == 6)
+    digits = text[six].astype("U6").view(np.uint32).reshape(-1, 6).astype(np.int64) - 48
+    plain = ((digits >= 0) & (digits <= 9)).all(axis=1)
+    d = np.where(plain[:, None], digits, 0)
+    year, month, day = 2000 + 10 * d[:, 0] + d[:, 1], 10 * d[:, 2] + d[:, 3], \
+        10 * d[:, 4] + d[:, 5]
+    months = (year - 1970) * 12 + (month - 1)
+    first = months.astype("datetime64[M]").astype("datetime64[D]")
+    days_in_month = ((months + 1).astype("datetime64[M]").astype("datetime64[D]")
+                     - first).astype(np.int64)
+    real = plain & (month >= 1) & (month <= 12) & (day >= 1) & (day <= days_in_month)
+    out[six[real]] = (first + (day - 1))[real].astype("datetime64[ns]")
+    rest = np.ones(len(ymd), bool)
+    rest[six[plain]] = False                 # plain digits: read above (or no such day)
+    if rest.any():
+        out[rest] = pd.to_datetime("20" + pd.Series(ymd[rest], dtype=object).astype(str),
+                                   format="%Y%m%d", errors="coerce").to_numpy(
+                                       dtype="datetime64[ns]")
+    return out
 
 
 def _split_pandas(s: pd.Series):

@@ -16,10 +16,30 @@ DATE_FORMATS = ("%Y-%m-%d", "%Y%m%d", "%m/%d/%Y", "%d/%m/%Y", "%d-%b-%Y", "%d %b
                 "%b %d %Y", "%b %d, %Y", "%Y/%m/%d", "%d.%m.%Y", "%d-%b-%y", "%m/%d/%y")
 
 
+def arrow_text(col: pd.Series):
+    """The pyarrow array behind a text column on pyarrow storage (pandas' default
+    for text from pandas 3), else None."""
+    dtype = col.dtype
+    if isinstance(dtype, pd.StringDtype) and str(getattr(dtype, "storage", "")).startswith(
+            "pyarrow") and hasattr(col.array, "__arrow_array__"):
+        import pyarrow as pa
+        arr = pa.array(col.array)
+        return arr.combine_chunks() if isinstance(arr, pa.ChunkedArray) else arr
+    return None
+
+
 def present(col: pd.Series) -> np.ndarray:
     """True where a cell holds something (not NaN and not only blanks)."""
     if col.dtype.kind in "biufcmM":
         return col.notna().to_numpy()
+    arrow = arrow_text(col)
+    if arrow is not None:
+        # what ``col.str.strip() != ""`` computes on pyarrow storage, without the
+        # Series around each step
+        import pyarrow.compute as pc
+        filled = pc.not_equal(pc.utf8_trim_whitespace(arrow), "")
+        return np.asarray(pc.fill_null(filled, False).to_numpy(zero_copy_only=False),
+                          dtype=bool)
     has = col.notna().to_numpy(dtype=bool)
     if isinstance(col.dtype, pd.StringDtype):
         text = col.str.strip()
@@ -80,8 +100,62 @@ def _in_range_ns(values) -> np.ndarray:
     return out
 
 
-def _parse_unique(values: pd.Series) -> pd.Series:
-    """Parse unique date strings, choosing the format that reads most of them."""
+#: the digits of ``YYYY-MM-DD`` (positions in the 10 characters) and their place values
+_ISO_DIGITS = np.array([0, 1, 2, 3, 5, 6, 8, 9])
+_ISO_PLACES = np.array([[1000, 100, 10, 1, 0, 0, 0, 0],
+                        [0, 0, 0, 0, 10, 1, 0, 0],
+                        [0, 0, 0, 0, 0, 0, 10, 1]], dtype=np.int64)
+
+
+def _plain_iso_dates(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Cells that are exactly ``YYYY-MM-DD`` (ten characters, no blanks, no time of
+    day), a real calendar date in :data:`DATE_MIN` .. :data:`DATE_MAX`: a mask and
+    their dates as datetime64[ns] (NaT elsewhere).
+
+    Read from the characters' code points in one numpy pass (year, month and day
+    by place value; the month's length from the calendar); every other cell is left
+    to the format search of :func:`_parse_unique`, which reads these cells the same.
+    """
+    out = np.full(values.shape, np.datetime64("NaT"), dtype="datetime64[ns]")
+    text = np.asarray(values, dtype=str)
+    ten = np.flatnonzero(np.strings.str_len(text) == 10) if text.size else \
+        np.zeros(0, np.int64)
+    if ten.size == 0:
+        return np.zeros(values.shape, bool), out
+    chars = text[ten].astype("U10").view(np.uint32).reshape(-1, 10).astype(np.int64)
+    digits = chars[:, _ISO_DIGITS] - 48
+    shaped = ((digits >= 0) & (digits <= 9)).all(axis=1) \
+        & (chars[:, 4] == 45) & (chars[:, 7] == 45)
+    year, month, day = (np.where(shaped[:, None], digits, 0) @ _ISO_PLACES.T).T
+    months = (year - 1970) * 12 + (month - 1)
+    first = months.astype("datetime64[M]").astype("datetime64[D]")
+    days_in_month = ((months + 1).astype("datetime64[M]").astype("datetime64[D]")
+                     - first).astype(np.int64)
+    dates = first + (day - 1)
+    ok = shaped & (month >= 1) & (month <= 12) & (day >= 1) & (day <= days_in_month) \
+        & (dates >= DATE_MIN) & (dates <= DATE_MAX)
+    mask = np.zeros(values.shape, bool)
+    mask[ten[ok]] = True
+    out[ten[ok]] = dates[ok].astype("datetime64[ns]")
+    return mask, out
+
+
+def _parse_unique(values: np.ndarray) -> np.ndarray:
+    """Parse unique date cells (an object array), choosing the format that reads
+    most of them: datetime64[ns], NaT where none does.
+
+    Plain ISO cells are read first by :func:`_plain_iso_dates`; the format search of
+    :func:`_parse_by_format` reads the others (and would read the plain ISO cells the
+    same)."""
+    plain, dates = _plain_iso_dates(values)
+    if not plain.all():
+        rest = _parse_by_format(pd.Series(values[~plain], dtype=object))
+        dates[~plain] = rest.to_numpy()
+    return dates
+
+
+def _parse_by_format(values: pd.Series) -> pd.Series:
+    """Parse unique date strings by the formats of :data:`DATE_FORMATS`."""
     text = values.astype("string").str.strip()
     # a trailing time of day is dropped: quotes are dated by their day
     text = text.str.replace(r"[T ]\d{1,2}:\d{2}(:\d{2}(\.\d*)?)?([+-]\d{2}:?\d{2}|Z)?$",
@@ -130,12 +204,19 @@ def to_date(col: pd.Series) -> pd.Series:
         col = pd.Series(np.where(whole, np.char.mod("%d", np.where(whole, num, 0)
                                                     .astype(np.int64)), None),
                         index=col.index, dtype=object)
+    return pd.Series(date_array(col), index=col.index)
+
+
+def date_array(col: pd.Series) -> np.ndarray:
+    """:func:`to_date` as a datetime64[ns] array (no Series built)."""
+    if col.dtype.kind == "M" or col.dtype.kind in "iuf":
+        return to_date(col).to_numpy()
     codes, uniques = pd.factorize(col, use_na_sentinel=True)
-    parsed = _parse_unique(pd.Series(uniques, dtype=object)).to_numpy()
+    parsed = _parse_unique(np.asarray(uniques, dtype=object))
     out = np.full(len(col), np.datetime64("NaT"), dtype="datetime64[ns]")
     ok = codes >= 0
     out[ok] = parsed[codes[ok]]
-    return pd.Series(out, index=col.index)
+    return out
 
 
 _TYPE_WORDS = {"c": True, "call": True, "calls": True, "p": False, "put": False,
@@ -146,6 +227,17 @@ _STYLE_WORDS = {"european": "european", "e": "european", "eu": "european",
 
 
 def _vocab(col: pd.Series, words: dict) -> pd.Series:
+    arrow = arrow_text(col)
+    if arrow is not None:
+        # the distinct cells, stripped and lower-cased by the kernels pandas' ``.str``
+        # methods call on pyarrow storage (as in :func:`call_codes`)
+        import pyarrow.compute as pc
+        enc = pc.dictionary_encode(arrow)
+        keys = pc.utf8_lower(pc.utf8_trim_whitespace(enc.dictionary)).to_pylist()
+        mapped = np.array([words.get(k) if isinstance(k, str) else None for k in keys]
+                          + [None], dtype=object)
+        at = pc.fill_null(enc.indices, -1).to_numpy(zero_copy_only=False)
+        return pd.Series(mapped[at], index=col.index, dtype=object)
     codes, uniques = pd.factorize(col, use_na_sentinel=True)
     keys = pd.Series(uniques, dtype=object).astype("string").str.strip().str.lower()
     # loops over the distinct values only (a handful), never over rows
@@ -159,8 +251,17 @@ def _vocab(col: pd.Series, words: dict) -> pd.Series:
 
 def call_codes(col: pd.Series) -> np.ndarray:
     """Option type as int8 codes: 1 call, 0 put, -1 empty or unreadable."""
-    codes, uniques = pd.factorize(col, use_na_sentinel=True)
-    keys = pd.Series(uniques, dtype=object).astype("string").str.strip().str.lower()
+    arrow = arrow_text(col)
+    if arrow is not None:
+        # the distinct cells, stripped and lower-cased by the kernels pandas' ``.str``
+        # methods call on pyarrow storage
+        import pyarrow.compute as pc
+        enc = pc.dictionary_encode(arrow)
+        keys = pc.utf8_lower(pc.utf8_trim_whitespace(enc.dictionary)).to_pylist()
+        codes = pc.fill_null(enc.indices, -1).to_numpy(zero_copy_only=False)
+    else:
+        codes, uniques = pd.factorize(col, use_na_sentinel=True)
+        keys = pd.Series(uniques, dtype=object).astype("string").str.strip().str.lower()
     table = np.array([{True: 1, False: 0}.get(_TYPE_WORDS.get(k) if isinstance(k, str)
                                                else None, -1) for k in keys] + [-1],
                      dtype=np.int8)

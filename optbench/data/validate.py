@@ -103,6 +103,34 @@ def no_arbitrage_bounds(spot: float, strike: np.ndarray, t: np.ndarray, rate: fl
     return lower, upper
 
 
+def first_of_contract(*keys: np.ndarray) -> np.ndarray:
+    """For each row, the position of the first row with the same key (the row itself
+    when it is the first): keys compared column by column, missing values (NaN, NaT)
+    equal to each other, as ``pandas.DataFrame.duplicated`` compares rows.
+
+    Each column is coded by ``pandas.factorize`` (hashing, no sort); the codes are
+    combined into one integer by place value (coded again whenever the product of the
+    columns' sizes could overflow) and coded once more. Those final codes number the
+    keys in order of first appearance, so a key's first row is where its code first
+    exceeds every code before it.
+    """
+    ids = np.zeros(len(keys[0]), dtype=np.int64)
+    size = 1
+    for col in keys:
+        codes, uniq = pd.factorize(col, use_na_sentinel=False)
+        if size * max(len(uniq), 1) >= 2 ** 62:
+            ids = pd.factorize(ids)[0].astype(np.int64)
+            size = int(ids.max()) + 1 if ids.size else 1
+        ids = ids * max(len(uniq), 1) + codes
+        size *= max(len(uniq), 1)
+    ids = pd.factorize(ids)[0].astype(np.int64)
+    if not ids.size:
+        return ids
+    seen_before = np.maximum.accumulate(np.r_[-1, ids[:-1]])
+    first_rows = np.flatnonzero(ids > seen_before)
+    return first_rows[ids]
+
+
 def assign_reasons(p, *, spot: float, rate: float, div_yield: float,
                    max_spread: float | None,
                    max_strike_ratio: float | None = None,
@@ -170,13 +198,11 @@ def assign_reasons(p, *, spot: float, rate: float, div_yield: float,
     live = a.open.copy()
     is_call = np.asarray(p["is_call"], dtype=bool)
     if live.any():
-        keys = pd.DataFrame({"expiry": np.asarray(p["expiry"])[live], "strike": strike[live],
-                             "is_call": is_call[live], "multiplier": mult[live]})
-        dup = keys.duplicated(keep="first").to_numpy()
+        first = first_of_contract(np.asarray(p["expiry"])[live], strike[live],
+                                  is_call[live], mult[live])
+        dup = first != np.arange(first.size)
         if dup.any():
-            keys["line"] = np.asarray(p["line"])[live]
-            first_line = keys.groupby(["expiry", "strike", "is_call", "multiplier"],
-                                      sort=False)["line"].transform("first").to_numpy()
+            first_line = np.asarray(p["line"])[live][first]
             mask = np.zeros(n, dtype=bool)
             mask[np.flatnonzero(live)[dup]] = True
             lines = np.zeros(n, dtype=np.int64)

@@ -90,34 +90,52 @@ def parity_pairs(quotes: pd.DataFrame) -> pd.DataFrame:
     """
     bid = quotes["bid"].to_numpy(float)
     ask = quotes["ask"].to_numpy(float)
-    with np.errstate(invalid="ignore"):
-        good = (bid > 0) & (ask >= bid) & np.isfinite(bid) & np.isfinite(ask)
-    idx = np.flatnonzero(good)
-    # tightest first (the sort pandas' sort_values uses), then one quote per
-    # (expiry, strike, side): the first, i.e. the tightest
-    idx = idx[np.argsort((ask - bid)[idx], kind="quicksort")]
-    expiry = quotes["expiry"].to_numpy()[idx]
-    strike = quotes["strike"].to_numpy(float)[idx]
-    is_call = quotes["is_call"].to_numpy(bool)[idx]
-    key = np.empty(idx.size, dtype=[("e", expiry.dtype), ("k", "f8"), ("c", "?")])
-    key["e"], key["k"], key["c"] = expiry, strike, is_call
-    _, first = np.unique(key, return_index=True)
-    keep = np.sort(first)
-    idx, key = idx[keep], key[keep]
-    _, pair_id = np.unique(key[["e", "k"]], return_inverse=True)
-    pair_id = pair_id.ravel()
-    call_at = np.flatnonzero(key["c"])
-    put_of = np.full(pair_id.max() + 1 if pair_id.size else 0, -1)
-    put_at = np.flatnonzero(~key["c"])
-    put_of[pair_id[put_at]] = put_at
-    match = put_of[pair_id[call_at]] if call_at.size else call_at
-    calls, puts = idx[call_at[match >= 0]], idx[match[match >= 0]]
+    expiry = quotes["expiry"].to_numpy()
+    codes, _ = pd.factorize(expiry, use_na_sentinel=True)
+    calls, puts = _pair_positions(codes, quotes["strike"].to_numpy(float),
+                                  quotes["is_call"].to_numpy(bool), bid, ask)
     mid = 0.5 * (bid + ask)
     spread = ask - bid
     return pd.DataFrame({
-        "expiry": quotes["expiry"].to_numpy()[calls], "t": quotes["t"].to_numpy()[calls],
+        "expiry": expiry[calls], "t": quotes["t"].to_numpy()[calls],
         "strike": quotes["strike"].to_numpy(float)[calls], "c_mid": mid[calls],
         "p_mid": mid[puts], "c_spread": spread[calls], "p_spread": spread[puts]})
+
+
+def _pair_positions(expiry_codes: np.ndarray, strike: np.ndarray, is_call: np.ndarray,
+                    bid: np.ndarray, ask: np.ndarray):
+    """Row positions ``(calls, puts)`` of the parity pairs, calls in the order of
+    their spreads (tightest first), from integer expiry codes (-1 for none).
+
+    Two-sided quotes (bid > 0, ask >= bid) are sorted by spread; the first quote of
+    each (expiry, strike, side) is kept (the tightest); a call is paired with the put
+    of its (expiry, strike). The key of a quote is one integer
+    ``(expiry code * strikes + strike code) * 2 + is_call``.
+    """
+    with np.errstate(invalid="ignore"):
+        good = (bid > 0) & (ask >= bid) & np.isfinite(bid) & np.isfinite(ask)
+    # a quote without an expiry or with a NaN strike matches no other quote
+    good &= (expiry_codes >= 0) & ~np.isnan(strike)
+    idx = np.flatnonzero(good)
+    # tightest first (the sort pandas' sort_values uses)
+    idx = idx[np.argsort((ask - bid)[idx], kind="quicksort")]
+    e = expiry_codes[idx].astype(np.int64)
+    k_uniq, k = np.unique(strike[idx], return_inverse=True)
+    c = is_call[idx]
+    key = (e * max(k_uniq.size, 1) + k.ravel()) * 2 + c
+    # np.unique's return_index sorts stably: the first (tightest) quote of each key
+    _, first = np.unique(key, return_index=True)
+    keep = np.sort(first)
+    idx, key, c = idx[keep], key[keep], c[keep]
+    pair = key >> 1
+    call_at = np.flatnonzero(c)
+    put_at = np.flatnonzero(~c)
+    order = np.argsort(pair[put_at], kind="stable")
+    put_pairs = pair[put_at][order]
+    where = np.searchsorted(put_pairs, pair[call_at])
+    found = where < put_pairs.size
+    found[found] = put_pairs[where[found]] == pair[call_at][found]
+    return idx[call_at[found]], idx[put_at[order[where[found]]]]
 
 
 def implied_forwards(quotes: pd.DataFrame, spot: float, rate: float, div_yield: float,
@@ -157,31 +175,78 @@ def implied_forwards(quotes: pd.DataFrame, spot: float, rate: float, div_yield: 
     div_yield = float(div_yield)
     if not (np.isfinite(spot) and spot > 0):
         raise ValueError(f"spot must be a positive number, got {spot}")
-    expiries = quotes.groupby("expiry", sort=True)["t"].first()
+    # one integer code per expiry (sorted; NaT -> -1, as groupby drops it)
+    codes, uniq = pd.factorize(quotes["expiry"], sort=True, use_na_sentinel=True)
+    n_exp = len(uniq)
+    has = codes >= 0
+    t_all = quotes["t"].to_numpy()
+    # the first non-missing t of each expiry (NaN when it has none)
+    dated = np.flatnonzero(has & ~pd.isna(t_all))
+    first_code, first_at = np.unique(codes[dated], return_index=True)
+    t_exp = np.full(n_exp, np.nan)
+    t_exp[first_code] = t_all[dated[first_at]].astype(float)
     if "style" in quotes.columns:
-        american_quote = quotes["style"].astype(str).str.lower() == "american"
-        all_american = american_quote.groupby(quotes["expiry"]).all()
+        american_quote = _is_american(quotes["style"])[has]
+        rows_of = np.bincount(codes[has], minlength=n_exp)
+        american_of = np.bincount(codes[has], weights=american_quote, minlength=n_exp)
+        all_american = american_of == rows_of
     else:
-        all_american = pd.Series(False, index=expiries.index)
-    pairs = parity_pairs(quotes)
-    grouped = dict(tuple(pairs.groupby("expiry"))) if len(pairs) else {}
+        all_american = np.zeros(n_exp, bool)
+    bid = quotes["bid"].to_numpy(float)
+    ask = quotes["ask"].to_numpy(float)
+    strike = quotes["strike"].to_numpy(float)
+    calls, puts = _pair_positions(codes, strike, quotes["is_call"].to_numpy(bool), bid, ask)
+    mid = 0.5 * (bid + ask)
+    spread = ask - bid
+    # pairs grouped by expiry, each group in pair order
+    pair_code = codes[calls]
+    by_expiry = np.argsort(pair_code, kind="stable")
+    bounds = np.searchsorted(pair_code[by_expiry], np.arange(n_exp + 1))
     times, amounts = dividends if dividends is not None else ((), ())
     rows = []
-    for expiry, t in expiries.items():  # one fit per expiry (a handful), not per quote
-        t = float(t)
+    for i in range(n_exp):  # one fit per expiry (a handful), not per quote
+        expiry, t = uniq[i], float(t_exp[i])
         pv = _pv(t, rate, times, amounts)
         row = _given(expiry, t, spot, rate, div_yield, pv)
-        g = grouped.get(expiry)
-        use_parity = t > 0 and not (all_american.get(expiry, False) and american != "parity")
-        if use_parity and g is not None and len(g) >= min_pairs:
-            fit = _fit_expiry(g, t, spot, rate, n_near, min_pairs)
+        g = by_expiry[bounds[i]:bounds[i + 1]]
+        use_parity = t > 0 and not (all_american[i] and american != "parity")
+        if use_parity and g.size and g.size >= min_pairs:
+            c, p = calls[g], puts[g]
+            fit = _fit_expiry(strike[c], mid[c] - mid[p], spread[c] ** 2 + spread[p] ** 2,
+                              t, spot, rate, n_near, min_pairs)
             if fit is not None:
                 row = {"expiry": expiry, "t": t, **fit, "pv_dividends": pv,
                        "dividend_forward": row["dividend_forward"],
                        "cash_carry": _cash_carry(fit, spot, pv, t)}
         rows.append(row)
-    out = pd.DataFrame(rows, columns=FORWARD_COLUMNS)
-    return out.sort_values("t", kind="stable").reset_index(drop=True)
+    if not rows:
+        return pd.DataFrame(rows, columns=FORWARD_COLUMNS)
+    order = np.argsort(np.array([r["t"] for r in rows], dtype=float), kind="stable")
+    columns = {c: [rows[j][c] for j in order] for c in FORWARD_COLUMNS}
+    columns["expiry"] = uniq[order]
+    for c in ("t", "forward", "discount", "rate", "carry", "pv_dividends",
+              "dividend_forward", "cash_carry"):
+        columns[c] = np.array(columns[c], dtype=float)
+    columns["n_pairs"] = np.array(columns["n_pairs"], dtype=np.int64)
+    return pd.DataFrame(columns, columns=FORWARD_COLUMNS)
+
+
+def _is_american(style: pd.Series) -> np.ndarray:
+    """True where a ``style`` cell reads ``american`` (any case); a categorical
+    column is read once per category."""
+    if isinstance(style.dtype, pd.CategoricalDtype):
+        categories = list(style.cat.categories)
+        if all(isinstance(c, str) and c.isascii() for c in categories):
+            # plain ASCII words (the canonical european/american): lower case is the
+            # same by Python's rules and pyarrow's
+            cats = np.array([c.lower() == "american" for c in categories], dtype=bool)
+        else:
+            cats = (pd.Series(style.cat.categories).astype(str).str.lower()
+                    == "american").to_numpy(bool)
+        codes = style.cat.codes.to_numpy()
+        table = np.append(cats, str(np.nan).lower() == "american")
+        return table[codes]
+    return (style.astype(str).str.lower() == "american").to_numpy(bool)
 
 
 def _pv(t, rate, times, amounts) -> float:
@@ -230,11 +295,10 @@ def forward_disagreements(forwards: pd.DataFrame,
     return out
 
 
-def _fit_expiry(g: pd.DataFrame, t: float, spot: float, rate: float, n_near: int,
-                min_pairs: int):
-    k = g["strike"].to_numpy(float)
-    y = (g["c_mid"] - g["p_mid"]).to_numpy(float)
-    spread2 = (g["c_spread"] ** 2 + g["p_spread"] ** 2).to_numpy(float)
+def _fit_expiry(k: np.ndarray, y: np.ndarray, spread2: np.ndarray, t: float,
+                spot: float, rate: float, n_near: int, min_pairs: int):
+    """The parity line of one expiry from its pairs' strikes ``k``, call minus put
+    mids ``y`` and summed squared spreads ``spread2`` (Notes of this module)."""
     near = np.argsort(np.abs(y))[:n_near]
     k, y, spread2 = k[near], y[near], spread2[near]
     w = 1.0 / np.maximum(spread2, 1e-12 * max(spot, 1.0) ** 2)

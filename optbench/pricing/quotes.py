@@ -17,12 +17,88 @@ only and are the most liquid (common practice).
 """
 from __future__ import annotations
 
+from typing import NamedTuple
+
 import numpy as np
 import pandas as pd
 
+from optbench.pricing.forwards import _is_american
 from optbench.pricing.implied import STATUS_NAMES, black_implied_vol_with_status
 
 _NAMES = np.array([STATUS_NAMES[i] for i in range(len(STATUS_NAMES))], dtype=object)
+
+
+class QuoteVols(NamedTuple):
+    """Per-quote arrays of :func:`quote_vol_arrays` (length n, in the quotes' order).
+
+    ``forward``, ``discount``, ``rate``, ``carry``: the quote's expiry's values from the
+    forwards frame; ``vols``: (3, n) bid, mid and ask implied vols (decimals, NaN where
+    none fits); ``status``: (3, n) int8 status codes of the same
+    (:data:`optbench.pricing.implied.STATUS_NAMES`); ``american``: bool.
+    """
+
+    forward: np.ndarray
+    discount: np.ndarray
+    rate: np.ndarray
+    carry: np.ndarray
+    vols: np.ndarray
+    status: np.ndarray
+    american: np.ndarray
+
+
+def quote_vol_arrays(quotes: pd.DataFrame, forwards: pd.DataFrame,
+                     spot: float | None = None, dividends=None) -> QuoteVols:
+    """The per-quote forwards, discounts and bid/mid/ask implied vols of
+    :func:`quote_implied_vols` as arrays (no frame built): what the comparison reads.
+
+    Parameters and method as :func:`quote_implied_vols`.
+    """
+    for col in ("expiry", "strike", "is_call", "bid", "ask", "t"):
+        if col not in quotes.columns:
+            raise ValueError(f"quotes frame lacks column {col!r}")
+    at = pd.Index(forwards["expiry"]).get_indexer(quotes["expiry"])
+    if (at < 0).any():
+        missing = set(quotes["expiry"].unique()) - set(forwards["expiry"])
+        raise ValueError(f"no forward for expiry {sorted(missing)[0]}")
+
+    def per_quote(name):
+        return forwards[name].to_numpy(float)[at]
+
+    F = per_quote("forward")
+    D = per_quote("discount")
+    r = per_quote("rate")
+    carry = per_quote("carry")
+    K = quotes["strike"].to_numpy(float)
+    t = quotes["t"].to_numpy(float)
+    c = quotes["is_call"].to_numpy(bool)
+    bid = quotes["bid"].to_numpy(float)
+    ask = quotes["ask"].to_numpy(float)
+    mid = quotes["mid"].to_numpy(float) if "mid" in quotes.columns else 0.5 * (bid + ask)
+    # the three sides in one vectorised call
+    prices = np.concatenate([bid, mid, ask])
+    n = len(quotes)
+    vol, st = black_implied_vol_with_status(prices, np.tile(F, 3), np.tile(K, 3),
+                                            np.tile(t, 3), np.tile(D, 3), np.tile(c, 3))
+    am = _is_american(quotes["style"]) if "style" in quotes.columns else np.zeros(n, bool)
+    if am.any():
+        if spot is None:
+            raise ValueError("spot is needed for American-style quotes")
+        i = np.flatnonzero(np.tile(am, 3))
+        j = i % n
+        if dividends is not None and len(dividends[0]):
+            from optbench.pricing.american_dividends import (
+                american_dividend_implied_vol_with_status)
+            q = per_quote("cash_carry")
+            va, sa = american_dividend_implied_vol_with_status(
+                prices[i], float(spot), K[j], t[j], r[j], q[j], c[j], *dividends)
+        else:
+            from optbench.pricing.american import american_implied_vol_with_status
+            va, sa = american_implied_vol_with_status(prices[i], float(spot), K[j],
+                                                      t[j], r[j], carry[j], c[j])
+        vol[i] = va
+        st[i] = sa
+    return QuoteVols(forward=F, discount=D, rate=r, carry=carry, vols=vol.reshape(3, n),
+                     status=st.reshape(3, n), american=am)
 
 
 def quote_implied_vols(quotes: pd.DataFrame, forwards: pd.DataFrame,
@@ -46,58 +122,16 @@ def quote_implied_vols(quotes: pd.DataFrame, forwards: pd.DataFrame,
     ``status`` (name for the mid, e.g. ``"ok"``), ``status_bid`` and
     ``status_ask``.
     """
-    for col in ("expiry", "strike", "is_call", "bid", "ask", "t"):
-        if col not in quotes.columns:
-            raise ValueError(f"quotes frame lacks column {col!r}")
-    fw = forwards.set_index("expiry")
-    missing = set(quotes["expiry"].unique()) - set(fw.index)
-    if missing:
-        raise ValueError(f"no forward for expiry {sorted(missing)[0]}")
-    out = quotes.copy()
-    F = fw["forward"].reindex(out["expiry"]).to_numpy(float)
-    D = fw["discount"].reindex(out["expiry"]).to_numpy(float)
-    out["forward"] = F
-    out["discount"] = D
-    K = out["strike"].to_numpy(float)
-    t = out["t"].to_numpy(float)
-    c = out["is_call"].to_numpy(bool)
+    a = quote_vol_arrays(quotes, forwards, spot, dividends)
     with np.errstate(divide="ignore", invalid="ignore"):
-        out["log_moneyness"] = np.log(K / F)
-    bid = out["bid"].to_numpy(float)
-    ask = out["ask"].to_numpy(float)
-    mid = out["mid"].to_numpy(float) if "mid" in out.columns else 0.5 * (bid + ask)
-    # the three sides in one vectorised call
-    prices = np.concatenate([bid, mid, ask])
-    n = len(out)
-    vol, st = black_implied_vol_with_status(prices, np.tile(F, 3), np.tile(K, 3),
-                                            np.tile(t, 3), np.tile(D, 3), np.tile(c, 3))
-    if "style" in out.columns:
-        am = out["style"].astype(str).str.lower().eq("american").to_numpy()
-        if am.any():
-            if spot is None:
-                raise ValueError("spot is needed for American-style quotes")
-            r = fw["rate"].reindex(out["expiry"]).to_numpy(float)
-            i = np.flatnonzero(np.tile(am, 3))
-            j = i % n
-            if dividends is not None and len(dividends[0]):
-                from optbench.pricing.american_dividends import (
-                    american_dividend_implied_vol_with_status)
-                q = fw["cash_carry"].reindex(out["expiry"]).to_numpy(float)
-                va, sa = american_dividend_implied_vol_with_status(
-                    prices[i], float(spot), K[j], t[j], r[j], q[j], c[j], *dividends)
-            else:
-                from optbench.pricing.american import american_implied_vol_with_status
-                q = fw["carry"].reindex(out["expiry"]).to_numpy(float)
-                va, sa = american_implied_vol_with_status(prices[i], float(spot), K[j],
-                                                          t[j], r[j], q[j], c[j])
-            vol[i] = va
-            st[i] = sa
-    out["iv_bid"] = vol[:n]
-    out["iv_mid"] = vol[n:2 * n]
-    out["iv_ask"] = vol[2 * n:]
-    out["status"] = _NAMES[st[n:2 * n]]
-    out["status_bid"] = _NAMES[st[:n]]
-    out["status_ask"] = _NAMES[st[2 * n:]]
+        log_moneyness = np.log(quotes["strike"].to_numpy(float) / a.forward)
+    added = {"forward": a.forward, "discount": a.discount, "log_moneyness": log_moneyness,
+             "iv_bid": a.vols[0], "iv_mid": a.vols[1], "iv_ask": a.vols[2],
+             "status": _NAMES[a.status[1]], "status_bid": _NAMES[a.status[0]],
+             "status_ask": _NAMES[a.status[2]]}
+    out = quotes.copy()
+    for name, values in added.items():
+        out[name] = values
     return out
 
 
