@@ -285,7 +285,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         module's Notes for the formulas.
     """
     from optbench.analysis.arbitrage import strike_arbitrage
-    from optbench.analysis.smile import fit_svi, smile_points
+    from optbench.analysis.smile import fit_svi_many, smile_points
     from optbench.pricing.bsm import black_price, bsm_price
     from optbench.pricing.forwards import implied_forwards
     from optbench.pricing.greeks import bsm_greeks
@@ -446,21 +446,30 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     fwd_carry = fwd["carry"].to_numpy(float)
     fwd_discount = fwd["discount"].to_numpy(float)
     fwd_parity = (fwd["source"] == "parity").to_numpy(bool)
-    for j, e_date in enumerate(exp_dates):
-        sel = expiry_codes == j
+    # the smile of every expiry fitted together (the same fits as one at a time)
+    problems, fitted = [], []
+    for j in range(len(exp_dates)):
         t_e = float(fwd_t[j])
-        F_e = float(fwd_forward[j])
-        use = sel & otm & np.isfinite(iv_mid)
-        smile_info: dict = {"method": "none"}
-        atm = iv25p = iv25c = rr = iv90 = iv95 = math.nan
-        idx = np.flatnonzero(use)
+        idx = np.flatnonzero((expiry_codes == j) & otm & np.isfinite(iv_mid))
         if idx.size > MAX_SMILE_POINTS:
             idx = idx[np.argsort(k_q[idx], kind="stable")]
             idx = idx[np.unique(np.linspace(0, idx.size - 1, MAX_SMILE_POINTS).round().astype(int))]
         if idx.size >= 1:
             vw = np.where(np.isfinite(vega_pt[idx]), np.maximum(vega_pt[idx], 1e-8), 1e-8)
+            problems.append((k_q[idx], iv_mid[idx] ** 2 * t_e, vw, t_e))
+            fitted.append(j)
+    smile_fits = dict(zip(fitted, fit_svi_many(problems, errors="return")))
+    for j, e_date in enumerate(exp_dates):
+        sel = expiry_codes == j
+        t_e = float(fwd_t[j])
+        F_e = float(fwd_forward[j])
+        smile_info: dict = {"method": "none"}
+        atm = iv25p = iv25c = rr = iv90 = iv95 = math.nan
+        if j in smile_fits:
             try:
-                sfit = fit_svi(k_q[idx], iv_mid[idx] ** 2 * t_e, vw, t=t_e)
+                sfit = smile_fits[j]
+                if isinstance(sfit, InputError):
+                    raise sfit
                 pts = smile_points(sfit, F_e, t_e, r=float(fwd_rate[j]),
                                    q=float(fwd_carry[j]))
                 atm, iv25p, iv25c, rr = pts.iv_atm, pts.iv_25d_put, pts.iv_25d_call, pts.rr_25d
