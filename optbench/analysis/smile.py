@@ -230,9 +230,22 @@ def _inner(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m: np.ndarray,
     W2 = np.stack([wt, wtw], axis=1)                                # (n, 2)
     g01, h1, g02, h2, g11, g22, PQ = _moments(k, W2, m, s)
     g00 = float(wt.sum())
-    g12 = 0.25 * g00
     h0 = float(wtw.sum())
     ww = float(wtw @ w)
+    best, best_obj, sets = _closed_forms(g00, h0, ww, g01, h1, g02, h2, g11, g22)
+    if exact:
+        P, Q = PQ if PQ is not None else _basis(k, m, s)
+        e = best[:, 0:1] + best[:, 1:2] * P + best[:, 2:3] * Q - w
+        best_obj = (e * e) @ wt
+    return best, np.maximum(best_obj, 0.0), sets
+
+
+def _closed_forms(g00, h0, ww, g01, h1, g02, h2, g11, g22):
+    """The seven active sets of :func:`_inner` in closed form from the weighted sums
+    (each of shape (p,); ``g00 = sum wt``, ``h0 = sum wt w`` and ``ww = sum wt w^2``
+    numbers, or arrays of shape (p,) when the candidates come from several fits):
+    the best feasible (a, u, v), its objective (the expanded quadratic) and set."""
+    g12 = 0.25 * g00
     p = g01.size
     tiny = 1e-300
     A = np.zeros((7, p))
@@ -278,13 +291,9 @@ def _inner(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m: np.ndarray,
     if np.any(flat):
         # a = u = v = 0 is always feasible
         best[flat] = 0.0
-        best_obj[flat] = ww
+        best_obj[flat] = np.broadcast_to(ww, (p,))[flat]
         sets[flat] = 7
-    if exact:
-        P, Q = PQ if PQ is not None else _basis(k, m, s)
-        e = best[:, 0:1] + best[:, 1:2] * P + best[:, 2:3] * Q - w
-        best_obj = (e * e) @ wt
-    return best, np.maximum(best_obj, 0.0), sets
+    return best, best_obj, sets
 
 
 def _raw_params(coef: np.ndarray, m: float, s: float) -> tuple[float, float, float]:
@@ -494,16 +503,24 @@ class _Smiles:
             h0.append(float(wtw.sum()))
             ww.append(float(wtw @ w))
         self.g00, self.h0, self.wwsum = np.array(g00), np.array(h0), np.array(ww)
+        self._layouts: dict = {}
 
     def layout(self, fit_of: np.ndarray):
         """Flat layout of one basis row per point (points grouped by fit, in order):
-        row offsets (size points + 1), the row length of each point and the index of
-        each element's quote in the concatenated quotes."""
-        n_pt = self.n[fit_of]
-        offs = np.zeros(fit_of.size + 1, dtype=np.intp)
-        np.cumsum(n_pt, out=offs[1:])
-        kidx = np.arange(offs[-1]) + np.repeat(self.base[fit_of] - offs[:-1], n_pt)
-        return offs, n_pt, kidx
+        row offsets (size points + 1), the row length of each point, the index of
+        each element's quote in the concatenated quotes, the runs of
+        :meth:`segments`, and each element's ``k``, ``w`` and ``sqrt(weight)``. Kept
+        per set of points (the polish meets the same sets round after round)."""
+        key = fit_of.tobytes()
+        hit = self._layouts.get(key)
+        if hit is None:
+            n_pt = self.n[fit_of]
+            offs = np.zeros(fit_of.size + 1, dtype=np.intp)
+            np.cumsum(n_pt, out=offs[1:])
+            kidx = np.arange(offs[-1]) + np.repeat(self.base[fit_of] - offs[:-1], n_pt)
+            hit = self._layouts[key] = (offs, n_pt, kidx, self.segments(fit_of),
+                                        self.k[kidx], self.w[kidx], self.sw[kidx])
+        return hit
 
     @staticmethod
     def segments(fit_of: np.ndarray) -> list[tuple[int, int, int]]:
@@ -523,9 +540,8 @@ def _inner_many(sm: _Smiles, fit_of: np.ndarray, m: np.ndarray, s: np.ndarray):
     one batch, each fit's weighted sums by the same matrix products as one fit alone.
     Returns coefficients, objectives, active sets, and the basis ``P, Q`` flat with its
     layout (:meth:`_Smiles.layout`)."""
-    offs, n_pt, kidx = lay = sm.layout(fit_of)
-    segs = sm.segments(fit_of)
-    y = np.subtract(sm.k[kidx], np.repeat(m, n_pt))
+    offs, n_pt, _, segs, k_e, w_e, _ = lay = sm.layout(fit_of)
+    y = np.subtract(k_e, np.repeat(m, n_pt))
     y /= np.repeat(s, n_pt)
     r = np.multiply(y, y)
     r += 1.0
@@ -548,17 +564,10 @@ def _inner_many(sm: _Smiles, fit_of: np.ndarray, m: np.ndarray, s: np.ndarray):
         dP[a:b] = PP[seg].reshape(shape) @ wt
         dQ[a:b] = QQ[seg].reshape(shape) @ wt
     g00 = sm.g00[fit_of]
-    G = np.empty((p, 3, 3))
-    G[:, 0, 0] = g00
-    G[:, 0, 1] = G[:, 1, 0] = gP[:, 0]
-    G[:, 0, 2] = G[:, 2, 0] = gQ[:, 0]
-    G[:, 1, 2] = G[:, 2, 1] = 0.25 * g00
-    G[:, 1, 1] = dP
-    G[:, 2, 2] = dQ
-    h = np.empty((p, 3))
-    h[:, 0] = sm.h0[fit_of]
-    h[:, 1] = gP[:, 1]
-    h[:, 2] = gQ[:, 1]
+    g12 = 0.25 * g00
+    G = np.stack([g00, gP[:, 0], gQ[:, 0], gP[:, 0], dP, g12, gQ[:, 0], g12, dQ],
+                 axis=1).reshape(p, 3, 3)
+    h = np.stack([sm.h0[fit_of], gP[:, 1], gQ[:, 1]], axis=1)
     G7 = np.where(_KEEP7[:, None], G[None], _EYE3)                  # (7, p, 3, 3)
     H7 = h[None] * _FREE[:7, None, :]
     exact = np.zeros(len(sm.n), dtype=bool)   # fits whose sets go to the closed forms
@@ -584,8 +593,8 @@ def _inner_many(sm: _Smiles, fit_of: np.ndarray, m: np.ndarray, s: np.ndarray):
     if np.any(flat):
         best[flat] = 0.0
         sets[flat] = 7
-    e = (np.repeat(best[:, 0], n_pt) + np.repeat(best[:, 1], n_pt) * P
-         + np.repeat(best[:, 2], n_pt) * Q - sm.w[kidx])
+    bE = np.repeat(best, n_pt, axis=0)
+    e = bE[:, 0] + bE[:, 1] * P + bE[:, 2] * Q - w_e
     e *= e
     out = np.empty(p)
     for f, a, b in segs:
@@ -615,7 +624,8 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
     start. Returns m, ln sigma, coefficients and objectives of every start."""
     fit_of = np.asarray(fit_of, dtype=np.intp)
     m, ls = m0.astype(float).copy(), ls0.astype(float).copy()
-    coef, obj, sets, P, Q, (offs, _, _) = _inner_many(sm, fit_of, m, np.exp(ls))
+    coef, obj, sets, P, Q, (offs, *_) = _inner_many(sm, fit_of, m, np.exp(ls))
+    rows_of: dict = {}          # flat basis rows of a set of starts
     S = m.size
     L = _DAMPING.size
     lam = np.full(S, 1e-3)
@@ -629,24 +639,25 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
         if ia.size == 0:
             break
         fa = fit_of[ia]
-        offs_a, n_a, kidx = sm.layout(fa)
-        segs = sm.segments(fa)
+        offs_a, n_a, _, segs, _, w, sw = sm.layout(fa)
         p = ia.size
         mm, ll = m[ia], ls[ia]
-        src = _rows(offs, ia)
+        key = ia.tobytes()
+        src = rows_of.get(key)
+        if src is None:
+            src = rows_of[key] = _rows(offs, ia)
         Pa, Qa = P[src], Q[src]
         y, r = Pa - Qa, Pa + Qa
         c = coef[ia]
         free = _FREE[sets[ia]]
-        c0, c1, c2 = (np.repeat(c[:, i], n_a) for i in range(3))
-        sw, w = sm.sw[kidx], sm.w[kidx]
-        e = sw * (c0 + c1 * Pa + c2 * Qa - w)
-        dwdy = (c1 * Pa - c2 * Qa) / r
+        cf = np.repeat(np.concatenate([c, free], axis=1), n_a, axis=0)
+        e = sw * (cf[:, 0] + cf[:, 1] * Pa + cf[:, 2] * Qa - w)
+        dwdy = (cf[:, 1] * Pa - cf[:, 2] * Qa) / r
         dwdy *= sw
         J = np.empty((offs_a[-1], 5))
-        J[:, 0] = np.repeat(free[:, 0], n_a) * sw
-        J[:, 1] = np.repeat(free[:, 1], n_a) * Pa * sw
-        J[:, 2] = np.repeat(free[:, 2], n_a) * Qa * sw
+        J[:, 0] = cf[:, 3] * sw
+        J[:, 1] = cf[:, 4] * Pa * sw
+        J[:, 2] = cf[:, 5] * Qa * sw
         J[:, 3] = dwdy * np.repeat(-1.0 / np.exp(ll), n_a)
         J[:, 4] = -dwdy * y
         A = np.empty((p, 5, 5))
@@ -683,7 +694,7 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
         bnd = bounds[ia]
         mt = np.clip(mm[:, None] + step[..., 3], bnd[:, 0:1], bnd[:, 1:2]).ravel()
         lt = np.clip(ll[:, None] + step[..., 4], bnd[:, 2:3], bnd[:, 3:4]).ravel()
-        ct, ot, st, Pt, Qt, (offs_t, _, _) = _inner_many(sm, np.repeat(fa, L), mt,
+        ct, ot, st, Pt, Qt, (offs_t, *_) = _inner_many(sm, np.repeat(fa, L), mt,
                                                          np.exp(lt))
         ot = np.where(np.isfinite(ot), ot, np.inf).reshape(p, L)
         j = np.argmin(ot, axis=1)
@@ -816,6 +827,13 @@ def fit_svi_many(problems, *, errors: str = "raise") -> list:
             out[i] = res
         else:
             pending.append((i, res))
+    states = [st for _, st in pending]
+    if states:
+        # the coarse grids, the zoom around the best points, the zoomed grids
+        for st, obj0 in zip(states, _grid_objectives(states)):
+            _svi_zoom(st, obj0)
+        for st, objz in zip(states, _grid_objectives(states)):
+            _svi_polish_starts(st, objz)
     if len(pending) == 1:        # one smile: its own polish, without the batch layout
         i, st = pending[0]
         out[i] = _svi_finish(st, *_polish(st["k"], st["w"], st["wt"], st["m0"], st["ls0"],
@@ -846,10 +864,9 @@ def _svi_result(k, w, wt, t, iv_q, a, b, rho, m, s, converged, message, method):
 
 
 def _svi_start(k, w, weights, t):
-    """The work of :func:`fit_svi` before the polish: a finished :class:`SviFit` for
-    1 to 4 points, else the polish's starts (the coarse grid, the three best grid
-    points in distinct regions, the zoomed grid around each) and what the finish
-    needs."""
+    """The work of :func:`fit_svi` before its grids: a finished :class:`SviFit` for
+    1 to 4 points, else the state of the search with its coarse grid (the grids'
+    objectives are then formed for every smile together, :func:`_grid_objectives`)."""
     k, w, wt, t = _check_inputs(k, w, weights, t)
     n = k.size
     wt = wt / wt.mean()
@@ -873,16 +890,43 @@ def _svi_start(k, w, weights, t):
     m_lo, m_hi = float(k.min()) - span, float(k.max()) + span
     ls_lo = np.log(max(_SIGMA_GRID[0] * span, _SIGMA_MIN))
     ls_hi = np.log(_SIGMA_GRID[1] * span)
-    (n_m, n_s), (z_m, z_s) = _GRID
+    (n_m, n_s), _ = _GRID
     mg = np.linspace(m_lo, m_hi, n_m)
     lsg = np.linspace(ls_lo, ls_hi, n_s)
-    dm, dls = mg[1] - mg[0], lsg[1] - lsg[0]
     M, LS = np.meshgrid(mg, lsg, indexing="ij")
-    _, obj0, _ = _inner(k, w, wt, M.ravel(), np.exp(LS.ravel()))
+    # the constants of the inner least squares, as _inner forms them
+    wtw = wt * w
+    return {"k": k, "w": w, "wt": wt, "t": t, "iv_q": iv_q, "span": span,
+            "m_lo": m_lo, "m_hi": m_hi, "ls_lo": ls_lo, "ls_hi": ls_hi,
+            "dm": mg[1] - mg[0], "dls": lsg[1] - lsg[0], "M": M, "LS": LS,
+            "W2": np.stack([wt, wtw], axis=1), "g00": float(wt.sum()),
+            "h0": float(wtw.sum()), "ww": float(wtw @ w),
+            "grid": (M.ravel(), np.exp(LS.ravel()))}
+
+
+def _grid_objectives(states: list[dict]) -> list[np.ndarray]:
+    """The inner objective (as :func:`_inner` gives it) at every point of each
+    state's ``grid``: each smile's weighted sums by its own products
+    (:func:`_moments`), the closed forms of every smile in one batch."""
+    sums = [_moments(st["k"], st["W2"], *st["grid"])[:6] for st in states]
+    counts = [st["grid"][0].size for st in states]
+    cat = [np.concatenate([sm_[i] for sm_ in sums]) for i in range(6)]
+    const = [np.repeat(np.array([st[name] for st in states]), counts)
+             for name in ("g00", "h0", "ww")]
+    _, obj, _ = _closed_forms(*const, *cat)
+    obj = np.maximum(obj, 0.0)
+    return np.split(obj, np.cumsum(counts)[:-1])
+
+
+def _svi_zoom(st: dict, obj0: np.ndarray) -> None:
+    """From the coarse grid's objectives: the starts (the best grid points, each
+    more than two cells from the ones already taken) and a finer grid two cells
+    either side of each, as the state's next ``grid``."""
+    M, LS = st["M"], st["LS"]
+    (_, n_s), (z_m, z_s) = _GRID
     obj0 = obj0.reshape(M.shape)
-    # starts: the best grid points, each more than two cells from the ones already
-    # taken (a narrow diagonal valley may have no grid-local minimum of its own, and
-    # a flat plateau, e.g. sigma -> 0, has many tied ones)
+    # a narrow diagonal valley may have no grid-local minimum of its own, and a flat
+    # plateau, e.g. sigma -> 0, has many tied ones
     order = np.argsort(obj0.ravel(), kind="stable")
     cand: list[tuple[int, int]] = []
     for c in order:
@@ -891,8 +935,8 @@ def _svi_start(k, w, weights, t):
             cand.append((ci, cj))
             if len(cand) == _STARTS:
                 break
-    # zoom: a finer grid two cells either side of each start (one batched inner
-    # solve), then the polish from each zoomed minimum, all starts together
+    m_lo, m_hi, ls_lo, ls_hi = st["m_lo"], st["m_hi"], st["ls_lo"], st["ls_hi"]
+    dm, dls = st["dm"], st["dls"]
     MZ, LZ = [], []
     for ci, cj in cand:
         mc, lc = M[ci, cj], LS[ci, cj]
@@ -901,14 +945,20 @@ def _svi_start(k, w, weights, t):
         mz, lz = np.meshgrid(mz, lz, indexing="ij")
         MZ.append(mz.ravel())
         LZ.append(lz.ravel())
-    MZ, LZ = np.array(MZ), np.array(LZ)
-    _, objz, _ = _inner(k, w, wt, MZ.ravel(), np.exp(LZ.ravel()))
+    st["MZ"], st["LZ"] = MZ, LZ = np.array(MZ), np.array(LZ)
+    st["grid"] = (MZ.ravel(), np.exp(LZ.ravel()))
+
+
+def _svi_polish_starts(st: dict, objz: np.ndarray) -> None:
+    """Each start's best zoomed grid point, where the polish begins, and the box
+    its trial points are clipped to."""
+    MZ, LZ = st["MZ"], st["LZ"]
     iz = np.argmin(objz.reshape(MZ.shape), axis=1)
-    rows = np.arange(len(cand))
-    bounds = (m_lo - 10.0 * span, m_hi + 10.0 * span, np.log(_SIGMA_MIN),
-              ls_hi + np.log(10.0))
-    return {"k": k, "w": w, "wt": wt, "t": t, "iv_q": iv_q, "m_lo": m_lo, "m_hi": m_hi,
-            "m0": MZ[rows, iz], "ls0": LZ[rows, iz], "bounds": bounds}
+    rows = np.arange(MZ.shape[0])
+    span = st["span"]
+    st["m0"], st["ls0"] = MZ[rows, iz], LZ[rows, iz]
+    st["bounds"] = (st["m_lo"] - 10.0 * span, st["m_hi"] + 10.0 * span,
+                    np.log(_SIGMA_MIN), st["ls_hi"] + np.log(10.0))
 
 
 def _svi_finish(st: dict, m_f, ls_f, coef_f, obj_f) -> SviFit:
