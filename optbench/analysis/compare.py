@@ -209,6 +209,17 @@ def _only_expiries(values: np.ndarray, usable: np.ndarray, expiries,
     return np.isin(values, listed_values[listed.isin(wanted)])
 
 
+def _expiry_positions(listed: np.ndarray, values: np.ndarray) -> np.ndarray:
+    """Position of each quote's expiry (``values``) among the distinct ``listed``
+    expiries, -1 where it is not listed (what ``pandas.Index.get_indexer`` gives)."""
+    if not listed.size:
+        return np.full(values.shape, -1, dtype=np.intp)
+    order = np.argsort(listed, kind="stable")
+    ranked = listed[order]
+    pos = np.minimum(np.searchsorted(ranked, values), ranked.size - 1)
+    return np.where(ranked[pos] == values, order[pos], -1)
+
+
 SMILE_CURVE_POINTS = 121
 
 
@@ -365,7 +376,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     if fit.fallback_reason:
         warnings.append(f"volatility model: {fit.fallback_reason}")
     warnings += [f"volatility model: {w}" for w in getattr(fit, "warnings", ())]
-    exp_dates = [pd.Timestamp(e).date() for e in fwd["expiry"]]
+    exp_dates = fwd["expiry"].to_numpy().astype("datetime64[D]").tolist()
     last_day = pd.Timestamp(hist.dates[-1]).date()
     if last_day != ch.asof and (ch.asof - last_day).days <= sanity.STALE_DAYS:
         warnings.append(f"the history ends on {last_day.isoformat()}, the quotes are of "
@@ -394,7 +405,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
 
     # --- per expiry: smiles, ATM, points
     say("smile fits")
-    expiry_codes = pd.Index(fwd["expiry"]).get_indexer(q["expiry"])
+    expiry_codes = _expiry_positions(fwd["expiry"].to_numpy(), q["expiry"].to_numpy())
     rows: list[ExpiryRow] = []
     strikes: dict[_dt.date, pd.DataFrame] = {}
     fc_q = fc[expiry_codes]
@@ -681,12 +692,18 @@ def _cone_frame(cone) -> pd.DataFrame:
     for qv in cone.quantiles:
         names.append("min" if qv == 0 else "max" if qv == 1 else "median" if qv == 0.5
                      else f"p{round(100 * qv):d}")
-    frame = pd.DataFrame(np.asarray(cone.values, float).reshape(len(cone.windows), -1),
-                         columns=names)
-    frame.insert(0, "window_days", np.asarray(cone.windows, int))
-    frame["latest"] = np.asarray(cone.latest, float)
-    frame["n_obs"] = np.asarray(cone.n_obs, int)
-    return frame
+    values = np.asarray(cone.values, float).reshape(len(cone.windows), -1)
+    if values.shape[1] != len(names) or len(set(names)) != len(names):
+        frame = pd.DataFrame(values, columns=names)
+        frame.insert(0, "window_days", np.asarray(cone.windows, int))
+        frame["latest"] = np.asarray(cone.latest, float)
+        frame["n_obs"] = np.asarray(cone.n_obs, int)
+        return frame
+    # one construction of the whole frame (not a frame grown column by column)
+    return pd.DataFrame({"window_days": np.asarray(cone.windows, int),
+                         **{name: values[:, i] for i, name in enumerate(names)},
+                         "latest": np.asarray(cone.latest, float),
+                         "n_obs": np.asarray(cone.n_obs, int)})
 
 
 def _model_free_vols(q: pd.DataFrame, fwd: pd.DataFrame, warnings: list,
