@@ -1043,7 +1043,7 @@ def _strike_for_d1(fit: SviFit, d1_target: np.ndarray) -> np.ndarray:
     for _ in range(60):
         wk = np.maximum(fit.total_variance(k), 1e-300)
         k_new = wk / 2 - d1_target * np.sqrt(wk)
-        if np.all(np.abs(k_new - k) < 1e-13):
+        if (np.abs(k_new - k) < 1e-13).all():
             k = k_new
             break
         k = k_new
