@@ -711,16 +711,19 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
             done |= (gain <= 1e-7) & (gain <= 0.01 * rel[ib])
             m[ib], ls[ib] = mt[pb], lt[pb]
             coef[ib], sets[ib], obj[ib] = ct[pb], st[pb], o_new[better]
-            dst, frm = _rows(offs, ib), _rows(offs_t, pb)
-            P[dst], Q[dst] = Pt[frm], Qt[frm]
+            for i, t in zip(ib.tolist(), pb.tolist()):       # each start's basis row
+                a, b, c0 = offs[i], offs[i + 1], offs_t[t]
+                P[a:b] = Pt[c0:c0 + b - a]
+                Q[a:b] = Qt[c0:c0 + b - a]
             lam[ib] = np.maximum(lams.ravel()[pb] / 3.0, 1e-12)
             live[ib] = ~done & (obj[ib] > 1e-30)
         live[ia[~better]] = False
         rel[ib] = (obj_prev[ib] - obj[ib]) / np.maximum(obj_prev[ib], 1e-300)
         # per fit: a start behind one of its fit's finished starts, gaining little
-        fin_obj = np.where(live, np.inf, obj)
-        best_fin = np.minimum.reduceat(fin_obj, first_start)
-        live &= ~((obj > np.repeat(best_fin, per_fit) * (1 + 1e-9)) & (rel < _CRAWL))
+        if not live.all():
+            fin_obj = np.where(live, np.inf, obj)
+            best_fin = np.minimum.reduceat(fin_obj, first_start)
+            live &= ~((obj > np.repeat(best_fin, per_fit) * (1 + 1e-9)) & (rel < _CRAWL))
     return m, ls, coef, obj
 
 
