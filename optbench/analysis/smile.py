@@ -541,8 +541,8 @@ def _inner_many(sm: _Smiles, fit_of: np.ndarray, m: np.ndarray, s: np.ndarray):
     Returns coefficients, objectives, active sets, and the basis ``P, Q`` flat with its
     layout (:meth:`_Smiles.layout`)."""
     offs, n_pt, _, segs, k_e, w_e, _ = lay = sm.layout(fit_of)
-    y = np.subtract(k_e, np.repeat(m, n_pt))
-    y /= np.repeat(s, n_pt)
+    y = np.subtract(k_e, m.repeat(n_pt))
+    y /= s.repeat(n_pt)
     r = np.multiply(y, y)
     r += 1.0
     np.sqrt(r, out=r)
@@ -593,7 +593,7 @@ def _inner_many(sm: _Smiles, fit_of: np.ndarray, m: np.ndarray, s: np.ndarray):
     if np.any(flat):
         best[flat] = 0.0
         sets[flat] = 7
-    bE = np.repeat(best, n_pt, axis=0)
+    bE = best.repeat(n_pt, axis=0)
     e = bE[:, 0] + bE[:, 1] * P + bE[:, 2] * Q - w_e
     e *= e
     out = np.empty(p)
@@ -650,7 +650,7 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
         y, r = Pa - Qa, Pa + Qa
         c = coef[ia]
         free = _FREE[sets[ia]]
-        cf = np.repeat(np.concatenate([c, free], axis=1), n_a, axis=0)
+        cf = np.concatenate([c, free], axis=1).repeat(n_a, axis=0)
         e = sw * (cf[:, 0] + cf[:, 1] * Pa + cf[:, 2] * Qa - w)
         dwdy = (cf[:, 1] * Pa - cf[:, 2] * Qa) / r
         dwdy *= sw
@@ -658,7 +658,7 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
         J[:, 0] = cf[:, 3] * sw
         J[:, 1] = cf[:, 4] * Pa * sw
         J[:, 2] = cf[:, 5] * Qa * sw
-        J[:, 3] = dwdy * np.repeat(-1.0 / np.exp(ll), n_a)
+        J[:, 3] = dwdy * (-1.0 / np.exp(ll)).repeat(n_a)
         J[:, 4] = -dwdy * y
         A = np.empty((p, 5, 5))
         g = np.empty((p, 5, 1))
@@ -672,7 +672,7 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
         d = np.where(d > 0, d, 1.0)
         lams = lam[ia][:, None] * _DAMPING                           # (p, L)
         Mx = A[:, None] + (lams[:, :, None, None] * eye) * d[:, None, None, :]
-        rhs = -np.repeat(g[:, None], L, axis=1)
+        rhs = -g[:, None].repeat(L, axis=1)
         try:
             step = np.linalg.solve(Mx, rhs)[..., 0]
         except np.linalg.LinAlgError:
@@ -694,7 +694,7 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
         bnd = bounds[ia]
         mt = np.clip(mm[:, None] + step[..., 3], bnd[:, 0:1], bnd[:, 1:2]).ravel()
         lt = np.clip(ll[:, None] + step[..., 4], bnd[:, 2:3], bnd[:, 3:4]).ravel()
-        ct, ot, st, Pt, Qt, (offs_t, *_) = _inner_many(sm, np.repeat(fa, L), mt,
+        ct, ot, st, Pt, Qt, (offs_t, *_) = _inner_many(sm, fa.repeat(L), mt,
                                                          np.exp(lt))
         ot = np.where(np.isfinite(ot), ot, np.inf).reshape(p, L)
         j = np.argmin(ot, axis=1)
@@ -723,7 +723,7 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
         if not live.all():
             fin_obj = np.where(live, np.inf, obj)
             best_fin = np.minimum.reduceat(fin_obj, first_start)
-            live &= ~((obj > np.repeat(best_fin, per_fit) * (1 + 1e-9)) & (rel < _CRAWL))
+            live &= ~((obj > best_fin.repeat(per_fit) * (1 + 1e-9)) & (rel < _CRAWL))
     return m, ls, coef, obj
 
 
