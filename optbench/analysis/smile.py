@@ -26,6 +26,9 @@ Levenberg-Marquardt polish in :math:`(m, \\ln\\sigma)` (Golub & Pereyra 1973,
 Kaufman 1975: Gauss-Newton steps of the reduced problem, each trial point scored by
 the exact inner solve) refine the fit, all starts and several damping factors in
 one batched step. The search is deterministic and needs no starting guess.
+:func:`fit_svi_many` runs the search of several expiries together (one batch of
+closed forms per grid, one polish loop for every expiry's starts) with each expiry's
+sums formed exactly as alone, so its fits equal :func:`fit_svi`'s bit for bit.
 
 References: J. Gatheral, "A parsimonious arbitrage-free implied volatility
 parameterization with application to the valuation of volatility derivatives",
@@ -371,7 +374,8 @@ def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m0: np.ndarray,
             ls0: np.ndarray, bounds: tuple[float, float, float, float],
             max_iter: int = 20) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     r"""Levenberg-Marquardt in (m, ln sigma) with the linear part solved exactly,
-    batched over starts and damping factors.
+    batched over starts and damping factors (one smile; :func:`_polish_many` takes
+    the same steps for several smiles at once).
 
     ``m0, ls0`` (shape (S,)) are the starts; ``bounds`` = (m_min, m_max, ln sigma
     min, ln sigma max) clip the trial points. Returns m, ln sigma, coefficients
@@ -492,9 +496,9 @@ class _Smiles:
         self.sw = np.concatenate([np.sqrt(p[2]) for p in problems])
         self.n = np.array([p[0].size for p in problems], dtype=np.intp)
         self.base = np.concatenate([[0], np.cumsum(self.n)[:-1]]).astype(np.intp)
-        self.wt = [p[2] for p in problems]
-        self.ww = [p[1] for p in problems]
-        self.kk = [p[0] for p in problems]
+        self.wt_of = [p[2] for p in problems]
+        self.w_of = [p[1] for p in problems]
+        self.k_of = [p[0] for p in problems]
         self.W2, g00, h0, ww = [], [], [], []
         for _, w, wt in problems:
             wtw = wt * w
@@ -558,7 +562,7 @@ def _inner_many(sm: _Smiles, fit_of: np.ndarray, m: np.ndarray, s: np.ndarray):
     for f, a, b in segs:
         seg = slice(offs[a], offs[b])
         shape = (b - a, int(sm.n[f]))
-        W2, wt = sm.W2[f], sm.wt[f]
+        W2, wt = sm.W2[f], sm.wt_of[f]
         gP[a:b] = P[seg].reshape(shape) @ W2
         gQ[a:b] = Q[seg].reshape(shape) @ W2
         dP[a:b] = PP[seg].reshape(shape) @ wt
@@ -599,11 +603,11 @@ def _inner_many(sm: _Smiles, fit_of: np.ndarray, m: np.ndarray, s: np.ndarray):
     out = np.empty(p)
     for f, a, b in segs:
         if exact[f]:
-            coef_f, obj_f, sets_f = _inner(sm.kk[f], sm.ww[f], sm.wt[f], m[a:b], s[a:b],
+            coef_f, obj_f, sets_f = _inner(sm.k_of[f], sm.w_of[f], sm.wt_of[f], m[a:b], s[a:b],
                                            exact=True)
             best[a:b], out[a:b], sets[a:b] = coef_f, obj_f, sets_f
         else:
-            out[a:b] = e[offs[a]:offs[b]].reshape(b - a, int(sm.n[f])) @ sm.wt[f]
+            out[a:b] = e[offs[a]:offs[b]].reshape(b - a, int(sm.n[f])) @ sm.wt_of[f]
     return best, out, sets, P, Q, lay
 
 
