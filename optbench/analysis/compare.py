@@ -177,15 +177,40 @@ def _quote_vols(q: pd.DataFrame, fwd: pd.DataFrame, spot: float, dividends=None)
     return a.forward, a.discount, a.rate, a.carry, a.vols, a.american
 
 
-def _only_expiries(q: pd.DataFrame, expiries, source) -> pd.DataFrame:
-    """The quotes of the chosen expiries (the comparison then covers only those)."""
+def _usable_quotes(q: pd.DataFrame, expiries, source) -> pd.DataFrame:
+    """The quotes with time to expiry left (``t > 0``) and, when ``expiries`` are given,
+    of those expiries only (the comparison then covers only those), numbered from 0:
+    one boolean take of the frame."""
+    values = q["expiry"].to_numpy()
+    keep = q["t"].to_numpy(float) > 0
+    if expiries is not None:
+        keep &= _only_expiries(values, keep, expiries, source)
+    return (q if keep.all() else q[keep]).reset_index(drop=True)
+
+
+def _only_expiries(values: np.ndarray, usable: np.ndarray, expiries,
+                   source) -> np.ndarray:
+    """Which quotes (expiry ``values``) belong to the chosen expiries; an expiry with no
+    ``usable`` quote is an error. Compared per listed expiry, not per quote."""
+    listed_values = np.unique(values[usable])
+    listed = pd.to_datetime(listed_values)
     wanted = pd.to_datetime(pd.Index([pd.Timestamp(e) for e in expiries]))
-    listed = pd.to_datetime(q["expiry"])
     missing = sorted(set(wanted) - set(listed))
     if missing:
         raise InputError("--expiry", f"{missing[0].date().isoformat()} is not an expiry "
                                      f"with usable quotes in {source}")
-    return q[listed.isin(wanted).to_numpy()].reset_index(drop=True)
+    return np.isin(values, listed_values[listed.isin(wanted)])
+
+
+def _expiry_positions(listed: np.ndarray, values: np.ndarray) -> np.ndarray:
+    """Position of each quote's expiry (``values``) among the distinct ``listed``
+    expiries, -1 where it is not listed (what ``pandas.Index.get_indexer`` gives)."""
+    if not listed.size:
+        return np.full(values.shape, -1, dtype=np.intp)
+    order = np.argsort(listed, kind="stable")
+    ranked = listed[order]
+    pos = np.minimum(np.searchsorted(ranked, values), ranked.size - 1)
+    return np.where(ranked[pos] == values, order[pos], -1)
 
 
 SMILE_CURVE_POINTS = 121
@@ -264,7 +289,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         module's Notes for the formulas.
     """
     from optbench.analysis.arbitrage import strike_arbitrage
-    from optbench.analysis.smile import fit_svi, smile_points
+    from optbench.analysis.smile import fit_svi_many, smile_points
     from optbench.pricing.bsm import black_price, bsm_price
     from optbench.pricing.forwards import implied_forwards
     from optbench.pricing.greeks import bsm_greeks
@@ -305,9 +330,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     hist = _history_upto(hist, ch.asof, warnings)
     warnings.extend(sanity.history_findings(hist))
     warnings.extend(sanity.input_consistency(ch, hist))
-    q = q[q["t"] > 0].reset_index(drop=True)
-    if expiries is not None:
-        q = _only_expiries(q, expiries, ch.source)
+    q = _usable_quotes(q, expiries, ch.source)
     S, r0, q0 = float(ch.spot), float(ch.rate), float(ch.div_yield)
     meta_excess, meta_source = _meta_excess(chain)
     drift_choice = choose_drift(drift, excess_return, rate=r0, div_yield=q0,
@@ -346,7 +369,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     if fit.fallback_reason:
         warnings.append(f"volatility model: {fit.fallback_reason}")
     warnings += [f"volatility model: {w}" for w in getattr(fit, "warnings", ())]
-    exp_dates = [pd.Timestamp(e).date() for e in fwd["expiry"]]
+    exp_dates = fwd["expiry"].to_numpy().astype("datetime64[D]").tolist()
     last_day = pd.Timestamp(hist.dates[-1]).date()
     if last_day != ch.asof and (ch.asof - last_day).days <= sanity.STALE_DAYS:
         warnings.append(f"the history ends on {last_day.isoformat()}, the quotes are of "
@@ -375,7 +398,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
 
     # --- per expiry: smiles, ATM, points
     say("smile fits")
-    expiry_codes = pd.Index(fwd["expiry"]).get_indexer(q["expiry"])
+    expiry_codes = _expiry_positions(fwd["expiry"].to_numpy(), q["expiry"].to_numpy())
     rows: list[ExpiryRow] = []
     strikes: dict[_dt.date, pd.DataFrame] = {}
     fc_q = fc[expiry_codes]
@@ -400,7 +423,8 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
         edge_vega = np.where(vega_pt > 1e-12, edge_unit / vega_pt, np.nan)
     edge_pts = 100.0 * (iv_mid - fc_q)
-    table = pd.DataFrame({
+    n_q = len(q)
+    columns = {
         "expiry": q["expiry"].to_numpy(), "strike": K, "is_call": is_call,
         "type": np.where(is_call, "C", "P"), "moneyness": K / F,
         "bid": q["bid"].to_numpy(float), "ask": q["ask"].to_numpy(float), "mid": mid,
@@ -408,28 +432,50 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         "delta": np.asarray(g.delta, float), "vega_per_vol_point": vega_pt,
         "forecast_vol": fc_q, "price_at_forecast": price_fc,
         "edge_per_contract": edge_unit * mult, "edge_vol_points": edge_pts,
-        "edge_per_vega": edge_vega,
-        "multiplier": mult, "line": q["line"].to_numpy() if "line" in q.columns else 0,
-    }, columns=list(STRIKE_COLUMNS))
+        "edge_per_vega": edge_vega, "multiplier": mult,
+        "line": q["line"].to_numpy() if "line" in q.columns else np.zeros(n_q, np.int64),
+    }
+    # the per-strike table sorted once by expiry, then puts before calls, then strike
+    # (a stable sort: the order each expiry's own stable sort gives); each expiry's
+    # rows are one slice of it, and the protection judging reads the sorted arrays
+    order = np.lexsort((K, is_call, expiry_codes))
+    columns = {name: np.asarray(columns[name])[order] for name in STRIKE_COLUMNS}
+    table = pd.DataFrame(columns, columns=list(STRIKE_COLUMNS))
+    bounds = np.searchsorted(expiry_codes[order], np.arange(len(fwd) + 1))
 
-    model_free = _model_free_vols(q, fwd, warnings)
-    for j, e_date in enumerate(exp_dates):
-        sel = expiry_codes == j
-        t_e = float(fwd["t"].iloc[j])
-        F_e = float(fwd["forward"].iloc[j])
-        use = sel & otm & np.isfinite(iv_mid)
-        smile_info: dict = {"method": "none"}
-        atm = iv25p = iv25c = rr = iv90 = iv95 = math.nan
-        idx = np.flatnonzero(use)
+    model_free = _model_free_vols(q, fwd, warnings, expiry_codes)
+    fwd_t = fwd["t"].to_numpy(float)
+    fwd_forward = fwd["forward"].to_numpy(float)
+    fwd_rate = fwd["rate"].to_numpy(float)
+    fwd_carry = fwd["carry"].to_numpy(float)
+    fwd_discount = fwd["discount"].to_numpy(float)
+    fwd_parity = (fwd["source"] == "parity").to_numpy(bool)
+    # the smile of every expiry fitted together (the same fits as one at a time)
+    problems, fitted = [], []
+    for j in range(len(exp_dates)):
+        t_e = float(fwd_t[j])
+        idx = np.flatnonzero((expiry_codes == j) & otm & np.isfinite(iv_mid))
         if idx.size > MAX_SMILE_POINTS:
             idx = idx[np.argsort(k_q[idx], kind="stable")]
             idx = idx[np.unique(np.linspace(0, idx.size - 1, MAX_SMILE_POINTS).round().astype(int))]
         if idx.size >= 1:
             vw = np.where(np.isfinite(vega_pt[idx]), np.maximum(vega_pt[idx], 1e-8), 1e-8)
+            problems.append((k_q[idx], iv_mid[idx] ** 2 * t_e, vw, t_e))
+            fitted.append(j)
+    smile_fits = dict(zip(fitted, fit_svi_many(problems, errors="return")))
+    for j, e_date in enumerate(exp_dates):
+        sel = expiry_codes == j
+        t_e = float(fwd_t[j])
+        F_e = float(fwd_forward[j])
+        smile_info: dict = {"method": "none"}
+        atm = iv25p = iv25c = rr = iv90 = iv95 = math.nan
+        if j in smile_fits:
             try:
-                sfit = fit_svi(k_q[idx], iv_mid[idx] ** 2 * t_e, vw, t=t_e)
-                pts = smile_points(sfit, F_e, t_e, r=float(fwd["rate"].iloc[j]),
-                                   q=float(fwd["carry"].iloc[j]))
+                sfit = smile_fits[j]
+                if isinstance(sfit, InputError):
+                    raise sfit
+                pts = smile_points(sfit, F_e, t_e, r=float(fwd_rate[j]),
+                                   q=float(fwd_carry[j]))
                 atm, iv25p, iv25c, rr = pts.iv_atm, pts.iv_25d_put, pts.iv_25d_call, pts.rr_25d
                 money = list(pts.moneyness)
                 iv90 = float(pts.iv_moneyness[money.index(0.90)])
@@ -444,11 +490,13 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
                               "curve": _smile_curve(sfit, K[sel], F_e)}
             except InputError as err:
                 smile_info = {"method": "failed", "reason": err.problem}
-        atm_bid = _interp_at_forward(k_q[sel & otm], iv_bid[sel & otm])
-        atm_ask = _interp_at_forward(k_q[sel & otm], iv_ask[sel & otm])
+        sel_otm = sel & otm
+        k_otm = k_q[sel_otm]
+        atm_bid = _interp_at_forward(k_otm, iv_bid[sel_otm])
+        atm_ask = _interp_at_forward(k_otm, iv_ask[sel_otm])
         atm, atm_bid, atm_ask, atm_source, atm_note = _atm_rules(
             e_date, atm, atm_bid, atm_ask, k_q[sel], iv_mid[sel],
-            _interp_at_forward(k_q[sel & otm], iv_mid[sel & otm]))
+            _interp_at_forward(k_otm, iv_mid[sel_otm]))
         smile_info["atm_source"] = atm_source
         if atm_note:
             warnings.append(atm_note)
@@ -458,10 +506,13 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
             warnings.append(sanity.forecast_flag(e_date, f_e))
             verdict = "n/a"
         prob = float(np.mean(rv_paths[:, j] > atm)) if math.isfinite(atm) else math.nan
-        part = table.loc[sel].sort_values(["is_call", "strike"]).reset_index(drop=True)
+        lo_row, hi_row = int(bounds[j]), int(bounds[j + 1])
+        part = table.iloc[lo_row:hi_row].reset_index(drop=True)
+        part_columns = {name: columns[name][lo_row:hi_row]
+                        for name in ("strike", "ask", "delta", "is_call", "iv_mid", "mid")}
         put25, floor_put = judge_puts(
-            part, choose_puts(part, S, floor), draws, j, spot=S,
-            discount=float(fwd["discount"].iloc[j]), forecast_vol=f_e, forecast_low=lo_e,
+            part_columns, choose_puts(part_columns, S, floor), draws, j, spot=S,
+            discount=float(fwd_discount[j]), forecast_vol=f_e, forecast_low=lo_e,
             forecast_high=hi_e, band_high_level=hi_level)
         for name, judged in (("25-delta put", put25), ("floor put", floor_put)):
             if judged.unresolved:
@@ -472,8 +523,8 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
                     f"{MIN_PAYING_PATHS} needed; more --paths resolve it)")
         rows.append(ExpiryRow(
             expiry=e_date, calendar_days=int(round(t_e * 365)), trading_days=int(td[j]),
-            t=t_e, forward=F_e, discount=float(fwd["discount"].iloc[j]),
-            forward_source="put-call parity" if fwd["source"].iloc[j] == "parity" else "carry",
+            t=t_e, forward=F_e, discount=float(fwd_discount[j]),
+            forward_source="put-call parity" if fwd_parity[j] else "carry",
             style="american" if american[sel].all() else "european",
             n_quotes=int(sel.sum()), atm_iv=float(atm), atm_iv_bid=atm_bid, atm_iv_ask=atm_ask,
             iv_25d_put=float(iv25p), iv_25d_call=float(iv25c), iv_90=iv90, iv_95=iv95,
@@ -484,7 +535,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
             iv_forecast_ratio=float(atm / f_e) if f_e > 0 else math.nan,
             prob_realized_above_iv=prob, verdict=verdict,
             smile=smile_info, arbitrage_flags=int(arb.quote_flag[sel].sum()),
-            rate=float(fwd["rate"].iloc[j]), carry=float(fwd["carry"].iloc[j]),
+            rate=float(fwd_rate[j]), carry=float(fwd_carry[j]),
             floor=floor, **put25.fields_with("put25"), **floor_put.fields_with("floor_put")))
         strikes[e_date] = part
 
@@ -634,45 +685,57 @@ def _cone_frame(cone) -> pd.DataFrame:
     for qv in cone.quantiles:
         names.append("min" if qv == 0 else "max" if qv == 1 else "median" if qv == 0.5
                      else f"p{round(100 * qv):d}")
-    frame = pd.DataFrame(np.asarray(cone.values, float).reshape(len(cone.windows), -1),
-                         columns=names)
-    frame.insert(0, "window_days", np.asarray(cone.windows, int))
-    frame["latest"] = np.asarray(cone.latest, float)
-    frame["n_obs"] = np.asarray(cone.n_obs, int)
-    return frame
+    values = np.asarray(cone.values, float).reshape(len(cone.windows), -1)
+    if values.shape[1] != len(names) or len(set(names)) != len(names):
+        frame = pd.DataFrame(values, columns=names)
+        frame.insert(0, "window_days", np.asarray(cone.windows, int))
+        frame["latest"] = np.asarray(cone.latest, float)
+        frame["n_obs"] = np.asarray(cone.n_obs, int)
+        return frame
+    # one construction of the whole frame (not a frame grown column by column)
+    return pd.DataFrame({"window_days": np.asarray(cone.windows, int),
+                         **{name: values[:, i] for i, name in enumerate(names)},
+                         "latest": np.asarray(cone.latest, float),
+                         "n_obs": np.asarray(cone.n_obs, int)})
 
 
-def _model_free_vols(q: pd.DataFrame, fwd: pd.DataFrame, warnings: list) -> np.ndarray:
+def _model_free_vols(q: pd.DataFrame, fwd: pd.DataFrame, warnings: list,
+                     code: np.ndarray | None = None) -> np.ndarray:
     """sqrt of the model-free implied variance per expiry (NaN where unavailable).
 
     One call of :func:`optbench.analysis.model_free.model_free_variance` per expiry on
-    its strikes' call and put mids and bids (a loop over expiries, not quotes).
+    its strikes' call and put mids and bids (a loop over expiries, not quotes);
+    ``code`` is each quote's expiry position in ``fwd`` when already known.
     """
     from optbench.analysis.model_free import model_free_variance
 
-    code = pd.Index(fwd["expiry"]).get_indexer(q["expiry"])
+    if code is None:
+        code = pd.Index(fwd["expiry"]).get_indexer(q["expiry"])
     K = q["strike"].to_numpy(float)
     calls = q["is_call"].to_numpy(bool)
     mid = q["mid"].to_numpy(float)
     bid = q["bid"].to_numpy(float)
+    t = fwd["t"].to_numpy(float)
+    forward = fwd["forward"].to_numpy(float)
+    discount = fwd["discount"].to_numpy(float)
     out = np.full(len(fwd), np.nan)
     for j in range(len(fwd)):
         sel = np.flatnonzero(code == j)
         if sel.size == 0:
             continue
-        strikes = np.unique(K[sel])
-        pos = np.searchsorted(strikes, K[sel])
+        K_j, calls_j = K[sel], calls[sel]
+        strikes = np.unique(K_j)
+        pos = np.searchsorted(strikes, K_j)
         side = {}
-        for name, values in (("mid", mid), ("bid", bid)):
+        for name, values in (("mid", mid[sel]), ("bid", bid[sel])):
             for is_call in (True, False):
                 arr = np.full(strikes.size, np.nan)
-                pick = calls[sel] == is_call
-                arr[pos[pick]] = values[sel][pick]
+                pick = calls_j == is_call
+                arr[pos[pick]] = values[pick]
                 side[name, is_call] = arr
         try:
-            mf = model_free_variance(strikes, float(fwd["t"].iloc[j]),
-                                     float(fwd["forward"].iloc[j]),
-                                     float(fwd["discount"].iloc[j]),
+            mf = model_free_variance(strikes, float(t[j]), float(forward[j]),
+                                     float(discount[j]),
                                      call_mid=side["mid", True], put_mid=side["mid", False],
                                      call_bid=side["bid", True], put_bid=side["bid", False])
         except InputError as err:

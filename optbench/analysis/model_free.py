@@ -126,6 +126,22 @@ def _keep_side(quoted: np.ndarray) -> tuple[np.ndarray, bool]:
     return quoted, False
 
 
+def _nanmean2(a: float, b: float) -> float:
+    """``numpy.nanmean([a, b])`` of two numbers, not both NaN: the same sum of the
+    non-NaN values (a NaN counts as 0, the sum starts at +0) divided by their count."""
+    return (0.0 + (a if a == a else 0.0) + (b if b == b else 0.0)) / ((a == a) + (b == b))
+
+
+def _nanmax2(a: float, b: float) -> float:
+    """``numpy.nanmax([a, b])`` of two numbers, not both NaN (the second of two equal
+    ones, as numpy's reduction keeps it)."""
+    if a != a:
+        return b
+    if b != b:
+        return a
+    return a if a > b else b
+
+
 def model_free_variance(strike, t, forward, discount, *, call_mid=None, put_mid=None,
                         otm_mid=None, call_bid=None, put_bid=None,
                         otm_bid=None) -> ModelFreeVariance:
@@ -194,7 +210,7 @@ def model_free_variance(strike, t, forward, discount, *, call_mid=None, put_mid=
     else:
         cm, pm = pick(call_mid), pick(put_mid)
         Q = np.where(K < K[i0], pm, cm)
-        both = np.nanmean(np.array([[cm[i0]], [pm[i0]]]), axis=0)[0] if (
+        both = _nanmean2(float(cm[i0]), float(pm[i0])) if (
             np.isfinite(cm[i0]) or np.isfinite(pm[i0])) else nan
         if not (np.isfinite(cm[i0]) and np.isfinite(pm[i0])):
             notes.append("only one side quoted at K0")
@@ -202,7 +218,7 @@ def model_free_variance(strike, t, forward, discount, *, call_mid=None, put_mid=
         if call_bid is not None or put_bid is not None:
             cb, pb = pick(call_bid), pick(put_bid)
             bid = np.where(K < K[i0], pb, cb)
-            bid[i0] = np.nanmax([cb[i0], pb[i0]]) if (
+            bid[i0] = _nanmax2(float(cb[i0]), float(pb[i0])) if (
                 np.isfinite(cb[i0]) or np.isfinite(pb[i0])) else nan
         else:
             bid = None

@@ -26,6 +26,9 @@ Levenberg-Marquardt polish in :math:`(m, \\ln\\sigma)` (Golub & Pereyra 1973,
 Kaufman 1975: Gauss-Newton steps of the reduced problem, each trial point scored by
 the exact inner solve) refine the fit, all starts and several damping factors in
 one batched step. The search is deterministic and needs no starting guess.
+:func:`fit_svi_many` runs the search of several expiries together (one batch of
+closed forms per grid, one polish loop for every expiry's starts) with each expiry's
+sums formed exactly as alone, so its fits equal :func:`fit_svi`'s bit for bit.
 
 References: J. Gatheral, "A parsimonious arbitrage-free implied volatility
 parameterization with application to the valuation of volatility derivatives",
@@ -230,9 +233,22 @@ def _inner(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m: np.ndarray,
     W2 = np.stack([wt, wtw], axis=1)                                # (n, 2)
     g01, h1, g02, h2, g11, g22, PQ = _moments(k, W2, m, s)
     g00 = float(wt.sum())
-    g12 = 0.25 * g00
     h0 = float(wtw.sum())
     ww = float(wtw @ w)
+    best, best_obj, sets = _closed_forms(g00, h0, ww, g01, h1, g02, h2, g11, g22)
+    if exact:
+        P, Q = PQ if PQ is not None else _basis(k, m, s)
+        e = best[:, 0:1] + best[:, 1:2] * P + best[:, 2:3] * Q - w
+        best_obj = (e * e) @ wt
+    return best, np.maximum(best_obj, 0.0), sets
+
+
+def _closed_forms(g00, h0, ww, g01, h1, g02, h2, g11, g22):
+    """The seven active sets of :func:`_inner` in closed form from the weighted sums
+    (each of shape (p,); ``g00 = sum wt``, ``h0 = sum wt w`` and ``ww = sum wt w^2``
+    numbers, or arrays of shape (p,) when the candidates come from several fits):
+    the best feasible (a, u, v), its objective (the expanded quadratic) and set."""
+    g12 = 0.25 * g00
     p = g01.size
     tiny = 1e-300
     A = np.zeros((7, p))
@@ -278,13 +294,9 @@ def _inner(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m: np.ndarray,
     if np.any(flat):
         # a = u = v = 0 is always feasible
         best[flat] = 0.0
-        best_obj[flat] = ww
+        best_obj[flat] = np.broadcast_to(ww, (p,))[flat]
         sets[flat] = 7
-    if exact:
-        P, Q = PQ if PQ is not None else _basis(k, m, s)
-        e = best[:, 0:1] + best[:, 1:2] * P + best[:, 2:3] * Q - w
-        best_obj = (e * e) @ wt
-    return best, np.maximum(best_obj, 0.0), sets
+    return best, best_obj, sets
 
 
 def _raw_params(coef: np.ndarray, m: float, s: float) -> tuple[float, float, float]:
@@ -362,7 +374,8 @@ def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m0: np.ndarray,
             ls0: np.ndarray, bounds: tuple[float, float, float, float],
             max_iter: int = 20) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     r"""Levenberg-Marquardt in (m, ln sigma) with the linear part solved exactly,
-    batched over starts and damping factors.
+    batched over starts and damping factors (one smile; :func:`_polish_many` takes
+    the same steps for several smiles at once).
 
     ``m0, ls0`` (shape (S,)) are the starts; ``bounds`` = (m_min, m_max, ln sigma
     min, ln sigma max) clip the trial points. Returns m, ln sigma, coefficients
@@ -467,6 +480,257 @@ def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m0: np.ndarray,
     return m, ls, coef, obj
 
 
+# ---------------------------------------------------------------------------
+# several smiles at once: the polish of every expiry in one batched loop
+# ---------------------------------------------------------------------------
+
+class _Smiles:
+    """The quotes of several smile fits side by side: ``k``, ``w``, weights and their
+    square roots concatenated (fit ``f`` at ``base[f]:base[f] + n[f]``), and each fit's
+    constants of the inner least squares, computed as :func:`_inner_few` computes
+    them for one fit."""
+
+    def __init__(self, problems):
+        self.k = np.concatenate([p[0] for p in problems])
+        self.w = np.concatenate([p[1] for p in problems])
+        self.sw = np.concatenate([np.sqrt(p[2]) for p in problems])
+        self.n = np.array([p[0].size for p in problems], dtype=np.intp)
+        self.base = np.concatenate([[0], np.cumsum(self.n)[:-1]]).astype(np.intp)
+        self.wt_of = [p[2] for p in problems]
+        self.w_of = [p[1] for p in problems]
+        self.k_of = [p[0] for p in problems]
+        self.W2, g00, h0, ww = [], [], [], []
+        for _, w, wt in problems:
+            wtw = wt * w
+            self.W2.append(np.stack([wt, wtw], axis=1))
+            g00.append(float(wt.sum()))
+            h0.append(float(wtw.sum()))
+            ww.append(float(wtw @ w))
+        self.g00, self.h0, self.wwsum = np.array(g00), np.array(h0), np.array(ww)
+        self._layouts: dict = {}
+
+    def layout(self, fit_of: np.ndarray):
+        """Flat layout of one basis row per point (points grouped by fit, in order):
+        row offsets (size points + 1), the row length of each point, the index of
+        each element's quote in the concatenated quotes, the runs of
+        :meth:`segments`, and each element's ``k``, ``w`` and ``sqrt(weight)``. Kept
+        per set of points (the polish meets the same sets round after round)."""
+        key = fit_of.tobytes()
+        hit = self._layouts.get(key)
+        if hit is None:
+            n_pt = self.n[fit_of]
+            offs = np.zeros(fit_of.size + 1, dtype=np.intp)
+            np.cumsum(n_pt, out=offs[1:])
+            kidx = np.arange(offs[-1]) + np.repeat(self.base[fit_of] - offs[:-1], n_pt)
+            hit = self._layouts[key] = (offs, n_pt, kidx, self.segments(fit_of),
+                                        self.k[kidx], self.w[kidx], self.sw[kidx])
+        return hit
+
+    @staticmethod
+    def segments(fit_of: np.ndarray) -> list[tuple[int, int, int]]:
+        """(fit, first point, end point) of each run of points of one fit."""
+        fits = fit_of.tolist()
+        out, a = [], 0
+        for i in range(1, len(fits) + 1):
+            if i == len(fits) or fits[i] != fits[a]:
+                out.append((fits[a], a, i))
+                a = i
+        return out
+
+
+def _inner_many(sm: _Smiles, fit_of: np.ndarray, m: np.ndarray, s: np.ndarray):
+    """:func:`_inner_exact` for points of several fits at once (``fit_of`` the fit of
+    each point, grouped): the elementwise work and the seven active sets' solves in
+    one batch, each fit's weighted sums by the same matrix products as one fit alone.
+    Returns coefficients, objectives, active sets, and the basis ``P, Q`` flat with its
+    layout (:meth:`_Smiles.layout`)."""
+    offs, n_pt, _, segs, k_e, w_e, _ = lay = sm.layout(fit_of)
+    y = np.subtract(k_e, m.repeat(n_pt))
+    y /= s.repeat(n_pt)
+    r = np.multiply(y, y)
+    r += 1.0
+    np.sqrt(r, out=r)
+    P = np.add(r, y)
+    P *= 0.5
+    Q = np.subtract(r, P, out=y)
+    PP, QQ = P * P, Q * Q
+    p = m.size
+    gP = np.empty((p, 2))
+    gQ = np.empty((p, 2))
+    dP = np.empty(p)
+    dQ = np.empty(p)
+    for f, a, b in segs:
+        seg = slice(offs[a], offs[b])
+        shape = (b - a, int(sm.n[f]))
+        W2, wt = sm.W2[f], sm.wt_of[f]
+        gP[a:b] = P[seg].reshape(shape) @ W2
+        gQ[a:b] = Q[seg].reshape(shape) @ W2
+        dP[a:b] = PP[seg].reshape(shape) @ wt
+        dQ[a:b] = QQ[seg].reshape(shape) @ wt
+    g00 = sm.g00[fit_of]
+    g12 = 0.25 * g00
+    G = np.stack([g00, gP[:, 0], gQ[:, 0], gP[:, 0], dP, g12, gQ[:, 0], g12, dQ],
+                 axis=1).reshape(p, 3, 3)
+    h = np.stack([sm.h0[fit_of], gP[:, 1], gQ[:, 1]], axis=1)
+    G7 = np.where(_KEEP7[:, None], G[None], _EYE3)                  # (7, p, 3, 3)
+    H7 = h[None] * _FREE[:7, None, :]
+    exact = np.zeros(len(sm.n), dtype=bool)   # fits whose sets go to the closed forms
+    try:
+        C = np.linalg.solve(G7, H7[..., None])[..., 0]              # (7, p, 3)
+    except np.linalg.LinAlgError:
+        C = np.zeros((7, p, 3))
+        for f, a, b in segs:
+            try:
+                C[:, a:b] = np.linalg.solve(G7[:, a:b], H7[:, a:b, :, None])[..., 0]
+            except np.linalg.LinAlgError:     # an exactly singular set: closed forms
+                exact[f] = True
+    obj = (sm.wwsum[fit_of] - 2.0 * (C * h).sum(-1)
+           + ((C[..., None, :] @ G)[..., 0, :] * C).sum(-1))
+    with np.errstate(invalid="ignore"):
+        ok = (C[..., 1:].min(-1) >= 0) & (
+            C[..., 0] + np.sqrt(np.maximum(C[..., 1] * C[..., 2], 0.0)) >= 0)
+    obj = np.where(ok & np.isfinite(obj), obj, np.inf)
+    sets = np.argmin(obj, axis=0)
+    cols = np.arange(p)
+    best = C[sets, cols]
+    flat = ~np.isfinite(obj[sets, cols])
+    if np.any(flat):
+        best[flat] = 0.0
+        sets[flat] = 7
+    bE = best.repeat(n_pt, axis=0)
+    e = bE[:, 0] + bE[:, 1] * P + bE[:, 2] * Q - w_e
+    e *= e
+    out = np.empty(p)
+    for f, a, b in segs:
+        if exact[f]:
+            coef_f, obj_f, sets_f = _inner(sm.k_of[f], sm.w_of[f], sm.wt_of[f], m[a:b], s[a:b],
+                                           exact=True)
+            best[a:b], out[a:b], sets[a:b] = coef_f, obj_f, sets_f
+        else:
+            out[a:b] = e[offs[a]:offs[b]].reshape(b - a, int(sm.n[f])) @ sm.wt_of[f]
+    return best, out, sets, P, Q, lay
+
+
+def _rows(offs: np.ndarray, points: np.ndarray) -> np.ndarray:
+    """Flat indices of the basis rows of ``points`` under the row offsets ``offs``."""
+    n = offs[points + 1] - offs[points]
+    first = np.repeat(offs[points] - np.concatenate([[0], np.cumsum(n)[:-1]]), n)
+    return np.arange(int(n.sum())) + first
+
+
+def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarray,
+                 bounds: np.ndarray, max_iter: int = 20):
+    """:func:`_polish` of several fits at once, step for step the same: the starts of
+    every fit (``fit_of``, grouped by fit) advance together; each fit's weighted
+    sums and normal matrices are the same matrix products as for that fit alone, the
+    elementwise work, the damped solves and the trial points' inner solves are one
+    batch. ``bounds`` has one row (m min, m max, ln sigma min, ln sigma max) per
+    start. Returns m, ln sigma, coefficients and objectives of every start."""
+    fit_of = np.asarray(fit_of, dtype=np.intp)
+    m, ls = m0.astype(float).copy(), ls0.astype(float).copy()
+    coef, obj, sets, P, Q, (offs, *_) = _inner_many(sm, fit_of, m, np.exp(ls))
+    rows_of: dict = {}          # flat basis rows of a set of starts
+    S = m.size
+    L = _DAMPING.size
+    lam = np.full(S, 1e-3)
+    live = np.ones(S, dtype=bool)
+    eye = np.eye(5)
+    rel = np.zeros(S)
+    first_start = np.flatnonzero(np.r_[True, np.diff(fit_of) != 0])
+    per_fit = np.diff(np.r_[first_start, S])
+    for _ in range(max_iter):
+        ia = np.flatnonzero(live)
+        if ia.size == 0:
+            break
+        fa = fit_of[ia]
+        offs_a, n_a, _, segs, _, w, sw = sm.layout(fa)
+        p = ia.size
+        mm, ll = m[ia], ls[ia]
+        key = ia.tobytes()
+        src = rows_of.get(key)
+        if src is None:
+            src = rows_of[key] = _rows(offs, ia)
+        Pa, Qa = P[src], Q[src]
+        y, r = Pa - Qa, Pa + Qa
+        c = coef[ia]
+        free = _FREE[sets[ia]]
+        cf = np.concatenate([c, free], axis=1).repeat(n_a, axis=0)
+        e = sw * (cf[:, 0] + cf[:, 1] * Pa + cf[:, 2] * Qa - w)
+        dwdy = (cf[:, 1] * Pa - cf[:, 2] * Qa) / r
+        dwdy *= sw
+        J = np.empty((offs_a[-1], 5))
+        J[:, 0] = cf[:, 3] * sw
+        J[:, 1] = cf[:, 4] * Pa * sw
+        J[:, 2] = cf[:, 5] * Qa * sw
+        J[:, 3] = dwdy * (-1.0 / np.exp(ll)).repeat(n_a)
+        J[:, 4] = -dwdy * y
+        A = np.empty((p, 5, 5))
+        g = np.empty((p, 5, 1))
+        for f, a, b in segs:
+            seg = slice(offs_a[a], offs_a[b])
+            Jf = J[seg].reshape(b - a, int(sm.n[f]), 5)
+            Jt = Jf.transpose(0, 2, 1)
+            A[a:b] = Jt @ Jf                                        # (p, 5, 5)
+            g[a:b] = Jt @ e[seg].reshape(b - a, int(sm.n[f]))[:, :, None]
+        d = np.diagonal(A, axis1=1, axis2=2)
+        d = np.where(d > 0, d, 1.0)
+        lams = lam[ia][:, None] * _DAMPING                           # (p, L)
+        Mx = A[:, None] + (lams[:, :, None, None] * eye) * d[:, None, None, :]
+        rhs = -g[:, None].repeat(L, axis=1)
+        try:
+            step = np.linalg.solve(Mx, rhs)[..., 0]
+        except np.linalg.LinAlgError:
+            # as for one fit alone: a fit with a singular system stops
+            step = np.zeros((p, L, 5))
+            keep = np.ones(p, dtype=bool)
+            for f, a, b in segs:
+                try:
+                    step[a:b] = np.linalg.solve(Mx[a:b], rhs[a:b])[..., 0]
+                except np.linalg.LinAlgError:
+                    lam[ia[a:b]] *= 1e4
+                    live[ia[a:b]] = False
+                    keep[a:b] = False
+            if not keep.any():
+                continue
+            ia, fa, mm, ll = ia[keep], fa[keep], mm[keep], ll[keep]
+            lams, step = lams[keep], step[keep]
+            p = ia.size
+        bnd = bounds[ia]
+        mt = np.clip(mm[:, None] + step[..., 3], bnd[:, 0:1], bnd[:, 1:2]).ravel()
+        lt = np.clip(ll[:, None] + step[..., 4], bnd[:, 2:3], bnd[:, 3:4]).ravel()
+        ct, ot, st, Pt, Qt, (offs_t, *_) = _inner_many(sm, fa.repeat(L), mt,
+                                                         np.exp(lt))
+        ot = np.where(np.isfinite(ot), ot, np.inf).reshape(p, L)
+        j = np.argmin(ot, axis=1)
+        pick = j + np.arange(p) * L
+        o_new = ot.ravel()[pick]
+        better = o_new < obj[ia]
+        obj_prev = obj.copy()
+        ib, pb = ia[better], pick[better]
+        if ib.size:
+            gain = (obj[ib] - o_new[better]) / np.maximum(obj[ib], 1e-300)
+            done = (gain <= 1e-10) | (
+                (np.abs(mt[pb] - m[ib]) <= 1e-13 * (1.0 + np.abs(m[ib])))
+                & (np.abs(lt[pb] - ls[ib]) <= 1e-13 * (1.0 + np.abs(ls[ib]))))
+            done |= (gain <= 1e-7) & (gain <= 0.01 * rel[ib])
+            m[ib], ls[ib] = mt[pb], lt[pb]
+            coef[ib], sets[ib], obj[ib] = ct[pb], st[pb], o_new[better]
+            for i, t in zip(ib.tolist(), pb.tolist()):       # each start's basis row
+                a, b, c0 = offs[i], offs[i + 1], offs_t[t]
+                P[a:b] = Pt[c0:c0 + b - a]
+                Q[a:b] = Qt[c0:c0 + b - a]
+            lam[ib] = np.maximum(lams.ravel()[pb] / 3.0, 1e-12)
+            live[ib] = ~done & (obj[ib] > 1e-30)
+        live[ia[~better]] = False
+        rel[ib] = (obj_prev[ib] - obj[ib]) / np.maximum(obj_prev[ib], 1e-300)
+        # per fit: a start behind one of its fit's finished starts, gaining little
+        if not live.all():
+            fin_obj = np.where(live, np.inf, obj)
+            best_fin = np.minimum.reduceat(fin_obj, first_start)
+            live &= ~((obj > best_fin.repeat(per_fit) * (1 + 1e-9)) & (rel < _CRAWL))
+    return m, ls, coef, obj
+
+
 def _check_inputs(k, w, weights, t) -> tuple[np.ndarray, np.ndarray, np.ndarray, float]:
     try:
         k = np.asarray(k, dtype=float)
@@ -541,47 +805,135 @@ def fit_svi(k: np.ndarray, w: np.ndarray, weights: np.ndarray | None = None, *,
     and the linear part is fitted (``method="svi-fixed-m-sigma"``). With 1 or 2
     points the smile is flat in total variance (``method="flat"``).
     """
+    return fit_svi_many([(k, w, weights, t)], errors="raise")[0]
+
+
+def fit_svi_many(problems, *, errors: str = "raise") -> list:
+    """:func:`fit_svi` of several smiles (e.g. every expiry of a chain) at once.
+
+    ``problems`` is a sequence of ``(k, w, weights, t)``, each as :func:`fit_svi`
+    takes them. Returns one :class:`SviFit` per problem, the same fits, bit for bit,
+    as :func:`fit_svi` one at a time: the polish of every smile runs in one batched
+    loop (:func:`_polish_many`), each smile's own sums formed by the same matrix
+    products as alone. With ``errors="return"`` a problem whose input is unusable
+    gives its :class:`~optbench.errors.InputError` in its place instead of raising.
+    """
+    if errors not in ("raise", "return"):
+        raise ValueError(f"errors must be 'raise' or 'return', not {errors!r}")
+    out: list = [None] * len(problems)
+    pending = []                 # (position, start, data for the finish)
+    for i, (k, w, weights, t) in enumerate(problems):
+        try:
+            res = _svi_start(k, w, weights, t)
+        except InputError as err:
+            if errors == "raise":
+                raise
+            out[i] = err
+            continue
+        if isinstance(res, SviFit):
+            out[i] = res
+        else:
+            pending.append((i, res))
+    states = [st for _, st in pending]
+    if states:
+        # the coarse grids, the zoom around the best points, the zoomed grids
+        for st, obj0 in zip(states, _grid_objectives(states)):
+            _svi_zoom(st, obj0)
+        for st, objz in zip(states, _grid_objectives(states)):
+            _svi_polish_starts(st, objz)
+    if len(pending) == 1:        # one smile: its own polish, without the batch layout
+        i, st = pending[0]
+        out[i] = _svi_finish(st, *_polish(st["k"], st["w"], st["wt"], st["m0"], st["ls0"],
+                                          st["bounds"]))
+    elif pending:
+        sm = _Smiles([(st["k"], st["w"], st["wt"]) for _, st in pending])
+        fit_of = np.concatenate([np.full(st["m0"].size, f, dtype=np.intp)
+                                 for f, (_, st) in enumerate(pending)])
+        bounds = np.concatenate([np.broadcast_to(np.array(st["bounds"], float),
+                                                 (st["m0"].size, 4))
+                                 for _, st in pending])
+        m_f, ls_f, coef_f, obj_f = _polish_many(
+            sm, fit_of, np.concatenate([st["m0"] for _, st in pending]),
+            np.concatenate([st["ls0"] for _, st in pending]), bounds)
+        for f, (i, st) in enumerate(pending):
+            sel = fit_of == f
+            out[i] = _svi_finish(st, m_f[sel], ls_f[sel], coef_f[sel], obj_f[sel])
+    return out
+
+
+def _svi_result(k, w, wt, t, iv_q, a, b, rho, m, s, converged, message, method):
+    x = k - m
+    wf = a + b * (rho * x + np.sqrt(x * x + s * s))
+    iv_f = np.sqrt(np.maximum(wf, 0.0) / t)
+    rmse = float(np.sqrt(np.sum(wt * (iv_f - iv_q) ** 2) / np.sum(wt)))
+    return SviFit(float(a), float(b), float(rho), float(m), float(s), t, rmse, k.size,
+                  bool(converged), message, method)
+
+
+def _svi_start(k, w, weights, t):
+    """The work of :func:`fit_svi` before its grids: a finished :class:`SviFit` for
+    1 to 4 points, else the state of the search with its coarse grid (the grids'
+    objectives are then formed for every smile together, :func:`_grid_objectives`)."""
     k, w, wt, t = _check_inputs(k, w, weights, t)
     n = k.size
     wt = wt / wt.mean()
     iv_q = np.sqrt(w / t)
 
-    def finish(a, b, rho, m, s, converged, message, method):
-        x = k - m
-        wf = a + b * (rho * x + np.sqrt(x * x + s * s))
-        iv_f = np.sqrt(np.maximum(wf, 0.0) / t)
-        rmse = float(np.sqrt(np.sum(wt * (iv_f - iv_q) ** 2) / np.sum(wt)))
-        return SviFit(float(a), float(b), float(rho), float(m), float(s), t, rmse, n,
-                      bool(converged), message, method)
-
     if n < 3 or np.ptp(k) <= 0:
         a0 = float(np.sum(wt * w) / np.sum(wt))
-        return finish(a0, 0.0, 0.0, float(np.mean(k)), 0.1, False,
-                      f"flat total variance: {n} distinct point(s) cannot identify a smile",
-                      "flat")
+        return _svi_result(k, w, wt, t, iv_q, a0, 0.0, 0.0, float(np.mean(k)), 0.1, False,
+                           f"flat total variance: {n} distinct point(s) cannot identify "
+                           "a smile", "flat")
     span = float(np.ptp(k))
     if n < 5:
         m0 = float(k[np.argmin(w)])
         s0 = max(0.5 * span, _SIGMA_MIN)
         coef, _, _ = _inner(k, w, wt, np.array([m0]), np.array([s0]))
         a, b, rho = _raw_params(coef[0], m0, s0)
-        return finish(a, b, rho, m0, s0, False,
-                      f"{n} points: m and sigma held fixed, level/slope/curvature fitted",
-                      "svi-fixed-m-sigma")
+        return _svi_result(k, w, wt, t, iv_q, a, b, rho, m0, s0, False,
+                           f"{n} points: m and sigma held fixed, level/slope/curvature "
+                           "fitted", "svi-fixed-m-sigma")
 
     m_lo, m_hi = float(k.min()) - span, float(k.max()) + span
     ls_lo = np.log(max(_SIGMA_GRID[0] * span, _SIGMA_MIN))
     ls_hi = np.log(_SIGMA_GRID[1] * span)
-    (n_m, n_s), (z_m, z_s) = _GRID
+    (n_m, n_s), _ = _GRID
     mg = np.linspace(m_lo, m_hi, n_m)
     lsg = np.linspace(ls_lo, ls_hi, n_s)
-    dm, dls = mg[1] - mg[0], lsg[1] - lsg[0]
     M, LS = np.meshgrid(mg, lsg, indexing="ij")
-    _, obj0, _ = _inner(k, w, wt, M.ravel(), np.exp(LS.ravel()))
+    # the constants of the inner least squares, as _inner forms them
+    wtw = wt * w
+    return {"k": k, "w": w, "wt": wt, "t": t, "iv_q": iv_q, "span": span,
+            "m_lo": m_lo, "m_hi": m_hi, "ls_lo": ls_lo, "ls_hi": ls_hi,
+            "dm": mg[1] - mg[0], "dls": lsg[1] - lsg[0], "M": M, "LS": LS,
+            "W2": np.stack([wt, wtw], axis=1), "g00": float(wt.sum()),
+            "h0": float(wtw.sum()), "ww": float(wtw @ w),
+            "grid": (M.ravel(), np.exp(LS.ravel()))}
+
+
+def _grid_objectives(states: list[dict]) -> list[np.ndarray]:
+    """The inner objective (as :func:`_inner` gives it) at every point of each
+    state's ``grid``: each smile's weighted sums by its own products
+    (:func:`_moments`), the closed forms of every smile in one batch."""
+    sums = [_moments(st["k"], st["W2"], *st["grid"])[:6] for st in states]
+    counts = [st["grid"][0].size for st in states]
+    cat = [np.concatenate([sm_[i] for sm_ in sums]) for i in range(6)]
+    const = [np.repeat(np.array([st[name] for st in states]), counts)
+             for name in ("g00", "h0", "ww")]
+    _, obj, _ = _closed_forms(*const, *cat)
+    obj = np.maximum(obj, 0.0)
+    return np.split(obj, np.cumsum(counts)[:-1])
+
+
+def _svi_zoom(st: dict, obj0: np.ndarray) -> None:
+    """From the coarse grid's objectives: the starts (the best grid points, each
+    more than two cells from the ones already taken) and a finer grid two cells
+    either side of each, as the state's next ``grid``."""
+    M, LS = st["M"], st["LS"]
+    (_, n_s), (z_m, z_s) = _GRID
     obj0 = obj0.reshape(M.shape)
-    # starts: the best grid points, each more than two cells from the ones already
-    # taken (a narrow diagonal valley may have no grid-local minimum of its own, and
-    # a flat plateau, e.g. sigma -> 0, has many tied ones)
+    # a narrow diagonal valley may have no grid-local minimum of its own, and a flat
+    # plateau, e.g. sigma -> 0, has many tied ones
     order = np.argsort(obj0.ravel(), kind="stable")
     cand: list[tuple[int, int]] = []
     for c in order:
@@ -590,8 +942,8 @@ def fit_svi(k: np.ndarray, w: np.ndarray, weights: np.ndarray | None = None, *,
             cand.append((ci, cj))
             if len(cand) == _STARTS:
                 break
-    # zoom: a finer grid two cells either side of each start (one batched inner
-    # solve), then the polish from each zoomed minimum, all starts together
+    m_lo, m_hi, ls_lo, ls_hi = st["m_lo"], st["m_hi"], st["ls_lo"], st["ls_hi"]
+    dm, dls = st["dm"], st["dls"]
     MZ, LZ = [], []
     for ci, cj in cand:
         mc, lc = M[ci, cj], LS[ci, cj]
@@ -600,24 +952,36 @@ def fit_svi(k: np.ndarray, w: np.ndarray, weights: np.ndarray | None = None, *,
         mz, lz = np.meshgrid(mz, lz, indexing="ij")
         MZ.append(mz.ravel())
         LZ.append(lz.ravel())
-    MZ, LZ = np.array(MZ), np.array(LZ)
-    _, objz, _ = _inner(k, w, wt, MZ.ravel(), np.exp(LZ.ravel()))
+    st["MZ"], st["LZ"] = MZ, LZ = np.array(MZ), np.array(LZ)
+    st["grid"] = (MZ.ravel(), np.exp(LZ.ravel()))
+
+
+def _svi_polish_starts(st: dict, objz: np.ndarray) -> None:
+    """Each start's best zoomed grid point, where the polish begins, and the box
+    its trial points are clipped to."""
+    MZ, LZ = st["MZ"], st["LZ"]
     iz = np.argmin(objz.reshape(MZ.shape), axis=1)
-    rows = np.arange(len(cand))
-    bounds = (m_lo - 10.0 * span, m_hi + 10.0 * span, np.log(_SIGMA_MIN),
-              ls_hi + np.log(10.0))
-    m_f, ls_f, coef_f, obj_f = _polish(k, w, wt, MZ[rows, iz], LZ[rows, iz], bounds)
+    rows = np.arange(MZ.shape[0])
+    span = st["span"]
+    st["m0"], st["ls0"] = MZ[rows, iz], LZ[rows, iz]
+    st["bounds"] = (st["m_lo"] - 10.0 * span, st["m_hi"] + 10.0 * span,
+                    np.log(_SIGMA_MIN), st["ls_hi"] + np.log(10.0))
+
+
+def _svi_finish(st: dict, m_f, ls_f, coef_f, obj_f) -> SviFit:
+    """The polished starts of one smile to its :class:`SviFit` (the best start)."""
     ib = int(np.argmin(obj_f))
     m_best, s_best = float(m_f[ib]), float(np.exp(ls_f[ib]))
     a, b, rho = _raw_params(coef_f[ib], m_best, s_best)
     # m far outside the strikes or a vanishing sigma: the smile is nearly a straight
     # line or a corner over the quotes, and SVI's parameters are not identified
-    degenerate = (m_best <= m_lo or m_best >= m_hi or s_best <= _SIGMA_MIN * 1.0001
-                  or abs(rho) >= 0.999)
+    degenerate = (m_best <= st["m_lo"] or m_best >= st["m_hi"]
+                  or s_best <= _SIGMA_MIN * 1.0001 or abs(rho) >= 0.999)
     message = "raw SVI fit" if not degenerate else (
         "raw SVI fit; parameters nearly degenerate (m outside the search range, sigma "
         "near 0 or |rho| near 1): the smile is close to a line or a corner")
-    return finish(a, b, rho, m_best, s_best, not degenerate, message, "svi")
+    return _svi_result(st["k"], st["w"], st["wt"], st["t"], st["iv_q"], a, b, rho, m_best,
+                       s_best, not degenerate, message, "svi")
 
 
 # ---------------------------------------------------------------------------
@@ -686,7 +1050,7 @@ def _strike_for_d1(fit: SviFit, d1_target: np.ndarray) -> np.ndarray:
     for _ in range(60):
         wk = np.maximum(fit.total_variance(k), 1e-300)
         k_new = wk / 2 - d1_target * np.sqrt(wk)
-        if np.all(np.abs(k_new - k) < 1e-13):
+        if (np.abs(k_new - k) < 1e-13).all():
             k = k_new
             break
         k = k_new

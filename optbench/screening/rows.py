@@ -106,15 +106,22 @@ def _num(x) -> float | None:
 def nearest_expiries(quotes, tenors) -> dict:
     """For each tenor (calendar days), the listed expiry nearest to it (the shorter
     one on a tie), among expiries after the quote date."""
-    days = quotes.loc[quotes["calendar_days"] > 0, ["expiry", "calendar_days"]]
-    days = days.drop_duplicates("expiry").sort_values("calendar_days")
-    if days.empty:
+    import numpy as np
+    import pandas as pd
+
+    calendar_days = quotes["calendar_days"].to_numpy()
+    ahead = calendar_days > 0
+    # each listed expiry once (its first quote), ordered by its calendar days
+    expiries, first = np.unique(quotes["expiry"].to_numpy()[ahead], return_index=True)
+    if not expiries.size:
         raise ValueError("no usable expiry in the chain")
-    d = days["calendar_days"].to_numpy()
+    d = calendar_days[ahead][first]
+    by_days = np.argsort(d, kind="stable")
+    d, expiries = d[by_days], expiries[by_days]
     out = {}
     for tenor in tenors:
         i = int(abs(d - tenor).argmin())      # argmin takes the first (shorter) on ties
-        out[tenor] = days["expiry"].iloc[i].date()
+        out[tenor] = pd.Timestamp(expiries[i]).date()
     return out
 
 
@@ -177,7 +184,8 @@ def _fit_date(comparison) -> str | None:
     history = getattr(comparison, "history", None)
     if history is None or not len(history):
         return None
-    return history["date"].iloc[-1].date().isoformat()
+    import pandas as pd
+    return pd.Timestamp(history["date"].to_numpy()[-1]).date().isoformat()
 
 
 def screen_one(task: ScreenTask) -> list[dict]:
@@ -198,6 +206,19 @@ def screen_one(task: ScreenTask) -> list[dict]:
     by_expiry = {e.expiry: e for e in comparison.expiries}
     model = comparison.model
     first_notes = [origin.note] if origin is not None and origin.note else []
+    # the same for every tenor of the underlying
+    fit_source = origin.source if origin is not None else "fitted"
+    fit_date = origin.fit_date if origin is not None else _fit_date(comparison)
+    common = {
+        "model": f"{model.name}/{model.dist}", "fallback_reason": model.fallback_reason,
+        "rows_in": comparison.quality["rows_in"],
+        "rows_used": comparison.quality["rows_used"],
+        "spot": _num(comparison.spot), "asof": comparison.asof.isoformat(),
+        "style": comparison.style, "multiplier": _num(comparison.multiplier),
+        "sources": sources_text(comparison.sources),
+        "drift_rule": comparison.drift.rule,
+        "drift_annual": _num(comparison.drift.annual),
+    }
     rows = []
     for tenor in task.tenors:
         row = by_expiry[listed[tenor]]
@@ -221,19 +242,14 @@ def screen_one(task: ScreenTask) -> list[dict]:
             "floor": task.floor, "put_strike": strike, "protection_cost": cost,
             "protection_expected_payoff": payoff, "protection_overpay": overpay,
             "protection_cost_pct_annual": annual,
-            "model": f"{model.name}/{model.dist}", "fallback_reason": model.fallback_reason,
-            "rows_in": comparison.quality["rows_in"],
-            "rows_used": comparison.quality["rows_used"],
-            "spot": _num(comparison.spot), "asof": comparison.asof.isoformat(),
-            "style": comparison.style, "multiplier": _num(comparison.multiplier),
-            "sources": sources_text(comparison.sources),
+            "model": common["model"], "fallback_reason": common["fallback_reason"],
+            "rows_in": common["rows_in"], "rows_used": common["rows_used"],
+            "spot": common["spot"], "asof": common["asof"], "style": common["style"],
+            "multiplier": common["multiplier"], "sources": common["sources"],
             "error": error, "folder": task.folder,
             "floor_put_verdict": row.floor_put_verdict, "put25_verdict": row.put25_verdict,
-            "drift_rule": comparison.drift.rule,
-            "drift_annual": _num(comparison.drift.annual),
+            "drift_rule": common["drift_rule"], "drift_annual": common["drift_annual"],
             "warnings": WARNING_SEPARATOR.join(notes),
-            "fit_source": origin.source if origin is not None else "fitted",
-            "fit_date": origin.fit_date if origin is not None
-            else _fit_date(comparison),
+            "fit_source": fit_source, "fit_date": fit_date,
         })
     return rows

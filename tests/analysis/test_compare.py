@@ -297,3 +297,18 @@ def test_history_after_the_quote_date_is_not_used(tmp_path, demo):
     late = compare(tmp_path, model="gjr", dist="t")
     assert any("after the quote date" in w for w in late.warnings)
     assert [r.forecast_vol for r in late.expiries] == [r.forecast_vol for r in demo.expiries]
+
+
+def test_expiry_positions_match_pandas_get_indexer():
+    # reference: pandas.Index.get_indexer on distinct listed expiries (-1 where absent)
+    import pandas as pd
+    from optbench.analysis.compare import _expiry_positions
+    rng = np.random.default_rng(3)
+    listed = (np.datetime64("2026-12-01", "ns")
+              + rng.permutation(40)[:12].astype("timedelta64[D]"))
+    values = np.datetime64("2026-12-01", "ns") + rng.integers(0, 40, 500).astype(
+        "timedelta64[D]")
+    want = pd.Index(listed).get_indexer(values)
+    assert np.array_equal(_expiry_positions(listed, values), want)
+    assert (want == -1).any() and (want >= 0).any()
+    assert np.array_equal(_expiry_positions(listed[:0], values), np.full(500, -1))

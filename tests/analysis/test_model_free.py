@@ -225,3 +225,21 @@ def test_constant_maturity_notes_calendar_arbitrage_and_bad_input():
         constant_maturity_variance([0.1, 0.2], [0.04])
     with pytest.raises(InputError, match="constant_maturity_variance"):
         constant_maturity_variance([0.1, 0.1], [0.04, 0.05])
+
+
+def test_two_sided_mean_and_max_at_k0_equal_numpy_bit_for_bit():
+    # reference: numpy.nanmean and numpy.nanmax of the call and put quote at K0 (what
+    # the strip used before); signed zeros and infinities included
+    import itertools
+    from optbench.analysis.model_free import _nanmax2, _nanmean2
+    vals = [np.nan, 0.0, -0.0, 1.5, 2.25, np.inf, -np.inf, 1e-300, 3.3e5, 0.1, 0.2]
+    for a, b in itertools.product(vals, vals):
+        if np.isnan(a) and np.isnan(b):
+            continue
+        with np.errstate(all="ignore"):
+            mean = np.nanmean(np.array([[a], [b]]), axis=0)[0]
+        top = np.nanmax([a, b])
+        got_mean, got_top = _nanmean2(a, b), _nanmax2(a, b)
+        assert np.array_equal(mean, got_mean, equal_nan=True), (a, b)
+        assert np.signbit(mean) == np.signbit(got_mean), (a, b)
+        assert np.array_equal(top, got_top) and np.signbit(top) == np.signbit(got_top), (a, b)

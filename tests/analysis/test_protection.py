@@ -163,3 +163,47 @@ def test_the_floor_is_the_users(demo):
     from optbench.errors import InputError
     with pytest.raises(InputError, match="--floor"):
         compare(DEMO, floor=1.4)
+
+
+@pytest.mark.parametrize("lead", [(), (3,)])
+@pytest.mark.parametrize("n_strikes", [0, 1, 2, 5])
+@pytest.mark.parametrize("n_paths", [1, 2, 150, 2000, 20_000])
+def test_expected_put_payoffs_equal_numpy_mean_and_std_bit_for_bit(lead, n_strikes, n_paths):
+    # reference: numpy.mean and numpy.std(ddof=1) over the paths axis of the
+    # (..., paths, strikes) payoff array (the straightforward formulas); the fast path
+    # keeps the paths contiguous and must give the same bits
+    rng = np.random.default_rng(n_paths + 7 * n_strikes)
+    x = rng.normal(0.0, 0.25, lead + (n_paths,))
+    K = rng.uniform(70.0, 110.0, n_strikes)
+    pay = np.maximum(K - 100.0 * np.exp(x)[..., None], 0.0)
+    ref_mean = 0.97 * pay.mean(axis=-2)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ref_se = (0.97 * (pay.std(axis=-2, ddof=1) / math.sqrt(n_paths)) if n_paths > 1
+                  else np.full(ref_mean.shape, np.nan))
+    value, se, paying = expected_put_payoffs(x, 100.0, 0.97, K)
+    assert value.shape == se.shape == paying.shape == ref_mean.shape
+    assert np.array_equal(value, ref_mean)
+    assert np.array_equal(se, ref_se, equal_nan=True)
+    assert np.array_equal(paying, (pay > 0).sum(axis=-2))
+
+
+def test_judge_puts_reads_a_frame_or_its_columns_alike(demo):
+    # the comparison hands the judging the sorted columns of each expiry; a user's
+    # per-strike frame gives the same judgements
+    from optbench.analysis.drift import choose_drift, simulate_terminal
+    from optbench.analysis.protection import choose_puts, judge_puts
+    row = demo.expiries[2]
+    table = demo.strike_frame(row.expiry)
+    draws = simulate_terminal(demo.fit, choose_drift("risk-free", rate=demo.rate,
+                                                     div_yield=demo.div_yield),
+                              np.array([row.trading_days]), np.array([row.t]),
+                              np.array([row.rate]), np.array([row.carry]),
+                              n_paths=3000, seed=11)
+    columns = {name: table[name].to_numpy() for name in table.columns}
+    picks = choose_puts(table, demo.spot, 0.9)
+    assert picks == choose_puts(columns, demo.spot, 0.9) and min(picks) >= 0
+    kw = dict(spot=demo.spot, discount=row.discount, forecast_vol=row.forecast_vol,
+              forecast_low=row.forecast_low, forecast_high=row.forecast_high,
+              band_high_level=0.95)
+    assert judge_puts(table, picks, draws, 0, **kw) == judge_puts(columns, picks, draws, 0,
+                                                                   **kw)

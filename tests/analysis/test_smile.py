@@ -307,3 +307,63 @@ def test_straight_smile_is_flagged_degenerate_but_fitted_closely():
     fit = fit_svi(k, w, t=1.0)
     assert not fit.converged and "degenerate" in fit.message
     assert fit.rmse_iv < 1e-6 and fit.min_total_variance >= 0
+
+
+def _smile_problems(seed: int, count: int) -> list:
+    """Noisy SVI smiles of several expiries with different quote counts (invented)."""
+    rng = np.random.default_rng(seed)
+    out = []
+    for i in range(count):
+        n = int(rng.integers(5, 160))
+        k = np.sort(rng.uniform(-0.7, 0.4, n))
+        a, b = rng.uniform(0.002, 0.05), rng.uniform(0.02, 0.4)
+        rho, m, s = rng.uniform(-0.95, 0.6), rng.uniform(-0.2, 0.2), rng.uniform(0.01, 0.5)
+        w = np.abs(svi_w(k, a, b, rho, m, s) * (1 + rng.normal(0, 0.03, n)))
+        weights = rng.uniform(0.05, 3.0, n) if i % 2 else None
+        out.append((k, w, weights, float(rng.uniform(0.02, 2.0))))
+    return out
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_fits_of_several_expiries_at_once_equal_the_fits_one_at_a_time(seed):
+    # reference: fit_svi one expiry at a time (its own polish); the batched polish of
+    # every expiry together must give the same fits bit for bit
+    from optbench.analysis.smile import fit_svi_many
+    problems = _smile_problems(seed, 9)
+    problems += [(np.array([-0.1, 0.0, 0.1]), np.array([0.05, 0.04, 0.045]), None, 0.5),
+                 (np.array([0.0]), np.array([0.04]), None, 0.25)]
+    problems.insert(4, (np.array([0.0, 0.1]), np.array([0.04, 0.05]), [0.0, 0.0], 0.5))
+    one_by_one = []
+    for k, w, wt, t in problems:
+        try:
+            one_by_one.append(fit_svi(k, w, wt, t=t))
+        except InputError as err:
+            one_by_one.append(err.problem)
+    together = fit_svi_many(problems, errors="return")
+    assert [f.problem if isinstance(f, InputError) else f for f in together] == one_by_one
+    assert isinstance(together[4], InputError)
+    with pytest.raises(InputError, match="fit_svi"):
+        fit_svi_many(problems)
+
+
+def test_batched_fits_that_fall_back_to_one_solve_per_expiry_are_unchanged(monkeypatch):
+    # a batch whose solve fails is solved again expiry by expiry (as a singular
+    # expiry alone would be): forced here by failing every solve larger than one
+    # expiry's, the fits must still equal fit_svi one at a time
+    from optbench.analysis.smile import fit_svi_many
+    problems = _smile_problems(7, 5)
+    reference = [fit_svi(k, w, wt, t=t) for k, w, wt, t in problems]
+    solve = np.linalg.solve
+    calls = {"failed": 0}
+
+    def fail_large(a, b):
+        # one expiry alone solves at most 7 sets x 3 starts x 4 dampings of 3 x 3
+        # systems and 3 starts x 4 dampings of 5 x 5 ones
+        a = np.asarray(a)
+        if a[..., 0, 0].size > (84 if a.shape[-1] == 3 else 12):
+            calls["failed"] += 1
+            raise np.linalg.LinAlgError("forced")
+        return solve(a, b)
+    monkeypatch.setattr(np.linalg, "solve", fail_large)
+    assert fit_svi_many(problems) == reference
+    assert calls["failed"] > 2

@@ -22,7 +22,7 @@ from scipy.optimize import least_squares
 
 from optbench.analysis.arbitrage import calendar_arbitrage, strike_arbitrage
 from optbench.analysis.model_free import model_free_variance
-from optbench.analysis.smile import fit_svi
+from optbench.analysis.smile import fit_svi, fit_svi_many
 from optbench.pricing.bsm import bsm_price
 from timing import median_time  # noqa: E402  (tests/benchmarks)
 
@@ -86,6 +86,17 @@ def bench_svi() -> None:
               f"start) {ref * 1e3:7.1f} ms   ratio {ref / ours:5.2f}x")
         print(f"  summed weighted squared error: optbench {e_ours:.6e}   "
               f"least_squares {e_ref:.6e}")
+    # every expiry's smile fitted together (what compare does) against fit_svi one at a
+    # time, the same fits bit for bit; 3 expiries is a screen row's
+    for n_exp, n_q, repeat in ((3, 100, 21), (10, 100, 15), (20, 200, 7)):
+        chain = [c[:4] for c in svi_chain(n_exp, n_q, seed=5)]
+        one = median_time(lambda: [fit_svi(kk, ww, vv, t=tt) for kk, ww, vv, tt in chain],
+                          repeat)
+        many = median_time(lambda: fit_svi_many(chain), repeat)
+        same = fit_svi_many(chain) == [fit_svi(kk, ww, vv, t=tt) for kk, ww, vv, tt in chain]
+        print(f"fit_svi_many, {n_exp} expiries x {n_q} quotes: {many * 1e3:7.1f} ms   "
+              f"fit_svi one at a time {one * 1e3:7.1f} ms   ratio {one / many:5.2f}x   "
+              f"identical fits: {same}")
 
 
 def bench_model_free() -> None:

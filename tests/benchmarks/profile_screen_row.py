@@ -34,7 +34,7 @@ STAGES = {
     "load": ("data/scenario.py", "load_scenario"),
     "implied forwards": ("pricing/forwards.py", "implied_forwards"),
     "implied vols": ("analysis/compare.py", "_quote_vols"),
-    "smile fits": ("analysis/smile.py", "fit_svi"),
+    "smile fits": ("analysis/smile.py", "fit_svi_many"),
     "model fits": ("volatility/garch.py", "fit_garch"),
     "cached fit (filter)": ("volatility/garch.py", "fix_garch"),
     "forecast": ("volatility/garch.py", "forecast_vol"),
