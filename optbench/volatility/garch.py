@@ -224,10 +224,53 @@ class _Problem:
 
     # objective for the optimiser: minus the mean log-likelihood
     def objective(self, theta):
+        if self.spec.name in ("garch", "gjr"):
+            return self._linear_objective(theta)
         ll = self.loglik_obs(theta)
         if ll is None or not np.all(np.isfinite(ll)):
             return 1e6
         return -float(np.mean(ll))
+
+    def _linear_objective(self, theta):
+        """Minus the mean log-likelihood of GARCH or GJR, sums only (what ranking the
+        starting points needs): one forward filter, no per-day arrays kept.
+
+        Normal: ``L = -(n ln 2 pi + sum ln s2 + sum e^2/s2) / 2``; Student-t (unit
+        variance, Bollerslev 1987): ``L = n c(nu) - sum ln s2 / 2 - (nu + 1)/2 sum
+        ln(1 + e^2 / ((nu - 2) s2))`` with ``c(nu) = lnG((nu+1)/2) - lnG(nu/2) -
+        ln(pi (nu-2))/2`` (the formulas of :func:`normal_loglik` and
+        :func:`std_t_loglik`, summed)."""
+        mu, p, nu = self.unpack(theta)
+        eps = self.y - mu
+        bc = self.backcast
+        e2 = eps * eps
+        a = np.empty(self.n)
+        a[0] = bc
+        a[1:] = e2[:-1]
+        u = p["omega"] + p["alpha"] * a
+        if self.spec.name == "gjr":
+            g = np.empty(self.n)
+            g[0] = 0.5 * bc
+            g[1:] = np.where(eps[:-1] < 0, e2[:-1], 0.0)
+            u += p["gamma"] * g
+        s2 = linear_filter(u, p["beta"], bc)
+        with np.errstate(all="ignore"):
+            if not (s2.min() > 0) or not np.isfinite(s2[-1]):
+                return 1e6
+            sum_ln_s2 = float(np.log(s2).sum())
+            r = e2 / s2
+            if nu is None:
+                total = -0.5 * (self.n * LOG_2PI + sum_ln_s2 + float(r.sum()))
+            else:
+                nm2 = nu - 2.0
+                r /= nm2
+                const = (gammaln(0.5 * (nu + 1.0)) - gammaln(0.5 * nu)
+                         - 0.5 * math.log(math.pi * nm2))
+                total = (self.n * const - 0.5 * sum_ln_s2
+                         - 0.5 * (nu + 1.0) * float(np.log1p(r).sum()))
+        if not math.isfinite(total):
+            return 1e6
+        return -total / self.n
 
     def _egarch_path(self, eps, p):
         """EGARCH log-variances, started from the last path computed (the optimiser's
