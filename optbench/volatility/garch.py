@@ -251,7 +251,7 @@ class _Problem:
         if self.spec.name == "gjr":
             g = np.empty(self.n)
             g[0] = 0.5 * bc
-            g[1:] = np.where(eps[:-1] < 0, e2[:-1], 0.0)
+            np.multiply(e2[:-1], eps[:-1] < 0, out=g[1:])    # e^2 on down days, else 0
             u += p["gamma"] * g
         s2 = linear_filter(u, p["beta"], bc)
         with np.errstate(all="ignore"):
@@ -412,7 +412,7 @@ class _Problem:
         if self.spec.name == "gjr":
             g = np.empty(self.n)
             g[0] = 0.5 * bc
-            g[1:] = np.where(neg[:-1], e2[:-1], 0.0)
+            np.multiply(e2[:-1], neg[:-1], out=g[1:])    # e^2 on down days, else 0
             u = p["omega"] + alpha * a + gamma * g
         else:
             u = p["omega"] + alpha * a

@@ -156,7 +156,7 @@ def _scaled_cumsum_filter(u: np.ndarray, b: float, x0) -> np.ndarray:
         u = np.concatenate([u, np.zeros(lead + (pad,))], axis=-1)
     bk = b ** np.arange(L)
     U = u.reshape(lead + (nb, L)) / bk
-    np.cumsum(U, axis=-1, out=U)
+    U = np.cumsum(U, axis=-1)    # (a new array: in place costs a copy for the overlap)
     U *= bk
     bL = b ** L
     if not lead:
@@ -236,7 +236,7 @@ def garch_variance(eps: np.ndarray, omega: float, alpha: float, gamma: float,
     a[0] = backcast
     a[1:] = e2[:-1]
     g[0] = 0.5 * backcast
-    g[1:] = np.where(neg[:-1], e2[:-1], 0.0)
+    np.multiply(e2[:-1], neg[:-1], out=g[1:])    # e^2 on down days, else 0
     u = omega + alpha * a + gamma * g
     if not grad:
         return linear_filter(u, beta, backcast)
