@@ -38,9 +38,10 @@ MODELS = ("garch", "gjr", "egarch")
 FALLBACK = {"egarch": "gjr", "gjr": "garch", "garch": "ewma"}
 STATIONARITY_MARGIN = 1e-6
 #: the optimiser stops when its next quasi-Newton step predicts a log-likelihood gain
-#: below this: 50 times below the first-order check's tolerance
-#: (OPTIMALITY_GAIN_TOL), far below the 1e-6 at which fits are compared
-STOP_GAIN = 2e-9
+#: below this: 10 times below the first-order check's tolerance
+#: (OPTIMALITY_GAIN_TOL), 100 times below the 1e-6 at which fits are compared (at
+#: 2e-9 the last step of a climb gained about 1e-8 and cost one more evaluation)
+STOP_GAIN = 1e-8
 #: ... and for GARCH climbed only as the start of GJR or EGARCH: within about this of
 #: its optimum is as good a start; a GJR fit from it must end at least QUICK_MARGIN
 #: above it, else GARCH is fitted fully and GJR climbs again from its optimum
@@ -1086,11 +1087,60 @@ OPTIMALITY_GAIN_TOL = 1e-7
 OPTIMALITY_GAIN_REL = 1e-11
 
 
-def _optimality(prob: _Problem, M: np.ndarray, u: np.ndarray, lo: np.ndarray,
+class _Coordinates:
+    """The optimiser's coordinates ``u`` and the model's parameters ``theta``.
+
+    ``theta = M u`` on the mean and variance parameters (:meth:`_Problem.coordinate_map`:
+    GJR's ``alpha + gamma`` is a coordinate of its own), and the Student-t's degrees
+    of freedom are optimised as ``eta = 1/nu``: the log-likelihood is much closer to
+    quadratic in ``eta`` than in ``nu`` (it flattens as ``nu`` grows and steepens
+    towards 2), so the quasi-Newton steps in ``nu`` no longer overshoot and swing
+    back (Fiorentini, Sentana & Calzolari 2003, *J. Bus. Econ. Stat.* 21, estimate the
+    Student-t GARCH in ``eta``). Measured on arch's sp500, nasdaq, wti and vix, the
+    GARCH-t, GJR-t and EGARCH-t fits need 0-3 fewer likelihood evaluations each
+    (none more), at the same optimum.
+    """
+
+    def __init__(self, prob: _Problem):
+        self.M = prob.coordinate_map()
+        self.Minv = np.linalg.inv(self.M)
+        self.inv_nu = prob.dist.name == "t"      # nu is the last parameter
+
+    def theta(self, u: np.ndarray) -> np.ndarray:
+        th = self.M @ u
+        if self.inv_nu:
+            th[-1] = 1.0 / u[-1]
+        return th
+
+    def u(self, theta: np.ndarray) -> np.ndarray:
+        u = self.Minv @ theta
+        if self.inv_nu:
+            u[-1] = 1.0 / theta[-1]
+        return u
+
+    def jacobian(self, theta: np.ndarray) -> np.ndarray:
+        """``d theta / d u`` at ``theta`` (``d nu / d eta = -nu^2``)."""
+        if not self.inv_nu:
+            return self.M
+        J = self.M.copy()
+        J[-1, -1] = -theta[-1] ** 2
+        return J
+
+    def bounds(self, lo: np.ndarray, hi: np.ndarray):
+        """Bounds of ``u`` from those of ``M^-1 theta`` (``nu`` in [a, b] is ``eta`` in
+        [1/b, 1/a])."""
+        lo, hi = lo.copy(), hi.copy()
+        if self.inv_nu:
+            lo[-1], hi[-1] = 1.0 / hi[-1], 1.0 / lo[-1]
+        return lo, hi
+
+
+def _optimality(prob: _Problem, coords: _Coordinates, u: np.ndarray, lo: np.ndarray,
                 hi: np.ndarray, res=None, A_ub=None, b_ub=None) -> dict:
     """First-order (KKT) check of a constrained maximum of the log-likelihood.
 
-    In the optimiser's coordinates ``u`` (``theta = M u``) with ``G`` the gradient of the
+    In the optimiser's coordinates ``u`` (``theta(u)``, see :class:`_Coordinates`;
+    Jacobian ``J``) with ``G`` the gradient of the
     total log-likelihood and ``S`` the per-day scores: a coordinate at a bound is
     *active* when ``G`` points out of the box there (its multiplier has the right
     sign); on the other, *free*, coordinates the projected gradient must vanish. The
@@ -1120,7 +1170,8 @@ def _optimality(prob: _Problem, M: np.ndarray, u: np.ndarray, lo: np.ndarray,
         total_ll = -n * float(res.fun)
         curvature = "quasi-Newton Hessian"
     else:
-        theta = M @ u
+        theta = coords.theta(u)
+        M = coords.jacobian(theta)
         with np.errstate(all="ignore"):
             ll, sc = prob.scores(theta)
         if ll is None or not np.all(np.isfinite(sc)) or not np.all(np.isfinite(ll)):
@@ -1186,6 +1237,8 @@ def _coordinate_names(prob: _Problem) -> list:
     names = list(prob.names)
     if prob.spec.name == "gjr":
         names[names.index("gamma")] = "alpha+gamma"
+    if prob.dist.name == "t":
+        names[names.index("nu")] = "1/nu"
     return names
 
 
@@ -1298,15 +1351,21 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
     bc = _backcast_scaled(y_s, has_mu, backcast, scale)
     prob = _Problem(y_s, model, dist, has_mu, bc)
     var = float(np.var(y_s))
-    M = prob.coordinate_map()
-    Minv = np.linalg.inv(M)
+    coords = _Coordinates(prob)
+    M = coords.M
     bounds = prob.internal_bounds(var)
-    lo = np.array([b[0] for b in bounds])
-    hi = np.array([b[1] for b in bounds])
+    lo, hi = coords.bounds(np.array([b[0] for b in bounds]),
+                           np.array([b[1] for b in bounds]))
+    inv_nu = coords.inv_nu
+    to_theta = coords.theta
 
     def fun_grad(u):
-        f, g = prob.objective_grad(M @ u)
-        return f, M.T @ g
+        th = to_theta(u)
+        f, g = prob.objective_grad(th)
+        gu = M.T @ g
+        if inv_nu:
+            gu[-1] = -th[-1] ** 2 * g[-1]    # d nu / d eta = -nu^2
+        return f, gu
 
     # the stationarity limit as a linear inequality in the optimiser's coordinates
     # (GARCH, GJR; EGARCH's is the bound on beta): held by the optimiser's active set
@@ -1317,7 +1376,7 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
     def feasible(u):
         if A_ub is not None and not float(A_ub[0] @ u) <= b_ub[0] + 1e-12:
             return False
-        return prob.feasible(M @ u)
+        return prob.feasible(to_theta(u))
 
     cap = prob.max_step()
 
@@ -1325,12 +1384,14 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
         u0 = np.clip(u0, lo, hi)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
-            hess, (f0, g0) = prob.start_curvature(M @ u0)
-            res = minimize_box(fun_grad, u0, lo, hi, hess0=M.T @ hess @ M,
-                               fg0=(f0, M.T @ g0), max_step=cap, A_ub=A_ub, b_ub=b_ub,
+            th0 = to_theta(u0)
+            hess, (f0, g0) = prob.start_curvature(th0)
+            J = coords.jacobian(th0)
+            res = minimize_box(fun_grad, u0, lo, hi, hess0=J.T @ hess @ J,
+                               fg0=(f0, J.T @ g0), max_step=cap, A_ub=A_ub, b_ub=b_ub,
                                gain_tol=stop / prob.n)
         u = np.asarray(res.x, dtype=float)
-        _, vol, _ = prob.unpack(M @ u)
+        _, vol, _ = prob.unpack(to_theta(u))
         pers = prob.spec.persistence(vol)
         stationary = pers <= 1.0 - STATIONARITY_MARGIN + 1e-12
         return {"res": res, "u": u, "f": float(res.fun), "pers": pers,
@@ -1338,7 +1399,7 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
 
     def verified(r):
         if r["opt"] is None:
-            r["opt"] = _optimality(prob, M, r["u"], lo, hi, r["res"], A_ub, b_ub)
+            r["opt"] = _optimality(prob, coords, r["u"], lo, hi, r["res"], A_ub, b_ub)
         return r["opt"]["passed"]
 
     def better(a, b):   # is run a preferred to run b?
@@ -1363,14 +1424,14 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
         # the nested GARCH fit found the weak-dynamics regime far below its optimum
         labelled = [c for c in labelled if c[0] != "low"]
     for label, th in labelled:
-        u0 = np.clip(Minv @ th, lo, hi)
+        u0 = np.clip(coords.u(th), lo, hi)
         if not feasible(u0):
             continue
         if label == "nested" and not any(c[0] == "high" for c in labelled):
             f0 = -math.inf    # the only main start: no need to rank it
         else:
             with np.errstate(all="ignore"):
-                f0 = prob.objective(M @ u0)
+                f0 = prob.objective(to_theta(u0))
         cands.append((label, f0, u0))
     # climb from the best of the nested and high-persistence starts; then from the
     # best weak-dynamics start, unless even that start is far below the optimum
@@ -1404,7 +1465,7 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
     if quick and best is not None and best["stationary"] and math.isfinite(best["f"]):
         if regimes is not None:
             regimes["quick"] = True
-        return _result(prob, M @ best["u"], y, scale, mean, False,
+        return _result(prob, to_theta(best["u"]), y, scale, mean, False,
                        "quick climb (a start for the nested model)", None, None), None
     tried = order
     if best["stationary"] and not verified(best):
@@ -1419,8 +1480,8 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
             if verified(best):
                 break
     res, u = best["res"], best["u"]
-    theta = M @ u
-    opt = (_optimality(prob, M, u, lo, hi, res, A_ub, b_ub) if best["opt"] is None
+    theta = to_theta(u)
+    opt = (_optimality(prob, coords, u, lo, hi, res, A_ub, b_ub) if best["opt"] is None
            else best["opt"])
     problem = None
     if not best["stationary"]:
