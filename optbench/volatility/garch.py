@@ -43,9 +43,11 @@ STATIONARITY_MARGIN = 1e-6
 #: 2e-9 the last step of a climb gained about 1e-8 and cost one more evaluation)
 STOP_GAIN = 1e-8
 #: ... and for GARCH climbed only as the start of GJR or EGARCH: within about this of
-#: its optimum is as good a start; a GJR fit from it must end at least QUICK_MARGIN
-#: above it, else GARCH is fitted fully and GJR climbs again from its optimum
-QUICK_STOP_GAIN = 1e-3
+#: its optimum is as good a start (measured on arch's sp500, nasdaq, wti and vix:
+#: from 1e-3 to 0.1 saves 1-2 GARCH evaluations per fit and costs GJR and EGARCH
+#: none); a GJR fit from it must end at least QUICK_MARGIN (ten times more) above
+#: it, else GARCH is fitted fully and GJR climbs again from its optimum
+QUICK_STOP_GAIN = 0.1
 QUICK_MARGIN = 1.0
 
 
