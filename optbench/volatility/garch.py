@@ -234,6 +234,62 @@ class _Problem:
             return 1e6
         return -float(np.mean(ll))
 
+    def _t_information(self, theta):
+        """Conditional information matrix of GARCH or GJR with unit-variance
+        Student-t innovations, and ``(f, gradient)``, at ``theta`` (None when the
+        variance path is not usable).
+
+        With ``w_t = (d sigma^2_t / d theta) / sigma^2_t`` and ``b_t = q_t / (1 + q_t)``,
+        ``q_t = e_t^2 / ((nu - 2) sigma^2_t)``, which is Beta(1/2, nu/2) under the
+        model: the score in ``ln sigma^2`` is ``a = ((nu+1) b - 1)/2``, in ``nu``
+        ``c = [psi((nu+1)/2) - psi(nu/2) - 1/(nu-2) + ln(1-b) + (nu+1) b/(nu-2)]/2``
+        (the formulas of :func:`std_t_loglik`), and in the mean through the residual
+        ``-(nu+1) e / (sigma^2 (nu-2)(1+q))``. Their second moments from the Beta
+        moments (``Var b = 2 nu / ((nu+1)^2 (nu+3))``, ``Var ln(1-b) = psi'(nu/2) -
+        psi'((nu+1)/2)``, ``Cov(b, ln(1-b)) = -2/(nu+1)^2``) give
+
+        ``I = sum_t [E a^2 w_t w_t' + E(a c) (w_t e_nu' + e_nu w_t') + E c^2 e_nu
+        e_nu' + D e_mu e_mu' / sigma^2_t]`` with ``E a^2 = nu / (2 (nu+3))`` and ``D =
+        nu (nu+1) / ((nu-2)(nu+3))`` (the expected Hessian given the past: Bollerslev
+        1987, *Rev. Econ. Stat.* 69, and Fiorentini, Sentana & Calzolari 2003, *J.
+        Bus. Econ. Stat.* 21, derived here in ``nu``). Unlike the outer product of
+        the scores, it does not weight the fat-tailed days' squared scores;
+        measured on arch's sp500, nasdaq, wti and vix it leads the GARCH-t and
+        GJR-t climbs to the same optimum with 0-8 fewer evaluations (one more on
+        wti's GJR-t).
+        """
+        _, _, nu = self.unpack(theta)
+        eps, (s2, d) = self.variance(theta, grad=True)
+        if not np.all(s2 > 0) or not np.all(np.isfinite(s2)):
+            return None
+        ll, d_s2, d_e, d_nu = std_t_loglik(eps, s2, nu, grad=True)
+        g_vol = _gram(d.T, d_s2[:, None])[:, 0]
+        if self.has_mu:
+            g_vol[0] -= d_e.sum()
+        g0 = -np.append(g_vol, float(np.sum(d_nu))) / self.n
+        f0 = -float(ll.sum()) / self.n
+        half_nu, half_nu1 = 0.5 * nu, 0.5 * (nu + 1.0)
+        var_b = 2.0 * nu / ((nu + 1.0) ** 2 * (nu + 3.0))
+        var_l = _trigamma(half_nu) - _trigamma(half_nu1)
+        cov_bl = -0.5 / half_nu1 ** 2
+        r = (nu + 1.0) / (nu - 2.0)
+        e_aa = nu / (2.0 * (nu + 3.0))
+        e_ac = 0.25 * (nu + 1.0) * (cov_bl + r * var_b)
+        e_cc = 0.25 * (var_l + 2.0 * r * cov_bl + r * r * var_b)
+        w = d / s2
+        k = self.k
+        info = np.empty((k, k))
+        info[:-1, :-1] = e_aa * _gram(w.T)
+        if self.has_mu:
+            info[0, 0] += nu * (nu + 1.0) / ((nu - 2.0) * (nu + 3.0)) * float(np.sum(1.0 / s2))
+        col = e_ac * w.sum(axis=1)
+        info[:-1, -1] = col
+        info[-1, :-1] = col
+        info[-1, -1] = e_cc * self.n
+        if not math.isfinite(f0) or not np.all(np.isfinite(info)) or not np.all(np.isfinite(g0)):
+            return None
+        return info / self.n, (f0, g0)
+
     def _linear_objective(self, theta):
         """Minus the mean log-likelihood of GARCH or GJR, sums only (what ranking the
         starting points needs): one forward filter, no per-day arrays kept.
@@ -499,6 +555,10 @@ class _Problem:
                 f0 = -float(ll.sum()) / self.n
                 if math.isfinite(f0) and np.all(np.isfinite(info)):
                     return info / self.n, (f0, g0 / self.n)
+        if self.spec.linear and self.dist.name == "t" and self.spec.name != "ewma":
+            out = self._t_information(theta)
+            if out is not None:
+                return out
         if self.spec.name == "egarch" or (self.spec.linear and self.dist.name == "t"):
             ll, sc = (self.egarch_score_obs(theta) if self.spec.name == "egarch"
                       else self.score_obs(theta))
@@ -1030,6 +1090,20 @@ def _optimality_json(opt):
 # ---------------------------------------------------------------------------------
 # building a result
 # ---------------------------------------------------------------------------------
+def _trigamma(x: float) -> float:
+    """psi'(x) for x > 0: the recurrence ``psi'(x) = psi'(x+1) + 1/x^2`` up to x >= 10,
+    then the asymptotic series ``1/x + 1/(2x^2) + 1/(6x^3) - 1/(30x^5) + 1/(42x^7) -
+    1/(30x^9) + 5/(66x^11)`` (Abramowitz & Stegun 6.4.12, Bernoulli-number
+    coefficients; the next term is below 3e-14 there)."""
+    acc = 0.0
+    while x < 10.0:
+        acc += 1.0 / (x * x)
+        x += 1.0
+    z = 1.0 / (x * x)
+    return acc + 1.0 / x + z * (0.5 + (1.0 / x) * (1.0 / 6.0 + z * (-1.0 / 30.0 + z * (
+        1.0 / 42.0 + z * (-1.0 / 30.0 + z * 5.0 / 66.0)))))
+
+
 def _scale_of(y: np.ndarray) -> float:
     return 1.0 / float(np.std(y))
 
