@@ -1120,12 +1120,18 @@ def _backcast_scaled(y_s, has_mu, backcast, scale):
 
 def _result(prob: _Problem, theta_s: np.ndarray, y: np.ndarray, scale: float, mean: str,
             converged: bool, message: str, fallback_reason, candidates, with_cov=False,
-            n_free: int | None = None, optimality: dict | None = None) -> GarchFit:
+            n_free: int | None = None, optimality: dict | None = None,
+            loglik_scaled: float | None = None) -> GarchFit:
+    """The fit at ``theta_s`` (scaled units) in decimal units. ``loglik_scaled``: the
+    log-likelihood of the scaled returns when already known (the optimiser's last
+    value), which saves the per-day densities."""
     model = prob.spec.name
     names = tuple(prob.names)
     eps_s, s2_s = prob.variance(theta_s)
-    ll_obs = prob.loglik_obs(theta_s, (eps_s, s2_s))
-    ll = float(np.sum(ll_obs)) + prob.n * math.log(scale)
+    if loglik_scaled is None:
+        ll_obs = prob.loglik_obs(theta_s, (eps_s, s2_s))
+        loglik_scaled = float(np.sum(ll_obs))
+    ll = loglik_scaled + prob.n * math.log(scale)
     params_arr, J = _to_decimal(model, names, theta_s, scale)
     params = {k: float(v) for k, v in params_arr.items()}
     if model == "ewma":
@@ -1541,8 +1547,11 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
     if quick and best is not None and best["stationary"] and math.isfinite(best["f"]):
         if regimes is not None:
             regimes["quick"] = True
+        # (only its parameters, path and log-likelihood are used: the optimiser's
+        # last value gives the latter)
         return _result(prob, to_theta(best["u"]), y, scale, mean, False,
-                       "quick climb (a start for the nested model)", None, None), None
+                       "quick climb (a start for the nested model)", None, None,
+                       loglik_scaled=-prob.n * best["f"]), None
     tried = order
     if best["stationary"] and not verified(best):
         # stopped short of an optimum: climb again from there with fresh curvature,
