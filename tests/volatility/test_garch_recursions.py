@@ -178,7 +178,8 @@ def test_student_t_information_matches_the_scores_at_the_true_parameters(model):
         prev_e = e[t]
     y = 0.02 + e
     prob = _Problem(y, model, "t", True, float(np.var(y)))
-    theta = np.array([0.02, omega, alpha] + ([gamma] if model == "gjr" else []) + [beta, nu])
+    vol = [omega, alpha] + ([gamma] if model == "gjr" else []) + [beta]
+    theta = np.array([0.02] + vol + [nu])
     info, (f0, g0) = prob._t_information(theta)
     f1, g1 = prob.objective_grad(theta)
     assert f0 == pytest.approx(f1, rel=1e-12)
