@@ -38,13 +38,16 @@ MODELS = ("garch", "gjr", "egarch")
 FALLBACK = {"egarch": "gjr", "gjr": "garch", "garch": "ewma"}
 STATIONARITY_MARGIN = 1e-6
 #: the optimiser stops when its next quasi-Newton step predicts a log-likelihood gain
-#: below this: 50 times below the first-order check's tolerance
-#: (OPTIMALITY_GAIN_TOL), far below the 1e-6 at which fits are compared
-STOP_GAIN = 2e-9
+#: below this: 10 times below the first-order check's tolerance
+#: (OPTIMALITY_GAIN_TOL), 100 times below the 1e-6 at which fits are compared (at
+#: 2e-9 the last step of a climb gained about 1e-8 and cost one more evaluation)
+STOP_GAIN = 1e-8
 #: ... and for GARCH climbed only as the start of GJR or EGARCH: within about this of
-#: its optimum is as good a start; a GJR fit from it must end at least QUICK_MARGIN
-#: above it, else GARCH is fitted fully and GJR climbs again from its optimum
-QUICK_STOP_GAIN = 1e-3
+#: its optimum is as good a start (measured on arch's sp500, nasdaq, wti and vix:
+#: from 1e-3 to 0.1 saves 1-2 GARCH evaluations per fit and costs GJR and EGARCH
+#: none); a GJR fit from it must end at least QUICK_MARGIN (ten times more) above
+#: it, else GARCH is fitted fully and GJR climbs again from its optimum
+QUICK_STOP_GAIN = 0.1
 QUICK_MARGIN = 1.0
 
 
@@ -224,10 +227,111 @@ class _Problem:
 
     # objective for the optimiser: minus the mean log-likelihood
     def objective(self, theta):
+        if self.spec.name in ("garch", "gjr"):
+            return self._linear_objective(theta)
         ll = self.loglik_obs(theta)
         if ll is None or not np.all(np.isfinite(ll)):
             return 1e6
         return -float(np.mean(ll))
+
+    def _t_information(self, theta):
+        """Conditional information matrix of GARCH or GJR with unit-variance
+        Student-t innovations, and ``(f, gradient)``, at ``theta`` (None when the
+        variance path is not usable).
+
+        With ``w_t = (d sigma^2_t / d theta) / sigma^2_t`` and ``b_t = q_t / (1 + q_t)``,
+        ``q_t = e_t^2 / ((nu - 2) sigma^2_t)``, which is Beta(1/2, nu/2) under the
+        model: the score in ``ln sigma^2`` is ``a = ((nu+1) b - 1)/2``, in ``nu``
+        ``c = [psi((nu+1)/2) - psi(nu/2) - 1/(nu-2) + ln(1-b) + (nu+1) b/(nu-2)]/2``
+        (the formulas of :func:`std_t_loglik`), and in the mean through the residual
+        ``-(nu+1) e / (sigma^2 (nu-2)(1+q))``. Their second moments from the Beta
+        moments (``Var b = 2 nu / ((nu+1)^2 (nu+3))``, ``Var ln(1-b) = psi'(nu/2) -
+        psi'((nu+1)/2)``, ``Cov(b, ln(1-b)) = -2/(nu+1)^2``) give
+
+        ``I = sum_t [E a^2 w_t w_t' + E(a c) (w_t e_nu' + e_nu w_t') + E c^2 e_nu
+        e_nu' + D e_mu e_mu' / sigma^2_t]`` with ``E a^2 = nu / (2 (nu+3))`` and ``D =
+        nu (nu+1) / ((nu-2)(nu+3))`` (the expected Hessian given the past: Bollerslev
+        1987, *Rev. Econ. Stat.* 69, and Fiorentini, Sentana & Calzolari 2003, *J.
+        Bus. Econ. Stat.* 21, derived here in ``nu``). Unlike the outer product of
+        the scores, it does not weight the fat-tailed days' squared scores;
+        measured on arch's sp500, nasdaq, wti and vix it leads the GARCH-t and
+        GJR-t climbs to the same optimum with 0-8 fewer evaluations (one more on
+        wti's GJR-t).
+        """
+        _, _, nu = self.unpack(theta)
+        eps, (s2, d) = self.variance(theta, grad=True)
+        if not np.all(s2 > 0) or not np.all(np.isfinite(s2)):
+            return None
+        ll, d_s2, d_e, d_nu = std_t_loglik(eps, s2, nu, grad=True)
+        g_vol = _gram(d.T, d_s2[:, None])[:, 0]
+        if self.has_mu:
+            g_vol[0] -= d_e.sum()
+        g0 = -np.append(g_vol, float(np.sum(d_nu))) / self.n
+        f0 = -float(ll.sum()) / self.n
+        half_nu, half_nu1 = 0.5 * nu, 0.5 * (nu + 1.0)
+        var_b = 2.0 * nu / ((nu + 1.0) ** 2 * (nu + 3.0))
+        var_l = _trigamma(half_nu) - _trigamma(half_nu1)
+        cov_bl = -0.5 / half_nu1 ** 2
+        r = (nu + 1.0) / (nu - 2.0)
+        e_aa = nu / (2.0 * (nu + 3.0))
+        e_ac = 0.25 * (nu + 1.0) * (cov_bl + r * var_b)
+        e_cc = 0.25 * (var_l + 2.0 * r * cov_bl + r * r * var_b)
+        w = d / s2
+        k = self.k
+        info = np.empty((k, k))
+        info[:-1, :-1] = e_aa * _gram(w.T)
+        if self.has_mu:
+            d_mu = nu * (nu + 1.0) / ((nu - 2.0) * (nu + 3.0))
+            info[0, 0] += d_mu * float(np.sum(1.0 / s2))
+        col = e_ac * w.sum(axis=1)
+        info[:-1, -1] = col
+        info[-1, :-1] = col
+        info[-1, -1] = e_cc * self.n
+        if not (math.isfinite(f0) and np.all(np.isfinite(info))
+                and np.all(np.isfinite(g0))):
+            return None
+        return info / self.n, (f0, g0)
+
+    def _linear_objective(self, theta):
+        """Minus the mean log-likelihood of GARCH or GJR, sums only (what ranking the
+        starting points needs): one forward filter, no per-day arrays kept.
+
+        Normal: ``L = -(n ln 2 pi + sum ln s2 + sum e^2/s2) / 2``; Student-t (unit
+        variance, Bollerslev 1987): ``L = n c(nu) - sum ln s2 / 2 - (nu + 1)/2 sum
+        ln(1 + e^2 / ((nu - 2) s2))`` with ``c(nu) = lnG((nu+1)/2) - lnG(nu/2) -
+        ln(pi (nu-2))/2`` (the formulas of :func:`normal_loglik` and
+        :func:`std_t_loglik`, summed)."""
+        mu, p, nu = self.unpack(theta)
+        eps = self.y - mu
+        bc = self.backcast
+        e2 = eps * eps
+        a = np.empty(self.n)
+        a[0] = bc
+        a[1:] = e2[:-1]
+        u = p["omega"] + p["alpha"] * a
+        if self.spec.name == "gjr":
+            g = np.empty(self.n)
+            g[0] = 0.5 * bc
+            np.multiply(e2[:-1], eps[:-1] < 0, out=g[1:])    # e^2 on down days, else 0
+            u += p["gamma"] * g
+        s2 = linear_filter(u, p["beta"], bc)
+        with np.errstate(all="ignore"):
+            if not (s2.min() > 0) or not np.isfinite(s2[-1]):
+                return 1e6
+            sum_ln_s2 = float(np.log(s2).sum())
+            r = e2 / s2
+            if nu is None:
+                total = -0.5 * (self.n * LOG_2PI + sum_ln_s2 + float(r.sum()))
+            else:
+                nm2 = nu - 2.0
+                r /= nm2
+                const = (gammaln(0.5 * (nu + 1.0)) - gammaln(0.5 * nu)
+                         - 0.5 * math.log(math.pi * nm2))
+                total = (self.n * const - 0.5 * sum_ln_s2
+                         - 0.5 * (nu + 1.0) * float(np.log1p(r).sum()))
+        if not math.isfinite(total):
+            return 1e6
+        return -total / self.n
 
     def _egarch_path(self, eps, p):
         """EGARCH log-variances, started from the last path computed (the optimiser's
@@ -369,7 +473,7 @@ class _Problem:
         if self.spec.name == "gjr":
             g = np.empty(self.n)
             g[0] = 0.5 * bc
-            g[1:] = np.where(neg[:-1], e2[:-1], 0.0)
+            np.multiply(e2[:-1], neg[:-1], out=g[1:])    # e^2 on down days, else 0
             u = p["omega"] + alpha * a + gamma * g
         else:
             u = p["omega"] + alpha * a
@@ -432,9 +536,10 @@ class _Problem:
         GARCH and GJR with normal innovations: the conditional information
         matrix, ``sum_t [ds2_t ds2_t' / (2 s2_t^2) + dm dm' / s2_t] / n`` (the expected
         Hessian given the past, Engle 1982, *Econometrica* 50, and Bollerslev 1986),
-        from the same linear filter that gives the gradient. EGARCH, and Student-t
-        innovations on the linear recursions: the outer product of the per-day
-        analytic scores, ``S'S / n`` (Berndt, Hall, Hall & Hausman 1974). Either
+        from the same linear filter that gives the gradient; with Student-t
+        innovations, the Student-t conditional information (:meth:`_t_information`).
+        EGARCH (and the linear recursions when that fails): the outer product of the
+        per-day analytic scores, ``S'S / n`` (Berndt, Hall, Hall & Hausman 1974). Each
         costs about one gradient instead of the k + 1 of finite differences
         (the fallback) and, measured on windows of 1,500-5,000 daily returns, leads
         the quasi-Newton iterations to the same optimum with fewer evaluations.
@@ -453,6 +558,10 @@ class _Problem:
                 f0 = -float(ll.sum()) / self.n
                 if math.isfinite(f0) and np.all(np.isfinite(info)):
                     return info / self.n, (f0, g0 / self.n)
+        if self.spec.linear and self.dist.name == "t" and self.spec.name != "ewma":
+            out = self._t_information(theta)
+            if out is not None:
+                return out
         if self.spec.name == "egarch" or (self.spec.linear and self.dist.name == "t"):
             ll, sc = (self.egarch_score_obs(theta) if self.spec.name == "egarch"
                       else self.score_obs(theta))
@@ -981,6 +1090,20 @@ def _optimality_json(opt):
 # ---------------------------------------------------------------------------------
 # building a result
 # ---------------------------------------------------------------------------------
+def _trigamma(x: float) -> float:
+    """psi'(x) for x > 0: the recurrence ``psi'(x) = psi'(x+1) + 1/x^2`` up to x >= 10,
+    then the asymptotic series ``1/x + 1/(2x^2) + 1/(6x^3) - 1/(30x^5) + 1/(42x^7) -
+    1/(30x^9) + 5/(66x^11)`` (Abramowitz & Stegun 6.4.12, Bernoulli-number
+    coefficients; the next term is below 3e-14 there)."""
+    acc = 0.0
+    while x < 10.0:
+        acc += 1.0 / (x * x)
+        x += 1.0
+    z = 1.0 / (x * x)
+    return acc + 1.0 / x + z * (0.5 + (1.0 / x) * (1.0 / 6.0 + z * (-1.0 / 30.0 + z * (
+        1.0 / 42.0 + z * (-1.0 / 30.0 + z * 5.0 / 66.0)))))
+
+
 def _scale_of(y: np.ndarray) -> float:
     return 1.0 / float(np.std(y))
 
@@ -997,12 +1120,18 @@ def _backcast_scaled(y_s, has_mu, backcast, scale):
 
 def _result(prob: _Problem, theta_s: np.ndarray, y: np.ndarray, scale: float, mean: str,
             converged: bool, message: str, fallback_reason, candidates, with_cov=False,
-            n_free: int | None = None, optimality: dict | None = None) -> GarchFit:
+            n_free: int | None = None, optimality: dict | None = None,
+            loglik_scaled: float | None = None) -> GarchFit:
+    """The fit at ``theta_s`` (scaled units) in decimal units. ``loglik_scaled``: the
+    log-likelihood of the scaled returns when already known (the optimiser's last
+    value), which saves the per-day densities."""
     model = prob.spec.name
     names = tuple(prob.names)
     eps_s, s2_s = prob.variance(theta_s)
-    ll_obs = prob.loglik_obs(theta_s, (eps_s, s2_s))
-    ll = float(np.sum(ll_obs)) + prob.n * math.log(scale)
+    if loglik_scaled is None:
+        ll_obs = prob.loglik_obs(theta_s, (eps_s, s2_s))
+        loglik_scaled = float(np.sum(ll_obs))
+    ll = loglik_scaled + prob.n * math.log(scale)
     params_arr, J = _to_decimal(model, names, theta_s, scale)
     params = {k: float(v) for k, v in params_arr.items()}
     if model == "ewma":
@@ -1040,11 +1169,60 @@ OPTIMALITY_GAIN_TOL = 1e-7
 OPTIMALITY_GAIN_REL = 1e-11
 
 
-def _optimality(prob: _Problem, M: np.ndarray, u: np.ndarray, lo: np.ndarray,
+class _Coordinates:
+    """The optimiser's coordinates ``u`` and the model's parameters ``theta``.
+
+    ``theta = M u`` on the mean and variance parameters (:meth:`_Problem.coordinate_map`:
+    GJR's ``alpha + gamma`` is a coordinate of its own), and the Student-t's degrees
+    of freedom are optimised as ``eta = 1/nu``: the log-likelihood is much closer to
+    quadratic in ``eta`` than in ``nu`` (it flattens as ``nu`` grows and steepens
+    towards 2), so the quasi-Newton steps in ``nu`` no longer overshoot and swing
+    back (Fiorentini, Sentana & Calzolari 2003, *J. Bus. Econ. Stat.* 21, estimate the
+    Student-t GARCH in ``eta``). Measured on arch's sp500, nasdaq, wti and vix, the
+    GARCH-t, GJR-t and EGARCH-t fits need 0-3 fewer likelihood evaluations each
+    (none more), at the same optimum.
+    """
+
+    def __init__(self, prob: _Problem):
+        self.M = prob.coordinate_map()
+        self.Minv = np.linalg.inv(self.M)
+        self.inv_nu = prob.dist.name == "t"      # nu is the last parameter
+
+    def theta(self, u: np.ndarray) -> np.ndarray:
+        th = self.M @ u
+        if self.inv_nu:
+            th[-1] = 1.0 / u[-1]
+        return th
+
+    def u(self, theta: np.ndarray) -> np.ndarray:
+        u = self.Minv @ theta
+        if self.inv_nu:
+            u[-1] = 1.0 / theta[-1]
+        return u
+
+    def jacobian(self, theta: np.ndarray) -> np.ndarray:
+        """``d theta / d u`` at ``theta`` (``d nu / d eta = -nu^2``)."""
+        if not self.inv_nu:
+            return self.M
+        J = self.M.copy()
+        J[-1, -1] = -theta[-1] ** 2
+        return J
+
+    def bounds(self, lo: np.ndarray, hi: np.ndarray):
+        """Bounds of ``u`` from those of ``M^-1 theta`` (``nu`` in [a, b] is ``eta`` in
+        [1/b, 1/a])."""
+        lo, hi = lo.copy(), hi.copy()
+        if self.inv_nu:
+            lo[-1], hi[-1] = 1.0 / hi[-1], 1.0 / lo[-1]
+        return lo, hi
+
+
+def _optimality(prob: _Problem, coords: _Coordinates, u: np.ndarray, lo: np.ndarray,
                 hi: np.ndarray, res=None, A_ub=None, b_ub=None) -> dict:
     """First-order (KKT) check of a constrained maximum of the log-likelihood.
 
-    In the optimiser's coordinates ``u`` (``theta = M u``) with ``G`` the gradient of the
+    In the optimiser's coordinates ``u`` (``theta(u)``, see :class:`_Coordinates`;
+    Jacobian ``J``) with ``G`` the gradient of the
     total log-likelihood and ``S`` the per-day scores: a coordinate at a bound is
     *active* when ``G`` points out of the box there (its multiplier has the right
     sign); on the other, *free*, coordinates the projected gradient must vanish. The
@@ -1074,7 +1252,8 @@ def _optimality(prob: _Problem, M: np.ndarray, u: np.ndarray, lo: np.ndarray,
         total_ll = -n * float(res.fun)
         curvature = "quasi-Newton Hessian"
     else:
-        theta = M @ u
+        theta = coords.theta(u)
+        M = coords.jacobian(theta)
         with np.errstate(all="ignore"):
             ll, sc = prob.scores(theta)
         if ll is None or not np.all(np.isfinite(sc)) or not np.all(np.isfinite(ll)):
@@ -1140,6 +1319,8 @@ def _coordinate_names(prob: _Problem) -> list:
     names = list(prob.names)
     if prob.spec.name == "gjr":
         names[names.index("gamma")] = "alpha+gamma"
+    if prob.dist.name == "t":
+        names[names.index("nu")] = "1/nu"
     return names
 
 
@@ -1252,15 +1433,21 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
     bc = _backcast_scaled(y_s, has_mu, backcast, scale)
     prob = _Problem(y_s, model, dist, has_mu, bc)
     var = float(np.var(y_s))
-    M = prob.coordinate_map()
-    Minv = np.linalg.inv(M)
+    coords = _Coordinates(prob)
+    M = coords.M
     bounds = prob.internal_bounds(var)
-    lo = np.array([b[0] for b in bounds])
-    hi = np.array([b[1] for b in bounds])
+    lo, hi = coords.bounds(np.array([b[0] for b in bounds]),
+                           np.array([b[1] for b in bounds]))
+    inv_nu = coords.inv_nu
+    to_theta = coords.theta
 
     def fun_grad(u):
-        f, g = prob.objective_grad(M @ u)
-        return f, M.T @ g
+        th = to_theta(u)
+        f, g = prob.objective_grad(th)
+        gu = M.T @ g
+        if inv_nu:
+            gu[-1] = -th[-1] ** 2 * g[-1]    # d nu / d eta = -nu^2
+        return f, gu
 
     # the stationarity limit as a linear inequality in the optimiser's coordinates
     # (GARCH, GJR; EGARCH's is the bound on beta): held by the optimiser's active set
@@ -1271,7 +1458,7 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
     def feasible(u):
         if A_ub is not None and not float(A_ub[0] @ u) <= b_ub[0] + 1e-12:
             return False
-        return prob.feasible(M @ u)
+        return prob.feasible(to_theta(u))
 
     cap = prob.max_step()
 
@@ -1279,12 +1466,14 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
         u0 = np.clip(u0, lo, hi)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
-            hess, (f0, g0) = prob.start_curvature(M @ u0)
-            res = minimize_box(fun_grad, u0, lo, hi, hess0=M.T @ hess @ M,
-                               fg0=(f0, M.T @ g0), max_step=cap, A_ub=A_ub, b_ub=b_ub,
+            th0 = to_theta(u0)
+            hess, (f0, g0) = prob.start_curvature(th0)
+            J = coords.jacobian(th0)
+            res = minimize_box(fun_grad, u0, lo, hi, hess0=J.T @ hess @ J,
+                               fg0=(f0, J.T @ g0), max_step=cap, A_ub=A_ub, b_ub=b_ub,
                                gain_tol=stop / prob.n)
         u = np.asarray(res.x, dtype=float)
-        _, vol, _ = prob.unpack(M @ u)
+        _, vol, _ = prob.unpack(to_theta(u))
         pers = prob.spec.persistence(vol)
         stationary = pers <= 1.0 - STATIONARITY_MARGIN + 1e-12
         return {"res": res, "u": u, "f": float(res.fun), "pers": pers,
@@ -1292,7 +1481,7 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
 
     def verified(r):
         if r["opt"] is None:
-            r["opt"] = _optimality(prob, M, r["u"], lo, hi, r["res"], A_ub, b_ub)
+            r["opt"] = _optimality(prob, coords, r["u"], lo, hi, r["res"], A_ub, b_ub)
         return r["opt"]["passed"]
 
     def better(a, b):   # is run a preferred to run b?
@@ -1317,14 +1506,14 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
         # the nested GARCH fit found the weak-dynamics regime far below its optimum
         labelled = [c for c in labelled if c[0] != "low"]
     for label, th in labelled:
-        u0 = np.clip(Minv @ th, lo, hi)
+        u0 = np.clip(coords.u(th), lo, hi)
         if not feasible(u0):
             continue
         if label == "nested" and not any(c[0] == "high" for c in labelled):
             f0 = -math.inf    # the only main start: no need to rank it
         else:
             with np.errstate(all="ignore"):
-                f0 = prob.objective(M @ u0)
+                f0 = prob.objective(to_theta(u0))
         cands.append((label, f0, u0))
     # climb from the best of the nested and high-persistence starts; then from the
     # best weak-dynamics start, unless even that start is far below the optimum
@@ -1358,8 +1547,11 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
     if quick and best is not None and best["stationary"] and math.isfinite(best["f"]):
         if regimes is not None:
             regimes["quick"] = True
-        return _result(prob, M @ best["u"], y, scale, mean, False,
-                       "quick climb (a start for the nested model)", None, None), None
+        # (only its parameters, path and log-likelihood are used: the optimiser's
+        # last value gives the latter)
+        return _result(prob, to_theta(best["u"]), y, scale, mean, False,
+                       "quick climb (a start for the nested model)", None, None,
+                       loglik_scaled=-prob.n * best["f"]), None
     tried = order
     if best["stationary"] and not verified(best):
         # stopped short of an optimum: climb again from there with fresh curvature,
@@ -1373,8 +1565,8 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
             if verified(best):
                 break
     res, u = best["res"], best["u"]
-    theta = M @ u
-    opt = (_optimality(prob, M, u, lo, hi, res, A_ub, b_ub) if best["opt"] is None
+    theta = to_theta(u)
+    opt = (_optimality(prob, coords, u, lo, hi, res, A_ub, b_ub) if best["opt"] is None
            else best["opt"])
     problem = None
     if not best["stationary"]:

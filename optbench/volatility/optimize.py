@@ -88,6 +88,7 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
     cb = None if C is None else np.atleast_1d(np.asarray(b_ub, dtype=float))
     ctol = None if C is None else 1e-10 * (1.0 + np.abs(cb))      # "at the limit"
     cviol = None if C is None else 1e-12 * (1.0 + np.abs(cb))     # rounding allowed
+    cb_viol = None if C is None else cb + cviol
     if fg0 is not None and np.array_equal(x, x0):
         f, g = float(fg0[0]), np.asarray(fg0[1], dtype=float)
         nfev = 0
@@ -121,7 +122,8 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
         at_hi = x >= hi_tol
         free = ~((at_lo & (g > 0)) | (at_hi & (g < 0)))
         if C is not None:
-            near = [int(i) for i in (cb - C @ x <= ctol).nonzero()[0]]
+            slack = cb - C @ x
+            near = [int(i) for i in (slack <= ctol).nonzero()[0]]
             # working rows: those at the limit that the steepest-descent direction on
             # the free coordinates would cross (refined below by the multipliers' signs)
             work = [i for i in near if float(C[i, free] @ g[free]) < 0.0]
@@ -165,7 +167,6 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
         if C is not None:
             # ratio test: stop where the step would cross a row not in the working set
             Cd = C @ d
-            slack = cb - C @ x
             for i in (Cd > 0).nonzero()[0]:
                 if int(i) not in work:
                     step = min(step, max(float(slack[i]) / float(Cd[i]), 0.0))
@@ -175,7 +176,7 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
             if step * rel < 1e-15:
                 break   # the step no longer moves x: at the precision of f
             xn = np.minimum(np.maximum(x + step * d, lo), hi)
-            if ((C is None or bool((C @ xn <= cb + cviol).all()))
+            if ((C is None or bool((C @ xn <= cb_viol).all()))
                     and (feasible is None or feasible(xn))):
                 fn, gn = fun_grad(xn)
                 nfev += 1
@@ -212,6 +213,14 @@ def _step(H, Hg, free, C, work):
     nh, m = held.size, len(work)
     if nh == 0 and m == 0:
         return -Hg, None
+    if nh == 1 and m == 0:
+        # one held coordinate j: E = e_j, so HE = H[:, j], S = H[j, j] (the same
+        # numbers as the general form below, without building E)
+        j = int(held[0])
+        Hj = H[:, j]
+        d = -(Hg + Hj * (-Hg[j] / Hj[j]))
+        d[j] = 0.0
+        return d, None
     k = Hg.shape[0]
     E = np.zeros((k, nh + m))
     E[held, np.arange(nh)] = 1.0

@@ -73,9 +73,7 @@ def linear_filter(u: np.ndarray, b: float, x0: np.ndarray | float = 0.0) -> np.n
     if 0.6 <= b < 1.0 and n >= 64 and u.ndim <= 2 and (u.ndim == 1 or u.shape[0] <= 16):
         if u.ndim == 1:
             return _scaled_cumsum_filter(u, float(b), float(x0))
-        starts = np.broadcast_to(np.asarray(x0, dtype=float), lead)
-        return np.stack([_scaled_cumsum_filter(row, float(b), float(s0))
-                         for row, s0 in zip(u, starts)])
+        return _scaled_cumsum_filter(u, float(b), x0)
     if abs(b) < 0.6 and u.ndim <= 2 and (u.ndim == 1 or u.shape[0] <= 16):
         return _doubling_filter(u, float(b), x0)
     L = _block_length(n)
@@ -137,33 +135,49 @@ def _doubling_filter(u: np.ndarray, b: float, x0) -> np.ndarray:
     return x
 
 
-def _scaled_cumsum_filter(u: np.ndarray, b: float, x0: float) -> np.ndarray:
-    """One-channel :func:`linear_filter` for ``0.6 <= b < 1`` by scaled cumulative sums.
+def _scaled_cumsum_filter(u: np.ndarray, b: float, x0) -> np.ndarray:
+    """:func:`linear_filter` for ``0.6 <= b < 1`` by scaled cumulative sums, on one
+    channel (``u`` of shape (n,), ``x0`` a float) or several (shape (r, n), ``x0`` a
+    float or r values).
 
     Inside a block of length L, ``x_{mL+k} = b^k (sum_{j<=k} u_{mL+j} b^{-j}) +
     b^{k+1} c_m``; L is chosen so that ``b^{-L} <= 10^4`` (at most four digits of
     headroom are spent, so the result matches the loop to ~1e-15 relative to the
-    block's scale). Block ends ``c_m`` are carried by a loop over the n/L blocks.
+    block's scale). Block ends ``c_m`` are carried by a loop over the n/L blocks;
+    the channels share every array operation (the same arithmetic, element by
+    element, as filtering each channel alone).
     """
-    n = u.shape[0]
+    n = u.shape[-1]
+    lead = u.shape[:-1]
     L = int(min(128, 4.0 / -math.log10(b)))
     nb = -(-n // L)
     pad = nb * L - n
     if pad:
-        u = np.concatenate([u, np.zeros(pad)])
+        u = np.concatenate([u, np.zeros(lead + (pad,))], axis=-1)
     bk = b ** np.arange(L)
-    U = u.reshape(nb, L) / bk
-    np.cumsum(U, axis=1, out=U)
+    U = u.reshape(lead + (nb, L)) / bk
+    U = np.cumsum(U, axis=-1)    # (a new array: in place costs a copy for the overlap)
     U *= bk
-    ends = U[:, -1].tolist()
     bL = b ** L
-    carry = [0.0] * nb
-    prev = x0
-    for m in range(nb):
-        carry[m] = prev
-        prev = ends[m] + bL * prev
-    U += np.array(carry)[:, None] * (b * bk)
-    return U.reshape(-1)[:n]
+    if not lead:
+        ends = U[:, -1].tolist()
+        carry = [0.0] * nb
+        prev = x0
+        for m in range(nb):
+            carry[m] = prev
+            prev = ends[m] + bL * prev
+        U += np.array(carry)[:, None] * (b * bk)
+        return U.reshape(-1)[:n]
+    starts = np.broadcast_to(np.asarray(x0, dtype=float), lead).tolist()
+    carry = np.empty(lead + (nb,))
+    for r, (ends, prev) in enumerate(zip(U[..., -1].tolist(), starts)):
+        row = [0.0] * nb
+        for m in range(nb):
+            row[m] = prev
+            prev = ends[m] + bL * prev
+        carry[r] = row
+    U += carry[..., None] * (b * bk)
+    return U.reshape(lead + (nb * L,))[..., :n]
 
 
 def linear_filter_loop(u: np.ndarray, b: float, x0: float = 0.0) -> np.ndarray:
@@ -222,7 +236,7 @@ def garch_variance(eps: np.ndarray, omega: float, alpha: float, gamma: float,
     a[0] = backcast
     a[1:] = e2[:-1]
     g[0] = 0.5 * backcast
-    g[1:] = np.where(neg[:-1], e2[:-1], 0.0)
+    np.multiply(e2[:-1], neg[:-1], out=g[1:])    # e^2 on down days, else 0
     u = omega + alpha * a + gamma * g
     if not grad:
         return linear_filter(u, beta, backcast)
