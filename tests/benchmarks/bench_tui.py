@@ -149,14 +149,15 @@ def dense_chain(folder: Path, step: float = 1.0) -> int:
 _OVERVIEW_ROW = re.compile(r"\d{4}-\d{2}-\d{2}\s+\d+\s+\d+\.\d\s+\d+\.\d")
 
 
-def terminal_ready_seconds(timeout: float = 60.0) -> tuple[float, float]:
+def terminal_ready_seconds(timeout: float = 60.0, env: str = "") -> tuple[float, float]:
     """(numbers on screen, "ready" on screen) seconds after ``optbench`` is started
-    in a new 120 x 40 tmux session on the bundled demo."""
+    in a new 120 x 40 tmux session on the bundled demo; ``env``: ``NAME=value``
+    settings put before the command."""
     name = f"optbench-bench-{os.getpid()}"
     exe = str(Path(sys.executable).with_name("optbench"))
     t0 = time.perf_counter()
     subprocess.run(["tmux", "new-session", "-d", "-s", name, "-x", "120", "-y", "40",
-                    f"cd {ROOT} && {exe}"], check=True)
+                    f"cd {ROOT} && {env} {exe}"], check=True)
     numbers = ready = float("nan")
     try:
         while time.perf_counter() - t0 < timeout:
@@ -190,6 +191,8 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--rounds", type=int, default=5)
     parser.add_argument("--quick", action="store_true", help="2 rounds")
+    parser.add_argument("--terminal-only", action="store_true",
+                        help="only figure 0 (the real terminal against the floor)")
     args = parser.parse_args()
     if args.quick:
         args.rounds = 2
@@ -218,6 +221,8 @@ def main() -> None:
                None, reference="python -c 'import numpy, pandas', same run")
     else:
         print("0. tmux not found: the real-terminal figure is not measured")
+    if args.terminal_only:
+        return
 
     tui, cli = [], []
     switches: list[float] = []
