@@ -20,7 +20,8 @@ Prints medians (and worst cases) of:
    every 50 ms until the overview's numbers (an expiry row with its ATM IV and
    forecast) and the status "ready" are on screen; side by side with the floor every
    Python tool here pays, ``python -c "import numpy, pandas"``, in alternating
-   rounds. Wall clock only (the polling itself costs a little CPU, so the figure is
+   rounds, and with the same start without the early fork (``OPTBENCH_EARLY=0``:
+   the first run forks only after numpy, pandas and the core are imported). Wall clock only (the polling itself costs a little CPU, so the figure is
    if anything pessimistic). optbench's modules are compiled to bytecode first, as a
    plain install has them (``bench_startup.py`` does the same; an editable checkout
    under PYTHONDONTWRITEBYTECODE=1 compiles them from source at every start).
@@ -202,12 +203,13 @@ def main() -> None:
     if shutil.which("tmux"):
         import compileall
         compileall.compile_dir(ROOT / "optbench", quiet=1)
-        floor, shown, ready = [], [], []
+        floor, shown, ready, ordinary = [], [], [], []
         for _ in range(args.rounds):
             floor.append(floor_seconds())
             n, r = terminal_ready_seconds()
             shown.append(n)
             ready.append(r)
+            ordinary.append(terminal_ready_seconds(env="OPTBENCH_EARLY=0")[1])
         f = statistics.median(floor)
         print("0. demo in a real terminal (tmux 120 x 40), new process, wall (s)")
         print(f"   overview numbers on screen {summary(shown)}   "
@@ -215,6 +217,8 @@ def main() -> None:
         print(f"   status 'ready' on screen   {summary(ready)}   "
               f"({statistics.median(ready) / f:.2f}x floor)")
         print(f"   floor: import numpy, pandas {summary(floor)}   (same run)")
+        print(f"   'ready' without the early start (OPTBENCH_EARLY=0) {summary(ordinary)}   "
+              f"({statistics.median(ordinary) / f:.2f}x floor)")
         figure("workbench ready in a terminal / floor", statistics.median(ready) / f, "x",
                1.8, reference="python -c 'import numpy, pandas', same run")
         figure("workbench numbers in a terminal / floor", statistics.median(shown) / f, "x",
