@@ -64,7 +64,12 @@ def start(argv: list[str]) -> int | None:
         os.close(write_fd)
         return None
     if pid == 0:                                        # the child
+        import gc
         import signal
+        # a short-lived process that exits after its run: no cyclic garbage
+        # collection during its imports and the comparison (about a tenth of its CPU
+        # time here); reference counting still frees what it no longer uses
+        gc.disable()
         os.close(read_fd)
         signal.signal(signal.SIGINT, signal.SIG_IGN)    # the parent stops it
         devnull = os.open(os.devnull, os.O_RDWR)

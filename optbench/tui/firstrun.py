@@ -217,6 +217,8 @@ class FirstRun:
     def _child(self, write_fd: int) -> None:
         status = 1
         try:
+            import gc
+            gc.disable()   # short-lived: no cyclic collection (see optbench.tui.early)
             signal.signal(signal.SIGINT, signal.SIG_IGN)   # the parent stops it
             devnull = os.open(os.devnull, os.O_RDWR)
             for fd in (0, 1, 2):                           # the screen is the parent's
