@@ -7,7 +7,11 @@ before textual, the screen or any thread exists — so that it has the machine's
 other core to itself instead of sharing one interpreter lock with the screen. The
 child runs :func:`optbench.tui.session.run_steps` and hands each step's result back
 through a pipe as soon as it exists (pickled: the chain, the comparison, the
-headline hedge, the out-of-sample check). Elsewhere, or when the fork fails, the
+headline hedge, the out-of-sample check), except that the overview's numbers and
+status go first as plain data (:class:`Sender`, :mod:`optbench.tui.firstview`):
+the screen paints them before it unpickles the result objects, which imports numpy,
+pandas and the core. :mod:`optbench.tui.early` starts such a child at the very
+start of ``optbench``, before those imports. Elsewhere, or when the fork fails, the
 run is a thread of this process. Either way the results are those of the same
 functions on the same inputs: the numbers do not depend on where they were
 computed (``tests/tui/test_first_run.py``).
@@ -91,8 +95,12 @@ class Sender:
             return
         if kind == "headline" and self.comparison is not None:
             from optbench.tui import firstview
-            write_frame(self.pipe, ("first_view",
-                                    firstview.first_view(self.comparison, event[1])))
+            try:
+                view = firstview.first_view(self.comparison, event[1])
+            except Exception:   # the objects that follow are drawn as they come
+                view = None
+            if view is not None:
+                write_frame(self.pipe, ("first_view", view))
         if kind != "progress":
             for held in self.held:
                 write_frame(self.pipe, held)
