@@ -184,6 +184,14 @@ def floor_seconds() -> float:
     return time.perf_counter() - t0
 
 
+def _load() -> str:
+    """The 1, 5 and 15-minute load averages (what else this shared machine runs)."""
+    try:
+        return " ".join(f"{x:.2f}" for x in os.getloadavg())
+    except OSError:
+        return "unknown"
+
+
 def summary(values: list[float]) -> str:
     return f"median {statistics.median(values):7.3f}   worst {max(values):7.3f}"
 
@@ -199,7 +207,8 @@ def main() -> None:
         args.rounds = 2
 
     print(f"optbench workbench benchmark, {args.rounds} rounds (medians; this machine is "
-          "shared, so compare within one run)\n")
+          f"shared, so compare within one run); load average {_load()} on "
+          f"{os.cpu_count()} cores\n")
     if shutil.which("tmux"):
         import compileall
         compileall.compile_dir(ROOT / "optbench", quiet=1)
@@ -216,7 +225,8 @@ def main() -> None:
               f"({statistics.median(shown) / f:.2f}x floor)")
         print(f"   status 'ready' on screen   {summary(ready)}   "
               f"({statistics.median(ready) / f:.2f}x floor)")
-        print(f"   floor: import numpy, pandas {summary(floor)}   (same run)")
+        print(f"   floor: import numpy, pandas {summary(floor)}   (same run; load average "
+              f"now {_load()})")
         print(f"   'ready' without the early start (OPTBENCH_EARLY=0) {summary(ordinary)}   "
               f"({statistics.median(ordinary) / f:.2f}x floor)")
         figure("workbench ready in a terminal / floor", statistics.median(ready) / f, "x",
