@@ -116,6 +116,10 @@ def join_negative_values(argv: Sequence[str]) -> list[str]:
 
 
 def main(argv: Sequence[str] | None = None) -> int:
+    if argv is None:   # the workbench in a terminal: its first run starts now (tui/early.py)
+        from optbench.tui.early import start
+        if (code := start(sys.argv[1:])) is not None:
+            return code
     argv = join_negative_values(sys.argv[1:] if argv is None else argv)
     parser = build_parser(command_named(argv))
     args = parser.parse_args(argv)

@@ -21,7 +21,7 @@ from textual.widgets import ProgressBar, Static, TabbedContent, Tabs
 from textual.worker import get_current_worker
 
 from optbench.errors import InputError
-from optbench.tui import prefs, session
+from optbench.tui import firstview, prefs, session
 from optbench.tui.dialogs.requests import ExportRequest, OpenRequest, Settings
 from optbench.tui.screens.workbench import VIEWS, WorkbenchScreen
 
@@ -38,14 +38,7 @@ VIEW_KEYS = Binding.Group(description="views", compact=True)
 EXPIRY_KEYS = Binding.Group(description="expiry", compact=True)
 
 
-def _ready_text(comparison) -> str:
-    """'ready', or 'ready with N warnings' naming the first: the status line never
-    says ready over a flagged answer without the flag."""
-    n = len(comparison.warnings)
-    if not n:
-        return "ready"
-    first = comparison.warnings[0]
-    return f"ready with {n} warning{'s' if n > 1 else ''} ⚠ (overview): {first}"
+_ready_text = firstview.ready_text
 
 
 class Progress(Message):
@@ -60,6 +53,16 @@ class Loaded(Message):
     def __init__(self, token: int, chain) -> None:
         super().__init__()
         self.token, self.chain = token, chain
+
+
+class FirstView(Message):
+    """The first run's overview and status as plain data (:mod:`optbench.tui.firstview`),
+    sent ahead of the result objects they were formatted from; ``shown`` is set once
+    they are painted."""
+
+    def __init__(self, token: int, content: dict, shown=None) -> None:
+        super().__init__()
+        self.token, self.content, self.shown = token, content, shown
 
 
 class Computed(Message):
@@ -93,6 +96,7 @@ class Failed(Message):
 
 #: the message for each kind of event of a run (:func:`optbench.tui.session.run_steps`)
 _MESSAGES = {"progress": Progress, "loaded": Loaded, "headline": Headline, "checked": Checked,
+             "first_view": FirstView,
              "computed": lambda token, comparison, seconds: Computed(token, comparison, None,
                                                                      seconds),
              "failed": lambda token, stage, error: Failed(token, error, stage)}
@@ -161,6 +165,10 @@ class Workbench(App):
         self.headline_ready = False
         #: the overview's numbers of the current run are on screen (status "ready")
         self.ready = False
+        #: the token of the run whose first view (plain data) is on screen, if any
+        self._first_view_token: int | None = None
+        #: the views still waiting for the current comparison ({"fit", "views"})
+        self._views_waiting: dict | None = None
 
     # ----------------------------------------------------------------- set-up
     def get_default_screen(self) -> WorkbenchScreen:
@@ -210,11 +218,7 @@ class Workbench(App):
             first.cancel()
         session.run_steps(inputs, planner, emit, lambda: worker.is_cancelled)
 
-    @staticmethod
-    def _facts(c) -> str:
-        """The comparison on screen in a few words (the status line leads with the state)."""
-        return (f"{c.underlying} {c.asof.isoformat()} · spot {c.spot:,.2f} · "
-                f"{len(c.expiries)} expiries · {c.model.name}/{c.model.dist}")
+    _facts = staticmethod(firstview.facts)
 
     def _status(self, text: str) -> None:
         self.screen_stack[0].query_one("#status-text", Static).update(text)
@@ -237,34 +241,82 @@ class Workbench(App):
             self.view("quality").show(session.quality_dict(msg.chain.quality),
                                       msg.chain.rejected, str(msg.chain.source))
 
+    @on(FirstView)
+    def _first_view(self, msg: FirstView) -> None:
+        """The overview's numbers and the status "ready" from the first run's plain
+        data; its result objects follow (Loaded, Computed, Headline) and are drawn by
+        the same formatting, so the screen does not change when they come."""
+        if msg.token != self._token:
+            return
+        self._first_view_token = msg.token
+        self.ready = True
+        self.sub_title = msg.content["sub_title"]
+        self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=STEPS - 1)
+        self._status(msg.content["status"])
+        self.view("overview").show_content(msg.content["overview"])
+        if msg.shown is not None:
+            self.call_after_refresh(msg.shown.set)
+
     @on(Computed)
     def _computed(self, msg: Computed) -> None:
         if msg.token != self._token:
             return
         self.comparison, self.headline = msg.comparison, msg.headline
         c = msg.comparison
-        self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=STEPS - 2)
-        self.sub_title = f"{c.underlying} · {c.asof.isoformat()} · spot {c.spot:,.2f}"
         self.last_compute_seconds = msg.seconds
         self.checked = False
+        self.headline_ready = False
+        if self._first_view_token == msg.token:
+            return   # its numbers are on screen already; the headline follows
+        self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=STEPS - 2)
+        self.sub_title = firstview.sub_title(c)
         self.ready = False
         self._status(f"pricing the headline protection … · {self._facts(c)}")
-        self.headline_ready = False
         self.view("overview").show(c, None, True, True)
+
+    #: the order in which the views other than the overview get the results and mount
+    LATER_VIEWS = ("term", "smile", "richcheap", "model", "hedge", "quality")
 
     def _show_views(self, c) -> None:
         """After the next refresh (the overview's numbers are painted first): give the
-        comparison to the views other than the overview, and mount them."""
-        def show() -> None:
-            if not self.screen_stack or self.comparison is None or \
-                    c.fit is not self.comparison.fit:
-                return   # a newer run has replaced it (the check keeps the fit)
-            c_now = self.comparison   # with its check, if that has come meanwhile
-            for vid in ("term", "smile", "richcheap", "model", "hedge"):
-                self.view(vid).show(c_now)
-            self.view("quality").show(c_now.quality, c_now.rejected, c_now.source)
-            self.screen_stack[0].mount_views()
-        self.call_after_refresh(show)
+        comparison to the views other than the overview and mount them, one view per
+        refresh, so that the screen answers keys between them; a view whose tab is
+        opened meanwhile gets its turn at once (:meth:`_give_view`)."""
+        self._views_waiting = {"fit": c.fit, "views": list(self.LATER_VIEWS)}
+        self.call_after_refresh(self._give_next_view)
+
+    def _current_fit(self):
+        waiting = self._views_waiting
+        if not waiting or not self.screen_stack or self.comparison is None or \
+                waiting["fit"] is not self.comparison.fit:
+            return None   # nothing waits, or a newer run has replaced it
+        return waiting
+
+    def _give_view(self, view_id: str) -> None:
+        """Give ``view_id`` the comparison now (with its check, if that has come) and
+        mount it, if it is still waiting for its turn."""
+        waiting = self._current_fit()
+        if waiting is None or view_id not in waiting["views"]:
+            return
+        waiting["views"].remove(view_id)
+        c = self.comparison
+        if view_id == "quality":
+            self.view("quality").show(c.quality, c.rejected, c.source)
+        else:
+            self.view(view_id).show(c)
+        self.screen_stack[0].mount_views(view_id)
+
+    def _give_next_view(self) -> None:
+        waiting = self._current_fit()
+        if waiting is None or not waiting["views"]:
+            return
+        self._give_view(waiting["views"][0])
+        if waiting["views"]:
+            self.call_after_refresh(self._give_next_view)
+
+    def on_tabbed_content_tab_activated(self, event: TabbedContent.TabActivated) -> None:
+        if event.pane.id:
+            self._give_view(event.pane.id)
 
     @on(Headline)
     def _headline(self, msg: Headline) -> None:
@@ -274,8 +326,7 @@ class Workbench(App):
         self.ready = True
         c = self.comparison
         self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=STEPS - 1)
-        self._status(f"{_ready_text(c)} · checking the model out of sample … · "
-                     f"{self._facts(c)}")
+        self._status(firstview.ready_status(c))
         self.view("overview").show(c, msg.estimate, False, True)
         self._show_views(c)
 

@@ -4,9 +4,10 @@ from __future__ import annotations
 
 import datetime as _dt
 import math
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from rich.text import Text
+if TYPE_CHECKING:
+    from rich.text import Text
 
 #: verdict -> (text mark, colour). The mark keeps the verdict readable without colour.
 VERDICT_MARKS = {
@@ -61,7 +62,8 @@ def date(x: Any) -> str:
     return "–" if x is None else str(x)[:10]
 
 
-def verdict(v: str) -> Text:
+def verdict(v: str) -> "Text":
+    from rich.text import Text   # not at import: the first run formats without rich
     mark, style = VERDICT_MARKS.get(str(v), VERDICT_MARKS["n/a"])
     return Text(mark, style=style)
 

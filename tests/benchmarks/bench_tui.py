@@ -20,7 +20,8 @@ Prints medians (and worst cases) of:
    every 50 ms until the overview's numbers (an expiry row with its ATM IV and
    forecast) and the status "ready" are on screen; side by side with the floor every
    Python tool here pays, ``python -c "import numpy, pandas"``, in alternating
-   rounds. Wall clock only (the polling itself costs a little CPU, so the figure is
+   rounds, and with the same start without the early fork (``OPTBENCH_EARLY=0``:
+   the first run forks only after numpy, pandas and the core are imported). Wall clock only (the polling itself costs a little CPU, so the figure is
    if anything pessimistic). optbench's modules are compiled to bytecode first, as a
    plain install has them (``bench_startup.py`` does the same; an editable checkout
    under PYTHONDONTWRITEBYTECODE=1 compiles them from source at every start).
@@ -149,14 +150,15 @@ def dense_chain(folder: Path, step: float = 1.0) -> int:
 _OVERVIEW_ROW = re.compile(r"\d{4}-\d{2}-\d{2}\s+\d+\s+\d+\.\d\s+\d+\.\d")
 
 
-def terminal_ready_seconds(timeout: float = 60.0) -> tuple[float, float]:
+def terminal_ready_seconds(timeout: float = 60.0, env: str = "") -> tuple[float, float]:
     """(numbers on screen, "ready" on screen) seconds after ``optbench`` is started
-    in a new 120 x 40 tmux session on the bundled demo."""
+    in a new 120 x 40 tmux session on the bundled demo; ``env``: ``NAME=value``
+    settings put before the command."""
     name = f"optbench-bench-{os.getpid()}"
     exe = str(Path(sys.executable).with_name("optbench"))
     t0 = time.perf_counter()
     subprocess.run(["tmux", "new-session", "-d", "-s", name, "-x", "120", "-y", "40",
-                    f"cd {ROOT} && {exe}"], check=True)
+                    f"cd {ROOT} && {env} {exe}"], check=True)
     numbers = ready = float("nan")
     try:
         while time.perf_counter() - t0 < timeout:
@@ -182,6 +184,14 @@ def floor_seconds() -> float:
     return time.perf_counter() - t0
 
 
+def _load() -> str:
+    """The 1, 5 and 15-minute load averages (what else this shared machine runs)."""
+    try:
+        return " ".join(f"{x:.2f}" for x in os.getloadavg())
+    except OSError:
+        return "unknown"
+
+
 def summary(values: list[float]) -> str:
     return f"median {statistics.median(values):7.3f}   worst {max(values):7.3f}"
 
@@ -190,34 +200,43 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--rounds", type=int, default=5)
     parser.add_argument("--quick", action="store_true", help="2 rounds")
+    parser.add_argument("--terminal-only", action="store_true",
+                        help="only figure 0 (the real terminal against the floor)")
     args = parser.parse_args()
     if args.quick:
         args.rounds = 2
 
     print(f"optbench workbench benchmark, {args.rounds} rounds (medians; this machine is "
-          "shared, so compare within one run)\n")
+          f"shared, so compare within one run); load average {_load()} on "
+          f"{os.cpu_count()} cores\n")
     if shutil.which("tmux"):
         import compileall
         compileall.compile_dir(ROOT / "optbench", quiet=1)
-        floor, shown, ready = [], [], []
+        floor, shown, ready, ordinary = [], [], [], []
         for _ in range(args.rounds):
             floor.append(floor_seconds())
             n, r = terminal_ready_seconds()
             shown.append(n)
             ready.append(r)
+            ordinary.append(terminal_ready_seconds(env="OPTBENCH_EARLY=0")[1])
         f = statistics.median(floor)
         print("0. demo in a real terminal (tmux 120 x 40), new process, wall (s)")
         print(f"   overview numbers on screen {summary(shown)}   "
               f"({statistics.median(shown) / f:.2f}x floor)")
         print(f"   status 'ready' on screen   {summary(ready)}   "
               f"({statistics.median(ready) / f:.2f}x floor)")
-        print(f"   floor: import numpy, pandas {summary(floor)}   (same run)")
+        print(f"   floor: import numpy, pandas {summary(floor)}   (same run; load average "
+              f"now {_load()})")
+        print(f"   'ready' without the early start (OPTBENCH_EARLY=0) {summary(ordinary)}   "
+              f"({statistics.median(ordinary) / f:.2f}x floor)")
         figure("workbench ready in a terminal / floor", statistics.median(ready) / f, "x",
                1.8, reference="python -c 'import numpy, pandas', same run")
         figure("workbench numbers in a terminal / floor", statistics.median(shown) / f, "x",
                None, reference="python -c 'import numpy, pandas', same run")
     else:
         print("0. tmux not found: the real-terminal figure is not measured")
+    if args.terminal_only:
+        return
 
     tui, cli = [], []
     switches: list[float] = []

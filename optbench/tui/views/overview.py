@@ -8,51 +8,20 @@ from textual.app import ComposeResult
 from textual.containers import VerticalScroll
 from textual.widgets import Static
 
-from optbench.tui import fmt
+from optbench.tui.firstview import overview_content
 from optbench.tui.views.base import Deferred
 
 
-def headline_text(comparison, estimate) -> Text:
-    """'put 4700 nearest 91 days costs 0.95 % of the portfolio ...' from the results;
-    the protection is the hedge planner's (its inputs are named at the end)."""
+def spans_text(spans) -> Text:
+    """Styled text from :mod:`optbench.tui.firstview`'s ``(text, style)`` spans."""
     text = Text()
-    if estimate is None:
-        text.append("No headline protection: the chain has no put near the planner's floor "
-                    "around its expiry (see Hedge planner, key 5).", style="bold")
-        return text
-    req = estimate.request
-    text.append(f"{estimate.structure_name.capitalize()} ({estimate.strike_legs}), "
-                f"{fmt.date(estimate.expiry)} ({estimate.calendar_days}d), ", style="bold")
-    text.append("costs ")
-    text.append(f"{fmt.pct_sign(estimate.cost_pct, 2)}", style="bold")
-    text.append(" of the portfolio at the ask ")
-    text.append(f"({fmt.money(estimate.premium_paid)} on {fmt.money(req.portfolio_value)}); ")
-    text.append("the forecast vol values it at ")
-    text.append(fmt.money(estimate.premium_at_forecast), style="bold")
-    text.append(" and the model expects it to pay back ")
-    text.append(fmt.money(estimate.expected_payoff), style="bold")
-    text.append(f" — paying {fmt.money(estimate.overpay, signed=True)} over the model's "
-                "expected payoff.")
-    if estimate.legs:
-        leg = estimate.legs[0]
-        text.append(f" The bought put is quoted at {fmt.pct(leg.iv_mid)}% implied vol (mid) "
-                    f"against a forecast of {fmt.pct(leg.forecast_vol)}%.")
-    text.append("\n")
-    row = next((r for r in comparison.expiries if r.expiry == estimate.expiry), None)
-    if row is not None:
-        text.append(f"At {fmt.date(row.expiry)} the market charges ")
-        text.append(f"{fmt.pct(row.atm_iv)}%", style="bold")
-        text.append(" ATM implied vol against a forecast of ")
-        text.append(f"{fmt.pct(row.forecast_vol)}%", style="bold")
-        text.append(f" (band {fmt.pct(row.forecast_low)}–{fmt.pct(row.forecast_high)}): ")
-        text.append_text(fmt.verdict(row.verdict))
-        text.append(f", {fmt.pct(row.iv_minus_forecast, signed=True)} vol points.")
-    text.append(f"\nThe hedge planner's inputs (key 5): portfolio {fmt.money(req.portfolio_value)}, "
-                f"beta {req.beta:g}, floor {req.floor:.0%}.", style="dim")
+    for part, style in spans:
+        text.append(part, style=style)
     return text
 
 
-def verdict_table(comparison) -> Table:
+def verdict_table(rows) -> Table:
+    """The verdict per expiry from :func:`optbench.tui.firstview.verdict_rows`."""
     # no vertical rules: nine columns fit an 80-column terminal
     table = Table(title="Implied against forecast, per expiry: ATM implied vol (IV), "
                         "forecast and band in %, IV−fc in vol points; verdicts for the ATM "
@@ -65,54 +34,9 @@ def verdict_table(comparison) -> Table:
                              ("ATM", "left", 7), ("25Δ put", "left", 7),
                              ("Floor", "left", 7)):
         table.add_column(col, justify=just, no_wrap=True, min_width=width)
-    for r in comparison.expiries:
-        table.add_row(fmt.date(r.expiry), str(r.calendar_days), fmt.pct(r.atm_iv),
-                      fmt.pct(r.forecast_vol),
-                      f"{fmt.pct(r.forecast_low)}–{fmt.pct(r.forecast_high)}",
-                      fmt.pct(r.iv_minus_forecast, signed=True), fmt.verdict(r.verdict),
-                      fmt.verdict(r.put25_verdict), fmt.verdict(r.floor_put_verdict))
+    for row in rows:
+        table.add_row(*row[:6], *(Text(mark, style=style) for mark, style in row[6:]))
     return table
-
-
-def state_text(comparison, checking: bool = False) -> Text:
-    """Data, model, drift and out-of-sample check in a few lines; ``checking``: the
-    check is still running (the line says so until its numbers come)."""
-    q = comparison.quality
-    m = comparison.model
-    text = Text()
-    text.append("Data  ", style="bold")
-    rejected = sum((q.get("rejected") or {}).values())
-    text.append(f"{comparison.underlying} on {fmt.date(comparison.asof)}, spot "
-                f"{fmt.num(comparison.spot)}; {q.get('rows_used', 0)} of {q.get('rows_in', 0)} "
-                f"quote rows used, {rejected} rejected (see Data quality). "
-                f"Rate {fmt.pct(comparison.rate, 2)}%, dividend yield "
-                f"{fmt.pct(comparison.div_yield, 2)}%, {comparison.style} exercise.\n")
-    text.append("Model ", style="bold")
-    text.append(f"{m.name} with {m.dist} innovations on {m.n_obs} daily returns; "
-                f"persistence {fmt.num(m.persistence, 3)}, half-life "
-                f"{fmt.num(m.half_life_days, 0)} trading days, long-run vol "
-                f"{fmt.pct(m.long_run_vol)}%. ")
-    text.append("converged" if m.converged else "NOT converged",
-                style="green" if m.converged else "bold red")
-    if m.fallback_reason:
-        text.append(f" (fallback: {m.fallback_reason})", style="yellow")
-    if comparison.drift is not None:
-        text.append("\nDrift ", style="bold")
-        text.append(f"simulated prices: {comparison.drift.text}. Puts: ask against the "
-                    f"band of the model-expected payoff (floor {comparison.floor:.0%} of spot).")
-    bt = comparison.backtest
-    if bt:
-        text.append("\nCheck ", style="bold")
-        text.append(f"out of sample from {bt.get('split', '?')}: {bt.get('outside_band', '?')} "
-                    f"of {bt.get('n_out', '?')} days outside ±{bt.get('band_k', 3)}σ, "
-                    f"{fmt.num(bt.get('expected_model'), 1)} expected by the model "
-                    f"({fmt.num(bt.get('expected_normal'), 1)} if normal). See Model check.")
-    elif checking:
-        text.append("\nCheck ", style="bold")
-        text.append("checking the model out of sample … (see Model check)", style="dim")
-    for w in comparison.warnings:
-        text.append(f"\n! {w}", style="yellow")
-    return text
 
 
 class OverviewView(Deferred, VerticalScroll):
@@ -128,12 +52,28 @@ class OverviewView(Deferred, VerticalScroll):
              checking: bool = False) -> None:
         """``pending``: the headline hedge is still being priced; ``checking``: the
         out-of-sample check is still running."""
-        self.query_one("#ov-headline", Static).update(
-            Text("Pricing the headline protection (the hedge planner's inputs) …")
-            if pending else headline_text(comparison, estimate))
-        self.query_one("#ov-verdicts", Static).update(verdict_table(comparison))
-        self.query_one("#ov-state", Static).update(state_text(comparison, checking))
-        self.query_one("#ov-caution", Static).update(f"⚠ {comparison.caution}")
+        self.draw_content(overview_content(comparison, estimate, pending, checking))
+
+    def draw_content(self, content: dict) -> None:
+        """Draw :func:`optbench.tui.firstview.overview_content`'s plain data."""
+        self.query_one("#ov-headline", Static).update(spans_text(content["headline"]))
+        self.query_one("#ov-verdicts", Static).update(verdict_table(content["rows"]))
+        self.query_one("#ov-state", Static).update(spans_text(content["state"]))
+        self.query_one("#ov-caution", Static).update(content["caution"])
+
+    _content: dict | None = None
+
+    def show_content(self, content: dict) -> None:
+        """Draw plain content now, or when mounted (the first run's first view, before
+        its result objects have come)."""
+        self._pending, self._content = None, content
+        if self._ready:
+            self.draw_content(content)
+
+    def on_mount(self) -> None:
+        super().on_mount()
+        if self._pending is None and self._content is not None:
+            self.draw_content(self._content)
 
     def show(self, *args) -> None:
         """Draw now (the first screen: its numbers are painted with the next frame)."""
