@@ -246,7 +246,8 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
             progress: Callable[[str], None] | None = None, drift: str = "risk-free",
             excess_return: float | None = None,
             floor: float = DEFAULT_FLOOR,
-            max_strike_ratio: float | None = None, dividends=None) -> Comparison:
+            max_strike_ratio: float | None = None, dividends=None,
+            lean: bool = False) -> Comparison:
     """Compare the chain's implied vols with the fitted model's forecast.
 
     Parameters
@@ -281,6 +282,12 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         :class:`~optbench.data.dividends.DividendSchedule`) in place of the
         scenario's ``meta.toml`` ones; forwards, implied vols and American prices then
         use them (escrowed-dividend model, :mod:`optbench.pricing.cash_dividends`).
+    lean : True leaves out what no screen column reads (the screen's rows,
+        :mod:`optbench.screening.rows`): the volatility cone (``cone`` is None and each
+        row's ``cone_percentile`` NaN), the trailing realized vols (``realized`` is
+        empty and each row's ``realized_vol`` NaN), the history frame (``history`` is
+        None) and the smiles' plotted curves. Every other number and warning is the
+        same as without it.
 
     Returns
     -------
@@ -393,8 +400,11 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
 
     # --- realized vol and the cone
     windows = np.maximum(td_model, MIN_REALIZED_WINDOW)
-    realized = trailing_realized_vol(hist, windows)
-    cone = vol_cone(hist)
+    if lean:
+        realized, cone = np.full(len(windows), np.nan), None
+    else:
+        realized = trailing_realized_vol(hist, windows)
+        cone = vol_cone(hist)
 
     # --- per expiry: smiles, ATM, points
     say("smile fits")
@@ -487,7 +497,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
                               "params": {name: float(getattr(sfit, name))
                                          for name in ("a", "b", "rho", "m", "sigma", "t")},
                               # the fitted curve across the quoted strikes, for views
-                              "curve": _smile_curve(sfit, K[sel], F_e)}
+                              "curve": None if lean else _smile_curve(sfit, K[sel], F_e)}
             except InputError as err:
                 smile_info = {"method": "failed", "reason": err.problem}
         sel_otm = sel & otm
@@ -530,7 +540,8 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
             iv_25d_put=float(iv25p), iv_25d_call=float(iv25c), iv_90=iv90, iv_95=iv95,
             rr_25d=float(rr), model_free_iv=float(model_free[j]), forecast_vol=f_e,
             forecast_low=lo_e, forecast_high=hi_e, realized_vol=float(realized[j]),
-            cone_percentile=float(cone.percentile_rank(atm, td_model[j])),
+            cone_percentile=(math.nan if cone is None
+                             else float(cone.percentile_rank(atm, td_model[j]))),
             iv_minus_forecast=float(atm - f_e), variance_premium=float(atm ** 2 - f_e ** 2),
             iv_forecast_ratio=float(atm / f_e) if f_e > 0 else math.nan,
             prob_realized_above_iv=prob, verdict=verdict,
@@ -551,16 +562,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         persistence=float(fit.persistence),
         half_life_days=_num(fit.half_life_days), long_run_vol=_num(fit.long_run_vol),
         n_obs=int(fit.n_obs), fallback_reason=fit.fallback_reason)
-    sigma_d = np.asarray(fit.conditional_vol, float)
-    prev_close = np.asarray(hist.close[:-1], float)
-    mu_d = float(fit.params.get("mu", 0.0) or 0.0)
-    history_frame = pd.DataFrame({
-        "date": np.asarray(hist.dates[1:], dtype="datetime64[D]").astype("datetime64[ns]"),
-        "close": np.asarray(hist.close[1:], float), "ret": np.asarray(hist.returns, float),
-        "sigma": sigma_d, "z": np.asarray(fit.std_resid, float),
-        # the one-day ±3-sigma band of the close: previous close x exp(mu ± 3 sigma_t)
-        "band_low": prev_close * np.exp(mu_d - BAND_SIGMAS * sigma_d),
-        "band_high": prev_close * np.exp(mu_d + BAND_SIGMAS * sigma_d)})
+    history_frame = None if lean else _history_frame(hist, fit)
     return Comparison(
         asof=ch.asof, underlying=ch.underlying or Path(source).stem, source=source,
         spot=S, rate=r0, div_yield=q0, style=style,
@@ -568,9 +570,11 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         conventions=dict(CONVENTIONS), model=summary, band=(lo_level, hi_level),
         verdict_rule=VERDICT_RULE.format(low=lo_level, high=hi_level),
         quality=ch.quality.as_dict(), expiries=tuple(rows), strikes=strikes,
-        realized={"estimator": "close-to-close", "window_days": windows.tolist(),
-                  "vol": [float(x) for x in realized]},
-        cone=_cone_frame(cone), history=history_frame, backtest=bt,
+        realized={} if lean else {"estimator": "close-to-close",
+                                  "window_days": windows.tolist(),
+                                  "vol": [float(x) for x in realized]},
+        cone=None if cone is None else _cone_frame(cone), history=history_frame,
+        backtest=bt,
         n_paths=int(n_paths), seed=seed, rejected=ch.rejected,
         warnings=tuple(warnings), caution=CAUTION, fit=fit,
         sources={name: getattr(ch, f"{name}_source", "file")
@@ -678,6 +682,21 @@ def _history_upto(hist, asof: _dt.date, warnings: list):
 
 def _num(x) -> float:
     return math.nan if x is None else float(x)
+
+
+def _history_frame(hist, fit) -> pd.DataFrame:
+    """The history's closes with the fit's returns, conditional vols, standardised
+    residuals and the one-day band of the close, ``previous close x exp(mu +- 3
+    sigma_t)``, one row per return."""
+    sigma_d = np.asarray(fit.conditional_vol, float)
+    prev_close = np.asarray(hist.close[:-1], float)
+    mu_d = float(fit.params.get("mu", 0.0) or 0.0)
+    return pd.DataFrame({
+        "date": np.asarray(hist.dates[1:], dtype="datetime64[D]").astype("datetime64[ns]"),
+        "close": np.asarray(hist.close[1:], float), "ret": np.asarray(hist.returns, float),
+        "sigma": sigma_d, "z": np.asarray(fit.std_resid, float),
+        "band_low": prev_close * np.exp(mu_d - BAND_SIGMAS * sigma_d),
+        "band_high": prev_close * np.exp(mu_d + BAND_SIGMAS * sigma_d)})
 
 
 def _cone_frame(cone) -> pd.DataFrame:

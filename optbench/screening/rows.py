@@ -179,13 +179,14 @@ def _cached_fit(scenario, task: ScreenTask):
                           mean=task.mean, max_filter_days=task.max_filter_days)
 
 
-def _fit_date(comparison) -> str | None:
-    """The last history date of the comparison's fit (its last return's date)."""
-    history = getattr(comparison, "history", None)
-    if history is None or not len(history):
-        return None
-    import pandas as pd
-    return pd.Timestamp(history["date"].to_numpy()[-1]).date().isoformat()
+def _fit_date(scenario) -> str | None:
+    """The last history date of the comparison's fit: the last close on or before the
+    quote date (the comparison uses the history up to it)."""
+    import numpy as np
+
+    dates = np.asarray(scenario.history.dates, dtype="datetime64[D]")
+    upto = dates[dates <= np.datetime64(scenario.chain.asof, "D")]
+    return str(upto[-1]) if upto.size > 1 else None
 
 
 def screen_one(task: ScreenTask) -> list[dict]:
@@ -198,17 +199,20 @@ def screen_one(task: ScreenTask) -> list[dict]:
     scenario = load_scenario(task.folder, **task.overrides)
     listed = nearest_expiries(scenario.chain.quotes, task.tenors)
     fit, origin = _cached_fit(scenario, task)
-    # only the expiries the rows show are compared: the same numbers, less work
+    # only the expiries the rows show are compared, and the lean row leaves out the
+    # parts no column reads (cone, realized vols, history frame): the same numbers,
+    # less work
     comparison = compare(scenario, model=task.model, dist=task.dist, mean=task.mean,
                          n_paths=task.n_paths, seed=task.seed,
                          expiries=sorted(set(listed.values())), floor=task.floor,
-                         drift=task.drift, excess_return=task.excess_return, fit=fit)
+                         drift=task.drift, excess_return=task.excess_return, fit=fit,
+                         lean=not task.full)
     by_expiry = {e.expiry: e for e in comparison.expiries}
     model = comparison.model
     first_notes = [origin.note] if origin is not None and origin.note else []
     # the same for every tenor of the underlying
     fit_source = origin.source if origin is not None else "fitted"
-    fit_date = origin.fit_date if origin is not None else _fit_date(comparison)
+    fit_date = origin.fit_date if origin is not None else _fit_date(scenario)
     common = {
         "model": f"{model.name}/{model.dist}", "fallback_reason": model.fallback_reason,
         "rows_in": comparison.quality["rows_in"],
