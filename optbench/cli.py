@@ -140,6 +140,21 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 130
     except BrokenPipeError:
         return 0
+    except OSError as err:      # e.g. a full disk under the output or stdout
+        print(f"optbench: error: {write_problem(err)}", file=sys.stderr)
+        return EXIT_IO_ERROR
+
+
+#: the status of a command whose output (or an input file) could not be written or
+#: read for a reason outside optbench (a full disk, a file system gone)
+EXIT_IO_ERROR = 1
+
+
+def write_problem(err: OSError) -> str:
+    """One line for an operating-system error: the file (or stdout) and the reason."""
+    where = err.filename if getattr(err, "filename", None) else "the output (stdout)"
+    reason = err.strerror or str(err)
+    return f"{where}: {reason} (errno {err.errno}); the output is incomplete"
 
 
 #: sub-commands whose ``run`` has closed every file it wrote and left no thread or
@@ -170,7 +185,33 @@ def entry() -> int:
     status = main()
     if one_shot:
         _end_now(status)
+    return _flushed(status)
+
+
+def _flushed(status: int) -> int:
+    """Flush stdout now, so that a failure to write its last block (a full disk)
+    is the one-line error of :func:`write_problem` instead of the interpreter's
+    message at exit; a closed pipe is no error."""
+    try:
+        sys.stdout.flush()
+    except BrokenPipeError:
+        _silence_stdout()
+    except OSError as err:
+        _silence_stdout()
+        print(f"optbench: error: {write_problem(err)}", file=sys.stderr)
+        return status or EXIT_IO_ERROR
     return status
+
+
+def _silence_stdout() -> None:
+    """Point stdout at /dev/null so the interpreter's own flush at exit has nothing
+    left to fail on."""
+    try:
+        null = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(null, sys.stdout.fileno())
+        os.close(null)
+    except (OSError, ValueError):
+        pass
 
 
 def _end_now(status: int) -> None:

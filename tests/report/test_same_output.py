@@ -190,3 +190,20 @@ def test_a_closed_pipe_ends_quietly():
     err = proc.stderr.read().decode()
     assert proc.wait(timeout=300) == 0
     assert "Traceback" not in err and "Exception ignored" not in err
+
+
+@pytest.mark.skipif(not Path("/dev/full").exists(), reason="needs /dev/full (Linux)")
+@pytest.mark.parametrize("fmt", ["json", "table"])
+def test_a_full_disk_under_stdout_is_one_line(fmt):
+    """``optbench compare ... > /dev/full``: every write fails with ENOSPC; the user
+    gets one line naming stdout and the reason, status 1, no traceback."""
+    with open("/dev/full", "w") as full:
+        proc = subprocess.run([sys.executable, "-m", "optbench", "compare", str(DEMO),
+                               "--format", fmt], stdout=full, stderr=subprocess.PIPE,
+                              cwd=ROOT, timeout=300)
+    err = proc.stderr.decode()
+    assert proc.returncode == 1
+    assert "Traceback" not in err and "Exception ignored" not in err
+    assert err.strip().splitlines() == [
+        "optbench: error: the output (stdout): No space left on device (errno 28); "
+        "the output is incomplete"]
