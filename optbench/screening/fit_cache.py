@@ -76,6 +76,9 @@ def fingerprint(returns) -> str:
 def check_folder(folder) -> Path:
     """The cache folder, created if missing; InputError when it cannot be used."""
     path = Path(folder)
+    if path.exists() and not path.is_dir():
+        raise InputError("--fit-cache", f"{path} is a file, not a folder: give a folder "
+                                        "for the cache (it is created if missing)")
     try:
         path.mkdir(parents=True, exist_ok=True)
     except OSError as err:

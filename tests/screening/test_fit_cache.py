@@ -164,3 +164,14 @@ def test_command_line_options(days, tmp_path):
         bad = subprocess.run(base + args, capture_output=True, text=True)
         assert bad.returncode == 2 and needle in bad.stderr, bad.stderr
         assert len(bad.stderr.strip().splitlines()) == 1
+
+
+def test_a_file_in_place_of_the_cache_folder_is_one_line(tmp_path):
+    from optbench.errors import InputError
+    from optbench.screening.fit_cache import check_folder
+    afile = tmp_path / "cache.json"
+    afile.write_text("{}")
+    with pytest.raises(InputError, match="is a file, not a folder"):
+        check_folder(afile)
+    assert afile.read_text() == "{}"          # left as it was
+    assert check_folder(tmp_path / "new" / "cache").is_dir()
