@@ -206,10 +206,51 @@ def egarch_log_mgf(c, alpha, gamma, dist: str, z_grid: np.ndarray | None = None)
         val = np.exp(0.5 * ap * ap) * ndtr(ap) + np.exp(0.5 * am * am) * ndtr(am)
         return np.log(val) - a * SQRT_2_OVER_PI
     z = np.asarray(z_grid, dtype=float)
+    if z.ndim >= 1 and all(s == 1 for s in z.shape[:-1]):
+        return _log_mean_exp_grid(np.asarray(a), np.asarray(b), z)
     shock = (np.asarray(a)[..., None] * (np.abs(z) - SQRT_2_OVER_PI)
              + np.asarray(b)[..., None] * z)
     m = shock.max(axis=-1, keepdims=True)
     return (m + np.log(np.mean(np.exp(shock - m), axis=-1, keepdims=True)))[..., 0]
+
+
+#: elements (rows x grid points) of one block of :func:`_log_mean_exp_grid`: its two
+#: scratch arrays stay in the processor's cache
+_GRID_BLOCK_ELEMENTS = 1 << 14
+
+
+def _log_mean_exp_grid(a: np.ndarray, b: np.ndarray, z: np.ndarray) -> np.ndarray:
+    """``ln mean_j exp(a (|z_j| - sqrt(2/pi)) + b z_j)`` for one quantile grid ``z``
+    (shape (1, .., 1, N)) and every element of ``a`` and ``b`` (broadcast): the
+    figures of the broadcast form in :func:`egarch_log_mgf` to the last bit (the
+    same products, sum, maximum, exponential and row sums; only a block of rows at
+    a time, in reused scratch arrays, instead of one (rows x N) array per step).
+    """
+    shape = np.broadcast_shapes(a.shape, b.shape, z.shape[:-1])
+    zz = z.reshape(-1)
+    n = zz.size
+    av = np.broadcast_to(a, shape).reshape(-1)
+    bv = np.broadcast_to(b, shape).reshape(-1)
+    rows = av.size
+    absk = np.abs(zz) - SQRT_2_OVER_PI
+    step = max(1, min(rows, _GRID_BLOCK_ELEMENTS // max(n, 1)))
+    shock = np.empty((step, n))
+    tmp = np.empty((step, n))
+    out = np.empty(rows)
+    for r0 in range(0, rows, step):
+        r1 = min(rows, r0 + step)
+        s, t = shock[:r1 - r0], tmp[:r1 - r0]
+        np.multiply(av[r0:r1, None], absk, out=s)
+        np.multiply(bv[r0:r1, None], zz, out=t)
+        s += t
+        m = s.max(axis=1)
+        s -= m[:, None]
+        np.exp(s, out=s)
+        mean = np.add.reduce(s, axis=1)
+        mean /= n
+        np.log(mean, out=mean)
+        np.add(m, mean, out=out[r0:r1])
+    return out.reshape(shape)
 
 
 def egarch_average_variance(last_variance, omega, alpha, gamma, beta, trading_days,
