@@ -369,7 +369,6 @@ def refilter_variance(model: str, returns, params: dict, s2) -> np.ndarray:
     e, e2, base = np.empty(shape), np.empty(shape), np.empty(shape)
     if gamma is not None:
         lev, neg = np.empty(shape), np.empty(shape, dtype=bool)
-        any_neg = np.empty(shape[0], dtype=bool)
     for t0 in range(0, y.shape[0], shape[0]):
         n = min(shape[0], y.shape[0] - t0)
         E, E2, B = e[:n], e2[:n], base[:n]
@@ -378,17 +377,14 @@ def refilter_variance(model: str, returns, params: dict, s2) -> np.ndarray:
         np.multiply(alpha, E2, out=B)
         B += omega                              # omega + alpha e^2
         if gamma is not None:
-            L, N, A = lev[:n], neg[:n], any_neg[:n]
+            L, N = lev[:n], neg[:n]
             np.less(E, 0.0, out=N)
             L.fill(0.0)
             np.copyto(L, E2, where=N)
             L *= gamma                          # gamma 1[e < 0] e^2
-            # a day on which no draw's residual is negative adds +-0 to every
-            # sigma^2 (a no-op on the positive variances): skipped
-            np.any(N, axis=1, out=A)
         for k in range(n):
             np.multiply(beta, s2, out=s2)
             s2 += B[k]
-            if gamma is not None and A[k]:
+            if gamma is not None:
                 s2 += L[k]
     return s2
