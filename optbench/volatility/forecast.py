@@ -334,7 +334,7 @@ def annualise(avg_daily_variance) -> np.ndarray:
 
 #: days of one block of :func:`refilter_variance` (its scratch arrays, days x draws,
 #: stay in the processor's cache)
-_REFILTER_DAYS = 8
+_REFILTER_DAYS = 16
 
 
 def refilter_variance(model: str, returns, params: dict, s2) -> np.ndarray:
@@ -350,7 +350,9 @@ def refilter_variance(model: str, returns, params: dict, s2) -> np.ndarray:
     Jagannathan and Runkle 1993), added in the order of
     :meth:`optbench.volatility.specs.VolSpec.next_variance`, so the floats are that
     function's; the terms without ``sigma^2_t`` are formed for a few days at a time,
-    leaving a multiply and two additions a day. EGARCH and EWMA step
+    leaving a multiply and two additions a day (one on a day whose residual is
+    non-negative in every draw: the leverage term is +-0 there, and adding it to a
+    positive variance changes no bit). EGARCH and EWMA step
     ``next_variance`` day by day.
     """
     from optbench.volatility.specs import get_spec
@@ -368,23 +370,35 @@ def refilter_variance(model: str, returns, params: dict, s2) -> np.ndarray:
     shape = (min(_REFILTER_DAYS, max(y.shape[0], 1)), s2.shape[0])
     e, e2, base = np.empty(shape), np.empty(shape), np.empty(shape)
     if gamma is not None:
-        lev, neg = np.empty(shape), np.empty(shape, dtype=bool)
+        # which days have a negative residual in every draw, in some, in none: the
+        # leverage term gamma 1[e < 0] e^2 is gamma e^2 on the first, masked on the
+        # second and +-0 on the last (adding it there is a no-op on the positive
+        # variances, so it is skipped)
+        mu_arr = np.asarray(mu, dtype=float)
+        all_neg = y < mu_arr.min(initial=np.inf)
+        some_neg = y < mu_arr.max(initial=-np.inf)
+        mixed = some_neg & ~all_neg
+        lev = np.empty(shape)
+    mul, add = np.multiply, np.add     # (positional outputs: the quickest calls)
     for t0 in range(0, y.shape[0], shape[0]):
         n = min(shape[0], y.shape[0] - t0)
         E, E2, B = e[:n], e2[:n], base[:n]
         np.subtract(y[t0:t0 + n, None], mu, out=E)
-        np.multiply(E, E, out=E2)
-        np.multiply(alpha, E2, out=B)
+        mul(E, E, E2)
+        mul(alpha, E2, B)
         B += omega                              # omega + alpha e^2
-        if gamma is not None:
-            L, N = lev[:n], neg[:n]
-            np.less(E, 0.0, out=N)
-            L.fill(0.0)
-            np.copyto(L, E2, where=N)
-            L *= gamma                          # gamma 1[e < 0] e^2
+        if gamma is None:
+            for k in range(n):
+                mul(beta, s2, s2)
+                add(s2, B[k], s2)
+            continue
+        L = lev[:n]
+        mul(E2, gamma, L)                       # gamma e^2 where e < 0
         for k in range(n):
-            np.multiply(beta, s2, out=s2)
-            s2 += B[k]
-            if gamma is not None:
-                s2 += L[k]
+            mul(beta, s2, s2)
+            add(s2, B[k], s2)
+            if some_neg[t0 + k]:
+                if mixed[t0 + k]:
+                    np.copyto(L[k], 0.0, where=E[k] >= 0.0)
+                add(s2, L[k], s2)
     return s2
