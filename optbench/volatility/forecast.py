@@ -90,10 +90,16 @@ def _geometric_sums(persistence, T):
             a = xs.copy()             # (T l)^m / m!
             b = ls.copy()             # l^m / m!
             acc = np.zeros_like(xs)
+            term = np.empty_like(xs)
+            mul, div = np.multiply, np.divide   # (in place: the same floats)
             for m in range(2, 42):
-                a = a * xs / m
-                b = b * ls / m
-                acc = acc + (a - Ts * b)
+                mul(a, xs, a)
+                div(a, m, a)
+                mul(b, ls, b)
+                div(b, m, b)
+                mul(Ts, b, term)
+                np.subtract(a, term, term)
+                acc += term
             D = np.array(np.broadcast_to(direct, shape))
             D[i] = acc / (ds * ds)
         D = np.where(d == 0.0, 0.5 * T * (T - 1.0), D)
