@@ -641,33 +641,62 @@ def stdtrit_one_df(df: float, p):
     scipy.special.stdtrit to about 1e-15 relative (tests/pricing/test_special.py).
     """
     nu = float(df)
-    p_in = np.asarray(p, dtype=float)
-    shape = p_in.shape
-    pp = p_in.ravel()
+    prep = p if isinstance(p, QuantileProbabilities) else QuantileProbabilities(p)
     if not nu > 0.0:
-        return np.full(shape, np.nan)[()] if p_in.ndim == 0 else np.full(shape, np.nan)
-    upper = pp > 0.5
-    q = np.where(upper, 1.0 - pp, pp)
-    out = np.full_like(q, np.nan)
-    out[q == 0.5] = 0.0
-    out[q == 0.0] = -np.inf
-    work = np.flatnonzero((q > 0.0) & (q < 0.5))
-    if work.size:
-        out[work] = _lower_quantiles_one(nu, q[work])
-    out = np.where(upper, -out, out).reshape(shape)
-    return out[()] if out.ndim == 0 else out
+        out = np.full(prep.shape, np.nan)
+        return out[()] if prep.ndim == 0 else out
+    out = prep.base.copy()
+    if prep.work.size:
+        out[prep.work] = _lower_quantiles_one(nu, prep.q_work, prep.log_q, prep.z)
+    out = np.where(prep.upper, -out, out).reshape(prep.shape)
+    return out[()] if prep.ndim == 0 else out
+
+
+class QuantileProbabilities:
+    """Probabilities made ready once for :func:`stdtrit_one_df` at many degrees of
+    freedom (the simulation's quantile table uses the same probabilities for every
+    ``nu``): the lower-tail probabilities ``q = min(p, 1 - p)``, their logarithms and
+    normal quantiles, exactly as :func:`stdtrit_one_df` forms them from ``p``. Reads
+    as the array ``p`` wherever an array is expected."""
+
+    def __init__(self, p):
+        p_in = np.array(p, dtype=float)
+        p_in.flags.writeable = False
+        self.p = p_in
+        self.shape, self.ndim = p_in.shape, p_in.ndim
+        pp = p_in.ravel()
+        self.upper = pp > 0.5
+        q = np.where(self.upper, 1.0 - pp, pp)
+        base = np.full_like(q, np.nan)
+        base[q == 0.5] = 0.0
+        base[q == 0.0] = -np.inf
+        self.base = base
+        self.work = np.flatnonzero((q > 0.0) & (q < 0.5))
+        self.q_work = q[self.work]
+        self.log_q = np.log(self.q_work) if self.work.size else None
+        self.z = ndtri(self.q_work) if self.work.size else None
+        for a in (self.upper, self.base, self.work, self.q_work, self.log_q, self.z):
+            if a is not None:
+                a.flags.writeable = False
+
+    def __array__(self, dtype=None, copy=None):
+        return self.p if dtype is None else self.p.astype(dtype)
 
 
 _HALLEY_DONE = 1e-6
 
 
-def _lower_quantiles_one(nu: float, q: np.ndarray) -> np.ndarray:
-    """t quantiles for 0 < q < 1/2 and one nu (see :func:`stdtrit_one_df`)."""
+def _lower_quantiles_one(nu: float, q: np.ndarray, log_q: np.ndarray | None = None,
+                         z: np.ndarray | None = None) -> np.ndarray:
+    """t quantiles for 0 < q < 1/2 and one nu (see :func:`stdtrit_one_df`); ``log_q``
+    and ``z`` are ``ln q`` and ``ndtri(q)`` when already formed."""
     a = 0.5 * nu
     log_beta = math.lgamma(a) + math.lgamma(0.5) - math.lgamma(a + 0.5)
     log_c = -log_beta - 0.5 * math.log(nu)        # density constant 1/(sqrt(nu) B)
-    log_q = np.log(q)
-    z = ndtri(q)
+    if log_q is None:
+        log_q = np.log(q)
+    if z is None:
+        z = ndtri(q)
     hi = np.minimum(z, -1e-300)
     s0 = np.exp((log_c + 0.5 * (nu - 1.0) * math.log(nu) - log_q) / nu)
     lo = np.minimum(-s0, hi)

@@ -12,7 +12,8 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from optbench.pricing.special import digamma, gammaln, ndtr, stdtrit_one_df
+from optbench.pricing.special import (QuantileProbabilities, digamma, gammaln, ndtr,
+                                     stdtrit_one_df)
 
 LOG_2PI = math.log(2.0 * math.pi)
 NU_MIN = 2.05   # smallest degrees of freedom allowed (variance must exist)
@@ -111,11 +112,19 @@ _GRID_HALF_WIDTH = 8.0
 _GRID_STEPS = 8192
 
 
+@functools.lru_cache(maxsize=1)
+def _table_probabilities() -> QuantileProbabilities:
+    """Phi(x) at the table's nodes x in [-8, 0], with what the t quantiles need of them
+    (the same for every ``nu``: made once per process)."""
+    x = np.linspace(-_GRID_HALF_WIDTH, 0.0, _GRID_STEPS // 2 + 1)
+    return QuantileProbabilities(ndtr(x))
+
+
 @functools.lru_cache(maxsize=32)
 def _normal_to_t_table(nu: float):
     """Nodes of the map x -> F_t^{-1}(Phi(x)) * sqrt((nu-2)/nu) on [-8, 8]."""
-    x = np.linspace(-_GRID_HALF_WIDTH, 0.0, _GRID_STEPS // 2 + 1)
-    left = stdtrit_one_df(nu, ndtr(x)) * math.sqrt((nu - 2.0) / nu)   # lower half, by symmetry
+    left = (stdtrit_one_df(nu, _table_probabilities())
+            * math.sqrt((nu - 2.0) / nu))                # lower half, by symmetry
     vals = np.concatenate([left, -left[-2::-1]])
     vals[_GRID_STEPS // 2] = 0.0
     slope = np.diff(vals)

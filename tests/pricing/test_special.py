@@ -164,6 +164,24 @@ def test_student_t_quantile_of_one_df_matches_scipy():
     assert np.isnan(special.stdtrit_one_df(0.0, [0.2, 0.7])).all()
 
 
+def test_student_t_quantile_of_prepared_probabilities():
+    """Probabilities made ready once (QuantileProbabilities: the simulation's table
+    grid, edges, both tails) give stdtrit_one_df's floats for the plain array, bit for
+    bit, at every df; and they agree with scipy.special.stdtrit read as an array."""
+    p = np.concatenate([special.ndtr(np.linspace(-8.0, 0.0, 4097)), [0.0, 1.0, -0.1, np.nan],
+                        1.0 - np.geomspace(1e-12, 0.5, 50)])
+    prep = special.QuantileProbabilities(p)
+    for nu in (0.0, 2.05, 3.0, 5.7, 30.0, 500.0):
+        assert special.stdtrit_one_df(nu, prep).tobytes() == \
+            special.stdtrit_one_df(nu, p).tobytes(), nu
+    one = special.QuantileProbabilities(0.975)
+    assert special.stdtrit_one_df(5.0, one) == special.stdtrit_one_df(5.0, 0.975)
+    assert np.ndim(special.stdtrit_one_df(5.0, one)) == 0
+    grid = special.QuantileProbabilities(p[:4097])
+    assert np.allclose(sc.stdtrit(5.7, grid)[:-1], special.stdtrit_one_df(5.7, grid)[:-1],
+                       rtol=2e-13, atol=0), "scipy.special.stdtrit"
+
+
 _SWAP = """
 import sys, scipy.special as sc
 import optbench.pricing.bsm, optbench.pricing.greeks, optbench.pricing.lets_be_rational
