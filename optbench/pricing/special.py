@@ -416,7 +416,10 @@ def digamma(x):
 def _betacf(a, b, x):
     """Continued fraction of the regularised incomplete beta function (DLMF 8.17.22,
     evaluated by the modified Lentz method), vectorised; converges for
-    x < (a + 1) / (a + b + 2). Elements leave the loop as they converge."""
+    x < (a + 1) / (a + b + 2). Elements leave the loop as they converge (so each
+    element's value is its own, whatever else is in the array)."""
+    if x.size and a.min() == a.max() and b.min() == b.max():
+        return _betacf_same_ab(float(a.flat[0]), float(b.flat[0]), x)
     tiny = 1e-300
     out = np.empty_like(x)
     idx = np.arange(x.size)
@@ -443,6 +446,63 @@ def _betacf(a, b, x):
                 return out
             idx, a, b, x, c, d, h = idx[keep], a[keep], b[keep], x[keep], c[keep], d[keep], h[keep]
             qab, qap, qam = a + b, a + 1.0, a - 1.0
+    out[idx] = h
+    return out
+
+
+def _betacf_same_ab(a: float, b: float, x: np.ndarray) -> np.ndarray:
+    """:func:`_betacf` where every element has the same ``(a, b)``: the same floats
+    (each coefficient's ``(a, b, m)`` factors, formed by numpy in the same order, are
+    formed once as Python floats, which round alike; the arrays are stepped in place
+    and elements leave as they converge, as there)."""
+    tiny = 1e-300
+    out = np.empty_like(x)
+    idx = np.arange(x.size)
+    qab, qap, qam = a + b, a + 1.0, a - 1.0
+    c = np.ones_like(x)
+    d = np.multiply(qab, x)
+    d /= qap
+    np.subtract(1.0, d, out=d)                  # 1 - qab x / qap
+    mask = np.empty(x.shape, dtype=bool)
+    tmp = np.empty_like(x)
+
+    def guard(v):                               # where(|v| < tiny, tiny, v)
+        t = np.abs(v, out=tmp[:v.size])
+        if np.fmin.reduce(t) < tiny:            # (rare: checked at once first)
+            np.less(t, tiny, out=mask[:v.size])
+            np.copyto(v, tiny, where=mask[:v.size])
+
+    guard(d)
+    np.divide(1.0, d, out=d)
+    h = d.copy()
+    aa1, aa2, step = np.empty_like(x), np.empty_like(x), np.empty_like(x)
+    for m in range(1, 1000):
+        m2 = 2.0 * m
+        n = x.size
+        a1, a2, st = aa1[:n], aa2[:n], step[:n]
+        np.multiply(m * (b - m), x, out=a1)
+        a1 /= (qam + m2) * (a + m2)             # m (b - m) x / ((a - 1 + 2m)(a + 2m))
+        np.multiply(-(a + m) * (qab + m), x, out=a2)
+        a2 /= (a + m2) * (qap + m2)             # -(a + m)(a + b + m) x / (...)
+        for aa in (a1, a2):
+            d *= aa
+            d += 1.0
+            guard(d)
+            np.divide(1.0, d, out=d)
+            np.divide(aa, c, out=c)
+            c += 1.0
+            guard(c)
+            np.multiply(d, c, out=st)
+            h *= st
+        np.subtract(st, 1.0, out=tmp[:n])
+        np.abs(tmp[:n], out=tmp[:n])
+        done = tmp[:n] < 2e-16
+        if done.any():
+            out[idx[done]] = h[done]
+            keep = ~done
+            if not keep.any():
+                return out
+            idx, x, c, d, h = idx[keep], x[keep], c[keep], d[keep], h[keep]
     out[idx] = h
     return out
 

@@ -246,3 +246,21 @@ def test_demo_numbers_unchanged_with_scipy_special(args):
     """The demo's comparison and hedge with scipy.special's compiled functions swapped
     back in agree with optbench's own (every number in the JSON, see the tolerance)."""
     _assert_close(_run(args, swap=False), _run(args, swap=True))
+
+
+def test_incomplete_beta_fraction_with_one_a_b_is_the_general_one():
+    """The continued fraction of the incomplete beta function (DLMF 8.17.22, modified
+    Lentz) where every element has the same (a, b) gives the floats of the general
+    elementwise form, bit for bit (each element leaves as it converges, so an
+    element's value does not depend on the others: one odd element added forces the
+    general form); checked against scipy.special.betainc through I_x(a, b)."""
+    g = np.random.default_rng(4)
+    for a, b in ((1.025, 0.5), (3.0, 0.5), (0.5, 2.85), (15.0, 0.5), (250.0, 0.5)):
+        x = g.uniform(0.0, 1.0, 400) * (a + 1.0) / (a + b + 2.0)
+        fast = special._betacf(np.full(x.size, a), np.full(x.size, b), x)
+        general = special._betacf(np.r_[np.full(x.size, a), a + 1.0],
+                                  np.r_[np.full(x.size, b), b], np.r_[x, 0.1])[:-1]
+        assert fast.tobytes() == general.tobytes(), (a, b)
+        front = np.exp(a * np.log(x) + b * np.log1p(-x) - special.gammaln(a)
+                       - special.gammaln(b) + special.gammaln(a + b))
+        assert np.allclose(front * fast / a, sc.betainc(a, b, x), rtol=1e-12, atol=1e-300)
