@@ -74,8 +74,12 @@ def main() -> None:
     ap.add_argument("--n", type=int, default=60)
     ap.add_argument("--start", type=int, default=0)
     ap.add_argument("--reps", type=int, default=3)
+    ap.add_argument("--whole-row", action="store_true",
+                    help="time whole screen rows (screen_one) instead")
     a = ap.parse_args()
     sys.path.insert(0, a.ref)
+    if a.whole_row:
+        return whole_rows(a)
     old_garch = importlib.import_module("optbench_old.volatility.garch")
     old_drift = importlib.import_module("optbench_old.analysis.drift")
     old_dist = importlib.import_module("optbench_old.volatility.distributions")
@@ -122,6 +126,57 @@ def main() -> None:
         print(f"{key:6} {np.mean(om) * 1e3:8.2f} {np.mean(nm) * 1e3:8.2f} {ratio:7.3f} "
               f"{saved:13.2f} {identical[key]}")
     print(f"saved per row (mean of per-row median differences): {tot:.2f} ms")
+
+
+def whole_rows(a) -> None:
+    """Whole lean screen rows, this checkout's and the reference's, alternated per
+    underlying: CPU time and whether the rows are equal (NaN equal to NaN)."""
+    old_rows = importlib.import_module("optbench_old.screening.rows")
+    old_dist = importlib.import_module("optbench_old.volatility.distributions")
+    from optbench.screening import rows as new_rows
+    from optbench.volatility import distributions as new_dist
+
+    names = sorted(x for x in os.listdir(a.universe) if x.startswith("SYN"))
+    folders = [os.path.join(a.universe, x) for x in names[a.start:a.start + a.n]]
+    mods = (old_rows, new_rows)
+    caches = (old_dist._normal_to_t_table, new_dist._normal_to_t_table)
+    for m in mods:                          # warm both (imports, first-use costs)
+        m.screen_one(m.ScreenTask(folder=folders[0]))
+    t = np.empty((len(folders), a.reps, 2))
+    equal = True
+    for i, f in enumerate(folders):
+        for rep in range(a.reps):
+            out = [None, None]
+            for which in ((0, 1) if (i + rep) % 2 == 0 else (1, 0)):
+                for c in caches:
+                    c.cache_clear()
+                m = mods[which]
+                t0 = time.process_time()
+                out[which] = m.screen_one(m.ScreenTask(folder=f))
+                t[i, rep, which] = time.process_time() - t0
+            equal &= _rows_equal(out[0], out[1])
+    med = np.median(t, axis=1)
+    ratio = statistics.median((med[:, 1] / med[:, 0]).tolist())
+    print(f"{len(folders)} underlyings x {a.reps} repetitions, whole lean rows")
+    print(f"old {np.mean(med[:, 0]) * 1e3:.2f} ms  new {np.mean(med[:, 1]) * 1e3:.2f} ms  "
+          f"median ratio {ratio:.4f}  saved {np.median(med[:, 0] - med[:, 1]) * 1e3:.2f} "
+          f"ms/row (median of per-row differences)  rows equal: {equal}")
+
+
+def _rows_equal(x, y) -> bool:
+    if len(x) != len(y):
+        return False
+    for r, s in zip(x, y):
+        if r.keys() != s.keys():
+            return False
+        for k in r:
+            u, v = r[k], s[k]
+            if isinstance(u, float) and isinstance(v, float):
+                if not (u == v or (u != u and v != v)):
+                    return False
+            elif u != v:
+                return False
+    return True
 
 
 if __name__ == "__main__":
