@@ -67,7 +67,7 @@ def test_geometric_sums_against_the_definitions(p, T):
 
 @pytest.mark.parametrize("model", ["garch", "gjr", "egarch"])
 @pytest.mark.parametrize("with_mu", [True, False])
-@pytest.mark.parametrize("days", [1, 7, 8, 9, 500])
+@pytest.mark.parametrize("days", [1, 7, 8, 9, 15, 16, 17, 500])
 def test_refilter_is_next_variance_day_by_day(model, with_mu, days):
     """The band's re-filter of recent returns with every parameter draw against the
     recursion stepped one day at a time by VolSpec.next_variance (Bollerslev 1986
