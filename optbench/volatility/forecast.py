@@ -87,18 +87,18 @@ def _geometric_sums(persistence, T):
             ls = np.broadcast_to(lg, shape)[i]
             Ts = np.broadcast_to(T, shape)[i]
             ds = np.broadcast_to(d, shape)[i]
-            a = xs.copy()             # (T l)^m / m!
-            b = ls.copy()             # l^m / m!
+            # rows: (T l)^m / m! and l^m / m!, stepped together (the same floats)
+            step = np.stack([xs, ls])
+            ab = step.copy()
+            a, b = ab
             acc = np.zeros_like(xs)
             term = np.empty_like(xs)
-            mul, div = np.multiply, np.divide   # (in place: the same floats)
+            mul, div, sub = np.multiply, np.divide, np.subtract
             for m in range(2, 42):
-                mul(a, xs, a)
-                div(a, m, a)
-                mul(b, ls, b)
-                div(b, m, b)
+                mul(ab, step, ab)
+                div(ab, m, ab)
                 mul(Ts, b, term)
-                np.subtract(a, term, term)
+                sub(a, term, term)
                 acc += term
             D = np.array(np.broadcast_to(direct, shape))
             D[i] = acc / (ds * ds)
