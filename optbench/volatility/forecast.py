@@ -365,6 +365,8 @@ def refilter_variance(model: str, returns, params: dict, s2) -> np.ndarray:
 
     y = np.asarray(returns, dtype=float)
     mu = params.get("mu", 0.0)
+    if model == "egarch":
+        return _refilter_egarch(y, mu, params, s2)
     if model not in ("garch", "gjr"):
         spec = get_spec(model)
         for t in range(y.shape[0]):
@@ -407,4 +409,37 @@ def refilter_variance(model: str, returns, params: dict, s2) -> np.ndarray:
                 if mixed[t0 + k]:
                     np.copyto(L[k], 0.0, where=E[k] >= 0.0)
                 add(s2, L[k], s2)
+    return s2
+
+
+def _refilter_egarch(y: np.ndarray, mu, params: dict, s2) -> np.ndarray:
+    """:func:`refilter_variance` for EGARCH: ``ln sigma^2_{t+1} = omega + alpha (|z_t| -
+    sqrt(2/pi)) + gamma z_t + beta ln sigma^2_t``, ``z_t = e_t / sigma_t``, capped at
+    ``exp(30)`` (Nelson 1991), with the operations of
+    :meth:`optbench.volatility.specs.VolSpec.next_variance` in its order (the same
+    floats), in place in reused arrays; the residuals a block of days at a time."""
+    omega, alpha, gamma, beta = (params[k] for k in ("omega", "alpha", "gamma", "beta"))
+    s2 = np.array(s2, dtype=float)
+    shape = (min(_REFILTER_DAYS, max(y.shape[0], 1)), s2.shape[0])
+    e = np.empty(shape)
+    z, w = np.empty(s2.shape), np.empty(s2.shape)
+    mul, add = np.multiply, np.add
+    for t0 in range(0, y.shape[0], shape[0]):
+        n = min(shape[0], y.shape[0] - t0)
+        E = e[:n]
+        np.subtract(y[t0:t0 + n, None], mu, out=E)
+        for k in range(n):
+            np.sqrt(s2, out=z)
+            np.divide(E[k], z, out=z)            # z = e / sigma
+            np.abs(z, out=w)
+            np.subtract(w, SQRT_2_OVER_PI, out=w)
+            mul(alpha, w, w)
+            add(omega, w, w)                     # omega + alpha (|z| - sqrt(2/pi))
+            mul(gamma, z, z)
+            add(w, z, w)                         # ... + gamma z
+            np.log(s2, out=z)
+            mul(beta, z, z)
+            add(w, z, w)                         # ... + beta ln sigma^2
+            np.minimum(w, 30.0, out=w)
+            np.exp(w, out=s2)
     return s2
