@@ -416,7 +416,10 @@ def digamma(x):
 def _betacf(a, b, x):
     """Continued fraction of the regularised incomplete beta function (DLMF 8.17.22,
     evaluated by the modified Lentz method), vectorised; converges for
-    x < (a + 1) / (a + b + 2). Elements leave the loop as they converge."""
+    x < (a + 1) / (a + b + 2). Elements leave the loop as they converge (so each
+    element's value is its own, whatever else is in the array)."""
+    if x.size and a.min() == a.max() and b.min() == b.max():
+        return _betacf_same_ab(float(a.flat[0]), float(b.flat[0]), x)
     tiny = 1e-300
     out = np.empty_like(x)
     idx = np.arange(x.size)
@@ -443,6 +446,63 @@ def _betacf(a, b, x):
                 return out
             idx, a, b, x, c, d, h = idx[keep], a[keep], b[keep], x[keep], c[keep], d[keep], h[keep]
             qab, qap, qam = a + b, a + 1.0, a - 1.0
+    out[idx] = h
+    return out
+
+
+def _betacf_same_ab(a: float, b: float, x: np.ndarray) -> np.ndarray:
+    """:func:`_betacf` where every element has the same ``(a, b)``: the same floats
+    (each coefficient's ``(a, b, m)`` factors, formed by numpy in the same order, are
+    formed once as Python floats, which round alike; the arrays are stepped in place
+    and elements leave as they converge, as there)."""
+    tiny = 1e-300
+    out = np.empty_like(x)
+    idx = np.arange(x.size)
+    qab, qap, qam = a + b, a + 1.0, a - 1.0
+    c = np.ones_like(x)
+    d = np.multiply(qab, x)
+    d /= qap
+    np.subtract(1.0, d, out=d)                  # 1 - qab x / qap
+    mask = np.empty(x.shape, dtype=bool)
+    tmp = np.empty_like(x)
+
+    def guard(v):                               # where(|v| < tiny, tiny, v)
+        t = np.abs(v, out=tmp[:v.size])
+        if np.fmin.reduce(t) < tiny:            # (rare: checked at once first)
+            np.less(t, tiny, out=mask[:v.size])
+            np.copyto(v, tiny, where=mask[:v.size])
+
+    guard(d)
+    np.divide(1.0, d, out=d)
+    h = d.copy()
+    aa1, aa2, step = np.empty_like(x), np.empty_like(x), np.empty_like(x)
+    for m in range(1, 1000):
+        m2 = 2.0 * m
+        n = x.size
+        a1, a2, st = aa1[:n], aa2[:n], step[:n]
+        np.multiply(m * (b - m), x, out=a1)
+        a1 /= (qam + m2) * (a + m2)             # m (b - m) x / ((a - 1 + 2m)(a + 2m))
+        np.multiply(-(a + m) * (qab + m), x, out=a2)
+        a2 /= (a + m2) * (qap + m2)             # -(a + m)(a + b + m) x / (...)
+        for aa in (a1, a2):
+            d *= aa
+            d += 1.0
+            guard(d)
+            np.divide(1.0, d, out=d)
+            np.divide(aa, c, out=c)
+            c += 1.0
+            guard(c)
+            np.multiply(d, c, out=st)
+            h *= st
+        np.subtract(st, 1.0, out=tmp[:n])
+        np.abs(tmp[:n], out=tmp[:n])
+        done = tmp[:n] < 2e-16
+        if done.any():
+            out[idx[done]] = h[done]
+            keep = ~done
+            if not keep.any():
+                return out
+            idx, x, c, d, h = idx[keep], x[keep], c[keep], d[keep], h[keep]
     out[idx] = h
     return out
 
@@ -641,33 +701,62 @@ def stdtrit_one_df(df: float, p):
     scipy.special.stdtrit to about 1e-15 relative (tests/pricing/test_special.py).
     """
     nu = float(df)
-    p_in = np.asarray(p, dtype=float)
-    shape = p_in.shape
-    pp = p_in.ravel()
+    prep = p if isinstance(p, QuantileProbabilities) else QuantileProbabilities(p)
     if not nu > 0.0:
-        return np.full(shape, np.nan)[()] if p_in.ndim == 0 else np.full(shape, np.nan)
-    upper = pp > 0.5
-    q = np.where(upper, 1.0 - pp, pp)
-    out = np.full_like(q, np.nan)
-    out[q == 0.5] = 0.0
-    out[q == 0.0] = -np.inf
-    work = np.flatnonzero((q > 0.0) & (q < 0.5))
-    if work.size:
-        out[work] = _lower_quantiles_one(nu, q[work])
-    out = np.where(upper, -out, out).reshape(shape)
-    return out[()] if out.ndim == 0 else out
+        out = np.full(prep.shape, np.nan)
+        return out[()] if prep.ndim == 0 else out
+    out = prep.base.copy()
+    if prep.work.size:
+        out[prep.work] = _lower_quantiles_one(nu, prep.q_work, prep.log_q, prep.z)
+    out = np.where(prep.upper, -out, out).reshape(prep.shape)
+    return out[()] if prep.ndim == 0 else out
+
+
+class QuantileProbabilities:
+    """Probabilities made ready once for :func:`stdtrit_one_df` at many degrees of
+    freedom (the simulation's quantile table uses the same probabilities for every
+    ``nu``): the lower-tail probabilities ``q = min(p, 1 - p)``, their logarithms and
+    normal quantiles, exactly as :func:`stdtrit_one_df` forms them from ``p``. Reads
+    as the array ``p`` wherever an array is expected."""
+
+    def __init__(self, p):
+        p_in = np.array(p, dtype=float)
+        p_in.flags.writeable = False
+        self.p = p_in
+        self.shape, self.ndim = p_in.shape, p_in.ndim
+        pp = p_in.ravel()
+        self.upper = pp > 0.5
+        q = np.where(self.upper, 1.0 - pp, pp)
+        base = np.full_like(q, np.nan)
+        base[q == 0.5] = 0.0
+        base[q == 0.0] = -np.inf
+        self.base = base
+        self.work = np.flatnonzero((q > 0.0) & (q < 0.5))
+        self.q_work = q[self.work]
+        self.log_q = np.log(self.q_work) if self.work.size else None
+        self.z = ndtri(self.q_work) if self.work.size else None
+        for a in (self.upper, self.base, self.work, self.q_work, self.log_q, self.z):
+            if a is not None:
+                a.flags.writeable = False
+
+    def __array__(self, dtype=None, copy=None):
+        return self.p if dtype is None else self.p.astype(dtype)
 
 
 _HALLEY_DONE = 1e-6
 
 
-def _lower_quantiles_one(nu: float, q: np.ndarray) -> np.ndarray:
-    """t quantiles for 0 < q < 1/2 and one nu (see :func:`stdtrit_one_df`)."""
+def _lower_quantiles_one(nu: float, q: np.ndarray, log_q: np.ndarray | None = None,
+                         z: np.ndarray | None = None) -> np.ndarray:
+    """t quantiles for 0 < q < 1/2 and one nu (see :func:`stdtrit_one_df`); ``log_q``
+    and ``z`` are ``ln q`` and ``ndtri(q)`` when already formed."""
     a = 0.5 * nu
     log_beta = math.lgamma(a) + math.lgamma(0.5) - math.lgamma(a + 0.5)
     log_c = -log_beta - 0.5 * math.log(nu)        # density constant 1/(sqrt(nu) B)
-    log_q = np.log(q)
-    z = ndtri(q)
+    if log_q is None:
+        log_q = np.log(q)
+    if z is None:
+        z = ndtri(q)
     hi = np.minimum(z, -1e-300)
     s0 = np.exp((log_c + 0.5 * (nu - 1.0) * math.log(nu) - log_q) / nu)
     lo = np.minimum(-s0, hi)

@@ -12,7 +12,8 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from optbench.pricing.special import digamma, gammaln, ndtr, stdtrit_one_df
+from optbench.pricing.special import (QuantileProbabilities, digamma, gammaln, ndtr,
+                                     stdtrit_one_df)
 
 LOG_2PI = math.log(2.0 * math.pi)
 NU_MIN = 2.05   # smallest degrees of freedom allowed (variance must exist)
@@ -111,11 +112,19 @@ _GRID_HALF_WIDTH = 8.0
 _GRID_STEPS = 8192
 
 
+@functools.lru_cache(maxsize=1)
+def _table_probabilities() -> QuantileProbabilities:
+    """Phi(x) at the table's nodes x in [-8, 0], with what the t quantiles need of them
+    (the same for every ``nu``: made once per process)."""
+    x = np.linspace(-_GRID_HALF_WIDTH, 0.0, _GRID_STEPS // 2 + 1)
+    return QuantileProbabilities(ndtr(x))
+
+
 @functools.lru_cache(maxsize=32)
 def _normal_to_t_table(nu: float):
     """Nodes of the map x -> F_t^{-1}(Phi(x)) * sqrt((nu-2)/nu) on [-8, 8]."""
-    x = np.linspace(-_GRID_HALF_WIDTH, 0.0, _GRID_STEPS // 2 + 1)
-    left = stdtrit_one_df(nu, ndtr(x)) * math.sqrt((nu - 2.0) / nu)   # lower half, by symmetry
+    left = (stdtrit_one_df(nu, _table_probabilities())
+            * math.sqrt((nu - 2.0) / nu))                # lower half, by symmetry
     vals = np.concatenate([left, -left[-2::-1]])
     vals[_GRID_STEPS // 2] = 0.0
     slope = np.diff(vals)
@@ -140,7 +149,9 @@ def std_t_draws_fast(rng: np.random.Generator, nu: float, size) -> np.ndarray:
     About twice as fast as the normal / chi-square mixture of :func:`std_t_draws`.
     The normals are transformed in place, a chunk at a time, in float32:
     ``p = clip((x + 8) * 512, 0, 8192 - 1e-3)``, ``i = trunc(p)``,
-    ``z = slope[i] (p - i) + value[i]``.
+    ``z = slope[i] (p - i) + value[i]``. ``p - trunc(p)`` is exact in float32 (the
+    figures of ``modf``), and the table look-ups never leave the table (``i`` is
+    0..8191 after the clip), so they take the quick ``wrap`` path of ``np.take``.
     """
     vals, slope = _normal_to_t_table(float(nu))
     x = rng.standard_normal(size, dtype=np.float32)
@@ -149,21 +160,24 @@ def std_t_draws_fast(rng: np.random.Generator, nu: float, size) -> np.ndarray:
     pos = np.empty(m, np.float32)
     cell = np.empty(m, np.float32)
     idx = np.empty(m, np.intp)
+    idx32 = np.empty(m, np.int32)
     term = np.empty(m, np.float32)
     lo, hi = np.float32(0.0), np.float32(_GRID_STEPS - 1e-3)
     shift, scale = np.float32(_GRID_HALF_WIDTH), np.float32(_GRID_STEPS / (2 * _GRID_HALF_WIDTH))
     for s in range(0, flat.size, m):
         out = flat[s:s + m]
         k = out.size
-        p, c, i, t = pos[:k], cell[:k], idx[:k], term[:k]
+        p, c, i, i32, t = pos[:k], cell[:k], idx[:k], idx32[:k], term[:k]
         np.add(out, shift, out=p)
         p *= scale
         np.clip(p, lo, hi, out=p)
-        np.modf(p, out=(p, c))          # p - trunc(p), exact, and trunc(p)
-        np.copyto(i, c, casting="unsafe")
-        np.take(slope, i, out=out)
+        np.trunc(p, out=c)              # trunc(p), 0..8191
+        p -= c                          # p - trunc(p), exact
+        np.copyto(i32, c, casting="unsafe")   # (float32 -> int32 -> intp: quicker
+        np.copyto(i, i32)                      # than float32 -> intp at once)
+        np.take(slope, i, out=out, mode="wrap")
         out *= p
-        np.take(vals, i, out=t)
+        np.take(vals, i, out=t, mode="wrap")
         out += t
     return x
 

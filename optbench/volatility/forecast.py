@@ -87,13 +87,19 @@ def _geometric_sums(persistence, T):
             ls = np.broadcast_to(lg, shape)[i]
             Ts = np.broadcast_to(T, shape)[i]
             ds = np.broadcast_to(d, shape)[i]
-            a = xs.copy()             # (T l)^m / m!
-            b = ls.copy()             # l^m / m!
+            # rows: (T l)^m / m! and l^m / m!, stepped together (the same floats)
+            step = np.stack([xs, ls])
+            ab = step.copy()
+            a, b = ab
             acc = np.zeros_like(xs)
+            term = np.empty_like(xs)
+            mul, div, sub = np.multiply, np.divide, np.subtract
             for m in range(2, 42):
-                a = a * xs / m
-                b = b * ls / m
-                acc = acc + (a - Ts * b)
+                mul(ab, step, ab)
+                div(ab, m, ab)
+                mul(Ts, b, term)
+                sub(a, term, term)
+                acc += term
             D = np.array(np.broadcast_to(direct, shape))
             D[i] = acc / (ds * ds)
         D = np.where(d == 0.0, 0.5 * T * (T - 1.0), D)
@@ -206,10 +212,51 @@ def egarch_log_mgf(c, alpha, gamma, dist: str, z_grid: np.ndarray | None = None)
         val = np.exp(0.5 * ap * ap) * ndtr(ap) + np.exp(0.5 * am * am) * ndtr(am)
         return np.log(val) - a * SQRT_2_OVER_PI
     z = np.asarray(z_grid, dtype=float)
+    if z.ndim >= 1 and all(s == 1 for s in z.shape[:-1]):
+        return _log_mean_exp_grid(np.asarray(a), np.asarray(b), z)
     shock = (np.asarray(a)[..., None] * (np.abs(z) - SQRT_2_OVER_PI)
              + np.asarray(b)[..., None] * z)
     m = shock.max(axis=-1, keepdims=True)
     return (m + np.log(np.mean(np.exp(shock - m), axis=-1, keepdims=True)))[..., 0]
+
+
+#: elements (rows x grid points) of one block of :func:`_log_mean_exp_grid`: its two
+#: scratch arrays stay in the processor's cache
+_GRID_BLOCK_ELEMENTS = 1 << 14
+
+
+def _log_mean_exp_grid(a: np.ndarray, b: np.ndarray, z: np.ndarray) -> np.ndarray:
+    """``ln mean_j exp(a (|z_j| - sqrt(2/pi)) + b z_j)`` for one quantile grid ``z``
+    (shape (1, .., 1, N)) and every element of ``a`` and ``b`` (broadcast): the
+    figures of the broadcast form in :func:`egarch_log_mgf` to the last bit (the
+    same products, sum, maximum, exponential and row sums; only a block of rows at
+    a time, in reused scratch arrays, instead of one (rows x N) array per step).
+    """
+    shape = np.broadcast_shapes(a.shape, b.shape, z.shape[:-1])
+    zz = z.reshape(-1)
+    n = zz.size
+    av = np.broadcast_to(a, shape).reshape(-1)
+    bv = np.broadcast_to(b, shape).reshape(-1)
+    rows = av.size
+    absk = np.abs(zz) - SQRT_2_OVER_PI
+    step = max(1, min(rows, _GRID_BLOCK_ELEMENTS // max(n, 1)))
+    shock = np.empty((step, n))
+    tmp = np.empty((step, n))
+    out = np.empty(rows)
+    for r0 in range(0, rows, step):
+        r1 = min(rows, r0 + step)
+        s, t = shock[:r1 - r0], tmp[:r1 - r0]
+        np.multiply(av[r0:r1, None], absk, out=s)
+        np.multiply(bv[r0:r1, None], zz, out=t)
+        s += t
+        m = s.max(axis=1)
+        s -= m[:, None]
+        np.exp(s, out=s)
+        mean = np.add.reduce(s, axis=1)
+        mean /= n
+        np.log(mean, out=mean)
+        np.add(m, mean, out=out[r0:r1])
+    return out.reshape(shape)
 
 
 def egarch_average_variance(last_variance, omega, alpha, gamma, beta, trading_days,
@@ -293,7 +340,7 @@ def annualise(avg_daily_variance) -> np.ndarray:
 
 #: days of one block of :func:`refilter_variance` (its scratch arrays, days x draws,
 #: stay in the processor's cache)
-_REFILTER_DAYS = 8
+_REFILTER_DAYS = 16
 
 
 def refilter_variance(model: str, returns, params: dict, s2) -> np.ndarray:
@@ -309,13 +356,17 @@ def refilter_variance(model: str, returns, params: dict, s2) -> np.ndarray:
     Jagannathan and Runkle 1993), added in the order of
     :meth:`optbench.volatility.specs.VolSpec.next_variance`, so the floats are that
     function's; the terms without ``sigma^2_t`` are formed for a few days at a time,
-    leaving a multiply and two additions a day. EGARCH and EWMA step
+    leaving a multiply and two additions a day (one on a day whose residual is
+    non-negative in every draw: the leverage term is +-0 there, and adding it to a
+    positive variance changes no bit). EGARCH and EWMA step
     ``next_variance`` day by day.
     """
     from optbench.volatility.specs import get_spec
 
     y = np.asarray(returns, dtype=float)
     mu = params.get("mu", 0.0)
+    if model == "egarch":
+        return _refilter_egarch(y, mu, params, s2)
     if model not in ("garch", "gjr"):
         spec = get_spec(model)
         for t in range(y.shape[0]):
@@ -327,23 +378,68 @@ def refilter_variance(model: str, returns, params: dict, s2) -> np.ndarray:
     shape = (min(_REFILTER_DAYS, max(y.shape[0], 1)), s2.shape[0])
     e, e2, base = np.empty(shape), np.empty(shape), np.empty(shape)
     if gamma is not None:
-        lev, neg = np.empty(shape), np.empty(shape, dtype=bool)
+        # which days have a negative residual in every draw, in some, in none: the
+        # leverage term gamma 1[e < 0] e^2 is gamma e^2 on the first, masked on the
+        # second and +-0 on the last (adding it there is a no-op on the positive
+        # variances, so it is skipped)
+        mu_arr = np.asarray(mu, dtype=float)
+        all_neg = y < mu_arr.min(initial=np.inf)
+        some_neg = y < mu_arr.max(initial=-np.inf)
+        mixed = some_neg & ~all_neg
+        lev = np.empty(shape)
+    mul, add = np.multiply, np.add     # (positional outputs: the quickest calls)
     for t0 in range(0, y.shape[0], shape[0]):
         n = min(shape[0], y.shape[0] - t0)
         E, E2, B = e[:n], e2[:n], base[:n]
         np.subtract(y[t0:t0 + n, None], mu, out=E)
-        np.multiply(E, E, out=E2)
-        np.multiply(alpha, E2, out=B)
+        mul(E, E, E2)
+        mul(alpha, E2, B)
         B += omega                              # omega + alpha e^2
-        if gamma is not None:
-            L, N = lev[:n], neg[:n]
-            np.less(E, 0.0, out=N)
-            L.fill(0.0)
-            np.copyto(L, E2, where=N)
-            L *= gamma                          # gamma 1[e < 0] e^2
+        if gamma is None:
+            for k in range(n):
+                mul(beta, s2, s2)
+                add(s2, B[k], s2)
+            continue
+        L = lev[:n]
+        mul(E2, gamma, L)                       # gamma e^2 where e < 0
         for k in range(n):
-            np.multiply(beta, s2, out=s2)
-            s2 += B[k]
-            if gamma is not None:
-                s2 += L[k]
+            mul(beta, s2, s2)
+            add(s2, B[k], s2)
+            if some_neg[t0 + k]:
+                if mixed[t0 + k]:
+                    np.copyto(L[k], 0.0, where=E[k] >= 0.0)
+                add(s2, L[k], s2)
+    return s2
+
+
+def _refilter_egarch(y: np.ndarray, mu, params: dict, s2) -> np.ndarray:
+    """:func:`refilter_variance` for EGARCH: ``ln sigma^2_{t+1} = omega + alpha (|z_t| -
+    sqrt(2/pi)) + gamma z_t + beta ln sigma^2_t``, ``z_t = e_t / sigma_t``, capped at
+    ``exp(30)`` (Nelson 1991), with the operations of
+    :meth:`optbench.volatility.specs.VolSpec.next_variance` in its order (the same
+    floats), in place in reused arrays; the residuals a block of days at a time."""
+    omega, alpha, gamma, beta = (params[k] for k in ("omega", "alpha", "gamma", "beta"))
+    s2 = np.array(s2, dtype=float)
+    shape = (min(_REFILTER_DAYS, max(y.shape[0], 1)), s2.shape[0])
+    e = np.empty(shape)
+    z, w = np.empty(s2.shape), np.empty(s2.shape)
+    mul, add = np.multiply, np.add
+    for t0 in range(0, y.shape[0], shape[0]):
+        n = min(shape[0], y.shape[0] - t0)
+        E = e[:n]
+        np.subtract(y[t0:t0 + n, None], mu, out=E)
+        for k in range(n):
+            np.sqrt(s2, out=z)
+            np.divide(E[k], z, out=z)            # z = e / sigma
+            np.abs(z, out=w)
+            np.subtract(w, SQRT_2_OVER_PI, out=w)
+            mul(alpha, w, w)
+            add(omega, w, w)                     # omega + alpha (|z| - sqrt(2/pi))
+            mul(gamma, z, z)
+            add(w, z, w)                         # ... + gamma z
+            np.log(s2, out=z)
+            mul(beta, z, z)
+            add(w, z, w)                         # ... + beta ln sigma^2
+            np.minimum(w, 30.0, out=w)
+            np.exp(w, out=s2)
     return s2

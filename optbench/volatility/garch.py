@@ -933,12 +933,15 @@ class GarchFit:
         T = np.asarray(trading_days)
         scalar = T.ndim == 0
         T = np.maximum(np.atleast_1d(T).astype(int), 1)
-        point = np.atleast_1d(self.forecast_vol(T))
+
+        def point():   # the forecast, only where the band collapses to it
+            lo = hi = np.atleast_1d(self.forecast_vol(T))
+            return (float(lo[0]), float(hi[0])) if scalar else (lo.copy(), hi.copy())
+
         cov = self.cov
         if (self.model == "ewma" or cov is None or not np.all(np.isfinite(cov))
                 or self.returns is None):
-            lo = hi = point
-            return (float(lo[0]), float(hi[0])) if scalar else (lo.copy(), hi.copy())
+            return point()
         names = list(self.param_names)
         theta = np.array([self.params[n] for n in names])
         # draw in units where parameters are of order one (variance scaled by V_T)
@@ -983,8 +986,7 @@ class GarchFit:
             n_draws = min(n_draws, 250)   # (draws x horizon x grid) work
         idx = np.flatnonzero(ok)[:n_draws]
         if idx.size < 20:
-            lo = hi = point
-            return (float(lo[0]), float(hi[0])) if scalar else (lo.copy(), hi.copy())
+            return point()
         P = {n: v[idx] for n, v in P.items()}
         y = self.returns
         n = y.shape[0]

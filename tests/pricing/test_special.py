@@ -164,6 +164,24 @@ def test_student_t_quantile_of_one_df_matches_scipy():
     assert np.isnan(special.stdtrit_one_df(0.0, [0.2, 0.7])).all()
 
 
+def test_student_t_quantile_of_prepared_probabilities():
+    """Probabilities made ready once (QuantileProbabilities: the simulation's table
+    grid, edges, both tails) give stdtrit_one_df's floats for the plain array, bit for
+    bit, at every df; and they agree with scipy.special.stdtrit read as an array."""
+    p = np.concatenate([special.ndtr(np.linspace(-8.0, 0.0, 4097)), [0.0, 1.0, -0.1, np.nan],
+                        1.0 - np.geomspace(1e-12, 0.5, 50)])
+    prep = special.QuantileProbabilities(p)
+    for nu in (0.0, 2.05, 3.0, 5.7, 30.0, 500.0):
+        assert special.stdtrit_one_df(nu, prep).tobytes() == \
+            special.stdtrit_one_df(nu, p).tobytes(), nu
+    one = special.QuantileProbabilities(0.975)
+    assert special.stdtrit_one_df(5.0, one) == special.stdtrit_one_df(5.0, 0.975)
+    assert np.ndim(special.stdtrit_one_df(5.0, one)) == 0
+    grid = special.QuantileProbabilities(p[:4097])
+    assert np.allclose(sc.stdtrit(5.7, grid)[:-1], special.stdtrit_one_df(5.7, grid)[:-1],
+                       rtol=2e-13, atol=0), "scipy.special.stdtrit"
+
+
 _SWAP = """
 import sys, scipy.special as sc
 import optbench.pricing.bsm, optbench.pricing.greeks, optbench.pricing.lets_be_rational
@@ -228,3 +246,21 @@ def test_demo_numbers_unchanged_with_scipy_special(args):
     """The demo's comparison and hedge with scipy.special's compiled functions swapped
     back in agree with optbench's own (every number in the JSON, see the tolerance)."""
     _assert_close(_run(args, swap=False), _run(args, swap=True))
+
+
+def test_incomplete_beta_fraction_with_one_a_b_is_the_general_one():
+    """The continued fraction of the incomplete beta function (DLMF 8.17.22, modified
+    Lentz) where every element has the same (a, b) gives the floats of the general
+    elementwise form, bit for bit (each element leaves as it converges, so an
+    element's value does not depend on the others: one odd element added forces the
+    general form); checked against scipy.special.betainc through I_x(a, b)."""
+    g = np.random.default_rng(4)
+    for a, b in ((1.025, 0.5), (3.0, 0.5), (0.5, 2.85), (15.0, 0.5), (250.0, 0.5)):
+        x = g.uniform(0.0, 1.0, 400) * (a + 1.0) / (a + b + 2.0)
+        fast = special._betacf(np.full(x.size, a), np.full(x.size, b), x)
+        general = special._betacf(np.r_[np.full(x.size, a), a + 1.0],
+                                  np.r_[np.full(x.size, b), b], np.r_[x, 0.1])[:-1]
+        assert fast.tobytes() == general.tobytes(), (a, b)
+        front = np.exp(a * np.log(x) + b * np.log1p(-x) - special.gammaln(a)
+                       - special.gammaln(b) + special.gammaln(a + b))
+        assert np.allclose(front * fast / a, sc.betainc(a, b, x), rtol=1e-12, atol=1e-300)

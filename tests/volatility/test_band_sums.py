@@ -67,7 +67,7 @@ def test_geometric_sums_against_the_definitions(p, T):
 
 @pytest.mark.parametrize("model", ["garch", "gjr", "egarch"])
 @pytest.mark.parametrize("with_mu", [True, False])
-@pytest.mark.parametrize("days", [1, 7, 8, 9, 500])
+@pytest.mark.parametrize("days", [1, 7, 8, 9, 15, 16, 17, 500])
 def test_refilter_is_next_variance_day_by_day(model, with_mu, days):
     """The band's re-filter of recent returns with every parameter draw against the
     recursion stepped one day at a time by VolSpec.next_variance (Bollerslev 1986
@@ -94,3 +94,29 @@ def test_refilter_is_next_variance_day_by_day(model, with_mu, days):
         s2 = spec.next_variance(y[t] - mu, s2, P)
     got = refilter_variance(model, y, P, s0)
     assert np.array_equal(got, s2) and np.all(s0 == 1.1e-4)    # input left alone
+
+
+@pytest.mark.parametrize("model", ["garch", "gjr"])
+def test_refilter_on_returns_among_the_drawn_means(model):
+    """Returns between the smallest and largest drawn mean (the residual negative in
+    some draws only), equal to one drawn mean (a zero residual), and all above or all
+    below every mean: the band's re-filter against VolSpec.next_variance stepped day
+    by day (Glosten-Jagannathan-Runkle 1993 GJR, Bollerslev 1986 GARCH), the same
+    floats."""
+    from optbench.volatility.forecast import refilter_variance
+    from optbench.volatility.specs import get_spec
+
+    g = np.random.default_rng(11)
+    n = 200
+    P = dict(omega=g.uniform(1e-6, 3e-6, n), alpha=g.uniform(0.0, 0.08, n),
+             beta=g.uniform(0.85, 0.9, n), mu=g.normal(3e-4, 1e-4, n))
+    if model == "gjr":
+        P["gamma"] = g.uniform(-0.02, 0.15, n)
+    y = np.concatenate([g.uniform(P["mu"].min(), P["mu"].max(), 40), P["mu"][:5],
+                        g.standard_t(5, 40) * 0.01, [P["mu"].max(), P["mu"].min()]])
+    g.shuffle(y)
+    s0 = np.full(n, 1.1e-4)
+    spec, s2 = get_spec(model), s0
+    for t in range(y.size):
+        s2 = spec.next_variance(y[t] - P["mu"], s2, P)
+    assert np.array_equal(refilter_variance(model, y, P, s0), s2)

@@ -134,6 +134,39 @@ def test_fast_t_draws_are_the_whole_array_transform(nu, size):
     assert np.array_equal(got, ref)
 
 
+class _GivenNormals:
+    """A stand-in generator whose normals are given (the transform's edge cases)."""
+
+    def __init__(self, x):
+        self.x = np.asarray(x, dtype=np.float32)
+
+    def standard_normal(self, size, dtype=np.float64):
+        return self.x.reshape(size).astype(dtype, copy=True)
+
+
+def test_fast_t_draws_at_the_table_edges_are_the_modf_transform():
+    """Normals at, beyond and just inside +-8, at zero and at node boundaries: the
+    chunked transform (trunc, subtract, look-ups by np.take's wrap path) gives the
+    floats of the plain formula with numpy.modf's fractional and integral parts."""
+    from optbench.volatility.distributions import (_GRID_HALF_WIDTH, _GRID_STEPS,
+                                                   _normal_to_t_table)
+    f32 = np.float32
+    edge = np.array([-np.inf, -1e30, -9.0, -8.0, np.nextafter(f32(-8), f32(0)), -7.998046875,
+                     -1e-30, -0.0, 0.0, 1e-30, 0.001953125, 7.998046875,
+                     np.nextafter(f32(8), f32(0)), 8.0, 9.0, 1e30, np.inf], dtype=f32)
+    x = np.concatenate([edge, np.random.default_rng(3).standard_normal(40_000, dtype=f32)])
+    for nu in (2.3, 6.3):
+        vals, slope = _normal_to_t_table(nu)
+        p = (x + f32(_GRID_HALF_WIDTH)) * f32(_GRID_STEPS / (2 * _GRID_HALF_WIDTH))
+        p = np.clip(p, f32(0.0), f32(_GRID_STEPS - 1e-3))
+        frac, cell = np.modf(p)
+        i = cell.astype(np.intp)
+        ref = slope[i] * frac + vals[i]
+        got = std_t_draws_fast(_GivenNormals(x), nu, x.shape)
+        assert got.dtype == np.float32 and np.array_equal(got.view(np.int32),
+                                                          ref.view(np.int32)), nu
+
+
 def test_quantile_table_is_the_general_solvers_table_to_the_float32_bit():
     """The table from stdtrit_one_df (one df, Halley steps) against the same table from
     optbench's general stdtrit (bracketed Newton), the route the table took before:
