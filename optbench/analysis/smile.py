@@ -450,39 +450,69 @@ def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m0: np.ndarray,
         mt = np.clip(mm[:, None] + step[..., 3], m_min, m_max).ravel()
         lt = np.clip(ll[:, None] + step[..., 4], ls_min, ls_max).ravel()
         ct, ot, st, Pt, Qt = _inner_exact(k, w, wt, mt, np.exp(lt))
-        ot = np.where(np.isfinite(ot), ot, np.inf).reshape(p, L)
-        j = np.argmin(ot, axis=1)
-        pick = j + np.arange(p) * L
-        o_new = ot.ravel()[pick]
-        better = o_new < obj[ia]
-        obj_prev = obj.copy()
-        ib, pb = ia[better], pick[better]
+        ib, pb = _take_best_trials(ot, ia, L, mt, lt, m, ls, obj, lam, lams, live, rel)
         if ib.size:
-            gain = (obj[ib] - o_new[better]) / np.maximum(obj[ib], 1e-300)
-            done = (gain <= 1e-10) | (
-                (np.abs(mt[pb] - m[ib]) <= 1e-13 * (1.0 + np.abs(m[ib])))
-                & (np.abs(lt[pb] - ls[ib]) <= 1e-13 * (1.0 + np.abs(ls[ib]))))
-            # converging geometrically, 100 times faster than the last step: what
-            # is left to gain is below about 1e-9 of the objective
-            done |= (gain <= 1e-7) & (gain <= 0.01 * rel[ib])
-            m[ib], ls[ib] = mt[pb], lt[pb]
-            coef[ib], sets[ib], obj[ib] = ct[pb], st[pb], o_new[better]
+            coef[ib], sets[ib] = ct[pb], st[pb]
             P[ib], Q[ib] = Pt[pb], Qt[pb]
-            lam[ib] = np.maximum(lams.ravel()[pb] / 3.0, 1e-12)
-            live[ib] = ~done & (obj[ib] > 1e-30)
-        live[ia[~better]] = False
         # a start still behind one that has finished and gaining little per step
         # is heading for the same or a worse point: stop it
-        rel[ib] = (obj_prev[ib] - obj[ib]) / np.maximum(obj_prev[ib], 1e-300)
         fin = ~live
         if fin.any():
             live &= ~((obj > obj[fin].min() * (1 + 1e-9)) & (rel < _CRAWL))
     return m, ls, coef, obj
 
 
+def _take_best_trials(ot, ia, L, mt, lt, m, ls, obj, lam, lams, live, rel):
+    """One polish round's outcome for the live starts ``ia`` (shared by
+    :func:`_polish` and :func:`_polish_many`): each start's best trial point (``ot``
+    the trial objectives, ``L`` per start, at ``mt, lt``) replaces the start where
+    it is lower; ``m, ls, obj, lam, live, rel`` are updated in place (the stop rule
+    of :func:`_polish`). Returns the improved starts and the trials they took."""
+    p = ia.size
+    ot = np.where(np.isfinite(ot), ot, np.inf).reshape(p, L)
+    pick = np.argmin(ot, axis=1)
+    pick += np.arange(0, p * L, L)
+    o_new = ot.ravel()[pick]
+    o_old = obj[ia]
+    better = o_new < o_old
+    ib, pb = ia[better], pick[better]
+    if ib.size:
+        o_prev, o_new = o_old[better], o_new[better]
+        gain = (o_prev - o_new) / np.maximum(o_prev, 1e-300)
+        m_prev, ls_prev = m[ib], ls[ib]
+        m_new, ls_new = mt[pb], lt[pb]
+        done = (gain <= 1e-10) | (
+            (np.abs(m_new - m_prev) <= 1e-13 * (1.0 + np.abs(m_prev)))
+            & (np.abs(ls_new - ls_prev) <= 1e-13 * (1.0 + np.abs(ls_prev))))
+        # converging geometrically, 100 times faster than the last step: what
+        # is left to gain is below about 1e-9 of the objective
+        done |= (gain <= 1e-7) & (gain <= 0.01 * rel[ib])
+        m[ib], ls[ib], obj[ib] = m_new, ls_new, o_new
+        lam[ib] = np.maximum(lams.ravel()[pb] / 3.0, 1e-12)
+        live[ib] = ~done & (o_new > 1e-30)
+        rel[ib] = (o_prev - o_new) / np.maximum(o_prev, 1e-300)
+    live[ia[~better]] = False
+    return ib, pb
+
+
 # ---------------------------------------------------------------------------
 # several smiles at once: the polish of every expiry in one batched loop
 # ---------------------------------------------------------------------------
+
+class _Layout:
+    """One set of points' flat layout (:meth:`_Smiles.layout`): row offsets ``offs``
+    (size points + 1), each point's row length ``n_pt``, each element's quote
+    ``kidx`` in the concatenated quotes and its ``k``, ``w`` and ``sw`` (square root
+    of the weight), the runs ``segs`` of :meth:`_Smiles.segments`; ``n`` the row
+    length when every point has the same (else 0) and ``blocks`` = (runs, points
+    per run) when, besides, every run has the same number of points (else None),
+    with each run's ``W2b`` and ``wtb`` (the runs' ``[wt, wt w]`` and ``wt``
+    stacked, twice: for ``P`` then ``Q``); ``G0``, ``h0`` the normal equations'
+    entries that do not depend on (m, sigma) and ``ww`` each point's ``sum wt w^2``."""
+
+    __slots__ = ("offs", "n_pt", "kidx", "segs", "k", "w", "sw", "n", "blocks",
+                 "W2b", "wtb", "G0", "h0", "ww")
+
 
 class _Smiles:
     """The quotes of several smile fits side by side: ``k``, ``w``, weights and their
@@ -509,22 +539,43 @@ class _Smiles:
         self.g00, self.h0, self.wwsum = np.array(g00), np.array(h0), np.array(ww)
         self._layouts: dict = {}
 
-    def layout(self, fit_of: np.ndarray):
-        """Flat layout of one basis row per point (points grouped by fit, in order):
-        row offsets (size points + 1), the row length of each point, the index of
-        each element's quote in the concatenated quotes, the runs of
-        :meth:`segments`, and each element's ``k``, ``w`` and ``sqrt(weight)``. Kept
-        per set of points (the polish meets the same sets round after round)."""
+    def layout(self, fit_of: np.ndarray) -> _Layout:
+        """The :class:`_Layout` of one basis row per point (points grouped by fit, in
+        order). Kept per set of points (the polish meets the same sets round after
+        round)."""
         key = fit_of.tobytes()
         hit = self._layouts.get(key)
         if hit is None:
-            n_pt = self.n[fit_of]
-            offs = np.zeros(fit_of.size + 1, dtype=np.intp)
-            np.cumsum(n_pt, out=offs[1:])
-            kidx = np.arange(offs[-1]) + np.repeat(self.base[fit_of] - offs[:-1], n_pt)
-            hit = self._layouts[key] = (offs, n_pt, kidx, self.segments(fit_of),
-                                        self.k[kidx], self.w[kidx], self.sw[kidx])
+            hit = self._layouts[key] = self._new_layout(fit_of)
         return hit
+
+    def _new_layout(self, fit_of: np.ndarray) -> _Layout:
+        lay = _Layout()
+        n_pt = self.n[fit_of]
+        offs = np.zeros(fit_of.size + 1, dtype=np.intp)
+        np.cumsum(n_pt, out=offs[1:])
+        kidx = np.arange(offs[-1]) + np.repeat(self.base[fit_of] - offs[:-1], n_pt)
+        lay.offs, lay.n_pt, lay.kidx = offs, n_pt, kidx
+        lay.segs = segs = self.segments(fit_of)
+        lay.k, lay.w, lay.sw = self.k[kidx], self.w[kidx], self.sw[kidx]
+        lay.n = int(n_pt[0]) if n_pt.size and bool((n_pt == n_pt[0]).all()) else 0
+        rows = {b - a for _, a, b in segs}
+        lay.blocks = lay.W2b = lay.wtb = None
+        if lay.n and len(rows) == 1:
+            # every run the same (points, quotes) matrix: one stacked product passes
+            # numpy the same matrices, one by one, as a run alone
+            W2 = np.stack([self.W2[f] for f, _, _ in segs])
+            wt = np.stack([self.wt_of[f] for f, _, _ in segs])[:, :, None]
+            lay.blocks = (len(segs), rows.pop())
+            lay.W2b, lay.wtb = np.concatenate([W2, W2]), np.concatenate([wt, wt])
+        g00 = self.g00[fit_of]
+        lay.G0 = np.zeros((fit_of.size, 9))
+        lay.G0[:, 0] = g00
+        lay.G0[:, 5] = lay.G0[:, 7] = 0.25 * g00
+        lay.h0 = np.zeros((fit_of.size, 3))
+        lay.h0[:, 0] = self.h0[fit_of]
+        lay.ww = self.wwsum[fit_of]
+        return lay
 
     @staticmethod
     def segments(fit_of: np.ndarray) -> list[tuple[int, int, int]]:
@@ -541,50 +592,59 @@ class _Smiles:
 def _inner_many(sm: _Smiles, fit_of: np.ndarray, m: np.ndarray, s: np.ndarray):
     """:func:`_inner_exact` for points of several fits at once (``fit_of`` the fit of
     each point, grouped): the elementwise work and the seven active sets' solves in
-    one batch, each fit's weighted sums by the same matrix products as one fit alone.
-    Returns coefficients, objectives, active sets, and the basis ``P, Q`` flat with its
+    one batch, each fit's weighted sums by the same matrix products as one fit alone
+    (one stacked product for every fit when their runs have one shape). Returns
+    coefficients, objectives, active sets, and the basis ``P, Q`` flat with its
     layout (:meth:`_Smiles.layout`)."""
-    offs, n_pt, _, segs, k_e, w_e, _ = lay = sm.layout(fit_of)
-    y = np.subtract(k_e, m.repeat(n_pt))
+    lay = sm.layout(fit_of)
+    offs, n_pt, segs, n = lay.offs, lay.n_pt, lay.segs, lay.n
+    p = m.size
+    PQ = np.empty((2, offs[-1]))
+    P, Q = PQ
+    y = np.subtract(lay.k, m.repeat(n_pt), out=Q)
     y /= s.repeat(n_pt)
     r = np.multiply(y, y)
     r += 1.0
     np.sqrt(r, out=r)
-    P = np.add(r, y)
+    np.add(r, y, out=P)
     P *= 0.5
-    Q = np.subtract(r, P, out=y)
-    PP, QQ = P * P, Q * Q
-    p = m.size
-    gP = np.empty((p, 2))
-    gQ = np.empty((p, 2))
-    dP = np.empty(p)
-    dQ = np.empty(p)
-    for f, a, b in segs:
-        seg = slice(offs[a], offs[b])
-        shape = (b - a, int(sm.n[f]))
-        W2, wt = sm.W2[f], sm.wt_of[f]
-        gP[a:b] = P[seg].reshape(shape) @ W2
-        gQ[a:b] = Q[seg].reshape(shape) @ W2
-        dP[a:b] = PP[seg].reshape(shape) @ wt
-        dQ[a:b] = QQ[seg].reshape(shape) @ wt
-    g00 = sm.g00[fit_of]
-    g12 = 0.25 * g00
-    G = np.stack([g00, gP[:, 0], gQ[:, 0], gP[:, 0], dP, g12, gQ[:, 0], g12, dQ],
-                 axis=1).reshape(p, 3, 3)
-    h = np.stack([sm.h0[fit_of], gP[:, 1], gQ[:, 1]], axis=1)
+    np.subtract(r, P, out=Q)
+    sq = np.multiply(PQ, PQ)
+    G = lay.G0.copy()
+    h = lay.h0.copy()
+    if lay.blocks is not None:
+        runs, rows = lay.blocks
+        g = (PQ.reshape(2 * runs, rows, n) @ lay.W2b).reshape(2, p, 2)
+        G[:, 4::4] = (sq.reshape(2 * runs, rows, n) @ lay.wtb).reshape(2, p).T
+    else:
+        g = np.empty((2, p, 2))
+        PP, QQ = sq
+        for f, a, b in segs:
+            seg = slice(offs[a], offs[b])
+            shape = (b - a, int(sm.n[f]))
+            W2, wt = sm.W2[f], sm.wt_of[f]
+            g[0, a:b] = P[seg].reshape(shape) @ W2
+            g[1, a:b] = Q[seg].reshape(shape) @ W2
+            G[a:b, 4] = PP[seg].reshape(shape) @ wt
+            G[a:b, 8] = QQ[seg].reshape(shape) @ wt
+    G[:, 1:4:2] = g[0, :, 0:1]
+    G[:, 2:7:4] = g[1, :, 0:1]
+    G = G.reshape(p, 3, 3)
+    h[:, 1:] = g[:, :, 1].T
     G7 = np.where(_KEEP7[:, None], G[None], _EYE3)                  # (7, p, 3, 3)
     H7 = h[None] * _FREE[:7, None, :]
-    exact = np.zeros(len(sm.n), dtype=bool)   # fits whose sets go to the closed forms
+    exact = None                        # fits whose sets go to the closed forms
     try:
         C = np.linalg.solve(G7, H7[..., None])[..., 0]              # (7, p, 3)
     except np.linalg.LinAlgError:
         C = np.zeros((7, p, 3))
+        exact = np.zeros(len(sm.n), dtype=bool)
         for f, a, b in segs:
             try:
                 C[:, a:b] = np.linalg.solve(G7[:, a:b], H7[:, a:b, :, None])[..., 0]
             except np.linalg.LinAlgError:     # an exactly singular set: closed forms
                 exact[f] = True
-    obj = (sm.wwsum[fit_of] - 2.0 * (C * h).sum(-1)
+    obj = (lay.ww - 2.0 * (C * h).sum(-1)
            + ((C[..., None, :] @ G)[..., 0, :] * C).sum(-1))
     with np.errstate(invalid="ignore"):
         ok = (C[..., 1:].min(-1) >= 0) & (
@@ -597,12 +657,20 @@ def _inner_many(sm: _Smiles, fit_of: np.ndarray, m: np.ndarray, s: np.ndarray):
     if np.any(flat):
         best[flat] = 0.0
         sets[flat] = 7
-    bE = best.repeat(n_pt, axis=0)
-    e = bE[:, 0] + bE[:, 1] * P + bE[:, 2] * Q - w_e
+    if n:
+        e = (best[:, 0:1] + best[:, 1:2] * P.reshape(p, n) + best[:, 2:3] * Q.reshape(p, n)
+             - lay.w.reshape(p, n))
+    else:
+        bE = best.repeat(n_pt, axis=0)
+        e = bE[:, 0] + bE[:, 1] * P + bE[:, 2] * Q - lay.w
     e *= e
+    if lay.blocks is not None and exact is None:
+        out = (e.reshape(runs, rows, n) @ lay.wtb[:runs]).reshape(p)
+        return best, out, sets, P, Q, lay
+    e = e.reshape(-1)
     out = np.empty(p)
     for f, a, b in segs:
-        if exact[f]:
+        if exact is not None and exact[f]:
             coef_f, obj_f, sets_f = _inner(sm.k_of[f], sm.w_of[f], sm.wt_of[f], m[a:b], s[a:b],
                                            exact=True)
             best[a:b], out[a:b], sets[a:b] = coef_f, obj_f, sets_f
@@ -628,7 +696,10 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
     start. Returns m, ln sigma, coefficients and objectives of every start."""
     fit_of = np.asarray(fit_of, dtype=np.intp)
     m, ls = m0.astype(float).copy(), ls0.astype(float).copy()
-    coef, obj, sets, P, Q, (offs, *_) = _inner_many(sm, fit_of, m, np.exp(ls))
+    coef, obj, sets, P, Q, lay0 = _inner_many(sm, fit_of, m, np.exp(ls))
+    offs, n = lay0.offs, lay0.n
+    if n:                       # every start's basis row as a row of a (starts, n) array
+        P, Q = P.reshape(-1, n), Q.reshape(-1, n)
     rows_of: dict = {}          # flat basis rows of a set of starts
     S = m.size
     L = _DAMPING.size
@@ -638,19 +709,24 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
     rel = np.zeros(S)
     first_start = np.flatnonzero(np.r_[True, np.diff(fit_of) != 0])
     per_fit = np.diff(np.r_[first_start, S])
+    b_lo, b_hi = bounds[:, 0:3:2], bounds[:, 1:4:2]
     for _ in range(max_iter):
         ia = np.flatnonzero(live)
         if ia.size == 0:
             break
         fa = fit_of[ia]
-        offs_a, n_a, _, segs, _, w, sw = sm.layout(fa)
+        lay = sm.layout(fa)
+        offs_a, n_a, segs, w, sw = lay.offs, lay.n_pt, lay.segs, lay.w, lay.sw
         p = ia.size
         mm, ll = m[ia], ls[ia]
-        key = ia.tobytes()
-        src = rows_of.get(key)
-        if src is None:
-            src = rows_of[key] = _rows(offs, ia)
-        Pa, Qa = P[src], Q[src]
+        if n:
+            Pa, Qa = P[ia].reshape(-1), Q[ia].reshape(-1)
+        else:
+            key = ia.tobytes()
+            src = rows_of.get(key)
+            if src is None:
+                src = rows_of[key] = _rows(offs, ia)
+            Pa, Qa = P[src], Q[src]
         y, r = Pa - Qa, Pa + Qa
         c = coef[ia]
         free = _FREE[sets[ia]]
@@ -664,14 +740,21 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
         J[:, 2] = cf[:, 5] * Qa * sw
         J[:, 3] = dwdy * (-1.0 / np.exp(ll)).repeat(n_a)
         J[:, 4] = -dwdy * y
-        A = np.empty((p, 5, 5))
-        g = np.empty((p, 5, 1))
-        for f, a, b in segs:
-            seg = slice(offs_a[a], offs_a[b])
-            Jf = J[seg].reshape(b - a, int(sm.n[f]), 5)
+        if n:
+            # each start's (5, n) by (n, 5) product, as for one fit alone
+            Jf = J.reshape(p, n, 5)
             Jt = Jf.transpose(0, 2, 1)
-            A[a:b] = Jt @ Jf                                        # (p, 5, 5)
-            g[a:b] = Jt @ e[seg].reshape(b - a, int(sm.n[f]))[:, :, None]
+            A = Jt @ Jf                                             # (p, 5, 5)
+            g = Jt @ e.reshape(p, n, 1)                             # (p, 5, 1)
+        else:
+            A = np.empty((p, 5, 5))
+            g = np.empty((p, 5, 1))
+            for f, a, b in segs:
+                seg = slice(offs_a[a], offs_a[b])
+                Jf = J[seg].reshape(b - a, int(sm.n[f]), 5)
+                Jt = Jf.transpose(0, 2, 1)
+                A[a:b] = Jt @ Jf                                    # (p, 5, 5)
+                g[a:b] = Jt @ e[seg].reshape(b - a, int(sm.n[f]))[:, :, None]
         d = np.diagonal(A, axis1=1, axis2=2)
         d = np.where(d > 0, d, 1.0)
         lams = lam[ia][:, None] * _DAMPING                           # (p, L)
@@ -695,34 +778,23 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
             ia, fa, mm, ll = ia[keep], fa[keep], mm[keep], ll[keep]
             lams, step = lams[keep], step[keep]
             p = ia.size
-        bnd = bounds[ia]
-        mt = np.clip(mm[:, None] + step[..., 3], bnd[:, 0:1], bnd[:, 1:2]).ravel()
-        lt = np.clip(ll[:, None] + step[..., 4], bnd[:, 2:3], bnd[:, 3:4]).ravel()
-        ct, ot, st, Pt, Qt, (offs_t, *_) = _inner_many(sm, fa.repeat(L), mt,
-                                                         np.exp(lt))
-        ot = np.where(np.isfinite(ot), ot, np.inf).reshape(p, L)
-        j = np.argmin(ot, axis=1)
-        pick = j + np.arange(p) * L
-        o_new = ot.ravel()[pick]
-        better = o_new < obj[ia]
-        obj_prev = obj.copy()
-        ib, pb = ia[better], pick[better]
+        # the trial points clipped to each start's box, (m, ln sigma) together
+        trial = np.stack([mm, ll], axis=1)[:, None] + step[..., 3:]   # (p, L, 2)
+        np.maximum(trial, b_lo[ia][:, None], out=trial)
+        np.minimum(trial, b_hi[ia][:, None], out=trial)
+        mt, lt = trial.reshape(-1, 2).T
+        ct, ot, st, Pt, Qt, lay_t = _inner_many(sm, fa.repeat(L), mt, np.exp(lt))
+        ib, pb = _take_best_trials(ot, ia, L, mt, lt, m, ls, obj, lam, lams, live, rel)
         if ib.size:
-            gain = (obj[ib] - o_new[better]) / np.maximum(obj[ib], 1e-300)
-            done = (gain <= 1e-10) | (
-                (np.abs(mt[pb] - m[ib]) <= 1e-13 * (1.0 + np.abs(m[ib])))
-                & (np.abs(lt[pb] - ls[ib]) <= 1e-13 * (1.0 + np.abs(ls[ib]))))
-            done |= (gain <= 1e-7) & (gain <= 0.01 * rel[ib])
-            m[ib], ls[ib] = mt[pb], lt[pb]
-            coef[ib], sets[ib], obj[ib] = ct[pb], st[pb], o_new[better]
-            for i, t in zip(ib.tolist(), pb.tolist()):       # each start's basis row
-                a, b, c0 = offs[i], offs[i + 1], offs_t[t]
-                P[a:b] = Pt[c0:c0 + b - a]
-                Q[a:b] = Qt[c0:c0 + b - a]
-            lam[ib] = np.maximum(lams.ravel()[pb] / 3.0, 1e-12)
-            live[ib] = ~done & (obj[ib] > 1e-30)
-        live[ia[~better]] = False
-        rel[ib] = (obj_prev[ib] - obj[ib]) / np.maximum(obj_prev[ib], 1e-300)
+            coef[ib], sets[ib] = ct[pb], st[pb]
+            if n:
+                P[ib], Q[ib] = Pt.reshape(-1, n)[pb], Qt.reshape(-1, n)[pb]
+            else:
+                offs_t = lay_t.offs
+                for i, t in zip(ib.tolist(), pb.tolist()):   # each start's basis row
+                    a, b, c0 = offs[i], offs[i + 1], offs_t[t]
+                    P[a:b] = Pt[c0:c0 + b - a]
+                    Q[a:b] = Qt[c0:c0 + b - a]
         # per fit: a start behind one of its fit's finished starts, gaining little
         if not live.all():
             fin_obj = np.where(live, np.inf, obj)
