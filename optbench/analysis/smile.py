@@ -1016,15 +1016,13 @@ def _svi_zoom(st: dict, obj0: np.ndarray) -> None:
                 break
     m_lo, m_hi, ls_lo, ls_hi = st["m_lo"], st["m_hi"], st["ls_lo"], st["ls_hi"]
     dm, dls = st["dm"], st["dls"]
-    MZ, LZ = [], []
-    for ci, cj in cand:
-        mc, lc = M[ci, cj], LS[ci, cj]
-        mz = np.linspace(max(mc - 2 * dm, m_lo), min(mc + 2 * dm, m_hi), z_m)
-        lz = np.linspace(max(lc - 2 * dls, ls_lo), min(lc + 2 * dls, ls_hi), z_s)
-        mz, lz = np.meshgrid(mz, lz, indexing="ij")
-        MZ.append(mz.ravel())
-        LZ.append(lz.ravel())
-    st["MZ"], st["LZ"] = MZ, LZ = np.array(MZ), np.array(LZ)
+    ci, cj = np.array(cand, dtype=np.intp).reshape(-1, 2).T
+    mc, lc = M[ci, cj], LS[ci, cj]
+    # every start's zoomed axes at once, (points, starts), then its grid row by row
+    mz = np.linspace(np.maximum(mc - 2 * dm, m_lo), np.minimum(mc + 2 * dm, m_hi), z_m)
+    lz = np.linspace(np.maximum(lc - 2 * dls, ls_lo), np.minimum(lc + 2 * dls, ls_hi), z_s)
+    st["MZ"] = MZ = np.repeat(mz.T, z_s, axis=1)
+    st["LZ"] = LZ = np.tile(lz.T, (1, z_m))
     st["grid"] = (MZ.ravel(), np.exp(LZ.ravel()))
 
 
