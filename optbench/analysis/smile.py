@@ -44,6 +44,7 @@ parameters", J. SIAM 11 (1963).
 """
 from __future__ import annotations
 
+import itertools
 from dataclasses import dataclass
 
 import numpy as np
@@ -504,14 +505,15 @@ class _Layout:
     (size points + 1), each point's row length ``n_pt``, each element's quote
     ``kidx`` in the concatenated quotes and its ``k``, ``w`` and ``sw`` (square root
     of the weight), the runs ``segs`` of :meth:`_Smiles.segments`; ``n`` the row
-    length when every point has the same (else 0) and ``blocks`` = (runs, points
-    per run) when, besides, every run has the same number of points (else None),
-    with each run's ``W2b`` and ``wtb`` (the runs' ``[wt, wt w]`` and ``wt``
-    stacked, twice: for ``P`` then ``Q``); ``G0``, ``h0`` the normal equations'
-    entries that do not depend on (m, sigma) and ``ww`` each point's ``sum wt w^2``."""
+    length when every point has the same (else 0); ``blocks``, neighbouring runs
+    of one shape: (first point, end point, first element, end element, (runs,
+    points per run, quotes), the runs' ``[wt, wt w]`` stacked, their ``wt`` stacked);
+    ``rows``, neighbouring points with as many quotes each (first
+    point, end point, quotes); ``G0``, ``h0`` the normal equations' entries that do
+    not depend on (m, sigma) and ``ww`` each point's ``sum wt w^2``."""
 
     __slots__ = ("offs", "n_pt", "kidx", "segs", "k", "w", "sw", "n", "blocks",
-                 "W2b", "wtb", "G0", "h0", "ww")
+                 "rows", "G0", "h0", "ww")
 
 
 class _Smiles:
@@ -559,15 +561,19 @@ class _Smiles:
         lay.segs = segs = self.segments(fit_of)
         lay.k, lay.w, lay.sw = self.k[kidx], self.w[kidx], self.sw[kidx]
         lay.n = int(n_pt[0]) if n_pt.size and bool((n_pt == n_pt[0]).all()) else 0
-        rows = {b - a for _, a, b in segs}
-        lay.blocks = lay.W2b = lay.wtb = None
-        if lay.n and len(rows) == 1:
-            # every run the same (points, quotes) matrix: one stacked product passes
-            # numpy the same matrices, one by one, as a run alone
-            W2 = np.stack([self.W2[f] for f, _, _ in segs])
-            wt = np.stack([self.wt_of[f] for f, _, _ in segs])[:, :, None]
-            lay.blocks = (len(segs), rows.pop())
-            lay.W2b, lay.wtb = np.concatenate([W2, W2]), np.concatenate([wt, wt])
+        # neighbouring fits with the same (points, quotes) matrix: one stacked product
+        # passes numpy the same matrices, one by one, as each fit alone
+        lay.blocks = []
+        for shape, group in itertools.groupby(segs, lambda sg: (sg[2] - sg[1],
+                                                               int(self.n[sg[0]]))):
+            group = list(group)
+            W2 = np.stack([self.W2[f] for f, _, _ in group])
+            wt = np.stack([self.wt_of[f] for f, _, _ in group])[:, :, None]
+            a, b = group[0][1], group[-1][2]
+            lay.blocks.append((a, b, int(offs[a]), int(offs[b]), (len(group), *shape),
+                               W2, wt))
+        # neighbouring points with as many quotes each: (points, quotes) arrays
+        lay.rows = [(a, a + len(list(group)), n) for a, n, group in _runs(n_pt.tolist())]
         g00 = self.g00[fit_of]
         lay.G0 = np.zeros((fit_of.size, 9))
         lay.G0[:, 0] = g00
@@ -587,6 +593,15 @@ class _Smiles:
                 out.append((fits[a], a, i))
                 a = i
         return out
+
+
+def _runs(values: list):
+    """(first index, value, group) of each run of equal neighbouring values."""
+    i = 0
+    for v, group in itertools.groupby(values):
+        group = list(group)
+        yield i, v, group
+        i += len(group)
 
 
 def _inner_many(sm: _Smiles, fit_of: np.ndarray, m: np.ndarray, s: np.ndarray):
@@ -612,21 +627,11 @@ def _inner_many(sm: _Smiles, fit_of: np.ndarray, m: np.ndarray, s: np.ndarray):
     sq = np.multiply(PQ, PQ)
     G = lay.G0.copy()
     h = lay.h0.copy()
-    if lay.blocks is not None:
-        runs, rows = lay.blocks
-        g = (PQ.reshape(2 * runs, rows, n) @ lay.W2b).reshape(2, p, 2)
-        G[:, 4::4] = (sq.reshape(2 * runs, rows, n) @ lay.wtb).reshape(2, p).T
-    else:
-        g = np.empty((2, p, 2))
-        PP, QQ = sq
-        for f, a, b in segs:
-            seg = slice(offs[a], offs[b])
-            shape = (b - a, int(sm.n[f]))
-            W2, wt = sm.W2[f], sm.wt_of[f]
-            g[0, a:b] = P[seg].reshape(shape) @ W2
-            g[1, a:b] = Q[seg].reshape(shape) @ W2
-            G[a:b, 4] = PP[seg].reshape(shape) @ wt
-            G[a:b, 8] = QQ[seg].reshape(shape) @ wt
+    g = np.empty((2, p, 2))
+    for a, b, ea, eb, shape, W2, wt in lay.blocks:
+        # P and Q of the block's fits side by side: (2, fits, points, quotes)
+        g[:, a:b] = (PQ[:, ea:eb].reshape(2, *shape) @ W2).reshape(2, b - a, 2)
+        G[a:b, 4::4] = (sq[:, ea:eb].reshape(2, *shape) @ wt).reshape(2, b - a).T
     G[:, 1:4:2] = g[0, :, 0:1]
     G[:, 2:7:4] = g[1, :, 0:1]
     G = G.reshape(p, 3, 3)
@@ -664,18 +669,16 @@ def _inner_many(sm: _Smiles, fit_of: np.ndarray, m: np.ndarray, s: np.ndarray):
         bE = best.repeat(n_pt, axis=0)
         e = bE[:, 0] + bE[:, 1] * P + bE[:, 2] * Q - lay.w
     e *= e
-    if lay.blocks is not None and exact is None:
-        out = (e.reshape(runs, rows, n) @ lay.wtb[:runs]).reshape(p)
-        return best, out, sets, P, Q, lay
     e = e.reshape(-1)
     out = np.empty(p)
-    for f, a, b in segs:
-        if exact is not None and exact[f]:
-            coef_f, obj_f, sets_f = _inner(sm.k_of[f], sm.w_of[f], sm.wt_of[f], m[a:b], s[a:b],
-                                           exact=True)
-            best[a:b], out[a:b], sets[a:b] = coef_f, obj_f, sets_f
-        else:
-            out[a:b] = e[offs[a]:offs[b]].reshape(b - a, int(sm.n[f])) @ sm.wt_of[f]
+    for a, b, ea, eb, shape, _, wt in lay.blocks:
+        out[a:b] = (e[ea:eb].reshape(shape) @ wt).reshape(b - a)
+    if exact is not None:
+        for f, a, b in segs:
+            if exact[f]:
+                coef_f, obj_f, sets_f = _inner(sm.k_of[f], sm.w_of[f], sm.wt_of[f], m[a:b],
+                                               s[a:b], exact=True)
+                best[a:b], out[a:b], sets[a:b] = coef_f, obj_f, sets_f
     return best, out, sets, P, Q, lay
 
 
@@ -740,21 +743,16 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
         J[:, 2] = cf[:, 5] * Qa * sw
         J[:, 3] = dwdy * (-1.0 / np.exp(ll)).repeat(n_a)
         J[:, 4] = -dwdy * y
-        if n:
-            # each start's (5, n) by (n, 5) product, as for one fit alone
-            Jf = J.reshape(p, n, 5)
+        # each start's (5, n) by (n, 5) product, as for one fit alone, for every
+        # run of starts with as many quotes at once
+        A = np.empty((p, 5, 5))
+        g = np.empty((p, 5, 1))
+        for a, b, n_r in lay.rows:
+            seg = slice(offs_a[a], offs_a[b])
+            Jf = J[seg].reshape(b - a, n_r, 5)
             Jt = Jf.transpose(0, 2, 1)
-            A = Jt @ Jf                                             # (p, 5, 5)
-            g = Jt @ e.reshape(p, n, 1)                             # (p, 5, 1)
-        else:
-            A = np.empty((p, 5, 5))
-            g = np.empty((p, 5, 1))
-            for f, a, b in segs:
-                seg = slice(offs_a[a], offs_a[b])
-                Jf = J[seg].reshape(b - a, int(sm.n[f]), 5)
-                Jt = Jf.transpose(0, 2, 1)
-                A[a:b] = Jt @ Jf                                    # (p, 5, 5)
-                g[a:b] = Jt @ e[seg].reshape(b - a, int(sm.n[f]))[:, :, None]
+            A[a:b] = Jt @ Jf                                        # (p, 5, 5)
+            g[a:b] = Jt @ e[seg].reshape(b - a, n_r, 1)
         d = np.diagonal(A, axis1=1, axis2=2)
         d = np.where(d > 0, d, 1.0)
         lams = lam[ia][:, None] * _DAMPING                           # (p, L)
@@ -918,6 +916,9 @@ def fit_svi_many(problems, *, errors: str = "raise") -> list:
         out[i] = _svi_finish(st, *_polish(st["k"], st["w"], st["wt"], st["m0"], st["ls0"],
                                           st["bounds"]))
     elif pending:
+        # fits with equally many quotes side by side (their products are stacked);
+        # each fit's arithmetic does not depend on its neighbours
+        pending.sort(key=lambda item: item[1]["k"].size)
         sm = _Smiles([(st["k"], st["w"], st["wt"]) for _, st in pending])
         fit_of = np.concatenate([np.full(st["m0"].size, f, dtype=np.intp)
                                  for f, (_, st) in enumerate(pending)])
