@@ -406,7 +406,6 @@ def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m0: np.ndarray,
     fits are flagged degenerate by :func:`fit_svi`.
     """
     sw = np.sqrt(wt)
-    n = k.size
     m_min, m_max, ls_min, ls_max = bounds
     m, ls = m0.astype(float).copy(), ls0.astype(float).copy()
     coef, obj, sets, P, Q = _inner_exact(k, w, wt, m, np.exp(ls))
@@ -422,19 +421,7 @@ def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m0: np.ndarray,
             break
         p = ia.size
         mm, ll = m[ia], ls[ia]
-        Pa, Qa = P[ia], Q[ia]
-        y, r = Pa - Qa, Pa + Qa
-        c = coef[ia]
-        free = _FREE[sets[ia]]
-        e = sw * (c[:, 0:1] + c[:, 1:2] * Pa + c[:, 2:3] * Qa - w)
-        dwdy = (c[:, 1:2] * Pa - c[:, 2:3] * Qa) / r
-        dwdy *= sw
-        J = np.empty((p, n, 5))
-        J[:, :, 0] = free[:, 0:1] * sw
-        J[:, :, 1] = free[:, 1:2] * Pa * sw
-        J[:, :, 2] = free[:, 2:3] * Qa * sw
-        J[:, :, 3] = dwdy * (-1.0 / np.exp(ll))[:, None]
-        J[:, :, 4] = -dwdy * y
+        J, e = _residuals_jacobian(P[ia], Q[ia], coef[ia], _FREE[sets[ia]], sw, w, ll)
         Jt = J.transpose(0, 2, 1)
         A = Jt @ J                                                  # (p, 5, 5)
         g = Jt @ e[:, :, None]                                      # (p, 5, 1)
@@ -461,6 +448,25 @@ def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m0: np.ndarray,
         if fin.any():
             live &= ~((obj > obj[fin].min() * (1 + 1e-9)) & (rel < _CRAWL))
     return m, ls, coef, obj
+
+
+def _residuals_jacobian(P, Q, coef, free, sw, w, ls):
+    """Weighted residuals ``e`` (p, n) and the Jacobian ``J`` (p, n, 5) of the
+    polish (:func:`_polish`) at points with basis rows ``P, Q`` (p, n), inner
+    coefficients ``coef`` and active sets' ``free`` columns (p, 3), ln sigma ``ls``;
+    ``sw``, ``w`` the square roots of the weights and the total variances, (n,) or
+    (p, n)."""
+    y, r = P - Q, P + Q
+    e = sw * (coef[:, 0:1] + coef[:, 1:2] * P + coef[:, 2:3] * Q - w)
+    dwdy = (coef[:, 1:2] * P - coef[:, 2:3] * Q) / r
+    dwdy *= sw
+    J = np.empty((*P.shape, 5))
+    J[..., 0] = free[:, 0:1] * sw
+    J[..., 1] = free[:, 1:2] * P * sw
+    J[..., 2] = free[:, 2:3] * Q * sw
+    J[..., 3] = dwdy * (-1.0 / np.exp(ls))[:, None]
+    J[..., 4] = -dwdy * y
+    return J, e
 
 
 def _take_best_trials(ot, ia, L, mt, lt, m, ls, obj, lam, lams, live, rel):
@@ -698,7 +704,8 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
     batch. ``bounds`` has one row (m min, m max, ln sigma min, ln sigma max) per
     start. Returns m, ln sigma, coefficients and objectives of every start."""
     fit_of = np.asarray(fit_of, dtype=np.intp)
-    m, ls = m0.astype(float).copy(), ls0.astype(float).copy()
+    ml = np.stack([m0, ls0], axis=1).astype(float)     # (m, ln sigma) of each start
+    m, ls = ml[:, 0], ml[:, 1]
     coef, obj, sets, P, Q, lay0 = _inner_many(sm, fit_of, m, np.exp(ls))
     offs, n = lay0.offs, lay0.n
     if n:                       # every start's basis row as a row of a (starts, n) array
@@ -721,38 +728,44 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
         lay = sm.layout(fa)
         offs_a, n_a, segs, w, sw = lay.offs, lay.n_pt, lay.segs, lay.w, lay.sw
         p = ia.size
-        mm, ll = m[ia], ls[ia]
+        mml = ml[ia]
+        ll = mml[:, 1]
+        c = coef[ia]
+        free = _FREE[sets[ia]]
         if n:
-            Pa, Qa = P[ia].reshape(-1), Q[ia].reshape(-1)
+            # every start's quotes as a row: the steps of one fit alone
+            J, e = _residuals_jacobian(P[ia], Q[ia], c, free, lay.sw.reshape(p, n),
+                                       lay.w.reshape(p, n), ll)
+            Jt = J.transpose(0, 2, 1)
+            A = Jt @ J                                              # (p, 5, 5)
+            g = Jt @ e[:, :, None]                                  # (p, 5, 1)
         else:
             key = ia.tobytes()
             src = rows_of.get(key)
             if src is None:
                 src = rows_of[key] = _rows(offs, ia)
             Pa, Qa = P[src], Q[src]
-        y, r = Pa - Qa, Pa + Qa
-        c = coef[ia]
-        free = _FREE[sets[ia]]
-        cf = np.concatenate([c, free], axis=1).repeat(n_a, axis=0)
-        e = sw * (cf[:, 0] + cf[:, 1] * Pa + cf[:, 2] * Qa - w)
-        dwdy = (cf[:, 1] * Pa - cf[:, 2] * Qa) / r
-        dwdy *= sw
-        J = np.empty((offs_a[-1], 5))
-        J[:, 0] = cf[:, 3] * sw
-        J[:, 1] = cf[:, 4] * Pa * sw
-        J[:, 2] = cf[:, 5] * Qa * sw
-        J[:, 3] = dwdy * (-1.0 / np.exp(ll)).repeat(n_a)
-        J[:, 4] = -dwdy * y
-        # each start's (5, n) by (n, 5) product, as for one fit alone, for every
-        # run of starts with as many quotes at once
-        A = np.empty((p, 5, 5))
-        g = np.empty((p, 5, 1))
-        for a, b, n_r in lay.rows:
-            seg = slice(offs_a[a], offs_a[b])
-            Jf = J[seg].reshape(b - a, n_r, 5)
-            Jt = Jf.transpose(0, 2, 1)
-            A[a:b] = Jt @ Jf                                        # (p, 5, 5)
-            g[a:b] = Jt @ e[seg].reshape(b - a, n_r, 1)
+            y, r = Pa - Qa, Pa + Qa
+            cf = np.concatenate([c, free], axis=1).repeat(n_a, axis=0)
+            e = sw * (cf[:, 0] + cf[:, 1] * Pa + cf[:, 2] * Qa - w)
+            dwdy = (cf[:, 1] * Pa - cf[:, 2] * Qa) / r
+            dwdy *= sw
+            J = np.empty((offs_a[-1], 5))
+            J[:, 0] = cf[:, 3] * sw
+            J[:, 1] = cf[:, 4] * Pa * sw
+            J[:, 2] = cf[:, 5] * Qa * sw
+            J[:, 3] = dwdy * (-1.0 / np.exp(ll)).repeat(n_a)
+            J[:, 4] = -dwdy * y
+            # each start's (5, n) by (n, 5) product, as for one fit alone, for
+            # every run of starts with as many quotes at once
+            A = np.empty((p, 5, 5))
+            g = np.empty((p, 5, 1))
+            for a, b, n_r in lay.rows:
+                seg = slice(offs_a[a], offs_a[b])
+                Jf = J[seg].reshape(b - a, n_r, 5)
+                Jt = Jf.transpose(0, 2, 1)
+                A[a:b] = Jt @ Jf                                    # (p, 5, 5)
+                g[a:b] = Jt @ e[seg].reshape(b - a, n_r, 1)
         d = np.diagonal(A, axis1=1, axis2=2)
         d = np.where(d > 0, d, 1.0)
         lams = lam[ia][:, None] * _DAMPING                           # (p, L)
@@ -773,11 +786,11 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
                     keep[a:b] = False
             if not keep.any():
                 continue
-            ia, fa, mm, ll = ia[keep], fa[keep], mm[keep], ll[keep]
+            ia, fa, mml = ia[keep], fa[keep], mml[keep]
             lams, step = lams[keep], step[keep]
             p = ia.size
         # the trial points clipped to each start's box, (m, ln sigma) together
-        trial = np.stack([mm, ll], axis=1)[:, None] + step[..., 3:]   # (p, L, 2)
+        trial = mml[:, None] + step[..., 3:]                        # (p, L, 2)
         np.maximum(trial, b_lo[ia][:, None], out=trial)
         np.minimum(trial, b_hi[ia][:, None], out=trial)
         mt, lt = trial.reshape(-1, 2).T
