@@ -45,6 +45,7 @@ parameters", J. SIAM 11 (1963).
 from __future__ import annotations
 
 import itertools
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -1121,6 +1122,24 @@ class SmilePoints:
                 "atm_convention": self.atm_convention}
 
 
+def _fixed_point_d1(fit: SviFit, k: list, d1: list) -> list:
+    """The fixed point ``k = w(k)/2 - d1*sqrt(w(k))`` of :func:`_strike_for_d1` for
+    a list of targets, iterated together (at most 60 rounds, until every ``k`` moves
+    by less than 1e-13), with ``w`` as :meth:`SviFit.total_variance` forms it."""
+    a, b, rho, m, s2 = fit.a, fit.b, fit.rho, fit.m, fit.sigma ** 2
+    sqrt = math.sqrt
+    for _ in range(60):
+        k_new = []
+        for kk, dd in zip(k, d1):
+            x = kk - m
+            wk = max(a + b * (rho * x + sqrt(x * x + s2)), 1e-300)
+            k_new.append(wk / 2 - dd * sqrt(wk))
+        if all(abs(kn - kk) < 1e-13 for kn, kk in zip(k_new, k)):
+            return k_new
+        k = k_new
+    return k
+
+
 def _strike_for_d1(fit: SviFit, d1_target: np.ndarray) -> np.ndarray:
     """Log-moneyness k with d1(k) = (-k + w(k)/2)/sqrt(w(k)) equal to each target.
 
@@ -1131,13 +1150,18 @@ def _strike_for_d1(fit: SviFit, d1_target: np.ndarray) -> np.ndarray:
     d1_target = np.asarray(d1_target, dtype=float)
     w0 = max(float(fit.total_variance(0.0)), 1e-12)
     k = w0 / 2 - d1_target * np.sqrt(w0)
-    for _ in range(60):
-        wk = np.maximum(fit.total_variance(k), 1e-300)
-        k_new = wk / 2 - d1_target * np.sqrt(wk)
-        if (np.abs(k_new - k) < 1e-13).all():
+    if d1_target.ndim == 1:
+        # a few targets: the same steps in Python floats (the same IEEE operations
+        # as numpy's, element by element), all targets in lockstep
+        k = np.array(_fixed_point_d1(fit, k.tolist(), d1_target.tolist()))
+    else:
+        for _ in range(60):
+            wk = np.maximum(fit.total_variance(k), 1e-300)
+            k_new = wk / 2 - d1_target * np.sqrt(wk)
+            if (np.abs(k_new - k) < 1e-13).all():
+                k = k_new
+                break
             k = k_new
-            break
-        k = k_new
 
     def d1_of(kk):
         wk = fit.total_variance(kk)

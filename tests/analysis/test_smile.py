@@ -380,3 +380,20 @@ def test_batched_fits_that_fall_back_to_one_solve_per_expiry_are_unchanged(monke
     monkeypatch.setattr(np.linalg, "solve", fail_large)
     assert fit_svi_many(problems) == reference
     assert calls["failed"] > 2
+
+
+def test_strikes_for_delta_in_python_floats_equal_the_numpy_iteration():
+    # reference: the fixed point of _strike_for_d1 iterated on numpy arrays (taken
+    # for targets of two or more dimensions); the Python-float iteration for a row
+    # of targets must give the same strikes bit for bit (invented smiles)
+    from optbench.analysis.smile import _strike_for_d1
+    rng = np.random.default_rng(11)
+    for _ in range(300):
+        fit = SviFit(float(rng.uniform(-0.01, 0.05)), float(rng.uniform(0.0, 1.5)),
+                     float(rng.uniform(-0.999, 0.999)), float(rng.uniform(-0.5, 0.5)),
+                     float(10 ** rng.uniform(-4, 0)), float(rng.uniform(0.01, 3.0)), 0.0,
+                     10, True, "", "svi")
+        z = float(rng.uniform(0.1, 2.5))
+        d1 = np.array([-z, z])
+        np.testing.assert_array_equal(_strike_for_d1(fit, d1),
+                                      _strike_for_d1(fit, d1[None, :])[0])
