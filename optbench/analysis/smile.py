@@ -987,7 +987,9 @@ def _svi_start(k, w, weights, t):
     (n_m, n_s), _ = _GRID
     mg = np.linspace(m_lo, m_hi, n_m)
     lsg = np.linspace(ls_lo, ls_hi, n_s)
-    M, LS = np.meshgrid(mg, lsg, indexing="ij")
+    M, LS = np.empty((n_m, n_s)), np.empty((n_m, n_s))  # the (m, ln sigma) mesh
+    M[:] = mg[:, None]
+    LS[:] = lsg
     # the constants of the inner least squares, as _inner forms them
     wtw = wt * w
     return {"k": k, "w": w, "wt": wt, "t": t, "iv_q": iv_q, "span": span,
