@@ -172,22 +172,31 @@ _BLOCK = 12_000
 def _basis(k: np.ndarray, m: np.ndarray, s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """``P = (r + y)/2`` and ``Q = (r - y)/2`` with ``y = (k - m)/s``,
     ``r = sqrt(y**2 + 1)``; shape (p, n)."""
-    y = np.subtract(k[None, :], m[:, None])
+    P, Q = _basis_pq(k, m, s)
+    return P, Q
+
+
+def _basis_pq(k: np.ndarray, m: np.ndarray, s: np.ndarray) -> np.ndarray:
+    """:func:`_basis` as one array of shape (2, p, n): ``P`` then ``Q``."""
+    PQ = np.empty((2, m.size, k.size))
+    P, Q = PQ
+    y = np.subtract(k[None, :], m[:, None], out=Q)
     y /= s[:, None]
     r = np.multiply(y, y)
     r += 1.0
     np.sqrt(r, out=r)
-    P = np.add(r, y)
+    np.add(r, y, out=P)
     P *= 0.5
-    Q = np.subtract(r, P, out=y)
-    return P, Q
+    np.subtract(r, P, out=Q)
+    return PQ
 
 
 def _moments(k: np.ndarray, W2: np.ndarray, m: np.ndarray, s: np.ndarray):
     """Weighted sums of the inner least squares for each candidate (m, s):
     ``P'wt, P'(wt w), Q'wt, Q'(wt w), (P*P)'wt, (Q*Q)'wt``, each of shape (p,), and
     ``(P, Q)`` when all candidates fit in one block (else None). Computed in blocks
-    of candidates, in place."""
+    of candidates, ``P`` and ``Q`` of a block side by side (numpy multiplies them
+    one after the other, as two products would)."""
     p, n = m.size, k.size
     rows = max(1, _BLOCK // max(n, 1))
     wt = W2[:, 0]
@@ -195,18 +204,15 @@ def _moments(k: np.ndarray, W2: np.ndarray, m: np.ndarray, s: np.ndarray):
     PQ = None
     for i in range(0, p, rows):
         sl = slice(i, min(i + rows, p))
-        P, Q = _basis(k, m[sl], s[sl])
-        gP, gQ = P @ W2, Q @ W2
-        out[0, sl], out[1, sl] = gP[:, 0], gP[:, 1]
-        out[2, sl], out[3, sl] = gQ[:, 0], gQ[:, 1]
-        sq = np.multiply(P, P)
-        out[4, sl] = sq @ wt
-        np.multiply(Q, Q, out=sq)
-        out[5, sl] = sq @ wt
-        if rows >= p:
-            PQ = (P, Q)
+        PQ_b = _basis_pq(k, m[sl], s[sl])                          # (2, rows, n)
+        out[0:4, sl] = (PQ_b @ W2).transpose(0, 2, 1).reshape(4, -1)
+        if rows >= p:           # one block: P and Q are returned, squares apart
+            PQ = (PQ_b[0], PQ_b[1])
+            sq = np.multiply(PQ_b, PQ_b)
+        else:
+            sq = np.multiply(PQ_b, PQ_b, out=PQ_b)
+        out[4:6, sl] = sq @ wt
     return (*out, PQ)
-
 
 
 def _inner(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m: np.ndarray,
