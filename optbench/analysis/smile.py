@@ -662,11 +662,14 @@ def _inner_many(sm: _Smiles, fit_of: np.ndarray, m: np.ndarray, s: np.ndarray):
                 C[:, a:b] = np.linalg.solve(G7[:, a:b], H7[:, a:b, :, None])[..., 0]
             except np.linalg.LinAlgError:     # an exactly singular set: closed forms
                 exact[f] = True
-    obj = (lay.ww - 2.0 * (C * h).sum(-1)
-           + ((C[..., None, :] @ G)[..., 0, :] * C).sum(-1))
+    # sums over the last axis of three written out: numpy adds them in this order
+    ch = C * h
+    cgc = (C[..., None, :] @ G)[..., 0, :] * C
+    obj = (lay.ww - 2.0 * (ch[..., 0] + ch[..., 1] + ch[..., 2])
+           + (cgc[..., 0] + cgc[..., 1] + cgc[..., 2]))
+    a_, u_, v_ = C[..., 0], C[..., 1], C[..., 2]
     with np.errstate(invalid="ignore"):
-        ok = (C[..., 1:].min(-1) >= 0) & (
-            C[..., 0] + np.sqrt(np.maximum(C[..., 1] * C[..., 2], 0.0)) >= 0)
+        ok = (u_ >= 0) & (v_ >= 0) & (a_ + np.sqrt(np.maximum(u_ * v_, 0.0)) >= 0)
     obj = np.where(ok & np.isfinite(obj), obj, np.inf)
     sets = np.argmin(obj, axis=0)
     cols = np.arange(p)

@@ -397,3 +397,13 @@ def test_strikes_for_delta_in_python_floats_equal_the_numpy_iteration():
         d1 = np.array([-z, z])
         np.testing.assert_array_equal(_strike_for_d1(fit, d1),
                                       _strike_for_d1(fit, d1[None, :])[0])
+
+
+def test_three_term_sums_written_out_equal_numpy_sum_over_the_last_axis():
+    # the inner solve of the batched polish writes (7, p, 3).sum(-1) as x0 + x1 + x2
+    # so as to skip numpy's reduction machinery; reference: numpy.sum itself, which
+    # must add the three terms in that order for the fits to stay unchanged
+    rng = np.random.default_rng(12)
+    for p in range(1, 120):
+        x = rng.normal(size=(7, p, 3)) * 10.0 ** rng.uniform(-8, 8, size=(7, p, 3))
+        np.testing.assert_array_equal(x.sum(-1), x[..., 0] + x[..., 1] + x[..., 2])
