@@ -675,7 +675,7 @@ def _inner_many(sm: _Smiles, fit_of: np.ndarray, m: np.ndarray, s: np.ndarray):
     cols = np.arange(p)
     best = C[sets, cols]
     flat = ~np.isfinite(obj[sets, cols])
-    if np.any(flat):
+    if flat.any():
         best[flat] = 0.0
         sets[flat] = 7
     if n:
