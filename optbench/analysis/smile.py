@@ -44,6 +44,8 @@ parameters", J. SIAM 11 (1963).
 """
 from __future__ import annotations
 
+import itertools
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -170,22 +172,31 @@ _BLOCK = 12_000
 def _basis(k: np.ndarray, m: np.ndarray, s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """``P = (r + y)/2`` and ``Q = (r - y)/2`` with ``y = (k - m)/s``,
     ``r = sqrt(y**2 + 1)``; shape (p, n)."""
-    y = np.subtract(k[None, :], m[:, None])
+    P, Q = _basis_pq(k, m, s)
+    return P, Q
+
+
+def _basis_pq(k: np.ndarray, m: np.ndarray, s: np.ndarray) -> np.ndarray:
+    """:func:`_basis` as one array of shape (2, p, n): ``P`` then ``Q``."""
+    PQ = np.empty((2, m.size, k.size))
+    P, Q = PQ
+    y = np.subtract(k[None, :], m[:, None], out=Q)
     y /= s[:, None]
     r = np.multiply(y, y)
     r += 1.0
     np.sqrt(r, out=r)
-    P = np.add(r, y)
+    np.add(r, y, out=P)
     P *= 0.5
-    Q = np.subtract(r, P, out=y)
-    return P, Q
+    np.subtract(r, P, out=Q)
+    return PQ
 
 
 def _moments(k: np.ndarray, W2: np.ndarray, m: np.ndarray, s: np.ndarray):
     """Weighted sums of the inner least squares for each candidate (m, s):
     ``P'wt, P'(wt w), Q'wt, Q'(wt w), (P*P)'wt, (Q*Q)'wt``, each of shape (p,), and
     ``(P, Q)`` when all candidates fit in one block (else None). Computed in blocks
-    of candidates, in place."""
+    of candidates, ``P`` and ``Q`` of a block side by side (numpy multiplies them
+    one after the other, as two products would)."""
     p, n = m.size, k.size
     rows = max(1, _BLOCK // max(n, 1))
     wt = W2[:, 0]
@@ -193,18 +204,15 @@ def _moments(k: np.ndarray, W2: np.ndarray, m: np.ndarray, s: np.ndarray):
     PQ = None
     for i in range(0, p, rows):
         sl = slice(i, min(i + rows, p))
-        P, Q = _basis(k, m[sl], s[sl])
-        gP, gQ = P @ W2, Q @ W2
-        out[0, sl], out[1, sl] = gP[:, 0], gP[:, 1]
-        out[2, sl], out[3, sl] = gQ[:, 0], gQ[:, 1]
-        sq = np.multiply(P, P)
-        out[4, sl] = sq @ wt
-        np.multiply(Q, Q, out=sq)
-        out[5, sl] = sq @ wt
-        if rows >= p:
-            PQ = (P, Q)
+        PQ_b = _basis_pq(k, m[sl], s[sl])                          # (2, rows, n)
+        out[0:4, sl] = (PQ_b @ W2).transpose(0, 2, 1).reshape(4, -1)
+        if rows >= p:           # one block: P and Q are returned, squares apart
+            PQ = (PQ_b[0], PQ_b[1])
+            sq = np.multiply(PQ_b, PQ_b)
+        else:
+            sq = np.multiply(PQ_b, PQ_b, out=PQ_b)
+        out[4:6, sl] = sq @ wt
     return (*out, PQ)
-
 
 
 def _inner(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m: np.ndarray,
@@ -405,7 +413,6 @@ def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m0: np.ndarray,
     fits are flagged degenerate by :func:`fit_svi`.
     """
     sw = np.sqrt(wt)
-    n = k.size
     m_min, m_max, ls_min, ls_max = bounds
     m, ls = m0.astype(float).copy(), ls0.astype(float).copy()
     coef, obj, sets, P, Q = _inner_exact(k, w, wt, m, np.exp(ls))
@@ -421,19 +428,7 @@ def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m0: np.ndarray,
             break
         p = ia.size
         mm, ll = m[ia], ls[ia]
-        Pa, Qa = P[ia], Q[ia]
-        y, r = Pa - Qa, Pa + Qa
-        c = coef[ia]
-        free = _FREE[sets[ia]]
-        e = sw * (c[:, 0:1] + c[:, 1:2] * Pa + c[:, 2:3] * Qa - w)
-        dwdy = (c[:, 1:2] * Pa - c[:, 2:3] * Qa) / r
-        dwdy *= sw
-        J = np.empty((p, n, 5))
-        J[:, :, 0] = free[:, 0:1] * sw
-        J[:, :, 1] = free[:, 1:2] * Pa * sw
-        J[:, :, 2] = free[:, 2:3] * Qa * sw
-        J[:, :, 3] = dwdy * (-1.0 / np.exp(ll))[:, None]
-        J[:, :, 4] = -dwdy * y
+        J, e = _residuals_jacobian(P[ia], Q[ia], coef[ia], _FREE[sets[ia]], sw, w, ll)
         Jt = J.transpose(0, 2, 1)
         A = Jt @ J                                                  # (p, 5, 5)
         g = Jt @ e[:, :, None]                                      # (p, 5, 1)
@@ -450,39 +445,89 @@ def _polish(k: np.ndarray, w: np.ndarray, wt: np.ndarray, m0: np.ndarray,
         mt = np.clip(mm[:, None] + step[..., 3], m_min, m_max).ravel()
         lt = np.clip(ll[:, None] + step[..., 4], ls_min, ls_max).ravel()
         ct, ot, st, Pt, Qt = _inner_exact(k, w, wt, mt, np.exp(lt))
-        ot = np.where(np.isfinite(ot), ot, np.inf).reshape(p, L)
-        j = np.argmin(ot, axis=1)
-        pick = j + np.arange(p) * L
-        o_new = ot.ravel()[pick]
-        better = o_new < obj[ia]
-        obj_prev = obj.copy()
-        ib, pb = ia[better], pick[better]
+        ib, pb = _take_best_trials(ot, ia, L, mt, lt, m, ls, obj, lam, lams, live, rel)
         if ib.size:
-            gain = (obj[ib] - o_new[better]) / np.maximum(obj[ib], 1e-300)
-            done = (gain <= 1e-10) | (
-                (np.abs(mt[pb] - m[ib]) <= 1e-13 * (1.0 + np.abs(m[ib])))
-                & (np.abs(lt[pb] - ls[ib]) <= 1e-13 * (1.0 + np.abs(ls[ib]))))
-            # converging geometrically, 100 times faster than the last step: what
-            # is left to gain is below about 1e-9 of the objective
-            done |= (gain <= 1e-7) & (gain <= 0.01 * rel[ib])
-            m[ib], ls[ib] = mt[pb], lt[pb]
-            coef[ib], sets[ib], obj[ib] = ct[pb], st[pb], o_new[better]
+            coef[ib], sets[ib] = ct[pb], st[pb]
             P[ib], Q[ib] = Pt[pb], Qt[pb]
-            lam[ib] = np.maximum(lams.ravel()[pb] / 3.0, 1e-12)
-            live[ib] = ~done & (obj[ib] > 1e-30)
-        live[ia[~better]] = False
         # a start still behind one that has finished and gaining little per step
         # is heading for the same or a worse point: stop it
-        rel[ib] = (obj_prev[ib] - obj[ib]) / np.maximum(obj_prev[ib], 1e-300)
         fin = ~live
         if fin.any():
             live &= ~((obj > obj[fin].min() * (1 + 1e-9)) & (rel < _CRAWL))
     return m, ls, coef, obj
 
 
+def _residuals_jacobian(P, Q, coef, free, sw, w, ls):
+    """Weighted residuals ``e`` (p, n) and the Jacobian ``J`` (p, n, 5) of the
+    polish (:func:`_polish`) at points with basis rows ``P, Q`` (p, n), inner
+    coefficients ``coef`` and active sets' ``free`` columns (p, 3), ln sigma ``ls``;
+    ``sw``, ``w`` the square roots of the weights and the total variances, (n,) or
+    (p, n)."""
+    y, r = P - Q, P + Q
+    e = sw * (coef[:, 0:1] + coef[:, 1:2] * P + coef[:, 2:3] * Q - w)
+    dwdy = (coef[:, 1:2] * P - coef[:, 2:3] * Q) / r
+    dwdy *= sw
+    J = np.empty((*P.shape, 5))
+    J[..., 0] = free[:, 0:1] * sw
+    J[..., 1] = free[:, 1:2] * P * sw
+    J[..., 2] = free[:, 2:3] * Q * sw
+    J[..., 3] = dwdy * (-1.0 / np.exp(ls))[:, None]
+    J[..., 4] = -dwdy * y
+    return J, e
+
+
+def _take_best_trials(ot, ia, L, mt, lt, m, ls, obj, lam, lams, live, rel):
+    """One polish round's outcome for the live starts ``ia`` (shared by
+    :func:`_polish` and :func:`_polish_many`): each start's best trial point (``ot``
+    the trial objectives, ``L`` per start, at ``mt, lt``) replaces the start where
+    it is lower; ``m, ls, obj, lam, live, rel`` are updated in place (the stop rule
+    of :func:`_polish`). Returns the improved starts and the trials they took."""
+    p = ia.size
+    ot = np.where(np.isfinite(ot), ot, np.inf).reshape(p, L)
+    pick = np.argmin(ot, axis=1)
+    pick += np.arange(0, p * L, L)
+    o_new = ot.ravel()[pick]
+    o_old = obj[ia]
+    better = o_new < o_old
+    ib, pb = ia[better], pick[better]
+    if ib.size:
+        o_prev, o_new = o_old[better], o_new[better]
+        gain = (o_prev - o_new) / np.maximum(o_prev, 1e-300)
+        m_prev, ls_prev = m[ib], ls[ib]
+        m_new, ls_new = mt[pb], lt[pb]
+        done = (gain <= 1e-10) | (
+            (np.abs(m_new - m_prev) <= 1e-13 * (1.0 + np.abs(m_prev)))
+            & (np.abs(ls_new - ls_prev) <= 1e-13 * (1.0 + np.abs(ls_prev))))
+        # converging geometrically, 100 times faster than the last step: what
+        # is left to gain is below about 1e-9 of the objective
+        done |= (gain <= 1e-7) & (gain <= 0.01 * rel[ib])
+        m[ib], ls[ib], obj[ib] = m_new, ls_new, o_new
+        lam[ib] = np.maximum(lams.ravel()[pb] / 3.0, 1e-12)
+        live[ib] = ~done & (o_new > 1e-30)
+        rel[ib] = (o_prev - o_new) / np.maximum(o_prev, 1e-300)
+    live[ia[~better]] = False
+    return ib, pb
+
+
 # ---------------------------------------------------------------------------
 # several smiles at once: the polish of every expiry in one batched loop
 # ---------------------------------------------------------------------------
+
+class _Layout:
+    """One set of points' flat layout (:meth:`_Smiles.layout`): row offsets ``offs``
+    (size points + 1), each point's row length ``n_pt``, each element's quote
+    ``kidx`` in the concatenated quotes and its ``k``, ``w`` and ``sw`` (square root
+    of the weight), the runs ``segs`` of :meth:`_Smiles.segments`; ``n`` the row
+    length when every point has the same (else 0); ``blocks``, neighbouring runs
+    of one shape: (first point, end point, first element, end element, (runs,
+    points per run, quotes), the runs' ``[wt, wt w]`` stacked, their ``wt`` stacked);
+    ``rows``, neighbouring points with as many quotes each (first
+    point, end point, quotes); ``G0``, ``h0`` the normal equations' entries that do
+    not depend on (m, sigma) and ``ww`` each point's ``sum wt w^2``."""
+
+    __slots__ = ("offs", "n_pt", "kidx", "segs", "k", "w", "sw", "n", "blocks",
+                 "rows", "G0", "h0", "ww")
+
 
 class _Smiles:
     """The quotes of several smile fits side by side: ``k``, ``w``, weights and their
@@ -509,22 +554,47 @@ class _Smiles:
         self.g00, self.h0, self.wwsum = np.array(g00), np.array(h0), np.array(ww)
         self._layouts: dict = {}
 
-    def layout(self, fit_of: np.ndarray):
-        """Flat layout of one basis row per point (points grouped by fit, in order):
-        row offsets (size points + 1), the row length of each point, the index of
-        each element's quote in the concatenated quotes, the runs of
-        :meth:`segments`, and each element's ``k``, ``w`` and ``sqrt(weight)``. Kept
-        per set of points (the polish meets the same sets round after round)."""
+    def layout(self, fit_of: np.ndarray) -> _Layout:
+        """The :class:`_Layout` of one basis row per point (points grouped by fit, in
+        order). Kept per set of points (the polish meets the same sets round after
+        round)."""
         key = fit_of.tobytes()
         hit = self._layouts.get(key)
         if hit is None:
-            n_pt = self.n[fit_of]
-            offs = np.zeros(fit_of.size + 1, dtype=np.intp)
-            np.cumsum(n_pt, out=offs[1:])
-            kidx = np.arange(offs[-1]) + np.repeat(self.base[fit_of] - offs[:-1], n_pt)
-            hit = self._layouts[key] = (offs, n_pt, kidx, self.segments(fit_of),
-                                        self.k[kidx], self.w[kidx], self.sw[kidx])
+            hit = self._layouts[key] = self._new_layout(fit_of)
         return hit
+
+    def _new_layout(self, fit_of: np.ndarray) -> _Layout:
+        lay = _Layout()
+        n_pt = self.n[fit_of]
+        offs = np.zeros(fit_of.size + 1, dtype=np.intp)
+        np.cumsum(n_pt, out=offs[1:])
+        kidx = np.arange(offs[-1]) + np.repeat(self.base[fit_of] - offs[:-1], n_pt)
+        lay.offs, lay.n_pt, lay.kidx = offs, n_pt, kidx
+        lay.segs = segs = self.segments(fit_of)
+        lay.k, lay.w, lay.sw = self.k[kidx], self.w[kidx], self.sw[kidx]
+        lay.n = int(n_pt[0]) if n_pt.size and bool((n_pt == n_pt[0]).all()) else 0
+        # neighbouring fits with the same (points, quotes) matrix: one stacked product
+        # passes numpy the same matrices, one by one, as each fit alone
+        lay.blocks = []
+        for shape, group in itertools.groupby(segs, lambda sg: (sg[2] - sg[1],
+                                                               int(self.n[sg[0]]))):
+            group = list(group)
+            W2 = np.stack([self.W2[f] for f, _, _ in group])
+            wt = np.stack([self.wt_of[f] for f, _, _ in group])[:, :, None]
+            a, b = group[0][1], group[-1][2]
+            lay.blocks.append((a, b, int(offs[a]), int(offs[b]), (len(group), *shape),
+                               W2, wt))
+        # neighbouring points with as many quotes each: (points, quotes) arrays
+        lay.rows = [(a, a + len(list(group)), n) for a, n, group in _runs(n_pt.tolist())]
+        g00 = self.g00[fit_of]
+        lay.G0 = np.zeros((fit_of.size, 9))
+        lay.G0[:, 0] = g00
+        lay.G0[:, 5] = lay.G0[:, 7] = 0.25 * g00
+        lay.h0 = np.zeros((fit_of.size, 3))
+        lay.h0[:, 0] = self.h0[fit_of]
+        lay.ww = self.wwsum[fit_of]
+        return lay
 
     @staticmethod
     def segments(fit_of: np.ndarray) -> list[tuple[int, int, int]]:
@@ -538,76 +608,93 @@ class _Smiles:
         return out
 
 
+def _runs(values: list):
+    """(first index, value, group) of each run of equal neighbouring values."""
+    i = 0
+    for v, group in itertools.groupby(values):
+        group = list(group)
+        yield i, v, group
+        i += len(group)
+
+
 def _inner_many(sm: _Smiles, fit_of: np.ndarray, m: np.ndarray, s: np.ndarray):
     """:func:`_inner_exact` for points of several fits at once (``fit_of`` the fit of
     each point, grouped): the elementwise work and the seven active sets' solves in
-    one batch, each fit's weighted sums by the same matrix products as one fit alone.
-    Returns coefficients, objectives, active sets, and the basis ``P, Q`` flat with its
+    one batch, each fit's weighted sums by the same matrix products as one fit alone
+    (one stacked product for every fit when their runs have one shape). Returns
+    coefficients, objectives, active sets, and the basis ``P, Q`` flat with its
     layout (:meth:`_Smiles.layout`)."""
-    offs, n_pt, _, segs, k_e, w_e, _ = lay = sm.layout(fit_of)
-    y = np.subtract(k_e, m.repeat(n_pt))
+    lay = sm.layout(fit_of)
+    offs, n_pt, segs, n = lay.offs, lay.n_pt, lay.segs, lay.n
+    p = m.size
+    PQ = np.empty((2, offs[-1]))
+    P, Q = PQ
+    y = np.subtract(lay.k, m.repeat(n_pt), out=Q)
     y /= s.repeat(n_pt)
     r = np.multiply(y, y)
     r += 1.0
     np.sqrt(r, out=r)
-    P = np.add(r, y)
+    np.add(r, y, out=P)
     P *= 0.5
-    Q = np.subtract(r, P, out=y)
-    PP, QQ = P * P, Q * Q
-    p = m.size
-    gP = np.empty((p, 2))
-    gQ = np.empty((p, 2))
-    dP = np.empty(p)
-    dQ = np.empty(p)
-    for f, a, b in segs:
-        seg = slice(offs[a], offs[b])
-        shape = (b - a, int(sm.n[f]))
-        W2, wt = sm.W2[f], sm.wt_of[f]
-        gP[a:b] = P[seg].reshape(shape) @ W2
-        gQ[a:b] = Q[seg].reshape(shape) @ W2
-        dP[a:b] = PP[seg].reshape(shape) @ wt
-        dQ[a:b] = QQ[seg].reshape(shape) @ wt
-    g00 = sm.g00[fit_of]
-    g12 = 0.25 * g00
-    G = np.stack([g00, gP[:, 0], gQ[:, 0], gP[:, 0], dP, g12, gQ[:, 0], g12, dQ],
-                 axis=1).reshape(p, 3, 3)
-    h = np.stack([sm.h0[fit_of], gP[:, 1], gQ[:, 1]], axis=1)
+    np.subtract(r, P, out=Q)
+    sq = np.multiply(PQ, PQ)
+    G = lay.G0.copy()
+    h = lay.h0.copy()
+    g = np.empty((2, p, 2))
+    for a, b, ea, eb, shape, W2, wt in lay.blocks:
+        # P and Q of the block's fits side by side: (2, fits, points, quotes)
+        g[:, a:b] = (PQ[:, ea:eb].reshape(2, *shape) @ W2).reshape(2, b - a, 2)
+        G[a:b, 4::4] = (sq[:, ea:eb].reshape(2, *shape) @ wt).reshape(2, b - a).T
+    G[:, 1:4:2] = g[0, :, 0:1]
+    G[:, 2:7:4] = g[1, :, 0:1]
+    G = G.reshape(p, 3, 3)
+    h[:, 1:] = g[:, :, 1].T
     G7 = np.where(_KEEP7[:, None], G[None], _EYE3)                  # (7, p, 3, 3)
     H7 = h[None] * _FREE[:7, None, :]
-    exact = np.zeros(len(sm.n), dtype=bool)   # fits whose sets go to the closed forms
+    exact = None                        # fits whose sets go to the closed forms
     try:
         C = np.linalg.solve(G7, H7[..., None])[..., 0]              # (7, p, 3)
     except np.linalg.LinAlgError:
         C = np.zeros((7, p, 3))
+        exact = np.zeros(len(sm.n), dtype=bool)
         for f, a, b in segs:
             try:
                 C[:, a:b] = np.linalg.solve(G7[:, a:b], H7[:, a:b, :, None])[..., 0]
             except np.linalg.LinAlgError:     # an exactly singular set: closed forms
                 exact[f] = True
-    obj = (sm.wwsum[fit_of] - 2.0 * (C * h).sum(-1)
-           + ((C[..., None, :] @ G)[..., 0, :] * C).sum(-1))
+    # sums over the last axis of three written out: numpy adds them in this order
+    ch = C * h
+    cgc = (C[..., None, :] @ G)[..., 0, :] * C
+    obj = (lay.ww - 2.0 * (ch[..., 0] + ch[..., 1] + ch[..., 2])
+           + (cgc[..., 0] + cgc[..., 1] + cgc[..., 2]))
+    a_, u_, v_ = C[..., 0], C[..., 1], C[..., 2]
     with np.errstate(invalid="ignore"):
-        ok = (C[..., 1:].min(-1) >= 0) & (
-            C[..., 0] + np.sqrt(np.maximum(C[..., 1] * C[..., 2], 0.0)) >= 0)
+        ok = (u_ >= 0) & (v_ >= 0) & (a_ + np.sqrt(np.maximum(u_ * v_, 0.0)) >= 0)
     obj = np.where(ok & np.isfinite(obj), obj, np.inf)
     sets = np.argmin(obj, axis=0)
     cols = np.arange(p)
     best = C[sets, cols]
     flat = ~np.isfinite(obj[sets, cols])
-    if np.any(flat):
+    if flat.any():
         best[flat] = 0.0
         sets[flat] = 7
-    bE = best.repeat(n_pt, axis=0)
-    e = bE[:, 0] + bE[:, 1] * P + bE[:, 2] * Q - w_e
+    if n:
+        e = (best[:, 0:1] + best[:, 1:2] * P.reshape(p, n) + best[:, 2:3] * Q.reshape(p, n)
+             - lay.w.reshape(p, n))
+    else:
+        bE = best.repeat(n_pt, axis=0)
+        e = bE[:, 0] + bE[:, 1] * P + bE[:, 2] * Q - lay.w
     e *= e
+    e = e.reshape(-1)
     out = np.empty(p)
-    for f, a, b in segs:
-        if exact[f]:
-            coef_f, obj_f, sets_f = _inner(sm.k_of[f], sm.w_of[f], sm.wt_of[f], m[a:b], s[a:b],
-                                           exact=True)
-            best[a:b], out[a:b], sets[a:b] = coef_f, obj_f, sets_f
-        else:
-            out[a:b] = e[offs[a]:offs[b]].reshape(b - a, int(sm.n[f])) @ sm.wt_of[f]
+    for a, b, ea, eb, shape, _, wt in lay.blocks:
+        out[a:b] = (e[ea:eb].reshape(shape) @ wt).reshape(b - a)
+    if exact is not None:
+        for f, a, b in segs:
+            if exact[f]:
+                coef_f, obj_f, sets_f = _inner(sm.k_of[f], sm.w_of[f], sm.wt_of[f], m[a:b],
+                                               s[a:b], exact=True)
+                best[a:b], out[a:b], sets[a:b] = coef_f, obj_f, sets_f
     return best, out, sets, P, Q, lay
 
 
@@ -627,8 +714,12 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
     batch. ``bounds`` has one row (m min, m max, ln sigma min, ln sigma max) per
     start. Returns m, ln sigma, coefficients and objectives of every start."""
     fit_of = np.asarray(fit_of, dtype=np.intp)
-    m, ls = m0.astype(float).copy(), ls0.astype(float).copy()
-    coef, obj, sets, P, Q, (offs, *_) = _inner_many(sm, fit_of, m, np.exp(ls))
+    ml = np.stack([m0, ls0], axis=1).astype(float)     # (m, ln sigma) of each start
+    m, ls = ml[:, 0], ml[:, 1]
+    coef, obj, sets, P, Q, lay0 = _inner_many(sm, fit_of, m, np.exp(ls))
+    offs, n = lay0.offs, lay0.n
+    if n:                       # every start's basis row as a row of a (starts, n) array
+        P, Q = P.reshape(-1, n), Q.reshape(-1, n)
     rows_of: dict = {}          # flat basis rows of a set of starts
     S = m.size
     L = _DAMPING.size
@@ -638,40 +729,53 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
     rel = np.zeros(S)
     first_start = np.flatnonzero(np.r_[True, np.diff(fit_of) != 0])
     per_fit = np.diff(np.r_[first_start, S])
+    b_lo, b_hi = bounds[:, 0:3:2], bounds[:, 1:4:2]
     for _ in range(max_iter):
         ia = np.flatnonzero(live)
         if ia.size == 0:
             break
         fa = fit_of[ia]
-        offs_a, n_a, _, segs, _, w, sw = sm.layout(fa)
+        lay = sm.layout(fa)
+        offs_a, n_a, segs, w, sw = lay.offs, lay.n_pt, lay.segs, lay.w, lay.sw
         p = ia.size
-        mm, ll = m[ia], ls[ia]
-        key = ia.tobytes()
-        src = rows_of.get(key)
-        if src is None:
-            src = rows_of[key] = _rows(offs, ia)
-        Pa, Qa = P[src], Q[src]
-        y, r = Pa - Qa, Pa + Qa
+        mml = ml[ia]
+        ll = mml[:, 1]
         c = coef[ia]
         free = _FREE[sets[ia]]
-        cf = np.concatenate([c, free], axis=1).repeat(n_a, axis=0)
-        e = sw * (cf[:, 0] + cf[:, 1] * Pa + cf[:, 2] * Qa - w)
-        dwdy = (cf[:, 1] * Pa - cf[:, 2] * Qa) / r
-        dwdy *= sw
-        J = np.empty((offs_a[-1], 5))
-        J[:, 0] = cf[:, 3] * sw
-        J[:, 1] = cf[:, 4] * Pa * sw
-        J[:, 2] = cf[:, 5] * Qa * sw
-        J[:, 3] = dwdy * (-1.0 / np.exp(ll)).repeat(n_a)
-        J[:, 4] = -dwdy * y
-        A = np.empty((p, 5, 5))
-        g = np.empty((p, 5, 1))
-        for f, a, b in segs:
-            seg = slice(offs_a[a], offs_a[b])
-            Jf = J[seg].reshape(b - a, int(sm.n[f]), 5)
-            Jt = Jf.transpose(0, 2, 1)
-            A[a:b] = Jt @ Jf                                        # (p, 5, 5)
-            g[a:b] = Jt @ e[seg].reshape(b - a, int(sm.n[f]))[:, :, None]
+        if n:
+            # every start's quotes as a row: the steps of one fit alone
+            J, e = _residuals_jacobian(P[ia], Q[ia], c, free, lay.sw.reshape(p, n),
+                                       lay.w.reshape(p, n), ll)
+            Jt = J.transpose(0, 2, 1)
+            A = Jt @ J                                              # (p, 5, 5)
+            g = Jt @ e[:, :, None]                                  # (p, 5, 1)
+        else:
+            key = ia.tobytes()
+            src = rows_of.get(key)
+            if src is None:
+                src = rows_of[key] = _rows(offs, ia)
+            Pa, Qa = P[src], Q[src]
+            y, r = Pa - Qa, Pa + Qa
+            cf = np.concatenate([c, free], axis=1).repeat(n_a, axis=0)
+            e = sw * (cf[:, 0] + cf[:, 1] * Pa + cf[:, 2] * Qa - w)
+            dwdy = (cf[:, 1] * Pa - cf[:, 2] * Qa) / r
+            dwdy *= sw
+            J = np.empty((offs_a[-1], 5))
+            J[:, 0] = cf[:, 3] * sw
+            J[:, 1] = cf[:, 4] * Pa * sw
+            J[:, 2] = cf[:, 5] * Qa * sw
+            J[:, 3] = dwdy * (-1.0 / np.exp(ll)).repeat(n_a)
+            J[:, 4] = -dwdy * y
+            # each start's (5, n) by (n, 5) product, as for one fit alone, for
+            # every run of starts with as many quotes at once
+            A = np.empty((p, 5, 5))
+            g = np.empty((p, 5, 1))
+            for a, b, n_r in lay.rows:
+                seg = slice(offs_a[a], offs_a[b])
+                Jf = J[seg].reshape(b - a, n_r, 5)
+                Jt = Jf.transpose(0, 2, 1)
+                A[a:b] = Jt @ Jf                                    # (p, 5, 5)
+                g[a:b] = Jt @ e[seg].reshape(b - a, n_r, 1)
         d = np.diagonal(A, axis1=1, axis2=2)
         d = np.where(d > 0, d, 1.0)
         lams = lam[ia][:, None] * _DAMPING                           # (p, L)
@@ -692,37 +796,26 @@ def _polish_many(sm: _Smiles, fit_of: np.ndarray, m0: np.ndarray, ls0: np.ndarra
                     keep[a:b] = False
             if not keep.any():
                 continue
-            ia, fa, mm, ll = ia[keep], fa[keep], mm[keep], ll[keep]
+            ia, fa, mml = ia[keep], fa[keep], mml[keep]
             lams, step = lams[keep], step[keep]
             p = ia.size
-        bnd = bounds[ia]
-        mt = np.clip(mm[:, None] + step[..., 3], bnd[:, 0:1], bnd[:, 1:2]).ravel()
-        lt = np.clip(ll[:, None] + step[..., 4], bnd[:, 2:3], bnd[:, 3:4]).ravel()
-        ct, ot, st, Pt, Qt, (offs_t, *_) = _inner_many(sm, fa.repeat(L), mt,
-                                                         np.exp(lt))
-        ot = np.where(np.isfinite(ot), ot, np.inf).reshape(p, L)
-        j = np.argmin(ot, axis=1)
-        pick = j + np.arange(p) * L
-        o_new = ot.ravel()[pick]
-        better = o_new < obj[ia]
-        obj_prev = obj.copy()
-        ib, pb = ia[better], pick[better]
+        # the trial points clipped to each start's box, (m, ln sigma) together
+        trial = mml[:, None] + step[..., 3:]                        # (p, L, 2)
+        np.maximum(trial, b_lo[ia][:, None], out=trial)
+        np.minimum(trial, b_hi[ia][:, None], out=trial)
+        mt, lt = trial.reshape(-1, 2).T
+        ct, ot, st, Pt, Qt, lay_t = _inner_many(sm, fa.repeat(L), mt, np.exp(lt))
+        ib, pb = _take_best_trials(ot, ia, L, mt, lt, m, ls, obj, lam, lams, live, rel)
         if ib.size:
-            gain = (obj[ib] - o_new[better]) / np.maximum(obj[ib], 1e-300)
-            done = (gain <= 1e-10) | (
-                (np.abs(mt[pb] - m[ib]) <= 1e-13 * (1.0 + np.abs(m[ib])))
-                & (np.abs(lt[pb] - ls[ib]) <= 1e-13 * (1.0 + np.abs(ls[ib]))))
-            done |= (gain <= 1e-7) & (gain <= 0.01 * rel[ib])
-            m[ib], ls[ib] = mt[pb], lt[pb]
-            coef[ib], sets[ib], obj[ib] = ct[pb], st[pb], o_new[better]
-            for i, t in zip(ib.tolist(), pb.tolist()):       # each start's basis row
-                a, b, c0 = offs[i], offs[i + 1], offs_t[t]
-                P[a:b] = Pt[c0:c0 + b - a]
-                Q[a:b] = Qt[c0:c0 + b - a]
-            lam[ib] = np.maximum(lams.ravel()[pb] / 3.0, 1e-12)
-            live[ib] = ~done & (obj[ib] > 1e-30)
-        live[ia[~better]] = False
-        rel[ib] = (obj_prev[ib] - obj[ib]) / np.maximum(obj_prev[ib], 1e-300)
+            coef[ib], sets[ib] = ct[pb], st[pb]
+            if n:
+                P[ib], Q[ib] = Pt.reshape(-1, n)[pb], Qt.reshape(-1, n)[pb]
+            else:
+                offs_t = lay_t.offs
+                for i, t in zip(ib.tolist(), pb.tolist()):   # each start's basis row
+                    a, b, c0 = offs[i], offs[i + 1], offs_t[t]
+                    P[a:b] = Pt[c0:c0 + b - a]
+                    Q[a:b] = Qt[c0:c0 + b - a]
         # per fit: a start behind one of its fit's finished starts, gaining little
         if not live.all():
             fin_obj = np.where(live, np.inf, obj)
@@ -846,6 +939,9 @@ def fit_svi_many(problems, *, errors: str = "raise") -> list:
         out[i] = _svi_finish(st, *_polish(st["k"], st["w"], st["wt"], st["m0"], st["ls0"],
                                           st["bounds"]))
     elif pending:
+        # fits with equally many quotes side by side (their products are stacked);
+        # each fit's arithmetic does not depend on its neighbours
+        pending.sort(key=lambda item: item[1]["k"].size)
         sm = _Smiles([(st["k"], st["w"], st["wt"]) for _, st in pending])
         fit_of = np.concatenate([np.full(st["m0"].size, f, dtype=np.intp)
                                  for f, (_, st) in enumerate(pending)])
@@ -900,7 +996,9 @@ def _svi_start(k, w, weights, t):
     (n_m, n_s), _ = _GRID
     mg = np.linspace(m_lo, m_hi, n_m)
     lsg = np.linspace(ls_lo, ls_hi, n_s)
-    M, LS = np.meshgrid(mg, lsg, indexing="ij")
+    M, LS = np.empty((n_m, n_s)), np.empty((n_m, n_s))  # the (m, ln sigma) mesh
+    M[:] = mg[:, None]
+    LS[:] = lsg
     # the constants of the inner least squares, as _inner forms them
     wtw = wt * w
     return {"k": k, "w": w, "wt": wt, "t": t, "iv_q": iv_q, "span": span,
@@ -944,15 +1042,13 @@ def _svi_zoom(st: dict, obj0: np.ndarray) -> None:
                 break
     m_lo, m_hi, ls_lo, ls_hi = st["m_lo"], st["m_hi"], st["ls_lo"], st["ls_hi"]
     dm, dls = st["dm"], st["dls"]
-    MZ, LZ = [], []
-    for ci, cj in cand:
-        mc, lc = M[ci, cj], LS[ci, cj]
-        mz = np.linspace(max(mc - 2 * dm, m_lo), min(mc + 2 * dm, m_hi), z_m)
-        lz = np.linspace(max(lc - 2 * dls, ls_lo), min(lc + 2 * dls, ls_hi), z_s)
-        mz, lz = np.meshgrid(mz, lz, indexing="ij")
-        MZ.append(mz.ravel())
-        LZ.append(lz.ravel())
-    st["MZ"], st["LZ"] = MZ, LZ = np.array(MZ), np.array(LZ)
+    ci, cj = np.array(cand, dtype=np.intp).reshape(-1, 2).T
+    mc, lc = M[ci, cj], LS[ci, cj]
+    # every start's zoomed axes at once, (points, starts), then its grid row by row
+    mz = np.linspace(np.maximum(mc - 2 * dm, m_lo), np.minimum(mc + 2 * dm, m_hi), z_m)
+    lz = np.linspace(np.maximum(lc - 2 * dls, ls_lo), np.minimum(lc + 2 * dls, ls_hi), z_s)
+    st["MZ"] = MZ = np.repeat(mz.T, z_s, axis=1)
+    st["LZ"] = LZ = np.tile(lz.T, (1, z_m))
     st["grid"] = (MZ.ravel(), np.exp(LZ.ravel()))
 
 
@@ -1037,6 +1133,24 @@ class SmilePoints:
                 "atm_convention": self.atm_convention}
 
 
+def _fixed_point_d1(fit: SviFit, k: list, d1: list) -> list:
+    """The fixed point ``k = w(k)/2 - d1*sqrt(w(k))`` of :func:`_strike_for_d1` for
+    a list of targets, iterated together (at most 60 rounds, until every ``k`` moves
+    by less than 1e-13), with ``w`` as :meth:`SviFit.total_variance` forms it."""
+    a, b, rho, m, s2 = fit.a, fit.b, fit.rho, fit.m, fit.sigma ** 2
+    sqrt = math.sqrt
+    for _ in range(60):
+        k_new = []
+        for kk, dd in zip(k, d1):
+            x = kk - m
+            wk = max(a + b * (rho * x + sqrt(x * x + s2)), 1e-300)
+            k_new.append(wk / 2 - dd * sqrt(wk))
+        if all(abs(kn - kk) < 1e-13 for kn, kk in zip(k_new, k)):
+            return k_new
+        k = k_new
+    return k
+
+
 def _strike_for_d1(fit: SviFit, d1_target: np.ndarray) -> np.ndarray:
     """Log-moneyness k with d1(k) = (-k + w(k)/2)/sqrt(w(k)) equal to each target.
 
@@ -1047,13 +1161,18 @@ def _strike_for_d1(fit: SviFit, d1_target: np.ndarray) -> np.ndarray:
     d1_target = np.asarray(d1_target, dtype=float)
     w0 = max(float(fit.total_variance(0.0)), 1e-12)
     k = w0 / 2 - d1_target * np.sqrt(w0)
-    for _ in range(60):
-        wk = np.maximum(fit.total_variance(k), 1e-300)
-        k_new = wk / 2 - d1_target * np.sqrt(wk)
-        if (np.abs(k_new - k) < 1e-13).all():
+    if d1_target.ndim == 1:
+        # a few targets: the same steps in Python floats (the same IEEE operations
+        # as numpy's, element by element), all targets in lockstep
+        k = np.array(_fixed_point_d1(fit, k.tolist(), d1_target.tolist()))
+    else:
+        for _ in range(60):
+            wk = np.maximum(fit.total_variance(k), 1e-300)
+            k_new = wk / 2 - d1_target * np.sqrt(wk)
+            if (np.abs(k_new - k) < 1e-13).all():
+                k = k_new
+                break
             k = k_new
-            break
-        k = k_new
 
     def d1_of(kk):
         wk = fit.total_variance(kk)

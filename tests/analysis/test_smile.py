@@ -309,12 +309,13 @@ def test_straight_smile_is_flagged_degenerate_but_fitted_closely():
     assert fit.rmse_iv < 1e-6 and fit.min_total_variance >= 0
 
 
-def _smile_problems(seed: int, count: int) -> list:
-    """Noisy SVI smiles of several expiries with different quote counts (invented)."""
+def _smile_problems(seed: int, count: int, n_quotes: int | None = None) -> list:
+    """Noisy SVI smiles of several expiries with different quote counts, or
+    ``n_quotes`` each (invented)."""
     rng = np.random.default_rng(seed)
     out = []
     for i in range(count):
-        n = int(rng.integers(5, 160))
+        n = int(rng.integers(5, 160)) if n_quotes is None else n_quotes
         k = np.sort(rng.uniform(-0.7, 0.4, n))
         a, b = rng.uniform(0.002, 0.05), rng.uniform(0.02, 0.4)
         rho, m, s = rng.uniform(-0.95, 0.6), rng.uniform(-0.2, 0.2), rng.uniform(0.01, 0.5)
@@ -346,12 +347,24 @@ def test_fits_of_several_expiries_at_once_equal_the_fits_one_at_a_time(seed):
         fit_svi_many(problems)
 
 
-def test_batched_fits_that_fall_back_to_one_solve_per_expiry_are_unchanged(monkeypatch):
+@pytest.mark.parametrize("seed", [4, 5, 6, 8])
+def test_fits_of_expiries_with_equally_many_quotes_equal_the_fits_one_at_a_time(seed):
+    # reference: fit_svi one expiry at a time. Expiries with the same number of
+    # quotes (as a screen's capped smiles have) take the stacked products of the
+    # batched polish; the fits must still be the same bit for bit
+    from optbench.analysis.smile import fit_svi_many
+    problems = _smile_problems(seed, 4, n_quotes=100)
+    assert fit_svi_many(problems) == [fit_svi(k, w, wt, t=t) for k, w, wt, t in problems]
+
+
+@pytest.mark.parametrize("n_quotes", [None, 60])
+def test_batched_fits_that_fall_back_to_one_solve_per_expiry_are_unchanged(monkeypatch,
+                                                                            n_quotes):
     # a batch whose solve fails is solved again expiry by expiry (as a singular
     # expiry alone would be): forced here by failing every solve larger than one
     # expiry's, the fits must still equal fit_svi one at a time
     from optbench.analysis.smile import fit_svi_many
-    problems = _smile_problems(7, 5)
+    problems = _smile_problems(7, 5, n_quotes)
     reference = [fit_svi(k, w, wt, t=t) for k, w, wt, t in problems]
     solve = np.linalg.solve
     calls = {"failed": 0}
@@ -367,3 +380,30 @@ def test_batched_fits_that_fall_back_to_one_solve_per_expiry_are_unchanged(monke
     monkeypatch.setattr(np.linalg, "solve", fail_large)
     assert fit_svi_many(problems) == reference
     assert calls["failed"] > 2
+
+
+def test_strikes_for_delta_in_python_floats_equal_the_numpy_iteration():
+    # reference: the fixed point of _strike_for_d1 iterated on numpy arrays (taken
+    # for targets of two or more dimensions); the Python-float iteration for a row
+    # of targets must give the same strikes bit for bit (invented smiles)
+    from optbench.analysis.smile import _strike_for_d1
+    rng = np.random.default_rng(11)
+    for _ in range(300):
+        fit = SviFit(float(rng.uniform(-0.01, 0.05)), float(rng.uniform(0.0, 1.5)),
+                     float(rng.uniform(-0.999, 0.999)), float(rng.uniform(-0.5, 0.5)),
+                     float(10 ** rng.uniform(-4, 0)), float(rng.uniform(0.01, 3.0)), 0.0,
+                     10, True, "", "svi")
+        z = float(rng.uniform(0.1, 2.5))
+        d1 = np.array([-z, z])
+        np.testing.assert_array_equal(_strike_for_d1(fit, d1),
+                                      _strike_for_d1(fit, d1[None, :])[0])
+
+
+def test_three_term_sums_written_out_equal_numpy_sum_over_the_last_axis():
+    # the inner solve of the batched polish writes (7, p, 3).sum(-1) as x0 + x1 + x2
+    # so as to skip numpy's reduction machinery; reference: numpy.sum itself, which
+    # must add the three terms in that order for the fits to stay unchanged
+    rng = np.random.default_rng(12)
+    for p in range(1, 120):
+        x = rng.normal(size=(7, p, 3)) * 10.0 ** rng.uniform(-8, 8, size=(7, p, 3))
+        np.testing.assert_array_equal(x.sum(-1), x[..., 0] + x[..., 1] + x[..., 2])
