@@ -353,18 +353,28 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         warnings.extend(forward_disagreements(fwd))
     F, D, r_q, carry_q, vols, american = _quote_vols(q, fwd, S, divs)
     iv_bid, iv_mid, iv_ask = vols
+    # the quotes' and expiries' columns, each read from its frame once
     K = q["strike"].to_numpy(float)
     t_q = q["t"].to_numpy(float)
     is_call = q["is_call"].to_numpy(bool)
+    exp_q = q["expiry"].to_numpy()
+    mid = q["mid"].to_numpy(float)
+    bid_q = q["bid"].to_numpy(float)
+    ask_q = q["ask"].to_numpy(float)
+    fwd_expiry = fwd["expiry"].to_numpy()
+    fwd_t = fwd["t"].to_numpy(float)
+    fwd_forward = fwd["forward"].to_numpy(float)
+    fwd_rate = fwd["rate"].to_numpy(float)
+    fwd_carry = fwd["carry"].to_numpy(float)
+    fwd_discount = fwd["discount"].to_numpy(float)
     k_q = np.log(K / F)
     otm = np.where(is_call, K >= F, K <= F)
     style = "american" if american.all() else ("mixed" if american.any() else "european")
     mult = q["multiplier"].to_numpy(float) if "multiplier" in q.columns else np.full(len(q), 100.0)
 
     # --- static arbitrage flags per quote
-    arb = strike_arbitrage(q["expiry"].to_numpy(), K, q["mid"].to_numpy(float), is_call,
-                           forward=F, discount=D, bid=q["bid"].to_numpy(float),
-                           ask=q["ask"].to_numpy(float))
+    arb = strike_arbitrage(exp_q, K, mid, is_call, forward=F, discount=D, bid=bid_q,
+                           ask=ask_q)
 
     # --- model fit and forecasts on the trading-day calendar
     if fit is None:
@@ -376,7 +386,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     if fit.fallback_reason:
         warnings.append(f"volatility model: {fit.fallback_reason}")
     warnings += [f"volatility model: {w}" for w in getattr(fit, "warnings", ())]
-    exp_dates = fwd["expiry"].to_numpy().astype("datetime64[D]").tolist()
+    exp_dates = fwd_expiry.astype("datetime64[D]").tolist()
     last_day = pd.Timestamp(hist.dates[-1]).date()
     if last_day != ch.asof and (ch.asof - last_day).days <= sanity.STALE_DAYS:
         warnings.append(f"the history ends on {last_day.isoformat()}, the quotes are of "
@@ -393,8 +403,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     if drift_choice.rule == "fitted":
         drift_choice = choose_drift("fitted", rate=r0, div_yield=q0,
                                     fitted_mu=float(fit.params.get("mu", 0.0) or 0.0))
-    draws = simulate_terminal(fit, drift_choice, td_model, fwd["t"].to_numpy(float),
-                              fwd["rate"].to_numpy(float), fwd["carry"].to_numpy(float),
+    draws = simulate_terminal(fit, drift_choice, td_model, fwd_t, fwd_rate, fwd_carry,
                               n_paths=int(n_paths), seed=seed)
     rv_paths = draws.realized_vol                              # (paths, expiries)
 
@@ -408,7 +417,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
 
     # --- per expiry: smiles, ATM, points
     say("smile fits")
-    expiry_codes = _expiry_positions(fwd["expiry"].to_numpy(), q["expiry"].to_numpy())
+    expiry_codes = _expiry_positions(fwd_expiry, exp_q)
     rows: list[ExpiryRow] = []
     strikes: dict[_dt.date, pd.DataFrame] = {}
     fc_q = fc[expiry_codes]
@@ -427,7 +436,6 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
                                          is_call[am], style="american")
         vega_vol = np.where(np.isfinite(iv_mid), iv_mid, fc_q)
         g = bsm_greeks(S, K, t_q, r_q, carry_q, vega_vol, is_call)
-    mid = q["mid"].to_numpy(float)
     edge_unit = mid - price_fc
     vega_pt = np.asarray(g.vega_per_vol_point, float)
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
@@ -435,9 +443,9 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     edge_pts = 100.0 * (iv_mid - fc_q)
     n_q = len(q)
     columns = {
-        "expiry": q["expiry"].to_numpy(), "strike": K, "is_call": is_call,
+        "expiry": exp_q, "strike": K, "is_call": is_call,
         "type": np.where(is_call, "C", "P"), "moneyness": K / F,
-        "bid": q["bid"].to_numpy(float), "ask": q["ask"].to_numpy(float), "mid": mid,
+        "bid": bid_q, "ask": ask_q, "mid": mid,
         "iv_bid": iv_bid, "iv_mid": iv_mid, "iv_ask": iv_ask,
         "delta": np.asarray(g.delta, float), "vega_per_vol_point": vega_pt,
         "forecast_vol": fc_q, "price_at_forecast": price_fc,
@@ -453,12 +461,9 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     table = pd.DataFrame(columns, columns=list(STRIKE_COLUMNS))
     bounds = np.searchsorted(expiry_codes[order], np.arange(len(fwd) + 1))
 
-    model_free = _model_free_vols(q, fwd, warnings, expiry_codes)
-    fwd_t = fwd["t"].to_numpy(float)
-    fwd_forward = fwd["forward"].to_numpy(float)
-    fwd_rate = fwd["rate"].to_numpy(float)
-    fwd_carry = fwd["carry"].to_numpy(float)
-    fwd_discount = fwd["discount"].to_numpy(float)
+    model_free = _model_free_vols(q, fwd, warnings, expiry_codes,
+                                  columns=(K, is_call, mid, bid_q, fwd_t, fwd_forward,
+                                           fwd_discount))
     fwd_parity = (fwd["source"] == "parity").to_numpy(bool)
     # the smile of every expiry fitted together (the same fits as one at a time)
     problems, fitted = [], []
@@ -719,24 +724,25 @@ def _cone_frame(cone) -> pd.DataFrame:
 
 
 def _model_free_vols(q: pd.DataFrame, fwd: pd.DataFrame, warnings: list,
-                     code: np.ndarray | None = None) -> np.ndarray:
+                     code: np.ndarray | None = None, columns=None) -> np.ndarray:
     """sqrt of the model-free implied variance per expiry (NaN where unavailable).
 
     One call of :func:`optbench.analysis.model_free.model_free_variance` per expiry on
     its strikes' call and put mids and bids (a loop over expiries, not quotes);
-    ``code`` is each quote's expiry position in ``fwd`` when already known.
+    ``code`` is each quote's expiry position in ``fwd`` when already known, and
+    ``columns`` the arrays ``(strike, is_call, mid, bid)`` of ``q`` and ``(t, forward,
+    discount)`` of ``fwd`` when already read.
     """
     from optbench.analysis.model_free import model_free_variance
 
     if code is None:
         code = pd.Index(fwd["expiry"]).get_indexer(q["expiry"])
-    K = q["strike"].to_numpy(float)
-    calls = q["is_call"].to_numpy(bool)
-    mid = q["mid"].to_numpy(float)
-    bid = q["bid"].to_numpy(float)
-    t = fwd["t"].to_numpy(float)
-    forward = fwd["forward"].to_numpy(float)
-    discount = fwd["discount"].to_numpy(float)
+    if columns is None:
+        columns = (q["strike"].to_numpy(float), q["is_call"].to_numpy(bool),
+                   q["mid"].to_numpy(float), q["bid"].to_numpy(float),
+                   fwd["t"].to_numpy(float), fwd["forward"].to_numpy(float),
+                   fwd["discount"].to_numpy(float))
+    K, calls, mid, bid, t, forward, discount = columns
     out = np.full(len(fwd), np.nan)
     for j in range(len(fwd)):
         sel = np.flatnonzero(code == j)
