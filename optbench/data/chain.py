@@ -44,6 +44,16 @@ Listed strikes lie well inside a factor of 10 of spot (common practice: exchange
 list from about a fifth to a few times spot, even on long-dated expiries)."""
 
 STYLES = ("european", "american")
+_STYLE_DTYPE = None
+
+
+def _style_dtype() -> pd.CategoricalDtype:
+    """The categorical dtype of the quotes' ``style`` column (:data:`STYLES`), built
+    once: checking the categories costs more than building the column."""
+    global _STYLE_DTYPE
+    if _STYLE_DTYPE is None:
+        _STYLE_DTYPE = pd.CategoricalDtype(STYLES)
+    return _STYLE_DTYPE
 
 QUOTE_COLUMNS = ("expiry", "strike", "is_call", "bid", "ask", "mid", "last", "volume",
                  "open_interest", "style", "multiplier", "t", "calendar_days", "line",
@@ -679,7 +689,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     pos_in_kept = np.empty(n, dtype=np.int64)
     pos_in_kept[idx] = np.arange(idx.size)
     warn_sorted = pd.Categorical.from_codes(np.asarray(warn.codes)[pos_in_kept[order]],
-                                            categories=warn.categories)
+                                            dtype=warn.dtype, validate=False)
     quotes = pd.DataFrame({
         "expiry": expiry[order].astype("datetime64[ns]"),
         "strike": strike[order].astype(float),
@@ -688,7 +698,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         "last": opt["last"][order], "volume": opt["volume"][order],
         "open_interest": opt["open_interest"][order],
         "style": pd.Categorical.from_codes(
-            american[order].astype(np.int8), categories=STYLES),
+            american[order].astype(np.int8), dtype=_style_dtype(), validate=False),
         "multiplier": mult[order].astype(float),
         "t": calendar_days[order] / 365.0,
         "calendar_days": calendar_days[order].astype(np.int64),

@@ -12,6 +12,7 @@ import csv
 from dataclasses import dataclass
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from optbench.errors import InputError
@@ -178,7 +179,21 @@ def drop_blank_rows(frame: pd.DataFrame) -> pd.DataFrame:
     """Drop rows with no cell at all (blank lines); the index keeps file positions."""
     if frame.empty:
         return frame
-    blank = frame.isna().all(axis=1)
+    columns = [col for _, col in frame.items()]
+    # a numpy integer or bool column holds no missing cell: no row is blank
+    if any(isinstance(c.dtype, np.dtype) and c.dtype.kind in "iub" for c in columns):
+        return frame
+    # float columns first (a NaN test on their numbers), the others only if needed
+    is_float = [isinstance(c.dtype, np.dtype) and c.dtype.kind == "f" for c in columns]
+    blank = np.ones(len(frame), dtype=bool)
+    for c, f in zip(columns, is_float):
+        if f:
+            blank &= np.isnan(c.to_numpy())
+    for c, f in zip(columns, is_float):
+        if not blank.any():
+            return frame
+        if not f:
+            blank &= c.isna().to_numpy(dtype=bool)
     return frame[~blank] if blank.any() else frame
 
 

@@ -30,6 +30,11 @@ def arrow_text(col: pd.Series):
 
 def present(col: pd.Series) -> np.ndarray:
     """True where a cell holds something (not NaN and not only blanks)."""
+    dtype = col.dtype
+    if isinstance(dtype, np.dtype) and dtype.kind in "iub":
+        return np.ones(len(col), dtype=bool)      # numpy integers hold no missing cell
+    if isinstance(dtype, np.dtype) and dtype.kind == "f":
+        return ~np.isnan(col.to_numpy())
     if col.dtype.kind in "biufcmM":
         return col.notna().to_numpy()
     arrow = arrow_text(col)
@@ -123,21 +128,89 @@ def _plain_iso_dates(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     if ten.size == 0:
         return np.zeros(values.shape, bool), out
     chars = text[ten].astype("U10").view(np.uint32).reshape(-1, 10).astype(np.int64)
-    digits = chars[:, _ISO_DIGITS] - 48
-    shaped = ((digits >= 0) & (digits <= 9)).all(axis=1) \
-        & (chars[:, 4] == 45) & (chars[:, 7] == 45)
-    year, month, day = (np.where(shaped[:, None], digits, 0) @ _ISO_PLACES.T).T
-    months = (year - 1970) * 12 + (month - 1)
-    first = months.astype("datetime64[M]").astype("datetime64[D]")
-    days_in_month = ((months + 1).astype("datetime64[M]").astype("datetime64[D]")
-                     - first).astype(np.int64)
-    dates = first + (day - 1)
-    ok = shaped & (month >= 1) & (month <= 12) & (day >= 1) & (day <= days_in_month) \
-        & (dates >= DATE_MIN) & (dates <= DATE_MAX)
+    ok, dates = _iso_from_chars(chars)
     mask = np.zeros(values.shape, bool)
     mask[ten[ok]] = True
     out[ten[ok]] = dates[ok].astype("datetime64[ns]")
     return mask, out
+
+
+def _iso_from_chars(chars: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Rows of a (m, 10) matrix of character codes that spell a plain ISO date in
+    :data:`DATE_MIN` .. :data:`DATE_MAX` (the rule of :func:`_plain_iso_dates`): a mask
+    and their dates (datetime64[D], meaningful where the mask is set).
+
+    Notes
+    -----
+    The month's length follows the proleptic Gregorian calendar (numpy's): 29 days in
+    February when the year is divisible by 4 and not by 100, or by 400. The day number
+    counts from 1970-01-01 by the civil-to-days formula of H. Hinnant, "chrono-
+    Compatible Low-Level Date Algorithms" (``days_from_civil``), with March as the
+    first month of the computational year.
+    """
+    digits = chars[:, _ISO_DIGITS] - 48
+    shaped = ((digits >= 0) & (digits <= 9)).all(axis=1) \
+        & (chars[:, 4] == 45) & (chars[:, 7] == 45)
+    d = np.where(shaped[:, None], digits, 0)
+    year = d[:, 0] * 1000 + d[:, 1] * 100 + d[:, 2] * 10 + d[:, 3]
+    month = d[:, 4] * 10 + d[:, 5]
+    day = d[:, 6] * 10 + d[:, 7]
+    leap = (year % 4 == 0) & ((year % 100 != 0) | (year % 400 == 0))
+    days_in_month = _MONTH_DAYS[np.minimum(month, 12)] + (leap & (month == 2))
+    y = year - (month <= 2)
+    era = y // 400
+    yoe = y - era * 400
+    doy = (153 * ((month + 9) % 12) + 2) // 5 + day - 1
+    days = era * 146097 + yoe * 365 + yoe // 4 - yoe // 100 + doy - 719468
+    ok = shaped & (month >= 1) & (month <= 12) & (day >= 1) & (day <= days_in_month) \
+        & (days >= _DAY_MIN) & (days <= _DAY_MAX)
+    return ok, days.astype("datetime64[D]")
+
+
+#: days of each month in a common year (index 0 unused), and the date range as day
+#: numbers from 1970-01-01
+_MONTH_DAYS = np.array([0, 31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31], dtype=np.int64)
+_DAY_MIN = int(DATE_MIN.astype(np.int64))
+_DAY_MAX = int(DATE_MAX.astype(np.int64))
+
+
+def _parse_unique_arrow(uniq) -> np.ndarray:
+    """:func:`_parse_unique` of the distinct cells of a text column held by pyarrow
+    (a string array without nulls): the plain ISO cells are read from the array's
+    bytes (ten bytes, the rule of :func:`_plain_iso_dates`), the others by the format
+    search. The same dates as :func:`_parse_unique` on the cells as Python strings."""
+    import pyarrow as pa
+    n = len(uniq)
+    if pa.types.is_large_string(uniq.type):
+        off_type = np.int64
+    elif pa.types.is_string(uniq.type):
+        off_type = np.int32
+    else:
+        return _parse_unique(np.asarray(uniq.to_numpy(zero_copy_only=False), dtype=object))
+    if n == 0:
+        return np.full(0, np.datetime64("NaT"), dtype="datetime64[ns]")
+    bufs = uniq.buffers()
+    offsets = np.frombuffer(bufs[1], dtype=off_type)[uniq.offset:uniq.offset + n + 1] \
+        .astype(np.int64)
+    data = np.frombuffer(bufs[2], dtype=np.uint8) if bufs[2] is not None else \
+        np.zeros(0, np.uint8)
+    if not (data[offsets[0]:offsets[-1]] != 0).all():
+        # a NUL character: numpy's text arrays drop trailing ones, so let
+        # :func:`_parse_unique` read the cells exactly as it always has
+        return _parse_unique(np.asarray(uniq.to_numpy(zero_copy_only=False), dtype=object))
+    out = np.full(n, np.datetime64("NaT"), dtype="datetime64[ns]")
+    plain = np.zeros(n, bool)
+    ten = np.flatnonzero(np.diff(offsets) == 10)
+    if ten.size:
+        chars = data[offsets[ten][:, None] + np.arange(10)].astype(np.int64)
+        ok, dates = _iso_from_chars(chars)
+        plain[ten[ok]] = True
+        out[ten[ok]] = dates[ok].astype("datetime64[ns]")
+    if not plain.all():
+        rest = np.asarray(uniq.filter(pa.array(~plain)).to_numpy(zero_copy_only=False),
+                          dtype=object)
+        out[~plain] = _parse_by_format(pd.Series(rest, dtype=object)).to_numpy()
+    return out
 
 
 def _parse_unique(values: np.ndarray) -> np.ndarray:
@@ -211,6 +284,14 @@ def date_array(col: pd.Series) -> np.ndarray:
     """:func:`to_date` as a datetime64[ns] array (no Series built)."""
     if col.dtype.kind == "M" or col.dtype.kind in "iuf":
         return to_date(col).to_numpy()
+    arrow = arrow_text(col)
+    if arrow is not None:
+        # each distinct cell parsed once, as below, on pyarrow's own arrays
+        import pyarrow.compute as pc
+        enc = pc.dictionary_encode(arrow)
+        parsed = _parse_unique_arrow(enc.dictionary)
+        codes = pc.fill_null(enc.indices, -1).to_numpy(zero_copy_only=False)
+        return np.append(parsed, np.datetime64("NaT", "ns"))[codes]
     codes, uniques = pd.factorize(col, use_na_sentinel=True)
     parsed = _parse_unique(np.asarray(uniques, dtype=object))
     out = np.full(len(col), np.datetime64("NaT"), dtype="datetime64[ns]")

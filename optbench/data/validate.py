@@ -252,6 +252,19 @@ def quote_warnings(volume: np.ndarray, open_interest: np.ndarray, mid: np.ndarra
     codes = np.zeros(len(mid), dtype=np.int16)
     for i, (_, mask) in enumerate(flags):
         codes += (np.asarray(mask, dtype=bool) << i).astype(np.int16)
-    names = [",".join(f for i, (f, _) in enumerate(flags) if code >> i & 1)
-             for code in range(2 ** len(flags))]
-    return pd.Categorical.from_codes(codes, categories=names)
+    return pd.Categorical.from_codes(codes, dtype=_warning_dtype(), validate=False)
+
+
+def _warning_dtype() -> pd.CategoricalDtype:
+    """The categories of :func:`quote_warnings`: every combination of its three flags,
+    in code order (built once; checking the categories costs more than the codes)."""
+    global _WARNING_DTYPE
+    if _WARNING_DTYPE is None:
+        flags = ("stale", "tiny_price", "bad_optional_field")
+        _WARNING_DTYPE = pd.CategoricalDtype(
+            [",".join(f for i, f in enumerate(flags) if code >> i & 1)
+             for code in range(2 ** len(flags))])
+    return _WARNING_DTYPE
+
+
+_WARNING_DTYPE = None

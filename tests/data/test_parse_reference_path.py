@@ -235,3 +235,22 @@ def test_styles_and_types_on_pyarrow_text_match_the_object_path():
     assert list(to_style(pd.Series(STYLE_CELLS, dtype="str"))) == [
         "european", "american", "european", "american", None, None, None, "european",
         "american"]
+
+
+@pytest.mark.parametrize("kind", ["string", "large_string"])
+def test_arrow_cells_read_as_python_strings(kind):
+    """The distinct cells of a pyarrow text column (read from its bytes) give the dates
+    the object path gives, edge cells, a NUL byte and a sliced array included; without
+    NUL bytes the reference is also the format search on every cell (a trailing NUL is
+    dropped by numpy's text arrays in the object path, and kept as it always was)."""
+    import pyarrow as pa
+
+    from optbench.data.parse import _parse_unique_arrow
+    cells = EDGE_CELLS + ["2026-12-0\x00", "2026-12-04\x00", "１９９９-01-01"]
+    for arr in (pa.array(cells, type=getattr(pa, kind)()),
+                pa.array(["x"] + cells, type=getattr(pa, kind)()).slice(1)):
+        got = _parse_unique_arrow(arr)
+        np.testing.assert_array_equal(got, _parse_unique(np.array(cells, dtype=object)))
+    clean = [c for c in cells if "\x00" not in c]
+    np.testing.assert_array_equal(_parse_unique_arrow(pa.array(clean, type=getattr(pa, kind)())),
+                                  _reference(clean))
