@@ -313,6 +313,23 @@ def _column_source(column, in_meta: bool) -> str:
     return "file" if has.all() else f"file+{fallback}"
 
 
+def _rejected_frame(frame: pd.DataFrame, rows: np.ndarray, front: dict) -> pd.DataFrame:
+    """The rejected rows: the ``front`` columns (line, reason, detail[, side]), then the
+    raw fields of ``frame``'s rows ``rows`` as read (a raw column named like a front
+    column gets `` (file)``), numbered from 0. One frame built from the columns; a file
+    with repeated column names takes the concatenation it is equivalent to."""
+    names = [c if c not in front else f"{c} (file)" for c in frame.columns]
+    if len(set(names) | set(front)) == len(names) + len(front):
+        columns = dict(front)
+        for name, (_, raw) in zip(names, frame.items()):
+            columns[name] = raw.to_numpy().take(rows) if isinstance(raw.dtype, np.dtype) \
+                else raw.array.take(rows)
+        return pd.DataFrame(columns)
+    raw_rows = frame.iloc[rows].reset_index(drop=True)
+    raw_rows.columns = names
+    return pd.concat([pd.DataFrame(front), raw_rows], axis=1)
+
+
 def _single_underlying(column: pd.Series) -> str | None:
     """The underlying of a text column on pyarrow storage whose non-blank cells all
     name one underlying (stripped, upper case): what the counting in
@@ -487,7 +504,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
 
     # ---- style and multiplier per row
     if style is not None:
-        row_style = np.full(n, style_word(style, "--style"), dtype=object)
+        american = np.full(n, style_word(style, "--style") == "american")
         bad_style = np.zeros(n, bool)
         style_source = "caller"
     else:
@@ -497,9 +514,10 @@ def load_chain(path: str | Path, *, spot: float | None = None,
             st = to_style(col("style")).to_numpy(dtype=object)
             has = present(col("style"))
             bad_style = has & pd.isna(st)
-            row_style = np.where(has & ~bad_style, st, default_style).astype(object)
+            american = np.where(has & ~bad_style, st == "american",
+                                default_style == "american")
         else:
-            row_style = np.full(n, default_style, dtype=object)
+            american = np.full(n, default_style == "american")
             bad_style = np.zeros(n, bool)
     if multiplier is not None:
         if not np.isfinite(multiplier) or multiplier <= 0:
@@ -635,7 +653,6 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     p["bid"] = bid
     p["ask"] = ask
     p["multiplier"] = mult
-    american = row_style == "american"
     p["american"] = american
     p["calendar_days"] = calendar_days
     for f, m in miss.items():
@@ -717,15 +734,10 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     # the rejected rows in line order (stable: a wide line's call before its put)
     rej_at = np.flatnonzero(rej)
     rej_at = rej_at[np.argsort(line[rej_at], kind="stable")]
-    rejected = pd.DataFrame({"line": line[rej_at].astype(np.int64),
-                             "reason": reason[rej_at].astype(object),
-                             "detail": detail[rej_at].astype(object)})
-    if side is not None:
-        rejected["side"] = side[rej_at]
-    raw_rows = frame.iloc[pos[rej_at]].reset_index(drop=True)
-    raw_rows.columns = [c if c not in rejected.columns else f"{c} (file)"
-                        for c in raw_rows.columns]
-    rejected = pd.concat([rejected, raw_rows], axis=1)
+    rejected = _rejected_frame(frame, pos[rej_at], {
+        "line": line[rej_at].astype(np.int64), "reason": reason[rej_at].astype(object),
+        "detail": detail[rej_at].astype(object),
+        **({"side": side[rej_at]} if side is not None else {})})
 
     found, found_count = np.unique(reason[rej].astype(str), return_counts=True)
     counts = dict(zip(found.tolist(), found_count.tolist()))

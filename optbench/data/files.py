@@ -179,10 +179,10 @@ def drop_blank_rows(frame: pd.DataFrame) -> pd.DataFrame:
     """Drop rows with no cell at all (blank lines); the index keeps file positions."""
     if frame.empty:
         return frame
-    columns = [col for _, col in frame.items()]
     # a numpy integer or bool column holds no missing cell: no row is blank
-    if any(isinstance(c.dtype, np.dtype) and c.dtype.kind in "iub" for c in columns):
+    if any(isinstance(d, np.dtype) and d.kind in "iub" for d in frame.dtypes.tolist()):
         return frame
+    columns = [col for _, col in frame.items()]
     # float columns first (a NaN test on their numbers), the others only if needed
     is_float = [isinstance(c.dtype, np.dtype) and c.dtype.kind == "f" for c in columns]
     blank = np.ones(len(frame), dtype=bool)
