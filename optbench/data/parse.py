@@ -144,34 +144,47 @@ def _iso_from_chars(chars: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     -----
     The month's length follows the proleptic Gregorian calendar (numpy's): 29 days in
     February when the year is divisible by 4 and not by 100, or by 400. The day number
-    counts from 1970-01-01 by the civil-to-days formula of H. Hinnant, "chrono-
-    Compatible Low-Level Date Algorithms" (``days_from_civil``), with March as the
-    first month of the computational year.
+    is the year's first day (numpy's calendar, one table for the years 0000-9999) plus
+    the days of the months before and the day of the month.
     """
-    digits = chars[:, _ISO_DIGITS] - 48
-    shaped = ((digits >= 0) & (digits <= 9)).all(axis=1) \
-        & (chars[:, 4] == 45) & (chars[:, 7] == 45)
-    d = np.where(shaped[:, None], digits, 0)
+    # digit values (0-9 where the row has the shape; rows without it are masked out)
+    digit = (chars >= 48) & (chars <= 57)
+    d = (np.where(digit, chars, 48) - 48).astype(np.int32)
+    shaped = digit[:, _ISO_DIGITS].all(axis=1) & (chars[:, 4] == 45) & (chars[:, 7] == 45)
     year = d[:, 0] * 1000 + d[:, 1] * 100 + d[:, 2] * 10 + d[:, 3]
-    month = d[:, 4] * 10 + d[:, 5]
-    day = d[:, 6] * 10 + d[:, 7]
-    leap = (year % 4 == 0) & ((year % 100 != 0) | (year % 400 == 0))
-    days_in_month = _MONTH_DAYS[np.minimum(month, 12)] + (leap & (month == 2))
-    y = year - (month <= 2)
-    era = y // 400
-    yoe = y - era * 400
-    doy = (153 * ((month + 9) % 12) + 2) // 5 + day - 1
-    days = era * 146097 + yoe * 365 + yoe // 4 - yoe // 100 + doy - 719468
+    month = d[:, 5] * 10 + d[:, 6]
+    day = d[:, 8] * 10 + d[:, 9]
+    year_start, leap_year = _year_tables()
+    leap = leap_year[year]
+    month_at = np.minimum(month, 12)
+    days_in_month = _MONTH_DAYS[month_at] + (leap & (month == 2))
+    days = year_start[year] + _DAYS_BEFORE_MONTH[month_at] + (leap & (month > 2)) + day - 1
     ok = shaped & (month >= 1) & (month <= 12) & (day >= 1) & (day <= days_in_month) \
         & (days >= _DAY_MIN) & (days <= _DAY_MAX)
-    return ok, days.astype("datetime64[D]")
+    return ok, days.astype(np.int64).astype("datetime64[D]")
 
 
 #: days of each month in a common year (index 0 unused), and the date range as day
 #: numbers from 1970-01-01
-_MONTH_DAYS = np.array([0, 31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31], dtype=np.int64)
+_MONTH_DAYS = np.array([0, 31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31], dtype=np.int32)
+_DAYS_BEFORE_MONTH = np.concatenate([[0], np.cumsum(_MONTH_DAYS)[:-1]]).astype(np.int32)
 _DAY_MIN = int(DATE_MIN.astype(np.int64))
 _DAY_MAX = int(DATE_MAX.astype(np.int64))
+
+
+_YEAR_TABLES = None
+
+
+def _year_tables() -> tuple[np.ndarray, np.ndarray]:
+    """For the years 0000-9999: the day number of each year's 1 January (from
+    1970-01-01, numpy's proleptic Gregorian calendar) and whether it is a leap year
+    (366 days). Built once."""
+    global _YEAR_TABLES
+    if _YEAR_TABLES is None:
+        firsts = (np.arange(10001) - 1970).astype("datetime64[Y]").astype("datetime64[D]") \
+            .astype(np.int64)
+        _YEAR_TABLES = (firsts[:-1].astype(np.int32), np.diff(firsts) == 366)
+    return _YEAR_TABLES
 
 
 def _parse_unique_arrow(uniq) -> np.ndarray:
@@ -201,8 +214,11 @@ def _parse_unique_arrow(uniq) -> np.ndarray:
     out = np.full(n, np.datetime64("NaT"), dtype="datetime64[ns]")
     plain = np.zeros(n, bool)
     ten = np.flatnonzero(np.diff(offsets) == 10)
+    if ten.size == n and offsets[-1] - offsets[0] == 10 * n:
+        chars = data[offsets[0]:offsets[-1]].reshape(n, 10)  # every cell ten bytes
+    elif ten.size:
+        chars = data[offsets[ten][:, None] + np.arange(10)]
     if ten.size:
-        chars = data[offsets[ten][:, None] + np.arange(10)].astype(np.int64)
         ok, dates = _iso_from_chars(chars)
         plain[ten[ok]] = True
         out[ten[ok]] = dates[ok].astype("datetime64[ns]")
