@@ -168,9 +168,14 @@ def chain_file_in(folder: Path) -> Path:
 
 # --------------------------------------------------------------------------- layout
 
-def _long_fields(frame: pd.DataFrame, colmap: dict[str, str]):
-    """Field -> raw column for the long layout, and the row positions."""
-    fields = {f: frame[c] for f, c in colmap.items()}
+def _long_fields(frame: pd.DataFrame, colmap: dict[str, str], raw_columns=None):
+    """Field -> raw column for the long layout, and the row positions.
+    ``raw_columns``: the frame's ``(name, column)`` pairs when its names are unique."""
+    if raw_columns is not None:
+        by_name = dict(raw_columns)
+        fields = {f: by_name[c] for f, c in colmap.items()}
+    else:
+        fields = {f: frame[c] for f, c in colmap.items()}
     return fields, np.arange(len(frame)), None
 
 
@@ -313,7 +318,8 @@ def _column_source(column, in_meta: bool) -> str:
     return "file" if has.all() else f"file+{fallback}"
 
 
-def _rejected_frame(frame: pd.DataFrame, rows: np.ndarray, front: dict) -> pd.DataFrame:
+def _rejected_frame(frame: pd.DataFrame, rows: np.ndarray, front: dict,
+                    raw_columns=None) -> pd.DataFrame:
     """The rejected rows: the ``front`` columns (line, reason, detail[, side]), then the
     raw fields of ``frame``'s rows ``rows`` as read (a raw column named like a front
     column gets `` (file)``), numbered from 0. One frame built from the columns; a file
@@ -321,7 +327,8 @@ def _rejected_frame(frame: pd.DataFrame, rows: np.ndarray, front: dict) -> pd.Da
     names = [c if c not in front else f"{c} (file)" for c in frame.columns]
     if len(set(names) | set(front)) == len(names) + len(front):
         columns = dict(front)
-        for name, (_, raw) in zip(names, frame.items()):
+        for name, (_, raw) in zip(names, raw_columns if raw_columns is not None
+                                  else frame.items()):
             columns[name] = raw.to_numpy().take(rows) if isinstance(raw.dtype, np.dtype) \
                 else raw.array.take(rows)
         return pd.DataFrame(columns)
@@ -410,13 +417,17 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     raw: RawTable = read_table(path, header_test=_is_header)
     frame = drop_blank_rows(raw.frame)
     file_lines = raw.line0 + frame.index.to_numpy()
-    frame = frame.reset_index(drop=True)
+    if not (isinstance(frame.index, pd.RangeIndex) and frame.index.start == 0
+            and frame.index.step == 1):
+        frame = frame.reset_index(drop=True)
     if raw.last_line is not None and file_lines.size and file_lines[-1] != raw.last_line:
         notes.append("some quoted cells span several lines: line numbers count records "
                      "from the header, not physical lines")
     if frame.shape[1] <= 1:
         _require_columns(path, frame, {})
     colmap = map_chain_columns(frame.columns)
+    # the raw columns once, for the fields and the rejected rows (unique names only)
+    raw_columns = list(frame.items()) if frame.columns.is_unique else None
     sides = {c: s for c in frame.columns if c not in colmap.values()
              and (s := side_of(c)) is not None}
     side_set = {(s, f) for s, f in sides.values()}
@@ -425,7 +436,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     if wide:
         fields, pos, side = _wide_fields(frame, colmap, sides)
     else:
-        fields, pos, side = _long_fields(frame, colmap)
+        fields, pos, side = _long_fields(frame, colmap, raw_columns)
     _require_columns(path, frame, fields)
     if len(frame) == 0:
         raise InputError(path, "the file has a header but no quotes")
@@ -737,7 +748,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     rejected = _rejected_frame(frame, pos[rej_at], {
         "line": line[rej_at].astype(np.int64), "reason": reason[rej_at].astype(object),
         "detail": detail[rej_at].astype(object),
-        **({"side": side[rej_at]} if side is not None else {})})
+        **({"side": side[rej_at]} if side is not None else {})}, raw_columns)
 
     found, found_count = np.unique(reason[rej].astype(str), return_counts=True)
     counts = dict(zip(found.tolist(), found_count.tolist()))
