@@ -60,6 +60,19 @@ def _weighted_median(values: np.ndarray, weights: np.ndarray) -> float:
     return float(v[np.searchsorted(c, 0.5 * c[-1])])
 
 
+def _median(values: np.ndarray) -> float:
+    """``numpy.median`` of a short 1-d array of finite numbers, without its generic
+    machinery: the middle value of the sorted values, or the sum of the two middle
+    ones divided by 2 (numpy's mean of the two, the same floating-point operations)."""
+    v = np.sort(values)
+    m = v.size // 2
+    if v.size == 0:
+        return np.median(values)
+    if v.size % 2:
+        return v[m]
+    return (v[m - 1] + v[m]) / 2
+
+
 def _wls_line(k, y, w):
     """Weighted least squares y = a + b k; returns a, b, se_b, residuals."""
     sw = w.sum()
@@ -228,7 +241,7 @@ def implied_forwards(quotes: pd.DataFrame, spot: float, rate: float, div_yield: 
               "dividend_forward", "cash_carry"):
         columns[c] = np.array(columns[c], dtype=float)
     columns["n_pairs"] = np.array(columns["n_pairs"], dtype=np.int64)
-    return pd.DataFrame(columns, columns=FORWARD_COLUMNS)
+    return pd.DataFrame(columns)  # the dict holds FORWARD_COLUMNS in order
 
 
 def _expiry_codes(expiry: pd.Series):
@@ -326,7 +339,7 @@ def _fit_expiry(k: np.ndarray, y: np.ndarray, spread2: np.ndarray, t: float,
     for _ in range(2):  # trim outliers, refit
         if not np.all(np.isfinite(res)):
             break
-        mad = np.median(np.abs(res[keep]))
+        mad = _median(np.abs(res[keep]))
         scale = 1.4826 * mad
         if scale <= 0:
             break
