@@ -175,6 +175,46 @@ _DAY_MAX = int(DATE_MAX.astype(np.int64))
 _YEAR_TABLES = None
 
 
+def _text_bytes(arr):
+    """``(offsets, data)`` of a pyarrow string array (its cells' byte offsets as int64,
+    ``n + 1`` of them, and its bytes as uint8), or None for another type."""
+    import pyarrow as pa
+    if pa.types.is_large_string(arr.type):
+        off_type = np.int64
+    elif pa.types.is_string(arr.type):
+        off_type = np.int32
+    else:
+        return None
+    bufs = arr.buffers()
+    if bufs[1] is None:
+        return np.zeros(1, np.int64), np.zeros(0, np.uint8)
+    offsets = np.frombuffer(bufs[1], dtype=off_type)[arr.offset:arr.offset + len(arr) + 1] \
+        .astype(np.int64)
+    data = np.frombuffer(bufs[2], dtype=np.uint8) if bufs[2] is not None else \
+        np.zeros(0, np.uint8)
+    return offsets, data
+
+
+def _all_plain_iso_arrow(arr) -> np.ndarray | None:
+    """The dates of a pyarrow text column whose every cell is a plain ISO date
+    (:func:`_plain_iso_dates`'s rule, read from the bytes): datetime64[ns] per cell;
+    None when any cell is missing or not such a date (then each distinct cell is
+    parsed on its own). A plain cell reads the same whatever the other cells hold."""
+    if arr.null_count or len(arr) == 0:
+        return None
+    bytes_ = _text_bytes(arr)
+    if bytes_ is None:
+        return None
+    offsets, data = bytes_
+    n = len(arr)
+    if offsets[-1] - offsets[0] != 10 * n or not (np.diff(offsets) == 10).all():
+        return None
+    ok, dates = _iso_from_chars(data[offsets[0]:offsets[-1]].reshape(n, 10))
+    if not ok.all():
+        return None
+    return dates.astype("datetime64[ns]")
+
+
 def _year_tables() -> tuple[np.ndarray, np.ndarray]:
     """For the years 0000-9999: the day number of each year's 1 January (from
     1970-01-01, numpy's proleptic Gregorian calendar) and whether it is a leap year
@@ -194,19 +234,12 @@ def _parse_unique_arrow(uniq) -> np.ndarray:
     search. The same dates as :func:`_parse_unique` on the cells as Python strings."""
     import pyarrow as pa
     n = len(uniq)
-    if pa.types.is_large_string(uniq.type):
-        off_type = np.int64
-    elif pa.types.is_string(uniq.type):
-        off_type = np.int32
-    else:
+    bytes_ = _text_bytes(uniq)
+    if bytes_ is None:
         return _parse_unique(np.asarray(uniq.to_numpy(zero_copy_only=False), dtype=object))
     if n == 0:
         return np.full(0, np.datetime64("NaT"), dtype="datetime64[ns]")
-    bufs = uniq.buffers()
-    offsets = np.frombuffer(bufs[1], dtype=off_type)[uniq.offset:uniq.offset + n + 1] \
-        .astype(np.int64)
-    data = np.frombuffer(bufs[2], dtype=np.uint8) if bufs[2] is not None else \
-        np.zeros(0, np.uint8)
+    offsets, data = bytes_
     if not (data[offsets[0]:offsets[-1]] != 0).all():
         # a NUL character: numpy's text arrays drop trailing ones, so let
         # :func:`_parse_unique` read the cells exactly as it always has
@@ -303,6 +336,9 @@ def date_array(col: pd.Series) -> np.ndarray:
     arrow = arrow_text(col)
     if arrow is not None:
         # each distinct cell parsed once, as below, on pyarrow's own arrays
+        direct = _all_plain_iso_arrow(arrow)
+        if direct is not None:
+            return direct
         import pyarrow.compute as pc
         enc = pc.dictionary_encode(arrow)
         parsed = _parse_unique_arrow(enc.dictionary)

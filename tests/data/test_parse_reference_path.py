@@ -254,3 +254,17 @@ def test_arrow_cells_read_as_python_strings(kind):
     clean = [c for c in cells if "\x00" not in c]
     np.testing.assert_array_equal(_parse_unique_arrow(pa.array(clean, type=getattr(pa, kind)())),
                                   _reference(clean))
+
+
+@pytest.mark.parametrize("cells", [
+    ["2026-12-18"] * 3 + ["2027-01-15"],                  # every cell plain: read at once
+    ["2026-12-18", None, "2027-01-15"],                    # a missing cell
+    ["2026-12-18", "2026-02-30", "2026-12-18"],            # not a calendar date
+    ["2026-12-18", "12/18/2026", "2026-12-18 16:00"],      # other forms
+    ["1899-12-31", "2026-12-18"], ["2026-12-18"]])
+def test_text_column_on_pyarrow_reads_as_object_column(cells):
+    """A pandas text column on pyarrow storage (pandas' default for text) gives the
+    dates the same cells give as a plain object column (the factorize path)."""
+    arrow_col = pd.Series(cells, dtype="str")
+    object_col = pd.Series(cells, dtype=object)
+    np.testing.assert_array_equal(date_array(arrow_col), date_array(object_col))
