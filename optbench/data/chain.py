@@ -345,7 +345,8 @@ def _single_underlying(column: pd.Series) -> str | None:
     if arrow is None:
         return None
     import pyarrow.compute as pc
-    norm = pc.utf8_upper(pc.utf8_trim_whitespace(arrow))
+    # the distinct cells first: the same set of names, normalised on a few cells
+    norm = pc.utf8_upper(pc.utf8_trim_whitespace(pc.unique(arrow)))
     named = pc.unique(pc.filter(norm, pc.fill_null(pc.not_equal(norm, ""), False)))
     return str(named[0].as_py()) if len(named) == 1 else None
 

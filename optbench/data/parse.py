@@ -39,6 +39,8 @@ def present(col: pd.Series) -> np.ndarray:
         return col.notna().to_numpy()
     arrow = arrow_text(col)
     if arrow is not None:
+        if _every_cell_printed(arrow):
+            return np.ones(len(arrow), dtype=bool)
         # what ``col.str.strip() != ""`` computes on pyarrow storage, without the
         # Series around each step
         import pyarrow.compute as pc
@@ -54,6 +56,22 @@ def present(col: pd.Series) -> np.ndarray:
         out[has] = (text != "").to_numpy(dtype=bool)
         return out
     return has & (text != "").fillna(False).to_numpy(dtype=bool)
+
+
+def _every_cell_printed(arr) -> bool:
+    """True when a pyarrow text array has no missing cell and every cell starts and ends
+    with a printable ASCII character other than a blank (bytes 33-126): no cell can
+    strip to nothing, so every cell holds something (what :func:`present` asks)."""
+    if arr.null_count or len(arr) == 0:
+        return False
+    bytes_ = _text_bytes(arr)
+    if bytes_ is None:
+        return False
+    offsets, data = bytes_
+    if not (offsets[1:] > offsets[:-1]).all():
+        return False
+    first, last = data[offsets[:-1]], data[offsets[1:] - 1]
+    return bool(((first >= 33) & (first <= 126) & (last >= 33) & (last <= 126)).all())
 
 
 def to_number(col: pd.Series, *, decimal_comma: bool = False) -> np.ndarray:

@@ -268,3 +268,16 @@ def test_text_column_on_pyarrow_reads_as_object_column(cells):
     arrow_col = pd.Series(cells, dtype="str")
     object_col = pd.Series(cells, dtype=object)
     np.testing.assert_array_equal(date_array(arrow_col), date_array(object_col))
+
+
+@pytest.mark.parametrize("cells", [
+    ["C", "P", "call"], ["C", None], ["C", ""], ["C ", " P"], ["\u00a0", "C"],
+    ["é", "C"], [" ", "  "], ["a\tb", "~"], ["x"]])
+def test_presence_of_text_cells_is_python_strip(cells):
+    """A cell of a text column on pyarrow storage holds something exactly when Python's
+    ``str.strip`` leaves something of it (and it is not missing)."""
+    from optbench.data.parse import present
+    want = np.array([c is not None and c.strip() != "" for c in cells])
+    np.testing.assert_array_equal(present(pd.Series(cells, dtype="str")), want)
+    sliced = pd.Series(["x"] + cells, dtype="str").iloc[1:].reset_index(drop=True)
+    np.testing.assert_array_equal(present(sliced), want)
