@@ -337,6 +337,25 @@ def _rejected_frame(frame: pd.DataFrame, rows: np.ndarray, front: dict,
     return pd.concat([pd.DataFrame(front), raw_rows], axis=1)
 
 
+def _one_cell(arrow):
+    """The first cell of a pyarrow text array (as an array of one) when every cell
+    holds the same bytes and none is missing, else None: the array's distinct cells
+    when there is one, found by comparing bytes."""
+    from optbench.data.parse import _text_bytes
+    if arrow.null_count or len(arrow) == 0:
+        return None
+    bytes_ = _text_bytes(arrow)
+    if bytes_ is None:
+        return None
+    offsets, data = bytes_
+    n, size = len(arrow), int(offsets[1] - offsets[0])
+    if size == 0 or offsets[-1] - offsets[0] != n * size \
+            or not (np.diff(offsets) == size).all():
+        return None
+    rows = data[offsets[0]:offsets[-1]].reshape(n, size)
+    return arrow.slice(0, 1) if (rows == rows[0]).all() else None
+
+
 def _single_underlying(column: pd.Series) -> str | None:
     """The underlying of a text column on pyarrow storage whose non-blank cells all
     name one underlying (stripped, upper case): what the counting in
@@ -346,7 +365,9 @@ def _single_underlying(column: pd.Series) -> str | None:
         return None
     import pyarrow.compute as pc
     # the distinct cells first: the same set of names, normalised on a few cells
-    norm = pc.utf8_upper(pc.utf8_trim_whitespace(pc.unique(arrow)))
+    cells = _one_cell(arrow)
+    norm = pc.utf8_upper(pc.utf8_trim_whitespace(cells if cells is not None
+                                                 else pc.unique(arrow)))
     named = pc.unique(pc.filter(norm, pc.fill_null(pc.not_equal(norm, ""), False)))
     return str(named[0].as_py()) if len(named) == 1 else None
 

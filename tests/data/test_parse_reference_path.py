@@ -281,3 +281,18 @@ def test_presence_of_text_cells_is_python_strip(cells):
     np.testing.assert_array_equal(present(pd.Series(cells, dtype="str")), want)
     sliced = pd.Series(["x"] + cells, dtype="str").iloc[1:].reset_index(drop=True)
     np.testing.assert_array_equal(present(sliced), want)
+
+
+@pytest.mark.parametrize("cells", [
+    ["SYN1"] * 4, ["syn1 ", "SYN1", " Syn1"], ["A", "B"], ["A", None], ["", ""],
+    [" "] * 3, ["é"] * 3, ["ab", "ab", "ba"], ["X"]])
+def test_single_underlying_is_the_counted_one(cells):
+    """The chain's single underlying, read from the distinct cells (all cells the same
+    bytes compared at once), is the one counting the stripped, upper-cased non-blank
+    cells finds (None when there is not exactly one)."""
+    from optbench.data.chain import _single_underlying
+    names = {c.strip().upper() for c in cells if c is not None and c.strip()}
+    want = names.pop() if len(names) == 1 else None
+    assert _single_underlying(pd.Series(cells, dtype="str")) == want
+    sliced = pd.Series(["Q"] + cells, dtype="str").iloc[1:].reset_index(drop=True)
+    assert _single_underlying(sliced) == want
