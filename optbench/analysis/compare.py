@@ -185,7 +185,7 @@ def _usable_quotes(q: pd.DataFrame, expiries, source) -> pd.DataFrame:
     keep = q["t"].to_numpy(float) > 0
     if expiries is not None:
         keep &= _only_expiries(values, keep, expiries, source)
-    return (q if keep.all() else q[keep]).reset_index(drop=True)
+    return (q if keep.all() else q.take(np.flatnonzero(keep))).reset_index(drop=True)
 
 
 def _only_expiries(values: np.ndarray, usable: np.ndarray, expiries,
@@ -193,6 +193,18 @@ def _only_expiries(values: np.ndarray, usable: np.ndarray, expiries,
     """Which quotes (expiry ``values``) belong to the chosen expiries; an expiry with no
     ``usable`` quote is an error. Compared per listed expiry, not per quote."""
     listed_values = np.unique(values[usable])
+    wanted_days = [pd.Timestamp(e) for e in expiries]
+    if values.dtype.kind == "M" and all(
+            w.tz is None and 1900 <= w.year <= 2200 for w in wanted_days if not pd.isna(w)) \
+            and not any(pd.isna(w) for w in wanted_days):
+        # the same test on numpy's dates (the listed ones are the loader's, 1900-2200)
+        wanted64 = np.array([w.to_datetime64() for w in wanted_days])
+        found = np.isin(wanted64, listed_values)
+        if not found.all():
+            missing = sorted({w for w, f in zip(wanted_days, found) if not f})
+            raise InputError("--expiry", f"{missing[0].date().isoformat()} is not an "
+                                         f"expiry with usable quotes in {source}")
+        return np.isin(values, listed_values[np.isin(listed_values, wanted64)])
     listed = pd.to_datetime(listed_values)
     wanted = pd.to_datetime(pd.Index([pd.Timestamp(e) for e in expiries]))
     missing = sorted(set(wanted) - set(listed))

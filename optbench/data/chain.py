@@ -44,6 +44,16 @@ Listed strikes lie well inside a factor of 10 of spot (common practice: exchange
 list from about a fifth to a few times spot, even on long-dated expiries)."""
 
 STYLES = ("european", "american")
+_STYLE_DTYPE = None
+
+
+def _style_dtype() -> pd.CategoricalDtype:
+    """The categorical dtype of the quotes' ``style`` column (:data:`STYLES`), built
+    once: checking the categories costs more than building the column."""
+    global _STYLE_DTYPE
+    if _STYLE_DTYPE is None:
+        _STYLE_DTYPE = pd.CategoricalDtype(STYLES)
+    return _STYLE_DTYPE
 
 QUOTE_COLUMNS = ("expiry", "strike", "is_call", "bid", "ask", "mid", "last", "volume",
                  "open_interest", "style", "multiplier", "t", "calendar_days", "line",
@@ -158,9 +168,14 @@ def chain_file_in(folder: Path) -> Path:
 
 # --------------------------------------------------------------------------- layout
 
-def _long_fields(frame: pd.DataFrame, colmap: dict[str, str]):
-    """Field -> raw column for the long layout, and the row positions."""
-    fields = {f: frame[c] for f, c in colmap.items()}
+def _long_fields(frame: pd.DataFrame, colmap: dict[str, str], raw_columns=None):
+    """Field -> raw column for the long layout, and the row positions.
+    ``raw_columns``: the frame's ``(name, column)`` pairs when its names are unique."""
+    if raw_columns is not None:
+        by_name = dict(raw_columns)
+        fields = {f: by_name[c] for f, c in colmap.items()}
+    else:
+        fields = {f: frame[c] for f, c in colmap.items()}
     return fields, np.arange(len(frame)), None
 
 
@@ -303,6 +318,44 @@ def _column_source(column, in_meta: bool) -> str:
     return "file" if has.all() else f"file+{fallback}"
 
 
+def _rejected_frame(frame: pd.DataFrame, rows: np.ndarray, front: dict,
+                    raw_columns=None) -> pd.DataFrame:
+    """The rejected rows: the ``front`` columns (line, reason, detail[, side]), then the
+    raw fields of ``frame``'s rows ``rows`` as read (a raw column named like a front
+    column gets `` (file)``), numbered from 0. One frame built from the columns; a file
+    with repeated column names takes the concatenation it is equivalent to."""
+    names = [c if c not in front else f"{c} (file)" for c in frame.columns]
+    if len(set(names) | set(front)) == len(names) + len(front):
+        columns = dict(front)
+        for name, (_, raw) in zip(names, raw_columns if raw_columns is not None
+                                  else frame.items()):
+            columns[name] = raw.to_numpy().take(rows) if isinstance(raw.dtype, np.dtype) \
+                else raw.array.take(rows)
+        return pd.DataFrame(columns)
+    raw_rows = frame.iloc[rows].reset_index(drop=True)
+    raw_rows.columns = names
+    return pd.concat([pd.DataFrame(front), raw_rows], axis=1)
+
+
+def _one_cell(arrow):
+    """The first cell of a pyarrow text array (as an array of one) when every cell
+    holds the same bytes and none is missing, else None: the array's distinct cells
+    when there is one, found by comparing bytes."""
+    from optbench.data.parse import _text_bytes
+    if arrow.null_count or len(arrow) == 0:
+        return None
+    bytes_ = _text_bytes(arrow)
+    if bytes_ is None:
+        return None
+    offsets, data = bytes_
+    n, size = len(arrow), int(offsets[1] - offsets[0])
+    if size == 0 or offsets[-1] - offsets[0] != n * size \
+            or not (np.diff(offsets) == size).all():
+        return None
+    rows = data[offsets[0]:offsets[-1]].reshape(n, size)
+    return arrow.slice(0, 1) if (rows == rows[0]).all() else None
+
+
 def _single_underlying(column: pd.Series) -> str | None:
     """The underlying of a text column on pyarrow storage whose non-blank cells all
     name one underlying (stripped, upper case): what the counting in
@@ -311,7 +364,10 @@ def _single_underlying(column: pd.Series) -> str | None:
     if arrow is None:
         return None
     import pyarrow.compute as pc
-    norm = pc.utf8_upper(pc.utf8_trim_whitespace(arrow))
+    # the distinct cells first: the same set of names, normalised on a few cells
+    cells = _one_cell(arrow)
+    norm = pc.utf8_upper(pc.utf8_trim_whitespace(cells if cells is not None
+                                                 else pc.unique(arrow)))
     named = pc.unique(pc.filter(norm, pc.fill_null(pc.not_equal(norm, ""), False)))
     return str(named[0].as_py()) if len(named) == 1 else None
 
@@ -383,13 +439,17 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     raw: RawTable = read_table(path, header_test=_is_header)
     frame = drop_blank_rows(raw.frame)
     file_lines = raw.line0 + frame.index.to_numpy()
-    frame = frame.reset_index(drop=True)
+    if not (isinstance(frame.index, pd.RangeIndex) and frame.index.start == 0
+            and frame.index.step == 1):
+        frame = frame.reset_index(drop=True)
     if raw.last_line is not None and file_lines.size and file_lines[-1] != raw.last_line:
         notes.append("some quoted cells span several lines: line numbers count records "
                      "from the header, not physical lines")
     if frame.shape[1] <= 1:
         _require_columns(path, frame, {})
     colmap = map_chain_columns(frame.columns)
+    # the raw columns once, for the fields and the rejected rows (unique names only)
+    raw_columns = list(frame.items()) if frame.columns.is_unique else None
     sides = {c: s for c in frame.columns if c not in colmap.values()
              and (s := side_of(c)) is not None}
     side_set = {(s, f) for s, f in sides.values()}
@@ -398,7 +458,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     if wide:
         fields, pos, side = _wide_fields(frame, colmap, sides)
     else:
-        fields, pos, side = _long_fields(frame, colmap)
+        fields, pos, side = _long_fields(frame, colmap, raw_columns)
     _require_columns(path, frame, fields)
     if len(frame) == 0:
         raise InputError(path, "the file has a header but no quotes")
@@ -477,7 +537,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
 
     # ---- style and multiplier per row
     if style is not None:
-        row_style = np.full(n, style_word(style, "--style"), dtype=object)
+        american = np.full(n, style_word(style, "--style") == "american")
         bad_style = np.zeros(n, bool)
         style_source = "caller"
     else:
@@ -487,9 +547,10 @@ def load_chain(path: str | Path, *, spot: float | None = None,
             st = to_style(col("style")).to_numpy(dtype=object)
             has = present(col("style"))
             bad_style = has & pd.isna(st)
-            row_style = np.where(has & ~bad_style, st, default_style).astype(object)
+            american = np.where(has & ~bad_style, st == "american",
+                                default_style == "american")
         else:
-            row_style = np.full(n, default_style, dtype=object)
+            american = np.full(n, default_style == "american")
             bad_style = np.zeros(n, bool)
     if multiplier is not None:
         if not np.isfinite(multiplier) or multiplier <= 0:
@@ -625,7 +686,6 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     p["bid"] = bid
     p["ask"] = ask
     p["multiplier"] = mult
-    american = row_style == "american"
     p["american"] = american
     p["calendar_days"] = calendar_days
     for f, m in miss.items():
@@ -679,7 +739,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     pos_in_kept = np.empty(n, dtype=np.int64)
     pos_in_kept[idx] = np.arange(idx.size)
     warn_sorted = pd.Categorical.from_codes(np.asarray(warn.codes)[pos_in_kept[order]],
-                                            categories=warn.categories)
+                                            dtype=warn.dtype, validate=False)
     quotes = pd.DataFrame({
         "expiry": expiry[order].astype("datetime64[ns]"),
         "strike": strike[order].astype(float),
@@ -688,7 +748,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         "last": opt["last"][order], "volume": opt["volume"][order],
         "open_interest": opt["open_interest"][order],
         "style": pd.Categorical.from_codes(
-            american[order].astype(np.int8), categories=STYLES),
+            american[order].astype(np.int8), dtype=_style_dtype(), validate=False),
         "multiplier": mult[order].astype(float),
         "t": calendar_days[order] / 365.0,
         "calendar_days": calendar_days[order].astype(np.int64),
@@ -707,15 +767,10 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     # the rejected rows in line order (stable: a wide line's call before its put)
     rej_at = np.flatnonzero(rej)
     rej_at = rej_at[np.argsort(line[rej_at], kind="stable")]
-    rejected = pd.DataFrame({"line": line[rej_at].astype(np.int64),
-                             "reason": reason[rej_at].astype(object),
-                             "detail": detail[rej_at].astype(object)})
-    if side is not None:
-        rejected["side"] = side[rej_at]
-    raw_rows = frame.iloc[pos[rej_at]].reset_index(drop=True)
-    raw_rows.columns = [c if c not in rejected.columns else f"{c} (file)"
-                        for c in raw_rows.columns]
-    rejected = pd.concat([rejected, raw_rows], axis=1)
+    rejected = _rejected_frame(frame, pos[rej_at], {
+        "line": line[rej_at].astype(np.int64), "reason": reason[rej_at].astype(object),
+        "detail": detail[rej_at].astype(object),
+        **({"side": side[rej_at]} if side is not None else {})}, raw_columns)
 
     found, found_count = np.unique(reason[rej].astype(str), return_counts=True)
     counts = dict(zip(found.tolist(), found_count.tolist()))

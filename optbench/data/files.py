@@ -12,6 +12,7 @@ import csv
 from dataclasses import dataclass
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from optbench.errors import InputError
@@ -79,6 +80,28 @@ def _pick_delimiter(lines: list[str]) -> str:
     return best
 
 
+#: lines of a file's head that :func:`read_table` looks at: the preamble search and
+#: the six lines after the header
+_HEAD_LINES = _MAX_PREAMBLE + 6
+
+
+def _head_lines(text: str, cut: bool) -> list[str]:
+    """``text.splitlines()`` (less its last line when the head was ``cut`` short), as
+    far as :func:`read_table` reads it: the first :data:`_HEAD_LINES` lines. A prefix
+    of the text is split when it holds more lines than that (its first lines are then
+    whole lines of the text, a line break split across the prefix's end coming later)."""
+    size = 4096
+    while size < len(text):
+        lines = text[:size].splitlines()
+        if len(lines) > _HEAD_LINES + 2:
+            return lines[:_HEAD_LINES]
+        size *= 4
+    lines = text.splitlines()
+    if cut and lines:
+        lines = lines[:-1]  # the last line may be cut short
+    return lines[:_HEAD_LINES]
+
+
 def read_table(path: str | Path, *, header_test=None) -> RawTable:
     """Read a CSV or Parquet file into a raw frame.
 
@@ -111,9 +134,7 @@ def read_table(path: str | Path, *, header_test=None) -> RawTable:
         if not head.strip():
             raise InputError(path, "file is empty")
     text, encoding = _decode(head, path)
-    lines = text.splitlines()
-    if len(head) == _SNIFF_BYTES and lines:
-        lines = lines[:-1]  # the last line may be cut short
+    lines = _head_lines(text, cut=len(head) == _SNIFF_BYTES)
     skip = 0
     if header_test is not None:
         for i, line in enumerate(lines[:_MAX_PREAMBLE]):
@@ -144,7 +165,8 @@ def read_table(path: str | Path, *, header_test=None) -> RawTable:
     last_line = None
     if compression is None and encoding != "utf-16":
         # the number of the last non-blank line, to tell whether rows map to lines
-        last_line = path.read_bytes().rstrip(b"\r\n\t ").count(b"\n") + 1
+        data = np.frombuffer(path.read_bytes().rstrip(b"\r\n\t "), dtype=np.uint8)
+        last_line = int(np.count_nonzero(data == 10)) + 1
     return RawTable(path=path, frame=frame, line0=skip + 2, delimiter=delim,
                     decimal_comma=decimal_comma, kind="csv", last_line=last_line)
 
@@ -178,7 +200,21 @@ def drop_blank_rows(frame: pd.DataFrame) -> pd.DataFrame:
     """Drop rows with no cell at all (blank lines); the index keeps file positions."""
     if frame.empty:
         return frame
-    blank = frame.isna().all(axis=1)
+    # a numpy integer or bool column holds no missing cell: no row is blank
+    if any(isinstance(d, np.dtype) and d.kind in "iub" for d in frame.dtypes.tolist()):
+        return frame
+    columns = [col for _, col in frame.items()]
+    # float columns first (a NaN test on their numbers), the others only if needed
+    is_float = [isinstance(c.dtype, np.dtype) and c.dtype.kind == "f" for c in columns]
+    blank = np.ones(len(frame), dtype=bool)
+    for c, f in zip(columns, is_float):
+        if f:
+            blank &= np.isnan(c.to_numpy())
+    for c, f in zip(columns, is_float):
+        if not blank.any():
+            return frame
+        if not f:
+            blank &= c.isna().to_numpy(dtype=bool)
     return frame[~blank] if blank.any() else frame
 
 

@@ -18,6 +18,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 
 from optbench.data.columns import map_history_columns
 from optbench.data.files import drop_blank_rows, read_table
@@ -118,7 +119,9 @@ def load_history(path: str | Path) -> PriceHistory:
     raw = read_table(path, header_test=_is_header)
     frame = drop_blank_rows(raw.frame)
     lines = raw.line0 + frame.index.to_numpy()
-    frame = frame.reset_index(drop=True)
+    if not (isinstance(frame.index, pd.RangeIndex) and frame.index.start == 0
+            and frame.index.step == 1):
+        frame = frame.reset_index(drop=True)
     if frame.shape[1] <= 1:
         raise InputError(path, "only one column found: the delimiter is not one of "
                          ", ; tab | or the file is not a price history")

@@ -30,10 +30,17 @@ def arrow_text(col: pd.Series):
 
 def present(col: pd.Series) -> np.ndarray:
     """True where a cell holds something (not NaN and not only blanks)."""
+    dtype = col.dtype
+    if isinstance(dtype, np.dtype) and dtype.kind in "iub":
+        return np.ones(len(col), dtype=bool)      # numpy integers hold no missing cell
+    if isinstance(dtype, np.dtype) and dtype.kind == "f":
+        return ~np.isnan(col.to_numpy())
     if col.dtype.kind in "biufcmM":
         return col.notna().to_numpy()
     arrow = arrow_text(col)
     if arrow is not None:
+        if _every_cell_printed(arrow):
+            return np.ones(len(arrow), dtype=bool)
         # what ``col.str.strip() != ""`` computes on pyarrow storage, without the
         # Series around each step
         import pyarrow.compute as pc
@@ -49,6 +56,22 @@ def present(col: pd.Series) -> np.ndarray:
         out[has] = (text != "").to_numpy(dtype=bool)
         return out
     return has & (text != "").fillna(False).to_numpy(dtype=bool)
+
+
+def _every_cell_printed(arr) -> bool:
+    """True when a pyarrow text array has no missing cell and every cell starts and ends
+    with a printable ASCII character other than a blank (bytes 33-126): no cell can
+    strip to nothing, so every cell holds something (what :func:`present` asks)."""
+    if arr.null_count or len(arr) == 0:
+        return False
+    bytes_ = _text_bytes(arr)
+    if bytes_ is None:
+        return False
+    offsets, data = bytes_
+    if not (offsets[1:] > offsets[:-1]).all():
+        return False
+    first, last = data[offsets[:-1]], data[offsets[1:] - 1]
+    return bool(((first >= 33) & (first <= 126) & (last >= 33) & (last <= 126)).all())
 
 
 def to_number(col: pd.Series, *, decimal_comma: bool = False) -> np.ndarray:
@@ -123,21 +146,138 @@ def _plain_iso_dates(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     if ten.size == 0:
         return np.zeros(values.shape, bool), out
     chars = text[ten].astype("U10").view(np.uint32).reshape(-1, 10).astype(np.int64)
-    digits = chars[:, _ISO_DIGITS] - 48
-    shaped = ((digits >= 0) & (digits <= 9)).all(axis=1) \
-        & (chars[:, 4] == 45) & (chars[:, 7] == 45)
-    year, month, day = (np.where(shaped[:, None], digits, 0) @ _ISO_PLACES.T).T
-    months = (year - 1970) * 12 + (month - 1)
-    first = months.astype("datetime64[M]").astype("datetime64[D]")
-    days_in_month = ((months + 1).astype("datetime64[M]").astype("datetime64[D]")
-                     - first).astype(np.int64)
-    dates = first + (day - 1)
-    ok = shaped & (month >= 1) & (month <= 12) & (day >= 1) & (day <= days_in_month) \
-        & (dates >= DATE_MIN) & (dates <= DATE_MAX)
+    ok, dates = _iso_from_chars(chars)
     mask = np.zeros(values.shape, bool)
     mask[ten[ok]] = True
     out[ten[ok]] = dates[ok].astype("datetime64[ns]")
     return mask, out
+
+
+def _iso_from_chars(chars: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Rows of a (m, 10) matrix of character codes that spell a plain ISO date in
+    :data:`DATE_MIN` .. :data:`DATE_MAX` (the rule of :func:`_plain_iso_dates`): a mask
+    and their dates (datetime64[D], meaningful where the mask is set).
+
+    Notes
+    -----
+    The month's length follows the proleptic Gregorian calendar (numpy's): 29 days in
+    February when the year is divisible by 4 and not by 100, or by 400. The day number
+    is the year's first day (numpy's calendar, one table for the years 0000-9999) plus
+    the days of the months before and the day of the month.
+    """
+    # digit values (0-9 where the row has the shape; rows without it are masked out)
+    digit = (chars >= 48) & (chars <= 57)
+    d = (np.where(digit, chars, 48) - 48).astype(np.int32)
+    shaped = digit[:, _ISO_DIGITS].all(axis=1) & (chars[:, 4] == 45) & (chars[:, 7] == 45)
+    year = d[:, 0] * 1000 + d[:, 1] * 100 + d[:, 2] * 10 + d[:, 3]
+    month = d[:, 5] * 10 + d[:, 6]
+    day = d[:, 8] * 10 + d[:, 9]
+    year_start, leap_year = _year_tables()
+    leap = leap_year[year]
+    month_at = np.minimum(month, 12)
+    days_in_month = _MONTH_DAYS[month_at] + (leap & (month == 2))
+    days = year_start[year] + _DAYS_BEFORE_MONTH[month_at] + (leap & (month > 2)) + day - 1
+    ok = shaped & (month >= 1) & (month <= 12) & (day >= 1) & (day <= days_in_month) \
+        & (days >= _DAY_MIN) & (days <= _DAY_MAX)
+    return ok, days.astype(np.int64).astype("datetime64[D]")
+
+
+#: days of each month in a common year (index 0 unused), and the date range as day
+#: numbers from 1970-01-01
+_MONTH_DAYS = np.array([0, 31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31], dtype=np.int32)
+_DAYS_BEFORE_MONTH = np.concatenate([[0], np.cumsum(_MONTH_DAYS)[:-1]]).astype(np.int32)
+_DAY_MIN = int(DATE_MIN.astype(np.int64))
+_DAY_MAX = int(DATE_MAX.astype(np.int64))
+
+
+_YEAR_TABLES = None
+
+
+def _text_bytes(arr):
+    """``(offsets, data)`` of a pyarrow string array (its cells' byte offsets as int64,
+    ``n + 1`` of them, and its bytes as uint8), or None for another type."""
+    import pyarrow as pa
+    if pa.types.is_large_string(arr.type):
+        off_type = np.int64
+    elif pa.types.is_string(arr.type):
+        off_type = np.int32
+    else:
+        return None
+    bufs = arr.buffers()
+    if bufs[1] is None:
+        return np.zeros(1, np.int64), np.zeros(0, np.uint8)
+    offsets = np.frombuffer(bufs[1], dtype=off_type)[arr.offset:arr.offset + len(arr) + 1] \
+        .astype(np.int64)
+    data = np.frombuffer(bufs[2], dtype=np.uint8) if bufs[2] is not None else \
+        np.zeros(0, np.uint8)
+    return offsets, data
+
+
+def _all_plain_iso_arrow(arr) -> np.ndarray | None:
+    """The dates of a pyarrow text column whose every cell is a plain ISO date
+    (:func:`_plain_iso_dates`'s rule, read from the bytes): datetime64[ns] per cell;
+    None when any cell is missing or not such a date (then each distinct cell is
+    parsed on its own). A plain cell reads the same whatever the other cells hold."""
+    if arr.null_count or len(arr) == 0:
+        return None
+    bytes_ = _text_bytes(arr)
+    if bytes_ is None:
+        return None
+    offsets, data = bytes_
+    n = len(arr)
+    if offsets[-1] - offsets[0] != 10 * n or not (np.diff(offsets) == 10).all():
+        return None
+    ok, dates = _iso_from_chars(data[offsets[0]:offsets[-1]].reshape(n, 10))
+    if not ok.all():
+        return None
+    return dates.astype("datetime64[ns]")
+
+
+def _year_tables() -> tuple[np.ndarray, np.ndarray]:
+    """For the years 0000-9999: the day number of each year's 1 January (from
+    1970-01-01, numpy's proleptic Gregorian calendar) and whether it is a leap year
+    (366 days). Built once."""
+    global _YEAR_TABLES
+    if _YEAR_TABLES is None:
+        firsts = (np.arange(10001) - 1970).astype("datetime64[Y]").astype("datetime64[D]") \
+            .astype(np.int64)
+        _YEAR_TABLES = (firsts[:-1].astype(np.int32), np.diff(firsts) == 366)
+    return _YEAR_TABLES
+
+
+def _parse_unique_arrow(uniq) -> np.ndarray:
+    """:func:`_parse_unique` of the distinct cells of a text column held by pyarrow
+    (a string array without nulls): the plain ISO cells are read from the array's
+    bytes (ten bytes, the rule of :func:`_plain_iso_dates`), the others by the format
+    search. The same dates as :func:`_parse_unique` on the cells as Python strings."""
+    import pyarrow as pa
+    n = len(uniq)
+    bytes_ = _text_bytes(uniq)
+    if bytes_ is None:
+        return _parse_unique(np.asarray(uniq.to_numpy(zero_copy_only=False), dtype=object))
+    if n == 0:
+        return np.full(0, np.datetime64("NaT"), dtype="datetime64[ns]")
+    offsets, data = bytes_
+    if not (data[offsets[0]:offsets[-1]] != 0).all():
+        # a NUL character: numpy's text arrays drop trailing ones, so let
+        # :func:`_parse_unique` read the cells exactly as it always has
+        return _parse_unique(np.asarray(uniq.to_numpy(zero_copy_only=False), dtype=object))
+    out = np.full(n, np.datetime64("NaT"), dtype="datetime64[ns]")
+    plain = np.zeros(n, bool)
+    ten = np.flatnonzero(np.diff(offsets) == 10)
+    if ten.size == n and offsets[-1] - offsets[0] == 10 * n:
+        chars = data[offsets[0]:offsets[-1]].reshape(n, 10)  # every cell ten bytes
+    elif ten.size:
+        chars = data[offsets[ten][:, None] + np.arange(10)]
+    if ten.size:
+        ok, dates = _iso_from_chars(chars)
+        plain[ten[ok]] = True
+        out[ten[ok]] = dates[ok].astype("datetime64[ns]")
+    if not plain.all():
+        rest = np.asarray(uniq.filter(pa.array(~plain)).to_numpy(zero_copy_only=False),
+                          dtype=object)
+        out[~plain] = _parse_by_format(pd.Series(rest, dtype=object)).to_numpy()
+    return out
 
 
 def _parse_unique(values: np.ndarray) -> np.ndarray:
@@ -211,6 +351,17 @@ def date_array(col: pd.Series) -> np.ndarray:
     """:func:`to_date` as a datetime64[ns] array (no Series built)."""
     if col.dtype.kind == "M" or col.dtype.kind in "iuf":
         return to_date(col).to_numpy()
+    arrow = arrow_text(col)
+    if arrow is not None:
+        # each distinct cell parsed once, as below, on pyarrow's own arrays
+        direct = _all_plain_iso_arrow(arrow)
+        if direct is not None:
+            return direct
+        import pyarrow.compute as pc
+        enc = pc.dictionary_encode(arrow)
+        parsed = _parse_unique_arrow(enc.dictionary)
+        codes = pc.fill_null(enc.indices, -1).to_numpy(zero_copy_only=False)
+        return np.append(parsed, np.datetime64("NaT", "ns"))[codes]
     codes, uniques = pd.factorize(col, use_na_sentinel=True)
     parsed = _parse_unique(np.asarray(uniques, dtype=object))
     out = np.full(len(col), np.datetime64("NaT"), dtype="datetime64[ns]")

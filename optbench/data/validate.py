@@ -114,6 +114,9 @@ def first_of_contract(*keys: np.ndarray) -> np.ndarray:
     keys in order of first appearance, so a key's first row is where its code first
     exceeds every code before it.
     """
+    fast = _first_of_sorted_keys(keys)
+    if fast is not None:
+        return fast
     ids = np.zeros(len(keys[0]), dtype=np.int64)
     size = 1
     for col in keys:
@@ -129,6 +132,41 @@ def first_of_contract(*keys: np.ndarray) -> np.ndarray:
     seen_before = np.maximum.accumulate(np.r_[-1, ids[:-1]])
     first_rows = np.flatnonzero(ids > seen_before)
     return first_rows[ids]
+
+
+def _first_of_sorted_keys(keys) -> np.ndarray | None:
+    """:func:`first_of_contract` for keys that are numpy numbers, booleans or dates
+    (None for any other key): the rows sorted by their keys (``numpy.lexsort``, stable,
+    so each key's rows keep their order), a new key wherever a column changes from the
+    row before (NaN equal to NaN, NaT to NaT, -0.0 to 0.0: the equality of
+    ``pandas.factorize``), and each row pointed at its key's first row."""
+    cols = []
+    for col in keys:
+        a = np.asarray(col)
+        if a.dtype.kind == "M":
+            a = a.view(np.int64)             # NaT is one integer: equal to itself
+        elif a.dtype.kind == "f":
+            a = a.astype(np.float64) + 0.0    # -0.0 + 0.0 is 0.0
+        elif a.dtype.kind not in "biu":
+            return None
+        cols.append(a)
+    n = cols[0].size
+    if n == 0:
+        return np.zeros(0, dtype=np.int64)
+    order = np.lexsort(cols[::-1])           # the first key sorts first
+    new_key = np.zeros(n, dtype=bool)
+    new_key[0] = True
+    for a in cols:
+        s = a[order]
+        differs = s[1:] != s[:-1]
+        if s.dtype.kind == "f":
+            differs &= ~(np.isnan(s[1:]) & np.isnan(s[:-1]))
+        new_key[1:] |= differs
+    starts = np.flatnonzero(new_key)
+    first_sorted = order[starts][np.cumsum(new_key) - 1]
+    out = np.empty(n, dtype=np.int64)
+    out[order] = first_sorted
+    return out
 
 
 def assign_reasons(p, *, spot: float, rate: float, div_yield: float,
@@ -252,6 +290,19 @@ def quote_warnings(volume: np.ndarray, open_interest: np.ndarray, mid: np.ndarra
     codes = np.zeros(len(mid), dtype=np.int16)
     for i, (_, mask) in enumerate(flags):
         codes += (np.asarray(mask, dtype=bool) << i).astype(np.int16)
-    names = [",".join(f for i, (f, _) in enumerate(flags) if code >> i & 1)
-             for code in range(2 ** len(flags))]
-    return pd.Categorical.from_codes(codes, categories=names)
+    return pd.Categorical.from_codes(codes, dtype=_warning_dtype(), validate=False)
+
+
+def _warning_dtype() -> pd.CategoricalDtype:
+    """The categories of :func:`quote_warnings`: every combination of its three flags,
+    in code order (built once; checking the categories costs more than the codes)."""
+    global _WARNING_DTYPE
+    if _WARNING_DTYPE is None:
+        flags = ("stale", "tiny_price", "bad_optional_field")
+        _WARNING_DTYPE = pd.CategoricalDtype(
+            [",".join(f for i, f in enumerate(flags) if code >> i & 1)
+             for code in range(2 ** len(flags))])
+    return _WARNING_DTYPE
+
+
+_WARNING_DTYPE = None

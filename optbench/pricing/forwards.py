@@ -60,6 +60,19 @@ def _weighted_median(values: np.ndarray, weights: np.ndarray) -> float:
     return float(v[np.searchsorted(c, 0.5 * c[-1])])
 
 
+def _median(values: np.ndarray) -> float:
+    """``numpy.median`` of a short 1-d array of finite numbers, without its generic
+    machinery: the middle value of the sorted values, or the sum of the two middle
+    ones divided by 2 (numpy's mean of the two, the same floating-point operations)."""
+    v = np.sort(values)
+    m = v.size // 2
+    if v.size == 0:
+        return np.median(values)
+    if v.size % 2:
+        return v[m]
+    return (v[m - 1] + v[m]) / 2
+
+
 def _wls_line(k, y, w):
     """Weighted least squares y = a + b k; returns a, b, se_b, residuals."""
     sw = w.sum()
@@ -176,7 +189,7 @@ def implied_forwards(quotes: pd.DataFrame, spot: float, rate: float, div_yield: 
     if not (np.isfinite(spot) and spot > 0):
         raise ValueError(f"spot must be a positive number, got {spot}")
     # one integer code per expiry (sorted; NaT -> -1, as groupby drops it)
-    codes, uniq = pd.factorize(quotes["expiry"], sort=True, use_na_sentinel=True)
+    codes, uniq = _expiry_codes(quotes["expiry"])
     n_exp = len(uniq)
     has = codes >= 0
     t_all = quotes["t"].to_numpy()
@@ -228,22 +241,41 @@ def implied_forwards(quotes: pd.DataFrame, spot: float, rate: float, div_yield: 
               "dividend_forward", "cash_carry"):
         columns[c] = np.array(columns[c], dtype=float)
     columns["n_pairs"] = np.array(columns["n_pairs"], dtype=np.int64)
-    return pd.DataFrame(columns, columns=FORWARD_COLUMNS)
+    return pd.DataFrame(columns)  # the dict holds FORWARD_COLUMNS in order
+
+
+def _expiry_codes(expiry: pd.Series):
+    """``pandas.factorize(expiry, sort=True)``: an integer code per quote (-1 for a
+    missing expiry) and the distinct expiries in order. A datetime64 column is coded
+    by ``numpy.unique`` on its values (the same codes and dates, without the index
+    pandas builds); other columns by pandas."""
+    values = expiry.to_numpy()
+    if values.dtype.kind != "M":
+        return pd.factorize(expiry, sort=True, use_na_sentinel=True)
+    nat = np.isnat(values)
+    if nat.any():
+        uniq, inv = np.unique(values[~nat], return_inverse=True)
+        codes = np.full(values.shape, -1, dtype=np.intp)
+        codes[~nat] = inv.ravel()
+        return codes, uniq
+    uniq, inv = np.unique(values, return_inverse=True)
+    return inv.ravel().astype(np.intp), uniq
 
 
 def _is_american(style: pd.Series) -> np.ndarray:
     """True where a ``style`` cell reads ``american`` (any case); a categorical
     column is read once per category."""
     if isinstance(style.dtype, pd.CategoricalDtype):
-        categories = list(style.cat.categories)
+        cat = style.array  # the Categorical itself (no accessor built)
+        categories = list(cat.categories)
         if all(isinstance(c, str) and c.isascii() for c in categories):
             # plain ASCII words (the canonical european/american): lower case is the
             # same by Python's rules and pyarrow's
             cats = np.array([c.lower() == "american" for c in categories], dtype=bool)
         else:
-            cats = (pd.Series(style.cat.categories).astype(str).str.lower()
+            cats = (pd.Series(cat.categories).astype(str).str.lower()
                     == "american").to_numpy(bool)
-        codes = style.cat.codes.to_numpy()
+        codes = np.asarray(cat.codes)
         table = np.append(cats, str(np.nan).lower() == "american")
         return table[codes]
     return (style.astype(str).str.lower() == "american").to_numpy(bool)
@@ -307,7 +339,7 @@ def _fit_expiry(k: np.ndarray, y: np.ndarray, spread2: np.ndarray, t: float,
     for _ in range(2):  # trim outliers, refit
         if not np.all(np.isfinite(res)):
             break
-        mad = np.median(np.abs(res[keep]))
+        mad = _median(np.abs(res[keep]))
         scale = 1.4826 * mad
         if scale <= 0:
             break

@@ -56,7 +56,7 @@ def quote_vol_arrays(quotes: pd.DataFrame, forwards: pd.DataFrame,
     for col in ("expiry", "strike", "is_call", "bid", "ask", "t"):
         if col not in quotes.columns:
             raise ValueError(f"quotes frame lacks column {col!r}")
-    at = pd.Index(forwards["expiry"]).get_indexer(quotes["expiry"])
+    at = _expiry_rows(forwards["expiry"], quotes["expiry"])
     if (at < 0).any():
         missing = set(quotes["expiry"].unique()) - set(forwards["expiry"])
         raise ValueError(f"no forward for expiry {sorted(missing)[0]}")
@@ -99,6 +99,20 @@ def quote_vol_arrays(quotes: pd.DataFrame, forwards: pd.DataFrame,
         st[i] = sa
     return QuoteVols(forward=F, discount=D, rate=r, carry=carry, vols=vol.reshape(3, n),
                      status=st.reshape(3, n), american=am)
+
+
+def _expiry_rows(listed: pd.Series, wanted: pd.Series) -> np.ndarray:
+    """Row of ``listed`` (distinct expiries) holding each of ``wanted``, -1 where none:
+    ``pandas.Index(listed).get_indexer(wanted)``, by a sorted search when both are
+    datetime64 of one unit (no index built)."""
+    lv, wv = listed.to_numpy(), wanted.to_numpy()
+    if lv.dtype.kind != "M" or lv.dtype != wv.dtype or not lv.size \
+            or np.isnat(lv).any() or np.unique(lv).size != lv.size:
+        return pd.Index(listed).get_indexer(wanted)
+    order = np.argsort(lv, kind="stable")
+    ranked = lv[order]
+    pos = np.minimum(np.searchsorted(ranked, wv), ranked.size - 1)
+    return np.where(ranked[pos] == wv, order[pos], -1).astype(np.intp)
 
 
 def quote_implied_vols(quotes: pd.DataFrame, forwards: pd.DataFrame,

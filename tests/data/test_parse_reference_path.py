@@ -235,3 +235,64 @@ def test_styles_and_types_on_pyarrow_text_match_the_object_path():
     assert list(to_style(pd.Series(STYLE_CELLS, dtype="str"))) == [
         "european", "american", "european", "american", None, None, None, "european",
         "american"]
+
+
+@pytest.mark.parametrize("kind", ["string", "large_string"])
+def test_arrow_cells_read_as_python_strings(kind):
+    """The distinct cells of a pyarrow text column (read from its bytes) give the dates
+    the object path gives, edge cells, a NUL byte and a sliced array included; without
+    NUL bytes the reference is also the format search on every cell (a trailing NUL is
+    dropped by numpy's text arrays in the object path, and kept as it always was)."""
+    import pyarrow as pa
+
+    from optbench.data.parse import _parse_unique_arrow
+    cells = EDGE_CELLS + ["2026-12-0\x00", "2026-12-04\x00", "１９９９-01-01"]
+    for arr in (pa.array(cells, type=getattr(pa, kind)()),
+                pa.array(["x"] + cells, type=getattr(pa, kind)()).slice(1)):
+        got = _parse_unique_arrow(arr)
+        np.testing.assert_array_equal(got, _parse_unique(np.array(cells, dtype=object)))
+    clean = [c for c in cells if "\x00" not in c]
+    np.testing.assert_array_equal(_parse_unique_arrow(pa.array(clean, type=getattr(pa, kind)())),
+                                  _reference(clean))
+
+
+@pytest.mark.parametrize("cells", [
+    ["2026-12-18"] * 3 + ["2027-01-15"],                  # every cell plain: read at once
+    ["2026-12-18", None, "2027-01-15"],                    # a missing cell
+    ["2026-12-18", "2026-02-30", "2026-12-18"],            # not a calendar date
+    ["2026-12-18", "12/18/2026", "2026-12-18 16:00"],      # other forms
+    ["1899-12-31", "2026-12-18"], ["2026-12-18"]])
+def test_text_column_on_pyarrow_reads_as_object_column(cells):
+    """A pandas text column on pyarrow storage (pandas' default for text) gives the
+    dates the same cells give as a plain object column (the factorize path)."""
+    arrow_col = pd.Series(cells, dtype="str")
+    object_col = pd.Series(cells, dtype=object)
+    np.testing.assert_array_equal(date_array(arrow_col), date_array(object_col))
+
+
+@pytest.mark.parametrize("cells", [
+    ["C", "P", "call"], ["C", None], ["C", ""], ["C ", " P"], ["\u00a0", "C"],
+    ["é", "C"], [" ", "  "], ["a\tb", "~"], ["x"]])
+def test_presence_of_text_cells_is_python_strip(cells):
+    """A cell of a text column on pyarrow storage holds something exactly when Python's
+    ``str.strip`` leaves something of it (and it is not missing)."""
+    from optbench.data.parse import present
+    want = np.array([c is not None and c.strip() != "" for c in cells])
+    np.testing.assert_array_equal(present(pd.Series(cells, dtype="str")), want)
+    sliced = pd.Series(["x"] + cells, dtype="str").iloc[1:].reset_index(drop=True)
+    np.testing.assert_array_equal(present(sliced), want)
+
+
+@pytest.mark.parametrize("cells", [
+    ["SYN1"] * 4, ["syn1 ", "SYN1", " Syn1"], ["A", "B"], ["A", None], ["", ""],
+    [" "] * 3, ["é"] * 3, ["ab", "ab", "ba"], ["X"]])
+def test_single_underlying_is_the_counted_one(cells):
+    """The chain's single underlying, read from the distinct cells (all cells the same
+    bytes compared at once), is the one counting the stripped, upper-cased non-blank
+    cells finds (None when there is not exactly one)."""
+    from optbench.data.chain import _single_underlying
+    names = {c.strip().upper() for c in cells if c is not None and c.strip()}
+    want = names.pop() if len(names) == 1 else None
+    assert _single_underlying(pd.Series(cells, dtype="str")) == want
+    sliced = pd.Series(["Q"] + cells, dtype="str").iloc[1:].reset_index(drop=True)
+    assert _single_underlying(sliced) == want

@@ -176,3 +176,28 @@ def test_dividend_yield_moves_the_call_bound(tmp_path):
     assert load_chain(path, rate=r, div_yield=q).quality.rows_used == 1
     # ignoring the yield the same quote looks below S - K e^{-rt}: the yield matters
     assert load_chain(path, rate=r).quality.rejected == {"below_intrinsic": 1}
+
+
+def test_first_of_contract_matches_pandas_grouping():
+    """The first row of each contract key, NaN equal to NaN, NaT to NaT and -0.0 to
+    0.0, against pandas' own grouping of the same columns
+    (``DataFrame.groupby(..., dropna=False).ngroup()``, groups numbered by first
+    appearance) on random keys; the factorize path (an object key) agrees too."""
+    import pandas as pd
+
+    from optbench.data.validate import first_of_contract
+    rng = np.random.default_rng(20261204)
+    for _ in range(300):
+        n = int(rng.integers(1, 50))
+        e = np.array(["2026-01-16", "2026-02-20", "NaT"],
+                     dtype="datetime64[ns]")[rng.integers(0, 3, n)]
+        k = np.array([0.0, -0.0, np.nan, 95.0, 100.0])[rng.integers(0, 5, n)]
+        c = rng.integers(0, 2, n).astype(bool)
+        m = np.array([100.0, 10.0, np.nan])[rng.integers(0, 3, n)]
+        frame = pd.DataFrame({"e": e, "k": k + 0.0, "c": c, "m": m})
+        group = frame.groupby(["e", "k", "c", "m"], dropna=False, sort=False).ngroup() \
+            .to_numpy()
+        first_row = np.array([np.flatnonzero(group == g)[0] for g in group])
+        np.testing.assert_array_equal(first_of_contract(e, k, c, m), first_row)
+        np.testing.assert_array_equal(first_of_contract(e, k, c, m.astype(object)),
+                                      first_row)

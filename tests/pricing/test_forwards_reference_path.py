@@ -115,3 +115,16 @@ def test_quote_vols_match_the_reference_path(seed):
                          reference_quote_implied_vols(european, fw))
     with pytest.raises(ValueError, match="no forward for expiry"):
         quote_implied_vols(q, fw.iloc[1:], SPOT)
+
+
+def test_short_median_is_numpys():
+    """The parity fit's median of absolute residuals equals ``numpy.median`` bit for
+    bit (odd and even sizes, magnitudes from subnormal to huge)."""
+    from optbench.pricing.forwards import _median
+    rng = np.random.default_rng(20261204)
+    for _ in range(3000):
+        x = np.abs(rng.standard_normal(int(rng.integers(1, 25)))
+                   * 10.0 ** rng.uniform(-300, 300))
+        assert _median(x) == np.median(x)
+    for x in ([5e-324, 1.5e-323], [1.0, 2.0, 2.0, 1e308, 1e308], [0.0, 0.0]):
+        assert _median(np.array(x)) == np.median(np.array(x))
