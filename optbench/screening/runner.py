@@ -33,8 +33,8 @@ A lost local worker process
     in its pool, and cannot say whose worker died. The runner keeps at most one task
     per worker and one waiting in flight, counts an attempt for each of them, starts
     a new pool for the tasks not yet started, and runs each task that was in flight
-    again in a process of its own, where a death is that task's alone (its exit code or signal
-    is the reason).
+    again in a process of its own, where a death is that task's alone (its exit code
+    or signal is the reason).
 """
 from __future__ import annotations
 
@@ -279,21 +279,10 @@ def _launchable_stderr():
     yield True
 
 
-#: the worker processes' cyclic collector: a young generation of 50,000 container
-#: objects instead of Python's 700 (a screen row creates tens of thousands of short-
-#: lived objects and almost no reference cycles; at 700 the collector ran about 70
-#: times a row, some 5 % of its CPU). Memory is still bounded: cycles are collected
-#: every 50,000 allocations net of frees.
-WORKER_GC_THRESHOLD = (50_000, 20, 20)
-
-
 def _worker_start(quiet: bool) -> None:
-    """Worker initializer: collector thresholds for short-lived objects
-    (:data:`WORKER_GC_THRESHOLD`); when the parent's terminal belongs to a UI
-    (``quiet``) the worker's stdout and stderr go to ``/dev/null`` so nothing it
-    prints lands on the screen."""
-    import gc
-    gc.set_threshold(*WORKER_GC_THRESHOLD)
+    """Worker initializer: when the parent's terminal belongs to a UI (``quiet``) the
+    worker's stdout and stderr go to ``/dev/null`` so nothing it prints lands on the
+    screen."""
     if quiet:
         null = os.open(os.devnull, os.O_WRONLY)
         os.dup2(null, 1)

@@ -45,18 +45,3 @@ def test_unreachable_scheduler_is_one_line_error():
     with pytest.raises(InputError, match="cannot reach"):
         run_tasks(math.sqrt, ITEMS, scheduler="tcp://127.0.0.1:9")
 
-
-def _collector_thresholds(_item):
-    import gc
-    return gc.get_threshold()
-
-
-def test_local_workers_collect_cycles_less_often():
-    # the screen's worker processes run with a larger young generation (fewer
-    # collector passes over short-lived objects); this process keeps Python's own
-    import gc
-
-    from optbench.screening.runner import WORKER_GC_THRESHOLD
-    here = gc.get_threshold()
-    assert run_tasks(_collector_thresholds, range(5), workers=2) == [WORKER_GC_THRESHOLD] * 5
-    assert gc.get_threshold() == here
