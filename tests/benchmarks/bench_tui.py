@@ -150,15 +150,32 @@ def dense_chain(folder: Path, step: float = 1.0) -> int:
 _OVERVIEW_ROW = re.compile(r"\d{4}-\d{2}-\d{2}\s+\d+\s+\d+\.\d\s+\d+\.\d")
 
 
+#: rounds started by :func:`terminal_ready_seconds` in this process (tmux session names)
+_ROUND = 0
+
+
 def terminal_ready_seconds(timeout: float = 60.0, env: str = "") -> tuple[float, float]:
     """(numbers on screen, "ready" on screen) seconds after ``optbench`` is started
     in a new 120 x 40 tmux session on the bundled demo; ``env``: ``NAME=value``
     settings put before the command."""
-    name = f"optbench-bench-{os.getpid()}"
+    global _ROUND
+    _ROUND += 1
+    name = f"optbench-bench-{os.getpid()}-{_ROUND}"     # a fresh name every round
     exe = str(Path(sys.executable).with_name("optbench"))
-    t0 = time.perf_counter()
-    subprocess.run(["tmux", "new-session", "-d", "-s", name, "-x", "120", "-y", "40",
-                    f"cd {ROOT} && {env} {exe}"], check=True)
+    for attempt in range(3):
+        t0 = time.perf_counter()
+        started = subprocess.run(["tmux", "new-session", "-d", "-s", name, "-x", "120",
+                                  "-y", "40", f"cd {ROOT} && {env} {exe}"],
+                                 capture_output=True, text=True)
+        if started.returncode == 0:
+            break
+        # the tmux server of the previous round may still be exiting (it ends with
+        # its last session): wait a moment and start again, timing from then
+        print(f"  (tmux new-session failed: {started.stderr.strip() or started.returncode};"
+              " retrying)", file=sys.stderr)
+        time.sleep(0.5)
+    else:
+        raise SystemExit(f"tmux new-session failed 3 times: {started.stderr.strip()}")
     numbers = ready = float("nan")
     try:
         while time.perf_counter() - t0 < timeout:
