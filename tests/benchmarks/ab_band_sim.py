@@ -9,7 +9,7 @@ The reference is a copy of another checkout's ``optbench`` package renamed
 ``mv /tmp/ref/optbench /tmp/ref/optbench_old`` and the imports rewritten to
 ``optbench_old``); give its parent folder with ``--ref``.
 
-Run: .venv/bin/python tests/benchmarks/bench_band_sim_ab.py --ref /tmp/ref
+Run: .venv/bin/python tests/benchmarks/ab_band_sim.py --ref /tmp/ref
      [--universe DIR] [--n 60] [--reps 3]
 """
 from __future__ import annotations
