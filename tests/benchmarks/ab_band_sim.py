@@ -2,7 +2,9 @@
 checkout against another checkout's (the reference), on the same fitted models: CPU
 time of each call alternated per underlying in one process, the medians of the
 per-row ratios, milliseconds a row saved, and whether every output is the same to
-the last bit.
+the last bit. A development tool for changes to those two: it is named ``ab_*`` so
+that ``run_all.py``, which runs the ``bench_*`` figures, leaves it out (it needs a
+second checkout).
 
 The reference is a copy of another checkout's ``optbench`` package renamed
 ``optbench_old`` (e.g. ``git archive main optbench | tar -x -C /tmp/ref`` then
