@@ -44,4 +44,3 @@ def test_dask_local_cluster_gives_the_same_results():
 def test_unreachable_scheduler_is_one_line_error():
     with pytest.raises(InputError, match="cannot reach"):
         run_tasks(math.sqrt, ITEMS, scheduler="tcp://127.0.0.1:9")
-
