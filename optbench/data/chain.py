@@ -341,10 +341,8 @@ def _one_cell(arrow):
     """The first cell of a pyarrow text array (as an array of one) when every cell
     holds the same bytes and none is missing, else None: the array's distinct cells
     when there is one, found by comparing bytes."""
-    from optbench.data.parse import _text_bytes
-    if arrow.null_count or len(arrow) == 0:
-        return None
-    bytes_ = _text_bytes(arrow)
+    from optbench.data.parse import _full_text_bytes
+    bytes_ = _full_text_bytes(arrow)
     if bytes_ is None:
         return None
     offsets, data = bytes_

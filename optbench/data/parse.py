@@ -62,9 +62,7 @@ def _every_cell_printed(arr) -> bool:
     """True when a pyarrow text array has no missing cell and every cell starts and ends
     with a printable ASCII character other than a blank (bytes 33-126): no cell can
     strip to nothing, so every cell holds something (what :func:`present` asks)."""
-    if arr.null_count or len(arr) == 0:
-        return False
-    bytes_ = _text_bytes(arr)
+    bytes_ = _full_text_bytes(arr)
     if bytes_ is None:
         return False
     offsets, data = bytes_
@@ -213,14 +211,20 @@ def _text_bytes(arr):
     return offsets, data
 
 
+def _full_text_bytes(arr):
+    """:func:`_text_bytes` of a pyarrow string array with at least one cell and no
+    missing cell; None otherwise (an empty array, a missing cell, another type)."""
+    if arr.null_count or len(arr) == 0:
+        return None
+    return _text_bytes(arr)
+
+
 def _all_plain_iso_arrow(arr) -> np.ndarray | None:
     """The dates of a pyarrow text column whose every cell is a plain ISO date
     (:func:`_plain_iso_dates`'s rule, read from the bytes): datetime64[ns] per cell;
     None when any cell is missing or not such a date (then each distinct cell is
     parsed on its own). A plain cell reads the same whatever the other cells hold."""
-    if arr.null_count or len(arr) == 0:
-        return None
-    bytes_ = _text_bytes(arr)
+    bytes_ = _full_text_bytes(arr)
     if bytes_ is None:
         return None
     offsets, data = bytes_
