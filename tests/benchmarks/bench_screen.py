@@ -8,8 +8,8 @@ The universe is written once into a cache folder under /tmp (named by its size a
 seed; ``--cache-dir``) and reused by later runs. In the same run the script measures:
 
 * the reference: the full-cost row (``full=True``: the hedge simulated again per
-  tenor) and the lean row (the default) on the first ``--n-reference`` underlyings,
-  in this process, one after the other — seconds and CPU seconds per underlying, and
+  tenor) and the lean row (the default) on ``--n-reference`` underlyings spread
+  evenly over the universe, in this process, one after the other — seconds and CPU seconds per underlying, and
   the largest relative difference of any number between the two (tolerance 1e-9;
   text columns must be identical);
 * the screen of the whole universe with ``--workers`` (default 2) local processes:
@@ -131,13 +131,16 @@ def _numbers_differ(lean: list[dict], full: list[dict]) -> tuple[float, list[str
 
 def reference_run(folder: Path, n_reference: int) -> dict:
     """Full-cost rows, lean rows and lean rows with a warm fit cache (same history:
-    the cached parameters held) of the first ``n_reference`` underlyings, in this
-    process (one worker), alternating so that load changes hit all alike."""
+    the cached parameters held) of ``n_reference`` underlyings spread evenly over the
+    universe (every k-th: the first ones alone are cheaper than the universe's
+    median), in this process (one worker), alternating so that load changes hit all
+    alike."""
     from optbench.volatility.distributions import _normal_to_t_table
 
     subset = Path(tempfile.mkdtemp(prefix="optbench-screen-ref-"))
     try:
-        for p in sorted(q for q in folder.iterdir() if q.is_dir())[:n_reference]:
+        every = sorted(q for q in folder.iterdir() if q.is_dir())
+        for p in every[::max(1, len(every) // n_reference)][:n_reference]:
             (subset / p.name).symlink_to(p, target_is_directory=True)
         cache = subset / ".fit-cache"
         screen(subset, workers=1, tenors=(30,), fit_cache=cache)   # warm imports; cache
@@ -213,7 +216,8 @@ def main() -> None:
           f"({os.cpu_count()} cores)")
 
     ref = reference_run(folder, min(a.n_reference, a.n))
-    print(f"reference, {ref['n']} underlyings in process (1 worker), median of 2:")
+    print(f"reference, {ref['n']} underlyings spread over the universe, in process "
+          "(1 worker), median of 2:")
     for mode, label in (("full", "full-cost row"), ("lean", "lean row"),
                         ("cached", "lean row, warm fit cache")):
         w, c = ref[mode]
