@@ -220,12 +220,18 @@ class Workbench(App):
 
     _facts = staticmethod(firstview.facts)
 
+    def _current(self, msg) -> bool:
+        """A message of the current run while the app still has its screen (a run's
+        result can arrive while the app shuts down, when there is no screen to draw
+        on)."""
+        return msg.token == self._token and bool(self.screen_stack)
+
     def _status(self, text: str) -> None:
         self.screen_stack[0].query_one("#status-text", Static).update(text)
 
     @on(Progress)
     def _progress(self, msg: Progress) -> None:
-        if msg.token != self._token:
+        if not self._current(msg):
             return
         self.screen_stack[0].query_one("#progress", ProgressBar).update(progress=msg.step)
         self._status(f"{msg.text} …")
@@ -234,7 +240,7 @@ class Workbench(App):
 
     @on(Loaded)
     def _loaded(self, msg: Loaded) -> None:
-        if msg.token != self._token:
+        if not self._current(msg):
             return
         self.chain = msg.chain
         if "quality" in self.screen_stack[0].views:   # else it shows the comparison's
@@ -246,7 +252,7 @@ class Workbench(App):
         """The overview's numbers and the status "ready" from the first run's plain
         data; its result objects follow (Loaded, Computed, Headline) and are drawn by
         the same formatting, so the screen does not change when they come."""
-        if msg.token != self._token:
+        if not self._current(msg):
             return
         self._first_view_token = msg.token
         self.ready = True
@@ -259,7 +265,7 @@ class Workbench(App):
 
     @on(Computed)
     def _computed(self, msg: Computed) -> None:
-        if msg.token != self._token:
+        if not self._current(msg):
             return
         self.comparison, self.headline = msg.comparison, msg.headline
         c = msg.comparison
@@ -320,7 +326,7 @@ class Workbench(App):
 
     @on(Headline)
     def _headline(self, msg: Headline) -> None:
-        if msg.token != self._token:
+        if not self._current(msg):
             return
         self.headline, self.headline_ready = msg.estimate, True
         self.ready = True
@@ -332,7 +338,7 @@ class Workbench(App):
 
     @on(Checked)
     def _checked(self, msg: Checked) -> None:
-        if msg.token != self._token:
+        if not self._current(msg):
             return
         self.comparison = c = msg.comparison
         self.checked = True
@@ -379,7 +385,7 @@ class Workbench(App):
 
     @on(Failed)
     def _failed(self, msg: Failed) -> None:
-        if msg.token != self._token:
+        if not self._current(msg):
             return
         if self.comparison is not None and msg.stage in ("headline", "check"):
             self.checked = True  # the run is over, without its last steps

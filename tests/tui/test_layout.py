@@ -60,3 +60,16 @@ def test_universe_table_shows_the_verdict_within_80_columns():
     keys = [k for k, _, _ in COLUMNS]
     # code, days, verdict and the gap lead: they fit in the first 40 columns
     assert keys[:4] == ["code", "tenor_days", "verdict", "iv_minus_forecast"]
+
+
+def test_a_result_arriving_while_the_app_shuts_down_is_dropped():
+    # a run's result message can come after the app has taken its screens down (a
+    # test leaving the app, a user quitting mid-run): the handlers then draw nothing
+    from types import SimpleNamespace
+
+    from optbench.tui.app import Workbench
+    current = Workbench._current
+    assert current(SimpleNamespace(_token=3, screen_stack=["main"]), SimpleNamespace(token=3))
+    assert not current(SimpleNamespace(_token=3, screen_stack=[]), SimpleNamespace(token=3))
+    assert not current(SimpleNamespace(_token=4, screen_stack=["main"]),
+                       SimpleNamespace(token=3))
