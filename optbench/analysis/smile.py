@@ -179,13 +179,19 @@ def _basis(k: np.ndarray, m: np.ndarray, s: np.ndarray) -> tuple[np.ndarray, np.
 def _basis_pq(k: np.ndarray, m: np.ndarray, s: np.ndarray) -> np.ndarray:
     """:func:`_basis` as one array of shape (2, p, n): ``P`` then ``Q``."""
     PQ = np.empty((2, m.size, k.size))
-    P, Q = PQ
-    y = np.subtract(k[None, :], m[:, None], out=Q)
+    y = np.subtract(k[None, :], m[:, None], out=PQ[1])
     y /= s[:, None]
-    r = np.multiply(y, y)
+    return _pq_from_y(PQ)
+
+
+def _pq_from_y(PQ: np.ndarray) -> np.ndarray:
+    """``P = (sqrt(y^2 + 1) + y) / 2`` and ``Q = sqrt(y^2 + 1) - P`` in place, from
+    ``y = (k - m) / s`` held in ``PQ[1]``; returns ``PQ`` (``P`` then ``Q``)."""
+    P, Q = PQ
+    r = np.multiply(Q, Q)
     r += 1.0
     np.sqrt(r, out=r)
-    np.add(r, y, out=P)
+    np.add(r, Q, out=P)
     P *= 0.5
     np.subtract(r, P, out=Q)
     return PQ
@@ -628,15 +634,9 @@ def _inner_many(sm: _Smiles, fit_of: np.ndarray, m: np.ndarray, s: np.ndarray):
     offs, n_pt, segs, n = lay.offs, lay.n_pt, lay.segs, lay.n
     p = m.size
     PQ = np.empty((2, offs[-1]))
-    P, Q = PQ
-    y = np.subtract(lay.k, m.repeat(n_pt), out=Q)
+    y = np.subtract(lay.k, m.repeat(n_pt), out=PQ[1])
     y /= s.repeat(n_pt)
-    r = np.multiply(y, y)
-    r += 1.0
-    np.sqrt(r, out=r)
-    np.add(r, y, out=P)
-    P *= 0.5
-    np.subtract(r, P, out=Q)
+    P, Q = _pq_from_y(PQ)
     sq = np.multiply(PQ, PQ)
     G = lay.G0.copy()
     h = lay.h0.copy()

@@ -18,12 +18,11 @@ import json
 import statistics
 import sys
 import tempfile
-import time
 from pathlib import Path
 
 import pandas as pd
 from synthetic_universe import write_universe
-from timing import figure  # noqa: E402  (tests/benchmarks)
+from timing import figure, median_cpu  # noqa: E402  (tests/benchmarks)
 
 from optbench.analysis.compare import _quote_vols
 from optbench.data.scenario import load_scenario
@@ -31,16 +30,6 @@ from optbench.pricing.forwards import implied_forwards
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "chains" / "ZPHX"
-
-
-def cpu_median(fn, repeats: int) -> float:
-    fn()
-    times = []
-    for _ in range(repeats):
-        t0 = time.process_time()
-        fn()
-        times.append(time.process_time() - t0)
-    return statistics.median(times)
 
 
 def stages(folder: Path, repeats: int) -> dict[str, float]:
@@ -52,11 +41,11 @@ def stages(folder: Path, repeats: int) -> dict[str, float]:
     chain_file = next(folder / n for n in ("chain.csv", "chain.parquet")
                       if (folder / n).is_file())
     return {
-        "load": cpu_median(lambda: load_scenario(folder), repeats),
-        "implied forwards": cpu_median(
+        "load": median_cpu(lambda: load_scenario(folder), repeats),
+        "implied forwards": median_cpu(
             lambda: implied_forwards(q, ch.spot, ch.rate, ch.div_yield), repeats),
-        "implied vols": cpu_median(lambda: _quote_vols(q, fwd, ch.spot), repeats),
-        "read_csv (reference)": cpu_median(
+        "implied vols": median_cpu(lambda: _quote_vols(q, fwd, ch.spot), repeats),
+        "read_csv (reference)": median_cpu(
             lambda: (pd.read_csv(chain_file), pd.read_csv(folder / "history.csv")), repeats),
     }
 

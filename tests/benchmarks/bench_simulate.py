@@ -21,7 +21,7 @@ from arch import arch_model
 from arch.univariate import StudentsT
 
 from optbench.volatility.simulate import simulate_paths
-from timing import figure, median_time  # noqa: E402  (tests/benchmarks)
+from timing import figure, median_cpu, median_time  # noqa: E402  (tests/benchmarks)
 
 DEMO_DAYS = np.array([5, 20, 45, 70, 130, 260, 380, 503])
 DEMO_PATHS = 2000
@@ -86,21 +86,6 @@ def _day_by_day_terminal(fit, daily, h):
     return np.stack([out[k] for k in h], axis=2)      # (3, paths, expiries)
 
 
-def _median_cpu(fn, repeats: int) -> float:
-    """Median CPU seconds of ``fn()`` in this process (steadier than wall time on a
-    shared machine), after one untimed call."""
-    import statistics
-    import time
-
-    fn()
-    times = []
-    for _ in range(repeats):
-        t0 = time.process_time()
-        fn()
-        times.append(time.process_time() - t0)
-    return statistics.median(times)
-
-
 def comparison_simulation() -> None:
     import scipy.special as sc
 
@@ -114,8 +99,8 @@ def comparison_simulation() -> None:
 
     x = np.linspace(-8.0, 0.0, 4097)
     p = ndtr(x)
-    ours_tab = _median_cpu(lambda: stdtrit_one_df(Fit.params["nu"], p), 15)
-    ref_tab = _median_cpu(lambda: sc.stdtrit(Fit.params["nu"], p), 15)
+    ours_tab = median_cpu(lambda: stdtrit_one_df(Fit.params["nu"], p), 15)
+    ref_tab = median_cpu(lambda: sc.stdtrit(Fit.params["nu"], p), 15)
     choice = choose_drift(rate=0.04, div_yield=0.015)
     daily = choice.annual / 252.0
 
@@ -127,8 +112,8 @@ def comparison_simulation() -> None:
     def reference():
         return _day_by_day_terminal(Fit, daily, DEMO_DAYS)
 
-    ours_sim = _median_cpu(terminal, 9)
-    ref_sim = _median_cpu(reference, 9)
+    ours_sim = median_cpu(terminal, 9)
+    ref_sim = median_cpu(reference, 9)
     got, want = terminal(), reference()
     same = (np.array_equal(got.shock, want[0]) and np.array_equal(got.variance, want[1])
             and np.array_equal(got.realized_vol, np.sqrt(252.0 / DEMO_DAYS * want[2])))

@@ -1,21 +1,28 @@
-"""The one timer the benchmark scripts share: median wall seconds of a call."""
+"""The timers the benchmark scripts share: median wall or CPU seconds of a call."""
 from __future__ import annotations
 
 import statistics
 import time
 
 
-def median_time(fn, repeats: int = 7, warm_up: bool = True) -> float:
-    """Median wall time in seconds of ``fn()`` over ``repeats`` calls (after one
-    untimed call when ``warm_up``)."""
+def median_time(fn, repeats: int = 7, warm_up: bool = True,
+                clock=time.perf_counter) -> float:
+    """Median seconds of ``fn()`` over ``repeats`` calls (after one untimed call when
+    ``warm_up``) on ``clock``: wall time by default."""
     if warm_up:
         fn()
     times = []
     for _ in range(repeats):
-        t0 = time.perf_counter()
+        t0 = clock()
         fn()
-        times.append(time.perf_counter() - t0)
+        times.append(clock() - t0)
     return statistics.median(times)
+
+
+def median_cpu(fn, repeats: int = 7, warm_up: bool = True) -> float:
+    """:func:`median_time` in CPU seconds of this process (steadier than wall time on
+    a shared machine)."""
+    return median_time(fn, repeats, warm_up, clock=time.process_time)
 
 
 def process_time(cmd: list[str], repeats: int) -> tuple[float, float]:
