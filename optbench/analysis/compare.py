@@ -195,23 +195,21 @@ def _only_expiries(values: np.ndarray, usable: np.ndarray, expiries,
     listed_values = np.unique(values[usable])
     wanted_days = [pd.Timestamp(e) for e in expiries]
     if values.dtype.kind == "M" and all(
-            w.tz is None and 1900 <= w.year <= 2200 for w in wanted_days if not pd.isna(w)) \
-            and not any(pd.isna(w) for w in wanted_days):
-        # the same test on numpy's dates (the listed ones are the loader's, 1900-2200)
+            not pd.isna(w) and w.tz is None and 1900 <= w.year <= 2200 for w in wanted_days):
+        # on numpy's dates (the listed ones are the loader's, 1900-2200)
         wanted64 = np.array([w.to_datetime64() for w in wanted_days])
         found = np.isin(wanted64, listed_values)
-        if not found.all():
-            missing = sorted({w for w, f in zip(wanted_days, found) if not f})
-            raise InputError("--expiry", f"{missing[0].date().isoformat()} is not an "
-                                         f"expiry with usable quotes in {source}")
-        return np.isin(values, listed_values[np.isin(listed_values, wanted64)])
-    listed = pd.to_datetime(listed_values)
-    wanted = pd.to_datetime(pd.Index([pd.Timestamp(e) for e in expiries]))
-    missing = sorted(set(wanted) - set(listed))
+        missing = sorted({w for w, f in zip(wanted_days, found) if not f})
+        chosen = np.isin(listed_values, wanted64)
+    else:
+        listed = pd.to_datetime(listed_values)
+        wanted = pd.to_datetime(pd.Index(wanted_days))
+        missing = sorted(set(wanted) - set(listed))
+        chosen = listed.isin(wanted)
     if missing:
         raise InputError("--expiry", f"{missing[0].date().isoformat()} is not an expiry "
                                      f"with usable quotes in {source}")
-    return np.isin(values, listed_values[listed.isin(wanted)])
+    return np.isin(values, listed_values[chosen])
 
 
 def _expiry_positions(listed: np.ndarray, values: np.ndarray) -> np.ndarray:
