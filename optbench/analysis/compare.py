@@ -92,6 +92,7 @@ from optbench.analysis.protection import (DEFAULT_FLOOR, MIN_PAYING_PATHS, PROTE
                                           choose_puts, judge_puts)
 from optbench.analysis.results import (CAUTION, STRIKE_COLUMNS, VERDICT_RULE, Comparison,
                                        ExpiryRow, ModelSummary, verdict_for)
+from optbench.analysis.strike_tables import StrikeTables
 from optbench.errors import InputError
 
 DEFAULT_N_PATHS = 2000
@@ -429,7 +430,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
     say("smile fits")
     expiry_codes = _expiry_positions(fwd_expiry, exp_q)
     rows: list[ExpiryRow] = []
-    strikes: dict[_dt.date, pd.DataFrame] = {}
+    strike_slices: dict[_dt.date, tuple[int, int]] = {}
     fc_q = fc[expiry_codes]
     with np.errstate(invalid="ignore", divide="ignore"):
         price_fc = black_price(F, K, t_q, D, fc_q, is_call)
@@ -463,12 +464,12 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         "edge_per_vega": edge_vega, "multiplier": mult,
         "line": q["line"].to_numpy() if "line" in q.columns else np.zeros(n_q, np.int64),
     }
-    # the per-strike table sorted once by expiry, then puts before calls, then strike
+    # the per-strike columns sorted once by expiry, then puts before calls, then strike
     # (a stable sort: the order each expiry's own stable sort gives); each expiry's
-    # rows are one slice of it, and the protection judging reads the sorted arrays
+    # rows are one slice of them, the protection judging reads the sorted arrays, and
+    # each expiry's DataFrame is made when a view first reads it (StrikeTables)
     order = np.lexsort((K, is_call, expiry_codes))
     columns = {name: np.asarray(columns[name])[order] for name in STRIKE_COLUMNS}
-    table = pd.DataFrame(columns, columns=list(STRIKE_COLUMNS))
     bounds = np.searchsorted(expiry_codes[order], np.arange(len(fwd) + 1))
 
     model_free = _model_free_vols(q, fwd, warnings, expiry_codes,
@@ -532,7 +533,6 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
             verdict = "n/a"
         prob = float(np.mean(rv_paths[:, j] > atm)) if math.isfinite(atm) else math.nan
         lo_row, hi_row = int(bounds[j]), int(bounds[j + 1])
-        part = table.iloc[lo_row:hi_row].reset_index(drop=True)
         part_columns = {name: columns[name][lo_row:hi_row]
                         for name in ("strike", "ask", "delta", "is_call", "iv_mid", "mid")}
         put25, floor_put = judge_puts(
@@ -563,7 +563,7 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
             smile=smile_info, arbitrage_flags=int(arb.quote_flag[sel].sum()),
             rate=float(fwd_rate[j]), carry=float(fwd_carry[j]),
             floor=floor, **put25.fields_with("put25"), **floor_put.fields_with("floor_put")))
-        strikes[e_date] = part
+        strike_slices[e_date] = (lo_row, hi_row)
 
     bt = None
     if backtest is not False and backtest is not None:
@@ -584,7 +584,8 @@ def compare(chain, history=None, *, model: str = "auto", dist: str = "t",
         multiplier=float(np.median(mult)) if len(mult) else 100.0,
         conventions=dict(CONVENTIONS), model=summary, band=(lo_level, hi_level),
         verdict_rule=VERDICT_RULE.format(low=lo_level, high=hi_level),
-        quality=ch.quality.as_dict(), expiries=tuple(rows), strikes=strikes,
+        quality=ch.quality.as_dict(), expiries=tuple(rows),
+        strikes=StrikeTables(columns, strike_slices),
         realized={} if lean else {"estimator": "close-to-close",
                                   "window_days": windows.tolist(),
                                   "vol": [float(x) for x in realized]},

@@ -309,7 +309,9 @@ class Comparison:
         "warnings": {flag: count}}``.
     expiries : one :class:`ExpiryRow` per expiry, nearest first.
     strikes : per-strike tables, ``{expiry date: DataFrame}`` with
-        :data:`STRIKE_COLUMNS`.
+        :data:`STRIKE_COLUMNS` (a read-only mapping,
+        :class:`~optbench.analysis.strike_tables.StrikeTables`: each frame is made
+        when first read).
     realized : trailing realized vols, ``{"window_days": [...], "vol": [...]}`` and
         the estimator's name under ``"estimator"``.
     cone : the volatility cone, a DataFrame with ``window_days`` and quantile columns
