@@ -1464,7 +1464,7 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
 
     cap = prob.max_step()
 
-    def run(u0, stop=STOP_GAIN):
+    def run(u0, stop=STOP_GAIN, stop_if=None):
         u0 = np.clip(u0, lo, hi)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
@@ -1473,7 +1473,7 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
             J = coords.jacobian(th0)
             res = minimize_box(fun_grad, u0, lo, hi, hess0=J.T @ hess @ J,
                                fg0=(f0, J.T @ g0), max_step=cap, A_ub=A_ub, b_ub=b_ub,
-                               gain_tol=stop / prob.n)
+                               gain_tol=stop / prob.n, stop_if=stop_if)
         u = np.asarray(res.x, dtype=float)
         _, vol, _ = prob.unpack(to_theta(u))
         pers = prob.spec.persistence(vol)
@@ -1543,7 +1543,7 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
                 best = run(best["u"])     # the full climb after all
                 quick = False
             order.append(u0)
-            r = run(u0)
+            r = run(u0, stop_if=_joining(best, prob.n, lo, hi, A_ub, b_ub))
             if better(r, best):
                 best = r
     if quick and best is not None and best["stationary"] and math.isfinite(best["f"]):
@@ -1588,6 +1588,73 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
         if problem is not None:
             fit = _replace(fit, converged=False)
     return fit, problem
+
+
+#: a weak-dynamics climb is stopped once it is within this many log-likelihood
+#: units of the optimum already found ...
+JOIN_LOGLIK = 4.0
+#: ... and that optimum's quadratic model (its gradient and quasi-Newton Hessian)
+#: predicts the climb's log-likelihood there to within this fraction of the gap
+#: (plus JOIN_MODEL_ABS): the climb has entered the found optimum's basin, where it
+#: can only end at that optimum
+JOIN_MODEL_REL = 0.25
+JOIN_MODEL_ABS = 0.02
+#: ... and every coordinate is within this of the optimum's (relative to 1 + |u|)
+JOIN_COORD = 0.05
+
+
+def _joining(best: dict | None, n: int, lo: np.ndarray, hi: np.ndarray, A_ub=None,
+             b_ub=None):
+    """``stop_if`` for a weak-dynamics climb (:func:`minimize_box`): stops it when it
+    has reached the basin of ``best``, the optimum of the main climb (a stationary
+    point that ended by the optimiser's own test), since from there it can only
+    climb to ``best`` again.
+
+    With ``d = u - u*``, ``g*`` and ``B*`` the optimum's gradient and quasi-Newton
+    Hessian (of minus the mean log-likelihood), the quadratic model ``m(u) = f* +
+    g*'d + d'B*d / 2``; the climb at ``u`` has joined when ``n (f(u) - f*) <=
+    JOIN_LOGLIK``, ``n (m(u) - f*) <= 2 JOIN_LOGLIK`` and ``n |f(u) - m(u)| <=
+    JOIN_MODEL_REL n (m(u) - f*) + JOIN_MODEL_ABS`` and ``|d| <= JOIN_COORD (1 +
+    |u*|)`` in every coordinate: the log-likelihood near the
+    optimum is the quadratic model (Nocedal & Wright, *Numerical Optimization*, 2nd
+    ed., §3.3: the basin in which quasi-Newton iterates converge to a strict local
+    minimum), so a point where the model holds and the log-likelihood is that
+    close lies in it. None when ``best`` cannot serve: not stationary, or on a bound
+    or the stationarity limit (where the model does not describe a basin: the
+    log-likelihood goes on rising beyond the bound, and a flat one can hold another
+    optimum along it)."""
+    if best is None or not best["stationary"]:
+        return None
+    u_star = np.asarray(best["u"], dtype=float)
+    span = np.maximum(hi - lo, 1e-12)
+    if np.any(u_star <= lo + 1e-6 * span) or np.any(u_star >= hi - 1e-6 * span):
+        return None
+    if A_ub is not None and np.any(b_ub - A_ub @ u_star <= 1e-8 * (1.0 + np.abs(b_ub))):
+        return None
+    res = best["res"]
+    if (res.hess is None or res.grad is None or not np.all(np.isfinite(res.hess))
+            or not np.all(np.isfinite(res.grad)) or not math.isfinite(best["f"])):
+        return None
+    f_star = best["f"]
+    near = JOIN_COORD * (1.0 + np.abs(u_star))
+    g_star = np.asarray(res.grad, dtype=float)
+    B = np.asarray(res.hess, dtype=float)
+
+    def stop_if(u, f, g):
+        gap = n * (f - f_star)
+        if not gap <= JOIN_LOGLIK:
+            return None
+        d = u - u_star
+        if np.any(np.abs(d) > near):
+            return None
+        model = n * (float(g_star @ d) + 0.5 * float(d @ B @ d))
+        if not (0.0 <= model <= 2.0 * JOIN_LOGLIK):
+            return None
+        if abs(gap - model) <= JOIN_MODEL_REL * model + JOIN_MODEL_ABS:
+            return "joined the optimum already found (its basin reached)"
+        return None
+
+    return stop_if
 
 
 def at_stationarity_limit(persistence: float) -> bool:
