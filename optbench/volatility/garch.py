@@ -1481,6 +1481,18 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
         return {"res": res, "u": u, "f": float(res.fun), "pers": pers,
                 "stationary": bool(stationary and math.isfinite(res.fun)), "opt": None}
 
+    def curvature_at(r):
+        """The conditional information (or the outer product of the scores) and
+        the gradient at a climb's end, in the optimiser's coordinates."""
+        if r is None or not r["stationary"]:
+            return None
+        with warnings.catch_warnings(), np.errstate(all="ignore"):
+            warnings.simplefilter("ignore", RuntimeWarning)
+            th = to_theta(r["u"])
+            hess, (f0, g0) = prob.start_curvature(th)
+        J = coords.jacobian(th)
+        return J.T @ hess @ J, J.T @ g0, float(f0)
+
     def verified(r):
         if r["opt"] is None:
             r["opt"] = _optimality(prob, coords, r["u"], lo, hi, r["res"], A_ub, b_ub)
@@ -1543,7 +1555,8 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
                 best = run(best["u"])     # the full climb after all
                 quick = False
             order.append(u0)
-            r = run(u0, stop_if=_joining(best, prob.n, lo, hi, A_ub, b_ub))
+            r = run(u0, stop_if=_joining(best, prob.n, lo, hi, A_ub, b_ub,
+                                         curvature_at(best)))
             if better(r, best):
                 best = r
     if quick and best is not None and best["stationary"] and math.isfinite(best["f"]):
@@ -1592,7 +1605,7 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
 
 #: a weak-dynamics climb is stopped once it is within this many log-likelihood
 #: units of the optimum already found ...
-JOIN_LOGLIK = 4.0
+JOIN_LOGLIK = 10.0
 #: ... and that optimum's quadratic model (its gradient and quasi-Newton Hessian)
 #: predicts the climb's log-likelihood there to within this fraction of the gap
 #: (plus JOIN_MODEL_ABS): the climb has entered the found optimum's basin, where it
@@ -1600,30 +1613,41 @@ JOIN_LOGLIK = 4.0
 JOIN_MODEL_REL = 0.25
 JOIN_MODEL_ABS = 0.02
 #: ... and every coordinate is within this of the optimum's (relative to 1 + |u|)
-JOIN_COORD = 0.05
+JOIN_COORD = 0.1
 
 
 def _joining(best: dict | None, n: int, lo: np.ndarray, hi: np.ndarray, A_ub=None,
-             b_ub=None):
+             b_ub=None, curvature=None):
     """``stop_if`` for a weak-dynamics climb (:func:`minimize_box`): stops it when it
-    has reached the basin of ``best``, the optimum of the main climb (a stationary
-    point that ended by the optimiser's own test), since from there it can only
-    climb to ``best`` again.
+    has reached the basin of ``best``, the optimum of the main climb, since from
+    there it can only climb to ``best`` again.
 
-    With ``d = u - u*``, ``g*`` and ``B*`` the optimum's gradient and quasi-Newton
-    Hessian (of minus the mean log-likelihood), the quadratic model ``m(u) = f* +
+    ``curvature`` is ``(B*, g*, f*)`` at the optimum ``u*``: the conditional
+    information matrix (the expected Hessian given the past, of minus the mean
+    log-likelihood, in the optimiser's coordinates; not the quasi-Newton estimate,
+    which is accurate only along the directions the climb explored), the gradient
+    and the objective. With ``d = u - u*`` the quadratic model is ``m(u) = f* +
     g*'d + d'B*d / 2``; the climb at ``u`` has joined when ``n (f(u) - f*) <=
-    JOIN_LOGLIK``, ``n (m(u) - f*) <= 2 JOIN_LOGLIK`` and ``n |f(u) - m(u)| <=
-    JOIN_MODEL_REL n (m(u) - f*) + JOIN_MODEL_ABS`` and ``|d| <= JOIN_COORD (1 +
-    |u*|)`` in every coordinate: the log-likelihood near the
-    optimum is the quadratic model (Nocedal & Wright, *Numerical Optimization*, 2nd
-    ed., §3.3: the basin in which quasi-Newton iterates converge to a strict local
-    minimum), so a point where the model holds and the log-likelihood is that
-    close lies in it. None when ``best`` cannot serve: not stationary, or on a bound
-    or the stationarity limit (where the model does not describe a basin: the
-    log-likelihood goes on rising beyond the bound, and a flat one can hold another
-    optimum along it)."""
-    if best is None or not best["stationary"]:
+    JOIN_LOGLIK``, ``0 <= n (m(u) - f*) <= 2 JOIN_LOGLIK``, ``|d| <= JOIN_COORD (1 +
+    |u*|)`` in every coordinate, the model predicts ``f(u)`` to within
+    ``JOIN_MODEL_REL n (m(u) - f*) + JOIN_MODEL_ABS`` log-likelihood units and the
+    gradient ``g(u)`` as well (the Newton steps from ``u`` by the model and by the
+    gradient differ by less than that gain): near a strict local minimum the
+    objective is its quadratic model, and a descent method that enters the region
+    where the model holds converges to that minimum (Nocedal & Wright, *Numerical
+    Optimization*, 2nd ed., §3.3). None when ``best`` cannot serve: not
+    stationary, without a usable curvature, with a gain still predicted at ``u*``
+    (above the first-order check's tolerance), or on a bound or the stationarity
+    limit (where the log-likelihood goes on rising beyond the bound, and a flat one
+    can hold another optimum along it).
+    """
+    if best is None or not best["stationary"] or curvature is None:
+        return None
+    B, g_star, f_star = curvature
+    B = 0.5 * (np.asarray(B, dtype=float) + np.asarray(B, dtype=float).T)
+    g_star = np.asarray(g_star, dtype=float)
+    if not (np.all(np.isfinite(B)) and np.all(np.isfinite(g_star))
+            and math.isfinite(f_star)):
         return None
     u_star = np.asarray(best["u"], dtype=float)
     span = np.maximum(hi - lo, 1e-12)
@@ -1631,14 +1655,14 @@ def _joining(best: dict | None, n: int, lo: np.ndarray, hi: np.ndarray, A_ub=Non
         return None
     if A_ub is not None and np.any(b_ub - A_ub @ u_star <= 1e-8 * (1.0 + np.abs(b_ub))):
         return None
-    res = best["res"]
-    if (res.hess is None or res.grad is None or not np.all(np.isfinite(res.hess))
-            or not np.all(np.isfinite(res.grad)) or not math.isfinite(best["f"])):
+    w, V = np.linalg.eigh(B)
+    if not float(w.min()) > 1e-12 * max(float(w.max()), 1e-300):
         return None
-    f_star = best["f"]
+    Binv = (V / w) @ V.T
+    # an interior optimum: the information's Newton step from u* gains nothing
+    if 0.5 * n * float(g_star @ Binv @ g_star) > OPTIMALITY_GAIN_TOL * 10.0:
+        return None
     near = JOIN_COORD * (1.0 + np.abs(u_star))
-    g_star = np.asarray(res.grad, dtype=float)
-    B = np.asarray(res.hess, dtype=float)
 
     def stop_if(u, f, g):
         gap = n * (f - f_star)
@@ -1650,7 +1674,13 @@ def _joining(best: dict | None, n: int, lo: np.ndarray, hi: np.ndarray, A_ub=Non
         model = n * (float(g_star @ d) + 0.5 * float(d @ B @ d))
         if not (0.0 <= model <= 2.0 * JOIN_LOGLIK):
             return None
-        if abs(gap - model) <= JOIN_MODEL_REL * model + JOIN_MODEL_ABS:
+        tol = JOIN_MODEL_REL * model + JOIN_MODEL_ABS
+        if not abs(gap - model) <= tol:
+            return None
+        # the gradient too: the Newton step the model takes from u (to u*) and the
+        # one the climb's own gradient asks for differ by less than the tolerance
+        miss = np.asarray(g, dtype=float) - g_star - B @ d
+        if 0.5 * n * float(miss @ Binv @ miss) <= tol:
             return "joined the optimum already found (its basin reached)"
         return None
 
