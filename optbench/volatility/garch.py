@@ -1464,7 +1464,7 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
 
     cap = prob.max_step()
 
-    def run(u0, stop=STOP_GAIN):
+    def run(u0, stop=STOP_GAIN, stop_if=None):
         u0 = np.clip(u0, lo, hi)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
@@ -1473,13 +1473,25 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
             J = coords.jacobian(th0)
             res = minimize_box(fun_grad, u0, lo, hi, hess0=J.T @ hess @ J,
                                fg0=(f0, J.T @ g0), max_step=cap, A_ub=A_ub, b_ub=b_ub,
-                               gain_tol=stop / prob.n)
+                               gain_tol=stop / prob.n, stop_if=stop_if)
         u = np.asarray(res.x, dtype=float)
         _, vol, _ = prob.unpack(to_theta(u))
         pers = prob.spec.persistence(vol)
         stationary = pers <= 1.0 - STATIONARITY_MARGIN + 1e-12
         return {"res": res, "u": u, "f": float(res.fun), "pers": pers,
                 "stationary": bool(stationary and math.isfinite(res.fun)), "opt": None}
+
+    def curvature_at(r):
+        """The conditional information (or the outer product of the scores) and
+        the gradient at a climb's end, in the optimiser's coordinates."""
+        if r is None or not r["stationary"]:
+            return None
+        with warnings.catch_warnings(), np.errstate(all="ignore"):
+            warnings.simplefilter("ignore", RuntimeWarning)
+            th = to_theta(r["u"])
+            hess, (f0, g0) = prob.start_curvature(th)
+        J = coords.jacobian(th)
+        return J.T @ hess @ J, J.T @ g0, float(f0)
 
     def verified(r):
         if r["opt"] is None:
@@ -1543,7 +1555,8 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
                 best = run(best["u"])     # the full climb after all
                 quick = False
             order.append(u0)
-            r = run(u0)
+            r = run(u0, stop_if=_joining(best, prob.n, lo, hi, A_ub, b_ub,
+                                         curvature_at(best)))
             if better(r, best):
                 best = r
     if quick and best is not None and best["stationary"] and math.isfinite(best["f"]):
@@ -1588,6 +1601,90 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
         if problem is not None:
             fit = _replace(fit, converged=False)
     return fit, problem
+
+
+#: a weak-dynamics climb is stopped once it is within this many log-likelihood
+#: units of the optimum already found ...
+JOIN_LOGLIK = 10.0
+#: ... and that optimum's quadratic model (its gradient and quasi-Newton Hessian)
+#: predicts the climb's log-likelihood there to within this fraction of the gap
+#: (plus JOIN_MODEL_ABS): the climb has entered the found optimum's basin, where it
+#: can only end at that optimum
+JOIN_MODEL_REL = 0.25
+JOIN_MODEL_ABS = 0.02
+#: ... and every coordinate is within this of the optimum's (relative to 1 + |u|)
+JOIN_COORD = 0.1
+
+
+def _joining(best: dict | None, n: int, lo: np.ndarray, hi: np.ndarray, A_ub=None,
+             b_ub=None, curvature=None):
+    """``stop_if`` for a weak-dynamics climb (:func:`minimize_box`): stops it when it
+    has reached the basin of ``best``, the optimum of the main climb, since from
+    there it can only climb to ``best`` again.
+
+    ``curvature`` is ``(B*, g*, f*)`` at the optimum ``u*``: the conditional
+    information matrix (the expected Hessian given the past, of minus the mean
+    log-likelihood, in the optimiser's coordinates; not the quasi-Newton estimate,
+    which is accurate only along the directions the climb explored), the gradient
+    and the objective. With ``d = u - u*`` the quadratic model is ``m(u) = f* +
+    g*'d + d'B*d / 2``; the climb at ``u`` has joined when ``n (f(u) - f*) <=
+    JOIN_LOGLIK``, ``0 <= n (m(u) - f*) <= 2 JOIN_LOGLIK``, ``|d| <= JOIN_COORD (1 +
+    |u*|)`` in every coordinate, the model predicts ``f(u)`` to within
+    ``JOIN_MODEL_REL n (m(u) - f*) + JOIN_MODEL_ABS`` log-likelihood units and the
+    gradient ``g(u)`` as well (the Newton steps from ``u`` by the model and by the
+    gradient differ by less than that gain): near a strict local minimum the
+    objective is its quadratic model, and a descent method that enters the region
+    where the model holds converges to that minimum (Nocedal & Wright, *Numerical
+    Optimization*, 2nd ed., §3.3). None when ``best`` cannot serve: not
+    stationary, without a usable curvature, with a gain still predicted at ``u*``
+    (above the first-order check's tolerance), or on a bound or the stationarity
+    limit (where the log-likelihood goes on rising beyond the bound, and a flat one
+    can hold another optimum along it).
+    """
+    if best is None or not best["stationary"] or curvature is None:
+        return None
+    B, g_star, f_star = curvature
+    B = 0.5 * (np.asarray(B, dtype=float) + np.asarray(B, dtype=float).T)
+    g_star = np.asarray(g_star, dtype=float)
+    if not (np.all(np.isfinite(B)) and np.all(np.isfinite(g_star))
+            and math.isfinite(f_star)):
+        return None
+    u_star = np.asarray(best["u"], dtype=float)
+    span = np.maximum(hi - lo, 1e-12)
+    if np.any(u_star <= lo + 1e-6 * span) or np.any(u_star >= hi - 1e-6 * span):
+        return None
+    if A_ub is not None and np.any(b_ub - A_ub @ u_star <= 1e-8 * (1.0 + np.abs(b_ub))):
+        return None
+    w, V = np.linalg.eigh(B)
+    if not float(w.min()) > 1e-12 * max(float(w.max()), 1e-300):
+        return None
+    Binv = (V / w) @ V.T
+    # an interior optimum: the information's Newton step from u* gains nothing
+    if 0.5 * n * float(g_star @ Binv @ g_star) > OPTIMALITY_GAIN_TOL * 10.0:
+        return None
+    near = JOIN_COORD * (1.0 + np.abs(u_star))
+
+    def stop_if(u, f, g):
+        gap = n * (f - f_star)
+        if not gap <= JOIN_LOGLIK:
+            return None
+        d = u - u_star
+        if np.any(np.abs(d) > near):
+            return None
+        model = n * (float(g_star @ d) + 0.5 * float(d @ B @ d))
+        if not (0.0 <= model <= 2.0 * JOIN_LOGLIK):
+            return None
+        tol = JOIN_MODEL_REL * model + JOIN_MODEL_ABS
+        if not abs(gap - model) <= tol:
+            return None
+        # the gradient too: the Newton step the model takes from u (to u*) and the
+        # one the climb's own gradient asks for differ by less than the tolerance
+        miss = np.asarray(g, dtype=float) - g_star - B @ d
+        if 0.5 * n * float(miss @ Binv @ miss) <= tol:
+            return "joined the optimum already found (its basin reached)"
+        return None
+
+    return stop_if
 
 
 def at_stationarity_limit(persistence: float) -> bool:

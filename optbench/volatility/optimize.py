@@ -26,8 +26,8 @@ class MinimizeResult:
 
 def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
                  fg0=None, max_step=None, A_ub=None, b_ub=None, max_iter: int = 300,
-                 gtol: float = 1e-9, ftol: float = 1e-15, gain_tol: float = 0.0
-                 ) -> MinimizeResult:
+                 gtol: float = 1e-9, ftol: float = 1e-15, gain_tol: float = 0.0,
+                 stop_if=None) -> MinimizeResult:
     """Minimise a smooth function with analytic gradient inside a box and under a few
     linear inequalities.
 
@@ -57,6 +57,10 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
     gain_tol : float
         Also converged when the full quasi-Newton step predicts a decrease of ``f``
         below this (absolute): the caller's resolution of ``f``.
+    stop_if : callable, optional
+        ``(x, f, gradient) -> str or None``, asked after every accepted step: a
+        string stops the climb there (``success`` False, the string as ``message``),
+        e.g. when the caller knows where the climb will end.
 
     Returns
     -------
@@ -199,6 +203,10 @@ def minimize_box(fun_grad, x0, lower, upper, *, feasible=None, hess0=None,
                  - (Hy[:, None] * s + s[:, None] * Hy) / sy)
         if df < ftol * (1.0 + abs(f)):
             return done(True, "relative change in the objective below tolerance", it)
+        if stop_if is not None:
+            why = stop_if(x, f, g)
+            if why:
+                return done(False, why, it)
     return done(False, f"iteration limit ({max_iter}) reached", max_iter)
 
 
