@@ -326,6 +326,9 @@ def _rejected_frame(frame: pd.DataFrame, rows: np.ndarray, front: dict,
     with repeated column names takes the concatenation it is equivalent to."""
     names = [c if c not in front else f"{c} (file)" for c in frame.columns]
     if len(set(names) | set(front)) == len(names) + len(front):
+        if not len(rows):
+            return _no_rejected_rows(names, front, raw_columns if raw_columns is not None
+                                     else list(frame.items()))
         columns = dict(front)
         for name, (_, raw) in zip(names, raw_columns if raw_columns is not None
                                   else frame.items()):
@@ -335,6 +338,40 @@ def _rejected_frame(frame: pd.DataFrame, rows: np.ndarray, front: dict,
     raw_rows = frame.iloc[rows].reset_index(drop=True)
     raw_rows.columns = names
     return pd.concat([pd.DataFrame(front), raw_rows], axis=1)
+
+
+#: empty rejected frames by the layout of their columns (see :func:`_no_rejected_rows`)
+_EMPTY_REJECTED: dict = {}
+
+
+def _no_rejected_rows(names: list, front: dict, raw_columns: list) -> pd.DataFrame:
+    """The rejected frame of a file with no rejected row: what :func:`_rejected_frame`
+    builds from its columns' empty takes, built once per layout (column names, the
+    front and raw columns' dtypes and array types) and copied (a deep copy, so no
+    caller shares it). Most files reject nothing, and building an empty frame of a
+    dozen columns costs more than copying one."""
+    layout = (tuple(names), tuple((k, np.asarray(v).dtype) for k, v in front.items()),
+              tuple((raw.dtype, type(raw.array), _arrow_type(raw.array))
+                    for _, raw in raw_columns))
+    empty = _EMPTY_REJECTED.get(layout)
+    if empty is None:
+        rows = np.zeros(0, dtype=np.intp)
+        columns = dict(front)
+        for name, (_, raw) in zip(names, raw_columns):
+            columns[name] = raw.to_numpy().take(rows) if isinstance(raw.dtype, np.dtype) \
+                else raw.array.take(rows)
+        empty = pd.DataFrame(columns)
+        if len(_EMPTY_REJECTED) >= 64:
+            _EMPTY_REJECTED.clear()
+        _EMPTY_REJECTED[layout] = empty
+    return empty.copy(deep=True)
+
+
+def _arrow_type(array) -> str:
+    """The pyarrow type behind an array on pyarrow storage ('' for any other)."""
+    if not hasattr(array, "__arrow_array__"):
+        return ""
+    return str(array.__arrow_array__().type)
 
 
 def _one_cell(arrow):
@@ -354,6 +391,20 @@ def _one_cell(arrow):
     return arrow.slice(0, 1) if (rows == rows[0]).all() else None
 
 
+def _plain_ascii_name(cell) -> str | None:
+    """The name in a one-cell pyarrow text array whose bytes are ASCII, the first and
+    the last printed (33-126, no blank): upper case by ASCII's rule, which is what
+    trimming blanks (none at the ends) and upper-casing by pyarrow's kernels give such a
+    cell. None for any other cell."""
+    from optbench.data.parse import _full_text_bytes
+    offsets, data = _full_text_bytes(cell)
+    raw = data[offsets[0]:offsets[1]]
+    if not raw.size or (raw >= 128).any() or not (33 <= raw[0] <= 126) \
+            or not (33 <= raw[-1] <= 126):
+        return None
+    return raw.tobytes().decode("ascii").upper()
+
+
 def _single_underlying(column: pd.Series) -> str | None:
     """The underlying of a text column on pyarrow storage whose non-blank cells all
     name one underlying (stripped, upper case): what the counting in
@@ -361,9 +412,13 @@ def _single_underlying(column: pd.Series) -> str | None:
     arrow = arrow_text(column)
     if arrow is None:
         return None
-    import pyarrow.compute as pc
     # the distinct cells first: the same set of names, normalised on a few cells
     cells = _one_cell(arrow)
+    if cells is not None:
+        name = _plain_ascii_name(cells)
+        if name is not None:
+            return name
+    import pyarrow.compute as pc
     norm = pc.utf8_upper(pc.utf8_trim_whitespace(cells if cells is not None
                                                  else pc.unique(arrow)))
     named = pc.unique(pc.filter(norm, pc.fill_null(pc.not_equal(norm, ""), False)))
