@@ -324,7 +324,7 @@ def _rejected_frame(frame: pd.DataFrame, rows: np.ndarray, front: dict,
     raw fields of ``frame``'s rows ``rows`` as read (a raw column named like a front
     column gets `` (file)``), numbered from 0. One frame built from the columns; a file
     with repeated column names takes the concatenation it is equivalent to."""
-    names = [c if c not in front else f"{c} (file)" for c in frame.columns]
+    names = [c if c not in front else f"{c} (file)" for c in frame.columns.tolist()]
     if len(set(names) | set(front)) == len(names) + len(front):
         if not len(rows):
             return _no_rejected_rows(names, front, raw_columns if raw_columns is not None
@@ -490,20 +490,25 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     meta = dict(meta or {})
     notes: list[str] = []
     raw: RawTable = read_table(path, header_test=_is_header)
-    frame = drop_blank_rows(raw.frame)
+    # the header's labels and the raw columns once, for the blank-row check, the fields
+    # and the rejected rows (the columns only when the labels are unique)
+    labels = raw.frame.columns.tolist()
+    unique = raw.frame.columns.is_unique
+    raw_columns = list(raw.frame.items()) if unique else None
+    frame = drop_blank_rows(raw.frame, raw_columns)
     file_lines = raw.line0 + frame.index.to_numpy()
     if not (isinstance(frame.index, pd.RangeIndex) and frame.index.start == 0
             and frame.index.step == 1):
         frame = frame.reset_index(drop=True)
+    if frame is not raw.frame and unique:
+        raw_columns = list(frame.items())
     if raw.last_line is not None and file_lines.size and file_lines[-1] != raw.last_line:
         notes.append("some quoted cells span several lines: line numbers count records "
                      "from the header, not physical lines")
     if frame.shape[1] <= 1:
         _require_columns(path, frame, {})
-    colmap = map_chain_columns(frame.columns)
-    # the raw columns once, for the fields and the rejected rows (unique names only)
-    raw_columns = list(frame.items()) if frame.columns.is_unique else None
-    sides = {c: s for c in frame.columns if c not in colmap.values()
+    colmap = map_chain_columns(labels)
+    sides = {c: s for c in labels if c not in colmap.values()
              and (s := side_of(c)) is not None}
     side_set = {(s, f) for s, f in sides.values()}
     wide = "type" not in colmap and "symbol" not in colmap and \
@@ -807,7 +812,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         "calendar_days": calendar_days[order].astype(np.int64),
         "line": line[order].astype(np.int64),
         "warnings": warn_sorted,
-    })
+    }, copy=False)  # every column a new array of its own
     if col("iv") is not None:
         iv_dec, note = file_iv_decimals(col("iv"), opt["iv"])
         quotes["iv_file"] = iv_dec[order]

@@ -159,8 +159,9 @@ def read_table(path: str | Path, *, header_test=None) -> RawTable:
         raise InputError(path, f"not a consistent table ({msg})") from None
     except (UnicodeError, ValueError, OSError) as err:
         raise InputError(path, f"cannot read as CSV ({err})") from None
-    names = [str(c).strip() for c in frame.columns]
-    if names != list(frame.columns):
+    labels = frame.columns.tolist()  # one conversion (iterating an Index costs per label)
+    names = [str(c).strip() for c in labels]
+    if names != labels:
         frame.columns = names
     last_line = None
     if compression is None and encoding != "utf-16":
@@ -196,14 +197,16 @@ def _read_parquet(path: Path) -> RawTable:
                     kind="parquet")
 
 
-def drop_blank_rows(frame: pd.DataFrame) -> pd.DataFrame:
-    """Drop rows with no cell at all (blank lines); the index keeps file positions."""
+def drop_blank_rows(frame: pd.DataFrame, items: list | None = None) -> pd.DataFrame:
+    """Drop rows with no cell at all (blank lines); the index keeps file positions.
+    ``items``: the frame's ``(name, column)`` pairs when the caller has them."""
     if frame.empty:
         return frame
+    dtypes = frame.dtypes.tolist() if items is None else [col.dtype for _, col in items]
     # a numpy integer or bool column holds no missing cell: no row is blank
-    if any(isinstance(d, np.dtype) and d.kind in "iub" for d in frame.dtypes.tolist()):
+    if any(isinstance(d, np.dtype) and d.kind in "iub" for d in dtypes):
         return frame
-    columns = [col for _, col in frame.items()]
+    columns = [col for _, col in (frame.items() if items is None else items)]
     # float columns first (a NaN test on their numbers), the others only if needed
     is_float = [isinstance(c.dtype, np.dtype) and c.dtype.kind == "f" for c in columns]
     blank = np.ones(len(frame), dtype=bool)

@@ -79,6 +79,12 @@ def to_number(col: pd.Series, *, decimal_comma: bool = False) -> np.ndarray:
     (``"1,234.50"``, ``"$12.5"``); with ``decimal_comma`` a comma is the decimal
     mark and a dot groups thousands (``"1.234,5"``).
     """
+    if isinstance(col.dtype, np.dtype) and col.dtype.kind in "biuf":
+        # numpy numbers: converted by numpy (the one missing value, NaN, ends as NaN
+        # with the infinities below, as through pandas' na_value)
+        out = np.array(col.to_numpy(), dtype=float)
+        out[~np.isfinite(out)] = np.nan
+        return out
     if col.dtype.kind in "biuf":
         out = np.array(col.to_numpy(dtype=float, na_value=np.nan), dtype=float)
         out[~np.isfinite(out)] = np.nan

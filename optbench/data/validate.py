@@ -103,6 +103,34 @@ def no_arbitrage_bounds(spot: float, strike: np.ndarray, t: np.ndarray, rate: fl
     return lower, upper
 
 
+def _contracts_distinct(expiry: np.ndarray, strike: np.ndarray, is_call: np.ndarray,
+                        mult: np.ndarray) -> bool:
+    """True when no two rows hold the same contract, seen from the rows' order alone:
+    one multiplier, rows in runs of one (expiry, type) whose strikes rise strictly, and
+    no (expiry, type) in two runs — a chain written expiry by expiry. False says only
+    that the order does not show it (then :func:`first_of_contract` looks).
+
+    The rows are the live ones of :func:`assign_reasons`: dated expiries, finite
+    positive strikes and multipliers, so equality is plain numeric equality."""
+    n = expiry.size
+    if n < 2 or expiry.dtype.kind != "M" or strike.dtype.kind != "f" \
+            or mult.dtype.kind != "f" or is_call.dtype.kind != "b":
+        return n < 2
+    if not (mult == mult[0]).all():
+        return False
+    e = expiry.view(np.int64)
+    if (e == np.iinfo(np.int64).min).any():      # NaT: leave it to the full search
+        return False
+    new_run = (e[1:] != e[:-1]) | (is_call[1:] != is_call[:-1])
+    if not ((strike[1:] > strike[:-1]) | new_run).all():
+        return False
+    starts = np.flatnonzero(np.r_[True, new_run])
+    run_e, run_c = e[starts], is_call[starts]
+    order = np.lexsort((run_c, run_e))
+    run_e, run_c = run_e[order], run_c[order]
+    return not ((run_e[1:] == run_e[:-1]) & (run_c[1:] == run_c[:-1])).any()
+
+
 def first_of_contract(*keys: np.ndarray) -> np.ndarray:
     """For each row, the position of the first row with the same key (the row itself
     when it is the first): keys compared column by column, missing values (NaN, NaT)
@@ -236,9 +264,11 @@ def assign_reasons(p, *, spot: float, rate: float, div_yield: float,
     live = a.open.copy()
     is_call = np.asarray(p["is_call"], dtype=bool)
     if live.any():
-        first = first_of_contract(np.asarray(p["expiry"])[live], strike[live],
-                                  is_call[live], mult[live])
-        dup = first != np.arange(first.size)
+        keys = (np.asarray(p["expiry"])[live], strike[live], is_call[live], mult[live])
+        dup = np.zeros(keys[0].size, dtype=bool) if _contracts_distinct(*keys) else None
+        if dup is None:
+            first = first_of_contract(*keys)
+            dup = first != np.arange(first.size)
         if dup.any():
             first_line = np.asarray(p["line"])[live][first]
             mask = np.zeros(n, dtype=bool)
