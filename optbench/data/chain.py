@@ -223,6 +223,8 @@ def _single_value(values: np.ndarray) -> tuple[float | None, int, float, float]:
     ok = values[np.isfinite(values)]
     if ok.size == 0:
         return None, 0, np.nan, np.nan
+    if (ok == ok[0]).all():     # one value in every cell (the usual column): no sort
+        return float(np.median(ok)), 1, float(ok[0]), float(ok[0])
     uniq = np.unique(ok)
     return float(np.median(ok)), uniq.size, float(uniq.min()), float(uniq.max())
 
@@ -351,7 +353,8 @@ def _no_rejected_rows(names: list, front: dict, raw_columns: list) -> pd.DataFra
     caller shares it). Most files reject nothing, and building an empty frame of a
     dozen columns costs more than copying one."""
     layout = (tuple(names), tuple((k, np.asarray(v).dtype) for k, v in front.items()),
-              tuple((raw.dtype, type(raw.array), _arrow_type(raw.array))
+              tuple(raw.dtype if isinstance(raw.dtype, np.dtype)
+                    else (raw.dtype, type(raw.array), _arrow_type(raw.array))
                     for _, raw in raw_columns))
     empty = _EMPTY_REJECTED.get(layout)
     if empty is None:
@@ -673,7 +676,9 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     if asof is not None:
         asof_d, asof_source = _as_date(asof, "--asof"), "caller"
     elif qd is not None and (~np.isnat(qd)).any():
-        days = np.unique(qd[~np.isnat(qd)])
+        days = qd[~np.isnat(qd)]
+        # one quote date in every dated cell (the usual file): no sort
+        days = days[:1] if (days == days[0]).all() else np.unique(days)
         asof_d, asof_source = pd.Timestamp(days[-1]).date(), "file"
         if days.size > 1:
             notes.append(f"the file holds {days.size} quote dates; the latest, {asof_d}, "

@@ -241,7 +241,11 @@ def implied_forwards(quotes: pd.DataFrame, spot: float, rate: float, div_yield: 
               "dividend_forward", "cash_carry"):
         columns[c] = np.array(columns[c], dtype=float)
     columns["n_pairs"] = np.array(columns["n_pairs"], dtype=np.int64)
-    return pd.DataFrame(columns)  # the dict holds FORWARD_COLUMNS in order
+    for c in ("source", "discount_source"):
+        # text as an object array: the column pandas makes of the list, built faster
+        columns[c] = np.array(columns[c], dtype=object)
+    # the dict holds FORWARD_COLUMNS in order, every value a new array of its own
+    return pd.DataFrame(columns, copy=False)
 
 
 def _expiry_codes(expiry: pd.Series):
