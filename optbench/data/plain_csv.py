@@ -25,6 +25,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
+from numpy.lib.stride_tricks import sliding_window_view
 
 #: bytes that send a file to the general reader: NUL, tab, carriage return, blank,
 #: quote, ``;`` and ``|`` (other delimiters), and anything outside ASCII
@@ -34,6 +35,8 @@ _NOT_PLAIN[128:] = True
 
 _MAX_DIGITS = 15
 _POWERS = 10.0 ** np.arange(_MAX_DIGITS + 1)
+#: 10**k as integers, k = 0 .. 15
+_PLACES = 10 ** np.arange(_MAX_DIGITS + 1, dtype=np.int64)
 
 
 def read_plain_history(path: Path, header_test, columns_of) -> tuple | None:
@@ -55,7 +58,10 @@ def read_plain_history(path: Path, header_test, columns_of) -> tuple | None:
     if raw[:4] == b"PAR1" or raw[:2] == b"\x1f\x8b" or raw[:3] == b"\xef\xbb\xbf":
         return None
     data = np.frombuffer(raw, dtype=np.uint8)
-    if data.size < 2 or _NOT_PLAIN[data].any():
+    if data.size < 2:
+        return None
+    counts = np.bincount(data, minlength=256)
+    if counts[_NOT_PLAIN].any():
         return None
     newline = np.flatnonzero(data == 10)
     if not newline.size:
@@ -78,10 +84,10 @@ def read_plain_history(path: Path, header_test, columns_of) -> tuple | None:
     n = starts.size
     if n == 0 or (ends - starts < 12).any() or (data[starts + 10] != 44).any():
         return None
-    if np.count_nonzero(data == 44) != n + 1:     # one comma a line, the header's too
+    if counts[44] != n + 1:     # one comma a line, the header's too
         return None
     from optbench.data.parse import _iso_from_chars
-    ok, days = _iso_from_chars(data[starts[:, None] + np.arange(10)])
+    ok, days = _iso_from_chars(sliding_window_view(data, 10)[starts])
     if not ok.all():
         return None
     closes = _plain_numbers(data, starts + 11, ends)
@@ -102,11 +108,13 @@ def _plain_numbers(data: np.ndarray, starts: np.ndarray, ends: np.ndarray):
         return None
     w = int(digits_and_point.max())
     # each cell right-aligned in w columns, '0' in front of it (no value)
-    at = ends[:, None] - w + np.arange(w)
-    inside = at >= first[:, None]
-    chars = np.where(inside, data[np.maximum(at, 0)], 48)
+    left = ends - w                     # the window of w bytes ending each cell
+    if (left < 0).any():
+        return None
+    inside = np.arange(w) >= (first - left)[:, None]
+    chars = np.where(inside, sliding_window_view(data, w)[left], 48)
     point = chars == 46
-    points = point.sum(axis=1)
+    points = np.count_nonzero(point, axis=1)
     digit = (chars >= 48) & (chars <= 57)
     if not (digit | point).all() or (points > 1).any():
         return None
@@ -118,11 +126,16 @@ def _plain_numbers(data: np.ndarray, starts: np.ndarray, ends: np.ndarray):
     if ((digits_and_point - has_point) > _MAX_DIGITS).any() or (width < 1).any():
         return None
     decimals = np.where(has_point, w - 1 - point_col, 0)
-    # place value of each column: 10^(columns to its right that hold digits)
-    col = np.arange(w)
-    exponent = (w - 1 - col)[None, :] - (has_point[:, None] & (col[None, :] < point_col[:, None]))
-    value = np.where(digit, chars - 48, 0).astype(np.int64)
-    mantissa = (value * (10 ** np.minimum(exponent, _MAX_DIGITS)).astype(np.int64)).sum(axis=1)
+    # the digits by the place value of their column (10^(w-1-column)); the digits left
+    # of a point sit one place too high (the point's column holds no digit), so their
+    # part (a multiple of 100) is divided by 10
+    placed = np.where(digit, chars - 48, 0).astype(np.int64) * _PLACES[w - 1::-1]
+    mantissa = placed.sum(axis=1)
+    if has_point.any():
+        high = np.cumsum(placed, axis=1)[np.arange(placed.shape[0]),
+                                         np.maximum(point_col - 1, 0)]
+        high = np.where(has_point, high, 0)
+        mantissa = mantissa - high + high // 10
     if not has_point.any():
         # a column of integers: pandas keeps them as int64, converted to float after
         return np.where(negative, -mantissa, mantissa).astype(np.float64)
