@@ -11,6 +11,7 @@ reason.
 from __future__ import annotations
 
 import datetime as _dt
+import functools
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -153,6 +154,12 @@ class OptionChain:
 
 
 def _is_header(cells: list[str]) -> bool:
+    return _is_header_cells(tuple(cells))
+
+
+@functools.lru_cache(maxsize=256)
+def _is_header_cells(cells: tuple) -> bool:
+    """:func:`_is_header` once per distinct line (a universe's files share a header)."""
     found = map_chain_columns(cells)
     sides = sum(side_of(c) is not None for c in cells)
     return len(found) >= 2 or (sides >= 2 and "strike" in found)

@@ -73,11 +73,20 @@ def _pick_delimiter(lines: list[str]) -> str:
     """The delimiter that splits the header-ish lines into the most columns."""
     best, best_count = ",", 0
     for delim in DELIMITERS:
-        counts = [len(next(csv.reader([ln], delimiter=delim))) for ln in lines[:5] if ln]
+        counts = [_field_count(ln, delim) for ln in lines[:5] if ln]
         count = min(counts) if counts else 0
         if count > best_count:
             best, best_count = delim, count
     return best
+
+
+def _field_count(line: str, delim: str) -> int:
+    """The number of cells ``csv.reader`` splits a non-empty line into: the delimiters
+    plus one when the line holds no quote character (or NUL), which is all the reader
+    looks at in such a line; the reader itself otherwise."""
+    if '"' in line or "\x00" in line:
+        return len(next(csv.reader([line], delimiter=delim)))
+    return line.count(delim) + 1
 
 
 #: lines of a file's head that :func:`read_table` looks at: the preamble search and
@@ -166,8 +175,7 @@ def read_table(path: str | Path, *, header_test=None) -> RawTable:
     last_line = None
     if compression is None and encoding != "utf-16":
         # the number of the last non-blank line, to tell whether rows map to lines
-        data = np.frombuffer(path.read_bytes().rstrip(b"\r\n\t "), dtype=np.uint8)
-        last_line = int(np.count_nonzero(data == 10)) + 1
+        last_line = path.read_bytes().rstrip(b"\r\n\t ").count(b"\n") + 1
     return RawTable(path=path, frame=frame, line0=skip + 2, delimiter=delim,
                     decimal_comma=decimal_comma, kind="csv", last_line=last_line)
 

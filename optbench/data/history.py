@@ -14,6 +14,8 @@ week are listed.
 """
 from __future__ import annotations
 
+import functools
+
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -81,6 +83,12 @@ def _lines(lines: np.ndarray) -> str:
 
 
 def _is_header(cells: list[str]) -> bool:
+    return _is_header_cells(tuple(cells))
+
+
+@functools.lru_cache(maxsize=256)
+def _is_header_cells(cells: tuple) -> bool:
+    """:func:`_is_header` once per distinct line (a universe's files share a header)."""
     found = map_history_columns(cells)
     return "date" in found and ("close" in found or "adj_close" in found)
 

@@ -277,3 +277,13 @@ def test_numpy_number_columns_as_pandas_converts_them(values):
     ref = np.array(col.to_numpy(dtype=float, na_value=np.nan), dtype=float)
     ref[~np.isfinite(ref)] = np.nan
     assert fast.tobytes() == ref.tobytes()
+
+
+@given(st.text(st.sampled_from(list(',;|\t"ab 1.') + ["\x00"]), min_size=1, max_size=30),
+       st.sampled_from([",", ";", "\t", "|"]))
+def test_field_count_is_the_csv_readers(line, delim):
+    import csv
+
+    from optbench.data.files import _field_count
+
+    assert _field_count(line, delim) == len(next(csv.reader([line], delimiter=delim)))
