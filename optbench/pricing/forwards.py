@@ -242,10 +242,22 @@ def implied_forwards(quotes: pd.DataFrame, spot: float, rate: float, div_yield: 
         columns[c] = np.array(columns[c], dtype=float)
     columns["n_pairs"] = np.array(columns["n_pairs"], dtype=np.int64)
     for c in ("source", "discount_source"):
-        # text as an object array: the column pandas makes of the list, built faster
-        columns[c] = np.array(columns[c], dtype=object)
+        # text in the dtype pandas gives a list of words: the same column, built faster
+        columns[c] = pd.array(columns[c], dtype=_text_dtype())
     # the dict holds FORWARD_COLUMNS in order, every value a new array of its own
     return pd.DataFrame(columns, copy=False)
+
+
+_TEXT_DTYPE = None
+
+
+def _text_dtype():
+    """The dtype pandas gives a column made of a list of words (``str`` from pandas
+    3, ``object`` before), found once."""
+    global _TEXT_DTYPE
+    if _TEXT_DTYPE is None:
+        _TEXT_DTYPE = pd.DataFrame({"w": ["given"]})["w"].dtype
+    return _TEXT_DTYPE
 
 
 def _expiry_codes(expiry: pd.Series):
