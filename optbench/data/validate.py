@@ -59,7 +59,10 @@ class _Assigner:
 
     def apply(self, code: str, mask: np.ndarray, detail) -> None:
         assert code in REASONS, code
-        sel = np.asarray(mask, dtype=bool) & self.open
+        mask = np.asarray(mask, dtype=bool)
+        if not mask.any():          # the usual case: no row breaks the rule
+            return
+        sel = mask & self.open
         if not sel.any():
             return
         self.reason[sel] = code
