@@ -274,6 +274,12 @@ def _expiry_codes(expiry: pd.Series):
         codes = np.full(values.shape, -1, dtype=np.intp)
         codes[~nat] = inv.ravel()
         return codes, uniq
+    if values.size and (values[1:] >= values[:-1]).all():
+        # already in order (the loader sorts quotes by expiry): each run one code
+        new = np.empty(values.size, dtype=bool)
+        new[0] = True
+        np.not_equal(values[1:], values[:-1], out=new[1:])
+        return (np.cumsum(new) - 1).astype(np.intp), values[new]
     uniq, inv = np.unique(values, return_inverse=True)
     return inv.ravel().astype(np.intp), uniq
 

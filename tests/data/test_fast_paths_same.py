@@ -287,3 +287,18 @@ def test_field_count_is_the_csv_readers(line, delim):
     from optbench.data.files import _field_count
 
     assert _field_count(line, delim) == len(next(csv.reader([line], delimiter=delim)))
+
+
+@given(st.lists(st.integers(0, 6), min_size=1, max_size=40), st.booleans(), st.booleans())
+def test_expiry_codes_of_sorted_quotes_are_pandas_factorize(days, sort, with_nat):
+    from optbench.pricing.forwards import _expiry_codes
+
+    v = np.datetime64("2027-01-01", "ns") + np.array(days, dtype="timedelta64[D]")
+    if sort:
+        v = np.sort(v)
+    if with_nat:
+        v[len(v) // 2] = np.datetime64("NaT")
+    codes, uniq = _expiry_codes(pd.Series(v))
+    ref_codes, ref_uniq = pd.factorize(pd.Series(v), sort=True, use_na_sentinel=True)
+    assert codes.tolist() == ref_codes.tolist()
+    assert np.asarray(uniq).tolist() == np.asarray(ref_uniq).tolist()
