@@ -289,7 +289,7 @@ def _is_american(style: pd.Series) -> np.ndarray:
     column is read once per category."""
     if isinstance(style.dtype, pd.CategoricalDtype):
         cat = style.array  # the Categorical itself (no accessor built)
-        categories = list(cat.categories)
+        categories = cat.categories.tolist()  # one conversion, not one per label
         if all(isinstance(c, str) and c.isascii() for c in categories):
             # plain ASCII words (the canonical european/american): lower case is the
             # same by Python's rules and pyarrow's
