@@ -186,7 +186,11 @@ def _usable_quotes(q: pd.DataFrame, expiries, source) -> pd.DataFrame:
     keep = q["t"].to_numpy(float) > 0
     if expiries is not None:
         keep &= _only_expiries(values, keep, expiries, source)
-    return (q if keep.all() else q.take(np.flatnonzero(keep))).reset_index(drop=True)
+    if keep.all():
+        return q.reset_index(drop=True)
+    out = q.take(np.flatnonzero(keep))
+    out.index = pd.RangeIndex(len(out))   # what reset_index(drop=True) gives, no copy
+    return out
 
 
 def _only_expiries(values: np.ndarray, usable: np.ndarray, expiries,
@@ -199,9 +203,9 @@ def _only_expiries(values: np.ndarray, usable: np.ndarray, expiries,
             not pd.isna(w) and w.tz is None and 1900 <= w.year <= 2200 for w in wanted_days):
         # on numpy's dates (the listed ones are the loader's, 1900-2200)
         wanted64 = np.array([w.to_datetime64() for w in wanted_days])
-        found = np.isin(wanted64, listed_values)
+        found = _isin_few(wanted64, listed_values)
         missing = sorted({w for w, f in zip(wanted_days, found) if not f})
-        chosen = np.isin(listed_values, wanted64)
+        chosen = _isin_few(listed_values, wanted64)
     else:
         listed = pd.to_datetime(listed_values)
         wanted = pd.to_datetime(pd.Index(wanted_days))
@@ -210,7 +214,19 @@ def _only_expiries(values: np.ndarray, usable: np.ndarray, expiries,
     if missing:
         raise InputError("--expiry", f"{missing[0].date().isoformat()} is not an expiry "
                                      f"with usable quotes in {source}")
-    return np.isin(values, listed_values[chosen])
+    return _isin_few(values, listed_values[chosen])
+
+
+def _isin_few(values: np.ndarray, few: np.ndarray) -> np.ndarray:
+    """``numpy.isin(values, few)`` for a handful of ``few`` (a few expiries): one
+    equality test per element of ``few``, which is what numpy.isin does for so few
+    (without its dispatch); numpy.isin itself for more."""
+    if few.size > 8 or values.dtype != few.dtype:
+        return np.isin(values, few)
+    out = np.zeros(values.shape, dtype=bool)
+    for value in few:
+        out |= values == value
+    return out
 
 
 def _expiry_positions(listed: np.ndarray, values: np.ndarray) -> np.ndarray:

@@ -11,6 +11,7 @@ reason.
 from __future__ import annotations
 
 import datetime as _dt
+import functools
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -153,6 +154,12 @@ class OptionChain:
 
 
 def _is_header(cells: list[str]) -> bool:
+    return _is_header_cells(tuple(cells))
+
+
+@functools.lru_cache(maxsize=256)
+def _is_header_cells(cells: tuple) -> bool:
+    """:func:`_is_header` once per distinct line (a universe's files share a header)."""
     found = map_chain_columns(cells)
     sides = sum(side_of(c) is not None for c in cells)
     return len(found) >= 2 or (sides >= 2 and "strike" in found)
@@ -223,6 +230,8 @@ def _single_value(values: np.ndarray) -> tuple[float | None, int, float, float]:
     ok = values[np.isfinite(values)]
     if ok.size == 0:
         return None, 0, np.nan, np.nan
+    if (ok == ok[0]).all():     # one value in every cell (the usual column): no sort
+        return float(np.median(ok)), 1, float(ok[0]), float(ok[0])
     uniq = np.unique(ok)
     return float(np.median(ok)), uniq.size, float(uniq.min()), float(uniq.max())
 
@@ -324,8 +333,11 @@ def _rejected_frame(frame: pd.DataFrame, rows: np.ndarray, front: dict,
     raw fields of ``frame``'s rows ``rows`` as read (a raw column named like a front
     column gets `` (file)``), numbered from 0. One frame built from the columns; a file
     with repeated column names takes the concatenation it is equivalent to."""
-    names = [c if c not in front else f"{c} (file)" for c in frame.columns]
+    names = [c if c not in front else f"{c} (file)" for c in frame.columns.tolist()]
     if len(set(names) | set(front)) == len(names) + len(front):
+        if not len(rows):
+            return _no_rejected_rows(names, front, raw_columns if raw_columns is not None
+                                     else list(frame.items()))
         columns = dict(front)
         for name, (_, raw) in zip(names, raw_columns if raw_columns is not None
                                   else frame.items()):
@@ -335,6 +347,41 @@ def _rejected_frame(frame: pd.DataFrame, rows: np.ndarray, front: dict,
     raw_rows = frame.iloc[rows].reset_index(drop=True)
     raw_rows.columns = names
     return pd.concat([pd.DataFrame(front), raw_rows], axis=1)
+
+
+#: empty rejected frames by the layout of their columns (see :func:`_no_rejected_rows`)
+_EMPTY_REJECTED: dict = {}
+
+
+def _no_rejected_rows(names: list, front: dict, raw_columns: list) -> pd.DataFrame:
+    """The rejected frame of a file with no rejected row: what :func:`_rejected_frame`
+    builds from its columns' empty takes, built once per layout (column names, the
+    front and raw columns' dtypes and array types) and copied (a deep copy, so no
+    caller shares it). Most files reject nothing, and building an empty frame of a
+    dozen columns costs more than copying one."""
+    layout = (tuple(names), tuple((k, np.asarray(v).dtype) for k, v in front.items()),
+              tuple(raw.dtype if isinstance(raw.dtype, np.dtype)
+                    else (raw.dtype, type(raw.array), _arrow_type(raw.array))
+                    for _, raw in raw_columns))
+    empty = _EMPTY_REJECTED.get(layout)
+    if empty is None:
+        rows = np.zeros(0, dtype=np.intp)
+        columns = dict(front)
+        for name, (_, raw) in zip(names, raw_columns):
+            columns[name] = raw.to_numpy().take(rows) if isinstance(raw.dtype, np.dtype) \
+                else raw.array.take(rows)
+        empty = pd.DataFrame(columns)
+        if len(_EMPTY_REJECTED) >= 64:
+            _EMPTY_REJECTED.clear()
+        _EMPTY_REJECTED[layout] = empty
+    return empty.copy(deep=True)
+
+
+def _arrow_type(array) -> str:
+    """The pyarrow type behind an array on pyarrow storage ('' for any other)."""
+    if not hasattr(array, "__arrow_array__"):
+        return ""
+    return str(array.__arrow_array__().type)
 
 
 def _one_cell(arrow):
@@ -354,6 +401,20 @@ def _one_cell(arrow):
     return arrow.slice(0, 1) if (rows == rows[0]).all() else None
 
 
+def _plain_ascii_name(cell) -> str | None:
+    """The name in a one-cell pyarrow text array whose bytes are ASCII, the first and
+    the last printed (33-126, no blank): upper case by ASCII's rule, which is what
+    trimming blanks (none at the ends) and upper-casing by pyarrow's kernels give such a
+    cell. None for any other cell."""
+    from optbench.data.parse import _full_text_bytes
+    offsets, data = _full_text_bytes(cell)
+    raw = data[offsets[0]:offsets[1]]
+    if not raw.size or (raw >= 128).any() or not (33 <= raw[0] <= 126) \
+            or not (33 <= raw[-1] <= 126):
+        return None
+    return raw.tobytes().decode("ascii").upper()
+
+
 def _single_underlying(column: pd.Series) -> str | None:
     """The underlying of a text column on pyarrow storage whose non-blank cells all
     name one underlying (stripped, upper case): what the counting in
@@ -361,9 +422,13 @@ def _single_underlying(column: pd.Series) -> str | None:
     arrow = arrow_text(column)
     if arrow is None:
         return None
-    import pyarrow.compute as pc
     # the distinct cells first: the same set of names, normalised on a few cells
     cells = _one_cell(arrow)
+    if cells is not None:
+        name = _plain_ascii_name(cells)
+        if name is not None:
+            return name
+    import pyarrow.compute as pc
     norm = pc.utf8_upper(pc.utf8_trim_whitespace(cells if cells is not None
                                                  else pc.unique(arrow)))
     named = pc.unique(pc.filter(norm, pc.fill_null(pc.not_equal(norm, ""), False)))
@@ -435,20 +500,25 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     meta = dict(meta or {})
     notes: list[str] = []
     raw: RawTable = read_table(path, header_test=_is_header)
-    frame = drop_blank_rows(raw.frame)
+    # the header's labels and the raw columns once, for the blank-row check, the fields
+    # and the rejected rows (the columns only when the labels are unique)
+    labels = raw.frame.columns.tolist()
+    unique = raw.frame.columns.is_unique
+    raw_columns = list(raw.frame.items()) if unique else None
+    frame = drop_blank_rows(raw.frame, raw_columns)
     file_lines = raw.line0 + frame.index.to_numpy()
     if not (isinstance(frame.index, pd.RangeIndex) and frame.index.start == 0
             and frame.index.step == 1):
         frame = frame.reset_index(drop=True)
+    if frame is not raw.frame and unique:
+        raw_columns = list(frame.items())
     if raw.last_line is not None and file_lines.size and file_lines[-1] != raw.last_line:
         notes.append("some quoted cells span several lines: line numbers count records "
                      "from the header, not physical lines")
     if frame.shape[1] <= 1:
         _require_columns(path, frame, {})
-    colmap = map_chain_columns(frame.columns)
-    # the raw columns once, for the fields and the rejected rows (unique names only)
-    raw_columns = list(frame.items()) if frame.columns.is_unique else None
-    sides = {c: s for c in frame.columns if c not in colmap.values()
+    colmap = map_chain_columns(labels)
+    sides = {c: s for c in labels if c not in colmap.values()
              and (s := side_of(c)) is not None}
     side_set = {(s, f) for s, f in sides.values()}
     wide = "type" not in colmap and "symbol" not in colmap and \
@@ -613,7 +683,9 @@ def load_chain(path: str | Path, *, spot: float | None = None,
     if asof is not None:
         asof_d, asof_source = _as_date(asof, "--asof"), "caller"
     elif qd is not None and (~np.isnat(qd)).any():
-        days = np.unique(qd[~np.isnat(qd)])
+        days = qd[~np.isnat(qd)]
+        # one quote date in every dated cell (the usual file): no sort
+        days = days[:1] if (days == days[0]).all() else np.unique(days)
         asof_d, asof_source = pd.Timestamp(days[-1]).date(), "file"
         if days.size > 1:
             notes.append(f"the file holds {days.size} quote dates; the latest, {asof_d}, "
@@ -752,7 +824,7 @@ def load_chain(path: str | Path, *, spot: float | None = None,
         "calendar_days": calendar_days[order].astype(np.int64),
         "line": line[order].astype(np.int64),
         "warnings": warn_sorted,
-    })
+    }, copy=False)  # every column a new array of its own
     if col("iv") is not None:
         iv_dec, note = file_iv_decimals(col("iv"), opt["iv"])
         quotes["iv_file"] = iv_dec[order]

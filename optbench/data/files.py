@@ -73,11 +73,20 @@ def _pick_delimiter(lines: list[str]) -> str:
     """The delimiter that splits the header-ish lines into the most columns."""
     best, best_count = ",", 0
     for delim in DELIMITERS:
-        counts = [len(next(csv.reader([ln], delimiter=delim))) for ln in lines[:5] if ln]
+        counts = [_field_count(ln, delim) for ln in lines[:5] if ln]
         count = min(counts) if counts else 0
         if count > best_count:
             best, best_count = delim, count
     return best
+
+
+def _field_count(line: str, delim: str) -> int:
+    """The number of cells ``csv.reader`` splits a non-empty line into: the delimiters
+    plus one when the line holds no quote character (or NUL), which is all the reader
+    looks at in such a line; the reader itself otherwise."""
+    if '"' in line or "\x00" in line:
+        return len(next(csv.reader([line], delimiter=delim)))
+    return line.count(delim) + 1
 
 
 #: lines of a file's head that :func:`read_table` looks at: the preamble search and
@@ -159,14 +168,14 @@ def read_table(path: str | Path, *, header_test=None) -> RawTable:
         raise InputError(path, f"not a consistent table ({msg})") from None
     except (UnicodeError, ValueError, OSError) as err:
         raise InputError(path, f"cannot read as CSV ({err})") from None
-    names = [str(c).strip() for c in frame.columns]
-    if names != list(frame.columns):
+    labels = frame.columns.tolist()  # one conversion (iterating an Index costs per label)
+    names = [str(c).strip() for c in labels]
+    if names != labels:
         frame.columns = names
     last_line = None
     if compression is None and encoding != "utf-16":
         # the number of the last non-blank line, to tell whether rows map to lines
-        data = np.frombuffer(path.read_bytes().rstrip(b"\r\n\t "), dtype=np.uint8)
-        last_line = int(np.count_nonzero(data == 10)) + 1
+        last_line = path.read_bytes().rstrip(b"\r\n\t ").count(b"\n") + 1
     return RawTable(path=path, frame=frame, line0=skip + 2, delimiter=delim,
                     decimal_comma=decimal_comma, kind="csv", last_line=last_line)
 
@@ -196,14 +205,16 @@ def _read_parquet(path: Path) -> RawTable:
                     kind="parquet")
 
 
-def drop_blank_rows(frame: pd.DataFrame) -> pd.DataFrame:
-    """Drop rows with no cell at all (blank lines); the index keeps file positions."""
+def drop_blank_rows(frame: pd.DataFrame, items: list | None = None) -> pd.DataFrame:
+    """Drop rows with no cell at all (blank lines); the index keeps file positions.
+    ``items``: the frame's ``(name, column)`` pairs when the caller has them."""
     if frame.empty:
         return frame
+    dtypes = frame.dtypes.tolist() if items is None else [col.dtype for _, col in items]
     # a numpy integer or bool column holds no missing cell: no row is blank
-    if any(isinstance(d, np.dtype) and d.kind in "iub" for d in frame.dtypes.tolist()):
+    if any(isinstance(d, np.dtype) and d.kind in "iub" for d in dtypes):
         return frame
-    columns = [col for _, col in frame.items()]
+    columns = [col for _, col in (frame.items() if items is None else items)]
     # float columns first (a NaN test on their numbers), the others only if needed
     is_float = [isinstance(c.dtype, np.dtype) and c.dtype.kind == "f" for c in columns]
     blank = np.ones(len(frame), dtype=bool)

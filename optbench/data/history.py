@@ -14,6 +14,8 @@ week are listed.
 """
 from __future__ import annotations
 
+import functools
+
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -23,6 +25,7 @@ import pandas as pd
 from optbench.data.columns import map_history_columns
 from optbench.data.files import drop_blank_rows, read_table
 from optbench.data.parse import date_array, to_number
+from optbench.data.plain_csv import read_plain_history
 from optbench.errors import InputError
 
 GAP_DAYS = 7
@@ -80,6 +83,12 @@ def _lines(lines: np.ndarray) -> str:
 
 
 def _is_header(cells: list[str]) -> bool:
+    return _is_header_cells(tuple(cells))
+
+
+@functools.lru_cache(maxsize=256)
+def _is_header_cells(cells: tuple) -> bool:
+    """:func:`_is_header` once per distinct line (a universe's files share a header)."""
     found = map_history_columns(cells)
     return "date" in found and ("close" in found or "adj_close" in found)
 
@@ -116,25 +125,35 @@ def load_history(path: str | Path) -> PriceHistory:
                 break
         else:
             raise InputError(path, "folder holds no history.csv")
-    raw = read_table(path, header_test=_is_header)
-    frame = drop_blank_rows(raw.frame)
-    lines = raw.line0 + frame.index.to_numpy()
-    if not (isinstance(frame.index, pd.RangeIndex) and frame.index.start == 0
-            and frame.index.step == 1):
-        frame = frame.reset_index(drop=True)
-    if frame.shape[1] <= 1:
-        raise InputError(path, "only one column found: the delimiter is not one of "
-                         ", ; tab | or the file is not a price history")
-    cols = map_history_columns(frame.columns)
-    if "date" not in cols:
-        raise InputError(path, "missing column 'date'")
-    close_field = "adj_close" if "adj_close" in cols else "close"
-    if close_field not in cols:
-        raise InputError(path, "missing column 'close' (or an adjusted close)")
     issues: list[str] = []
-    dc = raw.decimal_comma
-    dates = date_array(frame[cols["date"]])
-    close = to_number(frame[cols[close_field]], decimal_comma=dc)
+    # the usual date,close file from its bytes (the same dates, closes and lines as
+    # the table read below gives it), any other file as a table
+    plain = read_plain_history(path, _is_header, map_history_columns)
+    if plain is not None:
+        date_name, close_name, close_field, dates, close = plain
+        frame, cols, dc = None, {"date": date_name, close_field: close_name}, False
+        lines = 2 + np.arange(dates.size)      # the header is line 1
+        rows_in = dates.size
+    else:
+        raw = read_table(path, header_test=_is_header)
+        frame = drop_blank_rows(raw.frame)
+        lines = raw.line0 + frame.index.to_numpy()
+        if not (isinstance(frame.index, pd.RangeIndex) and frame.index.start == 0
+                and frame.index.step == 1):
+            frame = frame.reset_index(drop=True)
+        if frame.shape[1] <= 1:
+            raise InputError(path, "only one column found: the delimiter is not one of "
+                             ", ; tab | or the file is not a price history")
+        cols = map_history_columns(frame.columns)
+        if "date" not in cols:
+            raise InputError(path, "missing column 'date'")
+        close_field = "adj_close" if "adj_close" in cols else "close"
+        if close_field not in cols:
+            raise InputError(path, "missing column 'close' (or an adjusted close)")
+        dc = raw.decimal_comma
+        dates = date_array(frame[cols["date"]])
+        close = to_number(frame[cols[close_field]], decimal_comma=dc)
+        rows_in = len(frame)
 
     bad_date = np.isnat(dates)
     if bad_date.all():
@@ -232,5 +251,5 @@ def load_history(path: str | Path) -> PriceHistory:
     returns = np.diff(np.log(c))
     return PriceHistory(source=str(path), dates=d, close=c, open=out["open"],
                         high=out["high"], low=out["low"], returns=returns, issues=issues,
-                        close_column=str(cols[close_field]), rows_in=int(len(frame)),
+                        close_column=str(cols[close_field]), rows_in=int(rows_in),
                         dropped=dropped)

@@ -79,6 +79,12 @@ def to_number(col: pd.Series, *, decimal_comma: bool = False) -> np.ndarray:
     (``"1,234.50"``, ``"$12.5"``); with ``decimal_comma`` a comma is the decimal
     mark and a dot groups thousands (``"1.234,5"``).
     """
+    if isinstance(col.dtype, np.dtype) and col.dtype.kind in "biuf":
+        # numpy numbers: converted by numpy (the one missing value, NaN, ends as NaN
+        # with the infinities below, as through pandas' na_value)
+        out = np.array(col.to_numpy(), dtype=float)
+        out[~np.isfinite(out)] = np.nan
+        return out
     if col.dtype.kind in "biuf":
         out = np.array(col.to_numpy(dtype=float, na_value=np.nan), dtype=float)
         out[~np.isfinite(out)] = np.nan
@@ -231,10 +237,28 @@ def _all_plain_iso_arrow(arr) -> np.ndarray | None:
     n = len(arr)
     if offsets[-1] - offsets[0] != 10 * n or not (np.diff(offsets) == 10).all():
         return None
-    ok, dates = _iso_from_chars(data[offsets[0]:offsets[-1]].reshape(n, 10))
+    chars = data[offsets[0]:offsets[-1]].reshape(n, 10)
+    head = chars[:_RUN_PROBE]
+    if n > _RUN_PROBE and (head[1:] == head[:-1]).all(axis=1).any():
+        # a column of repeated dates (a chain's expiries, its quote date): each run of
+        # equal cells read once, from its first cell
+        starts = np.empty(n, dtype=bool)
+        starts[0] = True
+        starts[1:] = (chars[1:] != chars[:-1]).any(axis=1)
+        at = np.flatnonzero(starts)
+        ok, dates = _iso_from_chars(chars[at])
+        if not ok.all():
+            return None
+        return dates.astype("datetime64[ns]")[np.cumsum(starts) - 1]
+    ok, dates = _iso_from_chars(chars)
     if not ok.all():
         return None
     return dates.astype("datetime64[ns]")
+
+
+#: leading cells of a date column compared with their neighbours to tell a column of
+#: repeated dates (read run by run) from one of distinct dates (read cell by cell)
+_RUN_PROBE = 16
 
 
 def _year_tables() -> tuple[np.ndarray, np.ndarray]:
@@ -408,6 +432,9 @@ def call_codes(col: pd.Series) -> np.ndarray:
     """Option type as int8 codes: 1 call, 0 put, -1 empty or unreadable."""
     arrow = arrow_text(col)
     if arrow is not None:
+        single = _one_byte_codes(arrow)
+        if single is not None:
+            return single
         # the distinct cells, stripped and lower-cased by the kernels pandas' ``.str``
         # methods call on pyarrow storage
         import pyarrow.compute as pc
@@ -421,6 +448,30 @@ def call_codes(col: pd.Series) -> np.ndarray:
                                                else None, -1) for k in keys] + [-1],
                      dtype=np.int8)
     return table[codes]  # code -1 (missing) picks the trailing -1
+
+
+#: option-type code of each byte value as a one-character cell: ``C``/``c`` 1 (call),
+#: ``P``/``p`` 0 (put), any other byte -1 (a blank strips to nothing; no other single
+#: character is a type word)
+_ONE_BYTE_TYPE = np.full(256, -1, dtype=np.int8)
+_ONE_BYTE_TYPE[[ord("C"), ord("c")]] = 1
+_ONE_BYTE_TYPE[[ord("P"), ord("p")]] = 0
+
+
+def _one_byte_codes(arr) -> np.ndarray | None:
+    """:func:`call_codes` of a pyarrow text array whose every cell is one byte long
+    (no missing cell), read from its bytes by :data:`_ONE_BYTE_TYPE`; None otherwise.
+    A one-byte cell is one ASCII character (UTF-8 starts no longer character with a
+    byte below 128 and holds no one-byte character at or above it): stripped and lower
+    cased it is ``c``, ``p`` or no type word."""
+    bytes_ = _full_text_bytes(arr)
+    if bytes_ is None:
+        return None
+    offsets, data = bytes_
+    n = len(arr)
+    if offsets[-1] - offsets[0] != n or not (np.diff(offsets) == 1).all():
+        return None
+    return _ONE_BYTE_TYPE[data[offsets[0]:offsets[-1]]]
 
 
 def to_is_call(col: pd.Series) -> pd.Series:

@@ -59,7 +59,10 @@ class _Assigner:
 
     def apply(self, code: str, mask: np.ndarray, detail) -> None:
         assert code in REASONS, code
-        sel = np.asarray(mask, dtype=bool) & self.open
+        mask = np.asarray(mask, dtype=bool)
+        if not mask.any():          # the usual case: no row breaks the rule
+            return
+        sel = mask & self.open
         if not sel.any():
             return
         self.reason[sel] = code
@@ -101,6 +104,34 @@ def no_arbitrage_bounds(spot: float, strike: np.ndarray, t: np.ndarray, rate: fl
     lower = np.where(american, np.maximum(lower, intrinsic), lower)
     upper = np.where(is_call, spot, np.where(american, strike, strike * disc))
     return lower, upper
+
+
+def _contracts_distinct(expiry: np.ndarray, strike: np.ndarray, is_call: np.ndarray,
+                        mult: np.ndarray) -> bool:
+    """True when no two rows hold the same contract, seen from the rows' order alone:
+    one multiplier, rows in runs of one (expiry, type) whose strikes rise strictly, and
+    no (expiry, type) in two runs — a chain written expiry by expiry. False says only
+    that the order does not show it (then :func:`first_of_contract` looks).
+
+    The rows are the live ones of :func:`assign_reasons`: dated expiries, finite
+    positive strikes and multipliers, so equality is plain numeric equality."""
+    n = expiry.size
+    if n < 2 or expiry.dtype.kind != "M" or strike.dtype.kind != "f" \
+            or mult.dtype.kind != "f" or is_call.dtype.kind != "b":
+        return n < 2
+    if not (mult == mult[0]).all():
+        return False
+    e = expiry.view(np.int64)
+    if (e == np.iinfo(np.int64).min).any():      # NaT: leave it to the full search
+        return False
+    new_run = (e[1:] != e[:-1]) | (is_call[1:] != is_call[:-1])
+    if not ((strike[1:] > strike[:-1]) | new_run).all():
+        return False
+    starts = np.flatnonzero(np.r_[True, new_run])
+    run_e, run_c = e[starts], is_call[starts]
+    order = np.lexsort((run_c, run_e))
+    run_e, run_c = run_e[order], run_c[order]
+    return not ((run_e[1:] == run_e[:-1]) & (run_c[1:] == run_c[:-1])).any()
 
 
 def first_of_contract(*keys: np.ndarray) -> np.ndarray:
@@ -236,9 +267,11 @@ def assign_reasons(p, *, spot: float, rate: float, div_yield: float,
     live = a.open.copy()
     is_call = np.asarray(p["is_call"], dtype=bool)
     if live.any():
-        first = first_of_contract(np.asarray(p["expiry"])[live], strike[live],
-                                  is_call[live], mult[live])
-        dup = first != np.arange(first.size)
+        keys = (np.asarray(p["expiry"])[live], strike[live], is_call[live], mult[live])
+        dup = np.zeros(keys[0].size, dtype=bool) if _contracts_distinct(*keys) else None
+        if dup is None:
+            first = first_of_contract(*keys)
+            dup = first != np.arange(first.size)
         if dup.any():
             first_line = np.asarray(p["line"])[live][first]
             mask = np.zeros(n, dtype=bool)

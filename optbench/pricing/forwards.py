@@ -241,7 +241,23 @@ def implied_forwards(quotes: pd.DataFrame, spot: float, rate: float, div_yield: 
               "dividend_forward", "cash_carry"):
         columns[c] = np.array(columns[c], dtype=float)
     columns["n_pairs"] = np.array(columns["n_pairs"], dtype=np.int64)
-    return pd.DataFrame(columns)  # the dict holds FORWARD_COLUMNS in order
+    for c in ("source", "discount_source"):
+        # text in the dtype pandas gives a list of words: the same column, built faster
+        columns[c] = pd.array(columns[c], dtype=_text_dtype())
+    # the dict holds FORWARD_COLUMNS in order, every value a new array of its own
+    return pd.DataFrame(columns, copy=False)
+
+
+_TEXT_DTYPE = None
+
+
+def _text_dtype():
+    """The dtype pandas gives a column made of a list of words (``str`` from pandas
+    3, ``object`` before), found once."""
+    global _TEXT_DTYPE
+    if _TEXT_DTYPE is None:
+        _TEXT_DTYPE = pd.DataFrame({"w": ["given"]})["w"].dtype
+    return _TEXT_DTYPE
 
 
 def _expiry_codes(expiry: pd.Series):
@@ -258,6 +274,12 @@ def _expiry_codes(expiry: pd.Series):
         codes = np.full(values.shape, -1, dtype=np.intp)
         codes[~nat] = inv.ravel()
         return codes, uniq
+    if values.size and (values[1:] >= values[:-1]).all():
+        # already in order (the loader sorts quotes by expiry): each run one code
+        new = np.empty(values.size, dtype=bool)
+        new[0] = True
+        np.not_equal(values[1:], values[:-1], out=new[1:])
+        return (np.cumsum(new) - 1).astype(np.intp), values[new]
     uniq, inv = np.unique(values, return_inverse=True)
     return inv.ravel().astype(np.intp), uniq
 
@@ -267,7 +289,7 @@ def _is_american(style: pd.Series) -> np.ndarray:
     column is read once per category."""
     if isinstance(style.dtype, pd.CategoricalDtype):
         cat = style.array  # the Categorical itself (no accessor built)
-        categories = list(cat.categories)
+        categories = cat.categories.tolist()  # one conversion, not one per label
         if all(isinstance(c, str) and c.isascii() for c in categories):
             # plain ASCII words (the canonical european/american): lower case is the
             # same by Python's rules and pyarrow's

@@ -106,11 +106,12 @@ def _expiry_rows(listed: pd.Series, wanted: pd.Series) -> np.ndarray:
     ``pandas.Index(listed).get_indexer(wanted)``, by a sorted search when both are
     datetime64 of one unit (no index built)."""
     lv, wv = listed.to_numpy(), wanted.to_numpy()
-    if lv.dtype.kind != "M" or lv.dtype != wv.dtype or not lv.size \
-            or np.isnat(lv).any() or np.unique(lv).size != lv.size:
+    if lv.dtype.kind != "M" or lv.dtype != wv.dtype or not lv.size or np.isnat(lv).any():
         return pd.Index(listed).get_indexer(wanted)
     order = np.argsort(lv, kind="stable")
     ranked = lv[order]
+    if (ranked[1:] == ranked[:-1]).any():    # an expiry listed twice
+        return pd.Index(listed).get_indexer(wanted)
     pos = np.minimum(np.searchsorted(ranked, wv), ranked.size - 1)
     return np.where(ranked[pos] == wv, order[pos], -1).astype(np.intp)
 
