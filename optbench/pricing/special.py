@@ -890,6 +890,128 @@ def _halley_by_quadrature(t, t_from, dp, nu: float, log_c: float, m: int, lo, hi
     return res, ok
 
 
+#: largest df whose tail anchors :func:`t_quantiles_normal_grid` solves by
+#: :func:`_t_tail_cdf` (beyond it the integrand falls too steeply across a panel for
+#: 12 points: 1e-13 at df 30 against 1e-14 up to 20, tests/pricing/test_special.py)
+_TAIL_QUADRATURE_MAX_DF = 20.0
+#: Gauss-Legendre points per panel of the tail integral of :func:`_t_tail_cdf`
+_TAIL_POINTS = 12
+
+
+def _t_tail_cdf(t: np.ndarray, nu: float, log_c: float) -> np.ndarray:
+    """Student-t distribution function ``F(t)`` for ``t < -1`` by quadrature and the
+    density's expansion for large ``|t|``, without the continued fraction.
+
+    Notes
+    -----
+    With ``s = t^2 / nu``, ``F(t) = c |t| int_0^inf h(u) du``, ``h(u) = e^u (1 + s
+    e^{2u})^{-(nu+1)/2}`` (``tau = t e^u``), analytic in the strip ``|Im u| < pi/2``.
+    Beyond ``V`` with ``s e^{2V} = L = 1000 (nu + 1)`` the binomial series
+    ``(1 + s e^{2u})^{-(nu+1)/2} = sum_k C(-(nu+1)/2, k) (s e^{2u})^{-(nu+1)/2-k}``
+    integrates term by term: ``s^{-(nu+1)/2} e^{-nu V} sum_k C(-(nu+1)/2, k) w^k /
+    (nu + 2k)``, ``w = 1/L`` (16 terms; each about ``((nu+1)/2 + k) / ((k+1) L)`` of
+    the one before). Where ``V`` would be larger than ``V' = (ln(nu/r) + 41)/r``,
+    ``r = (nu+1) s/(1+s) - 1`` (positive for ``|t| > 1``), ``[0, V']`` is integrated and
+    the rest left out: ``ln(1 + s e^{2u})`` is convex in ``u`` with slopes between
+    ``2s/(1+s)`` and 2, so ``e^{-nu u} <= h(u)/h(0) <= e^{-r u}`` and the part beyond
+    ``V'`` is below ``e^{-41}`` of the whole. ``[0, V]`` is split into panels at most
+    one wide, each by 12-point Gauss-Legendre (Abramowitz & Stegun 25.4.29; error
+    about ``6.4^{-24}`` of a panel's integral, from the strip's half-width).
+    """
+    s = t * t / nu
+    r = (nu + 1.0) * s / (1.0 + s) - 1.0
+    big = 1000.0 * (nu + 1.0)
+    v_series = 0.5 * np.log(np.maximum(big / s, 1.0))
+    v_bound = (np.log(nu / r) + 41.0) / r
+    series = v_series <= v_bound
+    v_end = np.where(series, v_series, v_bound)
+    panels = max(1, int(math.ceil(float(v_end.max()))))
+    width = v_end / panels
+    gx, gw = _gauss_legendre(_TAIL_POINTS)
+    frac = (np.arange(panels)[:, None] + 0.5 * (gx + 1.0)).ravel()   # in panel widths
+    u = np.multiply.outer(width, frac)                      # (n, panels * points)
+    h = np.exp(2.0 * u)
+    h *= s[:, None]
+    np.log1p(h, out=h)
+    h *= -0.5 * (nu + 1.0)
+    h += u
+    np.exp(h, out=h)
+    total = (h @ np.tile(0.5 * gw, panels)) * width
+    if series.any():
+        i = np.flatnonzero(series)
+        si, vi = s[i], v_end[i]
+        w = 1.0 / (si * np.exp(2.0 * vi))
+        coef = [1.0]
+        for k in range(1, 16):
+            coef.append(coef[-1] * (-0.5 * (nu + 1.0) - (k - 1)) / k)
+        acc = np.full(i.size, coef[-1] / (nu + 30.0))
+        for k in range(14, -1, -1):
+            acc *= w
+            acc += coef[k] / (nu + 2.0 * k)
+        total[i] += np.exp(-0.5 * (nu + 1.0) * np.log(si) - nu * vi) * acc
+    return total * np.abs(t) * math.exp(log_c)
+
+
+def _tail_anchor_quantiles(nu: float, q: np.ndarray, log_q: np.ndarray, z: np.ndarray,
+                           log_c: float):
+    """t quantiles for tail probabilities ``q < 0.01`` by Halley steps whose residual
+    ``F(t) - q`` is formed once by :func:`_t_tail_cdf` and then carried from step to
+    step by the integral of the density over the step (8-point Gauss-Legendre).
+    Returns ``(T, ok)``; ``ok`` False where a step left the bracket or did not
+    settle (those are for :func:`_lower_quantiles_one`).
+
+    The start is :func:`_lower_quantiles_one`'s tail expansion where its correction is
+    small, else its Cornish-Fisher start; the bracket is the normal quantile and the
+    tail bound."""
+    hi = np.minimum(z, -1e-300)
+    s0 = np.exp((log_c + 0.5 * (nu - 1.0) * math.log(nu) - log_q) / nu)
+    lo = np.minimum(-s0, hi)
+    z2 = z * z
+    cf = z * (1.0 + (z2 + 1.0) / (4.0 * nu) + ((5.0 * z2 + 16.0) * z2 + 3.0) / (96.0 * nu * nu))
+    k = 0.5 * nu * (nu + 1.0) / (nu + 2.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        tail = -s0 * (1.0 - k / (s0 * s0))
+    use_tail = (k < 0.25 * s0 * s0) & (tail > lo) & (tail < hi)
+    t = np.where(use_tail, tail, cf)
+    t = np.where((t > lo) & (t < hi), t, 0.5 * (lo + hi))
+    g = _t_tail_cdf(t, nu, log_c) - q
+    gx, gw = _gauss_legendre(8)
+    root = math.sqrt(nu)
+    gxs = gx / root
+    gws = gw * math.exp(log_c)
+    e = -0.5 * (nu + 1.0)
+    res = np.empty_like(t)
+    ok = np.zeros(t.shape, dtype=bool)
+    idx = np.arange(t.size)
+    for _ in range(8):
+        t2 = t * t
+        f = np.exp(log_c + e * np.log1p(t2 / nu))
+        lo = np.where(g < 0.0, t, lo)
+        hi = np.where(g > 0.0, t, hi)
+        u = g / f
+        curv = -(nu + 1.0) * t / (nu + t2)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            new = t - u / (1.0 - 0.5 * u * curv)
+        bad = ~((new >= lo) & (new <= hi)) | ~np.isfinite(new)
+        done = (np.abs(new - t) <= _HALLEY_DONE * np.abs(t)) & ~bad
+        res[idx[done]] = new[done]
+        ok[idx[done]] = True
+        keep = ~(done | bad)                    # a bad step: left to the fallback
+        if not keep.any():
+            return res, ok
+        idx, t, new, g, lo, hi = idx[keep], t[keep], new[keep], g[keep], lo[keep], hi[keep]
+        half = 0.5 * (new - t)                  # the residual carried over the step
+        pts = np.multiply.outer(half, gxs)
+        pts += ((0.5 / root) * (new + t))[:, None]
+        pts *= pts
+        np.log1p(pts, out=pts)
+        pts *= e
+        np.exp(pts, out=pts)
+        g = g + (pts @ gws) * half
+        t = new
+    return res, ok
+
+
 def t_quantiles_normal_grid(df: float, x: np.ndarray, prep: "QuantileProbabilities",
                             every: int = 16) -> np.ndarray:
     """Student-t quantiles ``T_j = F^{-1}(Phi(x_j))`` at equally spaced nodes
@@ -933,7 +1055,13 @@ def t_quantiles_normal_grid(df: float, x: np.ndarray, prep: "QuantileProbabiliti
     tail = inner[q[inner] < _ANCHOR_TAIL_Q]
     if tail.size == 0:
         tail = inner[:1]
-    T[tail] = _lower_quantiles_one(nu, q[tail], log_q[tail], z[tail])
+    if nu <= _TAIL_QUADRATURE_MAX_DF:
+        T[tail], ok = _tail_anchor_quantiles(nu, q[tail], log_q[tail], z[tail], log_c)
+        if not ok.all():
+            r = tail[~ok]
+            T[r] = _lower_quantiles_one(nu, q[r], log_q[r], z[r])
+    else:
+        T[tail] = _lower_quantiles_one(nu, q[tail], log_q[tail], z[tail])
     rest = inner[inner > tail[-1]]
     if rest.size:
         base = np.where(q[rest] > 0.25, n, tail[-1])

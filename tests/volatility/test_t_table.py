@@ -82,7 +82,7 @@ def test_quadrature_quantiles_match_scipy():
     further from it than the one-df solver itself."""
     x = dist._table_nodes()
     p_scipy = sc.ndtr(x)
-    for nu in NUS[::5]:
+    for nu in list(NUS[::5]) + [300.0, 500.0]:          # (fits allow df up to 500)
         ours = dist._lower_table_quantiles(float(nu), True)
         old = dist._lower_table_quantiles(float(nu), False)
         ref = sc.stdtrit(float(nu), p_scipy)
@@ -110,3 +110,15 @@ def test_quadrature_grid_checks_its_nodes():
         ours = special.t_quantiles_normal_grid(
             nu, xs, special.QuantileProbabilities(special.ndtr(xs)))
         assert np.allclose(ours, sc.stdtrit(nu, sc.ndtr(xs)), rtol=2e-13, atol=1e-300), nu
+
+
+def test_tail_distribution_function_matches_scipy():
+    """The tail anchors' distribution function by quadrature and the density's
+    large-|t| series (``special._t_tail_cdf``, used up to df 20) against
+    scipy.special.stdtr, from the 1 % quantile out to the 1e-16 one."""
+    for nu in (2.1, 2.5, 3.0, 4.0, 5.3, 6.37, 8.0, 12.0, 16.0, 20.0):
+        a = 0.5 * nu
+        log_c = -(math.lgamma(a) + math.lgamma(0.5) - math.lgamma(a + 0.5)) - 0.5 * math.log(nu)
+        t = sc.stdtrit(nu, np.geomspace(1e-16, 0.01, 300))
+        ours = special._t_tail_cdf(t, nu, log_c)
+        assert np.allclose(ours, sc.stdtr(nu, t), rtol=2e-14, atol=0), f"scipy.special.stdtr nu={nu}"
