@@ -826,8 +826,9 @@ _LONG_POINTS = 32
 #: widest node spacing in x that :func:`t_quantiles_normal_grid` accepts (its cells of
 #: 16 nodes then span at most 1/16: starts within about 1e-6 of the root for every df)
 _MAX_SPACING = 1.0 / 256.0
-#: probability below which the anchors of :func:`t_quantiles_normal_grid` are solved
-#: on the incomplete beta function (its continued fraction converges quickly there)
+#: probability below which the anchors of :func:`t_quantiles_normal_grid` are tail
+#: anchors: solved by :func:`_tail_anchor_quantiles` up to df 20, by the incomplete
+#: beta function beyond (its continued fraction converges quickly there)
 _ANCHOR_TAIL_Q = 0.01
 
 
@@ -1021,9 +1022,11 @@ def t_quantiles_normal_grid(df: float, x: np.ndarray, prep: "QuantileProbabiliti
 
     Notes
     -----
-    Anchors every ``every`` nodes: those with ``Phi(x) < 0.01`` by
-    :func:`stdtrit_one_df`'s Halley steps on the incomplete beta function (where its
-    continued fraction converges quickly), ``x = 0`` exactly (``T = 0``), the others
+    Anchors every ``every`` nodes: those with ``Phi(x) < 0.01`` by Halley steps on
+    :func:`_t_tail_cdf` (quadrature in ``ln |t|``, :func:`_tail_anchor_quantiles`) for
+    ``df <= 20``, by :func:`stdtrit_one_df`'s Halley steps on the incomplete beta
+    function for larger ``df`` (its continued fraction converges quickly there),
+    ``x = 0`` exactly (``T = 0``), the others
     by Halley steps on ``F(T) = F(T_a) + int_{T_a}^{T} f(s) ds`` from the innermost
     tail anchor (``Phi(x) <= 1/4``) or from ``T = 0`` (32-point Gauss-Legendre,
     Abramowitz & Stegun 25.4.29; Cornish-Fisher start, A&S 26.7.5). Every other node

@@ -62,7 +62,7 @@ def ulps32(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return np.abs(ia - ib)
 
 
-def tables(a, nus) -> None:
+def tables(a, nus, fitted=()) -> None:
     old_dist = importlib.import_module("optbench_old.volatility.distributions")
     from optbench.volatility import distributions as new_dist
 
@@ -97,6 +97,11 @@ def tables(a, nus) -> None:
     print(f"{len(nus)} degrees of freedom x {a.reps} repetitions, table builds (CPU)")
     print(f"old {np.median(med[:, 0]) * 1e3:.3f} ms  new {np.median(med[:, 1]) * 1e3:.3f} ms "
           f"(medians)  median of per-df ratios {ratio:.3f}")
+    fit = np.isin(np.asarray(nus), np.asarray(list(fitted)))
+    if fit.any():
+        r_fit = statistics.median((med[fit, 1] / med[fit, 0]).tolist())
+        print(f"the {int(fit.sum())} fitted dfs: old {np.median(med[fit, 0]) * 1e3:.3f} ms  "
+              f"new {np.median(med[fit, 1]) * 1e3:.3f} ms  median of ratios {r_fit:.3f}")
     print(f"float32 entries differing: vals {n_diff_vals}, slope {n_diff_slope} of "
           f"{len(nus) * 8192} each, in {tables_differing} tables, at most {worst} ulp")
 
@@ -153,7 +158,7 @@ def main() -> None:
     grid = np.geomspace(2.1, 200.0, a.n_grid).tolist()
     print(f"fitted degrees of freedom of {a.n_universe} rows: {len(fitted)} values in "
           f"[{min(fitted):.3f}, {max(fitted):.3f}]" if fitted else "no fitted t models")
-    tables(a, sorted(set(grid + fitted)))
+    tables(a, sorted(set(grid + fitted)), fitted)
     if a.rows:
         start = a.n_universe
         rows(a, [os.path.join(a.universe, x) for x in names[start:start + a.rows]])

@@ -121,4 +121,5 @@ def test_tail_distribution_function_matches_scipy():
         log_c = -(math.lgamma(a) + math.lgamma(0.5) - math.lgamma(a + 0.5)) - 0.5 * math.log(nu)
         t = sc.stdtrit(nu, np.geomspace(1e-16, 0.01, 300))
         ours = special._t_tail_cdf(t, nu, log_c)
-        assert np.allclose(ours, sc.stdtr(nu, t), rtol=2e-14, atol=0), f"scipy.special.stdtr nu={nu}"
+        assert np.allclose(ours, sc.stdtr(nu, t), rtol=2e-14, atol=0), \
+            f"scipy.special.stdtr nu={nu}"
