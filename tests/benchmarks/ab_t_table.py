@@ -16,11 +16,13 @@ with ``--ref``. The degrees of freedom: ``--n-grid`` values spread over [2.1, 20
 screen rows.
 
 Run: .venv/bin/python tests/benchmarks/ab_t_table.py --ref /tmp/ref [--rows 100]
+     [--grid] [--skip-tables] [--n-universe 40] [--rows-start N]
 """
 from __future__ import annotations
 
 import argparse
 import importlib
+import math
 import os
 import statistics
 import sys
@@ -113,6 +115,9 @@ def rows(a, folders) -> None:
     from optbench.volatility import distributions as new_dist
 
     new_dist.TABLE_BY_QUADRATURE = True
+    if a.grid:
+        from optbench.volatility import forecast as new_forecast
+        new_forecast.QUANTILE_GRID_ONE_DF = True
     sys.path.insert(0, os.path.dirname(__file__))
     from ab_band_sim import _rows_equal
 
@@ -122,6 +127,7 @@ def rows(a, folders) -> None:
         m.screen_one(m.ScreenTask(folder=folders[0]))
     t = np.empty((len(folders), a.reps, 2))
     equal = 0
+    worst = 0.0
     for i, f in enumerate(folders):
         for rep in range(a.reps):
             out = [None, None]
@@ -132,14 +138,30 @@ def rows(a, folders) -> None:
                 t0 = time.process_time()
                 out[which] = m.screen_one(m.ScreenTask(folder=f))
                 t[i, rep, which] = time.process_time() - t0
-            equal += _rows_equal(out[0], out[1])
+            same = _rows_equal(out[0], out[1])
+            equal += same
+            if not same:
+                worst = max(worst, _max_rel_diff(out[0], out[1]))
     med = np.median(t, axis=1)
     ratio = statistics.median((med[:, 1] / med[:, 0]).tolist())
     print(f"{len(folders)} underlyings x {a.reps} repetitions, whole lean rows (CPU)")
     print(f"old {np.mean(med[:, 0]) * 1e3:.2f} ms  new {np.mean(med[:, 1]) * 1e3:.2f} ms  "
           f"median of per-row ratios {ratio:.4f}  saved "
           f"{np.median(med[:, 0] - med[:, 1]) * 1e3:.2f} ms/row (median of per-row "
-          f"differences)  rows equal: {equal} of {len(folders) * a.reps}")
+          f"differences)  rows equal: {equal} of {len(folders) * a.reps} (largest "
+          f"relative difference of the others {worst:.1e})")
+
+
+def _max_rel_diff(x, y) -> float:
+    worst = 0.0
+    for r, s in zip(x, y):
+        for k in r:
+            u, v = r.get(k), s.get(k)
+            if isinstance(u, float) and isinstance(v, float) and u != v and u == u:
+                worst = max(worst, abs(u - v) / max(abs(u), abs(v)))
+            elif not isinstance(u, float) and u != v:
+                worst = math.inf
+    return worst
 
 
 def main() -> None:
@@ -151,16 +173,24 @@ def main() -> None:
     ap.add_argument("--reps", type=int, default=3)
     ap.add_argument("--rows", type=int, default=0,
                     help="also time this many whole lean screen rows")
+    ap.add_argument("--grid", action="store_true",
+                    help="rows also with forecast.QUANTILE_GRID_ONE_DF on")
+    ap.add_argument("--rows-start", type=int, default=None,
+                    help="first row folder (default: after the --n-universe ones)")
+    ap.add_argument("--skip-tables", action="store_true")
     a = ap.parse_args()
     sys.path.insert(0, a.ref)
     names = sorted(x for x in os.listdir(a.universe) if x.startswith("SYN"))
-    fitted = universe_nus([os.path.join(a.universe, x) for x in names[:a.n_universe]])
+    fitted = ([] if a.skip_tables else
+              universe_nus([os.path.join(a.universe, x) for x in names[:a.n_universe]]))
     grid = np.geomspace(2.1, 200.0, a.n_grid).tolist()
-    print(f"fitted degrees of freedom of {a.n_universe} rows: {len(fitted)} values in "
-          f"[{min(fitted):.3f}, {max(fitted):.3f}]" if fitted else "no fitted t models")
-    tables(a, sorted(set(grid + fitted)), fitted)
+    if fitted:
+        print(f"fitted degrees of freedom of {a.n_universe} rows: {len(fitted)} values in "
+              f"[{min(fitted):.3f}, {max(fitted):.3f}]")
+    if not a.skip_tables:
+        tables(a, sorted(set(grid + fitted)), fitted)
     if a.rows:
-        start = a.n_universe
+        start = a.n_universe if a.rows_start is None else a.rows_start
         rows(a, [os.path.join(a.universe, x) for x in names[start:start + a.rows]])
 
 

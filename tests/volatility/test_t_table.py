@@ -123,3 +123,27 @@ def test_tail_distribution_function_matches_scipy():
         ours = special._t_tail_cdf(t, nu, log_c)
         assert np.allclose(ours, sc.stdtr(nu, t), rtol=2e-14, atol=0), \
             f"scipy.special.stdtr nu={nu}"
+
+
+def test_quantile_grid_of_one_df_matches_general_solver(monkeypatch):
+    """std_t_quantile_grid by stdtrit_one_df (QUANTILE_GRID_ONE_DF) against the
+    general solver stdtrit (the default) and scipy.special.stdtrit."""
+    from optbench.volatility import forecast as fc
+
+    assert fc.QUANTILE_GRID_ONE_DF is False
+    for n in (256, 2000, 7):
+        p = (np.arange(n) + 0.5) / n
+        for nu in (2.1, 4.6, 6.37, 8.3, 30.0, 200.0):
+            monkeypatch.setattr(fc, "QUANTILE_GRID_ONE_DF", False)
+            general = fc.std_t_quantile_grid(nu, n)
+            monkeypatch.setattr(fc, "QUANTILE_GRID_ONE_DF", True)
+            one = fc.std_t_quantile_grid(nu, n)
+            assert one.shape == general.shape == (n,)
+            tol = 2e-14 if nu <= 100 else 2e-13         # as in test_special.py
+            assert np.allclose(one, general, rtol=tol, atol=0), f"optbench stdtrit nu={nu}"
+            ref = sc.stdtrit(nu, p) * np.sqrt((nu - 2.0) / nu)
+            assert np.allclose(one, ref, rtol=1e-12, atol=0), f"scipy.special.stdtrit nu={nu}"
+        # an array of df: one grid per row, by the general solver
+        rows = fc.std_t_quantile_grid(np.array([4.6, 8.3]), n)
+        monkeypatch.setattr(fc, "QUANTILE_GRID_ONE_DF", False)
+        assert rows.tobytes() == fc.std_t_quantile_grid(np.array([4.6, 8.3]), n).tobytes()
