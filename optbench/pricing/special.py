@@ -810,3 +810,297 @@ def _lower_quantiles_one(nu: float, q: np.ndarray, log_q: np.ndarray | None = No
     else:
         res[idx] = t
     return res
+
+
+
+#: Gauss-Legendre points and weights on [-1, 1] (Abramowitz & Stegun 25.4.29), made
+#: at first use for the integrals of the t density of :func:`t_quantiles_normal_grid`
+_GAUSS_LEGENDRE: dict[int, tuple[np.ndarray, np.ndarray]] = {}
+
+#: Gauss-Legendre points of the integrals between a node and its nearer anchor (at
+#: most half a cell of ``every`` nodes; 5 points already give the same quantiles)
+_SHORT_POINTS = 6
+#: ... and of the integrals from the innermost tail anchor or from T = 0 to the
+#: other anchors
+_LONG_POINTS = 32
+#: widest node spacing in x that :func:`t_quantiles_normal_grid` accepts (its cells of
+#: 16 nodes then span at most 1/16: starts within about 1e-6 of the root for every df)
+_MAX_SPACING = 1.0 / 256.0
+#: probability below which the anchors of :func:`t_quantiles_normal_grid` are tail
+#: anchors: solved by :func:`_tail_anchor_quantiles` up to df 20, by the incomplete
+#: beta function beyond (its continued fraction converges quickly there)
+_ANCHOR_TAIL_Q = 0.01
+
+
+def _gauss_legendre(m: int) -> tuple[np.ndarray, np.ndarray]:
+    if m not in _GAUSS_LEGENDRE:
+        _GAUSS_LEGENDRE[m] = np.polynomial.legendre.leggauss(m)
+    return _GAUSS_LEGENDRE[m]
+
+
+def _halley_by_quadrature(t, t_from, dp, nu: float, log_c: float, m: int, lo, hi,
+                          max_iter: int = 8):
+    """Roots ``T`` of ``g(T) = int_{t_from}^{T} f(s) ds - dp`` (``f`` the t density
+    with ``nu`` degrees of freedom, ``log_c`` the log of its constant) by Halley steps
+    from ``t``, the integral by ``m``-point Gauss-Legendre. Returns ``(T, ok)``;
+    ``ok`` is False where no step came within ``_HALLEY_DONE`` of its value.
+
+    ``g' = f``, ``g''/g' = f'/f = -(nu + 1) T / (nu + T^2)``; a step that leaves the
+    bracket ``[lo, hi]`` (updated by the sign of ``g``) is replaced by the bracket's
+    middle. Each element leaves once its step is within ``_HALLEY_DONE`` of its value,
+    as in :func:`_lower_quantiles_one`."""
+    gx, gw = _gauss_legendre(m)
+    root = math.sqrt(nu)
+    gx = gx / root                          # points scaled by 1/sqrt(nu)
+    gw = gw * math.exp(log_c)               # weights times the density's constant
+    e = -0.5 * (nu + 1.0)
+    res = np.empty_like(t)
+    ok = np.zeros(t.shape, dtype=bool)
+    idx = np.arange(t.size)
+    for _ in range(max_iter):
+        half = 0.5 * (t - t_from)
+        s = np.multiply.outer(half, gx)
+        s += ((0.5 / root) * (t + t_from))[:, None]
+        s *= s                              # point^2 / nu
+        np.log1p(s, out=s)
+        s *= e
+        np.exp(s, out=s)                    # f(point) / c
+        integral = s @ gw
+        integral *= half
+        g = integral - dp
+        t2 = t * t
+        f = np.exp(log_c + e * np.log1p(t2 / nu))
+        lo = np.where(g < 0.0, t, lo)
+        hi = np.where(g > 0.0, t, hi)
+        u = g / f
+        curv = -(nu + 1.0) * t / (nu + t2)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            new = t - u / (1.0 - 0.5 * u * curv)
+        # (a step may end on a bracket's end only at the root, within rounding)
+        bad = ~((new >= lo) & (new <= hi)) | ~np.isfinite(new)
+        new = np.where(bad, 0.5 * (lo + hi), new)
+        done = (np.abs(new - t) <= _HALLEY_DONE * np.abs(t)) & ~bad
+        res[idx[done]] = new[done]
+        ok[idx[done]] = True
+        keep = ~done
+        if not keep.any():
+            return res, ok
+        idx, t, t_from, dp, lo, hi = (idx[keep], new[keep], t_from[keep], dp[keep],
+                                      lo[keep], hi[keep])
+    res[idx] = t
+    return res, ok
+
+
+#: largest df whose tail anchors :func:`t_quantiles_normal_grid` solves by
+#: :func:`_t_tail_cdf` (beyond it the integrand falls too steeply across a panel for
+#: 12 points: 1e-13 at df 30 against 1e-14 up to 20, tests/pricing/test_special.py)
+_TAIL_QUADRATURE_MAX_DF = 20.0
+#: Gauss-Legendre points per panel of the tail integral of :func:`_t_tail_cdf`
+_TAIL_POINTS = 12
+
+
+def _t_tail_cdf(t: np.ndarray, nu: float, log_c: float) -> np.ndarray:
+    """Student-t distribution function ``F(t)`` for ``t < -1`` by quadrature and the
+    density's expansion for large ``|t|``, without the continued fraction.
+
+    Notes
+    -----
+    With ``s = t^2 / nu``, ``F(t) = c |t| int_0^inf h(u) du``, ``h(u) = e^u (1 + s
+    e^{2u})^{-(nu+1)/2}`` (``tau = t e^u``), analytic in the strip ``|Im u| < pi/2``.
+    Beyond ``V`` with ``s e^{2V} = L = 1000 (nu + 1)`` the binomial series
+    ``(1 + s e^{2u})^{-(nu+1)/2} = sum_k C(-(nu+1)/2, k) (s e^{2u})^{-(nu+1)/2-k}``
+    integrates term by term: ``s^{-(nu+1)/2} e^{-nu V} sum_k C(-(nu+1)/2, k) w^k /
+    (nu + 2k)``, ``w = 1/L`` (16 terms; each about ``((nu+1)/2 + k) / ((k+1) L)`` of
+    the one before). Where ``V`` would be larger than ``V' = (ln(nu/r) + 41)/r``,
+    ``r = (nu+1) s/(1+s) - 1`` (positive for ``|t| > 1``), ``[0, V']`` is integrated and
+    the rest left out: ``ln(1 + s e^{2u})`` is convex in ``u`` with slopes between
+    ``2s/(1+s)`` and 2, so ``e^{-nu u} <= h(u)/h(0) <= e^{-r u}`` and the part beyond
+    ``V'`` is below ``e^{-41}`` of the whole. ``[0, V]`` is split into panels at most
+    one wide, each by 12-point Gauss-Legendre (Abramowitz & Stegun 25.4.29; error
+    about ``6.4^{-24}`` of a panel's integral, from the strip's half-width).
+    """
+    s = t * t / nu
+    r = (nu + 1.0) * s / (1.0 + s) - 1.0
+    big = 1000.0 * (nu + 1.0)
+    v_series = 0.5 * np.log(np.maximum(big / s, 1.0))
+    v_bound = (np.log(nu / r) + 41.0) / r
+    series = v_series <= v_bound
+    v_end = np.where(series, v_series, v_bound)
+    panels = max(1, int(math.ceil(float(v_end.max()))))
+    width = v_end / panels
+    gx, gw = _gauss_legendre(_TAIL_POINTS)
+    frac = (np.arange(panels)[:, None] + 0.5 * (gx + 1.0)).ravel()   # in panel widths
+    u = np.multiply.outer(width, frac)                      # (n, panels * points)
+    h = np.exp(2.0 * u)
+    h *= s[:, None]
+    np.log1p(h, out=h)
+    h *= -0.5 * (nu + 1.0)
+    h += u
+    np.exp(h, out=h)
+    total = (h @ np.tile(0.5 * gw, panels)) * width
+    if series.any():
+        i = np.flatnonzero(series)
+        si, vi = s[i], v_end[i]
+        w = 1.0 / (si * np.exp(2.0 * vi))
+        coef = [1.0]
+        for k in range(1, 16):
+            coef.append(coef[-1] * (-0.5 * (nu + 1.0) - (k - 1)) / k)
+        acc = np.full(i.size, coef[-1] / (nu + 30.0))
+        for k in range(14, -1, -1):
+            acc *= w
+            acc += coef[k] / (nu + 2.0 * k)
+        total[i] += np.exp(-0.5 * (nu + 1.0) * np.log(si) - nu * vi) * acc
+    return total * np.abs(t) * math.exp(log_c)
+
+
+def _tail_anchor_quantiles(nu: float, q: np.ndarray, log_q: np.ndarray, z: np.ndarray,
+                           log_c: float):
+    """t quantiles for tail probabilities ``q < 0.01`` by Halley steps whose residual
+    ``F(t) - q`` is formed once by :func:`_t_tail_cdf` and then carried from step to
+    step by the integral of the density over the step (8-point Gauss-Legendre).
+    Returns ``(T, ok)``; ``ok`` False where a step left the bracket or did not
+    settle (those are for :func:`_lower_quantiles_one`).
+
+    The start is :func:`_lower_quantiles_one`'s tail expansion where its correction is
+    small, else its Cornish-Fisher start; the bracket is the normal quantile and the
+    tail bound."""
+    hi = np.minimum(z, -1e-300)
+    s0 = np.exp((log_c + 0.5 * (nu - 1.0) * math.log(nu) - log_q) / nu)
+    lo = np.minimum(-s0, hi)
+    z2 = z * z
+    cf = z * (1.0 + (z2 + 1.0) / (4.0 * nu) + ((5.0 * z2 + 16.0) * z2 + 3.0) / (96.0 * nu * nu))
+    k = 0.5 * nu * (nu + 1.0) / (nu + 2.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        tail = -s0 * (1.0 - k / (s0 * s0))
+    use_tail = (k < 0.25 * s0 * s0) & (tail > lo) & (tail < hi)
+    t = np.where(use_tail, tail, cf)
+    t = np.where((t > lo) & (t < hi), t, 0.5 * (lo + hi))
+    g = _t_tail_cdf(t, nu, log_c) - q
+    gx, gw = _gauss_legendre(8)
+    root = math.sqrt(nu)
+    gxs = gx / root
+    gws = gw * math.exp(log_c)
+    e = -0.5 * (nu + 1.0)
+    res = np.empty_like(t)
+    ok = np.zeros(t.shape, dtype=bool)
+    idx = np.arange(t.size)
+    for _ in range(8):
+        t2 = t * t
+        f = np.exp(log_c + e * np.log1p(t2 / nu))
+        lo = np.where(g < 0.0, t, lo)
+        hi = np.where(g > 0.0, t, hi)
+        u = g / f
+        curv = -(nu + 1.0) * t / (nu + t2)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            new = t - u / (1.0 - 0.5 * u * curv)
+        bad = ~((new >= lo) & (new <= hi)) | ~np.isfinite(new)
+        done = (np.abs(new - t) <= _HALLEY_DONE * np.abs(t)) & ~bad
+        res[idx[done]] = new[done]
+        ok[idx[done]] = True
+        keep = ~(done | bad)                    # a bad step: left to the fallback
+        if not keep.any():
+            return res, ok
+        idx, t, new, g, lo, hi = idx[keep], t[keep], new[keep], g[keep], lo[keep], hi[keep]
+        half = 0.5 * (new - t)                  # the residual carried over the step
+        pts = np.multiply.outer(half, gxs)
+        pts += ((0.5 / root) * (new + t))[:, None]
+        pts *= pts
+        np.log1p(pts, out=pts)
+        pts *= e
+        np.exp(pts, out=pts)
+        g = g + (pts @ gws) * half
+        t = new
+    return res, ok
+
+
+def t_quantiles_normal_grid(df: float, x: np.ndarray, prep: "QuantileProbabilities",
+                            every: int = 16) -> np.ndarray:
+    """Student-t quantiles ``T_j = F^{-1}(Phi(x_j))`` at equally spaced nodes
+    ``x_0 < ... < x_n = 0`` at most 1/256 apart (``prep`` made from ``Phi(x)``, ``n``
+    a multiple of ``every``): :func:`stdtrit_one_df`'s values to a few units in the last place, for
+    about a third of its CPU time (the simulation's quantile table).
+
+    Notes
+    -----
+    Anchors every ``every`` nodes: those with ``Phi(x) < 0.01`` by Halley steps on
+    :func:`_t_tail_cdf` (quadrature in ``ln |t|``, :func:`_tail_anchor_quantiles`) for
+    ``df <= 20``, by :func:`stdtrit_one_df`'s Halley steps on the incomplete beta
+    function for larger ``df`` (its continued fraction converges quickly there),
+    ``x = 0`` exactly (``T = 0``), the others
+    by Halley steps on ``F(T) = F(T_a) + int_{T_a}^{T} f(s) ds`` from the innermost
+    tail anchor (``Phi(x) <= 1/4``) or from ``T = 0`` (32-point Gauss-Legendre,
+    Abramowitz & Stegun 25.4.29; Cornish-Fisher start, A&S 26.7.5). Every other node
+    starts from the cubic Hermite interpolant of its cell's anchors in ``x`` with the
+    map's derivative ``dT/dx = phi(x) / f(T)`` (``F(T(x)) = Phi(x)`` differentiated),
+    and takes Halley steps on the integral of the density from its nearer anchor
+    (6-point Gauss-Legendre over at most ``every / 2`` nodes) until a step is within
+    ``1e-6`` of its value, where :func:`stdtrit_one_df` stops too (a Halley step of
+    relative size s leaves an error of order s^3). Nodes whose steps do not settle
+    are solved by :func:`stdtrit_one_df`'s steps.
+    """
+    nu = float(df)
+    x = np.asarray(x, dtype=float)
+    n = x.size - 1
+    if (not nu > 0.0 or n < every or n % every or x[-1] != 0.0
+            or not 0.0 < x[1] - x[0] <= _MAX_SPACING
+            or prep.work.size != n or not np.array_equal(prep.work, np.arange(n))):
+        raise ValueError("t_quantiles_normal_grid: df > 0 and nodes at most 1/256 apart "
+                         f"up to x = 0, a multiple of {every} cells, probabilities < 1/2")
+    q, log_q, z = prep.q_work, prep.log_q, prep.z
+    a = 0.5 * nu
+    log_beta = math.lgamma(a) + math.lgamma(0.5) - math.lgamma(a + 0.5)
+    log_c = -log_beta - 0.5 * math.log(nu)        # density constant 1/(sqrt(nu) B)
+    p = np.append(q, 0.5)
+    T = np.empty(n + 1)
+    T[n] = 0.0
+    anchors = np.arange(0, n + 1, every)
+    inner = anchors[:-1]
+    tail = inner[q[inner] < _ANCHOR_TAIL_Q]
+    if tail.size == 0:
+        tail = inner[:1]
+    if nu <= _TAIL_QUADRATURE_MAX_DF:
+        T[tail], ok = _tail_anchor_quantiles(nu, q[tail], log_q[tail], z[tail], log_c)
+        if not ok.all():
+            r = tail[~ok]
+            T[r] = _lower_quantiles_one(nu, q[r], log_q[r], z[r])
+    else:
+        T[tail] = _lower_quantiles_one(nu, q[tail], log_q[tail], z[tail])
+    rest = inner[inner > tail[-1]]
+    if rest.size:
+        base = np.where(q[rest] > 0.25, n, tail[-1])
+        zr = z[rest]
+        z2 = zr * zr
+        start = zr * (1.0 + (z2 + 1.0) / (4.0 * nu)
+                      + ((5.0 * z2 + 16.0) * z2 + 3.0) / (96.0 * nu * nu))
+        lo = np.full(rest.size, T[tail[-1]])
+        hi = np.minimum(zr, -1e-300)              # the t quantile is below the normal's
+        start = np.where((start > lo) & (start < hi), start, 0.5 * (lo + hi))
+        T[rest], ok = _halley_by_quadrature(start, T[base], q[rest] - p[base], nu, log_c,
+                                            _LONG_POINTS, lo, hi)
+        if not ok.all():
+            r = rest[~ok]
+            T[r] = _lower_quantiles_one(nu, q[r], log_q[r], z[r])
+    # the nodes between anchors: Hermite start, Halley steps from the nearer anchor
+    xa, Ta = x[anchors], T[anchors]
+    f_a = np.exp(log_c - 0.5 * (nu + 1.0) * np.log1p(Ta * Ta / nu))
+    slope_a = np.exp(-0.5 * xa * xa) * (1.0 / math.sqrt(2.0 * math.pi)) / f_a
+    h = x[every] - x[0]
+    s = np.arange(1, every) / every
+    h00 = (2.0 * s - 3.0) * s * s + 1.0           # cubic Hermite basis on [0, 1]
+    h01 = 1.0 - h00
+    h10 = ((s - 2.0) * s + 1.0) * s * h
+    h11 = (s - 1.0) * s * s * h
+    start = (Ta[:-1, None] * h00 + slope_a[:-1, None] * h10
+             + Ta[1:, None] * h01 + slope_a[1:, None] * h11).ravel()
+    offsets = np.arange(1, every)
+    mids = (inner[:, None] + offsets).ravel()
+    near = (inner[:, None] + np.where(offsets <= every // 2, 0, every)).ravel()
+    lo = np.repeat(Ta[:-1], every - 1)
+    hi = np.minimum(np.repeat(Ta[1:], every - 1), -1e-300)
+    start = np.where((start > lo) & (start < hi), start, 0.5 * (lo + hi))
+    T[mids], ok = _halley_by_quadrature(start, T[near], q[mids] - p[near], nu, log_c,
+                                        _SHORT_POINTS, lo, hi)
+    if not ok.all():
+        r = mids[~ok]
+        T[r] = _lower_quantiles_one(nu, q[r], log_q[r], z[r])
+    return T
