@@ -174,13 +174,14 @@ def hull_term_structure(trading_days, omega: float, alpha: float, beta: float,
     return np.sqrt(var)
 
 
-#: How :func:`std_t_quantile_grid` solves a grid for one ``nu``. False: the general
-#: solver :func:`stdtrit` (Newton steps). True: :func:`stdtrit_one_df` (Halley steps
-#: for one df; 1.0 ms instead of 4.3 ms for 256 points, 1.4 instead of 6.9 for 2,000,
-#: this machine), which agrees with it within 2e-14 relative for nu <= 100 (6e-15 at
-#: the screen's fitted nu; 2e-13 beyond 100), tests/volatility/test_t_table.py: the
-#: EGARCH-t forecasts and bands then move in their last bits. Off until accepted.
-QUANTILE_GRID_ONE_DF = False
+#: How :func:`std_t_quantile_grid` solves a grid for one ``nu``. True (the default):
+#: :func:`stdtrit_one_df` (Halley steps for one df; 1.0 ms instead of 4.3 ms for 256
+#: points, 1.4 instead of 6.9 for 2,000, this machine), which agrees with the general
+#: solver within 2e-14 relative for nu <= 100 (6e-15 at the screen's fitted nu; 2e-13
+#: beyond 100), tests/volatility/test_t_table.py: the EGARCH-t forecasts and bands
+#: moved in their last bits (within 7.5e-15 relative on the benchmark universe's rows).
+#: False: the general solver :func:`stdtrit` (Newton steps) for every grid.
+QUANTILE_GRID_ONE_DF = True
 
 
 def std_t_quantile_grid(nu, n_points: int = 2000) -> np.ndarray:

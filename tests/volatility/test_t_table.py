@@ -49,13 +49,13 @@ def _ulps32(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return np.abs(ia - ib)
 
 
-def test_default_table_is_the_reference():
-    assert dist.TABLE_BY_QUADRATURE is False
+def test_default_table_is_the_quadrature_path():
+    assert dist.TABLE_BY_QUADRATURE is True
     for nu in (2.1, 6.37, 30.0):
         dist._normal_to_t_table.cache_clear()
         vals, slope = dist._normal_to_t_table(nu)
-        ref_vals, ref_slope = reference_table(nu)
-        assert vals.tobytes() == ref_vals.tobytes() and slope.tobytes() == ref_slope.tobytes()
+        q_vals, q_slope = quadrature_table(nu)
+        assert vals.tobytes() == q_vals.tobytes() and slope.tobytes() == q_slope.tobytes()
     dist._normal_to_t_table.cache_clear()
 
 
@@ -130,7 +130,7 @@ def test_quantile_grid_of_one_df_matches_general_solver(monkeypatch):
     general solver stdtrit (the default) and scipy.special.stdtrit."""
     from optbench.volatility import forecast as fc
 
-    assert fc.QUANTILE_GRID_ONE_DF is False
+    assert fc.QUANTILE_GRID_ONE_DF is True
     for n in (256, 2000, 7):
         p = (np.arange(n) + 0.5) / n
         for nu in (2.1, 4.6, 6.37, 8.3, 30.0, 200.0):
