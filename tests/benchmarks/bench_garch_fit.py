@@ -23,10 +23,15 @@ import sys
 import time
 import warnings
 
+from pathlib import Path
+
 import numpy as np
 from arch import arch_model
 
 from optbench.volatility.garch import fit_garch
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from timing import figure  # noqa: E402  (tests/benchmarks)
 
 ROUNDS = 15
 CASES = [("garch", "normal", dict(vol="GARCH", p=1, q=1, dist="normal")),
@@ -95,8 +100,13 @@ def main(rounds: int = ROUNDS) -> None:
         med = statistics.median(ratios)
         print(f"{model + '-' + dist:<13}median ratio {med:.2f} wall, "
               f"{statistics.median(cpu_ratios):.2f} CPU (target >= {TARGET[model]:g})\n")
+        figure(f"{model}-{dist} fit, arch time / optbench time (CPU, median of 4 datasets)",
+               statistics.median(cpu_ratios), "x", TARGET[model], better="higher",
+               reference="arch's fit on sp500, nasdaq, wti and vix, same run")
     print(f"worst log-likelihood difference optbench - arch: {worst_ll:.2e} "
           "(target >= -1e-6)")
+    figure("fit log-likelihood, optbench minus arch, worst of all fits", worst_ll, "",
+           -1e-6, better="higher", reference="arch's optimum on the same data, same run")
 
 
 if __name__ == "__main__":
