@@ -24,7 +24,7 @@ from optbench.analysis.arbitrage import calendar_arbitrage, strike_arbitrage
 from optbench.analysis.model_free import model_free_variance
 from optbench.analysis.smile import fit_svi, fit_svi_many
 from optbench.pricing.bsm import bsm_price
-from timing import median_time  # noqa: E402  (tests/benchmarks)
+from timing import figure, median_time  # noqa: E402  (tests/benchmarks)
 
 
 
@@ -86,6 +86,12 @@ def bench_svi() -> None:
               f"start) {ref * 1e3:7.1f} ms   ratio {ref / ours:5.2f}x")
         print(f"  summed weighted squared error: optbench {e_ours:.6e}   "
               f"least_squares {e_ref:.6e}")
+        figure(f"smile fits, {n_exp} expiries x {n_q} quotes, least_squares time / optbench "
+               "time", ref / ours, "x", better="higher",
+               reference="scipy.optimize.least_squares from the true parameters, same run")
+        figure(f"smile fits, {n_exp} expiries x {n_q} quotes, squared error / "
+               "least_squares'", e_ours / e_ref, "x",
+               reference="scipy.optimize.least_squares from the true parameters, same run")
     # every expiry's smile fitted together (what compare does) against fit_svi one at a
     # time, the same fits bit for bit; 3 expiries is a screen row's
     for n_exp, n_q, repeat in ((3, 100, 21), (10, 100, 15), (20, 200, 7)):
@@ -130,6 +136,8 @@ def bench_model_free() -> None:
           f"QuantLib replicating engine {ref * 1e3:7.3f} ms   ratio {ref / ours:5.1f}x")
     print(f"  variance: optbench {v_ours:.7f}   QuantLib {quantlib():.7f}   "
           f"flat vol^2 {vol ** 2:.7f}")
+    figure("model-free variance, 400 strikes, QuantLib time / optbench time", ref / ours, "x",
+           better="higher", reference="QuantLib ReplicatingVarianceSwapEngine, same run")
 
 
 def bench_arbitrage() -> None:

@@ -32,7 +32,7 @@ from pathlib import Path
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from timing import median_time, process_time  # noqa: E402
+from timing import figure, median_time, process_time  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "chains" / "ZPHX"
@@ -54,6 +54,8 @@ def main() -> None:
     print(f"  import numpy, pandas, scipy.optimize   {imports:7.3f} s")
     print(f"  optbench track -f json (demo)          {track_wall:7.3f} s wall, "
           f"{track_cpu:.3f} s CPU  (median of {n})")
+    figure("optbench track on the demo, wall", track_wall, "s", 5.0,
+           reference=f"import numpy, pandas, scipy.optimize {imports:.2f} s, same run")
 
     from optbench.data.history import load_history
     from optbench.data.scenario import read_meta
@@ -155,6 +157,8 @@ def main() -> None:
                               rows)
             c.close()
         t_bare = median_time(bare_append, max(n, 9))
+    figure("append one comparison to the record store", t_append, "s", 0.05,
+           reference=f"the same rows written without checks {t_bare * 1e3:.1f} ms")
     print(f"\nappending one comparison ({len(comparison.expiries)} expiries) "
           "(target: <= 50 ms)")
     print(f"  sqlite3 executemany, plain table       {1000 * t_bare:7.1f} ms")
