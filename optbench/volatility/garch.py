@@ -1606,7 +1606,7 @@ def _estimate(y: np.ndarray, model: str, dist: str, mean: str, backcast,
 #: a weak-dynamics climb is stopped once it is within this many log-likelihood
 #: units of the optimum already found ...
 JOIN_LOGLIK = 10.0
-#: ... and that optimum's quadratic model (its gradient and quasi-Newton Hessian)
+#: ... and that optimum's quadratic model (its gradient and conditional information)
 #: predicts the climb's log-likelihood there to within this fraction of the gap
 #: (plus JOIN_MODEL_ABS): the climb has entered the found optimum's basin, where it
 #: can only end at that optimum
