@@ -838,6 +838,25 @@ def _gauss_legendre(m: int) -> tuple[np.ndarray, np.ndarray]:
     return _GAUSS_LEGENDRE[m]
 
 
+def _halley_t_step(t, g, lo, hi, nu: float, log_c: float):
+    """One Halley step on ``g(t) = F(t) - p`` for the Student-t with ``nu`` degrees of
+    freedom (``g`` given at ``t``; the density ``f = c (1 + t^2/nu)^{-(nu+1)/2}``,
+    ``ln c = log_c``, and ``f'/f = -(nu+1) t / (nu + t^2)``): the bracket ``[lo, hi]``
+    narrowed by the sign of ``g``, then ``t - u / (1 - u f'/(2 f))`` with
+    ``u = g / f``. Returns ``(new, lo, hi, bad)``, ``bad`` where the step leaves the
+    bracket or is not finite (the caller bisects or falls back there)."""
+    t2 = t * t
+    f = np.exp(log_c + -0.5 * (nu + 1.0) * np.log1p(t2 / nu))
+    lo = np.where(g < 0.0, t, lo)
+    hi = np.where(g > 0.0, t, hi)
+    u = g / f
+    curv = -(nu + 1.0) * t / (nu + t2)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        new = t - u / (1.0 - 0.5 * u * curv)
+    bad = ~((new >= lo) & (new <= hi)) | ~np.isfinite(new)
+    return new, lo, hi, bad
+
+
 def _halley_by_quadrature(t, t_from, dp, nu: float, log_c: float, m: int, lo, hi,
                           max_iter: int = 8):
     """Roots ``T`` of ``g(T) = int_{t_from}^{T} f(s) ds - dp`` (``f`` the t density
@@ -868,16 +887,8 @@ def _halley_by_quadrature(t, t_from, dp, nu: float, log_c: float, m: int, lo, hi
         integral = s @ gw
         integral *= half
         g = integral - dp
-        t2 = t * t
-        f = np.exp(log_c + e * np.log1p(t2 / nu))
-        lo = np.where(g < 0.0, t, lo)
-        hi = np.where(g > 0.0, t, hi)
-        u = g / f
-        curv = -(nu + 1.0) * t / (nu + t2)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            new = t - u / (1.0 - 0.5 * u * curv)
         # (a step may end on a bracket's end only at the root, within rounding)
-        bad = ~((new >= lo) & (new <= hi)) | ~np.isfinite(new)
+        new, lo, hi, bad = _halley_t_step(t, g, lo, hi, nu, log_c)
         new = np.where(bad, 0.5 * (lo + hi), new)
         done = (np.abs(new - t) <= _HALLEY_DONE * np.abs(t)) & ~bad
         res[idx[done]] = new[done]
@@ -985,15 +996,7 @@ def _tail_anchor_quantiles(nu: float, q: np.ndarray, log_q: np.ndarray, z: np.nd
     ok = np.zeros(t.shape, dtype=bool)
     idx = np.arange(t.size)
     for _ in range(8):
-        t2 = t * t
-        f = np.exp(log_c + e * np.log1p(t2 / nu))
-        lo = np.where(g < 0.0, t, lo)
-        hi = np.where(g > 0.0, t, hi)
-        u = g / f
-        curv = -(nu + 1.0) * t / (nu + t2)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            new = t - u / (1.0 - 0.5 * u * curv)
-        bad = ~((new >= lo) & (new <= hi)) | ~np.isfinite(new)
+        new, lo, hi, bad = _halley_t_step(t, g, lo, hi, nu, log_c)
         done = (np.abs(new - t) <= _HALLEY_DONE * np.abs(t)) & ~bad
         res[idx[done]] = new[done]
         ok[idx[done]] = True
