@@ -746,6 +746,26 @@ class QuantileProbabilities:
 _HALLEY_DONE = 1e-6
 
 
+def _t_quantile_starts(nu: float, log_c: float, log_q: np.ndarray, z: np.ndarray):
+    """The bracket and the starts of lower t quantiles at ``ln q`` (``z`` the normal
+    quantiles of ``q``): the bracket is the normal quantile (above) and the tail bound
+    ``-s0``, ``s0 = (c nu^{(nu-1)/2} / q)^{1/nu}`` (below); the starts are the
+    Cornish-Fisher expansion (Abramowitz & Stegun 26.7.5) and the tail expansion
+    ``-s0 (1 - k / s0^2)``, ``k = nu (nu+1) / (2 (nu+2))``, the latter usable where its
+    correction is small and it lies inside the bracket. Returns
+    ``(lo, hi, cf, tail, use_tail)``."""
+    hi = np.minimum(z, -1e-300)
+    s0 = np.exp((log_c + 0.5 * (nu - 1.0) * math.log(nu) - log_q) / nu)
+    lo = np.minimum(-s0, hi)
+    z2 = z * z
+    cf = z * (1.0 + (z2 + 1.0) / (4.0 * nu) + ((5.0 * z2 + 16.0) * z2 + 3.0) / (96.0 * nu * nu))
+    k = 0.5 * nu * (nu + 1.0) / (nu + 2.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        tail = -s0 * (1.0 - k / (s0 * s0))
+    use_tail = (k < 0.25 * s0 * s0) & (tail > lo) & (tail < hi)
+    return lo, hi, cf, tail, use_tail
+
+
 def _lower_quantiles_one(nu: float, q: np.ndarray, log_q: np.ndarray | None = None,
                          z: np.ndarray | None = None) -> np.ndarray:
     """t quantiles for 0 < q < 1/2 and one nu (see :func:`stdtrit_one_df`); ``log_q``
@@ -757,18 +777,9 @@ def _lower_quantiles_one(nu: float, q: np.ndarray, log_q: np.ndarray | None = No
         log_q = np.log(q)
     if z is None:
         z = ndtri(q)
-    hi = np.minimum(z, -1e-300)
-    s0 = np.exp((log_c + 0.5 * (nu - 1.0) * math.log(nu) - log_q) / nu)
-    lo = np.minimum(-s0, hi)
-    # starts: Cornish-Fisher, and the tail expansion where its correction is small
-    z2 = z * z
-    cf = z * (1.0 + (z2 + 1.0) / (4.0 * nu) + ((5.0 * z2 + 16.0) * z2 + 3.0) / (96.0 * nu * nu))
-    k = 0.5 * nu * (nu + 1.0) / (nu + 2.0)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        tail = -s0 * (1.0 - k / (s0 * s0))
+    lo, hi, cf, tail, use_tail = _t_quantile_starts(nu, log_c, log_q, z)
     mid = 0.5 * (lo + hi)
     cf = np.where((cf > lo) & (cf < hi), cf, mid)
-    use_tail = (k < 0.25 * s0 * s0) & (tail > lo) & (tail < hi)
     t = cf
     if use_tail.any():
         i = np.flatnonzero(use_tail)
@@ -975,15 +986,7 @@ def _tail_anchor_quantiles(nu: float, q: np.ndarray, log_q: np.ndarray, z: np.nd
     The start is :func:`_lower_quantiles_one`'s tail expansion where its correction is
     small, else its Cornish-Fisher start; the bracket is the normal quantile and the
     tail bound."""
-    hi = np.minimum(z, -1e-300)
-    s0 = np.exp((log_c + 0.5 * (nu - 1.0) * math.log(nu) - log_q) / nu)
-    lo = np.minimum(-s0, hi)
-    z2 = z * z
-    cf = z * (1.0 + (z2 + 1.0) / (4.0 * nu) + ((5.0 * z2 + 16.0) * z2 + 3.0) / (96.0 * nu * nu))
-    k = 0.5 * nu * (nu + 1.0) / (nu + 2.0)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        tail = -s0 * (1.0 - k / (s0 * s0))
-    use_tail = (k < 0.25 * s0 * s0) & (tail > lo) & (tail < hi)
+    lo, hi, cf, tail, use_tail = _t_quantile_starts(nu, log_c, log_q, z)
     t = np.where(use_tail, tail, cf)
     t = np.where((t > lo) & (t < hi), t, 0.5 * (lo + hi))
     g = _t_tail_cdf(t, nu, log_c) - q
