@@ -405,17 +405,23 @@ _STYLE_WORDS = {"european": "european", "e": "european", "eu": "european",
                 "a": "american", "am": "american", "amer": "american"}
 
 
+def _distinct_words(arrow) -> tuple[list, np.ndarray]:
+    """The distinct cells of a pyarrow text array, stripped and lower-cased by the
+    kernels pandas' ``.str`` methods call on pyarrow storage, and each cell's position
+    among them (-1 for a missing cell)."""
+    import pyarrow.compute as pc
+
+    enc = pc.dictionary_encode(arrow)
+    keys = pc.utf8_lower(pc.utf8_trim_whitespace(enc.dictionary)).to_pylist()
+    return keys, pc.fill_null(enc.indices, -1).to_numpy(zero_copy_only=False)
+
+
 def _vocab(col: pd.Series, words: dict) -> pd.Series:
     arrow = arrow_text(col)
     if arrow is not None:
-        # the distinct cells, stripped and lower-cased by the kernels pandas' ``.str``
-        # methods call on pyarrow storage (as in :func:`call_codes`)
-        import pyarrow.compute as pc
-        enc = pc.dictionary_encode(arrow)
-        keys = pc.utf8_lower(pc.utf8_trim_whitespace(enc.dictionary)).to_pylist()
+        keys, at = _distinct_words(arrow)
         mapped = np.array([words.get(k) if isinstance(k, str) else None for k in keys]
                           + [None], dtype=object)
-        at = pc.fill_null(enc.indices, -1).to_numpy(zero_copy_only=False)
         return pd.Series(mapped[at], index=col.index, dtype=object)
     codes, uniques = pd.factorize(col, use_na_sentinel=True)
     keys = pd.Series(uniques, dtype=object).astype("string").str.strip().str.lower()
@@ -435,12 +441,7 @@ def call_codes(col: pd.Series) -> np.ndarray:
         single = _one_byte_codes(arrow)
         if single is not None:
             return single
-        # the distinct cells, stripped and lower-cased by the kernels pandas' ``.str``
-        # methods call on pyarrow storage
-        import pyarrow.compute as pc
-        enc = pc.dictionary_encode(arrow)
-        keys = pc.utf8_lower(pc.utf8_trim_whitespace(enc.dictionary)).to_pylist()
-        codes = pc.fill_null(enc.indices, -1).to_numpy(zero_copy_only=False)
+        keys, codes = _distinct_words(arrow)
     else:
         codes, uniques = pd.factorize(col, use_na_sentinel=True)
         keys = pd.Series(uniques, dtype=object).astype("string").str.strip().str.lower()
